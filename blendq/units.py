@@ -1,0 +1,236 @@
+"""One pint unit registry for blendq, and conversion to the core's base units.
+
+The numerical core works on plain floats in these base units (see ``docs/glossary.md``):
+
+==================  ===============  ==========================================
+quantity            base unit        notes
+==================  ===============  ==========================================
+length, depth, head m                depths positive downward from the datum
+pumping rate        m^3/d
+time                d
+conductance         m^2/d            zone conductance G, Q = G * dh
+transmissivity      m^2/d
+conductivity        m/d
+nonlinear loss      d^2/m^5          dh = D * Q * |Q|
+well loss           d^2/m^5          s = C * Q^2 (Jacob 1947)
+concentration       mg/L             on the analyte's canonical basis
+==================  ===============  ==========================================
+
+pint is used at the edges only: to read user input and to format output.
+"""
+
+from __future__ import annotations
+
+import functools
+import re
+
+import pint
+
+from blendq.errors import InputError
+
+ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+ureg.define("equivalent = [ionic_charge] = eq")
+ureg.define("gpm = gallon / minute")
+ureg.define("gph = gallon / hour")
+ureg.define("gpd = gallon / day")
+ureg.define("MGD = 1e6 * gallon / day")
+ureg.define("cfs = foot ** 3 / second")
+ureg.define("lpm = liter / minute")
+ureg.define("lps = liter / second")
+ureg.define("ppm_w = milligram / liter")  # spelled out so 'ppm' (dimensionless) is not taken
+ureg.define("gpd_per_ft = gallon / day / foot")
+Q_ = ureg.Quantity
+
+#: base unit of each kind of quantity the core uses
+BASE_UNITS: dict[str, str] = {
+    "length": "m",
+    "rate": "m**3/d",
+    "time": "d",
+    "conductance": "m**2/d",
+    "transmissivity": "m**2/d",
+    "conductivity": "m/d",
+    "nonlinear_loss": "d**2/m**5",
+    "well_loss": "d**2/m**5",
+    "concentration": "mg/L",
+    "dimensionless": "dimensionless",
+    "temperature": "degC",
+    "specific_conductance": "uS/cm",
+    "volume": "m**3",
+}
+
+#: display units of the two unit systems
+DISPLAY_UNITS: dict[str, dict[str, str]] = {
+    "US": {
+        "length": "ft",
+        "rate": "gpm",
+        "time": "d",
+        "conductance": "ft**2/d",
+        "transmissivity": "ft**2/d",
+        "conductivity": "ft/d",
+        "well_loss": "s**2/ft**5",
+        "volume": "gallon",
+    },
+    "SI": {
+        "length": "m",
+        "rate": "m**3/d",
+        "time": "d",
+        "conductance": "m**2/d",
+        "transmissivity": "m**2/d",
+        "conductivity": "m/d",
+        "well_loss": "min**2/m**5",
+        "volume": "m**3",
+    },
+}
+
+# spellings seen in spreadsheets and lab files, mapped to pint expressions
+_ALIASES = {
+    "m3/d": "m**3/d",
+    "m3/day": "m**3/day",
+    "m3/h": "m**3/h",
+    "m3/hr": "m**3/h",
+    "m3/s": "m**3/s",
+    "ft3/s": "ft**3/s",
+    "ft2/d": "ft**2/d",
+    "ft2/day": "ft**2/day",
+    "m2/d": "m**2/d",
+    "m2/day": "m**2/day",
+    "m2/s": "m**2/s",
+    "l/s": "L/s",
+    "l/min": "L/min",
+    "mg/l": "mg/L",
+    "ug/l": "ug/L",
+    "µg/l": "ug/L",
+    "µg/L": "ug/L",
+    "μg/L": "ug/L",
+    "μg/l": "ug/L",
+    "ng/l": "ng/L",
+    "meq/l": "meq/L",
+    "us/cm": "uS/cm",
+    "µs/cm": "uS/cm",
+    "µS/cm": "uS/cm",
+    "ppm": "ppm_w",
+    "ppb": "ug/L",
+    "deg c": "degC",
+    "°c": "degC",
+    "°C": "degC",
+    "c": "degC",
+    "s2/ft5": "s**2/ft**5",
+    "min2/m5": "min**2/m**5",
+    "d2/m5": "d**2/m**5",
+}
+
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+
+
+@functools.lru_cache(maxsize=512)
+def parse_unit(text: str) -> pint.Unit:
+    """Parse a unit string, accepting common spreadsheet spellings.
+
+    Raises
+    ------
+    InputError
+        If the text is not a unit pint knows.
+    """
+    raw = str(text).strip()
+    key = _ALIASES.get(raw, _ALIASES.get(raw.lower(), raw))
+    try:
+        return ureg.Unit(key)
+    except Exception as exc:  # pint raises several types for bad units
+        raise InputError(f'"{raw}" is not a unit blendq knows') from exc
+
+
+def _dimension_ok(unit: pint.Unit, kind: str) -> bool:
+    base = ureg.Unit(BASE_UNITS[kind])
+    return unit.dimensionality == base.dimensionality
+
+
+def to_base(value: float, unit: str, kind: str) -> float:
+    """Convert ``value`` in ``unit`` to the base unit of ``kind``.
+
+    Parameters
+    ----------
+    value : float
+        Magnitude.
+    unit : str
+        Unit text, for example ``"gpm"`` or ``"ft"``.
+    kind : str
+        One of the keys of :data:`BASE_UNITS`.
+
+    Returns
+    -------
+    float
+        Magnitude in the base unit of ``kind``.
+
+    Raises
+    ------
+    InputError
+        If the unit is unknown or of the wrong dimension (the message says what was expected).
+    """
+    u = parse_unit(unit)
+    if not _dimension_ok(u, kind):
+        raise InputError(f'"{unit}" is not a {kind.replace("_", " ")} unit (expected e.g. '
+                         f'{EXAMPLE_UNITS.get(kind, BASE_UNITS[kind])})')
+    return float(Q_(value, u).to(BASE_UNITS[kind]).magnitude)
+
+
+def from_base(value, kind: str, unit: str):
+    """Convert a magnitude (float or array) in the base unit of ``kind`` to ``unit``."""
+    return Q_(value, BASE_UNITS[kind]).to(parse_unit(unit)).magnitude
+
+
+EXAMPLE_UNITS = {
+    "length": '"ft" or "m"',
+    "rate": '"gpm", "L/s", "m3/d", "m3/h" or "ft3/s"',
+    "time": '"min", "h" or "d"',
+    "conductance": '"ft2/d" or "m2/d"',
+    "transmissivity": '"ft2/d" or "m2/d"',
+    "conductivity": '"ft/d" or "m/d"',
+    "concentration": '"mg/L", "ug/L" or "ng/L"',
+    "nonlinear_loss": '"s2/ft5" or "d2/m5"',
+    "well_loss": '"s2/ft5" or "min2/m5"',
+}
+
+
+def parse_quantity(text: str | float | int, kind: str, default_unit: str | None = None) -> float:
+    """Parse ``"12.5 ft"`` (or a bare number with ``default_unit``) into base units of ``kind``.
+
+    Raises
+    ------
+    InputError
+        If the text has no number, no unit (and no default), or a unit of the wrong kind.
+    """
+    if isinstance(text, bool):
+        raise InputError(f"{text!r} is not a quantity")
+    if isinstance(text, (int, float)):
+        if default_unit is None:
+            raise InputError(f"{text!r} has no unit (write it as a string such as "
+                             f'"{text} {BASE_UNITS[kind]}")')
+        return check_finite(to_base(float(text), default_unit, kind))
+    m = _NUMBER.match(str(text))
+    if not m:
+        raise InputError(f'"{text}" is not a number with a unit')
+    number, unit = m.group(1), m.group(2)
+    if not unit:
+        if default_unit is None:
+            raise InputError(f'"{text}" has no unit (expected e.g. {EXAMPLE_UNITS.get(kind, BASE_UNITS[kind])})')
+        unit = default_unit
+    return check_finite(to_base(float(number), unit, kind))
+
+
+def check_finite(value: float) -> float:
+    """Return ``value`` or raise :class:`InputError` if it is NaN or infinite."""
+    if value != value or value in (float("inf"), float("-inf")):
+        raise InputError(f"{value!r} is not a finite number")
+    return value
+
+
+def format_quantity(value: float, kind: str, system: str = "US", digits: int = 3) -> str:
+    """Format a base-unit magnitude in the display unit of ``system`` ("US" or "SI")."""
+    unit = DISPLAY_UNITS[system].get(kind, BASE_UNITS[kind])
+    mag = from_base(value, kind, unit)
+    return f"{mag:.{digits}g} {display_unit_label(unit)}"
+
+
+def display_unit_label(unit: str) -> str:
+    """A short printable label for a unit expression (``m**3/d`` -> ``m³/d``)."""
+    return unit.replace("**2", "²").replace("**3", "³").replace("**5", "⁵").replace("gallon", "gal")
