@@ -158,8 +158,13 @@ _ALIASES = {
     "no3": "nitrate",
     "nitrate-n": "nitrate",
     "nitrate as n": "nitrate",
+    # "NO3-N" / "NO2-N" name the species (as N); without these aliases they became unknown
+    # analytes and escaped the nitrate and nitrite limits
+    "no3-n": "nitrate",
     "no2": "nitrite",
     "nitrite-n": "nitrite",
+    "nitrite as n": "nitrite",
+    "no2-n": "nitrite",
     "nitrate+nitrite": "nitrate_nitrite",
     "nitrate + nitrite": "nitrate_nitrite",
     "nitrate-nitrite": "nitrate_nitrite",
