@@ -17,6 +17,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from blendq.analytes import get_analyte, to_canonical
+from blendq.errors import InputError
 
 
 @dataclass(frozen=True)
@@ -118,11 +119,19 @@ RATIO_RULES: dict[str, list[RatioRule]] = {
 
 
 def limit_set(name: str) -> list[Limit]:
-    """Return the limits of a named set ("US-EPA", "WHO" or "EU")."""
+    """Return the limits of a named set ("US-EPA", "WHO" or "EU").
+
+    Raises
+    ------
+    InputError
+        If no set has that name (the name comes from the user's project file).
+    """
     try:
         return list(CATALOGUE[name])
     except KeyError:
-        raise KeyError(f'no limit set "{name}" (known: {", ".join(CATALOGUE)})') from None
+        raise InputError(
+            f'no limit set "{name}" (expected one of: {", ".join(CATALOGUE)})'
+        ) from None
 
 
 def ratio_value(rule: RatioRule, concentrations: dict[str, float]) -> float:
