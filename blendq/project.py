@@ -76,6 +76,8 @@ class Well:
         Also keep the pumping level above the top of the uppermost zone.
     radius_of_influence : float or None
         R [m] for steady Thiem conductances.
+    static_level : float or None
+        Depth to water in the well before pumping [m] (the composite ambient level).
     datum : str
         What depths are measured from (e.g. "top of casing").
     location : str
@@ -92,6 +94,7 @@ class Well:
     well_loss: float = 0.0
     keep_above_screen: bool = False
     radius_of_influence: float | None = None
+    static_level: float | None = None
     datum: str = "top of casing"
     location: str = ""
 
@@ -179,6 +182,14 @@ class Settings:
         "US" or "SI".
     conductance_model : str
         "auto", "steady", "transient", "given" or "flowlog".
+    flowlog_relative_error : float
+        Relative error of a logged flow [-] (1 sd).
+    flowlog_absolute_error : float
+        Absolute floor of a logged flow's error [m^3/d] (spinner stall; 2.7 m^3/d = 0.5 gpm).
+    level_error : float
+        Error of a measured water level [m] (1 sd).
+    default_relative_uncertainty : float
+        Lab uncertainty (1 sd, relative) used where a result has none.
     qa : dict
         Options of the lab and field review.
     """
@@ -194,6 +205,10 @@ class Settings:
     seed: int = 20261202
     display_units: str = "US"
     conductance_model: str = "auto"
+    flowlog_relative_error: float = 0.05
+    flowlog_absolute_error: float = 2.7
+    level_error: float = 0.05
+    default_relative_uncertainty: float = 0.05
     qa: dict = field(default_factory=dict)
 
 

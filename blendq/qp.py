@@ -1,0 +1,175 @@
+"""Small bound- and inequality-constrained weighted least-squares problems.
+
+The zone-concentration fit of one analyte is
+
+    minimise ||W (A c - y)||^2   subject to  lb <= c <= ub,   A_nd c <= dl
+
+where the last rows are the censored (non-detect) samples: the fitted blend at a non-detect step
+may not exceed the detection limit. Problems are tiny (a few zones), so:
+
+* :func:`solve_censored_lsq` solves one problem with scipy (``lsq_linear`` for the bounds, then
+  ``minimize(method="SLSQP")`` if a censoring constraint is violated);
+* :func:`solve_censored_lsq_batch` solves thousands of them at once (one per Monte Carlo draw)
+  by enumerating active sets: for each candidate set of active constraints the equality-
+  constrained least-squares problem is solved for every draw with one batched linear solve, and
+  each draw keeps its best feasible candidate. For a convex problem the optimum is the solution
+  of the equality problem on its own active set, so the best feasible candidate is the optimum.
+  The tests check it against the scipy solvers.
+"""
+
+from __future__ import annotations
+
+import itertools
+
+import numpy as np
+from scipy import optimize
+
+_MAX_COMBINATIONS = 4096
+
+
+def solve_censored_lsq(a, y, sigma, lb, ub, a_censored=None, dl=None):
+    """Solve one censored, bounded weighted least-squares problem with scipy.
+
+    Parameters
+    ----------
+    a : ndarray, shape (m, n)
+        Weights of each zone in each measured sample.
+    y : ndarray, shape (m,)
+        Measured values [mg/L].
+    sigma : ndarray, shape (m,)
+        Standard deviation of each measurement [mg/L].
+    lb, ub : ndarray, shape (n,)
+        Bounds on the zone values [mg/L] (``ub`` may be ``inf``).
+    a_censored : ndarray, shape (p, n), optional
+        Weights of each non-detect sample.
+    dl : ndarray, shape (p,), optional
+        Detection limits [mg/L].
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        Zone values c [mg/L].
+    """
+    a = np.asarray(a, float)
+    w = 1.0 / np.asarray(sigma, float)
+    lb = np.asarray(lb, float)
+    ub = np.asarray(ub, float)
+    n = a.shape[1]
+    if a.shape[0] > 0:
+        res = optimize.lsq_linear(a * w[:, None], np.asarray(y, float) * w, bounds=(lb, ub),
+                                  method="bvls", tol=1e-14, lsmr_tol=None)
+        c = res.x
+    else:
+        c = np.clip(np.zeros(n), lb, ub)
+    if a_censored is None or len(a_censored) == 0:
+        return c
+    ac = np.asarray(a_censored, float)
+    dl = np.asarray(dl, float)
+    if np.all(ac @ c <= dl * (1 + 1e-12) + 1e-15):
+        return c
+    wa = a * w[:, None]
+    wy = np.asarray(y, float) * w
+    hess = wa.T @ wa
+    grad0 = wa.T @ wy
+    scale = max(1.0, float(np.abs(wy).max()) if wy.size else 1.0)
+
+    def fun(x):
+        r = wa @ x - wy
+        return float(r @ r) / scale**2
+
+    def jac(x):
+        return 2.0 * (hess @ x - grad0) / scale**2
+
+    start = np.clip(np.minimum(c, np.where(ac.max(0) > 0, dl.min() / np.maximum(ac.max(0), 1e-300), c)), lb, ub)
+    cons = [{"type": "ineq", "fun": lambda x: dl - ac @ x, "jac": lambda x: -ac}]
+    bounds = list(zip(lb, np.where(np.isfinite(ub), ub, None)))
+    out = optimize.minimize(fun, start, jac=jac, bounds=bounds, constraints=cons, method="SLSQP",
+                            options={"ftol": 1e-15, "maxiter": 500})
+    return np.clip(out.x, lb, ub)
+
+
+def solve_censored_lsq_batch(a, y, sigma, lb, ub, a_censored=None, dl=None, rtol=1e-9):
+    """Solve many problems of the form of :func:`solve_censored_lsq` at once.
+
+    Parameters
+    ----------
+    a : ndarray, shape (B, m, n)
+    y : ndarray, shape (B, m)
+    sigma : ndarray, shape (m,) or (B, m)
+    lb, ub : ndarray, shape (n,)
+    a_censored : ndarray, shape (B, p, n), optional
+    dl : ndarray, shape (p,), optional
+
+    Returns
+    -------
+    ndarray, shape (B, n)
+    """
+    a = np.asarray(a, float)
+    bsz, m, n = a.shape
+    w = 1.0 / np.broadcast_to(np.asarray(sigma, float), (bsz, m))
+    wa = a * w[..., None]
+    wy = np.asarray(y, float) * w
+    hess = np.einsum("bmi,bmj->bij", wa, wa)
+    grad = np.einsum("bmi,bm->bi", wa, wy)
+    lb = np.asarray(lb, float)
+    ub = np.asarray(ub, float)
+    ac = np.zeros((bsz, 0, n)) if a_censored is None else np.asarray(a_censored, float)
+    dl = np.zeros(0) if dl is None else np.asarray(dl, float)
+    p = ac.shape[1]
+    # constraint list: (kind, index) with kind 0 = lower bound, 1 = upper bound, 2 = censor row
+    cons = [(0, i) for i in range(n) if np.isfinite(lb[i])]
+    cons += [(1, i) for i in range(n) if np.isfinite(ub[i])]
+    cons += [(2, k) for k in range(p)]
+    combos = []
+    for k in range(0, min(len(cons), n) + 1):
+        for sub in itertools.combinations(range(len(cons)), k):
+            vars_bound = [cons[j][1] for j in sub if cons[j][0] < 2]
+            if len(vars_bound) != len(set(vars_bound)):
+                continue
+            combos.append(sub)
+            if len(combos) > _MAX_COMBINATIONS:
+                return np.stack([
+                    solve_censored_lsq(a[b], y[b], 1.0 / w[b], lb, ub, ac[b] if p else None,
+                                       dl if p else None) for b in range(bsz)])
+    best = np.full((bsz, n), np.nan)
+    best_obj = np.full(bsz, np.inf)
+    yy = np.einsum("bm,bm->b", wy, wy)
+    tol_scale = rtol * (1.0 + np.abs(np.nan_to_num(np.concatenate([lb[np.isfinite(lb)], ub[np.isfinite(ub)], dl]))).max(initial=0.0))
+    for sub in combos:
+        k = len(sub)
+        e = np.zeros((bsz, k, n))
+        rhs = np.zeros((bsz, k))
+        for r, j in enumerate(sub):
+            kind, idx = cons[j]
+            if kind == 0:
+                e[:, r, idx] = 1.0
+                rhs[:, r] = lb[idx]
+            elif kind == 1:
+                e[:, r, idx] = 1.0
+                rhs[:, r] = ub[idx]
+            else:
+                e[:, r, :] = ac[:, idx, :]
+                rhs[:, r] = dl[idx]
+        kkt = np.zeros((bsz, n + k, n + k))
+        kkt[:, :n, :n] = hess
+        kkt[:, :n, n:] = np.swapaxes(e, 1, 2)
+        kkt[:, n:, :n] = e
+        vec = np.concatenate([grad, rhs], axis=1)
+        sol = np.einsum("bij,bj->bi", np.linalg.pinv(kkt, rcond=1e-12), vec)
+        c = sol[:, :n]
+        slack = tol_scale + 1e-9 * np.abs(c).max(1, keepdims=True)
+        feas = np.all(c >= lb - slack, 1) & np.all(c <= ub + slack, 1)
+        if p:
+            feas &= np.all(np.einsum("bpn,bn->bp", ac, c) <= dl + slack, 1)
+        # the equality solve must actually satisfy its own constraints (pinv of a singular KKT)
+        feas &= np.all(np.abs(np.einsum("bkn,bn->bk", e, c) - rhs) <= slack, 1)
+        obj = np.einsum("bi,bij,bj->b", c, hess, c) - 2.0 * np.einsum("bi,bi->b", grad, c) + yy
+        margin = np.where(np.isfinite(best_obj), 1e-12 * (1.0 + np.abs(best_obj)), 0.0)
+        better = feas & (obj < best_obj - margin)
+        best[better] = c[better]
+        best_obj[better] = obj[better]
+    missing = ~np.isfinite(best_obj)
+    for b in np.flatnonzero(missing):
+        best[b] = solve_censored_lsq(a[b], y[b], 1.0 / w[b], lb, ub, ac[b] if p else None,
+                                     dl if p else None)
+    return np.clip(best, lb, ub)
