@@ -1,0 +1,1 @@
+"""Reference models built with outside libraries, used by the tests as independent checks."""
