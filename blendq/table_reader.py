@@ -1,0 +1,352 @@
+"""Read one input table (CSV or .xlsx) into checked cells, with units taken from the header.
+
+A header cell names a column and, in brackets, its unit: ``rate [gpm]``, ``depth [m]``. Rows are
+numbered from the header: the header is row 0 and the first line below it is row 1 (blank lines
+count, so row numbers match the line below the header in any editor). Blank lines are skipped,
+a UTF-8 byte-order mark is ignored, and the delimiter (comma, semicolon or tab) is taken from
+the header line; in a semicolon file a decimal comma (``12,5``) is read as a decimal point.
+Columns the table does not know are ignored. Files are opened for reading only.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+import re
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+from datetime import datetime, timezone
+from pathlib import Path
+
+import pandas as pd
+
+from blendq.errors import InputError
+from blendq.units import parse_unit, to_base
+
+#: kinds of cell that carry a unit in the header (a kind of :data:`blendq.units.BASE_UNITS`)
+UNIT_KINDS = ("rate", "length", "time", "temperature", "specific_conductance", "concentration")
+
+# table -> column -> (kind, column required, cell required). Kinds: a unit kind; "text";
+# "date" (ISO 8601); "flag" (true/false); "number" (plain, unit "-" or none); "turbidity"
+# (plain, unit FNU or NTU or none); "raw" (text read by the caller, in the row's unit);
+# "result" (like "raw", and the header may give a default unit)
+SPECS: dict[str, dict[str, tuple[str, bool, bool]]] = {
+    "steps": {
+        "step": ("text", True, True), "rate": ("rate", True, True),
+        "start": ("date", False, False), "end": ("date", False, False),
+        "duration": ("time", False, False), "pumping_level": ("length", False, False),
+        "recovered_before": ("flag", False, False),
+    },
+    "samples": {
+        "sample_id": ("text", True, True), "step": ("text", True, True),
+        "analyte": ("text", True, True), "value": ("result", True, False),
+        "unit": ("text", False, False), "basis": ("text", False, False),
+        "nondetect": ("flag", False, False), "detection_limit": ("raw", False, False),
+        "uncertainty": ("raw", False, False), "qualifier": ("text", False, False),
+        "sampled_at": ("date", False, False), "analyzed_at": ("date", False, False),
+        "duplicate_of": ("text", False, False), "depth": ("length", False, False),
+        "preservation": ("text", False, False),
+    },
+    "flowlogs": {
+        "log": ("text", True, True), "step": ("text", False, False),
+        "rate": ("rate", False, False), "depth": ("length", True, True),
+        "upward_flow": ("rate", True, True),
+    },
+    "levels": {"time": ("date", True, True), "level": ("length", True, True)},
+    "field": {
+        "step": ("text", True, True), "time": ("date", False, False),
+        "temperature": ("temperature", False, False), "ph": ("number", False, False),
+        "specific_conductance": ("specific_conductance", False, False),
+        "dissolved_oxygen": ("concentration", False, False),
+        "turbidity": ("turbidity", False, False),
+    },
+}
+
+_NUMBER = re.compile(r"^[-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?$")
+_LEADING_NUMBER = re.compile(r"^([-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*)$")
+_HEADER = re.compile(r"^(.*?)\s*\[(.*)\]\s*$")
+_AS_BASIS = re.compile(r"^(.*?)\s+as\s+(\S+)$", re.IGNORECASE)
+_FLAGS = {"true": True, "yes": True, "y": True, "1": True, "t": True, "<": True, "nd": True,
+          "false": False, "no": False, "n": False, "0": False, "f": False}
+_NOT_FINITE = {"nan", "inf", "+inf", "-inf", "infinity", "-infinity", "+infinity"}
+_NO_NUMBER = {"", "nd", "n.d.", "<dl", "<rl", "<mdl", "bdl"}
+
+
+def located(err: InputError, file: str | None, row: int | None, field: str | None,
+            text: str | None = None) -> InputError:
+    """``err`` with file, row and field filled in, and the received text if it is not quoted."""
+    message = err.message
+    if text is not None and str(text) not in message:
+        message = f'received "{text}": {message}'
+    return InputError(message, file=err.file or file, row=err.row if err.row is not None else row,
+                      field=err.field or field)
+
+
+def split_unit_basis(text: str, with_number: bool = False):
+    """Split ``"10 mg/L as N"`` into (10.0, "mg/L", "N"); number and basis may be absent.
+
+    Returns (number or None, unit text, basis text or None). The number is read only when
+    ``with_number`` is true.
+    """
+    text, number = str(text).strip(), None
+    if with_number:
+        m = _LEADING_NUMBER.match(text)
+        number, text = (float(m.group(1)), m.group(2).strip()) if m else (None, text)
+    m = _AS_BASIS.match(text)
+    return (number, m.group(1).strip(), m.group(2)) if m else (number, text, None)
+
+
+def parse_number(text: str, decimal_comma: bool = False) -> float:
+    """A finite number from a cell; raises :class:`InputError` (without location) otherwise."""
+    cell = text.strip()
+    if decimal_comma and re.match(r"^[-+]?\d*,\d+$", cell):
+        cell = cell.replace(",", ".")
+    if cell.lower() in _NOT_FINITE:
+        raise InputError(f'"{text}" is not a finite number')
+    if not _NUMBER.match(cell):
+        raise InputError(f'"{text}" is not a number')
+    return float(cell)
+
+
+def parse_time(text: str) -> pd.Timestamp:
+    """An ISO 8601 date or date-time; a time with an offset is converted to UTC (naive)."""
+    cell = text.strip()
+    try:
+        stamp = datetime.fromisoformat(cell[:-1] + "+00:00" if cell.endswith("Z") else cell)
+    except ValueError:
+        raise InputError(f'"{text}" is not an ISO 8601 date or time (expected e.g. '
+                         '"2025-05-13" or "2025-05-13 14:30")') from None
+    if stamp.tzinfo is not None:
+        stamp = stamp.astimezone(timezone.utc).replace(tzinfo=None)
+    return pd.Timestamp(stamp)
+
+
+@dataclass
+class Table:
+    """The cells of one table, its header units and the parsing rules of its columns.
+
+    Attributes
+    ----------
+    label : str
+        File name as the user wrote it (used in messages).
+    columns : dict
+        Column name -> (cell index, unit text or None).
+    rows : list
+        (row number, cells) of every non-blank data row.
+    spec : dict
+        Column rules from :data:`SPECS`.
+    decimal_comma : bool
+        Read ``12,5`` as 12.5 (semicolon-delimited files).
+    """
+
+    label: str
+    columns: dict[str, tuple[int, str | None]]
+    rows: list[tuple[int, list[str]]]
+    spec: dict[str, tuple[str, bool, bool]]
+    decimal_comma: bool = False
+
+    def error(self, row: int | None, column: str | None, message: str) -> InputError:
+        return InputError(message, file=self.label, row=row, field=column)
+
+    def unit(self, column: str) -> str | None:
+        return self.columns[column][1] if column in self.columns else None
+
+    def raw(self, row: int, column: str) -> str:
+        """Stripped text of a cell ("" when the column or the cell is absent)."""
+        if column not in self.columns:
+            return ""
+        cells = self._cells[row]
+        index = self.columns[column][0]
+        return cells[index].strip() if index < len(cells) else ""
+
+    def number_text(self, row: int, column: str, text: str) -> float:
+        try:
+            return parse_number(text, self.decimal_comma)
+        except InputError as err:
+            raise located(err, self.label, row, column) from None
+
+    def number_in(self, row: int, column: str) -> float:
+        """Number of a "raw" cell, NaN when empty or "ND"; a leading "<" is dropped."""
+        text = self.raw(row, column)
+        text = text[1:].strip() if text.startswith("<") else text
+        return math.nan if text.lower() in _NO_NUMBER else self.number_text(row, column, text)
+
+    def records(self) -> Iterator[tuple[int, Callable[[str], object]]]:
+        """Yield (row, get) where ``get(column)`` is the parsed cell or None when empty."""
+        for row, _ in self.rows:
+            yield row, (lambda column, row=row: self._value(row, column))
+
+    def _value(self, row: int, column: str):
+        kind, _, needed = self.spec[column]
+        text = self.raw(row, column)
+        if not text:
+            if needed:
+                raise self.error(row, column, "is empty (a value is required)")
+            return None
+        if kind in ("text", "raw", "result"):
+            return text
+        if kind == "flag":
+            if text.lower() not in _FLAGS:
+                raise self.error(row, column, f'"{text}" is not true or false')
+            return _FLAGS[text.lower()]
+        if kind == "date":
+            try:
+                return parse_time(text)
+            except InputError as err:
+                raise located(err, self.label, row, column) from None
+        try:
+            number = parse_number(text, self.decimal_comma)
+        except InputError as err:
+            hint = f" (the unit goes in the header: {column} [{self.unit(column)}])" \
+                if kind in UNIT_KINDS else ""
+            raise self.error(row, column, err.message + hint) from None
+        if kind in UNIT_KINDS:
+            offset, scale = self._affine[column]
+            return offset + scale * number
+        return number
+
+    def __post_init__(self) -> None:
+        self._cells = dict(self.rows)
+        self._affine = {}
+        for column, (_, unit) in self.columns.items():
+            kind = self.spec[column][0]
+            if kind in UNIT_KINDS:
+                zero, one = to_base(0.0, unit, kind), to_base(1.0, unit, kind)
+                self._affine[column] = (zero, one - zero)
+
+
+def _decode(path: Path, label: str) -> str:
+    data = path.read_bytes()
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError as err:
+        raise InputError(f"is not UTF-8 text (byte 0x{data[err.start]:02x} at offset "
+                         f"{err.start}); save it as CSV UTF-8", file=label) from None
+
+
+def _csv_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], str]:
+    """(line number, cells) of every non-blank line, and the delimiter."""
+    text = _decode(path, label)
+    first = next((line for line in text.splitlines() if line.strip()), "")
+    delimiter = max((",", ";", "\t"), key=first.count)
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    rows = []
+    try:
+        for cells in reader:
+            if any(c.strip() for c in cells):
+                rows.append((reader.line_num, cells))
+    except csv.Error as err:
+        raise InputError(f"cannot be read as CSV near line {reader.line_num}: {err}",
+                         file=label) from None
+    return rows, delimiter
+
+
+def _xlsx_rows(path: Path, label: str) -> list[tuple[int, list[str]]]:
+    """(sheet row number, cells as text) of the first worksheet's non-blank rows."""
+    try:
+        import openpyxl
+    except ModuleNotFoundError:
+        raise InputError("reading .xlsx files needs the openpyxl package; install it or save "
+                         "the sheet as CSV", file=label) from None
+    try:
+        book = openpyxl.load_workbook(path, read_only=True, data_only=True)
+    except Exception as err:  # openpyxl raises several types for a damaged file
+        raise InputError(f"cannot be read as an .xlsx workbook: {err}", file=label) from None
+    try:
+        rows = []
+        for number, values in enumerate(book.worksheets[0].iter_rows(values_only=True), 1):
+            cells = ["" if v is None else v.isoformat(sep=" ") if isinstance(v, datetime)
+                     else str(v) for v in values]
+            if any(c.strip() for c in cells):
+                rows.append((number, cells))
+        return rows
+    finally:
+        book.close()
+
+
+def read_table(path: Path, label: str, name: str) -> Table:
+    """Read table ``name`` ("steps", "samples", ...) from ``path`` and check its header.
+
+    Parameters
+    ----------
+    path : Path
+        CSV (comma, semicolon or tab) or .xlsx (first worksheet) file.
+    label : str
+        File name used in messages.
+    name : str
+        Key of :data:`SPECS`.
+
+    Raises
+    ------
+    InputError
+        Unreadable file, no data rows, a missing required column, a duplicate column, a
+        missing, unknown or wrong-dimension unit, or a row with more cells than the header.
+    """
+    spec = SPECS[name]
+    if path.suffix.lower() == ".xlsx":
+        lines, delimiter = _xlsx_rows(path, label), ","
+    else:
+        lines, delimiter = _csv_rows(path, label)
+    if not lines:
+        raise InputError("is empty; the first line must name the columns", file=label)
+    header_line, header = lines[0]
+    columns: dict[str, tuple[int, str | None]] = {}
+    for index, cell in enumerate(header):
+        m = _HEADER.match(cell.strip())
+        column, unit = (m.group(1), m.group(2).strip()) if m else (cell.strip(), None)
+        column = re.sub(r"[\s\-]+", "_", column.strip().lower())
+        if column in columns:
+            raise InputError(f'column "{cell.strip()}" appears twice', file=label, row=0,
+                             field=column)
+        if column in spec:
+            _check_header_unit(label, column, spec[column][0], unit)
+            columns[column] = (index, unit or None)
+    for column, (_, required, _) in spec.items():
+        if required and column not in columns:
+            kind = spec[column][0]
+            example = f"{column} [{_EXAMPLE[kind]}]" if kind in UNIT_KINDS else column
+            found = ", ".join(c.strip() for c in header if c.strip())
+            raise InputError(f'required column is missing (expected a header such as '
+                             f'"{example}"; found: {found})', file=label, row=0, field=column)
+    rows = []
+    for line, cells in lines[1:]:
+        row = line - header_line
+        if len(cells) > len(header) and any(c.strip() for c in cells[len(header):]):
+            raise InputError(f"has {len(cells)} cells but the header has {len(header)} "
+                             "columns", file=label, row=row)
+        rows.append((row, cells))
+    if not rows:
+        raise InputError("has no data rows (only a header); add rows or remove the table from "
+                         "[tables]", file=label)
+    return Table(label, columns, rows, spec, decimal_comma=delimiter == ";")
+
+
+_EXAMPLE = {"rate": "gpm", "length": "ft", "time": "min", "temperature": "degC",
+            "specific_conductance": "uS/cm", "concentration": "mg/L"}
+
+
+def _check_header_unit(label: str, column: str, kind: str, unit: str | None) -> None:
+    def fail(message: str) -> InputError:
+        return InputError(message, file=label, row=0, field=column)
+
+    if kind in UNIT_KINDS:
+        if not unit:
+            raise fail(f'needs its unit in brackets, e.g. "{column} [{_EXAMPLE[kind]}]"')
+        try:
+            to_base(1.0, unit, kind)
+        except InputError as err:
+            raise located(err, label, 0, column, unit) from None
+    elif kind == "result" and unit:  # a default unit for the value column of samples
+        try:
+            parse_unit(split_unit_basis(unit)[1])
+        except InputError as err:
+            raise located(err, label, 0, column, unit) from None
+    elif kind == "number" and unit not in (None, "", "-"):
+        raise fail(f'"[{unit}]" is not allowed; {column} has no unit (write "{column}")')
+    elif kind == "turbidity" and unit not in (None, "", "FNU", "NTU"):
+        raise fail(f'"[{unit}]" is not a turbidity unit (expected FNU or NTU)')
+    elif kind == "raw" and unit:
+        raise fail(f'"[{unit}]" is not allowed; {column} is in the unit of its row')
+    elif kind in ("text", "date", "flag") and unit:
+        raise fail(f'"[{unit}]" is not allowed; {column} takes no unit')
