@@ -21,6 +21,8 @@ through K_i.
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 
 
@@ -86,5 +88,8 @@ def timml_zone_flows(
         timml.RiverString(model, xy=ring, hls=h0[i], layers=i)
     well = timml.Well(model, 0.0, 0.0, Qw=rate, rw=well_radius, res=screen_resistance,
                       layers=list(range(n)))
-    model.solve(silent=True)
+    with warnings.catch_warnings():
+        # timml 6.9 calls numpy in ways numpy 2.x deprecates; the results are unaffected
+        warnings.simplefilter("ignore", DeprecationWarning)
+        model.solve(silent=True)
     return np.asarray(well.discharge(), float), float(well.headinside()[0])
