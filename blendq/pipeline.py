@@ -1,0 +1,158 @@
+"""The whole analysis in one pass: review -> fit -> uncertainty -> sweep -> window.
+
+Data flow one way: each stage takes the objects of the stages before it and returns new ones.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+import pandas as pd
+
+from blendq import diagnostics, estimation, sweep, uncertainty
+from blendq.errors import ModelError
+from blendq.limits import Limit
+from blendq.project import Project
+
+
+@dataclass
+class Analysis:
+    """Everything one run of blendq computes for a project (base units throughout)."""
+
+    project: Project
+    qa: object
+    sample_use: pd.DataFrame
+    fit: estimation.FitResult
+    draws: uncertainty.Draws
+    zones: pd.DataFrame
+    analyte_diagnostics: pd.DataFrame
+    residuals: pd.DataFrame
+    hydraulics: pd.DataFrame
+    prediction: uncertainty.Prediction
+    window: sweep.Window
+    limits: dict[str, Limit]
+    sweep_table: pd.DataFrame
+    not_fitted: dict[str, str] = field(default_factory=dict)
+    step_drawdown: object | None = None
+    notes: list[str] = field(default_factory=list)
+
+
+def fit_analytes(project: Project) -> tuple[list[str], dict[str, str]]:
+    """Analytes to fit (a limit applies and at least one result is detected) and the others
+    with the reason they are not fitted."""
+    s = project.samples
+    limited = {lim.analyte for lim in project.limits}
+    fitted, skipped = [], {}
+    for analyte in project.analytes():
+        rows = s[s["analyte"] == analyte]
+        if analyte not in limited:
+            skipped[analyte] = "no limit applies (reviewed only)"
+        elif rows["nondetect"].astype(bool).all():
+            dl = rows["detection_limit"].astype(float).max()
+            skipped[analyte] = f"every result is a non-detect (below {dl:g} mg/L)"
+        else:
+            fitted.append(analyte)
+    return fitted, skipped
+
+
+def analyse(project: Project, draws: int | None = None, seed: int | None = None,
+            sample_mode: str = "keep",
+            progress: Callable[[int, int], None] | None = None) -> Analysis:
+    """Run the full analysis of a project.
+
+    Parameters
+    ----------
+    project : Project
+    draws : int, optional
+        Monte Carlo draws (default: the project's setting).
+    seed : int, optional
+        Random seed (default: the project's setting).
+    sample_mode : {"keep", "exclude", "downweight"}
+        Use of samples that the lab review flags.
+    progress : callable(done, total), optional
+    """
+    from blendq import qa as qa_module
+
+    review = qa_module.review(project)
+    use = review.sample_weights(sample_mode).reset_index()
+    analytes, skipped = fit_analytes(project)
+    if not analytes:
+        raise ModelError("no analyte with a limit has a detected result: nothing to fit")
+    fit_project = replace(project, samples=project.samples[project.samples["analyte"].isin(analytes)])
+    fit = estimation.fit(fit_project, sample_use=use)
+    s = project.settings
+    d = uncertainty.monte_carlo(fit, s.draws if draws is None else draws,
+                                s.seed if seed is None else seed, progress=progress)
+    zones = diagnostics.zone_table(fit, d, s.interval)
+    pred = sweep.sweep(fit, d)
+    window = sweep.window_for(fit, pred)
+    limits = sweep.governing_limits(project.limits, pred.analytes)
+    table = sweep.sweep_table(pred, limits, s.margin, s.interval, project.zone_names)
+    notes = []
+    if not fit.success:
+        notes.append(f"The hydraulic fit did not converge: {fit.message}")
+    hyd = diagnostics.hydraulics_table(fit)
+    if (hyd["conductance_from"] == "prior").any():
+        notes.append("Some zone conductances rest on the zone properties (priors) rather than "
+                     "on the test data; zone shares carry that uncertainty.")
+    if project.flowlogs.empty:
+        notes.append("No flow log: drawdown alone identifies only the total conductance and "
+                     "the well loss; zone shares come from zone properties (priors).")
+    return Analysis(project, review, use, fit, d, zones, diagnostics.analyte_diagnostics(fit),
+                    diagnostics.residual_table(fit), hyd, pred, window, limits, table, skipped,
+                    None, notes)
+
+
+def decision_sentence(a: Analysis, units: str = "US") -> str:
+    """The decision in one sentence."""
+    from blendq.units import format_quantity
+
+    w = a.window
+    s = a.project.settings
+    if w.empty:
+        return (f"No pumping rate meets every limit with the {s.margin:.0%} margin at "
+                f"{1 - s.exceedance_probability:.0%} confidence: {w.reason_empty}.")
+    parts = [f"{format_quantity(lo, 'rate', units)} to {format_quantity(hi, 'rate', units)}"
+             for lo, hi, _, _ in w.intervals]
+    rec = format_quantity(w.recommended, "rate", units) if w.recommended is not None else "none"
+    return (f"Operate between {' and between '.join(parts)}; recommended rate {rec} "
+            f"(every analyte below {s.margin:.0%} of its limit with at least "
+            f"{1 - s.exceedance_probability:.0%} probability, pumping level above the intake "
+            f"plus submergence).")
+
+
+def inflow_table(project: Project, rates, horizon: float | None = None) -> pd.DataFrame:
+    """Zone flows, discharge shares and pumping level at each rate from the zone properties
+    (no fitting): the quick look at a well before any lab result."""
+    from blendq.wellmodel import (
+        geometry_of,
+        horizon_factor,
+        model_from_parameters,
+        prior_hydraulics,
+    )
+
+    prior = prior_hydraulics(project)
+    if not np.all(np.isfinite(prior.static_head_sd)):
+        missing = [z.name for z, sd in zip(project.zones, prior.static_head_sd) if not np.isfinite(sd)]
+        raise ModelError(f"zones without a static level: {', '.join(missing)} (give zone "
+                         "static_level or well static_level)")
+    g = np.exp(prior.log_conductance)
+    if horizon is not None:
+        from blendq.wellmodel import elapsed_test_time
+
+        g = g * horizon_factor(project, elapsed_test_time(project), horizon)
+    model = model_from_parameters(project, g, prior.static_head)
+    rates = np.asarray(rates, float)
+    st = model.state(rates)
+    share = np.nan_to_num(__import__("blendq.mixing", fromlist=["x"]).discharge_weights(
+        st.zone_flow, geometry_of(project)), nan=0.0)
+    level = model.pumping_level_depth(rates, st)
+    rows = []
+    for k, q in enumerate(rates):
+        for i, z in enumerate(project.zones):
+            rows.append(dict(rate=q, zone=z.name, zone_flow=st.zone_flow[k, i],
+                             share=share[k, i], pumping_level=level[k],
+                             dewatered=bool(level[k] > z.top)))
+    return pd.DataFrame(rows)
