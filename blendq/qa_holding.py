@@ -106,4 +106,4 @@ def check_holding_times(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) 
 
 
 def _span(days: float) -> str:
-    return f"{days * 24:.1f} h" if days < 3 else f"{days:.1f} d"
+    return f"{days * 24:.1f} h" if days <= 3 else f"{days:.1f} d"
