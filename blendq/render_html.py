@@ -78,6 +78,7 @@ tbody tr:nth-child(even) td { background: var(--wash); }
 tbody tr:last-child td { border-bottom: 2px solid var(--ink); }
 th.num, td.num { text-align: right; }
 p.tablenote { font-size: 0.8rem; color: var(--muted); margin-top: 0.3rem; }
+td.empty { color: var(--muted); font-style: italic; }
 figure { margin: 0 0 1.4rem 0; }
 figure img { display: block; max-width: 100%; height: auto; margin: 0 auto;
   border: 1px solid var(--faint); }
@@ -134,6 +135,9 @@ def _table(block: Table, number: int) -> str:
         for label, cls in zip(block.header_text(), classes, strict=True)
     )
     rows = []
+    if not block.cell_text():
+        span = max(1, len(classes))
+        rows.append(f'<tr><td colspan="{span}" class="empty">(no rows)</td></tr>')
     for row in block.cell_text():
         cells = "".join(f"<td{cls}>{_e(cell)}</td>" for cell, cls in zip(row, classes, strict=True))
         rows.append(f"<tr>{cells}</tr>")
