@@ -335,7 +335,10 @@ def fit_rorabaugh(rate, drawdown, sigma=None, reference_time: float = np.nan,
     s_w = B Q + C Q^n (Rorabaugh 1953), B >= 0, C >= 0. A grid over n with B, C solved
     linearly at each n (variable projection) gives the start; scipy.optimize.curve_fit ('trf'
     with bounds) refines (b, c, n) on x = Q / Q_max, b = B Q_max, c = C Q_max^n [m]. With three
-    steps the fit is exact and the standard errors are undefined (NaN).
+    steps the fit is exact and the standard errors are undefined (NaN). C and n are strongly
+    correlated and C varies steeply with n, so the linearised interval of C alone is a rough
+    guide; the prediction band of :func:`predict_drawdown` (all three together) is the better
+    measure (about nominal coverage in repeated synthetic tests).
 
     References
     ----------
@@ -529,11 +532,17 @@ def equal_time_drawdowns(time, drawdown, step_start, step_end, step_rate, sequen
             raise InputError(f"no water-level reading near {elapsed:.6g} d after the start of "
                              f"step {labels[k]} (readings in the step: {tk.size}); the levels "
                              "must cover each step", field="time")
-        at_dt[k] = np.interp(target, tk, sk)
+        # interpolate on the superposed log-time (a straight line under Cooper-Jacob), or on
+        # log elapsed time where a falling rate makes that non-monotonic
+        xk_all = superposition_log_time(tk, t0, q, first, k)
+        if np.all(np.diff(xk_all) > 0):
+            at_dt[k] = np.interp(superposition_log_time(target, t0, q, first, k), xk_all, sk)
+        else:
+            at_dt[k] = np.interp(np.log(elapsed), np.log(tk - t0[k]), sk)
         late = tk - t0[k] >= (1.0 - late_fraction) * duration[k] - 1e-12
         needs_line = k + 1 < n and not first[k + 1]
         if np.count_nonzero(late) >= 2:
-            xk = superposition_log_time(tk[late], t0, q, first, k)
+            xk = xk_all[late]
             if np.ptp(xk) > 0:
                 beta[k], alpha[k] = np.polyfit(xk, sk[late], 1)
         if needs_line and not np.isfinite(beta[k]):
@@ -587,7 +596,9 @@ def walton_class(well_loss):
     Walton, W.C. (1962) Illinois State Water Survey Bulletin 49.
     """
     c = np.asarray(well_loss_in(np.asarray(well_loss, float), "s**2/ft**5"), float)
-    cls = np.where(c < 0, 0, 1 + np.searchsorted(WALTON_THRESHOLDS_S2_FT5, c, side="right"))
+    # a value on a threshold belongs to the class above it, allowing for unit round-off
+    cls = np.where(c < 0, 0, 1 + np.searchsorted(WALTON_THRESHOLDS_S2_FT5, c * (1 + 1e-9),
+                                                 side="right"))
     return int(cls) if cls.ndim == 0 else cls
 
 
