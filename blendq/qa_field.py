@@ -15,7 +15,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from blendq.qa_rules import SRC_COMMON, Outcome, fmt, row_number, step_key, text
+from blendq.qa_rules import SRC_COMMON, Outcome, exceeds, fmt, row_number, step_key, text
 
 SRC_NFM = "USGS National Field Manual, chapter A6, table 6.0-1 (from memory)"
 
@@ -171,7 +171,7 @@ def assess_stability(window: pd.DataFrame, opts: dict) -> tuple[list[str], list[
         median = float(np.median(values))
         spread = float(np.max(np.abs(values - median)))
         tol = field_tolerance(col, median, opts)
-        if spread > tol:
+        if exceeds(spread, tol):
             unstable.append(f"{name} varies by +-{fmt(spread)} {unit}".rstrip()
                             + f" around {fmt(median)} (allowed +-{fmt(tol)})")
     return unstable, short
@@ -309,7 +309,7 @@ def check_purge(project, samples, schedule, stable: dict[str, bool], opts) -> Ou
             no_times.append(sid)
             continue
         n = pumped / volume
-        if n >= opts["casing_volumes_min"]:
+        if not exceeds(opts["casing_volumes_min"], n):
             continue
         row = pd.Series({"sample_id": sid, "step": s["step"], "source_row": s["source_row"]})
         basis = "" if timed else " (sample taken as at the end of its step)"

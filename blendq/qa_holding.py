@@ -41,11 +41,12 @@ _NOT_CHLORINATED = re.compile(r"\b(?:un|non[- ]?|not\s+)chlorinated", re.IGNOREC
 def holding_time(analyte: str, preservation: str, opts: dict) -> tuple[float, str] | None:
     """Holding time [d] of ``analyte`` given the preservation text, and its description;
     None when the analyte has no entry. ``opts["holding_times"]`` overrides days by analyte."""
-    if analyte not in HOLDING_TIMES and analyte not in opts["holding_times"]:
-        return None
-    days, _, what = HOLDING_TIMES.get(analyte, (0.0, "", "set in qa.holding_times"))
     if analyte in opts["holding_times"]:
-        return float(opts["holding_times"][analyte]), f"{opts['holding_times'][analyte]:g} d (qa.holding_times)"
+        days = float(opts["holding_times"][analyte])
+        return days, f"{days:g} d (qa.holding_times)"
+    if analyte not in HOLDING_TIMES:
+        return None
+    days, _, what = HOLDING_TIMES[analyte]
     if analyte == "nitrate" and is_chlorinated(preservation):
         return NITRATE_CHLORINATED_DAYS, "14 d for a chlorinated sample, cooled to <= 6 C"
     return days, what
@@ -101,7 +102,8 @@ def check_holding_times(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) 
         days = HOLDING_TIMES[rows[0]["analyte"]][0]
         out.add("info", "preservation",
                 f"{names}: preservation {said}; the {_span(days)} holding time assumes {acid} "
-                "to pH < 2", SRC_HOLD, rows[0], analyte=rows[0]["analyte"] if len(rows) == 1 else "")
+                "to pH < 2", SRC_HOLD, rows[0],
+                analyte=rows[0]["analyte"] if len(rows) == 1 else "")
     return out
 
 

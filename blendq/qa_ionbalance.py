@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 
 from blendq.analytes import get_analyte
-from blendq.qa_rules import Outcome, plain_value, row_number
+from blendq.qa_rules import Outcome, exceeds, plain_value, row_number
 
 SRC_SM1030E = "Standard Methods 1030E (acceptance criteria from memory)"
 
@@ -101,11 +101,11 @@ def ion_balance_acceptable(cations: float, anions: float, opts: dict) -> tuple[b
     diff = cations - anions
     if anions <= 3.0:
         tol = opts["ion_balance_abs_meq"]
-        return abs(diff) <= tol, f"+-{tol:g} meq/L for an anion sum of 0-3 meq/L"
+        return not exceeds(abs(diff), tol), f"+-{tol:g} meq/L for an anion sum of 0-3 meq/L"
     pct = 100.0 * diff / (cations + anions)
     tol = opts["ion_balance_pct_mid"] if anions <= 10.0 else opts["ion_balance_pct_high"]
     band = "3-10" if anions <= 10.0 else "10-800"
-    return abs(pct) <= tol, f"+-{tol:g} % for an anion sum of {band} meq/L"
+    return not exceeds(abs(pct), tol), f"+-{tol:g} % for an anion sum of {band} meq/L"
 
 
 def check_ion_balance(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outcome:

@@ -67,7 +67,8 @@ class Outcome:
             return
         self.findings.append(Finding(
             severity, rule, message, source, sample_id=text(row.get("sample_id")),
-            step=plain_value(row.get("step")), analyte=text(row.get("analyte")) if analyte is None else analyte,
+            step=plain_value(row.get("step")),
+            analyte=text(row.get("analyte")) if analyte is None else analyte,
             source_row=row_number(row.get("source_row"))))
 
     def skip(self, rule: str, reason: str) -> None:
@@ -118,6 +119,12 @@ def row_number(value) -> int | None:
 def parse_flags(qualifier) -> set[str]:
     """Qualifier text such as ``"J, H"`` as a set of upper-case flags."""
     return {f for f in re.split(r"[,;/\s]+", text(qualifier).upper()) if f}
+
+
+def exceeds(value: float, limit: float) -> bool:
+    """``value > limit`` beyond rounding of the inputs (1e-9 relative), so that a reading
+    exactly at a criterion (15.47 - 15.27 = 0.2) passes."""
+    return value > limit + 1e-9 * max(abs(limit), abs(value), 1e-12)
 
 
 def fmt(value: float) -> str:
@@ -235,6 +242,7 @@ def check_units(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
             labels = labels[labels != ""]
             if labels.nunique() < 2:
                 continue
+            basis = f" as {analyte.canonical_basis}" if analyte.bases else ""
             parts = []
             for idx in labels.groupby(labels, sort=False).groups.values():
                 raw = samples.loc[idx, column].iloc[0]
@@ -243,7 +251,7 @@ def check_units(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
                              + ", ".join(steps_of))
             out.add("info", f"{what}_mixed",
                     f"{analyte.name} reported in mixed {what}: " + "; ".join(parts)
-                    + f"; all converted to mg/L{' as ' + analyte.canonical_basis if analyte.bases else ''}",
+                    + f"; all converted to mg/L{basis}",
                     SRC_COMMON, analyte=key)
     return out
 
@@ -378,14 +386,14 @@ def check_duplicates(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> 
             continue
         a, b = prim["value"], dup["value"]
         if dl > 0 and max(a, b) < near * dl:
-            if abs(a - b) > dl:
+            if exceeds(abs(a - b), dl):
                 out.add("warning", "duplicate_rpd",
                         f"{name} duplicate pair {pair}: {fmt(a)} and {fmt(b)} mg/L, both below "
                         f"{near:g} x the detection limit; difference {fmt(abs(a - b))} exceeds "
                         f"the limit {fmt(dl)} mg/L", SRC_COMMON, prim)
             continue
         rpd = relative_percent_difference(a, b)
-        if rpd > limit:
+        if exceeds(rpd, limit):
             out.add("warning", "duplicate_rpd",
                     f"{name} duplicate pair {pair}: {fmt(a)} and {fmt(b)} mg/L, RPD "
                     f"{rpd:.1f} % > {limit:g} %", SRC_COMMON, prim)

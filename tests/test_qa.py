@@ -482,6 +482,12 @@ def test_drifting_temperature_fails():
     assert "temperature" in message and "pH" not in message
 
 
+def test_reading_exactly_at_the_criterion_passes():
+    # 15.47 - 15.27 = 0.2 C exactly (in decimal): within +-0.2 C despite binary rounding
+    field = field_table(1, 2.5, **{**STABLE, "temperature": [15.47, 15.39, 15.27, 15.20, 15.11]})
+    assert "field_stability" not in rules_of(review(stab_project(field)))
+
+
 def test_specific_conductance_criterion_by_range():
     # 150 uS/cm: +-3 % = 4.5; readings 150, 152, 149, 156, 151 -> median 151, deviation 5
     sc = {**STABLE, "specific_conductance": [150, 152, 149, 156, 151]}
