@@ -55,7 +55,7 @@ def _steps(t: Table) -> pd.DataFrame:
     return _frame("steps", out)
 
 
-def _samples(t: Table, steps: set[str]) -> pd.DataFrame:
+def _samples(t: Table, steps: dict[str, float]) -> pd.DataFrame:
     if "unit" not in t.columns and t.unit("value") is None:
         raise t.error(0, "unit", "column is missing; add a unit column or a unit in the value "
                                  'header such as "value [mg/L]"')
@@ -166,11 +166,13 @@ def _flowlogs(t: Table, steps: dict[str, float]) -> pd.DataFrame:
             rate = steps[step]
         if rate < 0:
             raise t.error(row, "rate", f'"{t.raw(row, "rate")}" is negative')
-        first = logs.setdefault(log, (row, rate, step))
-        if not math.isclose(first[1], rate, rel_tol=1e-9, abs_tol=1e-12) or first[2] != step:
-            raise t.error(row, "rate" if first[2] == step else "step",
-                          f'log "{log}" has another rate or step in row {first[0]}; one log is '
-                          "run at one rate")
+        first_row, first_rate, first_step = logs.setdefault(log, (row, rate, step))
+        if first_step != step:
+            raise t.error(row, "step", f'"{step}" differs from the step "{first_step}" of log '
+                                       f'"{log}" in row {first_row}; one log is one run')
+        if not math.isclose(first_rate, rate, rel_tol=1e-9, abs_tol=1e-12):
+            raise t.error(row, "rate", f'"{t.raw(row, "rate")}" differs from the rate of log '
+                                       f'"{log}" in row {first_row}; one log is run at one rate')
         depth = get("depth")
         if depth < 0:
             raise t.error(row, "depth", f'"{t.raw(row, "depth")}" is above the datum')
@@ -182,7 +184,7 @@ def _levels(t: Table) -> pd.DataFrame:
     return _frame("levels", [[get("time"), get("level"), row] for row, get in t.records()])
 
 
-def _field(t: Table, steps: set[str]) -> pd.DataFrame:
+def _field(t: Table, steps: dict[str, float]) -> pd.DataFrame:
     measured = TABLE_COLUMNS["field"][2:-1]
     if not any(c in t.columns for c in measured):
         raise t.error(0, measured[0], "no field parameter columns found (expected one or more "
@@ -193,14 +195,16 @@ def _field(t: Table, steps: set[str]) -> pd.DataFrame:
         _known_step(t, row, step, steps)
         values = [get(c) for c in measured]
         for c, v in zip(measured, values, strict=True):
-            bad = v is not None and (not 0 <= v <= 14 if c == "ph" else c != "temperature" and v < 0)
-            if bad:
-                raise t.error(row, c, f'"{t.raw(row, c)}" is out of range')
+            low, high = (0.0, 14.0) if c == "ph" else (-math.inf if c == "temperature" else 0.0,
+                                                       math.inf)
+            if v is not None and not low <= v <= high:
+                expected = "0 to 14" if c == "ph" else "zero or more"
+                raise t.error(row, c, f'"{t.raw(row, c)}" is out of range (expected {expected})')
         out.append([step, get("time")] + [math.nan if v is None else v for v in values] + [row])
     return _frame("field", out)
 
 
-def _known_step(t: Table, row: int, step: str, steps) -> None:
+def _known_step(t: Table, row: int, step: str, steps: dict[str, float]) -> None:
     if step not in steps:
         known = ", ".join(f'"{s}"' for s in steps)
         raise t.error(row, "step", f'"{step}" is not a step of the steps table (known: {known})')
@@ -252,12 +256,12 @@ def load_project(path: str | Path) -> Project:
                       limits=head.limits, steps=steps, scenarios=head.scenarios,
                       folder=head.path.parent, files=files)
     if "samples" in tables:
-        project.samples = _samples(tables["samples"], set(step_rates))
+        project.samples = _samples(tables["samples"], step_rates)
     if "flowlogs" in tables:
         project.flowlogs = _flowlogs(tables["flowlogs"], step_rates)
     if "levels" in tables:
         project.levels = _levels(tables["levels"])
     if "field" in tables:
-        project.field_readings = _field(tables["field"], set(step_rates))
+        project.field_readings = _field(tables["field"], step_rates)
     return project
 

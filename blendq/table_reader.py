@@ -100,7 +100,7 @@ def split_unit_basis(text: str, with_number: bool = False):
 def parse_number(text: str, decimal_comma: bool = False) -> float:
     """A finite number from a cell; raises :class:`InputError` (without location) otherwise."""
     cell = text.strip()
-    if decimal_comma and re.match(r"^[-+]?\d*,\d+$", cell):
+    if decimal_comma and re.match(r"^[-+]?\d*,\d+(?:[eE][-+]?\d+)?$", cell):
         cell = cell.replace(",", ".")
     if cell.lower() in _NOT_FINITE:
         raise InputError(f'"{text}" is not a finite number')
@@ -198,8 +198,9 @@ class Table:
         try:
             number = parse_number(text, self.decimal_comma)
         except InputError as err:
+            unit_in_cell = kind in UNIT_KINDS and _LEADING_NUMBER.match(text)
             hint = f" (the unit goes in the header: {column} [{self.unit(column)}])" \
-                if kind in UNIT_KINDS else ""
+                if unit_in_cell else ""
             raise self.error(row, column, err.message + hint) from None
         if kind in UNIT_KINDS:
             offset, scale = self._affine[column]
