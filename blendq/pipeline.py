@@ -114,7 +114,7 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
     if w.empty:
         return (f"No pumping rate meets every limit with the {s.margin:.0%} margin at "
                 f"{1 - s.exceedance_probability:.0%} confidence: {w.reason_empty}.")
-    parts = [f"{format_quantity(lo, 'rate', units)} to {format_quantity(hi, 'rate', units)}"
+    parts = [f"{format_quantity(lo, 'rate', units)} and {format_quantity(hi, 'rate', units)}"
              for lo, hi, _, _ in w.intervals]
     rec = format_quantity(w.recommended, "rate", units) if w.recommended is not None else "none"
     return (f"Operate between {' and between '.join(parts)}; recommended rate {rec} "

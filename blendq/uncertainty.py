@@ -21,7 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from blendq import qp
-from blendq.estimation import FitResult, Problem, row_weights, solve_concentrations
+from blendq.estimation import FitResult, Problem, row_weights, scaled_pinv, solve_concentrations
 
 
 def residual_layout(problem: Problem) -> dict[str, slice]:
@@ -81,7 +81,7 @@ def monte_carlo(fit: FitResult, n_draws: int = 1000, seed: int = 0,
     m = jac.shape[0]
     eps = rng.standard_normal((n_draws, m))
     if problem.options.fit_hydraulics and jac.size:
-        jplus = np.linalg.pinv(jac, rcond=1e-10)
+        jplus = scaled_pinv(jac)
         theta = fit.theta[None, :] + eps @ jplus.T
     else:
         theta = np.repeat(fit.theta[None, :], n_draws, axis=0)

@@ -1,0 +1,357 @@
+"""Command line of blendq. Heavy modules are imported inside the commands so that
+``blendq --help`` starts fast."""
+
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from blendq import CAUTIONS, __version__
+
+app = typer.Typer(
+    name="blendq",
+    help="Discharge quality against pumping rate for a supply well screened across several "
+         "zones: fit zone chemistry from step-test samples, find the rate window that meets "
+         "the limits. A planning aid, not a compliance determination.",
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+)
+
+ProjectArg = Annotated[Path, typer.Argument(help="Project file (project.toml) or its folder.")]
+UnitsOpt = Annotated[str, typer.Option("--units", "-u", help="Display units: US or SI.")]
+JsonOpt = Annotated[bool, typer.Option("--json", help="Print machine-readable JSON.")]
+DrawsOpt = Annotated[int | None, typer.Option("--draws", help="Monte Carlo draws (default: project setting).")]
+SeedOpt = Annotated[int | None, typer.Option("--seed", help="Random seed (default: project setting).")]
+
+
+def _fail(message: str, code: int = 2) -> None:
+    typer.echo(f"blendq: error: {message}", err=True)
+    raise typer.Exit(code)
+
+
+def _guard(fn):
+    """Run a command body; user and model errors become one line and exit code 2."""
+    from blendq.errors import BlendqError
+
+    try:
+        return fn()
+    except typer.Exit:
+        raise
+    except BlendqError as exc:
+        _fail(str(exc), 2)
+    except (OSError, UnicodeDecodeError) as exc:
+        _fail(f"{exc.__class__.__name__}: {exc}", 2)
+    except Exception as exc:  # noqa: BLE001 - never show a traceback to a user
+        _fail(f"internal error ({exc.__class__.__name__}: {exc}); please report it", 3)
+
+
+def _units(units: str) -> str:
+    u = units.strip().upper()
+    if u not in ("US", "SI"):
+        raise typer.BadParameter(f'"{units}" is not US or SI', param_hint="--units")
+    return u
+
+
+def _caution_line() -> str:
+    return "Caution: " + " ".join(CAUTIONS[:2])
+
+
+def _progress():
+    """A rich progress bar on stderr for the Monte Carlo refit; returns (callback, context)."""
+    from rich.console import Console
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+    prog = Progress(TextColumn("Monte Carlo refit"), BarColumn(), TextColumn("{task.completed}/{task.total}"),
+                    TimeElapsedColumn(), console=Console(stderr=True), transient=True,
+                    disable=not sys.stderr.isatty())
+    task = prog.add_task("mc", total=1)
+
+    def callback(done: int, total: int) -> None:
+        prog.update(task, completed=done, total=total)
+
+    return callback, prog
+
+
+def _load(project: Path):
+    from blendq.loader import load_project
+
+    return load_project(project)
+
+
+def _analyse(project, draws, seed, sample_mode="keep"):
+    from blendq.pipeline import analyse
+
+    callback, prog = _progress()
+    with prog:
+        return analyse(project, draws=draws, seed=seed, sample_mode=sample_mode, progress=callback)
+
+
+def version_callback(value: bool) -> None:
+    if value:
+        typer.echo(f"blendq {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def main_options(
+    version: Annotated[bool, typer.Option("--version", callback=version_callback, is_eager=True,
+                                          help="Print the version and exit.")] = False,
+) -> None:
+    """blendq command line."""
+
+
+@app.command("inflow")
+def inflow_cmd(
+    project: ProjectArg,
+    rates: Annotated[str, typer.Option("--rates", help='Comma-separated rates with a unit, e.g. "100,300,500 gpm".')] = "",
+    units: UnitsOpt = "US",
+    as_json: JsonOpt = False,
+) -> None:
+    """Each zone's flow and share of the discharge, and the pumping level, at given rates,
+    from the zone properties alone (no fitting)."""
+
+    def body():
+        from blendq.errors import InputError
+        from blendq.pipeline import inflow_table
+        from blendq.units import DISPLAY_UNITS, from_base, parse_quantity
+
+        u = _units(units)
+        proj = _load(project)
+        if rates.strip():
+            text = rates.strip()
+            parts = text.replace(";", ",").split(",")
+            unit = parts[-1].strip().split(maxsplit=1)[1] if len(parts[-1].strip().split()) > 1 else None
+            if unit is None:
+                raise InputError('give the unit after the last rate, e.g. "100,300,500 gpm"',
+                                 field="--rates")
+            values = [p.strip().split()[0] for p in parts]
+            q = [parse_quantity(f"{v} {unit}", "rate") for v in values]
+        else:
+            q = list(proj.steps["rate"].astype(float)) if len(proj.steps) else []
+        if not q:
+            raise InputError("no rates: give --rates or a steps table", field="--rates")
+        table = inflow_table(proj, q)
+        du = DISPLAY_UNITS[u]
+        table["rate"] = from_base(table["rate"].to_numpy(), "rate", du["rate"])
+        table["zone_flow"] = from_base(table["zone_flow"].to_numpy(), "rate", du["rate"])
+        table["pumping_level"] = from_base(table["pumping_level"].to_numpy(), "length", du["length"])
+        if as_json:
+            typer.echo(json.dumps({"units": {"rate": du["rate"], "depth": du["length"]},
+                                   "rows": table.to_dict(orient="records")}, indent=2))
+            return
+        from rich.console import Console
+        from rich.table import Table
+
+        t = Table(title=f"{proj.well.name}: zone inflow from zone properties")
+        for col in (f"rate [{du['rate']}]", "zone", f"zone flow [{du['rate']}]", "share",
+                    f"pumping level [{du['length']} depth]", "note"):
+            t.add_column(col)
+        for _, r in table.iterrows():
+            note = "takes water from the well" if r["zone_flow"] < 0 else ""
+            if r["dewatered"]:
+                note = (note + "; " if note else "") + "pumping level below zone top"
+            t.add_row(f"{r['rate']:.4g}", str(r["zone"]), f"{r['zone_flow']:.3g}",
+                      f"{r['share']:.1%}", f"{r['pumping_level']:.4g}", note)
+        Console().print(t)
+        typer.echo(_caution_line())
+
+    _guard(body)
+
+
+@app.command("check")
+def check_cmd(
+    project: ProjectArg,
+    fail_on: Annotated[str, typer.Option("--fail-on", help="Exit 1 when a finding at or above this severity exists: error, warning or info.")] = "error",
+    as_json: JsonOpt = False,
+) -> None:
+    """Read a project, check every input and review the lab and field results."""
+
+    def body():
+        from blendq import qa
+
+        if fail_on not in ("error", "warning", "info"):
+            raise typer.BadParameter(f'"{fail_on}" is not error, warning or info', param_hint="--fail-on")
+        proj = _load(project)
+        result = qa.review(proj)
+        if as_json:
+            typer.echo(result.to_json())
+        else:
+            typer.echo(f"{proj.name}: {len(proj.zones)} zones, {len(proj.steps)} steps, "
+                       f"{len(proj.samples)} lab results, "
+                       f"{proj.flowlogs['log'].nunique() if len(proj.flowlogs) else 0} flow logs.")
+            for line in result.summary_lines():
+                typer.echo("  " + line)
+            for _, f in result.findings.iterrows():
+                if f["severity"] != "info":
+                    typer.echo(f"  [{f['severity']}] {f['rule']}: {f['message']}")
+            for rule, why in result.skipped:
+                typer.echo(f"  skipped {rule}: {why}")
+        if qa.at_or_above(result.findings, fail_on):
+            raise typer.Exit(1)
+
+    _guard(body)
+
+
+def _zone_rows(a, units):
+    from blendq.report import zone_display_table
+
+    return zone_display_table(a)
+
+
+@app.command("fit")
+def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
+            seed: SeedOpt = None, as_json: JsonOpt = False,
+            samples: Annotated[str, typer.Option("--flagged", help="Use of samples the review flags: keep, exclude or downweight.")] = "keep") -> None:
+    """Fit each zone's water quality (and the zone hydraulics) and print the zone table."""
+
+    def body():
+        u = _units(units)
+        proj = _load(project)
+        a = _analyse(proj, draws, seed, samples)
+        if as_json:
+            from blendq.outputs import to_json_stable
+
+            typer.echo(to_json_stable({"zones": a.zones.to_dict(orient="records"),
+                                       "hydraulics": a.hydraulics.to_dict(orient="records"),
+                                       "diagnostics": a.analyte_diagnostics.to_dict(orient="records"),
+                                       "units": "mg/L canonical basis; m2/d; m"}))
+            return
+        from rich.console import Console
+        from rich.table import Table
+
+        t = Table(title=f"{proj.well.name}: zone water quality")
+        df = _zone_rows(a, u)
+        for col in df.columns:
+            t.add_column(str(col))
+        for _, r in df.iterrows():
+            t.add_row(*[str(v) for v in r])
+        Console().print(t)
+        for note in a.notes:
+            typer.echo("Note: " + note)
+        typer.echo(_caution_line())
+
+    _guard(body)
+
+
+@app.command("window")
+def window_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
+               seed: SeedOpt = None, as_json: JsonOpt = False) -> None:
+    """Find the rates at which the discharge meets every limit with the margin."""
+
+    def body():
+        from blendq.pipeline import decision_sentence
+        from blendq.report import summary_json, window_display_table
+
+        u = _units(units)
+        proj = _load(project)
+        a = _analyse(proj, draws, seed)
+        if as_json:
+            from blendq.outputs import to_json_stable
+
+            typer.echo(to_json_stable(summary_json(a, u)))
+            return
+        typer.echo(decision_sentence(a, u))
+        df = window_display_table(a, u)
+        for _, r in df.iterrows():
+            typer.echo(f"  {r['From']} to {r['To']}: lower end set by {r['Lower end set by']}; "
+                       f"upper end set by {r['Upper end set by']}")
+        typer.echo(_caution_line())
+
+    _guard(body)
+
+
+def _write_report(proj, out: Path, units: str, draws, seed) -> None:
+    from blendq.outputs import write_outputs
+    from blendq.pipeline import decision_sentence
+    from blendq.report import output_files
+
+    a = _analyse(proj, draws, seed)
+    files = output_files(a, units, created=f"blendq {__version__}")
+    protect = [proj.folder / f for f in proj.files.values()] if proj.folder else []
+    folder = write_outputs(out, files, protect=protect)
+    typer.echo(decision_sentence(a, units))
+    typer.echo(f"Report written to {folder / 'report.html'} and {folder / 'report.pdf'}")
+    typer.echo(_caution_line())
+
+
+@app.command("report")
+def report_cmd(project: ProjectArg,
+               out: Annotated[Path, typer.Option("--out", "-o", help="Output folder (replaced as a whole).")] = Path("blendq-out"),
+               units: UnitsOpt = "US", draws: DrawsOpt = None, seed: SeedOpt = None) -> None:
+    """Run the whole analysis and write the report (HTML, PDF), tables (CSV) and a JSON summary."""
+    _guard(lambda: _write_report(_load(project), out, _units(units), draws, seed))
+
+
+@app.command("demo")
+def demo_cmd(out: Annotated[Path, typer.Option("--out", "-o", help="Output folder.")] = Path("blendq-demo"),
+             units: UnitsOpt = "US", draws: DrawsOpt = None, seed: SeedOpt = None) -> None:
+    """Run the whole analysis on the invented demo well (TH-2) and write its report."""
+
+    def body():
+        from importlib import resources
+
+        from blendq.loader import load_project
+
+        demo = resources.files("blendq") / "data" / "demo"
+        with resources.as_file(demo) as folder:
+            proj = load_project(Path(folder))
+            _write_report(proj, out, _units(units), draws, seed)
+
+    _guard(body)
+
+
+@app.command("new")
+def new_cmd(folder: Annotated[Path, typer.Argument(help="Folder for the new project (must not hold project files yet).")]) -> None:
+    """Write a commented template project for a new well."""
+
+    def body():
+        from blendq.template import write_template
+
+        written = write_template(folder)
+        typer.echo(f"Template written: {', '.join(str(p) for p in written)}")
+        typer.echo("Edit the files, then run: blendq check " + str(folder))
+
+    _guard(body)
+
+
+@app.command("drawdown")
+def drawdown_cmd(project: ProjectArg, units: UnitsOpt = "US", as_json: JsonOpt = False) -> None:
+    """Step-drawdown analysis: well loss, specific capacity, efficiency and well condition."""
+
+    def body():
+        from blendq.errors import InputError
+        from blendq.stepdrawdown import analyse_step_test
+
+        u = _units(units)
+        proj = _load(project)
+        static = proj.well.static_level
+        if static is None:
+            levels = [z.static_level for z in proj.zones if z.static_level is not None]
+            if not levels:
+                raise InputError("the step-drawdown analysis needs the well's static level",
+                                 file="project.toml", field="well.static_level")
+            static = float(sum(levels) / len(levels))
+        res = analyse_step_test(proj.steps, static,
+                                proj.levels if len(proj.levels) else None,
+                                steps_file=proj.files.get("steps", "steps.csv"),
+                                levels_file=proj.files.get("levels", "levels.csv"))
+        if as_json:
+            from blendq.outputs import to_json_stable
+
+            typer.echo(to_json_stable({"steps": res.steps.to_dict(orient="records"),
+                                       "parameters": res.parameters.to_dict(orient="records")}))
+            return
+        for line in res.summary_lines(u):
+            typer.echo(line)
+
+    _guard(body)
+
+
+def main() -> None:
+    """Console-script entry point."""
+    app()

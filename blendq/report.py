@@ -1,0 +1,288 @@
+"""Turn an :class:`~blendq.pipeline.Analysis` into a report and machine-readable outputs.
+
+Sections: the decision in one sentence; cautions; inputs and their review; zone estimates;
+operating window; charts; assumptions; methods with references. Tables are converted to the
+display units (US or SI) here, at the edge; the analysis itself stays in base units.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from blendq import CAUTIONS, __version__
+from blendq.analytes import get_analyte
+from blendq.document import (
+    BulletList,
+    Callout,
+    Document,
+    Figure,
+    KeyValues,
+    Paragraph,
+    Section,
+    Table,
+)
+from blendq.pipeline import Analysis, decision_sentence
+from blendq.units import DISPLAY_UNITS, display_unit_label, format_quantity, from_base
+
+REFERENCES = [
+    "Thiem, G. (1906) Hydrologische Methoden. Gebhardt, Leipzig.",
+    "Cooper, H.H. and Jacob, C.E. (1946) A generalized graphical method for evaluating formation "
+    "constants and summarizing well-field history. Trans. AGU 27(4), 526-534.",
+    "Jacob, C.E. (1947) Drawdown test to determine effective radius of artesian well. Trans. ASCE 112.",
+    "Rorabaugh, M.I. (1953) Graphical and theoretical analysis of step-drawdown test of artesian "
+    "well. Proc. ASCE 79.",
+    "Hawkins, M.F. (1956) A note on the skin effect. J. Petroleum Technology 8(12).",
+    "Walton, W.C. (1962) Selected analytical methods for well and aquifer evaluation. Illinois "
+    "State Water Survey Bulletin 49.",
+    "Golub, G.H. and Pereyra, V. (1973) SIAM J. Numer. Anal. 10(2), 413-432 (variable projection).",
+    "Paillet, F.L. (1998) Water Resources Research 34(5), 997-1010 (flow-log analysis).",
+    "Konikow, L.F., Hornberger, G.Z., Halford, K.J. and Hanson, R.T. (2009) Revised multi-node "
+    "well (MNW2) package for MODFLOW. USGS Techniques and Methods 6-A30.",
+    "Izbicki, J.A. and others, USGS reports on well-bore flow and depth-dependent sampling.",
+    "US EPA, 40 CFR 141.62 and 141.66 (maximum contaminant levels); 40 CFR 136.3 (holding times).",
+    "WHO (2017) Guidelines for Drinking-water Quality, 4th ed. incorporating the first addendum.",
+    "Directive (EU) 2020/2184, Annex I.",
+    "National Research Council (1995) Nitrate and Nitrite in Drinking Water.",
+    "Standard Methods for the Examination of Water and Wastewater, 1030 E (ion balance).",
+    "USGS National Field Manual for the Collection of Water-Quality Data, chapter A6.",
+]
+
+ASSUMPTIONS = [
+    "Each zone joins the well through its own conductance and far-field head; zones connect "
+    "only through the wellbore (layered, anisotropic aquifer).",
+    "Zone conductances are constant over the step test; for the operating horizon they are "
+    "scaled by the Cooper-Jacob ratio G(horizon)/G(test) where storativity is known.",
+    "Complete mixing where streams meet in the well; steady flow; no reaction.",
+    "Zone water quality does not change with rate or time (no induced inflow from elsewhere, no "
+    "trend).",
+    "Bands describe the uncertainty of the mean discharge concentration from lab error, "
+    "flow-log and level error and the priors; they are not the spread of single future samples.",
+    "Non-detects are censored values: the fitted blend may not exceed the detection limit.",
+]
+
+
+def conc_display(analyte: str, value_mg_l):
+    """Concentration in the analyte's display unit (mg/L or ug/L) and that unit."""
+    unit = get_analyte(analyte).display_unit
+    return from_base(np.asarray(value_mg_l, float), "concentration", unit), unit
+
+
+def zone_display_table(a: Analysis) -> pd.DataFrame:
+    """Zone estimates in display units, unresolved zones as a range only."""
+    rows = []
+    for _, r in a.zones.iterrows():
+        an = get_analyte(r["analyte"])
+        vals, unit = conc_display(r["analyte"], [r["estimate"], r["lower"], r["upper"],
+                                                 r["range_low"], r["range_high"]])
+        est, lo, hi, rlo, rhi = vals
+        if r["verdict"] == "not resolved":
+            shown = f"{rlo:.3g} to {'no upper limit' if not np.isfinite(rhi) else f'{rhi:.3g}'}"
+            interval = "-"
+        else:
+            shown = f"{est:.3g}"
+            interval = f"{lo:.3g} to {hi:.3g}"
+        rows.append({"Zone": r["zone"], "Analyte": an.label(), "Unit": unit, "Estimate": shown,
+                     f"{a.project.settings.interval:.0%} interval": interval,
+                     "Verdict": r["verdict"]})
+    return pd.DataFrame(rows)
+
+
+def window_display_table(a: Analysis, units: str) -> pd.DataFrame:
+    rows = []
+    for lo, hi, why_lo, why_hi in a.window.intervals:
+        rows.append({"From": format_quantity(lo, "rate", units),
+                     "To": format_quantity(hi, "rate", units),
+                     "Lower end set by": why_lo, "Upper end set by": why_hi})
+    return pd.DataFrame(rows, columns=["From", "To", "Lower end set by", "Upper end set by"])
+
+
+def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
+    """Predicted quality and level at one rate (median and band)."""
+    k = int(np.argmin(np.abs(a.prediction.rates - rate)))
+    s = a.project.settings
+    q = [(1 - s.interval) / 2, 0.5, 1 - (1 - s.interval) / 2]
+    rows = []
+    for j, analyte in enumerate(a.prediction.analytes):
+        vals = np.quantile(a.prediction.concentration[:, k, j], q)
+        (lo, med, hi), unit = conc_display(analyte, vals)
+        lim = a.limits.get(analyte)
+        p = (a.prediction.concentration[:, k, j] > s.margin * lim.canonical()).mean() if lim else np.nan
+        rows.append({"Analyte": get_analyte(analyte).label(), "Median": f"{med:.3g} {unit}",
+                     "Band": f"{lo:.3g} to {hi:.3g} {unit}",
+                     "Limit": lim.label() if lim else "none",
+                     f"P(> {s.margin:.0%} of limit)": f"{p:.1%}" if lim else "-"})
+    lv = np.quantile(a.prediction.pumping_level[:, k], q)
+    rows.append({"Analyte": "Pumping level (depth)",
+                 "Median": format_quantity(lv[1], "length", units),
+                 "Band": f"{format_quantity(lv[0], 'length', units)} to "
+                         f"{format_quantity(lv[2], 'length', units)}",
+                 "Limit": "intake - submergence " + format_quantity(
+                     a.project.well.pump_intake_depth - a.project.well.submergence, "length", units),
+                 f"P(> {s.margin:.0%} of limit)": "-"})
+    return pd.DataFrame(rows)
+
+
+def _charts(a: Analysis, units: str) -> list[Figure]:
+    try:
+        from blendq.charts import quality
+    except ImportError:  # charts are optional for the text outputs
+        return []
+    s = a.project.settings
+    figs = [
+        Figure("Discharge quality against pumping rate: median, band, limits, the step samples "
+               "and the operating window.",
+               figure=quality.quality_vs_rate(a.prediction, a.window, a.limits, s.margin,
+                                              s.interval, a.project, units=units)),
+        Figure("Share of the discharge from each zone against pumping rate.",
+               figure=quality.zone_shares(a.prediction, a.project.zone_names, a.window)),
+        Figure("Pumping level against rate with the intake and screen limits.",
+               figure=quality.pumping_level(a.prediction, a.project, a.window, units=units)),
+        Figure("Zone estimates with intervals; unresolved zones as the range the data allow.",
+               figure=quality.zone_estimates(a.zones, a.prediction.analytes)),
+    ]
+    return figs
+
+
+def build_document(a: Analysis, units: str = "US", created: str = "") -> Document:
+    """The report of an analysis as a renderer-neutral document."""
+    p = a.project
+    s = p.settings
+    w = p.well
+    decision = decision_sentence(a, units)
+    inputs = KeyValues([
+        ("Well", w.name), ("Location", w.location or "-"), ("Depth datum", w.datum),
+        ("Pump intake", format_quantity(w.pump_intake_depth, "length", units)),
+        ("Required submergence", format_quantity(w.submergence, "length", units)),
+        ("Pump range", f"{format_quantity(w.rate_min, 'rate', units)} to "
+                       f"{format_quantity(w.rate_max, 'rate', units) if np.isfinite(w.rate_max) else 'unlimited'}"),
+        ("Demand", format_quantity(w.demand, "rate", units) if w.demand else "-"),
+        ("Steps", str(len(p.steps))), ("Lab results", str(len(p.samples))),
+        ("Flow logs", str(p.flowlogs["log"].nunique()) if len(p.flowlogs) else "none"),
+        ("Limits", ", ".join(sorted({lim.label() for lim in a.limits.values()})) or "none"),
+        ("Margin", f"{s.margin:.0%} of each limit"),
+        ("Accepted exceedance probability", f"{s.exceedance_probability:.0%}"),
+        ("Monte Carlo draws / seed", f"{a.draws.n_draws} / {a.draws.seed}"),
+    ])
+    zones_geo = pd.DataFrame([{"Zone": z.name,
+                               "Top": format_quantity(z.top, "length", units),
+                               "Bottom": format_quantity(z.bottom, "length", units),
+                               "Static level": format_quantity(z.static_level, "length", units)
+                               if z.static_level is not None else "-"} for z in p.zones])
+    qa_lines = a.qa.summary_lines()
+    qa_table = a.qa.findings[["severity", "rule", "sample_id", "analyte", "message"]].copy() \
+        if len(a.qa.findings) else pd.DataFrame(columns=["severity", "rule", "message"])
+    skipped = [f"{rule}: {why}" for rule, why in a.qa.skipped]
+    du = DISPLAY_UNITS[units]
+    hyd = pd.DataFrame({
+        "Zone": a.hydraulics["zone"],
+        f"Conductance [{display_unit_label(du['conductance'])}]": [
+            f"{from_base(g, 'conductance', du['conductance']):.3g}" for g in a.hydraulics["conductance"]],
+        "± (relative)": [f"{v:.0%}" for v in a.hydraulics["conductance_rel_sd"]],
+        "Conductance from": a.hydraulics["conductance_from"],
+        f"Static level [{display_unit_label(du['length'])}]": [
+            f"{from_base(-h, 'length', du['length']):.4g}" for h in a.hydraulics["static_head"]],
+        "Static level from": a.hydraulics["static_head_from"],
+    })
+    diag = a.analyte_diagnostics.copy()
+    diag["condition"] = diag["condition"].map(lambda v: f"{v:.3g}")
+    diag["chi_square"] = diag["chi_square"].map(lambda v: f"{v:.3g}")
+    not_fitted = [f"{k}: {v}" for k, v in a.not_fitted.items()]
+    rec_rate = a.window.recommended if a.window.recommended is not None else (w.demand or a.prediction.rates[-1])
+    sections = [
+        Section("Decision", (Callout(decision, "decision"),
+                             *(Callout(n, "note") for n in a.notes)), "decision"),
+        Section("Cautions", tuple(Callout(c, "caution") for c in CAUTIONS), "cautions"),
+        Section("Inputs and their review", (
+            inputs, Table(zones_geo, "Zones (depths below the datum)."),
+            Paragraph("Lab and field review: " + "; ".join(qa_lines) + "."),
+            Table(qa_table, "Findings of the lab and field review."),
+            *( [BulletList(skipped)] if skipped else []),
+            *( [Paragraph("Not fitted: " + "; ".join(not_fitted) + ".")] if not_fitted else []),
+        ), "inputs"),
+        Section("Zone estimates", (
+            Paragraph("Each zone's water quality estimated from the blended step samples "
+                      "(and any depth samples), with the zone hydraulics fitted jointly. A zone "
+                      "the data do not resolve is reported as the range of values the data "
+                      "allow, never as one number."),
+            Table(zone_display_table(a), "Zone water quality."),
+            Table(hyd, "Zone hydraulics (fitted; 'prior' means the data added little to the "
+                       "zone properties)."),
+            Table(diag, "Identifiability per analyte: rank and condition number of the weight "
+                        "matrix, chi-square of the fit."),
+        ), "zones"),
+        Section("Operating window", (
+            Table(window_display_table(a, units), "Rates that meet every criterion."),
+            Table(at_rate_table(a, rec_rate, units),
+                  f"Predicted discharge at {format_quantity(rec_rate, 'rate', units)}."),
+        ), "window"),
+        Section("Charts", tuple(_charts(a, units)) or (Paragraph("Charts unavailable."),), "charts"),
+        Section("Assumptions", (BulletList(ASSUMPTIONS),), "assumptions"),
+        Section("Methods and references", (
+            Paragraph("Zone inflow: common wellbore head, q_i = G_i (h0_i - h_w) with optional "
+                      "nonlinear loss; conductances from Thiem or Cooper-Jacob with skin. "
+                      "Wellbore mixing: upwind mass balance along the well. Zone "
+                      "concentrations: weighted, bounded and censored least squares; hydraulics "
+                      "by variable projection with scipy least_squares on flow-log, level, "
+                      "prior and quality residuals. Uncertainty: linearised covariance and a "
+                      "seeded Monte Carlo refit. Window: P(C > margin x limit) <= alpha for "
+                      "every analyte, pumping level above intake plus submergence, pump range."),
+            BulletList(REFERENCES),
+            Paragraph(f"blendq {__version__}."),
+        ), "methods"),
+    ]
+    return Document(title=f"Discharge quality and operating window: {w.name}",
+                    subtitle=p.name, created=created, sections=tuple(sections))
+
+
+def summary_json(a: Analysis, units: str = "US") -> dict:
+    """Machine-readable summary (base units, with the display strings beside them)."""
+    w = a.window
+    return {
+        "blendq_version": __version__,
+        "project": a.project.name,
+        "well": a.project.well.name,
+        "decision": decision_sentence(a, units),
+        "window_m3_per_day": [[lo, hi] for lo, hi, _, _ in w.intervals],
+        "window_limiting": [[lo_r, hi_r] for _, _, lo_r, hi_r in w.intervals],
+        "recommended_rate_m3_per_day": w.recommended,
+        "reason_empty": w.reason_empty,
+        "zones": a.zones.to_dict(orient="records"),
+        "not_fitted": a.not_fitted,
+        "qa": a.qa.summary_lines(),
+        "draws": a.draws.n_draws,
+        "seed": a.draws.seed,
+        "cautions": list(CAUTIONS),
+        "units_note": "concentrations in mg/L on each analyte's canonical basis (nitrate as N); "
+                      "rates in m3/d; depths in m below the datum",
+    }
+
+
+def output_files(a: Analysis, units: str = "US", created: str = "") -> dict[str, bytes | str]:
+    """All files of a report folder: report.html, report.pdf, CSV tables, summary.json, charts."""
+    from blendq.outputs import to_csv_safe, to_json_stable
+    from blendq.render_html import render_html
+    from blendq.render_pdf import render_pdf_bytes
+
+    doc = build_document(a, units, created)
+    files: dict[str, bytes | str] = {
+        "report.html": render_html(doc),
+        "report.pdf": render_pdf_bytes(doc),
+        "summary.json": to_json_stable(summary_json(a, units)),
+        "tables/zones.csv": to_csv_safe(a.zones),
+        "tables/sweep.csv": to_csv_safe(a.sweep_table),
+        "tables/residuals.csv": to_csv_safe(a.residuals),
+        "tables/hydraulics.csv": to_csv_safe(a.hydraulics),
+        "tables/qa_findings.csv": to_csv_safe(a.qa.findings),
+    }
+    for k, block in enumerate(b for sec in doc.sections for b in sec.blocks if isinstance(b, Figure)):
+        png = block.png_bytes()
+        if png:
+            files[f"charts/chart_{k + 1}.png"] = png
+        if block.figure is not None:
+            import io
+
+            buf = io.StringIO()
+            block.figure.savefig(buf, format="svg", metadata={"Date": None})
+            files[f"charts/chart_{k + 1}.svg"] = buf.getvalue()
+    return files
