@@ -505,6 +505,14 @@ def test_fewer_than_five_readings():
                                                                            "message"]
 
 
+def test_readings_without_step_are_placed_by_time():
+    # no step column: readings at 2:30-2:50 h fall in step 1 (0-4 h) by their time
+    result = review(stab_project(field_table(np.nan, 2.5, **STABLE)))
+    assert not {"field_stability", "field_readings_few"} & set(rules_of(result))
+    drifting = field_table(np.nan, 2.5, **{**STABLE, "ph": [7.0, 7.1, 7.2, 7.3, 7.4]})
+    assert rules_of(review(stab_project(drifting)))["field_stability"] == "warning"
+
+
 def test_no_field_readings_is_skipped():
     result = review(make_project([sample("S1", 1, "nitrate", 8.0)]))
     assert skipped_rules(result)["field_stability"] == "no field readings"
@@ -576,6 +584,12 @@ def test_early_and_late_samples():
     assert rules_of(result, "S9")["step_unknown"] == "error"
     relaxed = review(make_project(rows[:1], qa={"early_sample_share": 0.2}))
     assert "early_sample" not in rules_of(relaxed)
+
+
+def test_no_steps_table_skips_purge_and_timing():
+    project = make_project(purge_rows(0.5), steps=steps_table().iloc[:0])
+    skipped = skipped_rules(review(project))
+    assert skipped["purge_volume"] == "no steps table" == skipped["early_sample"]
 
 
 def test_missing_sample_times_skip_timing():
