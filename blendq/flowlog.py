@@ -52,11 +52,16 @@ def zone_net_flows(log: pd.DataFrame, zone_top, zone_bottom, rate: float,
 
     Notes
     -----
-    Below the deepest zone the well is closed (zero flow). Above the top zone, the flow is the
-    pumping rate when the intake lies above all zones and zero otherwise.
+    Below the deepest zone the well is closed (zero flow), and so is it above the top zone.
+    The pump intake removes the pumping rate from the well: the upward flow just below it
+    exceeds the flow just above it by ``rate``. When the intake lies between a reading and the
+    zone it is used for (the intake counts as above a zone when it is shallower than the
+    zone's mid-depth, as in :mod:`blendq.mixing`), the reading is corrected by ``rate``; a zone
+    with no reading on one side uses the closed end of the well there.
     """
     top = np.asarray(zone_top, float)
     bot = np.asarray(zone_bottom, float)
+    mid = 0.5 * (top + bot)
     depth = np.asarray(log["depth"], float)
     flow = np.asarray(log["upward_flow"], float)
     n = len(top)
@@ -67,23 +72,27 @@ def zone_net_flows(log: pd.DataFrame, zone_top, zone_bottom, rate: float,
         lower_edge = top[i + 1] if i < n - 1 else np.inf
         above = (depth <= top[i]) & (depth >= upper_edge)
         below = (depth >= bot[i]) & (depth <= lower_edge)
+        intake_above_zone = intake_depth < mid[i]
         if above.any():
             k = np.flatnonzero(above)[np.argmax(depth[above])]
             f_above, e_above = flow[k], log_error(flow[k], relative, absolute)
+            reading_depth = depth[k]
         elif i == 0:
-            f_above = rate if intake_depth <= top[0] else 0.0
-            e_above = 0.0
+            f_above, e_above, reading_depth = 0.0, 0.0, -np.inf
         else:
             continue
+        if intake_above_zone and reading_depth < intake_depth:
+            f_above = f_above + rate
         if below.any():
             k = np.flatnonzero(below)[np.argmin(depth[below])]
             f_below, e_below = flow[k], log_error(flow[k], relative, absolute)
+            reading_depth = depth[k]
         elif i == n - 1:
-            f_below, e_below = (rate if intake_depth >= bot[-1] else 0.0) * -1.0, 0.0
-            if intake_depth < bot[-1]:
-                f_below = 0.0
+            f_below, e_below, reading_depth = 0.0, 0.0, np.inf
         else:
             continue
+        if not intake_above_zone and reading_depth >= intake_depth:
+            f_below = f_below - rate
         q[i] = f_above - f_below
         sd[i] = float(np.hypot(e_above, e_below))
     return q, sd
