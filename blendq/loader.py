@@ -214,7 +214,7 @@ def _frame(name: str, rows: list[list]) -> pd.DataFrame:
     frame = pd.DataFrame(rows, columns=TABLE_COLUMNS[name])
     for col in frame.columns:
         if col in ("start", "end", "time", "sampled_at", "analyzed_at"):
-            frame[col] = pd.to_datetime(frame[col])
+            frame[col] = pd.to_datetime(frame[col]).astype("datetime64[ns]")
         elif col in ("recovered_before", "nondetect"):
             frame[col] = frame[col].astype(bool)
         elif col == "source_row":
