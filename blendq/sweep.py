@@ -223,7 +223,7 @@ def sweep_table(pred: Prediction, limits: dict[str, Limit], margin: float, inter
     lq = np.quantile(pred.pumping_level, q, axis=0)
     data["pumping_level_median"] = lq[1]
     data["pumping_level_deep"] = lq[2]
-    share = np.median(pred.shares, axis=0)
+    share = np.nanmedian(np.where(np.isfinite(pred.shares), pred.shares, np.nan), axis=0) if np.isfinite(pred.shares).any() else np.median(pred.shares, axis=0)
     for i, z in enumerate(zone_names):
         data[f"share_{z}"] = share[:, i]
     return pd.DataFrame(data)

@@ -188,7 +188,8 @@ def predict(fit: FitResult, draws: Draws, rates, conductance_factor=None,
     state = model.state(rates)
     from blendq.mixing import discharge_weights
 
-    shares = np.nan_to_num(discharge_weights(state.zone_flow, model.geometry), nan=0.0)
+    # NaN where no water reaches the intake (zero rate): nothing is pumped, nothing to predict
+    shares = discharge_weights(state.zone_flow, model.geometry)
     conc = np.einsum("brn,bna->bra", shares, draws.zone_values)
     level = model.pumping_level_depth(rates, state)
     return Prediction(rates, conc, level, shares, state.zone_flow, list(draws.analytes))
