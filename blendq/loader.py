@@ -76,13 +76,10 @@ def _samples(t: Table, steps: dict[str, float]) -> pd.DataFrame:
             raise t.error(row, "unit", "is empty; give the unit of the value")
         _, unit, unit_basis = split_unit_basis(unit_text)
         basis_text = get("basis") or ""
-        if unit_basis and basis_text and unit_basis.lower() != basis_text.lower().removeprefix("as ").strip():
+        basis = _row_basis(t, row, analyte, basis_text or unit_basis)
+        if unit_basis and basis_text and _row_basis(t, row, analyte, unit_basis) != basis:
             raise t.error(row, "basis", f'"{basis_text}" disagrees with the unit "{unit_text}"')
         basis_text = basis_text or unit_basis or ""
-        try:
-            basis = normalise_basis(analyte, basis_text or None)
-        except InputError as err:
-            raise located(err, t.label, row, "basis", basis_text) from err
         try:
             factor = to_canonical(1.0, unit, analyte, basis or None)
         except InputError as err:
@@ -105,6 +102,13 @@ def _samples(t: Table, steps: dict[str, float]) -> pd.DataFrame:
             raise t.error(r[-1], "duplicate_of", f'"{r[10]}" is not the sample_id of another '
                                                  "sample in this file")
     return _frame("samples", out)
+
+
+def _row_basis(t: Table, row: int, analyte, text: str | None) -> str:
+    try:
+        return normalise_basis(analyte, text or None)
+    except InputError as err:
+        raise located(err, t.label, row, "basis", text) from err
 
 
 _NONDETECT_WORDS = {"nd", "n.d.", "<dl", "<rl", "<mdl", "bdl"}
@@ -184,8 +188,12 @@ def _levels(t: Table) -> pd.DataFrame:
     return _frame("levels", [[get("time"), get("level"), row] for row, get in t.records()])
 
 
+#: parameter columns of the field table
+FIELD_PARAMETERS = ("temperature", "ph", "specific_conductance", "dissolved_oxygen", "turbidity")
+
+
 def _field(t: Table, steps: dict[str, float]) -> pd.DataFrame:
-    measured = TABLE_COLUMNS["field"][2:-1]
+    measured = FIELD_PARAMETERS
     if not any(c in t.columns for c in measured):
         raise t.error(0, measured[0], "no field parameter columns found (expected one or more "
                                       f"of {', '.join(measured)})")

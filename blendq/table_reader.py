@@ -297,6 +297,8 @@ def read_table(path: Path, label: str, name: str) -> Table:
         m = _HEADER.match(cell.strip())
         column, unit = (m.group(1), m.group(2).strip()) if m else (cell.strip(), None)
         column = re.sub(r"[\s\-]+", "_", column.strip().lower())
+        if column not in spec:
+            continue  # unknown or blank header cells are ignored
         if column in columns:
             raise InputError(f'column "{cell.strip()}" appears twice', file=label, row=0,
                              field=column)

@@ -308,3 +308,48 @@ def test_rates_convert_exactly_for_any_delimiter(rates, semicolon):
         (root / "steps.csv").write_text("\n".join(lines) + "\n", encoding="utf-8")
         loaded = load_project(root).steps["rate"].to_numpy()
     np.testing.assert_allclose(loaded, np.array(rates) * GPM, rtol=1e-13, atol=0.0)
+
+
+# ----------------------------------------------------------------------------- sample forms
+def _with_samples(tmp_path: Path, text: str):
+    target = tmp_path / "p"
+    shutil.copytree(US, target)
+    (target / "lab" / "samples.csv").write_text(text, encoding="utf-8")
+    return load_project(target).samples
+
+
+def test_basis_in_unit_cell_and_value_header_unit(tmp_path):
+    samples = _with_samples(tmp_path, (
+        "sample_id,step,analyte,value [mg/L],unit,basis,notes,notes,,\n"
+        "a,S1,nitrate,8.0,mg/L as N,,x,y,,\n"
+        "b,S1,nitrate,8.0,mg/L as N,NO3-N,,,,\n"  # same basis, other spelling
+        "c,S1,arsenic,0.006,,,,,,\n"  # unit from the value header
+        "d,S1,chloride,2,meq/L,,,,,\n"))
+    np.testing.assert_allclose(samples["value"].iloc[:3], [8.0, 8.0, 0.006], rtol=1e-12)
+    # 2 meq/L of chloride x 35.45 mg/meq (IUPAC 2022 atomic weight of Cl, charge 1)
+    assert samples["value"].iloc[3] == pytest.approx(2 * 35.45, rel=1e-4)
+    assert list(samples["reported_basis"].iloc[:2]) == ["N", "NO3-N"]
+
+
+def test_basis_that_disagrees_with_unit_cell(tmp_path):
+    with pytest.raises(InputError, match='"as NO3" disagrees with the unit "mg/L as N"') as info:
+        _with_samples(tmp_path, "sample_id,step,analyte,value,unit,basis\n"
+                                "a,S1,nitrate,8.0,mg/L as N,as NO3\n")
+    assert (info.value.row, info.value.field) == (1, "basis")
+
+
+def test_nondetect_forms_agree(tmp_path):
+    samples = _with_samples(tmp_path, (
+        "sample_id,step,analyte,value,unit,nondetect,detection_limit\n"
+        "a,S1,arsenic,<1,ug/L,,\n"
+        "b,S1,arsenic,ND,ug/L,,1\n"
+        "c,S1,arsenic,1,ug/L,yes,\n"
+        "d,S1,arsenic,,ug/L,true,1\n"))
+    assert samples["nondetect"].all() and samples["value"].isna().all()
+    np.testing.assert_allclose(samples["detection_limit"], 0.001, rtol=1e-12)
+    with pytest.raises(InputError, match='says false but the value is "<1"'):
+        _with_samples(tmp_path / "x", "sample_id,step,analyte,value,unit,nondetect\n"
+                                      "a,S1,arsenic,<1,ug/L,no\n")
+    with pytest.raises(InputError, match="differs from the limit in the value"):
+        _with_samples(tmp_path / "y", "sample_id,step,analyte,value,unit,detection_limit\n"
+                                      "a,S1,arsenic,<1,ug/L,2\n")
