@@ -841,6 +841,12 @@ class StepDrawdownResult:
         (equal-time analysis only).
     increments : EqualTimeDrawdowns or None
     warnings : list of str
+    schedule : DataFrame
+        step, rate [m^3/d], start, end [d from the first step's start], sequence_start, in time
+        order.
+    record : DataFrame or None
+        The water-level record as time [d from the first step's start] and drawdown [m], when
+        one was given.
     """
 
     method: str
@@ -854,6 +860,8 @@ class StepDrawdownResult:
     apparent_transmissivity: float | None = None
     increments: EqualTimeDrawdowns | None = None
     warnings: list[str] = field(default_factory=list)
+    schedule: pd.DataFrame | None = None
+    record: pd.DataFrame | None = None
 
     @property
     def walton_label(self) -> str:
@@ -936,7 +944,7 @@ def _schedule(steps: pd.DataFrame, steps_file: str, need_times: bool):
     }
 
 
-def _levels_as_drawdown(levels: pd.DataFrame, origin, static_level, levels_file):
+def _levels_as_drawdown(levels: pd.DataFrame, origin, static_level):
     df = levels.reset_index(drop=True)
     t = ((pd.to_datetime(df["time"]) - origin) / pd.Timedelta(days=1)).to_numpy(float)
     lev = pd.to_numeric(df["level"], errors="coerce").to_numpy(float)
@@ -1017,10 +1025,12 @@ def analyse_step_test(steps: pd.DataFrame, static_level: float, levels: pd.DataF
     n = len(sched["rate"])
     notes: list[str] = []
     increments = None
+    record = None
     apparent_t = None
     chained = not bool(np.all(sched["sequence_start"]))
     if method == "equal time":
-        t, s_rec, lrows = _levels_as_drawdown(levels, sched["origin"], static_level, levels_file)
+        t, s_rec, lrows = _levels_as_drawdown(levels, sched["origin"], static_level)
+        record = pd.DataFrame({"time": t, "drawdown": s_rec})
         dt = float(np.min(sched["duration"])) if elapsed is None else float(elapsed)
         try:
             increments = equal_time_drawdowns(t, s_rec, sched["start"], sched["end"],
@@ -1052,8 +1062,8 @@ def analyse_step_test(steps: pd.DataFrame, static_level: float, levels: pd.DataF
                              "rests on the log-time extrapolation alone")
     else:
         if has_levels:
-            t, s_rec, lrows = _levels_as_drawdown(levels, sched["origin"], static_level,
-                                                  levels_file)
+            t, s_rec, lrows = _levels_as_drawdown(levels, sched["origin"], static_level)
+            record = pd.DataFrame({"time": t, "drawdown": s_rec})
             drawdown = np.empty(n)
             for k in range(n):
                 inside = (t > sched["start"][k]) & (t <= sched["end"][k] + 1e-9)
@@ -1121,7 +1131,10 @@ def analyse_step_test(steps: pd.DataFrame, static_level: float, levels: pd.DataF
         method=method, static_level=float(static_level), reference_time=float(reference_time),
         per_step=per_step, parameters=_parameter_table(jacob, rora), jacob=jacob,
         rorabaugh=rora, walton_class=walton_class(jacob.well_loss),
-        apparent_transmissivity=apparent_t, increments=increments, warnings=notes)
+        apparent_transmissivity=apparent_t, increments=increments, warnings=notes,
+        schedule=pd.DataFrame({"step": sched["label"], "rate": q, "start": sched["start"],
+                               "end": sched["end"], "sequence_start": sched["sequence_start"]}),
+        record=record)
 
 
 def _parameter_table(jacob: StepFit, rora: StepFit | None) -> pd.DataFrame:

@@ -1,0 +1,1 @@
+"""Charts of blendq, built with matplotlib (imported lazily by each chart function)."""
