@@ -136,7 +136,9 @@ def _charts(a: Analysis, units: str) -> list[Figure]:
                                               s.interval, a.project, units=units)),
         Figure("Share of the discharge from each zone against pumping rate.",
                figure=quality.zone_shares(a.prediction, a.project.zone_names, a.window)),
-        Figure("Pumping level against rate with the intake and screen limits.",
+        Figure(f"Pumping level against rate after {s.horizon:g} days of pumping (the operating "
+               "horizon), with the intake and screen limits. The measured step levels are from "
+               "the hours-long test and so lie above the long-term prediction.",
                figure=quality.pumping_level(a.prediction, a.project, a.window, units=units)),
         Figure("Zone estimates with intervals; unresolved zones as the range the data allow.",
                figure=quality.zone_estimates(a.zones, a.prediction.analytes)),
