@@ -69,6 +69,7 @@ class ProjectFile:
     tables: dict[str, tuple[Path, str]] = field(default_factory=dict)
     path: Path = Path(PROJECT_FILE)
 
+
 class _Section:
     """One TOML table, read key by key; every error names ``file`` and the dotted key."""
 
@@ -90,7 +91,7 @@ class _Section:
 
     def text(self, key: str, default=_MISSING) -> str:
         value = self.get(key, default)
-        if value is not default and not isinstance(value, str):
+        if key in self.data and not isinstance(value, str):
             raise self.error(key, f"expected text in quotes, got {value!r}")
         return value.strip() if isinstance(value, str) else value
 
@@ -104,7 +105,7 @@ class _Section:
                open_high=False, integer=False):
         """A plain (dimensionless) number, optionally within [low, high] (or open ends)."""
         value = self.get(key, default)
-        if value is default:
+        if key not in self.data:
             return value
         kind = "a whole number" if integer else "a plain number"
         if isinstance(value, bool) or not isinstance(value, int if integer else (int, float)):
@@ -125,9 +126,8 @@ class _Section:
 
         ``sign`` is "positive" (> 0), "nonnegative" (>= 0) or "any".
         """
-
         value = self.get(key, default)
-        if value is default:
+        if key not in self.data:
             return value
         if isinstance(value, (int, float)) and not isinstance(value, bool):
             raise self.error(key, f"{value!r} has no unit; write the quantity as a string with "
