@@ -209,6 +209,11 @@ def solve_wellbore_head(
     Linear case: h_w = (sum G_i h0_i - Q) / sum G_i. Otherwise a vectorised safeguarded Newton
     iteration on h_w inside a bracket [h_lo, max h0], where h_lo = min h0 - min_i(Q/G_i + D_i Q^P)
     is a head at which any single open zone alone would give Q.
+
+    The rounding left in sum_i q_i - Q (about 1e-16 of G |h0|, which is large next to the zone
+    flows when heads are elevations) is shared out over the zones in proportion to dq_i/dh_w,
+    so that the zone flows sum to Q to rounding of the flows themselves; at Q = 0 they then
+    sum to zero within 1e-16 of the crossflow.
     """
     g = np.asarray(conductance, float)[..., None, :]
     h0 = np.asarray(static_head, float)[..., None, :]
@@ -230,6 +235,7 @@ def solve_wellbore_head(
     if np.all(d == 0):
         hw = np.broadcast_to(h_lin, shape).copy()
         flow = g * (h0 - hw[..., None])
+        flow = flow + (g / g_total[..., None]) * (q - flow.sum(-1))[..., None]
         return WellState(rate=q, wellbore_head=hw, zone_flow=flow)
 
     gb = np.broadcast_to(g, shape + g.shape[-1:])
@@ -257,7 +263,9 @@ def solve_wellbore_head(
             break
     else:
         raise ModelError("wellbore head iteration did not converge")
-    flow, _ = zone_flow_from_head_difference(h0b - hw[..., None], gb, db, exponent)
+    flow, dflow = zone_flow_from_head_difference(h0b - hw[..., None], gb, db, exponent)
+    share = dflow / dflow.sum(-1, keepdims=True)
+    flow = flow + share * (q - flow.sum(-1))[..., None]
     return WellState(rate=q, wellbore_head=hw, zone_flow=flow)
 
 

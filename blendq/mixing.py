@@ -110,7 +110,10 @@ def _sweeps(flows, geometry: WellGeometry, zone_values):
             comp = (prev_flow[..., None] * prev_comp + q_own[..., None] * c_own) / total[..., None]
         comp_down[k] = np.where(total[..., None] > 0, comp, np.nan)
         if k < n_nodes - 1:
-            prev_flow = np.maximum(seg_down[k], 0.0)
+            # a node that receives no water cannot pass any on: a segment flow there is
+            # rounding (for example at Q = 0, where the zone flows sum to +-1e-16) and would
+            # carry the node's undefined (NaN) composition down the well
+            prev_flow = np.where(total > 0, np.maximum(seg_down[k], 0.0), 0.0)
             prev_comp = np.where(prev_flow[..., None] > 0, comp_down[k], 0.0)
     comp_up = [None] * n_nodes
     prev_flow, prev_comp = np.zeros(flows.shape[:-1]), zero
@@ -121,7 +124,7 @@ def _sweeps(flows, geometry: WellGeometry, zone_values):
             comp = (prev_flow[..., None] * prev_comp + q_own[..., None] * c_own) / total[..., None]
         comp_up[k] = np.where(total[..., None] > 0, comp, np.nan)
         if k > 0:
-            prev_flow = np.maximum(-seg_down[k - 1], 0.0)
+            prev_flow = np.where(total > 0, np.maximum(-seg_down[k - 1], 0.0), 0.0)
             prev_comp = np.where(prev_flow[..., None] > 0, comp_up[k], 0.0)
     return seg_down, comp_down, comp_up
 
@@ -151,7 +154,9 @@ def discharge_composition(flows, geometry: WellGeometry, zone_values=None):
     Returns
     -------
     ndarray, shape (..., m)
-        Flow-weighted composition at the intake; NaN where the pumping rate is zero.
+        Flow-weighted composition at the intake; NaN where the pumping rate is zero (a sum
+        of zone flows below 1e-9 of the zone flows' absolute sum counts as zero: that is
+        rounding left by the wellbore-head solution at Q = 0).
     """
     flows = np.asarray(flows, float)
     values = _as_values(flows, zone_values)
@@ -169,8 +174,9 @@ def discharge_composition(flows, geometry: WellGeometry, zone_values=None):
         parts.append(np.where(w[..., None] > 0, comp_up[k + 1], 0.0))
     total = sum(weights)
     with np.errstate(invalid="ignore", divide="ignore"):
-        mix = sum(w[..., None] * p for w, p in zip(weights, parts)) / total[..., None]
-    return np.where(total[..., None] > 0, mix, np.nan)
+        mix = sum(w[..., None] * p for w, p in zip(weights, parts, strict=True)) / total[..., None]
+    pumped = flows.sum(-1) > 1e-9 * np.abs(flows).sum(-1)
+    return np.where((total[..., None] > 0) & pumped[..., None], mix, np.nan)
 
 
 def discharge_weights(flows, geometry: WellGeometry):
