@@ -3,8 +3,8 @@
 Each expected value carries its source beside it:
 - 40 CFR 141.62(b): US EPA maximum contaminant levels for inorganic contaminants;
 - 40 CFR 141.66(e): US EPA MCL for uranium;
-- WHO Guidelines for Drinking-water Quality, 4th ed. (2017, addenda 2022), chapter 12 and
-  annex 3 tables;
+- WHO Guidelines for Drinking-water Quality, 4th ed. (2017, addenda 2022), chapter 12 and the
+  chemical summary tables (annex 3, from memory);
 - Directive (EU) 2020/2184, Annex I, Part B (chemical parameters) and its notes.
 The nitrate/nitrite conversions use molar masses from the ``molmass`` library and the National
 Research Council (1995) factor 1 mg/L NO3-N = 4.429 mg/L NO3.
@@ -22,7 +22,7 @@ from blendq.limits import CATALOGUE, RATIO_RULES, limit_set, ratio_value
 N_PER_NO3 = molmass.Formula("N").mass / molmass.Formula("NO3").mass  # molmass library
 N_PER_NO2 = molmass.Formula("N").mass / molmass.Formula("NO2").mass  # molmass library
 
-# (authority, analyte) -> (value, unit, basis, expected canonical mg/L, source)
+# (authority, analyte) -> (value, unit, basis, expected canonical mg/L); source beside each
 PUBLISHED = {
     # 40 CFR 141.62(b): nitrate 10 mg/L (as nitrogen)
     ("US-EPA", "nitrate"): (10.0, "mg/L", "N", 10.0),
