@@ -15,6 +15,7 @@ References
 - OWASP, "CSV Injection": cells beginning with ``=``, ``+``, ``-``, ``@``, tab or carriage
   return are read as formulas; prefixing a single quote makes them text.
 - POSIX ``rename(2)``: renaming within one file system is atomic.
+- IETF RFC 4180, Common Format and MIME Type for CSV Files (CRLF line ends, quoting).
 """
 
 from __future__ import annotations
@@ -256,10 +257,10 @@ def to_csv_safe(df: pd.DataFrame, index: bool = False) -> str:
     Returns
     -------
     str
-        CSV with ``\\n`` line ends. Text cells (and column labels) that start with ``=``,
-        ``+``, ``-``, ``@``, tab or carriage return get a leading ``'`` unless the whole cell
-        is a plain decimal number such as ``-1.5`` or ``+2e-3``. Numeric columns are written
-        as numbers (shortest round-trip form), so ``-1.5`` stays a number.
+        CSV with CRLF line ends (RFC 4180). Text cells (and column labels) that start with
+        ``=``, ``+``, ``-``, ``@``, tab or carriage return get a leading ``'`` unless the whole
+        cell is a plain decimal number such as ``-1.5`` or ``+2e-3``. Numeric columns are
+        written as numbers (shortest round-trip form), so ``-1.5`` stays a number.
     """
     guarded = df.copy()
     for position in range(guarded.shape[1]):
@@ -272,7 +273,9 @@ def to_csv_safe(df: pd.DataFrame, index: bool = False) -> str:
         guarded.index.names = [
             None if name is None else _guard_cell(str(name)) for name in guarded.index.names
         ]
-    return guarded.to_csv(index=index, lineterminator="\n")
+    # CRLF line ends (RFC 4180); they also make the writer quote a cell holding a bare CR,
+    # which with LF line ends would be written unquoted and split the row on reading
+    return guarded.to_csv(index=index, lineterminator="\r\n")
 
 
 # ---------------------------------------------------------------------------------------------

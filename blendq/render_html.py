@@ -42,7 +42,8 @@ main, header.titleblock, nav.contents, footer.colophon { max-width: 50rem; margi
   padding: 0 1.25rem; }
 h1, h2, .label, caption, figcaption, table, dl, nav.contents, footer.colophon {
   font-family: "Source Sans 3", "Segoe UI", Roboto, "DejaVu Sans", Arial, sans-serif; }
-header.titleblock { padding-top: 2.25rem; padding-bottom: 0.75rem;
+header.titleblock { padding-top: 2.25rem; }
+header.titleblock::after { content: ""; display: block; margin-top: 0.75rem;
   border-bottom: 3px double var(--ink); }
 h1 { font-size: 1.85rem; line-height: 1.2; margin: 0 0 0.35rem 0; font-weight: 700; }
 p.subtitle { font-size: 1.15rem; margin: 0 0 0.35rem 0; }

@@ -59,6 +59,7 @@ BODY, BODY_LEAD = 9.5, 13.6
 SMALL, SMALL_LEAD = 8.0, 11.0
 TABLE_SIZE, CELL_PAD_X, CELL_PAD_Y, MIN_TABLE_SIZE = 8.0, 4.0, 2.6, 6.0
 HEADING, HEADING_LEAD, HEADING_INDENT = 13.5, 18.0, 26.0
+HEADING_FOLLOW = 3 * BODY_LEAD  # least content [pt] kept on the page below a heading
 TITLE, TITLE_LEAD = 20.0, 25.0
 INK, MUTED, RULE, WASH, FAINT = "0.08", "0.35", "0.5", "0.92", "0.8"
 _ASCENT, _DESCENT = 0.928, 0.236  # DejaVu Sans ascender and descender [em]
@@ -465,6 +466,7 @@ def _build(doc: Document, paper: str) -> tuple[list[_Piece], float, float]:
         for piece in heading:
             piece.keep_with_next = True
         pieces += heading
+        start = len(pieces)
         for block in section.blocks:
             if isinstance(block, Paragraph):
                 pieces += builder.paragraph(block)
@@ -480,6 +482,14 @@ def _build(doc: Document, paper: str) -> tuple[list[_Piece], float, float]:
                 pieces += builder.keyvalues(block)
             else:  # the Section constructor admits only the types above
                 raise TypeError(f"cannot render {type(block).__name__}")
+        # a heading keeps at least HEADING_FOLLOW of content below it on its page (a short
+        # opening line is kept with whatever comes next, such as a chart)
+        follow = 0.0
+        for piece in pieces[start:-1]:
+            follow += piece.space_before + piece.height
+            if follow >= HEADING_FOLLOW:
+                break
+            piece.keep_with_next = True
         pieces[-1].keep_with_next = False
     return pieces, width, frame_h
 
