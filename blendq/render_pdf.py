@@ -255,7 +255,8 @@ class _Builder:
             top = pad if first else 0.0
             ops.append(_text(bar + pad, top + _baseline(lead, size), s, size, row_bold, color))
             pieces.append(_Piece(h, ops))
-        _keep_lines(pieces)
+        _keep_lines(pieces[1:])  # the label row counts apart: two text lines follow it
+        pieces[0].keep_with_next = True
         if len(pieces) <= 8:
             for piece in pieces[:-1]:
                 piece.keep_with_next = True

@@ -314,6 +314,23 @@ def test_paragraph_never_leaves_a_single_line_at_a_page_edge() -> None:
     assert (5,) in splits
 
 
+def test_long_callout_splits_with_label_and_two_lines_together() -> None:
+    callout = Callout(" ".join(["Run below the window only after review."] * 60), "decision")
+    for filler_lines in range(30, 50):
+        filler = Paragraph("\n".join(["line"] * filler_lines))
+        doc = Document("t", "", "", [Section("S", [filler, callout], key="s")])
+        pieces, _, frame_h = _build(doc, "a4")
+        pages = _paginate(pieces, frame_h)
+        # title, rule, "CONTENTS", one contents entry, heading, then the filler lines
+        callout_pieces = pieces[5 + filler_lines :]
+        assert any(op[3] == "DECISION" for op in callout_pieces[0].ops if op[0] == "text")
+        ours = {id(p) for p in callout_pieces}
+        counts = [sum(id(piece) in ours for piece, _ in page) for page in pages]
+        assert len(pages) == 2
+        assert counts[0] == 0 or counts[0] >= 3, counts  # label row plus two text lines
+        assert counts[1] >= 2
+
+
 def test_heading_is_kept_with_what_follows() -> None:
     for filler_lines in range(20, 60):
         filler = Paragraph("\n".join(["line"] * filler_lines))
