@@ -70,16 +70,19 @@ def _system(units: str) -> dict[str, str]:
     return DISPLAY_UNITS[units]
 
 
+def _shown(values, kind: str, units: str):
+    """Base-unit values of ``kind`` ("rate" or "length") in the display unit of ``units``,
+    and that unit's label."""
+    unit = _system(units)[kind]
+    return np.asarray(from_base(np.asarray(values, float), kind, unit)), display_unit_label(unit)
+
+
 def _rate(values, units: str):
-    """Rates [m^3/d] in the display unit of ``units``, and the unit's label."""
-    unit = _system(units)["rate"]
-    return np.asarray(from_base(np.asarray(values, float), "rate", unit)), display_unit_label(unit)
+    return _shown(values, "rate", units)
 
 
 def _depth(values, units: str):
-    """Depths [m] in the display unit of ``units``, and the unit's label."""
-    unit = _system(units)["length"]
-    return np.asarray(from_base(np.asarray(values, float), "length", unit)), display_unit_label(unit)
+    return _shown(values, "length", units)
 
 
 def _conc_unit(analyte: str) -> tuple[str, str]:
@@ -106,28 +109,24 @@ def _fmt_rate(value: float, units: str) -> str:
     return f"{float(x):,.0f} {label}"
 
 
-def _half_step(window: Window) -> float:
+def _window_intervals(window: Window | None, units: str) -> list[np.ndarray]:
+    """Display rates (low, high) of every window interval; one grid step wide at least."""
+    if window is None:
+        return []
     r = np.asarray(window.rates, float)
-    return 0.5 * float(np.min(np.diff(r))) if len(r) > 1 else 0.0
+    half = 0.5 * float(np.min(np.diff(r))) if len(r) > 1 else 0.0
+    return [_rate([max(lo - half, 0.0), hi + half] if hi - lo < half else [lo, hi], units)[0]
+            for lo, hi, _, _ in window.intervals]
 
 
-def _window_spans(ax: Axes, window: Window | None, units: str, label: bool) -> list:
-    """Shade every interval of the window; a one-rate interval gets the width of one grid step."""
+def _window_spans(ax: Axes, window: Window | None, units: str) -> None:
+    """Shade every interval of the window (light fill and hatch, to read in grayscale)."""
     from matplotlib.colors import to_rgb
 
-    handles = []
-    if window is None:
-        return handles
-    half = _half_step(window)
-    for k, (lo, hi, _, _) in enumerate(window.intervals):
-        if hi - lo < half:
-            lo, hi = max(lo - half, 0.0), hi + half
-        x = _rate([lo, hi], units)[0]
-        h = ax.axvspan(x[0], x[1], facecolor=(*to_rgb(WINDOW_COLOUR), 0.13),
-                       edgecolor=(*to_rgb(WINDOW_COLOUR), 0.45), hatch="\\\\", linewidth=0, zorder=0,
-                       label="operating window" if (label and k == 0) else None)
-        handles.append(h)
-    return handles
+    for k, (lo, hi) in enumerate(_window_intervals(window, units)):
+        ax.axvspan(lo, hi, facecolor=(*to_rgb(WINDOW_COLOUR), 0.13),
+                   edgecolor=(*to_rgb(WINDOW_COLOUR), 0.45), hatch="\\\\", linewidth=0,
+                   zorder=0, label=None if k else "operating window", gid="operating window")
 
 
 def _recommended(ax: Axes, window: Window | None, units: str, annotate: bool):
@@ -179,15 +178,15 @@ def _title(fig: Figure, head: str, window: Window | None, units: str) -> None:
                  color=VERMILLION if window is not None and window.empty else BLACK)
 
 
-def _step_samples(project: Project, analyte: str, interval: float) -> pd.DataFrame:
+def _step_samples(project: Project | None, analyte: str, interval: float) -> pd.DataFrame:
     """Discharge samples of one analyte with rate [m^3/d], value and half-interval [mg/L]."""
     from blendq.diagnostics import interval_z
     from blendq.observations import lab_sigma
 
-    s, steps = project.samples, project.steps
     cols = ["rate", "value", "half", "nondetect"]
-    if s is None or steps is None or not len(s) or not len(steps):
-        return pd.DataFrame(columns=cols)
+    if project is None or not len(project.samples) or not len(project.steps):
+        return pd.DataFrame({c: np.zeros(0, bool if c == "nondetect" else float) for c in cols})
+    s, steps = project.samples, project.steps
     s = s[s["analyte"] == analyte]
     depth = pd.to_numeric(s["depth"], errors="coerce") if "depth" in s else pd.Series(np.nan, s.index)
     s = s[depth.isna()]  # samples taken inside the well are not the discharge
@@ -258,15 +257,13 @@ def quality_vs_rate(pred: Prediction, window: Window | None, limits: dict[str, L
         ax = axes[j, 0]
         _, unit_label = _conc_unit(analyte)
         lo, med, hi = (_conc(q[k, :, j], analyte) for k in range(3))
-        s = _step_samples(project, analyte, interval) if project is not None else None
-        sx = _rate(s["rate"], units)[0] if s is not None else np.zeros(0)
-        sv = _conc(s["value"], analyte) if s is not None else np.zeros(0)
-        sh = _conc(s["half"], analyte) if s is not None else np.zeros(0)
+        s = _step_samples(project, analyte, interval)
+        sx, sv, sh = _rate(s["rate"], units)[0], _conc(s["value"], analyte), _conc(s["half"], analyte)
         lim = limits.get(analyte)
         v = float(_conc(lim.canonical(), analyte)) if lim is not None else np.nan
         ytop = max(float(np.nanmax(hi)), float(np.max(sv + sh, initial=0)) * 1.05,
                    1.25 * v if lim is not None else 0.0, 1e-12)
-        _window_spans(ax, window, units, label=True)
+        _window_spans(ax, window, units)
         ax.fill_between(x, lo, hi, color=SKY, alpha=0.45, linewidth=0,
                         label=f"{interval * 100:g} % interval of prediction")
         ax.plot(x, med, color=BLUE, linewidth=1.8, label="median prediction")
@@ -285,16 +282,14 @@ def quality_vs_rate(pred: Prediction, window: Window | None, limits: dict[str, L
                             ha="left" if side < 0.5 else "right", va=va, fontsize=8,
                             color=colour, bbox=dict(boxstyle="square,pad=0.1", fc="white",
                                                     ec="none", alpha=0.8))
-        if s is not None and len(s):
-            det = ~s["nondetect"].to_numpy()
-            if det.any():
-                ax.errorbar(sx[det], sv[det], yerr=sh[det], fmt="o", color=BLACK,
-                            markersize=5, capsize=3, elinewidth=1, zorder=5,
-                            label=f"step sample ± {interval * 100:g} % lab interval")
-            if (~det).any():
-                ax.errorbar(sx[~det], sv[~det], yerr=0.07 * ytop, uplims=True, fmt="o",
-                            color=BLACK, mfc="white", mec=BLACK, markersize=6, zorder=5,
-                            label="non-detect, at detection limit")
+        det = ~s["nondetect"].to_numpy(bool)
+        if det.any():
+            ax.errorbar(sx[det], sv[det], yerr=sh[det], fmt="o", color=BLACK, markersize=5,
+                        capsize=3, elinewidth=1, zorder=5,
+                        label=f"step sample ± {interval * 100:g} % lab interval")
+        if (~det).any():
+            ax.errorbar(sx[~det], sv[~det], yerr=0.07 * ytop, uplims=True, fmt="o", color=BLACK,
+                        mfc="white", markersize=6, zorder=5, label="non-detect, at detection limit")
         ax.set_ylim(0, ytop)
         ax.set_ylabel(f"concentration [{unit_label}]")
         ax.set_title(get_analyte(analyte).label(), loc="left", fontsize=10, fontweight="bold")
@@ -354,20 +349,13 @@ def zone_shares(pred: Prediction, zone_names: list[str], window: Window | None =
     ax.set_xlim(float(x.min()), float(x.max()))
     ax.set_ylabel("share of discharge [%]")
     ax.set_xlabel(f"pumping rate [{rate_label}]")
-    if window is not None:
-        half = _half_step(window)
-        for k, (lo, hi, _, _) in enumerate(window.intervals):
-            if hi - lo < half:
-                lo, hi = max(lo - half, 0.0), hi + half
-            r = _rate([lo, hi], units)[0]
-            h = ax.plot(r, [1.03, 1.03], transform=ax.get_xaxis_transform(), clip_on=False,
-                        color=WINDOW_COLOUR, linewidth=7, solid_capstyle="butt",
-                        label="operating window" if k == 0 else None)
-            if k == 0:
-                handles.append(h[0])
-        rec = _recommended(ax, window, units, annotate=False)
-        if rec is not None:
-            handles.append(rec)
+    for k, span in enumerate(_window_intervals(window, units)):  # a bar above the chart
+        h = ax.plot(span, [1.03, 1.03], transform=ax.get_xaxis_transform(), clip_on=False,
+                    color=WINDOW_COLOUR, linewidth=7, solid_capstyle="butt",
+                    label="operating window")
+        handles += [] if k else h
+    rec = _recommended(ax, window, units, annotate=False)
+    handles += [rec] if rec is not None else []
     labels = [h.get_label() for h in handles]
     # zones listed top to bottom, as they sit in the well and in the stack
     order = list(reversed(range(nz))) + list(range(nz, len(handles)))
@@ -403,7 +391,7 @@ def pumping_level(pred: Prediction, project: Project, window: Window | None = No
     _, depth_label = _depth(0.0, units)
     fig, axes = _figure(1, 1, (7.5, 4.8))
     ax = axes[0, 0]
-    _window_spans(ax, window, units, label=True)
+    _window_spans(ax, window, units)
     ax.fill_between(x, lo, hi, color=SKY, alpha=0.45, linewidth=0,
                     label=f"{interval * 100:g} % interval of prediction")
     ax.plot(x, med, color=BLUE, linewidth=1.8, label="median prediction")
@@ -519,21 +507,18 @@ def zone_estimates(zone_table: pd.DataFrame, analytes: list[str] | None = None,
 def save_figure(fig: Figure, path_stem: str | Path, dpi: int = 150) -> list[Path]:
     """Write ``<path_stem>.png`` (``dpi`` dots per inch) and ``<path_stem>.svg``.
 
-    The SVG carries no date and a fixed hash salt, so the same figure gives the same file.
+    Neither file records the date or the software version.
 
     Returns
     -------
     list of Path
         The PNG and SVG paths.
     """
-    import matplotlib
-
     stem = Path(path_stem)
     stem.parent.mkdir(parents=True, exist_ok=True)
     out = []
-    with matplotlib.rc_context({"svg.hashsalt": "blendq"}):
-        for ext, meta in (("png", {"Software": None}), ("svg", {"Date": None})):
-            path = stem.with_name(f"{stem.name}.{ext}")
-            fig.savefig(path, format=ext, dpi=dpi, metadata=meta)
-            out.append(path)
+    for ext, meta in (("png", {"Software": None}), ("svg", {"Date": None, "Creator": None})):
+        path = stem.with_name(f"{stem.name}.{ext}")
+        fig.savefig(path, format=ext, dpi=dpi, metadata=meta)
+        out.append(path)
     return out
