@@ -300,8 +300,10 @@ def _plain(value: Any, digits: int | None) -> Any:
         return number + 0.0  # -0.0 becomes 0.0
     if isinstance(value, enum.Enum):
         return _plain(value.value, digits)
-    if value is pd.NaT:
+    if value is pd.NaT or value is pd.NA:
         return None
+    if isinstance(value, np.datetime64):
+        return None if np.isnat(value) else pd.Timestamp(value).isoformat()
     if isinstance(value, (dt.datetime, dt.date, dt.time, pd.Timestamp)):
         return value.isoformat()
     if isinstance(value, PurePath):

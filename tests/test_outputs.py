@@ -277,6 +277,7 @@ def _results() -> dict:
         "table": pd.DataFrame({"rate": [100.0, 200.0], "nitrate": [4.5, np.nan]}),
         "series": pd.Series([1.5, 2.5], index=["a", "b"]),
         "when": dt.date(2024, 5, 1),
+        "sampled": [np.datetime64("2024-05-01T10:30"), np.datetime64("NaT"), pd.NA, pd.NaT],
         "path": Path("charts") / "rate.png",
         "result": _Result(1150.0, (150.0, 1150.0)),
         "set": {3, 1, 2},
@@ -294,6 +295,7 @@ def test_json_is_sorted_valid_and_handles_numpy_and_nan() -> None:
     assert data["table"] == {"columns": ["rate", "nitrate"], "rows": [[100.0, 4.5], [200.0, None]]}
     assert data["series"] == {"a": 1.5, "b": 2.5}
     assert data["when"] == "2024-05-01" and data["path"] == "charts/rate.png"
+    assert data["sampled"] == ["2024-05-01T10:30:00", None, None, None]
     assert data["result"] == {"rate": 1150.0, "window": [150.0, 1150.0]}
     assert data["set"] == [1, 2, 3]
     assert "NaN" not in text and "Infinity" not in text
