@@ -68,20 +68,32 @@ def conc_display(analyte: str, value_mg_l):
     return from_base(np.asarray(value_mg_l, float), "concentration", unit), unit
 
 
+def _sig(value: float, scale: float) -> str:
+    """Three significant digits; values below a millionth of the analyte's scale print as 0."""
+    if not np.isfinite(value):
+        return "no upper limit"
+    if abs(value) <= 1e-6 * scale:
+        return "0"
+    return f"{value:.3g}"
+
+
 def zone_display_table(a: Analysis) -> pd.DataFrame:
     """Zone estimates in display units, unresolved zones as a range only."""
     rows = []
+    scales = {an: conc_display(an, np.nanmax(np.abs(g[["estimate", "range_low"]].to_numpy(float))))[0]
+              for an, g in a.zones.groupby("analyte")}
     for _, r in a.zones.iterrows():
         an = get_analyte(r["analyte"])
         vals, unit = conc_display(r["analyte"], [r["estimate"], r["lower"], r["upper"],
                                                  r["range_low"], r["range_high"]])
         est, lo, hi, rlo, rhi = vals
+        sc = float(scales[r["analyte"]]) if np.isfinite(scales[r["analyte"]]) else 1.0
         if r["verdict"] == "not resolved":
-            shown = f"{rlo:.3g} to {'no upper limit' if not np.isfinite(rhi) else f'{rhi:.3g}'}"
+            shown = f"{_sig(rlo, sc)} to {_sig(rhi, sc)}"
             interval = "-"
         else:
-            shown = f"{est:.3g}"
-            interval = f"{lo:.3g} to {hi:.3g}"
+            shown = _sig(est, sc)
+            interval = f"{_sig(lo, sc)} to {_sig(hi, sc)}"
         rows.append({"Zone": r["zone"], "Analyte": an.label(), "Unit": unit, "Estimate": shown,
                      f"{a.project.settings.interval:.0%} interval": interval,
                      "Verdict": r["verdict"]})

@@ -9,6 +9,7 @@ uppermost zone), within the pump's rate range. It may be several intervals.
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -223,7 +224,9 @@ def sweep_table(pred: Prediction, limits: dict[str, Limit], margin: float, inter
     lq = np.quantile(pred.pumping_level, q, axis=0)
     data["pumping_level_median"] = lq[1]
     data["pumping_level_deep"] = lq[2]
-    share = np.nanmedian(np.where(np.isfinite(pred.shares), pred.shares, np.nan), axis=0) if np.isfinite(pred.shares).any() else np.median(pred.shares, axis=0)
+    with warnings.catch_warnings():  # rates where nothing is pumped stay NaN
+        warnings.simplefilter("ignore", RuntimeWarning)
+        share = np.nanmedian(pred.shares, axis=0)
     for i, z in enumerate(zone_names):
         data[f"share_{z}"] = share[:, i]
     return pd.DataFrame(data)

@@ -93,7 +93,7 @@ def test_settings_limits_scenarios(us):
     assert s.rate_grid_points == 61 and s.draws == 500 and s.seed == 7
     assert s.rate_grid_max == pytest.approx(700 * GPM, rel=1e-12)
     assert s.conductance_model == "transient"
-    assert s.qa == {"duplicate_rpd": 20, "stabilisation_readings": 5}
+    assert s.qa == {"duplicate_rpd_limit": 20, "field_readings": 5}
     assert s.level_error == Settings().level_error  # not given: dataclass default
     authorities = [lim.authority for lim in us.limits]
     assert authorities[-1] == "Quillmarsh Water District"
