@@ -1,15 +1,10 @@
 """Decision charts: discharge quality, zone shares and pumping level against rate; zone values.
 
-Every function returns a :class:`matplotlib.figure.Figure` built with the object API (no pyplot
-state), so it works under any backend and in worker threads; matplotlib is imported inside the
-functions, so importing this module does not import it.
-
-Values arrive in the core's base units (m, m^3/d, mg/L on the canonical basis) and are converted
-for display with :mod:`blendq.units`: ``units="US"`` shows gpm and ft, ``units="SI"`` m^3/d and
-m; concentrations use each analyte's own display unit (mg/L, ug/L) in both systems.
-
-Design: the Okabe-Ito palette (colour-blind safe), always paired with distinct line styles,
-markers and hatches so a grayscale print still reads.
+Each function returns a :class:`matplotlib.figure.Figure` built with the object API (no pyplot
+state); matplotlib is imported inside the functions. Values arrive in base units (m, m^3/d,
+mg/L canonical) and are shown in gpm and ft (``units="US"``) or m^3/d and m (``"SI"``);
+concentrations in each analyte's display unit. Colours are Okabe-Ito (colour-blind safe), always
+paired with distinct line styles, markers and hatches so a grayscale print still reads.
 
 References
 ----------
@@ -71,18 +66,13 @@ def _system(units: str) -> dict[str, str]:
 
 
 def _shown(values, kind: str, units: str):
-    """Base-unit values of ``kind`` ("rate" or "length") in the display unit of ``units``,
-    and that unit's label."""
+    """Base-unit values of ``kind`` ("rate", "length") in the display unit, and its label."""
     unit = _system(units)[kind]
     return np.asarray(from_base(np.asarray(values, float), kind, unit)), display_unit_label(unit)
 
 
 def _rate(values, units: str):
     return _shown(values, "rate", units)
-
-
-def _depth(values, units: str):
-    return _shown(values, "length", units)
 
 
 def _conc_unit(analyte: str) -> tuple[str, str]:
@@ -125,7 +115,7 @@ def _window_spans(ax: Axes, window: Window | None, units: str) -> None:
 
     for k, (lo, hi) in enumerate(_window_intervals(window, units)):
         ax.axvspan(lo, hi, facecolor=(*to_rgb(WINDOW_COLOUR), 0.13),
-                   edgecolor=(*to_rgb(WINDOW_COLOUR), 0.45), hatch="\\\\", linewidth=0,
+                   edgecolor=(*to_rgb(WINDOW_COLOUR), 0.35), hatch="\\\\", linewidth=0,
                    zorder=0, label=None if k else "operating window", gid="operating window")
 
 
@@ -155,26 +145,20 @@ def _clear_side(x, lo, hi, sx, s_hi, s_lo, box: tuple[float, float], width: floa
     return 0.995 if right < left else 0.005
 
 
-def _window_summary(window: Window | None, units: str) -> str:
-    if window is None:
-        return ""
-    if window.empty:
-        reason = window.reason_empty or "no rate meets every criterion"
-        return textwrap.fill(f"No operating window: {reason}.", 88)
-    parts = []
-    for lo, hi, _, _ in window.intervals:
-        parts.append(_fmt_rate(lo, units) if hi == lo else
-                     f"{_fmt_rate(lo, units).split()[0]} to {_fmt_rate(hi, units)}")
-    text = "Operating window " + " and ".join(parts)
-    if window.recommended is not None:
-        text += f"; recommended {_fmt_rate(window.recommended, units)}"
-    return textwrap.fill(text, 88)
-
-
 def _title(fig: Figure, head: str, window: Window | None, units: str) -> None:
     """Title in plain words, with the window (or the reason there is none) beneath it."""
-    summary = _window_summary(window, units)
-    fig.suptitle(head + ("\n" + summary if summary else ""), fontsize=10.5,
+    if window is not None and window.empty:
+        reason = window.reason_empty or "no rate meets every criterion"
+        head += "\n" + textwrap.fill(f"No operating window: {reason}.", 88)
+    elif window is not None:
+        parts = [_fmt_rate(lo, units) if hi == lo else
+                 f"{_fmt_rate(lo, units).split()[0]} to {_fmt_rate(hi, units)}"
+                 for lo, hi, _, _ in window.intervals]
+        text = "Operating window " + " and ".join(parts)
+        if window.recommended is not None:
+            text += f"; recommended {_fmt_rate(window.recommended, units)}"
+        head += "\n" + textwrap.fill(text, 88)
+    fig.suptitle(head, fontsize=10.5,
                  color=VERMILLION if window is not None and window.empty else BLACK)
 
 
@@ -188,8 +172,8 @@ def _step_samples(project: Project | None, analyte: str, interval: float) -> pd.
         return pd.DataFrame({c: np.zeros(0, bool if c == "nondetect" else float) for c in cols})
     s, steps = project.samples, project.steps
     s = s[s["analyte"] == analyte]
-    depth = pd.to_numeric(s["depth"], errors="coerce") if "depth" in s else pd.Series(np.nan, s.index)
-    s = s[depth.isna()]  # samples taken inside the well are not the discharge
+    # samples taken inside the well are not the discharge
+    s = s[pd.to_numeric(s["depth"], errors="coerce").isna()] if "depth" in s else s
     rate = pd.to_numeric(s["step"].map(dict(zip(steps["step"], steps["rate"], strict=False))),
                          errors="coerce")
     s, rate = s[rate.notna()], rate[rate.notna()]
@@ -258,7 +242,8 @@ def quality_vs_rate(pred: Prediction, window: Window | None, limits: dict[str, L
         _, unit_label = _conc_unit(analyte)
         lo, med, hi = (_conc(q[k, :, j], analyte) for k in range(3))
         s = _step_samples(project, analyte, interval)
-        sx, sv, sh = _rate(s["rate"], units)[0], _conc(s["value"], analyte), _conc(s["half"], analyte)
+        sx, sv = _rate(s["rate"], units)[0], _conc(s["value"], analyte)
+        sh = _conc(s["half"], analyte)
         lim = limits.get(analyte)
         v = float(_conc(lim.canonical(), analyte)) if lim is not None else np.nan
         ytop = max(float(np.nanmax(hi)), float(np.max(sv + sh, initial=0)) * 1.05,
@@ -387,8 +372,8 @@ def pumping_level(pred: Prediction, project: Project, window: Window | None = No
     """
     x, rate_label = _rate(pred.rates, units)
     q = np.quantile(pred.pumping_level, [(1 - interval) / 2, 0.5, (1 + interval) / 2], axis=0)
-    lo, med, hi = (_depth(q[k], units)[0] for k in range(3))
-    _, depth_label = _depth(0.0, units)
+    lo, med, hi = (_shown(q[k], "length", units)[0] for k in range(3))
+    _, depth_label = _shown(0.0, "length", units)
     fig, axes = _figure(1, 1, (7.5, 4.8))
     ax = axes[0, 0]
     _window_spans(ax, window, units)
@@ -399,7 +384,7 @@ def pumping_level(pred: Prediction, project: Project, window: Window | None = No
     deepest = [float(np.nanmax(hi))]
 
     def level_line(depth_m: float, text: str, **style) -> None:
-        d = float(_depth(depth_m, units)[0])
+        d = float(_shown(depth_m, "length", units)[0])
         deepest.append(d)
         ax.axhline(d, linewidth=1.4, label=f"{text} ({d:.3g} {depth_label})", **style)
 
@@ -418,8 +403,8 @@ def pumping_level(pred: Prediction, project: Project, window: Window | None = No
         rate = pd.to_numeric(steps["rate"], errors="coerce").to_numpy(float)
         ok = np.isfinite(lvl) & np.isfinite(rate)
         if ok.any():
-            ax.plot(_rate(rate[ok], units)[0], _depth(lvl[ok], units)[0], "s", mfc="white",
-                    mec=BLACK, mew=1.3, markersize=6, zorder=5,
+            ax.plot(_rate(rate[ok], units)[0], _shown(lvl[ok], "length", units)[0], "s",
+                    mfc="white", mec=BLACK, mew=1.3, markersize=6, zorder=5,
                     label="measured at end of step")
     _recommended(ax, window, units, annotate=True)
     ax.set_xlim(float(x.min()), float(x.max()))
@@ -475,7 +460,7 @@ def zone_estimates(zone_table: pd.DataFrame, analytes: list[str] | None = None,
         for _, row in t.iterrows():
             y = ypos[row["zone"]]
             if row["verdict"] == "not resolved":
-                low = float(_conc(row["range_low"], analyte)) if np.isfinite(row["range_low"]) else 0.0
+                low = float(np.nan_to_num(_conc(row["range_low"], analyte)))
                 open_top = not np.isfinite(row["range_high"])
                 high = right if open_top else float(_conc(row["range_high"], analyte))
                 bar = ax.barh(y, max(high - low, right * 0.004), left=low, height=0.5,
@@ -489,8 +474,9 @@ def zone_estimates(zone_table: pd.DataFrame, analytes: list[str] | None = None,
                 continue
             est, lo_, hi_ = (float(_conc(row[c], analyte)) for c in ("estimate", "lower", "upper"))
             weak = row["verdict"] != "resolved"
-            ax.errorbar(est, y, xerr=[[max(est - lo_, 0)], [max(hi_ - est, 0)]], fmt="D" if weak else "o",
-                        color=BLUE, mfc="white" if weak else BLUE, markersize=6, capsize=3,
+            ax.errorbar(est, y, xerr=[[max(est - lo_, 0)], [max(hi_ - est, 0)]],
+                        fmt="D" if weak else "o", color=BLUE, mfc="white" if weak else BLUE,
+                        markersize=6, capsize=3,
                         label="weakly resolved: estimate and interval" if weak else
                         "resolved: estimate and interval", gid=f"estimate:{analyte}:{row['zone']}")
         ax.set_xlim(-0.02 * right, right)
