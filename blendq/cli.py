@@ -42,6 +42,8 @@ def _guard(fn):
         return fn()
     except typer.Exit:
         raise
+    except typer.BadParameter as exc:  # a bad option value found inside the body is user input
+        _fail(exc.format_message(), 2)
     except BlendqError as exc:
         _fail(str(exc), 2)
     except (OSError, UnicodeDecodeError) as exc:
@@ -343,7 +345,7 @@ def drawdown_cmd(project: ProjectArg, units: UnitsOpt = "US", as_json: JsonOpt =
         if as_json:
             from blendq.outputs import to_json_stable
 
-            typer.echo(to_json_stable({"steps": res.steps.to_dict(orient="records"),
+            typer.echo(to_json_stable({"steps": res.per_step.to_dict(orient="records"),
                                        "parameters": res.parameters.to_dict(orient="records")}))
             return
         for line in res.summary_lines(u):
