@@ -181,5 +181,7 @@ def test_property_feasible_and_not_worse_than_scipy(problem):
     else:
         ref = optimize.lsq_linear(a / sigma[:, None], y / sigma, bounds=(lb, ub), method="bvls",
                                   tol=1e-14).x
-    tol = 1e-7 * (1.0 + _objective(a, y, sigma, ref))
+    # relative 1e-6: with an active non-detect constraint and a steep objective, a 1e-7
+    # relative difference in c (the precision of either solver) moves the objective by ~1e-7
+    tol = 1e-6 * (1.0 + _objective(a, y, sigma, ref))
     assert _objective(a, y, sigma, c) <= _objective(a, y, sigma, ref) + tol
