@@ -29,7 +29,6 @@ from blendq.project import Project
 from blendq.wellmodel import (
     HydraulicPrior,
     WellModel,
-    geometry_of,
     model_from_parameters,
     prior_hydraulics,
 )

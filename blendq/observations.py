@@ -80,7 +80,7 @@ def quality_data(project: Project, sample_use: pd.DataFrame | None = None) -> di
     s = project.samples
     if s.empty:
         return {}
-    rate_of = dict(zip(project.steps["step"].astype(str), project.steps["rate"].astype(float)))
+    rate_of = dict(zip(project.steps["step"].astype(str), project.steps["rate"].astype(float), strict=False))
     s = s.copy()
     s["step"] = s["step"].astype(str)
     s = s[s["step"].isin(rate_of)]

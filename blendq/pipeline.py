@@ -135,7 +135,7 @@ def inflow_table(project: Project, rates, horizon: float | None = None) -> pd.Da
 
     prior = prior_hydraulics(project)
     if not np.all(np.isfinite(prior.static_head_sd)):
-        missing = [z.name for z, sd in zip(project.zones, prior.static_head_sd) if not np.isfinite(sd)]
+        missing = [z.name for z, sd in zip(project.zones, prior.static_head_sd, strict=False) if not np.isfinite(sd)]
         raise ModelError(f"zones without a static level: {', '.join(missing)} (give zone "
                          "static_level or well static_level)")
     g = np.exp(prior.log_conductance)

@@ -82,7 +82,7 @@ def solve_censored_lsq(a, y, sigma, lb, ub, a_censored=None, dl=None):
 
     start = np.clip(np.minimum(c, np.where(ac.max(0) > 0, dl.min() / np.maximum(ac.max(0), 1e-300), c)), lb, ub)
     cons = [{"type": "ineq", "fun": lambda x: dl - ac @ x, "jac": lambda x: -ac}]
-    bounds = list(zip(lb, np.where(np.isfinite(ub), ub, None)))
+    bounds = list(zip(lb, np.where(np.isfinite(ub), ub, None), strict=False))
     out = optimize.minimize(fun, start, jac=jac, bounds=bounds, constraints=cons, method="SLSQP",
                             options={"ftol": 1e-15, "maxiter": 500})
     return np.clip(out.x, lb, ub)

@@ -116,7 +116,7 @@ def synthetic_project(
         for j, q in enumerate(np.asarray(flowlog_rates, float)):
             st = model.state(np.array([q]))
             up = mixing.wellbore_flow(st.zone_flow[0], model.geometry, depths)
-            for d, f in zip(depths, up):
+            for d, f in zip(depths, up, strict=False):
                 noise = flowlog_noise * rng.standard_normal() * (abs(f) + 1.0)
                 logs.append(dict(log=f"L{j}", step="", rate=q, depth=d, upward_flow=f + noise,
                                  source_row=len(logs) + 1))
