@@ -128,7 +128,7 @@ def test_data_allowed_range_by_hand():
 def test_residual_table_flags_an_outlier_and_nondetects():
     p = sw.project()
     row = (p.samples["analyte"] == "nitrate") & (p.samples["step"] == "S3") & p.samples["depth"].isna()
-    p.samples.loc[row, "value"] *= 1.6  # a transcription error: 60 % high, 12 sd
+    p.samples.loc[row, "value"] *= 1.6  # a copying error: 60 % high, 12 sd
     dl_row = (p.samples["analyte"] == "arsenic") & (p.samples["step"] == "S1") & p.samples["depth"].isna()
     p.samples.loc[dl_row, ["value", "nondetect", "detection_limit"]] = [np.nan, True, 0.001]
     result = fit(p, FitOptions(fit_hydraulics=False))
