@@ -13,6 +13,7 @@ import pandas as pd
 
 from blendq import diagnostics, estimation, sweep, uncertainty
 from blendq.errors import ModelError
+from blendq.levelcheck import LevelCheck, check_levels
 from blendq.limits import Limit
 from blendq.project import Project
 
@@ -24,6 +25,7 @@ class Analysis:
     project: Project
     qa: object
     sample_use: pd.DataFrame
+    sample_mode: str
     fit: estimation.FitResult
     draws: uncertainty.Draws
     zones: pd.DataFrame
@@ -35,7 +37,7 @@ class Analysis:
     limits: dict[str, Limit]
     sweep_table: pd.DataFrame
     not_fitted: dict[str, str] = field(default_factory=dict)
-    step_drawdown: object | None = None
+    step_drawdown: LevelCheck | None = None
     notes: list[str] = field(default_factory=list)
 
 
@@ -87,7 +89,8 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
                                 s.seed if seed is None else seed, progress=progress)
     zones = diagnostics.zone_table(fit, d, s.interval)
     pred = sweep.sweep(fit, d)
-    window = sweep.window_for(fit, pred)
+    levels = check_levels(fit, d, pred, s.exceedance_probability, s.horizon)
+    window = sweep.window_for(fit, pred, level_deep=levels.level_deep)
     limits = sweep.governing_limits(project.limits, pred.analytes)
     table = sweep.sweep_table(pred, limits, s.margin, s.interval, project.zone_names)
     notes = []
@@ -100,9 +103,10 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     if project.flowlogs.empty:
         notes.append("No flow log: drawdown alone identifies only the total conductance and "
                      "the well loss; zone shares come from zone properties (priors).")
-    return Analysis(project, review, use, fit, d, zones, diagnostics.analyte_diagnostics(fit),
+    notes.append(f"Pumping level in the window from the {levels.source}: {levels.reason}.")
+    return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
                     diagnostics.residual_table(fit), hyd, pred, window, limits, table, skipped,
-                    None, notes)
+                    levels, notes)
 
 
 def decision_sentence(a: Analysis, units: str = "US") -> str:

@@ -135,6 +135,74 @@ def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
+def sample_use_blocks(a: Analysis) -> list:
+    """What the fit did with the samples the review flagged."""
+    use = a.sample_use
+    mode = a.sample_mode
+    flagged = use[use["reason"].astype(str) != ""] if len(use) else use
+    text = {"keep": "Flagged samples stay in the fit (noted below).",
+            "exclude": "Samples with a warning or error are left out of the fit.",
+            "downweight": "Samples with a warning or error are kept with their uncertainty "
+                          "multiplied by the down-weighting factor."}[mode]
+    used = int(use["used"].astype(bool).sum()) if len(use) else 0
+    blocks = [Paragraph(f"Samples in the fit ({mode}): {used} of {len(use)} samples used. {text}")]
+    if len(flagged):
+        t = flagged[["sample_id", "used", "sigma_factor", "reason"]].copy()
+        t["used"] = t["used"].map(lambda v: "yes" if v else "no")
+        t["sigma_factor"] = t["sigma_factor"].map(lambda v: f"{v:g}")
+        blocks.append(Table(t.rename(columns={"sample_id": "Sample", "used": "Used",
+                                              "sigma_factor": "Uncertainty x",
+                                              "reason": "Flagged for"}),
+                            "Use of the flagged samples in the fit."))
+    return blocks
+
+
+def step_drawdown_section(a: Analysis, units: str) -> Section:
+    """Step-drawdown analysis, well condition, and which pumping-level prediction is used."""
+    lc = a.step_drawdown
+    blocks: list = []
+    if lc is None or lc.result is None:
+        why = lc.reason if lc is not None else "not run"
+        blocks.append(Paragraph(f"No step-drawdown analysis: {why}."))
+        return Section("Step-drawdown test and well condition", tuple(blocks), "stepdrawdown")
+    res = lc.result
+    blocks.append(BulletList(res.summary_lines(units)))
+    blocks.append(Paragraph("Walton's (1962) well-condition classes from the well-loss "
+                            "coefficient C are quoted from memory (below 5, 5-10, 10-40, above "
+                            "40 s²/ft⁵); check them against the bulletin before relying on them."))
+    if lc.comparison is not None:
+        c = lc.comparison
+        du = DISPLAY_UNITS[units]
+        unit = f"{du['length']}/({du['rate']})"
+        from blendq.units import Q_
+
+        def per(v):
+            return Q_(v, "d/m**2").to(f"{du['length']}/({du['rate']})").magnitude
+
+        blocks.append(Paragraph(
+            f"Linear loss: step test B = {per(c.step_linear_loss):.4g} ± "
+            f"{per(c.step_stderr):.2g} {display_unit_label(unit)}; zone model 1/ΣG = "
+            f"{per(c.zone_linear_loss):.4g} ± {per(c.zone_stderr):.2g} "
+            f"{display_unit_label(unit)} (difference {c.relative_difference:+.1%}). "
+            f"The window uses the pumping level from the {lc.source}: {lc.reason}."))
+    else:
+        blocks.append(Paragraph(f"The window uses the pumping level from the {lc.source}: "
+                                f"{lc.reason}."))
+    try:
+        from blendq.charts import stepdrawdown as sd_charts
+
+        blocks.append(Figure("Specific drawdown against rate with the fitted well-loss lines.",
+                             figure=sd_charts.specific_drawdown_chart(res, units)))
+        blocks.append(Figure("Drawdown against rate: steps, fits and the linear part.",
+                             figure=sd_charts.drawdown_rate_chart(res, units)))
+        if res.record is not None:
+            blocks.append(Figure("Water-level record with each step's extrapolation.",
+                                 figure=sd_charts.step_record_chart(res, units)))
+    except ImportError:
+        pass
+    return Section("Step-drawdown test and well condition", tuple(blocks), "stepdrawdown")
+
+
 def _charts(a: Analysis, units: str) -> list[Figure]:
     try:
         from blendq.charts import quality
@@ -212,6 +280,7 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
             Paragraph("Lab and field review: " + "; ".join(qa_lines) + "."),
             Table(qa_table, "Findings of the lab and field review."),
             *( [BulletList(skipped)] if skipped else []),
+            *sample_use_blocks(a),
             *( [Paragraph("Not fitted: " + "; ".join(not_fitted) + ".")] if not_fitted else []),
         ), "inputs"),
         Section("Zone estimates", (
@@ -231,6 +300,7 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
                   f"Predicted discharge at {format_quantity(rec_rate, 'rate', units)}."),
         ), "window"),
         Section("Charts", tuple(_charts(a, units)) or (Paragraph("Charts unavailable."),), "charts"),
+        step_drawdown_section(a, units),
         Section("Assumptions", (BulletList(ASSUMPTIONS),), "assumptions"),
         Section("Methods and references", (
             Paragraph("Zone inflow: common wellbore head, q_i = G_i (h0_i - h_w) with optional "

@@ -109,7 +109,7 @@ def governing_limits(limits: list[Limit], analytes: list[str]) -> dict[str, Limi
 def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, alpha: float,
                      intake_depth: float, submergence: float, rate_min: float, rate_max: float,
                      demand: float | None = None, top_of_screen: float | None = None,
-                     level_quantile: float | None = None) -> Window:
+                     level_quantile: float | None = None, level_deep=None) -> Window:
     """Find the rates that meet every quality and hydraulic criterion.
 
     Parameters
@@ -129,6 +129,9 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
         If given, the pumping level must also stay above it.
     level_quantile : float, optional
         Quantile of the pumping-level draws to test (default 1 - alpha: the deep side).
+    level_deep : array_like (n_rates,), optional
+        Deep-side pumping level [m depth] from another source (the step-drawdown fit) to use
+        instead of the zone model's draws.
     """
     rates = pred.rates
     crit = []
@@ -140,7 +143,10 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
         crit.append(Criterion(f"{analyte} (P > {margin:g} x limit above {alpha:g})",
                               p_exc <= alpha, "quality"))
     lq = 1 - alpha if level_quantile is None else level_quantile
-    level = np.quantile(pred.pumping_level, lq, axis=0)
+    if level_deep is not None:
+        level = np.asarray(level_deep, float)
+    else:
+        level = np.quantile(pred.pumping_level, lq, axis=0)
     crit.append(Criterion("pumping level above intake + submergence",
                           level <= intake_depth - submergence, "hydraulic"))
     if top_of_screen is not None:
@@ -194,7 +200,7 @@ def _why_empty(crit: list[Criterion], rates) -> str:
 
 
 def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
-               alpha: float | None = None) -> Window:
+               alpha: float | None = None, level_deep=None) -> Window:
     """The operating window of a fitted project with its own settings."""
     project = fit.problem.project
     s = project.settings
@@ -204,7 +210,7 @@ def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
         pred, limits, s.margin if margin is None else margin,
         s.exceedance_probability if alpha is None else alpha,
         w.pump_intake_depth, w.submergence, w.rate_min, w.rate_max, w.demand,
-        float(project.zone_top.min()) if w.keep_above_screen else None)
+        float(project.zone_top.min()) if w.keep_above_screen else None, level_deep=level_deep)
 
 
 def sweep_table(pred: Prediction, limits: dict[str, Limit], margin: float, interval: float,
