@@ -58,6 +58,11 @@ def data_allowed_range(a, y, sigma, lb, ub, a_cens=None, dl=None, z: float = 2.0
 def zone_table(fit: FitResult, draws: Draws, interval: float = 0.90) -> pd.DataFrame:
     """One row per zone and analyte: estimate, sd, interval, verdict and data-allowed range.
 
+    A zone is *weakly resolved* when its interval is wider than half its own value (or than a
+    tenth of the analyte's largest zone value, for zones near zero), *resolved* otherwise.
+    The data-allowed range is computed at the fitted hydraulics; the interval also carries the
+    hydraulic uncertainty, so the two need not nest.
+
     Columns: zone, analyte, estimate, sd, lower, upper, verdict, range_low, range_high
     (concentrations in mg/L on the analyte's canonical basis). ``estimate``, ``sd``, ``lower``
     and ``upper`` are NaN for a zone the data do not resolve.
@@ -85,7 +90,7 @@ def zone_table(fit: FitResult, draws: Draws, interval: float = 0.90) -> pd.DataF
             unseen = (a[:, i].max() if a.size else 0.0) <= 1e-9
             if in_null or unseen or not np.isfinite(hi[i]):
                 verdict = "not resolved"
-            elif (upper[i] - lower[i]) > 0.5 * scale:
+            elif (upper[i] - lower[i]) > 0.5 * max(abs(c[i]), 0.2 * scale):
                 verdict = "weakly resolved"
             else:
                 verdict = "resolved"
