@@ -322,10 +322,17 @@ def zone_shares(pred: Prediction, zone_names: list[str], window: Window | None =
         label = zone_names[i]
         thief = flow[:, i] < 0
         if thief.any():
-            r = pred.rates[keep][thief]
-            label += " (takes water from the well " + (
-                f"at {_fmt_rate(r[0], units)})" if len(r) == 1 else
-                f"from {_fmt_rate(r.min(), units).split()[0]} to {_fmt_rate(r.max(), units)})")
+            rk = pred.rates[keep]
+            r = rk[thief]
+            above = rk[rk > r.max()]
+            if r.min() == rk.min() and len(above):
+                # thief at the lowest rates: say up to which rate, in one short phrase
+                label += f" (takes water from the well below {_fmt_rate(above.min(), units)})"
+            elif len(r) == 1 or _fmt_rate(r.min(), units) == _fmt_rate(r.max(), units):
+                label += f" (takes water from the well at {_fmt_rate(r[0], units)})"
+            else:
+                label += (f" (takes water from the well from {_fmt_rate(r.min(), units).split()[0]}"
+                          f" to {_fmt_rate(r.max(), units)})")
         h = ax.fill_between(x, 100 * base, 100 * (base + med[:, i]), facecolor=colour,
                             hatch=hatch, edgecolor="#333333", linewidth=0.7, label=label)
         handles.append(h)
@@ -345,7 +352,8 @@ def zone_shares(pred: Prediction, zone_names: list[str], window: Window | None =
     # zones listed top to bottom, as they sit in the well and in the stack
     order = list(reversed(range(nz))) + list(range(nz, len(handles)))
     fig.legend([handles[k] for k in order], [labels[k] for k in order],
-               loc="outside lower center", ncols=2, fontsize=8, frameon=False)
+               loc="outside lower center", ncols=1 if nz > 3 else 2, fontsize=8,
+               frameon=False)
     _title(fig, title or "Share of each zone in the discharge", window, units)
     return fig
 
