@@ -219,6 +219,8 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
             from blendq.outputs import to_json_stable
 
             typer.echo(to_json_stable({"zones": a.zones.to_dict(orient="records"),
+                                       "sample_mode": a.sample_mode,
+                                       "sample_use": a.sample_use.to_dict(orient="records"),
                                        "hydraulics": a.hydraulics.to_dict(orient="records"),
                                        "diagnostics": a.analyte_diagnostics.to_dict(orient="records"),
                                        "units": "mg/L canonical basis; m2/d; m"}))
@@ -233,6 +235,12 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
         for _, r in df.iterrows():
             t.add_row(*[str(v) for v in r])
         Console().print(t)
+        use = a.sample_use
+        flagged = use[use["reason"].astype(str) != ""]
+        typer.echo(f"Samples in the fit ({a.sample_mode}): {int(use['used'].sum())} of "
+                   f"{len(use)} used; {len(flagged)} flagged by the review"
+                   + (f" ({', '.join(flagged['sample_id'].astype(str))})" if len(flagged) else "")
+                   + ".")
         for note in a.notes:
             typer.echo("Note: " + note)
         typer.echo(_caution_line())
