@@ -154,6 +154,11 @@ def _sample_value(t: Table, row: int, get, factor: float) -> tuple:
         raise t.error(row, "uncertainty", f'"{unc_raw}" is negative')
     value = math.nan if nondetect else number * factor
     uncertainty = math.nan if nondetect else unc * factor
+    for column, base in (("value", value), ("detection_limit", dl * factor),
+                         ("uncertainty", uncertainty)):
+        if math.isinf(base):  # a finite number that overflows in mg/L (1e308 g/L)
+            raise t.error(row, column, f'"{t.raw(row, column)}" is too large (not a finite '
+                                       "number once converted to mg/L)")
     return value, nondetect, dl * factor, uncertainty, number
 
 

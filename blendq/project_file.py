@@ -17,7 +17,7 @@ from blendq.analytes import get_analyte, normalise_basis
 from blendq.errors import InputError
 from blendq.limits import Limit, limit_set
 from blendq.project import TABLE_COLUMNS, Settings, Well, Zone
-from blendq.table_reader import located, split_unit_basis
+from blendq.table_reader import located, one_line, split_unit_basis
 from blendq.units import parse_quantity
 
 try:  # Python 3.11+
@@ -79,7 +79,8 @@ class _Section:
         self.data, self.where, self.file, self.used = data, where, file, set()
 
     def error(self, key: str, message: str) -> InputError:
-        return InputError(message, file=self.file, field=f"{self.where}.{key}" if self.where else key)
+        return InputError(one_line(message), file=self.file,
+                          field=f"{self.where}.{key}" if self.where else key)
 
     def get(self, key: str, default=_MISSING):
         self.used.add(key)
@@ -360,14 +361,26 @@ def _table_paths(doc: dict, folder: Path, label: str) -> dict[str, tuple[Path, s
         if text is None:
             continue
         path = folder / text
-        if not text or not path.is_file():
-            raise s.error(name, f'file "{text}" does not exist in {folder}')
+        try:
+            is_file = bool(text) and path.is_file()
+        except (OSError, ValueError):  # a name too long for the file system
+            is_file = False
+        if not is_file:
+            what = "is a folder, not a file" if text and _is_dir(path) else "does not exist"
+            raise s.error(name, f'file "{text}" {what} in {folder}')
         if path.suffix.lower() not in (".csv", ".txt", ".xlsx"):
             raise s.error(name, f'"{text}" is not a .csv or .xlsx file')
         found[name] = (path, Path(text).as_posix())
     s.done()
     return found
 
+
+
+def _is_dir(path: Path) -> bool:
+    try:
+        return path.is_dir()
+    except (OSError, ValueError):
+        return False
 
 
 def resolve_project_file(path: str | Path) -> Path:

@@ -69,8 +69,17 @@ _HEADER = re.compile(r"^(.*?)\s*\[(.*)\]\s*$")
 _AS_BASIS = re.compile(r"^(.*?)\s+as\s+(\S+)$", re.IGNORECASE)
 _FLAGS = {"true": True, "yes": True, "y": True, "1": True, "t": True, "<": True, "nd": True,
           "false": False, "no": False, "n": False, "0": False, "f": False}
+# "1.250" in a decimal-comma file may be 1250 written with a thousands point: refused
+_DOT_GROUPS = re.compile(r"^[-+]?[1-9]\d{0,2}(?:\.\d{3})+$")
+# digits with "," or "." between groups of three, e.g. "1,200", "1.200,5", "1,200.5"
+_GROUPED = re.compile(r"^[-+]?\d{1,3}(?:[.,]\d{3})+(?:[.,]\d+)?$")
 _NOT_FINITE = {"nan", "inf", "+inf", "-inf", "infinity", "-infinity", "+infinity"}
 _NO_NUMBER = {"", "nd", "n.d.", "<dl", "<rl", "<mdl", "bdl"}
+
+
+def one_line(message: str) -> str:
+    """``message`` with line breaks shown as ``\\n`` so that an error stays on one line."""
+    return message.replace("\r\n", "\\n").replace("\n", "\\n").replace("\r", "\\n")
 
 
 def located(err: InputError, file: str | None, row: int | None, field: str | None,
@@ -79,7 +88,7 @@ def located(err: InputError, file: str | None, row: int | None, field: str | Non
     message = err.message
     if text is not None and str(text) not in message:
         message = f'received "{text}": {message}'
-    return InputError(message, file=err.file or file, row=err.row if err.row is not None else row,
+    return InputError(one_line(message), file=err.file or file, row=err.row if err.row is not None else row,
                       field=err.field or field)
 
 
@@ -102,11 +111,22 @@ def parse_number(text: str, decimal_comma: bool = False) -> float:
     cell = text.strip()
     if decimal_comma and re.match(r"^[-+]?\d*,\d+(?:[eE][-+]?\d+)?$", cell):
         cell = cell.replace(",", ".")
+    elif decimal_comma and _DOT_GROUPS.match(cell):
+        raise InputError(f'"{text}" is ambiguous in a file with decimal commas (a thousands '
+                         'separator or a decimal point?); write it without the point, or with '
+                         'a decimal comma')
     if cell.lower() in _NOT_FINITE:
         raise InputError(f'"{text}" is not a finite number')
     if not _NUMBER.match(cell):
+        if _GROUPED.match(cell):
+            raise InputError(f'"{text}" is not a number; write it without thousands '
+                             'separators (decimal point in a comma- or tab-delimited file, '
+                             'decimal comma in a semicolon-delimited one)')
         raise InputError(f'"{text}" is not a number')
-    return float(cell)
+    number = float(cell)
+    if not math.isfinite(number):
+        raise InputError(f'"{text}" is too large (not a finite number)')
+    return number
 
 
 def parse_time(text: str) -> pd.Timestamp:
@@ -147,7 +167,7 @@ class Table:
     decimal_comma: bool = False
 
     def error(self, row: int | None, column: str | None, message: str) -> InputError:
-        return InputError(message, file=self.label, row=row, field=column)
+        return InputError(one_line(message), file=self.label, row=row, field=column)
 
     def unit(self, column: str) -> str | None:
         return self.columns[column][1] if column in self.columns else None
@@ -198,13 +218,18 @@ class Table:
         try:
             number = parse_number(text, self.decimal_comma)
         except InputError as err:
-            unit_in_cell = kind in UNIT_KINDS and _LEADING_NUMBER.match(text)
+            lead = _LEADING_NUMBER.match(text)
+            unit_in_cell = kind in UNIT_KINDS and lead and lead.group(2)[:1].isalpha()
             hint = f" (the unit goes in the header: {column} [{self.unit(column)}])" \
                 if unit_in_cell else ""
             raise self.error(row, column, err.message + hint) from None
         if kind in UNIT_KINDS:
             offset, scale = self._affine[column]
-            return offset + scale * number
+            base = offset + scale * number
+            if not math.isfinite(base):
+                raise self.error(row, column, f'"{text}" is too large (not a finite number '
+                                              f"once converted from {self.unit(column)})")
+            return base
         return number
 
     def __post_init__(self) -> None:
@@ -218,7 +243,10 @@ class Table:
 
 
 def _decode(path: Path, label: str) -> str:
-    data = path.read_bytes()
+    try:
+        data = path.read_bytes()
+    except OSError as err:
+        raise InputError(f"cannot be read: {err.strerror or err}", file=label) from None
     try:
         return data.decode("utf-8-sig")
     except UnicodeDecodeError as err:
@@ -231,15 +259,18 @@ def _csv_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], str]
     text = _decode(path, label)
     first = next((line for line in text.splitlines() if line.strip()), "")
     delimiter = max((",", ";", "\t"), key=first.count)
-    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    # strict: an unterminated quote is an error, not a cell that runs to the end of the file
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
     rows = []
     try:
         for cells in reader:
             if any(c.strip() for c in cells):
                 rows.append((reader.line_num, cells))
     except csv.Error as err:
-        raise InputError(f"cannot be read as CSV near line {reader.line_num}: {err}",
-                         file=label) from None
+        row = reader.line_num - rows[0][0] if rows else 0
+        hint = " (a quote that is never closed?)" if "end of data" in str(err) else ""
+        raise InputError(f"cannot be read as CSV near line {reader.line_num}: {err}{hint}",
+                         file=label, row=row) from None
     return rows, delimiter
 
 

@@ -119,6 +119,7 @@ _ALIASES = {
     "d2/m5": "d**2/m**5",
 }
 
+_THOUSANDS = re.compile(r"^[,.]\d")  # the unit part of "1,260 ft" or "1.260,5 ft"
 _NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
 
 
@@ -209,6 +210,9 @@ def parse_quantity(text: str | float | int, kind: str, default_unit: str | None 
     m = _NUMBER.match(str(text))
     if not m:
         raise InputError(f'"{text}" is not a number with a unit')
+    if _THOUSANDS.match(m.group(2)):
+        raise InputError(f'"{text}" has a thousands separator; write the number without it '
+                         'and with a decimal point (e.g. "1260 ft" or "12.5 ft")')
     number, unit = m.group(1), m.group(2)
     if not unit:
         if default_unit is None:
