@@ -134,7 +134,11 @@ def solve_censored_lsq_batch(a, y, sigma, lb, ub, a_censored=None, dl=None, rtol
     best = np.full((bsz, n), np.nan)
     best_obj = np.full(bsz, np.inf)
     yy = np.einsum("bm,bm->b", wy, wy)
-    tol_scale = rtol * (1.0 + np.abs(np.nan_to_num(np.concatenate([lb[np.isfinite(lb)], ub[np.isfinite(ub)], dl]))).max(initial=0.0))
+    # feasibility tolerances relative to each constraint's own value (one large bound must not
+    # loosen a small detection limit)
+    tol_lb = rtol * (1.0 + np.abs(np.where(np.isfinite(lb), lb, 0.0)))
+    tol_ub = rtol * (1.0 + np.abs(np.where(np.isfinite(ub), ub, 0.0)))
+    tol_dl = rtol * (1.0 + np.abs(dl))
     for sub in combos:
         k = len(sub)
         e = np.zeros((bsz, k, n))
@@ -157,12 +161,12 @@ def solve_censored_lsq_batch(a, y, sigma, lb, ub, a_censored=None, dl=None, rtol
         vec = np.concatenate([grad, rhs], axis=1)
         sol = np.einsum("bij,bj->bi", np.linalg.pinv(kkt, rcond=1e-12), vec)
         c = sol[:, :n]
-        slack = tol_scale + 1e-9 * np.abs(c).max(1, keepdims=True)
-        feas = np.all(c >= lb - slack, 1) & np.all(c <= ub + slack, 1)
+        slack = 1e-9 * np.abs(c).max(1, keepdims=True)
+        feas = np.all(c >= lb - tol_lb - slack, 1) & np.all(c <= ub + tol_ub + slack, 1)
         if p:
-            feas &= np.all(np.einsum("bpn,bn->bp", ac, c) <= dl + slack, 1)
+            feas &= np.all(np.einsum("bpn,bn->bp", ac, c) <= dl + tol_dl + slack, 1)
         # the equality solve must actually satisfy its own constraints (pinv of a singular KKT)
-        feas &= np.all(np.abs(np.einsum("bkn,bn->bk", e, c) - rhs) <= slack, 1)
+        feas &= np.all(np.abs(np.einsum("bkn,bn->bk", e, c) - rhs) <= rtol * (1.0 + np.abs(rhs)) + slack, 1)
         obj = np.einsum("bi,bij,bj->b", c, hess, c) - 2.0 * np.einsum("bi,bi->b", grad, c) + yy
         margin = np.where(np.isfinite(best_obj), 1e-12 * (1.0 + np.abs(best_obj)), 0.0)
         better = feas & (obj < best_obj - margin)

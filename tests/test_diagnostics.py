@@ -109,6 +109,22 @@ def test_identifiable_well_all_resolved_with_ranges_around_truth():
     assert (diag["rank"] == 4).all() and np.all(np.isfinite(diag["condition"]))
 
 
+def test_analyte_with_only_nondetects_is_not_resolved():
+    # every arsenic result below a 1 mg/L detection limit: no zone value can be given, only
+    # the range the limits allow (Z4 alone is sampled at 85 m, so it is at most 1 mg/L)
+    p = sw.project(nondetect_limits={"arsenic": 1.0})
+    result = fit(p, FitOptions(fit_hydraulics=False))
+    table = diagnostics.zone_table(result, uncertainty.monte_carlo(result, 50, seed=0))
+    ars = table[table["analyte"] == "arsenic"]
+    assert (ars["verdict"] == "not resolved").all() and ars["estimate"].isna().all()
+    assert (ars["range_low"] == 0.0).all() and np.all(np.isfinite(ars["range_high"]))
+    np.testing.assert_allclose(ars["range_high"].iloc[3], 1.0, rtol=1e-9)
+    diag = diagnostics.analyte_diagnostics(result).set_index("analyte").loc["arsenic"]
+    assert diag["results"] == 0 and diag["nondetects"] == 8 and diag["rank"] == 0
+    res = diagnostics.residual_table(result)
+    assert res[res["analyte"] == "arsenic"]["nondetect"].all()
+
+
 def test_data_allowed_range_by_hand():
     # one sample of a 50/50 mix, 5 +- 1 mg/L, z = 2: 3 <= (c1 + c2)/2 <= 7 with c >= 0, so each
     # zone lies in [0, 14]; a zone with no weight is unbounded above

@@ -185,3 +185,15 @@ def test_property_feasible_and_not_worse_than_scipy(problem):
     # relative difference in c (the precision of either solver) moves the objective by ~1e-7
     tol = 1e-6 * (1.0 + _objective(a, y, sigma, ref))
     assert _objective(a, y, sigma, c) <= _objective(a, y, sigma, ref) + tol
+
+
+@pytest.mark.parametrize("ub", [np.inf, 10.0, 1e6])
+def test_large_upper_bound_does_not_loosen_a_detection_limit(ub):
+    # arsenic-sized values: results 0.0065 mg/L, non-detect < 0.006 mg/L of the same water; a
+    # generous user upper bound (even 1e6 mg/L) must not let the blend exceed the limit
+    a = np.ones((2, 1))
+    y = np.array([0.0065, 0.0065])
+    sigma = np.full(2, 0.0003)
+    c = qp.solve_censored_lsq_batch(a[None], y[None], sigma, [0.0], [ub], np.ones((1, 1, 1)),
+                                    [0.006])
+    np.testing.assert_allclose(c, [[0.006]], rtol=1e-9)
