@@ -241,7 +241,8 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
         ("Demand", format_quantity(w.demand, "rate", units) if w.demand else "-"),
         ("Steps", str(len(p.steps))), ("Lab results", str(len(p.samples))),
         ("Flow logs", str(p.flowlogs["log"].nunique()) if len(p.flowlogs) else "none"),
-        ("Limits", ", ".join(sorted({lim.label() for lim in a.limits.values()})) or "none"),
+        ("Limits", "; ".join(f"{get_analyte(k).label()}: {lim.label()}"
+                             for k, lim in sorted(a.limits.items())) or "none"),
         ("Margin", f"{s.margin:.0%} of each limit"),
         ("Accepted exceedance probability", f"{s.exceedance_probability:.0%}"),
         ("Monte Carlo draws / seed", f"{a.draws.n_draws} / {a.draws.seed}"),
