@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from blendq import mixing
+from blendq.errors import ModelError
 from blendq.project import Project, Settings, Well, Zone, empty_table
 from blendq.wellmodel import model_from_parameters
 
@@ -95,6 +96,10 @@ def synthetic_project(
         for step, depth in depth_samples or []:
             k = int(step[1:]) - 1
             comp = mixing.wellbore_composition(flows[k], model.geometry, [depth], conc)[0, 0]
+            if not np.isfinite(comp):
+                raise ModelError(f"depth sample at {depth:g} m during step {step}: the water "
+                                 "there does not flow, so a sample would say nothing about "
+                                 "the zones (choose a depth between flowing zones)")
             extra.append((k, depth, comp))
         all_rows = [(k, np.nan, true[k]) for k in range(len(rates))] + extra
         for k, depth, val in all_rows:

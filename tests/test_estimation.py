@@ -225,3 +225,9 @@ def test_mixing_weights_of_depth_samples_match_synthetic_values():
     comp = mixing.wellbore_composition(flows, result.model.geometry, [45.0], sw.CONC["arsenic"])
     k = np.flatnonzero(d.depth == 45.0)[0]
     np.testing.assert_allclose(d.value[k], comp[0, 0], rtol=1e-12)
+
+
+def test_synthetic_depth_sample_in_stagnant_water_is_refused():
+    # above the intake nothing flows: a sample there would be a NaN "result"
+    with pytest.raises(ModelError, match="15 m during step S5"):
+        sw.project(depth_samples=[("S5", 15.0)])
