@@ -330,7 +330,8 @@ def parse_scenario(raw: dict, index: int, project: Project, file: str = "project
         changes.append(f"static heads {raw['lower_heads']} lower")
     blend = _parse_blend(raw["blend"], project, file, f"{pre}.blend") if "blend" in raw else None
     if blend is not None:
-        changes.append(f"blend {raw['blend']['rate']}")
+        parts = ", ".join(f"{k} {v}" for k, v in raw["blend"].items() if k != "rate")
+        changes.append(f"blend {raw['blend']['rate']} ({parts})")
     margin = alpha = None
     if "margin" in raw:
         margin = _number(raw["margin"], file, f"{pre}.margin", 0.0, 1.0, True,

@@ -1,0 +1,129 @@
+"""The report section comparing what-if scenarios (seal, redevelop, intake, heads, blend).
+
+:func:`scenario_section` turns a :class:`~blendq.scenarios.Comparison` into a
+:class:`~blendq.document.Section` with key ``"scenarios"``: a sentence naming the option with the
+widest operating window, the comparison table in display units, and the chart.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from blendq.analytes import get_analyte
+from blendq.document import Figure, Paragraph, Section, Table
+from blendq.scenarios import BASE_NAME, Comparison
+from blendq.units import DISPLAY_UNITS, display_unit_label, from_base
+
+
+def _rate_text(value: float, units: str) -> str:
+    """A rate [m^3/d] in the display unit, whole numbers from 100 up."""
+    unit = DISPLAY_UNITS[units]["rate"]
+    x = float(from_base(value, "rate", unit))
+    return f"{x:,.0f} {display_unit_label(unit)}" if abs(x) >= 100 else \
+        f"{x:.3g} {display_unit_label(unit)}"
+
+
+def _conc_text(analyte: str, values) -> tuple[str, str]:
+    unit = get_analyte(analyte).display_unit
+    lo, med, hi = (float(v) for v in from_base(np.asarray(values, float), "concentration", unit))
+    if not np.isfinite(med):
+        return "-", "-"
+    return f"{med:.3g} {unit}", f"{lo:.3g} to {hi:.3g} {unit}"
+
+
+def comparison_display_table(comparison: Comparison, units: str = "US",
+                             interval: float = 0.9) -> pd.DataFrame:
+    """The comparison in display units, one row per scenario, as text cells."""
+    rows = []
+    analytes = comparison.results[0].prediction.analytes if comparison.results else []
+    for res, (_, r) in zip(comparison.results, comparison.table.iterrows(), strict=True):
+        w = res.window
+        window = " and ".join(f"{_rate_text(lo, units)} to "
+                              f"{_rate_text(hi, units)}"
+                              for lo, hi, _, _ in w.intervals) or "none"
+        row = {
+            "Option": r["scenario"],
+            "Changes": r["changes"],
+            "Operating window": window,
+            "Width": _rate_text(r["window_width"], units),
+            "Recommended": ("-" if w.recommended is None
+                            else _rate_text(w.recommended, units)),
+            "Pumping-level yield": (("at least " if r["yield_beyond_grid"] else "")
+                                    + _rate_text(r["yield"], units)),
+        }
+        if res.scenario.blend is not None:
+            row["Delivered"] = ("-" if w.recommended is None
+                                else _rate_text(r["delivered"], units))
+        else:
+            row["Delivered"] = row["Recommended"]
+        for a in analytes:
+            med, band = _conc_text(a, [r[f"{a}_lower"], r[f"{a}_median"], r[f"{a}_upper"]])
+            label = get_analyte(a).label()
+            row[f"{label} median"] = med
+            row[f"{label} {interval:.0%} band"] = band
+        row["Window limited by"] = (r["upper_end_set_by"] if w.intervals
+                                    else w.reason_empty or "no rate meets every criterion")
+        rows.append(row)
+    return pd.DataFrame(rows)
+
+
+def widest_sentence(comparison: Comparison, units: str = "US") -> str:
+    """A sentence naming the option with the widest operating window."""
+    t = comparison.table
+    if t.empty or not (t["window_width"] > 0).any() and not (t["n_intervals"] > 0).any():
+        return "No option compared here opens an operating window."
+    k = int(np.argmax(t["window_width"].to_numpy(float)))
+    name = t["scenario"].iloc[k]
+    width = _rate_text(t["window_width"].iloc[k], units)
+    base = t[t["scenario"] == BASE_NAME]
+    if name == BASE_NAME:
+        return (f"None of the options widens the operating window: the base case has the widest "
+                f"({width}).")
+    text = f'"{name}" opens the widest operating window ({width}'
+    if len(base):
+        text += f" against {_rate_text(base['window_width'].iloc[0], units)} as tested"
+    return text + ")."
+
+
+def scenario_section(analysis, comparison: Comparison, units: str = "US") -> Section:
+    """The report section comparing scenarios.
+
+    Parameters
+    ----------
+    analysis : blendq.pipeline.Analysis
+    comparison : Comparison
+        From :func:`blendq.scenarios.compare`.
+    units : {"US", "SI"}
+
+    Returns
+    -------
+    Section
+        Key ``"scenarios"``.
+    """
+    s = analysis.project.settings
+    blocks = [
+        Paragraph(widest_sentence(comparison, units)),
+        Paragraph("Each option is the calibrated well model with the changes listed, evaluated "
+                  "with the same Monte Carlo draws and rate grid as the base case, so that the "
+                  "differences come from the changes alone. Rates are the well's own pumping "
+                  "rate; a blend adds its rate to what is delivered. The pumping-level yield is "
+                  "the largest rate at which the pumping level stays above the intake plus the "
+                  "submergence. Options are planning estimates: sealing, redevelopment and pump "
+                  "changes need a licensed professional's review and field confirmation."),
+        Table(comparison_display_table(comparison, units, s.interval),
+              "Options compared at the recommended rate of each (median and band of the "
+              "delivered concentration)."),
+    ]
+    try:
+        from blendq.charts.scenarios import scenario_chart, window_summary
+    except ImportError:  # charts are optional for the text outputs
+        pass
+    else:
+        blocks.append(Figure(
+            "Median delivered quality against the well's pumping rate for each option, with the "
+            "limit and the operating margin; beneath, each option's operating window (which "
+            "also accounts for the prediction bands), recommended rate and pumping-level yield.",
+            alt="Operating windows: " + "; ".join(window_summary(comparison, units)),
+            figure=scenario_chart(comparison, analysis.limits, units)))
+    return Section("Options compared", tuple(blocks), "scenarios")
