@@ -135,6 +135,18 @@ def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
+def rendered(caption: str, figure, dpi: float = 150.0) -> Figure:
+    """A document figure rendered once to PNG and SVG (then closed), so the HTML page, the PDF
+    and the chart files reuse the same bytes instead of drawing the chart again each time."""
+    import io
+
+    png = io.BytesIO()
+    figure.savefig(png, format="png", dpi=dpi, metadata={"Software": None})
+    svg = io.StringIO()
+    figure.savefig(svg, format="svg", metadata={"Date": None, "Creator": None})
+    return Figure(caption, png=png.getvalue(), svg=svg.getvalue())
+
+
 def sample_use_blocks(a: Analysis) -> list:
     """What the fit did with the samples the review flagged."""
     use = a.sample_use
@@ -191,13 +203,13 @@ def step_drawdown_section(a: Analysis, units: str) -> Section:
     try:
         from blendq.charts import stepdrawdown as sd_charts
 
-        blocks.append(Figure("Specific drawdown against rate with the fitted well-loss lines.",
-                             figure=sd_charts.specific_drawdown_chart(res, units)))
-        blocks.append(Figure("Drawdown against rate: steps, fits and the linear part.",
-                             figure=sd_charts.drawdown_rate_chart(res, units)))
+        blocks.append(rendered("Specific drawdown against rate with the fitted well-loss lines.",
+                               sd_charts.specific_drawdown_chart(res, units)))
+        blocks.append(rendered("Drawdown against rate: steps, fits and the linear part.",
+                               sd_charts.drawdown_rate_chart(res, units)))
         if res.record is not None:
-            blocks.append(Figure("Water-level record with each step's extrapolation.",
-                                 figure=sd_charts.step_record_chart(res, units)))
+            blocks.append(rendered("Water-level record with each step's extrapolation.",
+                                   sd_charts.step_record_chart(res, units)))
     except ImportError:
         pass
     return Section("Step-drawdown test and well condition", tuple(blocks), "stepdrawdown")
@@ -210,18 +222,18 @@ def _charts(a: Analysis, units: str) -> list[Figure]:
         return []
     s = a.project.settings
     figs = [
-        Figure("Discharge quality against pumping rate: median, band, limits, the step samples "
+        rendered("Discharge quality against pumping rate: median, band, limits, the step samples "
                "and the operating window.",
-               figure=quality.quality_vs_rate(a.prediction, a.window, a.limits, s.margin,
+               quality.quality_vs_rate(a.prediction, a.window, a.limits, s.margin,
                                               s.interval, a.project, units=units)),
-        Figure("Share of the discharge from each zone against pumping rate.",
-               figure=quality.zone_shares(a.prediction, a.project.zone_names, a.window)),
-        Figure(f"Pumping level against rate after {s.horizon:g} days of pumping (the operating "
+        rendered("Share of the discharge from each zone against pumping rate.",
+               quality.zone_shares(a.prediction, a.project.zone_names, a.window, units=units)),
+        rendered(f"Pumping level against rate after {s.horizon:g} days of pumping (the operating "
                "horizon), with the intake and screen limits. The measured step levels are from "
                "the hours-long test and so lie above the long-term prediction.",
-               figure=quality.pumping_level(a.prediction, a.project, a.window, units=units)),
-        Figure("Zone estimates with intervals; unresolved zones as the range the data allow.",
-               figure=quality.zone_estimates(a.zones, a.prediction.analytes)),
+               quality.pumping_level(a.prediction, a.project, a.window, units=units)),
+        rendered("Zone estimates with intervals; unresolved zones as the range the data allow.",
+               quality.zone_estimates(a.zones, a.prediction.analytes)),
     ]
     return figs
 
@@ -361,13 +373,8 @@ def output_files(a: Analysis, units: str = "US", created: str = "") -> dict[str,
         "tables/qa_findings.csv": to_csv_safe(a.qa.findings),
     }
     for k, block in enumerate(b for sec in doc.sections for b in sec.blocks if isinstance(b, Figure)):
-        png = block.png_bytes()
-        if png:
-            files[f"charts/chart_{k + 1}.png"] = png
-        if block.figure is not None:
-            import io
-
-            buf = io.StringIO()
-            block.figure.savefig(buf, format="svg", metadata={"Date": None})
-            files[f"charts/chart_{k + 1}.svg"] = buf.getvalue()
+        if block.png is not None:
+            files[f"charts/chart_{k + 1}.png"] = block.png
+        if block.svg is not None:
+            files[f"charts/chart_{k + 1}.svg"] = block.svg
     return files
