@@ -223,13 +223,14 @@ def _coverage_project(seed, joint_fit):
 @pytest.mark.slow
 def test_interval_coverage_fixed_hydraulics():
     # 200 seeded experiments x 4 zones: the 90 % zone-table interval must contain the truth in
-    # 85-95 % of resolved cases (binomial sd of the rate ~1.1 % if independent)
+    # 85-95 % of the cases where the table shows one (verdict "resolved" or "weakly resolved";
+    # binomial sd of the rate ~1.1 % if independent)
     hits = []
     for seed in range(200):
         result = fit(_coverage_project(seed, False), FitOptions(fit_hydraulics=False))
         table = diagnostics.zone_table(result, uncertainty.monte_carlo(result, 200, seed=seed),
                                        interval=0.90)
-        resolved = (table["verdict"] == "resolved").to_numpy()
+        resolved = (table["verdict"] != "not resolved").to_numpy()
         truth = sw.CONC["nitrate"]
         inside = (table["lower"].to_numpy() <= truth) & (truth <= table["upper"].to_numpy())
         hits.extend(inside[resolved])
@@ -244,7 +245,7 @@ def test_interval_coverage_joint_fit():
     for seed in range(40):
         result = fit(_coverage_project(seed, True))
         table = diagnostics.zone_table(result, uncertainty.monte_carlo(result, 200, seed=seed))
-        resolved = (table["verdict"] == "resolved").to_numpy()
+        resolved = (table["verdict"] != "not resolved").to_numpy()
         truth = sw.CONC["nitrate"]
         inside = (table["lower"].to_numpy() <= truth) & (truth <= table["upper"].to_numpy())
         hits.extend(inside[resolved])
