@@ -21,7 +21,7 @@ from blendq.analytes import get_analyte, normalise_basis, to_canonical
 from blendq.errors import InputError
 from blendq.project import TABLE_COLUMNS, Project
 from blendq.project_file import read_project_file
-from blendq.table_reader import Table, located, read_table, split_unit_basis
+from blendq.table_reader import Table, located, one_line, read_table, split_unit_basis
 
 
 def _steps(t: Table) -> pd.DataFrame:
@@ -260,6 +260,14 @@ def load_project(path: str | Path) -> Project:
     -----
     The format is described in ``docs/input-files.md``. Reading never writes to any file.
     """
+    try:
+        return _load(path)
+    except InputError as err:  # a cell or key may hold a line break: keep the message one line
+        raise InputError(one_line(err.message), file=one_line(err.file or "") or None,
+                         row=err.row, field=one_line(err.field or "") or None) from None
+
+
+def _load(path: str | Path) -> Project:
     head = read_project_file(path)
     files = {"project": head.path.name} | {k: v[1] for k, v in head.tables.items()}
     tables = {k: read_table(p, lbl, k) for k, (p, lbl) in head.tables.items()}

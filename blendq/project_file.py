@@ -17,7 +17,7 @@ from blendq.analytes import get_analyte, normalise_basis
 from blendq.errors import InputError
 from blendq.limits import Limit, limit_set
 from blendq.project import TABLE_COLUMNS, Settings, Well, Zone
-from blendq.table_reader import located, one_line, split_unit_basis
+from blendq.table_reader import located, split_unit_basis
 from blendq.units import parse_quantity
 
 try:  # Python 3.11+
@@ -79,8 +79,7 @@ class _Section:
         self.data, self.where, self.file, self.used = data, where, file, set()
 
     def error(self, key: str, message: str) -> InputError:
-        return InputError(one_line(message), file=self.file,
-                          field=f"{self.where}.{key}" if self.where else key)
+        return InputError(message, file=self.file, field=f"{self.where}.{key}" if self.where else key)
 
     def get(self, key: str, default=_MISSING):
         self.used.add(key)

@@ -73,13 +73,16 @@ _FLAGS = {"true": True, "yes": True, "y": True, "1": True, "t": True, "<": True,
 _DOT_GROUPS = re.compile(r"^[-+]?[1-9]\d{0,2}(?:\.\d{3})+$")
 # digits with "," or "." between groups of three, e.g. "1,200", "1.200,5", "1,200.5"
 _GROUPED = re.compile(r"^[-+]?\d{1,3}(?:[.,]\d{3})+(?:[.,]\d+)?$")
+# characters that end a line for str.splitlines() or a terminal, and other C0/C1 controls
+_CONTROL = re.compile("[\x00-\x08\x0a-\x1f\x7f-\x9f\u2028\u2029]")
 _NOT_FINITE = {"nan", "inf", "+inf", "-inf", "infinity", "-infinity", "+infinity"}
 _NO_NUMBER = {"", "nd", "n.d.", "<dl", "<rl", "<mdl", "bdl"}
 
 
 def one_line(message: str) -> str:
-    """``message`` with line breaks shown as ``\\n`` so that an error stays on one line."""
-    return message.replace("\r\n", "\\n").replace("\n", "\\n").replace("\r", "\\n")
+    """``message`` with line breaks and other control characters escaped (``\\n``,
+    ``\\x1e``), so that an error prints as one line whatever a cell held."""
+    return _CONTROL.sub(lambda m: repr(m.group())[1:-1], message)
 
 
 def located(err: InputError, file: str | None, row: int | None, field: str | None,
@@ -88,7 +91,7 @@ def located(err: InputError, file: str | None, row: int | None, field: str | Non
     message = err.message
     if text is not None and str(text) not in message:
         message = f'received "{text}": {message}'
-    return InputError(one_line(message), file=err.file or file, row=err.row if err.row is not None else row,
+    return InputError(message, file=err.file or file, row=err.row if err.row is not None else row,
                       field=err.field or field)
 
 
@@ -167,7 +170,7 @@ class Table:
     decimal_comma: bool = False
 
     def error(self, row: int | None, column: str | None, message: str) -> InputError:
-        return InputError(one_line(message), file=self.label, row=row, field=column)
+        return InputError(message, file=self.label, row=row, field=column)
 
     def unit(self, column: str) -> str | None:
         return self.columns[column][1] if column in self.columns else None

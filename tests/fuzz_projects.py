@@ -1,0 +1,173 @@
+"""Hypothesis strategies for fuzzing: random mutations of the good Quillmarsh test project.
+
+A generated project is a dict of relative file name -> bytes: the files of
+``tests/data/projects/quillmarsh_us`` with one to four mutations applied. Mutations replace a
+table cell with random text, numbers or unicode; drop or rename a column; scramble a header
+unit; change, delete or break a value of ``project.toml``; swap a file's delimiter or encoding.
+Used by tests/test_fuzz_loader.py and tests/test_fuzz_cli.py.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import os
+from pathlib import Path
+
+from hypothesis import strategies as st
+
+US = Path(__file__).parent / "data" / "projects" / "quillmarsh_us"
+TABLES = ("steps.csv", "lab/samples.csv", "flowlogs.csv", "levels.csv", "field.csv")
+BASE = {rel: (US / rel).read_bytes() for rel in ("project.toml",) + TABLES}
+
+#: examples per fuzz test: BLENDQ_FUZZ_EXAMPLES=2000 for the full run
+FUZZ_EXAMPLES = int(os.environ.get("BLENDQ_FUZZ_EXAMPLES", "100"))
+
+_SPECIAL_CELLS = ["", " ", "ND", "nd", "<0.5", "< 0.5", "<", "<<1", "1,200", "1.200,5", "1e308",
+                  "-1e308", "1e309", "1e-320", "NaN", "nan", "-inf", "Infinity", "yes", "no",
+                  "true", "2025-13-01", "2025-04-08T25:00", "2025-04-08 09:55Z",
+                  "2025-04-08T09:55+14:00", "0", "-0", "-1", "0.0", "mg/L", "gpm", "µg/L",
+                  "mg/L as N", "as NO3", "5%", "-5%", "%", "=1+1", '"', "'", "\\", "\x00",
+                  "\u2212" + "5", "１２", "٣", "ⅷ", "S1", "S9", "nitrate", "NO3", "As", "QW3-S3",
+                  "\n", "a\r\nb", "🌊"]
+_UNITS = ["gpm", "L/s", "m3/d", "ft", "m", "min", "h", "d", "degC", "degF", "K", "uS/cm",
+          "mS/cm", "mg/L", "ug/L", "meq/L", "NTU", "FNU", "%", "", "-", "furlong", "m3",
+          "gal", "s2/ft5", "1/0", "m**-1000", "ft^3000", "[", "]", "gpm as N", "mg/L as NO3",
+          "delta_degC", "ppm", "ppb", "dimensionless", "radian", "mol/L"]
+_COLUMNS = ["step", "rate", "start", "end", "duration", "pumping_level", "recovered_before",
+            "sample_id", "analyte", "value", "unit", "basis", "nondetect", "detection_limit",
+            "uncertainty", "qualifier", "sampled_at", "analyzed_at", "duplicate_of", "depth",
+            "preservation", "log", "upward_flow", "time", "level", "temperature", "ph",
+            "specific_conductance", "dissolved_oxygen", "turbidity", "", "Rate [gpm]"]
+
+cell_text = st.one_of(
+    st.sampled_from(_SPECIAL_CELLS),
+    st.text(max_size=12),
+    st.floats(allow_nan=True, allow_infinity=True).map(repr),
+    st.floats(allow_nan=False, allow_infinity=False).map(lambda x: f"{x:.6g}"),
+    st.integers(-10**6, 10**12).map(str),
+)
+
+toml_literal = st.one_of(
+    st.text(max_size=16).map(json.dumps),  # a TOML basic string (JSON escapes are TOML escapes)
+    st.sampled_from(['"0 ft"', '"-5 ft"', '"1e308 gpm"', '"nan ft"', '"inf m"', '"1,200 ft"',
+                     '"350 ft2/d"', '"12 ft/d"', '"5 gpm"', '"5"', '"ft"', '""', '"US"', '"SI"',
+                     '"auto"', '"flowlog"', '"given"', '"steps.csv"', '"../steps.csv"',
+                     '"lab"', '"missing.csv"', '"field.csv"', '"project.toml"', "nan", "inf",
+                     "-inf", "true", "false", "0", "-1", "1e308", "[]", '["WHO", "EU"]',
+                     '["nope"]', "{}", '{ a = 1 }', "2025-04-08", "[[1]]", '"\\u0000"']),
+    st.integers(-10**20, 10**20).map(str),
+    st.floats(allow_nan=False, allow_infinity=False).map(repr),
+)
+
+
+def _rows(data: bytes) -> tuple[list[list[str]], str]:
+    text = data.decode("utf-8-sig")
+    return list(csv.reader(io.StringIO(text, newline=""))), ","
+
+
+def _csv(rows: list[list[str]], delimiter: str = ",") -> bytes:
+    out = io.StringIO(newline="")
+    csv.writer(out, delimiter=delimiter, lineterminator="\n").writerows(rows)
+    return out.getvalue().encode("utf-8", "surrogatepass")
+
+
+@st.composite
+def _cell_mutation(draw, files):
+    rel = draw(st.sampled_from(TABLES))
+    rows, _ = _rows(files[rel])
+    r = draw(st.integers(0, len(rows) - 1))
+    c = draw(st.integers(0, max(len(rows[r]) - 1, 0)))
+    if rows[r]:
+        rows[r][c] = draw(cell_text)
+    files[rel] = _csv(rows)
+
+
+@st.composite
+def _column_mutation(draw, files):
+    rel = draw(st.sampled_from(TABLES))
+    rows, _ = _rows(files[rel])
+    if not rows[0]:
+        return
+    c = draw(st.integers(0, len(rows[0]) - 1))
+    action = draw(st.sampled_from(["drop", "rename", "unit", "duplicate", "column_of_text"]))
+    if action == "drop":
+        rows = [row[:c] + row[c + 1:] for row in rows]
+    elif action == "rename":
+        rows[0][c] = draw(st.one_of(st.sampled_from(_COLUMNS), st.text(max_size=10)))
+    elif action == "unit":
+        name = rows[0][c].split("[")[0].strip()
+        rows[0][c] = f"{name} [{draw(st.one_of(st.sampled_from(_UNITS), st.text(max_size=6)))}]"
+    elif action == "duplicate":
+        rows = [row + [row[c] if c < len(row) else ""] for row in rows]
+    else:
+        value = draw(cell_text)
+        rows = [rows[0]] + [row[:c] + [value] + row[c + 1:] for row in rows[1:]]
+    files[rel] = _csv(rows)
+
+
+@st.composite
+def _file_mutation(draw, files):
+    rel = draw(st.sampled_from(TABLES))
+    action = draw(st.sampled_from(["semicolon", "tab", "latin1", "truncate", "empty", "remove",
+                                   "crlf", "bom", "garbage"]))
+    data = files[rel]
+    if action in ("semicolon", "tab"):
+        files[rel] = _csv(_rows(data)[0], ";" if action == "semicolon" else "\t")
+    elif action == "latin1":
+        files[rel] = data.decode("utf-8", "replace").replace("S1", "Sé").encode("latin-1", "replace")
+    elif action == "truncate":
+        files[rel] = data[: draw(st.integers(0, len(data)))]
+    elif action == "empty":
+        files[rel] = b""
+    elif action == "remove":
+        del files[rel]
+    elif action == "crlf":
+        files[rel] = data.replace(b"\n", b"\r\n")
+    elif action == "bom":
+        files[rel] = b"\xef\xbb\xbf" + data
+    else:
+        files[rel] = draw(st.binary(max_size=64))
+
+
+@st.composite
+def _toml_mutation(draw, files):
+    lines = files["project.toml"].decode("utf-8").split("\n")
+    keyed = [i for i, line in enumerate(lines) if " = " in line and not line.startswith("#")]
+    action = draw(st.sampled_from(["value", "value", "value", "delete", "section", "garbage"]))
+    if action in ("value", "delete"):
+        i = draw(st.sampled_from(keyed))
+        key = lines[i].split(" = ")[0]
+        lines[i] = "" if action == "delete" else f"{key} = {draw(toml_literal)}"
+    elif action == "section":
+        heads = [i for i, line in enumerate(lines) if line.startswith("[")]
+        i = draw(st.sampled_from(heads))
+        lines[i] = draw(st.sampled_from(["[[zones]]", "[well]", "[settings]", "[extra]",
+                                         "[[limits]]", "[[scenarios]]", "[tables]", ""]))
+    else:
+        i = draw(st.integers(0, len(lines)))
+        lines.insert(i, draw(st.text(max_size=20)))
+    files["project.toml"] = "\n".join(lines).encode("utf-8", "surrogatepass")
+
+
+@st.composite
+def mutated_projects(draw) -> dict[str, bytes]:
+    """Files of a randomly mutated copy of the good project (relative name -> bytes)."""
+    files = dict(BASE)
+    for _ in range(draw(st.integers(1, 4))):
+        kind = draw(st.sampled_from([_cell_mutation, _cell_mutation, _column_mutation,
+                                     _toml_mutation, _toml_mutation]))
+        draw(kind(files))
+    if draw(st.integers(0, 4)) == 0:  # whole-file changes last: the others need readable CSV
+        draw(_file_mutation(files))
+    return files
+
+
+def write_project(folder: Path, files: dict[str, bytes]) -> Path:
+    """Write the files of a generated project into ``folder`` (created) and return it."""
+    for rel, data in files.items():
+        path = folder / rel
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_bytes(data)
+    return folder
