@@ -46,13 +46,25 @@ def _steps(t: Table) -> pd.DataFrame:
                                                "minus start by more than a minute")
             duration = span
         elif start is not None and duration is not None:
-            end = start + pd.Timedelta(days=duration)
+            end = _shifted(t, row, start, duration)
         elif end is not None and duration is not None:
-            start = end - pd.Timedelta(days=duration)
+            start = _shifted(t, row, end, -duration)
         recovered = get("recovered_before")
         out.append([step, rate, start, end, duration, get("pumping_level"),
                     (n == 0) if recovered is None else recovered, row])
     return _frame("steps", out)
+
+
+def _shifted(t: Table, row: int, stamp: pd.Timestamp, days: float) -> pd.Timestamp:
+    """``stamp`` moved by ``days``; a duration that leaves the datetime range is an error."""
+    try:
+        moved = stamp + pd.Timedelta(days=days)
+    except (OverflowError, ValueError):  # pandas' out-of-bounds errors are ValueErrors
+        moved = None
+    if moved is None or not pd.Timestamp.min <= moved <= pd.Timestamp.max:
+        raise t.error(row, "duration", f'"{t.raw(row, "duration")}" is too long (the step '
+                                       "would end outside the years 1678 to 2261)")
+    return moved
 
 
 def _samples(t: Table, steps: dict[str, float]) -> pd.DataFrame:

@@ -142,7 +142,10 @@ def parse_time(text: str) -> pd.Timestamp:
                          '"2025-05-13" or "2025-05-13 14:30")') from None
     if stamp.tzinfo is not None:
         stamp = stamp.astimezone(timezone.utc).replace(tzinfo=None)
-    return pd.Timestamp(stamp)
+    stamp = pd.Timestamp(stamp)
+    if not pd.Timestamp.min <= stamp <= pd.Timestamp.max:  # tables hold nanosecond times
+        raise InputError(f'"{text}" is outside the dates blendq can hold (years 1678 to 2261)')
+    return stamp
 
 
 @dataclass
