@@ -116,8 +116,10 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
     w = a.window
     s = a.project.settings
     if w.empty:
+        options = window_options(a, units)
+        tail = f" Options that could open a window: {'; '.join(options)}." if options else ""
         return (f"No pumping rate meets every limit with the {s.margin:.0%} margin at "
-                f"{1 - s.exceedance_probability:.0%} confidence: {w.reason_empty}.")
+                f"{1 - s.exceedance_probability:.0%} confidence: {w.reason_empty}.{tail}")
     parts = [f"{format_quantity(lo, 'rate', units)} and {format_quantity(hi, 'rate', units)}"
              for lo, hi, _, _ in w.intervals]
     rec = format_quantity(w.recommended, "rate", units) if w.recommended is not None else "none"
@@ -125,6 +127,35 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
             f"(every analyte below {s.margin:.0%} of its limit with at least "
             f"{1 - s.exceedance_probability:.0%} probability, pumping level above the intake "
             f"plus submergence).")
+
+
+def window_options(a: Analysis, units: str = "US") -> list[str]:
+    """Options that could open (or widen) the window, from what binds (planning prompts for
+    the scenario comparison, not results)."""
+    out = []
+    rates = a.window.rates
+    for crit in a.window.criteria:
+        if crit.kind == "quality":
+            analyte = crit.name.split(" ")[0]
+            z = a.zones[a.zones["analyte"] == analyte]
+            if len(z):
+                value = z["estimate"].where(z["estimate"].notna(), z["range_high"])
+                richest = z.loc[value.idxmax(), "zone"]
+                out.append(f"seal, line or case off the {richest} (the richest source of {analyte})")
+            out.append(f"blend with a source lower in {analyte}")
+            ok = crit.ok & (rates > 0)
+            if ok.any() and not ok[-1]:
+                from blendq.units import format_quantity
+
+                out.append(f"a rate at or below {format_quantity(rates[ok].max(), 'rate', units)}"
+                           f" where {analyte} complies")
+        elif crit.kind == "hydraulic" and not np.all(crit.ok[rates > 0]):
+            skins = [(z.skin, z.name) for z in a.project.zones]
+            worst = max(skins)
+            if worst[0] > 0:
+                out.append(f"redevelop the {worst[1]} (skin {worst[0]:g})")
+            out.append("lower the pump intake if the screen and the pump allow")
+    return list(dict.fromkeys(out))
 
 
 def inflow_table(project: Project, rates, horizon: float | None = None) -> pd.DataFrame:

@@ -215,6 +215,14 @@ def step_drawdown_section(a: Analysis, units: str) -> Section:
     return Section("Step-drawdown test and well condition", tuple(blocks), "stepdrawdown")
 
 
+def _scenario_section(a: Analysis, units: str) -> Section:
+    """What-if comparison of the project's scenarios (same draws as the base case)."""
+    from blendq.report_scenarios import scenario_section
+    from blendq.scenarios import compare
+
+    return scenario_section(a, compare(a), units)
+
+
 def _charts(a: Analysis, units: str) -> list[Figure]:
     try:
         from blendq.charts import quality
@@ -313,6 +321,7 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
                   f"Predicted discharge at {format_quantity(rec_rate, 'rate', units)}."),
         ), "window"),
         Section("Charts", tuple(_charts(a, units)) or (Paragraph("Charts unavailable."),), "charts"),
+        *([_scenario_section(a, units)] if p.scenarios else []),
         step_drawdown_section(a, units),
         Section("Assumptions", (BulletList(ASSUMPTIONS),), "assumptions"),
         Section("Methods and references", (

@@ -68,6 +68,25 @@ def comparison_display_table(comparison: Comparison, units: str = "US",
     return pd.DataFrame(rows)
 
 
+def compact_display_table(comparison: Comparison, units: str = "US",
+                          interval: float = 0.9) -> pd.DataFrame:
+    """The comparison with fewer, wider columns for a printed page: the median and band of
+    each analyte in one cell, the delivered rate beside the recommended one."""
+    full = comparison_display_table(comparison, units, interval)
+    out = full[["Option", "Operating window"]].copy()
+    out["Recommended"] = [rec if rec == dlv else f"{rec} (delivered {dlv})"
+                          for rec, dlv in zip(full["Recommended"], full["Delivered"], strict=True)]
+    out["Pumping-level yield"] = full["Pumping-level yield"]
+    for col in full.columns:
+        if col.endswith(" median"):
+            label = col[: -len(" median")]
+            band = full[f"{label} {interval:.0%} band"]
+            out[f"{label} at recommended rate ({interval:.0%} band)"] = [
+                "-" if m == "-" else f"{m} ({b})" for m, b in zip(full[col], band, strict=True)]
+    out["Window limited by"] = full["Window limited by"]
+    return out
+
+
 def widest_sentence(comparison: Comparison, units: str = "US") -> str:
     """A sentence naming the option with the widest operating window."""
     t = comparison.table
@@ -111,7 +130,7 @@ def scenario_section(analysis, comparison: Comparison, units: str = "US") -> Sec
                   "the largest rate at which the pumping level stays above the intake plus the "
                   "submergence. Options are planning estimates: sealing, redevelopment and pump "
                   "changes need a licensed professional's review and field confirmation."),
-        Table(comparison_display_table(comparison, units, s.interval),
+        Table(compact_display_table(comparison, units, s.interval),
               "Options compared at the recommended rate of each (median and band of the "
               "delivered concentration)."),
     ]

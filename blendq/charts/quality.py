@@ -475,8 +475,11 @@ def zone_estimates(zone_table: pd.DataFrame, analytes: list[str] | None = None,
                               facecolor="#e6e6e6", edgecolor="#555555", hatch="////",
                               linewidth=0.8, label="not resolved: range the data allow")
                 bar.patches[0].set_gid(f"unresolved:{analyte}:{row['zone']}")
-                ax.annotate("not resolved" + (": no upper bound from the data" if open_top else ""),
-                            ((low + high) / 2, y), ha="center", va="center", fontsize=7.5,
+                text = "not resolved" + (": no upper bound from the data" if open_top else "")
+                short = (high - low) < 0.25 * right  # a short bar: label beside it, not on it
+                ax.annotate(text, (high if short else (low + high) / 2, y),
+                            xytext=(4, 0) if short else (0, 0), textcoords="offset points",
+                            ha="left" if short else "center", va="center", fontsize=7.5,
                             bbox=dict(boxstyle="round,pad=0.2", fc="white", ec="#555555",
                                       linewidth=0.6))
                 continue
