@@ -75,7 +75,7 @@ def test_version():
 
 
 @pytest.mark.parametrize("command", ["", "demo", "new", "check", "inflow", "fit", "window",
-                                     "report", "drawdown"])
+                                     "report", "drawdown", "compare"])
 def test_help(command):
     r = run(*([command] if command else []), "--help")
     assert r.exit_code == 0, r.output
@@ -86,7 +86,7 @@ def test_help(command):
 
 def test_help_lists_every_command():
     r = run("--help")
-    for name in ("demo", "new", "check", "inflow", "fit", "window", "report", "drawdown"):
+    for name in ("demo", "new", "check", "inflow", "fit", "window", "report", "drawdown", "compare"):
         assert name in r.stdout
 
 
@@ -282,3 +282,14 @@ def test_report_into_foreign_folder_refused(tmp_path):
     r = run("report", DEMO, "--out", out, "--draws", DRAWS)
     _one_error_line(r)
     assert keep.read_text() == "my own notes"
+
+
+def test_readme_compare():
+    # README: blendq compare my-well --seal "Upper sand" --blend "200 gpm; nitrate=2 mg/L as N;
+    # arsenic=1 ug/L"
+    r = run("compare", DEMO, "--seal", "Upper sand", "--blend",
+            "200 gpm; nitrate=2 mg/L as N; arsenic=1 ug/L", "--draws", "100", "--json")
+    assert r.exit_code == 0, r.output
+    rows = json.loads(r.stdout)
+    text = json.dumps(rows)
+    assert "Base case" in text and "Upper sand" in text
