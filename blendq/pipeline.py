@@ -104,6 +104,7 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
         notes.append("No flow log: drawdown alone identifies only the total conductance and "
                      "the well loss; zone shares come from zone properties (priors).")
     notes.append(f"Pumping level in the window from the {levels.source}: {levels.reason}.")
+    notes += [n + "." for n in sweep.applicable_ratio_rules(s.limit_sets, pred.analytes)[1]]
     return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
                     diagnostics.residual_table(fit), hyd, pred, window, limits, table, skipped,
                     levels, notes)

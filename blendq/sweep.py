@@ -109,7 +109,8 @@ def governing_limits(limits: list[Limit], analytes: list[str]) -> dict[str, Limi
 def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, alpha: float,
                      intake_depth: float, submergence: float, rate_min: float, rate_max: float,
                      demand: float | None = None, top_of_screen: float | None = None,
-                     level_quantile: float | None = None, level_deep=None) -> Window:
+                     level_quantile: float | None = None, level_deep=None,
+                     ratio_rules=()) -> Window:
     """Find the rates that meet every quality and hydraulic criterion.
 
     Parameters
@@ -132,6 +133,10 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
     level_deep : array_like (n_rates,), optional
         Deep-side pumping level [m depth] from another source (the step-drawdown fit) to use
         instead of the zone model's draws.
+    ratio_rules : sequence of RatioRule
+        Combined rules (sum of concentration / value <= 1, WHO and EU nitrate-nitrite); each is
+        tested like an analyte: P(sum > margin) <= alpha. Rules whose analytes are not all
+        predicted are left out (see :func:`applicable_ratio_rules`).
     """
     rates = pred.rates
     crit = []
@@ -142,6 +147,11 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
         p_exc = (pred.concentration[:, :, j] > thr).mean(0)
         crit.append(Criterion(f"{analyte} (P > {margin:g} x limit above {alpha:g})",
                               p_exc <= alpha, "quality"))
+    for rule in ratio_rules:
+        total = sum(pred.concentration[:, :, pred.analytes.index(t.analyte)] / t.canonical()
+                    for t in rule.terms)
+        crit.append(Criterion(f"{rule.authority} {rule.name} (P > {margin:g} above {alpha:g})",
+                              (total > margin).mean(0) <= alpha, "quality"))
     lq = 1 - alpha if level_quantile is None else level_quantile
     if level_deep is not None:
         level = np.asarray(level_deep, float)
@@ -199,6 +209,23 @@ def _why_empty(crit: list[Criterion], rates) -> str:
     return "; ".join(parts)
 
 
+def applicable_ratio_rules(limit_sets, analytes) -> tuple[list, list[str]]:
+    """Ratio rules of the project's limit sets whose analytes are all predicted, and a note for
+    each rule left out."""
+    from blendq.limits import RATIO_RULES
+
+    rules, notes = [], []
+    for name in limit_sets:
+        for rule in RATIO_RULES.get(name, []):
+            missing = [t.analyte for t in rule.terms if t.analyte not in analytes]
+            if missing:
+                notes.append(f"{rule.authority} rule {rule.name} not applied: no prediction of "
+                             f"{', '.join(missing)}")
+            else:
+                rules.append(rule)
+    return rules, notes
+
+
 def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
                alpha: float | None = None, level_deep=None) -> Window:
     """The operating window of a fitted project with its own settings."""
@@ -210,7 +237,8 @@ def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
         pred, limits, s.margin if margin is None else margin,
         s.exceedance_probability if alpha is None else alpha,
         w.pump_intake_depth, w.submergence, w.rate_min, w.rate_max, w.demand,
-        float(project.zone_top.min()) if w.keep_above_screen else None, level_deep=level_deep)
+        float(project.zone_top.min()) if w.keep_above_screen else None, level_deep=level_deep,
+        ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0])
 
 
 def sweep_table(pred: Prediction, limits: dict[str, Limit], margin: float, interval: float,

@@ -157,3 +157,28 @@ def test_rate_grid_and_sweep(fitted):
     assert np.all(table["nitrate_p_exceed_limit"] <= table["nitrate_p_exceed_margin"])
     np.testing.assert_allclose(table[[f"share_{z}" for z in result.zone_names]].sum(axis=1), 1.0,
                                rtol=0.05)
+
+
+def test_who_nitrate_nitrite_ratio_rule_closes_the_window():
+    # WHO GDWQ 4th ed.: nitrate/50 + nitrite/3 <= 1 (both as the ion). 8 mg/L nitrate as N is
+    # 35.41 mg/L NO3 (ratio 0.708); 0.5 mg/L nitrite as N is 1.642 mg/L NO2 (ratio 0.547):
+    # the sum 1.255 breaks the rule although each is under its own guideline value.
+    from blendq.limits import RATIO_RULES, limit_set
+
+    rates = np.linspace(0.0, 100.0, 11)
+    conc = np.zeros((20, 11, 2))
+    conc[:, :, 0] = 8.0
+    conc[:, :, 1] = 0.5
+    pred = Prediction(rates, conc, np.zeros((20, 11)), np.zeros((20, 11, 1)),
+                      np.zeros((20, 11, 1)), ["nitrate", "nitrite"])
+    limits = {lim.analyte: lim for lim in limit_set("WHO")}
+    without = sweep.operating_window(pred, limits, 1.0, 0.05, 100.0, 0.0, 0.0, 1e9)
+    assert not without.empty
+    with_rule = sweep.operating_window(pred, limits, 1.0, 0.05, 100.0, 0.0, 0.0, 1e9,
+                                 ratio_rules=RATIO_RULES["WHO"])
+    assert with_rule.empty
+    assert "nitrite/3" in with_rule.reason_empty
+    # half the nitrite: 0.708 + 0.274 = 0.982 <= 1, the window opens again
+    pred.concentration[:, :, 1] = 0.25
+    assert not sweep.operating_window(pred, limits, 1.0, 0.05, 100.0, 0.0, 0.0, 1e9,
+                                ratio_rules=RATIO_RULES["WHO"]).empty
