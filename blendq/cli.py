@@ -30,7 +30,9 @@ SeedOpt = Annotated[int | None, typer.Option("--seed", help="Random seed (defaul
 
 
 def _fail(message: str, code: int = 2) -> None:
-    typer.echo(f"blendq: error: {message}", err=True)
+    from blendq.table_reader import one_line
+
+    typer.echo(f"blendq: error: {one_line(message)}", err=True)
     raise typer.Exit(code)
 
 

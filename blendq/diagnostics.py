@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-from scipy import optimize, stats
+from scipy import optimize, special
 
 from blendq.estimation import FitResult, solve_concentrations
 from blendq.uncertainty import Draws, linearised_zone_sd
@@ -179,4 +179,4 @@ def hydraulics_table(fit: FitResult) -> pd.DataFrame:
 
 def interval_z(interval: float) -> float:
     """Two-sided standard-normal quantile of a central interval (1.645 for 0.90)."""
-    return float(stats.norm.ppf(0.5 + interval / 2))
+    return float(special.ndtri(0.5 + interval / 2))

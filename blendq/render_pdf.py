@@ -25,6 +25,8 @@ from dataclasses import dataclass, field
 from os import PathLike
 from typing import Any
 
+import numpy as np
+
 from blendq import __version__
 from blendq.document import (
     BulletList,
@@ -350,10 +352,14 @@ class _Builder:
                 for k, s in enumerate(lines)
             ]
             return [_Piece(h + 4.0, ops, space_before=10.0, keep_with_next=True), *caption]
-        from matplotlib.image import imread
+        from PIL import Image  # matplotlib's own image dependency
 
-        pixels = imread(io.BytesIO(png), format="png")
-        dpi = FIGURE_DPI if block.png is None else 150.0  # ready PNGs: assume 150 dpi
+        # 8-bit RGB straight from the PNG: no float conversion or masking on the way in
+        with Image.open(io.BytesIO(png)) as img:
+            pixels = np.asarray(img.convert("RGB"))
+            # ready PNGs: the resolution they were saved at (matplotlib writes it), else 150 dpi
+            saved = float(img.info.get("dpi", (150.0, 150.0))[0]) or 150.0
+        dpi = FIGURE_DPI if block.png is None else saved
         w = min(self.width, pixels.shape[1] / dpi * 72.0)
         h = w * pixels.shape[0] / pixels.shape[1]
         max_h = self.frame_height * 2.0 / 3.0
@@ -622,7 +628,8 @@ def _write(doc: Document, target: Any, paper: str) -> int:
         "Creator": f"blendq {__version__}",
         "CreationDate": None,
     }
-    with matplotlib.rc_context({"pdf.fonttype": 42}), warnings.catch_warnings():
+    # Type 3 fonts: subset by matplotlib itself, a good deal faster to write than TrueType
+    with matplotlib.rc_context({"pdf.fonttype": 3}), warnings.catch_warnings():
         warnings.filterwarnings("ignore", message=r"Glyph .* missing from")
         with PdfPages(target, metadata=metadata) as pdf:
             for number, placed in enumerate(pages, start=1):

@@ -135,16 +135,19 @@ def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
-def rendered(caption: str, figure, dpi: float = 150.0) -> Figure:
-    """A document figure rendered once to PNG and SVG (then closed), so the HTML page, the PDF
-    and the chart files reuse the same bytes instead of drawing the chart again each time."""
+def rendered(caption: str, figure, dpi: float = 110.0, svg: bool = True) -> Figure:
+    """A document figure rendered once to PNG (and SVG for the decision charts), so the HTML
+    page, the PDF and the chart files reuse the same bytes instead of drawing it again."""
     import io
 
     png = io.BytesIO()
     figure.savefig(png, format="png", dpi=dpi, metadata={"Software": None})
-    svg = io.StringIO()
-    figure.savefig(svg, format="svg", metadata={"Date": None, "Creator": None})
-    return Figure(caption, png=png.getvalue(), svg=svg.getvalue())
+    text = None
+    if svg:
+        buf = io.StringIO()
+        figure.savefig(buf, format="svg", metadata={"Date": None, "Creator": None})
+        text = buf.getvalue()
+    return Figure(caption, png=png.getvalue(), svg=text)
 
 
 def sample_use_blocks(a: Analysis) -> list:
@@ -204,12 +207,12 @@ def step_drawdown_section(a: Analysis, units: str) -> Section:
         from blendq.charts import stepdrawdown as sd_charts
 
         blocks.append(rendered("Specific drawdown against rate with the fitted well-loss lines.",
-                               sd_charts.specific_drawdown_chart(res, units)))
+                               sd_charts.specific_drawdown_chart(res, units), svg=False))
         blocks.append(rendered("Drawdown against rate: steps, fits and the linear part.",
-                               sd_charts.drawdown_rate_chart(res, units)))
+                               sd_charts.drawdown_rate_chart(res, units), svg=False))
         if res.record is not None:
             blocks.append(rendered("Water-level record with each step's extrapolation.",
-                                   sd_charts.step_record_chart(res, units)))
+                                   sd_charts.step_record_chart(res, units), svg=False))
     except ImportError:
         pass
     return Section("Step-drawdown test and well condition", tuple(blocks), "stepdrawdown")
@@ -220,7 +223,11 @@ def _scenario_section(a: Analysis, units: str) -> Section:
     from blendq.report_scenarios import scenario_section
     from blendq.scenarios import compare
 
-    return scenario_section(a, compare(a), units)
+    section = scenario_section(a, compare(a), units)
+    blocks = tuple(rendered(b.caption, b.figure, svg=False)
+                   if isinstance(b, Figure) and b.figure is not None else b
+                   for b in section.blocks)
+    return Section(section.heading, blocks, section.key)
 
 
 def _charts(a: Analysis, units: str) -> list[Figure]:

@@ -84,9 +84,14 @@ basis = "as N"
 authority = "Example water system"
 kind = "operating target"
 
-# Options to compare later (optional); each needs a unique name:
+# Options to compare (optional; see docs/scenarios.md); each needs a unique name:
 # [[scenarios]]
-# name = "seal lower gravel"
+# name = "Seal the lower gravel"
+# seal = ["Lower gravel"]
+#
+# [[scenarios]]
+# name = "Blend 100 gpm from the spring"
+# blend = { rate = "100 gpm", nitrate = "1 mg/L as N", arsenic = "0.5 ug/L" }
 """
 
 TABLES = {

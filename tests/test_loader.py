@@ -103,7 +103,7 @@ def test_settings_limits_scenarios(us):
     assert own.canonical() == pytest.approx(8.0, rel=1e-12)
     assert us.limits_for("nitrate")[0] is own  # strictest first
     assert [sc["name"] for sc in us.scenarios] == ["seal lower zone", "blend with spring"]
-    assert us.scenarios[0]["zone"] == "Lower"
+    assert us.scenarios[0]["seal"] == ["Lower"]
 
 
 def test_steps(us):
