@@ -135,19 +135,62 @@ def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
-def rendered(caption: str, figure, dpi: float = 110.0, svg: bool = True) -> Figure:
-    """A document figure rendered once to PNG (and SVG for the decision charts), so the HTML
-    page, the PDF and the chart files reuse the same bytes instead of drawing it again."""
+CHART_DPI = 110.0  #: resolution of the chart images [dots per inch]
+
+
+def rendered(caption: str, figure, svg: bool = True) -> Figure:
+    """A document figure that still holds its matplotlib figure; :func:`render_all` turns it
+    into PNG (and SVG for the decision charts) once, for the HTML page, the PDF and the files."""
+    figure.blendq_svg = svg
+    return Figure(caption, figure=figure)
+
+
+_PENDING: list = []
+
+
+def _render_one(index: int) -> tuple[bytes, str | None]:
     import io
 
+    fig = _PENDING[index]
     png = io.BytesIO()
-    figure.savefig(png, format="png", dpi=dpi, metadata={"Software": None})
+    fig.savefig(png, format="png", dpi=CHART_DPI, metadata={"Software": None})
     text = None
-    if svg:
+    if getattr(fig, "blendq_svg", False):
         buf = io.StringIO()
-        figure.savefig(buf, format="svg", metadata={"Date": None, "Creator": None})
+        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": None})
         text = buf.getvalue()
-    return Figure(caption, png=png.getvalue(), svg=text)
+    return png.getvalue(), text
+
+
+def _render_figures(figures: list) -> list[tuple[bytes, str | None]]:
+    """Draw the figures to PNG/SVG bytes, on two processes where the system can fork (drawing
+    is the slowest part of a report); the bytes are the same either way."""
+    global _PENDING
+    _PENDING = list(figures)
+    try:
+        import multiprocessing as mp
+        import os
+
+        if len(figures) > 1 and "fork" in mp.get_all_start_methods() and (os.cpu_count() or 1) > 1:
+            with mp.get_context("fork").Pool(2) as pool:
+                return pool.map(_render_one, range(len(figures)), chunksize=1)
+        return [_render_one(i) for i in range(len(figures))]
+    finally:
+        _PENDING = []
+
+
+def render_all(sections: list[Section]) -> list[Section]:
+    """Replace every figure that still holds a matplotlib figure by its rendered bytes."""
+    pending = [b for sec in sections for b in sec.blocks
+               if isinstance(b, Figure) and b.figure is not None]
+    done = dict(zip((id(b) for b in pending),
+                    _render_figures([b.figure for b in pending]), strict=True))
+    out = []
+    for sec in sections:
+        blocks = tuple(Figure(b.caption, alt=b.alt, png=done[id(b)][0], svg=done[id(b)][1])
+                       if id(b) in done else b for b in sec.blocks)
+        out.append(Section(sec.heading, blocks, sec.key))
+    return out
 
 
 def sample_use_blocks(a: Analysis) -> list:
@@ -224,10 +267,10 @@ def _scenario_section(a: Analysis, units: str) -> Section:
     from blendq.scenarios import compare
 
     section = scenario_section(a, compare(a), units)
-    blocks = tuple(rendered(b.caption, b.figure, svg=False)
-                   if isinstance(b, Figure) and b.figure is not None else b
-                   for b in section.blocks)
-    return Section(section.heading, blocks, section.key)
+    for b in section.blocks:
+        if isinstance(b, Figure) and b.figure is not None:
+            b.figure.blendq_svg = False
+    return section
 
 
 def _charts(a: Analysis, units: str) -> list[Figure]:
@@ -345,7 +388,7 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
         ), "methods"),
     ]
     return Document(title=f"Discharge quality and operating window: {w.name}",
-                    subtitle=p.name, created=created, sections=tuple(sections))
+                    subtitle=p.name, created=created, sections=tuple(render_all(sections)))
 
 
 def summary_json(a: Analysis, units: str = "US") -> dict:
