@@ -200,12 +200,30 @@ _BASIS_ALIASES = {
 _KEY_OK = re.compile(r"^[a-z][a-z0-9_+\-]*$")
 
 
+_NAME_BASIS = re.compile(r"^\s*(nitrate|nitrite|no3|no2)\s*(?:-\s*n|\(?\s*as\s+(n|no3|no2)\s*\)?)\s*$",
+                         re.IGNORECASE)
+
+
+def implied_basis(name: str) -> str | None:
+    """The reporting basis a name states, if any: "Nitrate-N", "NO3-N" and "nitrate as N" say
+    "N"; "nitrate as NO3" says "NO3"; a plain "nitrate" says nothing (None)."""
+    m = _NAME_BASIS.match(str(name))
+    if not m:
+        return None
+    if m.group(2) is None:  # the "-N" form: nitrate-nitrogen
+        return "N"
+    return m.group(2).upper()
+
+
 def get_analyte(name: str) -> Analyte:
     """Look up an analyte by key or common spelling; an unknown name gives a plain analyte.
 
     Unknown names are allowed (a user may track any constituent) but must be simple words.
     """
     raw = str(name).strip()
+    stated = _NAME_BASIS.match(raw)
+    if stated:  # "Nitrate-N", "nitrate (as N)": the species, whatever the basis
+        raw = stated.group(1)
     key = raw.lower().replace(" ", "_") if raw.lower() not in _ALIASES else _ALIASES[raw.lower()]
     key = _ALIASES.get(key, key)
     if key in CATALOGUE:

@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from blendq.analytes import get_analyte, normalise_basis, to_canonical
+from blendq.analytes import get_analyte, implied_basis, normalise_basis, to_canonical
 from blendq.errors import InputError
 from blendq.project import TABLE_COLUMNS, Project
 from blendq.project_file import read_project_file
@@ -88,6 +88,13 @@ def _samples(t: Table, steps: dict[str, float]) -> pd.DataFrame:
             raise t.error(row, "unit", "is empty; give the unit of the value")
         _, unit, unit_basis = split_unit_basis(unit_text)
         basis_text = get("basis") or ""
+        named = implied_basis(t.raw(row, "analyte"))
+        if named and not (basis_text or unit_basis):
+            basis_text = named  # "Nitrate-N", "NO3-N", "nitrate as N": the name states it
+        elif named and _row_basis(t, row, analyte, basis_text or unit_basis) != \
+                _row_basis(t, row, analyte, named):
+            raise t.error(row, "basis", f'"{basis_text or unit_basis}" disagrees with the '
+                                        f'analyte name "{t.raw(row, "analyte")}"')
         basis = _row_basis(t, row, analyte, basis_text or unit_basis)
         if unit_basis and basis_text and _row_basis(t, row, analyte, unit_basis) != basis:
             raise t.error(row, "basis", f'"{basis_text}" disagrees with the unit "{unit_text}"')

@@ -226,3 +226,15 @@ def test_meq_of_uncharged_analyte_raises():
 def test_labels():
     assert get_analyte("nitrate").label() == "Nitrate (as N)"
     assert get_analyte("arsenic").label() == "Arsenic"
+
+
+@pytest.mark.parametrize("name, basis", [("Nitrate-N", "N"), ("NO3-N", "N"), ("nitrate as N", "N"),
+                                         ("Nitrate (as N)", "N"), ("nitrate as NO3", "NO3"),
+                                         ("Nitrite-N", "N"), ("nitrate", None), ("arsenic", None)])
+def test_names_that_state_a_basis(name, basis):
+    # "NO3-N" is nitrate-nitrogen, i.e. nitrate reported as N (NRC 1995 usage)
+    from blendq.analytes import implied_basis
+
+    assert implied_basis(name) == basis
+    if basis is not None:
+        assert get_analyte(name).key in ("nitrate", "nitrite")

@@ -353,3 +353,36 @@ def test_nondetect_forms_agree(tmp_path):
     with pytest.raises(InputError, match="differs from the limit in the value"):
         _with_samples(tmp_path / "y", "sample_id,step,analyte,value,unit,detection_limit\n"
                                       "a,S1,arsenic,<1,ug/L,2\n")
+
+
+def _samples_with(tmp_path, analyte: str, basis: str):
+    import shutil
+
+    folder = tmp_path / "p"
+    shutil.copytree(Path(__file__).parent / "data" / "projects" / "quillmarsh_us", folder)
+    f = folder / "lab" / "samples.csv"
+    lines = f.read_text(encoding="utf-8").splitlines()
+    head = lines[0].split(",")
+    row = lines[1].split(",")
+    row[head.index("analyte")] = analyte
+    row[head.index("basis")] = basis
+    row[head.index("unit")] = "mg/L"
+    lines[1] = ",".join(row)
+    f.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return folder
+
+
+def test_analyte_name_states_the_basis(tmp_path):
+    # "NO3-N" is nitrate reported as nitrogen: no basis column needed (NRC 1995 usage)
+    p = load_project(_samples_with(tmp_path, "NO3-N", ""))
+    first = p.samples.iloc[0]
+    assert first["analyte"] == "nitrate"
+    assert first["reported_basis"] in ("N", "as N")
+    assert first["value"] == pytest.approx(first["reported_value"], rel=1e-12)
+
+
+def test_analyte_name_and_basis_disagree(tmp_path):
+    with pytest.raises(InputError) as err:
+        load_project(_samples_with(tmp_path, "NO3-N", "as NO3"))
+    text = str(err.value)
+    assert "samples.csv" in text and "row 1" in text and "basis" in text
