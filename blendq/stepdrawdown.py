@@ -38,7 +38,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy import linalg, optimize, stats
+from scipy import linalg, optimize, special
 
 from blendq.errors import InputError, ModelError
 from blendq.units import Q_, from_base
@@ -710,8 +710,9 @@ def predict_drawdown(fit: StepFit, rate, *, static_level: float | None = None,
     elif method == "delta":
         grad = _equation_gradient(q.ravel(), values, fit.model)
         sd = np.sqrt(np.maximum(np.einsum("ri,ij,rj->r", grad, cov, grad), 0.0)).reshape(q.shape)
-        z = stats.t.ppf(tail, fit.dof) if (fit.dof > 0 and not fit.absolute_sigma) else \
-            stats.norm.ppf(tail)
+        # Student t and normal quantiles (scipy.special: the same functions scipy.stats uses)
+        z = special.stdtrit(fit.dof, tail) if (fit.dof > 0 and not fit.absolute_sigma) else \
+            special.ndtri(tail)
         low, high = mean - z * sd, mean + z * sd
     elif method == "draws":
         rng = np.random.default_rng(seed)
