@@ -1017,8 +1017,20 @@ def analyse_step_test(steps: pd.DataFrame, static_level: float, levels: pd.DataF
         raise InputError(f"static level {static_level!r} must be a finite depth [m]",
                          field="static_level")
     has_levels = levels is not None and len(levels) > 0
+    if method == "auto" and has_levels:
+        # equal time where the record allows it; otherwise the ends of the steps, and say why
+        kw = dict(elapsed=elapsed, late_fraction=late_fraction, rorabaugh=rorabaugh,
+                  steps_file=steps_file, levels_file=levels_file)
+        try:
+            return analyse_step_test(steps, static_level, levels, method="equal time", **kw)
+        except InputError as exc:
+            result = analyse_step_test(steps, static_level, levels, method="end of step", **kw)
+            result.warnings.append(f"the water-level record does not allow the equal-time "
+                                   f"(Hantush-Bierschenk) analysis ({exc}); drawdown read at "
+                                   "the end of each step instead")
+            return result
     if method == "auto":
-        method = "equal time" if has_levels else "end of step"
+        method = "end of step"
     if method == "equal time" and not has_levels:
         raise InputError("the equal-time (Hantush-Bierschenk) analysis needs the water-level "
                          "record", file=levels_file)

@@ -497,3 +497,18 @@ def test_equal_time_needs_levels_and_fitting_elapsed_time():
         bad = steps.copy()
         bad.loc[0, "start"] = pd.NaT
         sd.analyse_step_test(bad, 10.0, make_levels(t, 10.0 + s))
+
+
+def test_auto_falls_back_to_step_ends_when_the_record_is_too_sparse():
+    # chained steps with one reading per step: no log-time extrapolation is possible, so "auto"
+    # reads each step at its end and says why (the explicit "equal time" still refuses)
+    rates = np.array([500.0, 1000.0, 1500.0])
+    starts = np.array([0.0, 0.125, 0.25])
+    s = 2.4e-3 * rates + 3e-7 * rates**2
+    steps = make_steps(rates, starts, starts + 0.125, pumping_level=12.0 + s)
+    sparse = make_levels(starts + 0.1, 12.0 + s)
+    with pytest.raises(InputError):
+        sd.analyse_step_test(steps, 12.0, sparse, method="equal time")
+    res = sd.analyse_step_test(steps, 12.0, sparse)
+    assert res.method == "end of step"
+    assert any("does not allow the equal-time" in w for w in res.warnings)
