@@ -1017,8 +1017,9 @@ def analyse_step_test(steps: pd.DataFrame, static_level: float, levels: pd.DataF
         raise InputError(f"static level {static_level!r} must be a finite depth [m]",
                          field="static_level")
     has_levels = levels is not None and len(levels) > 0
-    if method == "auto" and has_levels:
+    if method == "auto" and has_levels and elapsed is None:
         # equal time where the record allows it; otherwise the ends of the steps, and say why
+        # (an explicit elapsed time asks for the equal-time analysis: no fallback then)
         kw = dict(elapsed=elapsed, late_fraction=late_fraction, rorabaugh=rorabaugh,
                   steps_file=steps_file, levels_file=levels_file)
         try:
