@@ -1031,7 +1031,7 @@ def analyse_step_test(steps: pd.DataFrame, static_level: float, levels: pd.DataF
                                    "the end of each step instead")
             return result
     if method == "auto":
-        method = "end of step"
+        method = "equal time" if has_levels else "end of step"
     if method == "equal time" and not has_levels:
         raise InputError("the equal-time (Hantush-Bierschenk) analysis needs the water-level "
                          "record", file=levels_file)
