@@ -21,6 +21,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from blendq import qp
+from blendq.errors import ModelError
 from blendq.estimation import FitResult, Problem, row_weights, scaled_pinv, solve_concentrations
 
 
@@ -221,42 +222,50 @@ def intake_weights(flows, geometry) -> np.ndarray:
     Konikow, Hornberger, Halford and Hanson (2009) USGS TM 6-A30 (intraborehole flow between
     the nodes of a multi-node well).
     """
+    flows = np.asarray(flows, float)
+    parts = intake_weights_by_zone([flows[..., i] for i in range(flows.shape[-1])], geometry)
+    return np.stack(parts, axis=-1)
+
+
+def intake_weights_by_zone(flows: list, geometry) -> list:
+    """:func:`intake_weights` on one array per zone (any common shape), returning one array of
+    weights per zone: the layout a sweep uses so that every pass runs over contiguous memory."""
     from blendq.mixing import INTAKE
 
-    flows = np.asarray(flows, float)
     nodes = geometry.nodes
     k_in = nodes.index(INTAKE)
-    rate = flows.sum(-1)
-    inflow = np.maximum(flows, 0.0)
+    rate = sum(flows)
+    inflow = [np.maximum(f, 0.0) for f in flows]
     # downward flow in the segment below node k, k = 0 .. N-2 (node inflow summed from the top)
     seg_down = []
-    running = np.zeros(flows.shape[:-1])
+    running = np.zeros_like(rate)
     for code in nodes[:-1]:
-        running = running + (-rate if code == INTAKE else flows[..., code])
+        running = running + (-rate if code == INTAKE else flows[code])
         seg_down.append(running)
-    out = np.zeros(flows.shape)
+    out = [np.zeros_like(rate) for _ in flows]
     with np.errstate(invalid="ignore", divide="ignore"):
         # above the intake: walk up from it; water moves down
-        passed = np.ones(flows.shape[:-1])
+        passed = np.ones_like(rate)
         for k in range(k_in - 1, -1, -1):
             i = nodes[k]
             from_above = np.maximum(seg_down[k - 1], 0.0) if k > 0 else 0.0
-            total = from_above + inflow[..., i]
+            total = from_above + inflow[i]
             passed = passed * np.where(total > 0, np.maximum(seg_down[k], 0.0) / total, 0.0)
-            out[..., i] = inflow[..., i] * passed
+            out[i] = inflow[i] * passed
         # below the intake: walk down from it; water moves up
-        passed = np.ones(flows.shape[:-1])
+        passed = np.ones_like(rate)
         for k in range(k_in + 1, len(nodes)):
             i = nodes[k]
             from_below = np.maximum(-seg_down[k], 0.0) if k < len(nodes) - 1 else 0.0
-            total = from_below + inflow[..., i]
+            total = from_below + inflow[i]
             passed = passed * np.where(total > 0, np.maximum(-seg_down[k - 1], 0.0) / total, 0.0)
-            out[..., i] = inflow[..., i] * passed
+            out[i] = inflow[i] * passed
         # the intake mixes what arrives from both sides; part of it may pass on to a thief
         arriving = (np.maximum(seg_down[k_in - 1], 0.0) if k_in > 0 else 0.0) + (
             np.maximum(-seg_down[k_in], 0.0) if k_in < len(nodes) - 1 else 0.0)
-        pumped = (rate > 1e-9 * np.abs(flows).sum(-1)) & (arriving > 0)
-        return np.where(pumped[..., None], out / arriving[..., None], np.nan)
+        scale = sum(np.abs(f) for f in flows)
+        pumped = (rate > 1e-9 * scale) & (arriving > 0)
+        return [np.where(pumped, o / arriving, np.nan) for o in out]
 
 
 @dataclass(frozen=True)
@@ -329,6 +338,29 @@ def predict_summary(fit: FitResult, draws: Draws, rates, probs=(0.05, 0.5, 0.95)
     level_q = np.empty((len(probs), n_r))
     share_med = np.empty((n_r, draws.zone_values.shape[1])) if shares else None
     step = max(1, int(chunk_points) // max(draws.n_draws, 1))
+    if not shares and not np.any(np.asarray(model.nonlinear_loss) > 0) \
+            and np.ndim(model.conductance) == 2:
+        # linear zones: closed-form wellbore head, rates by draws, one contiguous array a zone
+        g = np.asarray(model.conductance, float)
+        h0 = np.broadcast_to(np.asarray(model.static_head, float), g.shape)
+        c_well = np.broadcast_to(np.asarray(model.well_loss, float), g.shape[:1])
+        g_sum, gh_sum = g.sum(1), (g * h0).sum(1)
+        zv = np.asarray(draws.zone_values, float)
+        if np.any(g_sum <= 0):
+            raise ModelError("no open zone: the sum of zone conductances is zero")
+        for lo in range(0, n_r, step):
+            r = rates[lo:lo + step, None]
+            hw = (gh_sum - r) / g_sum  # (rates, draws)
+            flows = [g[:, i] * (h0[:, i] - hw) for i in range(g.shape[1])]
+            w = intake_weights_by_zone(flows, model.geometry)
+            for a in range(n_a):
+                conc = sum(w[i] * zv[:, i, a] for i in range(g.shape[1]))
+                conc_q[:, lo:lo + step, a] = np.quantile(conc, probs, axis=1)
+                for t in range(len(thr)):
+                    exc[t, lo:lo + step, a] = (conc > thr[t, a]).mean(1)
+            level = c_well * r**2 - hw
+            level_q[:, lo:lo + step] = np.quantile(level, probs, axis=1)
+        return PredictionSummary(rates, probs, conc_q, exc, level_q, None, list(draws.analytes))
     for lo in range(0, n_r, step):
         r = rates[lo:lo + step]
         state = model.state(r)
