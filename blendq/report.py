@@ -162,35 +162,47 @@ def _render_one(index: int) -> tuple[bytes, str | None]:
     return png.getvalue(), text
 
 
-def _render_figures(figures: list) -> list[tuple[bytes, str | None]]:
-    """Draw the figures to PNG/SVG bytes, on two processes where the system can fork (drawing
-    is the slowest part of a report); the bytes are the same either way."""
-    global _PENDING
-    _PENDING = list(figures)
-    try:
-        import multiprocessing as mp
-        import os
-
-        if len(figures) > 1 and "fork" in mp.get_all_start_methods() and (os.cpu_count() or 1) > 1:
-            with mp.get_context("fork").Pool(2) as pool:
-                return pool.map(_render_one, range(len(figures)), chunksize=1)
-        return [_render_one(i) for i in range(len(figures))]
-    finally:
-        _PENDING = []
+def _pending(sections: list[Section]) -> list[Figure]:
+    return [b for sec in sections for b in sec.blocks
+            if isinstance(b, Figure) and b.figure is not None]
 
 
-def render_all(sections: list[Section]) -> list[Section]:
-    """Replace every figure that still holds a matplotlib figure by its rendered bytes."""
-    pending = [b for sec in sections for b in sec.blocks
-               if isinstance(b, Figure) and b.figure is not None]
-    done = dict(zip((id(b) for b in pending),
-                    _render_figures([b.figure for b in pending]), strict=True))
+def _replace(sections: list[Section], done: dict) -> list[Section]:
     out = []
     for sec in sections:
         blocks = tuple(Figure(b.caption, alt=b.alt, png=done[id(b)][0], svg=done[id(b)][1])
                        if id(b) in done else b for b in sec.blocks)
         out.append(Section(sec.heading, blocks, sec.key))
     return out
+
+
+def render_all(sections: list[Section], meanwhile=None) -> tuple[list[Section], object]:
+    """Replace every figure that still holds a matplotlib figure by its rendered bytes.
+
+    Drawing is the slowest part of a report, so where the system can fork the figures are
+    drawn by two worker processes while this process runs ``meanwhile()`` (other work that
+    does not need the drawings); the bytes are the same either way. Returns the sections and
+    what ``meanwhile`` returned.
+    """
+    global _PENDING
+    pending = _pending(sections)
+    _PENDING = [b.figure for b in pending]
+    try:
+        import multiprocessing as mp
+        import os
+
+        if len(pending) > 1 and "fork" in mp.get_all_start_methods() and (os.cpu_count() or 1) > 1:
+            with mp.get_context("fork").Pool(2) as pool:
+                job = pool.map_async(_render_one, range(len(pending)), chunksize=1)
+                extra = meanwhile() if meanwhile is not None else None
+                results = job.get()
+        else:
+            results = [_render_one(i) for i in range(len(pending))]
+            extra = meanwhile() if meanwhile is not None else None
+    finally:
+        _PENDING = []
+    done = dict(zip((id(b) for b in pending), results, strict=True))
+    return _replace(sections, done), extra
 
 
 def sample_use_blocks(a: Analysis) -> list:
@@ -371,7 +383,7 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
                   f"Predicted discharge at {format_quantity(rec_rate, 'rate', units)}."),
         ), "window"),
         Section("Charts", tuple(_charts(a, units)) or (Paragraph("Charts unavailable."),), "charts"),
-        *([_scenario_section(a, units)] if p.scenarios else []),
+        # the scenario section is built while the charts above are being drawn
         step_drawdown_section(a, units),
         Section("Assumptions", (BulletList(ASSUMPTIONS),), "assumptions"),
         Section("Methods and references", (
@@ -387,8 +399,23 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
             Paragraph(f"blendq {__version__}."),
         ), "methods"),
     ]
+    def meanwhile():
+        extra = []
+        if p.scenarios:
+            global _PENDING
+            scen = _scenario_section(a, units)
+            _PENDING = [b.figure for b in _pending([scen])]
+            done = {id(b): _render_one(i) for i, b in enumerate(_pending([scen]))}
+            extra = _replace([scen], done)
+        import matplotlib.backends.backend_pdf  # noqa: F401 - warm the PDF writer meanwhile
+
+        return extra
+
+    sections, extra = render_all(sections, meanwhile)
+    k = next(i for i, sec in enumerate(sections) if sec.key == "charts") + 1
+    sections[k:k] = extra
     return Document(title=f"Discharge quality and operating window: {w.name}",
-                    subtitle=p.name, created=created, sections=tuple(render_all(sections)))
+                    subtitle=p.name, created=created, sections=tuple(sections))
 
 
 def summary_json(a: Analysis, units: str = "US") -> dict:
