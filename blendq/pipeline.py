@@ -103,10 +103,19 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     if project.flowlogs.empty:
         notes.append("No flow log: drawdown alone identifies only the total conductance and "
                      "the well loss; zone shares come from zone properties (priors).")
+    residuals = diagnostics.residual_table(fit)
+    table_outliers = residuals[residuals["outlier"] & residuals["analyte"].isin(limits)]
+    if len(table_outliers):
+        listed = ", ".join(f"{r.sample_id} ({r.analyte}, step {r.step})"
+                           for r in table_outliers.itertuples())
+        notes.insert(0, f"The fit does not reproduce {len(table_outliers)} lab result(s) of an "
+                        f"analyte with a limit: {listed}. The model and these results disagree; "
+                        "explain them (sampling, lab, or a zone the model lacks) before relying "
+                        "on the window.")
     notes.append(f"Pumping level in the window from the {levels.source}: {levels.reason}.")
     notes += [n + "." for n in sweep.applicable_ratio_rules(s.limit_sets, pred.analytes)[1]]
     return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
-                    diagnostics.residual_table(fit), hyd, pred, window, limits, table, skipped,
+                    residuals, hyd, pred, window, limits, table, skipped,
                     levels, notes)
 
 
@@ -124,10 +133,14 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
     parts = [f"{format_quantity(lo, 'rate', units)} and {format_quantity(hi, 'rate', units)}"
              for lo, hi, _, _ in w.intervals]
     rec = format_quantity(w.recommended, "rate", units) if w.recommended is not None else "none"
+    res = a.residuals
+    n_out = int((res["outlier"] & res["analyte"].isin(a.limits)).sum()) if len(res) else 0
+    caveat = (f" Provisional: the fit does not reproduce {n_out} lab result(s); see the notes."
+              if n_out else "")
     return (f"Operate between {' and between '.join(parts)}; recommended rate {rec} "
             f"(every analyte below {s.margin:.0%} of its limit with at least "
             f"{1 - s.exceedance_probability:.0%} probability, pumping level above the intake "
-            f"plus submergence).")
+            f"plus submergence).{caveat}")
 
 
 def window_options(a: Analysis, units: str = "US") -> list[str]:

@@ -539,8 +539,20 @@ def evaluate(analysis, scenario: Scenario) -> ScenarioResult:
         else scenario.exceedance_probability
     intake = w.pump_intake_depth if scenario.intake_depth is None else scenario.intake_depth
     top = float(project.zone_top.min()) if w.keep_above_screen else None
+    from blendq.sweep import applicable_ratio_rules, measured_exceedances
+
+    same_water = scenario.blend is None and not scenario.changes_well
+    # the base case's step-test levels and measured exceedances describe the well as tested:
+    # they carry over only to options that change neither the well nor the water
+    lc = analysis.step_drawdown
+    level_deep = lc.level_deep if (lc is not None and not scenario.changes_well
+                                   and scenario.intake_depth is None) else None
+    extra = measured_exceedances(analysis.fit, analysis.limits, margin, rates) \
+        if same_water else []
     window = operating_window(pred, analysis.limits, margin, alpha, intake, w.submergence,
-                              w.rate_min, w.rate_max, w.demand, top)
+                              w.rate_min, w.rate_max, w.demand, top, level_deep=level_deep,
+                              ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
+                              extra_criteria=extra)
     allowed = intake - w.submergence if top is None else min(intake - w.submergence, top)
     level = np.quantile(pred.pumping_level, 1 - alpha, axis=0)
     y, beyond = pumping_level_yield(rates, level, allowed)

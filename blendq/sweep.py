@@ -110,7 +110,7 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
                      intake_depth: float, submergence: float, rate_min: float, rate_max: float,
                      demand: float | None = None, top_of_screen: float | None = None,
                      level_quantile: float | None = None, level_deep=None,
-                     ratio_rules=()) -> Window:
+                     ratio_rules=(), extra_criteria=()) -> Window:
     """Find the rates that meet every quality and hydraulic criterion.
 
     Parameters
@@ -137,6 +137,8 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
         Combined rules (sum of concentration / value <= 1, WHO and EU nitrate-nitrite); each is
         tested like an analyte: P(sum > margin) <= alpha. Rules whose analytes are not all
         predicted are left out (see :func:`applicable_ratio_rules`).
+    extra_criteria : sequence of Criterion
+        Further conditions on the same rate grid (see :func:`measured_exceedances`).
     """
     rates = pred.rates
     crit = []
@@ -152,6 +154,7 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
                     for t in rule.terms)
         crit.append(Criterion(f"{rule.authority} {rule.name} (P > {margin:g} above {alpha:g})",
                               (total > margin).mean(0) <= alpha, "quality"))
+    crit.extend(extra_criteria)
     lq = 1 - alpha if level_quantile is None else level_quantile
     if level_deep is not None:
         level = np.asarray(level_deep, float)
@@ -226,6 +229,39 @@ def applicable_ratio_rules(limit_sets, analytes) -> tuple[list, list[str]]:
     return rules, notes
 
 
+def measured_exceedances(fit: FitResult, limits: dict[str, Limit], margin: float,
+                         rates) -> list[Criterion]:
+    """Rates near a step whose discharge sample exceeded margin x limit.
+
+    A measured exceedance overrides the model near the rate where it was measured: the rates
+    closer to that step's rate than half the distance to the neighbouring step rates (10 % of
+    the rate for a lone step) fail, whatever the fitted blend says there (common practice: a
+    rate at which a sample broke the target is not recommended on the strength of a model).
+    """
+    rates = np.asarray(rates, float)
+    out = []
+    for analyte, d in fit.problem.data.items():
+        if analyte not in limits:
+            continue
+        thr = margin * limits[analyte].canonical()
+        discharge = ~np.isfinite(d.depth)
+        # every step sampled at the discharge, non-detects included, bounds the neighbourhood
+        step_rates = np.unique(np.concatenate([d.rate[discharge],
+                                               d.cens_rate[~np.isfinite(d.cens_depth)]]))
+        bad = np.unique(d.rate[discharge & (d.value > thr)])
+        if len(bad) == 0:
+            continue
+        ok = np.ones(len(rates), bool)
+        for q in bad:
+            others = step_rates[step_rates != q]
+            half = 0.5 * np.min(np.abs(others - q)) if len(others) else 0.1 * q
+            ok &= np.abs(rates - q) > half
+        steps = ", ".join(sorted(set(d.step[discharge & (d.value > thr)].astype(str))))
+        out.append(Criterion(f"{analyte} measured above {margin:g} x limit (step {steps})", ok,
+                             "quality"))
+    return out
+
+
 def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
                alpha: float | None = None, level_deep=None) -> Window:
     """The operating window of a fitted project with its own settings."""
@@ -238,7 +274,9 @@ def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
         s.exceedance_probability if alpha is None else alpha,
         w.pump_intake_depth, w.submergence, w.rate_min, w.rate_max, w.demand,
         float(project.zone_top.min()) if w.keep_above_screen else None, level_deep=level_deep,
-        ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0])
+        ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
+        extra_criteria=measured_exceedances(fit, limits, s.margin if margin is None else margin,
+                                            pred.rates))
 
 
 def sweep_table(pred: Prediction, limits: dict[str, Limit], margin: float, interval: float,

@@ -182,3 +182,25 @@ def test_who_nitrate_nitrite_ratio_rule_closes_the_window():
     pred.concentration[:, :, 1] = 0.25
     assert not sweep.operating_window(pred, limits, 1.0, 0.05, 100.0, 0.0, 0.0, 1e9,
                                 ratio_rules=RATIO_RULES["WHO"]).empty
+
+
+def test_a_measured_exceedance_closes_the_rates_around_its_step():
+    # the model may miss a sample; a rate at which a sample broke margin x limit is not
+    # recommended on the strength of the model (common practice)
+    from blendq.synthetic import synthetic_project
+
+    g, h0 = np.array([150.0, 300.0]), np.array([-10.0, -11.0])
+    p = synthetic_project(g, h0, [20, 40], [25, 50], {"nitrate": np.array([6.0, 1.0])},
+                          [300.0, 800.0, 1500.0], 15.0)
+    p.samples.loc[p.samples["step"] == "S1", "value"] = 8.5  # above 0.8 x 10 mg/L
+    res = fit(p, FitOptions(fit_hydraulics=False))
+    limits = {"nitrate": Limit("nitrate", 10.0, "mg/L", "N", "test", "MCL", "40 CFR 141.62")}
+    rates = np.linspace(0.0, 2000.0, 201)
+    crit = sweep.measured_exceedances(res, limits, 0.8, rates)
+    assert len(crit) == 1 and "step S1" in crit[0].name
+    # S1 at 300 m3/d, nearest other step at 800: the rates within 250 of 300 fail
+    fails = rates[~crit[0].ok]
+    assert fails.min() == pytest.approx(50.0) and fails.max() == pytest.approx(550.0)
+    assert crit[0].ok[rates > 550].all() and crit[0].ok[rates < 50].all()
+    # no sample above the margin: no criterion
+    assert sweep.measured_exceedances(res, limits, 0.9, rates) == []
