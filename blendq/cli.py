@@ -460,4 +460,8 @@ def compare_cmd(
 
 def main() -> None:
     """Console-script entry point."""
+    import signal
+
+    if hasattr(signal, "SIGPIPE"):  # `blendq ... | head`: stop quietly when the reader goes
+        signal.signal(signal.SIGPIPE, signal.SIG_DFL)
     app()

@@ -149,6 +149,8 @@ def window_options(a: Analysis, units: str = "US") -> list[str]:
     out = []
     rates = a.window.rates
     for crit in a.window.criteria:
+        if np.all(crit.ok[rates > 0]):
+            continue  # this criterion holds everywhere: nothing to open
         if crit.kind == "quality":
             analyte = crit.name.split(" ")[0]
             z = a.zones[a.zones["analyte"] == analyte]
@@ -163,7 +165,7 @@ def window_options(a: Analysis, units: str = "US") -> list[str]:
 
                 out.append(f"a rate at or below {format_quantity(rates[ok].max(), 'rate', units)}"
                            f" where {analyte} complies")
-        elif crit.kind == "hydraulic" and not np.all(crit.ok[rates > 0]):
+        elif crit.kind == "hydraulic":
             skins = [(z.skin, z.name) for z in a.project.zones]
             worst = max(skins)
             if worst[0] > 0:

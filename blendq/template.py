@@ -102,8 +102,10 @@ step,rate [gpm],start,duration [min],pumping_level [ft]
 """,
     "samples.csv": """\
 sample_id,step,analyte,value,unit,basis,detection_limit,uncertainty,sampled_at,analyzed_at,duplicate_of,depth [ft],preservation
-EX-1,1,nitrate,36.0,mg/L,as NO3,0.1,5%,2025-06-02 09:55,2025-06-03 09:00,,,cooled
-EX-2,2,nitrate,<0.1,mg/L,as N,,,2025-06-02 11:55,2025-06-03 09:00,,,cooled
+EX-1,1,nitrate,23.2,mg/L,as NO3,0.1,5%,2025-06-02 09:55,2025-06-03 09:00,,,cooled
+EX-1,1,arsenic,5.3,ug/L,,1,0.4,2025-06-02 09:55,2025-06-20,,,HNO3 pH<2
+EX-2,2,nitrate,4.9,mg/L,as N,0.02,5%,2025-06-02 11:55,2025-06-03 09:00,,,cooled
+EX-2,2,arsenic,5.5,ug/L,,1,0.4,2025-06-02 11:55,2025-06-20,,,HNO3 pH<2
 """,
     "flowlogs.csv": """\
 log,step,rate [gpm],depth [ft],upward_flow [gpm]
