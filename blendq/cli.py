@@ -149,17 +149,22 @@ def inflow_cmd(
                                    "rows": table.to_dict(orient="records")}, indent=2))
             return
         from rich.console import Console
+        from rich.markup import escape
         from rich.table import Table
 
-        t = Table(title=f"{proj.well.name}: zone inflow from zone properties")
-        for col in (f"rate [{du['rate']}]", "zone", f"zone flow [{du['rate']}]", "share",
-                    f"pumping level [{du['length']} depth]", "note"):
-            t.add_column(col)
+        from blendq.units import display_unit_label
+
+        t = Table(title=escape(f"{proj.well.name}: zone inflow from zone properties"))
+
+        ru, lu = display_unit_label(du["rate"]), display_unit_label(du["length"])
+        for col in (f"rate [{ru}]", "zone", f"zone flow [{ru}]", "share",
+                    f"pumping level [{lu} depth]", "note"):
+            t.add_column(escape(col), overflow="fold")  # "[m³/d]" is not rich markup
         for _, r in table.iterrows():
             note = "takes water from the well" if r["zone_flow"] < 0 else ""
             if r["dewatered"]:
                 note = (note + "; " if note else "") + "pumping level below zone top"
-            t.add_row(f"{r['rate']:.4g}", str(r["zone"]), f"{r['zone_flow']:.3g}",
+            t.add_row(f"{r['rate']:.4g}", escape(str(r["zone"])), f"{r['zone_flow']:.3g}",
                       f"{r['share']:.1%}", f"{r['pumping_level']:.4g}", note)
         Console().print(t)
         typer.echo(_caution_line())
@@ -228,14 +233,15 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
                                        "units": "mg/L canonical basis; m2/d; m"}))
             return
         from rich.console import Console
+        from rich.markup import escape
         from rich.table import Table
 
-        t = Table(title=f"{proj.well.name}: zone water quality")
+        t = Table(title=escape(f"{proj.well.name}: zone water quality"))
         df = _zone_rows(a, u)
         for col in df.columns:
-            t.add_column(str(col))
+            t.add_column(escape(str(col)))
         for _, r in df.iterrows():
-            t.add_row(*[str(v) for v in r])
+            t.add_row(*[escape(str(v)) for v in r])
         Console().print(t)
         use = a.sample_use
         flagged = use[use["reason"].astype(str) != ""]

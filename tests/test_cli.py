@@ -293,3 +293,19 @@ def test_readme_compare():
     rows = json.loads(r.stdout)
     text = json.dumps(rows)
     assert "Base case" in text and "Upper sand" in text
+
+
+def test_rich_tables_show_units_and_user_text_literally(tmp_path):
+    # "[m³/d]" in a header and "[bold]" in a zone name are text, not rich markup
+    import shutil
+
+    folder = tmp_path / "w"
+    shutil.copytree(DEMO, folder)
+    toml = folder / "project.toml"
+    toml.write_text(toml.read_text(encoding="utf-8").replace('name = "Deep sand"',
+                                                            'name = "[bold]Deep sand"'),
+                    encoding="utf-8")
+    r = run("inflow", folder, "--rates", "300 gpm", "--units", "SI")
+    assert r.exit_code == 0, r.output
+    assert "rate [m³/d]" in r.stdout.replace("\n", " ") or "[m³/d]" in r.stdout
+    assert "[bold]Deep" in r.stdout
