@@ -38,7 +38,7 @@ import pandas as pd
 
 from blendq.errors import InputError
 
-__all__ = ["MARKER_NAME", "to_csv_safe", "to_json_stable", "write_outputs"]
+__all__ = ["MARKER_NAME", "check_output_folder", "to_csv_safe", "to_json_stable", "write_outputs"]
 
 #: Name of the file that marks a folder as written by blendq (and so replaceable by it).
 MARKER_NAME = ".blendq-output"
@@ -128,6 +128,15 @@ def _check_replaceable(folder: Path) -> None:
         f"(no {MARKER_NAME} file in it); choose a new folder or empty this one",
         field="output folder",
     )
+
+
+def check_output_folder(folder: str | os.PathLike[str],
+                        protect: Iterable[str | os.PathLike[str]] = ()) -> None:
+    """Raise :class:`InputError` now if :func:`write_outputs` would refuse ``folder`` later
+    (so a long run does not end in a refusal)."""
+    folder = Path(folder)
+    _check_protected(folder, protect)
+    _check_replaceable(folder)
 
 
 def _fresh_sibling(folder: Path, tag: str) -> Path:
