@@ -181,7 +181,11 @@ def to_base(value: float, unit: str, kind: str) -> float:
     if not _dimension_ok(u, kind):
         raise InputError(f'"{unit}" is not a {kind.replace("_", " ")} unit (expected e.g. '
                          f'{EXAMPLE_UNITS.get(kind, BASE_UNITS[kind])})')
-    return float(Q_(value, u).to(BASE_UNITS[kind]).magnitude)
+    try:
+        return float(Q_(value, u).to(BASE_UNITS[kind]).magnitude)
+    except pint.errors.PintError as exc:  # e.g. a temperature difference where a reading is due
+        raise InputError(f'"{unit}" cannot be read as a {kind.replace("_", " ")} '
+                         f"({BASE_UNITS[kind]}): {exc}") from exc
 
 
 def from_base(value, kind: str, unit: str):

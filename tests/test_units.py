@@ -249,3 +249,11 @@ def test_format_quantity_in_both_systems():
     assert format_quantity(1000.0, "rate", "US") == "183 gpm"
     assert format_quantity(1000.0, "rate", "SI") == "1e+03 m³/d"
     assert format_quantity(3.048, "length", "US", digits=4) == "10 ft"
+
+
+def test_temperature_difference_is_not_a_reading():
+    # found by fuzzing: a "delta_degC" header made pint raise a DimensionalityError
+    with pytest.raises(InputError):
+        to_base(14.6, "delta_degC", "temperature")
+    # a Fahrenheit reading converts: (60 - 32) x 5/9 = 15.556 C (NIST SP 811)
+    assert to_base(60.0, "degF", "temperature") == pytest.approx(15.5556, rel=1e-4)
