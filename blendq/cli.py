@@ -344,7 +344,7 @@ def drawdown_cmd(project: ProjectArg, units: UnitsOpt = "US", as_json: JsonOpt =
 
     def body():
         from blendq.errors import InputError
-        from blendq.stepdrawdown import analyse_step_test
+        from blendq.steptest import analyse_step_test
 
         u = _units(units)
         proj = _load(project)

@@ -54,7 +54,8 @@ def static_level_of(project) -> float | None:
 def check_levels(fit: FitResult, draws: Draws, pred: Prediction, alpha: float,
                  horizon: float) -> LevelCheck:
     """Run the step-drawdown analysis and choose the pumping-level source for the window."""
-    from blendq.stepdrawdown import analyse_step_test, compare_with_zone_model
+    from blendq.stepdrawdown import compare_with_zone_model
+    from blendq.steptest import analyse_step_test
 
     project = fit.problem.project
     static = static_level_of(project)

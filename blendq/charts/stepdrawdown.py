@@ -31,7 +31,7 @@ from blendq.units import DISPLAY_UNITS, Q_, display_unit_label, from_base
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
 
-    from blendq.stepdrawdown import StepDrawdownResult
+    from blendq.steptest import StepDrawdownResult
 
 # Okabe-Ito colours
 BLACK, BLUE, VERMILLION, SKY, GREY = "#000000", "#0072B2", "#D55E00", "#56B4E9", "#9a9a9a"
