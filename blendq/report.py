@@ -394,7 +394,10 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
                       "by variable projection with scipy least_squares on flow-log, level, "
                       "prior and quality residuals. Uncertainty: linearised covariance and a "
                       "seeded Monte Carlo refit. Window: P(C > margin x limit) <= alpha for "
-                      "every analyte, pumping level above intake plus submergence, pump range."),
+                      "every analyte, pumping level above intake plus submergence, pump range; "
+                      "rates near a step whose sample exceeded margin x limit are left out "
+                      "whatever the model says; a fit that misses a lab result by more than "
+                      "3 standard deviations makes the decision provisional."),
             BulletList(REFERENCES),
             Paragraph(f"blendq {__version__}."),
         ), "methods"),
