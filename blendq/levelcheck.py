@@ -76,10 +76,14 @@ def check_levels(fit: FitResult, draws: Draws, pred: Prediction, alpha: float,
     except BlendqError as exc:
         return LevelCheck(res, None, "zone model", f"no comparison with the zone model: {exc}")
     if comp.better_constrained != "step test":
-        return LevelCheck(res, comp, "zone model",
-                          "the zone model's linear loss is the better constrained "
-                          f"(relative sd {comp.zone_relative_stderr:.1%} against "
-                          f"{comp.step_relative_stderr:.1%} for the step test)")
+        if not np.isfinite(comp.step_relative_stderr):
+            why = ("the step test's linear loss has no standard error (too few steps for the "
+                   "fit)")
+        else:
+            why = ("the zone model's linear loss is the better constrained "
+                   f"(relative sd {comp.zone_relative_stderr:.1%} against "
+                   f"{comp.step_relative_stderr:.1%} for the step test)")
+        return LevelCheck(res, comp, "zone model", why)
     try:
         q = 1.0 - 2.0 * alpha
         t_zones = [z.zone_transmissivity for z in project.zones]

@@ -811,6 +811,3 @@ def compare_with_zone_model(fit: StepFit, conductance, conductance_stderr=None
                                 step_relative_stderr=rel_step, zone_relative_stderr=rel_zone,
                                 better_constrained=better)
 
-
-# the analysis of a whole step table lives in blendq.steptest; re-exported here for callers
-from blendq.steptest import StepDrawdownResult, analyse_step_test  # noqa: E402, F401

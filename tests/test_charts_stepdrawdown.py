@@ -12,6 +12,7 @@ import pandas as pd
 import pytest
 
 from blendq import stepdrawdown as sd
+from blendq import steptest
 from blendq.charts import stepdrawdown as charts
 from blendq.errors import InputError
 
@@ -35,7 +36,7 @@ def chained_result():
         "pumping_level": np.nan, "recovered_before": False, "source_row": [1, 2, 3, 4]})
     levels = pd.DataFrame({"time": ORIGIN + pd.to_timedelta(t, unit="D"), "level": 15.0 + s,
                            "source_row": np.arange(1, t.size + 1)})
-    return sd.analyse_step_test(steps, 15.0, levels)
+    return steptest.analyse_step_test(steps, 15.0, levels)
 
 
 @pytest.fixture(scope="module")
@@ -44,7 +45,7 @@ def end_of_step_result():
     steps = pd.DataFrame({"step": ["A", "B"], "rate": rates, "start": pd.NaT, "end": pd.NaT,
                           "duration": 0.1, "pumping_level": 8.0 + 2e-3 * rates + 5e-7 * rates**2,
                           "recovered_before": [False, True], "source_row": [1, 2]})
-    return sd.analyse_step_test(steps, 8.0)
+    return steptest.analyse_step_test(steps, 8.0)
 
 
 @pytest.mark.parametrize("chart", ["specific_drawdown_chart", "drawdown_rate_chart",

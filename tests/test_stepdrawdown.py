@@ -11,7 +11,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy import stats
 
-from blendq import hydraulics
+from blendq import hydraulics, steptest
 from blendq import stepdrawdown as sd
 from blendq.errors import InputError, ModelError
 from blendq.units import Q_
@@ -116,7 +116,7 @@ def test_hantush_bierschenk_exact_on_cooper_jacob_data_with_a_recovered_step():
                  sd.cooper_jacob_step_drawdown(t - 0.5, [0.0, 0.1], [900.0, 1800.0], tr, sto,
                                                rw, skin, c))
     steps = make_steps(rates, starts, ends, recovered=[False, False, False, True, False])
-    res = sd.analyse_step_test(steps, 5.0, make_levels(t, 5.0 + s), elapsed=0.08)
+    res = steptest.analyse_step_test(steps, 5.0, make_levels(t, 5.0 + s), elapsed=0.08)
     b_dt = (np.log(2.25 * tr * 0.08 / (rw**2 * sto)) + 2 * skin) / (4 * np.pi * tr)
     np.testing.assert_allclose(res.increments.drawdown, b_dt * rates + c * rates**2, rtol=1e-9)
     assert res.jacob.linear_loss == pytest.approx(b_dt, rel=1e-6)
@@ -182,7 +182,7 @@ def test_noisy_levels_hantush_bierschenk_within_intervals():
     t = step_times(starts, np.full(5, 0.125), per_step=40)
     s = sd.cooper_jacob_step_drawdown(t, starts, rates, tr, sto, rw, 1.0, c)
     s = s + np.random.default_rng(11).normal(0.0, 0.01, t.size)
-    res = sd.analyse_step_test(make_steps(rates, starts, starts + 0.125), 20.0,
+    res = steptest.analyse_step_test(make_steps(rates, starts, starts + 0.125), 20.0,
                                make_levels(t, 20.0 + s))
     b_dt = (np.log(2.25 * tr * 0.125 / (rw**2 * sto)) + 2.0) / (4 * np.pi * tr)
     fit = res.jacob
@@ -234,7 +234,7 @@ def test_hantush_bierschenk_recovers_ttim_linear_loss(ttim_step_test):
     # the same ttim model (ttim's own linear loss, screen resistance included)
     t, s_ttim = ttim_step_test
     steps = make_steps(TT_RATES, TT_STARTS, TT_STARTS + 0.125)
-    res = sd.analyse_step_test(steps, 10.0, make_levels(t, 10.0 + s_ttim), elapsed=0.1)
+    res = steptest.analyse_step_test(steps, 10.0, make_levels(t, 10.0 + s_ttim), elapsed=0.1)
     single = _ttim_well([(0.0, 1000.0)], TT["res"])
     b_ttim = -single.headinside(0.1)[0, 0] / 1000.0
     assert res.jacob.linear_loss == pytest.approx(b_ttim, rel=0.01)
@@ -250,7 +250,7 @@ def test_zone_model_comparison_against_ttim_without_resistance():
     well = _ttim_well(list(zip(TT_STARTS, TT_RATES, strict=True)), 0.0)
     t = step_times(TT_STARTS, np.full(4, 0.125), per_step=30)
     s = -well.headinside(t)[0]
-    res = sd.analyse_step_test(make_steps(TT_RATES, TT_STARTS, TT_STARTS + 0.125), 10.0,
+    res = steptest.analyse_step_test(make_steps(TT_RATES, TT_STARTS, TT_STARTS + 0.125), 10.0,
                                make_levels(t, 10.0 + s))
     g = hydraulics.cooper_jacob_conductance(TT["T"], TT["S"], res.reference_time, TT["rw"])
     cmp_ = sd.compare_with_zone_model(res.jacob, [g], conductance_stderr=[0.1 * g])
@@ -320,12 +320,12 @@ def test_end_of_step_from_pumping_levels_and_from_levels_agree():
     ends = starts + 0.125  # recovered between steps: independent steps
     steps = make_steps(rates, starts, ends, recovered=[False, True, True, True],
                        pumping_level=12.0 + s)
-    direct = sd.analyse_step_test(steps, 12.0)
+    direct = steptest.analyse_step_test(steps, 12.0)
     assert direct.method == "end of step"
     assert direct.reference_time == pytest.approx(0.125)
     t = np.concatenate([[st + 0.05, en] for st, en in zip(starts, ends, strict=True)])
     lev = make_levels(t, 12.0 + np.repeat(s, 2) * np.tile([0.9, 1.0], 4))
-    from_levels = sd.analyse_step_test(steps, 12.0, lev, method="end of step")
+    from_levels = steptest.analyse_step_test(steps, 12.0, lev, method="end of step")
     np.testing.assert_allclose(from_levels.per_step["drawdown"], s, rtol=1e-12)
     ps = direct.per_step
     assert list(ps.columns[:7]) == ["step", "rate", "drawdown", "specific_capacity",
@@ -343,7 +343,7 @@ def test_chained_steps_read_at_ends_warn_and_refuse_horizon():
     rates = np.array([500.0, 1000.0, 1500.0])
     starts = np.array([0.0, 0.1, 0.2])
     steps = make_steps(rates, starts, starts + 0.1, pumping_level=[11.0, 12.1, 13.3])
-    res = sd.analyse_step_test(steps, 10.0)
+    res = steptest.analyse_step_test(steps, 10.0)
     assert any("without recovery" in w for w in res.warnings)
     assert math.isnan(res.reference_time)
     with pytest.raises(ModelError, match="reference time"):
@@ -394,7 +394,7 @@ def test_summary_lines_in_both_unit_systems():
     s = 2.5e-3 * q + c * q**2
     steps = make_steps(q, [0, 1, 2, 3], [0.1, 1.1, 2.1, 3.1], recovered=[False, True, True, True],
                        pumping_level=10.0 + s)
-    res = sd.analyse_step_test(steps, 10.0)
+    res = steptest.analyse_step_test(steps, 10.0)
     us = "\n".join(res.summary_lines("US"))
     si = "\n".join(res.summary_lines("SI"))
     assert "C = 7 ± " in us and "s²/ft⁵" in us and "gpm" in us
@@ -413,7 +413,7 @@ def test_overlapping_steps_are_an_input_error():
     steps = make_steps([500.0, 1000.0, 1500.0], [0.0, 0.1, 0.15], [0.1, 0.2, 0.3],
                        pumping_level=[11.0, 12.0, 13.0])
     with pytest.raises(InputError) as err:
-        sd.analyse_step_test(steps, 10.0, steps_file="steps.csv")
+        steptest.analyse_step_test(steps, 10.0, steps_file="steps.csv")
     assert err.value.file == "steps.csv" and err.value.row == 3 and err.value.field == "start"
     assert "overlap" in str(err.value)
 
@@ -422,7 +422,7 @@ def test_pumping_level_above_static_names_row_and_field():
     steps = make_steps([500.0, 1000.0, 1500.0], [0, 1, 2], [0.1, 1.1, 2.1],
                        recovered=[False, True, True], pumping_level=[11.0, 9.5, 13.0])
     with pytest.raises(InputError) as err:
-        sd.analyse_step_test(steps, 10.0, steps_file="steps.csv")
+        steptest.analyse_step_test(steps, 10.0, steps_file="steps.csv")
     e = err.value
     assert (e.file, e.row, e.field) == ("steps.csv", 2, "pumping_level")
     assert "-0.5 m" in e.message and "static" in e.message
@@ -434,7 +434,7 @@ def test_level_record_above_static_names_levels_row():
     s = sd.cooper_jacob_step_drawdown(t, starts, [500.0, 1000.0, 1500.0], 500.0, 1e-4, 0.15)
     s[15:20] = -0.3  # readings in step 2 above static
     with pytest.raises(InputError) as err:
-        sd.analyse_step_test(make_steps([500.0, 1000.0, 1500.0], starts, starts + 0.125), 10.0,
+        steptest.analyse_step_test(make_steps([500.0, 1000.0, 1500.0], starts, starts + 0.125), 10.0,
                              make_levels(t, 10.0 + s), elapsed=0.02, levels_file="levels.csv")
     assert err.value.file == "levels.csv" and err.value.field == "level"
     assert err.value.row in range(16, 21)
@@ -445,7 +445,7 @@ def test_falling_rate_in_chained_steps_is_a_warning():
     rates = np.array([500.0, 1000.0, 800.0, 1500.0])
     t = step_times(starts, np.full(4, 0.125))
     s = sd.cooper_jacob_step_drawdown(t, starts, rates, 500.0, 1e-4, 0.15, 0.0, 4e-7)
-    res = sd.analyse_step_test(make_steps(rates, starts, starts + 0.125), 10.0,
+    res = steptest.analyse_step_test(make_steps(rates, starts, starts + 0.125), 10.0,
                                make_levels(t, 10.0 + s))
     assert any("step 3" in w and "rising rates" in w for w in res.warnings)
     # the increments still follow the superposition, so the fit holds
@@ -460,8 +460,8 @@ def test_too_few_steps():
     steps = make_steps([500.0, 1000.0], [0, 1], [0.1, 1.1], recovered=[False, True],
                        pumping_level=[11.0, 12.2])
     with pytest.raises(InputError, match="at least 3 steps"):
-        sd.analyse_step_test(steps, 10.0, rorabaugh=True)
-    res = sd.analyse_step_test(steps, 10.0)
+        steptest.analyse_step_test(steps, 10.0, rorabaugh=True)
+    res = steptest.analyse_step_test(steps, 10.0)
     assert res.rorabaugh is None and any("not fitted" in w for w in res.warnings)
     assert np.all(np.isnan(res.jacob.stderr))
 
@@ -474,7 +474,7 @@ def test_bad_step_values(field, value, match):
                        recovered=[False, True, True], pumping_level=[11.0, 12.0, 13.0])
     steps.loc[1, field] = value
     with pytest.raises(InputError, match=match) as err:
-        sd.analyse_step_test(steps, 10.0, steps_file="steps.csv")
+        steptest.analyse_step_test(steps, 10.0, steps_file="steps.csv")
     assert (err.value.row, err.value.field) == (2, field)
 
 
@@ -482,21 +482,21 @@ def test_equal_time_needs_levels_and_fitting_elapsed_time():
     starts = np.array([0.0, 0.125, 0.25])
     steps = make_steps([500.0, 1000.0, 1500.0], starts, starts + 0.125)
     with pytest.raises(InputError, match="water-level record"):
-        sd.analyse_step_test(steps, 10.0, method="equal time")
+        steptest.analyse_step_test(steps, 10.0, method="equal time")
     t = step_times(starts, np.full(3, 0.125), per_step=10)
     s = sd.cooper_jacob_step_drawdown(t, starts, [500.0, 1000.0, 1500.0], 500.0, 1e-4, 0.15)
     with pytest.raises(InputError, match="longer than step") as err:
-        sd.analyse_step_test(steps, 10.0, make_levels(t, 10.0 + s), elapsed=0.2,
+        steptest.analyse_step_test(steps, 10.0, make_levels(t, 10.0 + s), elapsed=0.2,
                              levels_file="levels.csv")
     assert err.value.file == "levels.csv"
     # a chained step with a single late reading cannot be extrapolated
     keep = ~((t > 0.125 + 0.0625) & (t < 0.24))
     with pytest.raises(InputError, match="step 2 has 1 water-level"):
-        sd.analyse_step_test(steps, 10.0, make_levels(t[keep], 10.0 + s[keep]), elapsed=0.01)
+        steptest.analyse_step_test(steps, 10.0, make_levels(t[keep], 10.0 + s[keep]), elapsed=0.01)
     with pytest.raises(InputError, match="start"):
         bad = steps.copy()
         bad.loc[0, "start"] = pd.NaT
-        sd.analyse_step_test(bad, 10.0, make_levels(t, 10.0 + s))
+        steptest.analyse_step_test(bad, 10.0, make_levels(t, 10.0 + s))
 
 
 def test_auto_falls_back_to_step_ends_when_the_record_is_too_sparse():
@@ -508,7 +508,7 @@ def test_auto_falls_back_to_step_ends_when_the_record_is_too_sparse():
     steps = make_steps(rates, starts, starts + 0.125, pumping_level=12.0 + s)
     sparse = make_levels(starts + 0.1, 12.0 + s)
     with pytest.raises(InputError):
-        sd.analyse_step_test(steps, 12.0, sparse, method="equal time")
-    res = sd.analyse_step_test(steps, 12.0, sparse)
+        steptest.analyse_step_test(steps, 12.0, sparse, method="equal time")
+    res = steptest.analyse_step_test(steps, 12.0, sparse)
     assert res.method == "end of step"
     assert any("does not allow the equal-time" in w for w in res.warnings)
