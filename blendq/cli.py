@@ -206,12 +206,6 @@ def check_cmd(
     _guard(body)
 
 
-def _zone_rows(a, units):
-    from blendq.report import zone_display_table
-
-    return zone_display_table(a)
-
-
 @app.command("fit")
 def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
             seed: SeedOpt = None, as_json: JsonOpt = False,
@@ -219,7 +213,7 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
     """Fit each zone's water quality (and the zone hydraulics) and print the zone table."""
 
     def body():
-        u = _units(units)
+        _units(units)  # concentrations print in each analyte's unit; the option is still checked
         proj = _load(project)
         a = _analyse(proj, draws, seed, samples)
         if as_json:
@@ -237,7 +231,9 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
         from rich.table import Table
 
         t = Table(title=escape(f"{proj.well.name}: zone water quality"))
-        df = _zone_rows(a, u)
+        from blendq.report import zone_display_table
+
+        df = zone_display_table(a)
         for col in df.columns:
             t.add_column(escape(str(col)))
         for _, r in df.iterrows():
@@ -344,17 +340,15 @@ def drawdown_cmd(project: ProjectArg, units: UnitsOpt = "US", as_json: JsonOpt =
 
     def body():
         from blendq.errors import InputError
+        from blendq.levelcheck import static_level_of
         from blendq.steptest import analyse_step_test
 
         u = _units(units)
         proj = _load(project)
-        static = proj.well.static_level
+        static = static_level_of(proj)
         if static is None:
-            levels = [z.static_level for z in proj.zones if z.static_level is not None]
-            if not levels:
-                raise InputError("the step-drawdown analysis needs the well's static level",
-                                 file="project.toml", field="well.static_level")
-            static = float(sum(levels) / len(levels))
+            raise InputError("the step-drawdown analysis needs the well's static level",
+                             file="project.toml", field="well.static_level")
         res = analyse_step_test(proj.steps, static,
                                 proj.levels if len(proj.levels) else None,
                                 steps_file=proj.files.get("steps", "steps.csv"),

@@ -177,8 +177,9 @@ def window_options(a: Analysis, units: str = "US") -> list[str]:
 def inflow_table(project: Project, rates, horizon: float | None = None) -> pd.DataFrame:
     """Zone flows, discharge shares and pumping level at each rate from the zone properties
     (no fitting): the quick look at a well before any lab result."""
+    from blendq.mixing import discharge_weights
     from blendq.wellmodel import (
-        geometry_of,
+        elapsed_test_time,
         horizon_factor,
         model_from_parameters,
         prior_hydraulics,
@@ -191,14 +192,11 @@ def inflow_table(project: Project, rates, horizon: float | None = None) -> pd.Da
                          "static_level or well static_level)")
     g = np.exp(prior.log_conductance)
     if horizon is not None:
-        from blendq.wellmodel import elapsed_test_time
-
         g = g * horizon_factor(project, elapsed_test_time(project), horizon)
     model = model_from_parameters(project, g, prior.static_head)
     rates = np.asarray(rates, float)
     st = model.state(rates)
-    share = np.nan_to_num(__import__("blendq.mixing", fromlist=["x"]).discharge_weights(
-        st.zone_flow, geometry_of(project)), nan=0.0)
+    share = np.nan_to_num(discharge_weights(st.zone_flow, model.geometry), nan=0.0)
     level = model.pumping_level_depth(rates, st)
     rows = []
     for k, q in enumerate(rates):

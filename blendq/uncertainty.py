@@ -136,6 +136,18 @@ def linearised_zone_sd(fit: FitResult) -> np.ndarray:
     return out
 
 
+def draws_model(fit: FitResult, draws: Draws, conductance_factor=None,
+                changes: Callable | None = None):
+    """The well model of every draw (batched), with the horizon factor and a scenario's
+    changes applied: what :func:`predict` and :func:`predict_summary` evaluate."""
+    model = fit.problem.model(draws.theta)
+    if conductance_factor is not None:
+        model = model.with_changes(conductance=model.conductance * np.asarray(conductance_factor))
+    if changes is not None:
+        model = changes(model)
+    return model
+
+
 @dataclass(frozen=True)
 class Prediction:
     """Predicted discharge at each rate for every draw.
@@ -181,11 +193,7 @@ def predict(fit: FitResult, draws: Draws, rates, conductance_factor=None,
         Applied to the batched model before prediction (scenarios).
     """
     rates = np.asarray(rates, float)
-    model = fit.problem.model(draws.theta)
-    if conductance_factor is not None:
-        model = model.with_changes(conductance=model.conductance * np.asarray(conductance_factor))
-    if changes is not None:
-        model = changes(model)
+    model = draws_model(fit, draws, conductance_factor, changes)
     state = model.state(rates)
     from blendq.mixing import discharge_weights
 
@@ -325,11 +333,7 @@ def predict_summary(fit: FitResult, draws: Draws, rates, probs=(0.05, 0.5, 0.95)
     """
     rates = np.asarray(rates, float)
     probs = np.asarray(probs, float)
-    model = fit.problem.model(draws.theta)
-    if conductance_factor is not None:
-        model = model.with_changes(conductance=model.conductance * np.asarray(conductance_factor))
-    if changes is not None:
-        model = changes(model)
+    model = draws_model(fit, draws, conductance_factor, changes)
     n_a = draws.zone_values.shape[-1]
     thr = np.zeros((0, n_a)) if thresholds is None else np.atleast_2d(np.asarray(thresholds, float))
     n_r = len(rates)

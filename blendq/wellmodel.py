@@ -202,7 +202,7 @@ def prior_hydraulics(project: Project) -> HydraulicPrior:
         # no usable properties: a flat prior with equal shares as a starting point
         logg = np.log(np.full(n, 100.0))
         src = ["none (start value only)"] * n
-    well_level = getattr(project.well, "static_level", None)
+    well_level = project.well.static_level
     heads = []
     head_sd = []
     for z in project.zones:
