@@ -19,6 +19,8 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass, field
 
+import numpy as np
+
 from blendq.errors import InputError
 
 #: IUPAC abridged standard atomic weights [g/mol] (Prohaska et al. 2022)
@@ -114,6 +116,13 @@ class Analyte:
             raise ValueError(f"{self.key} has no charge for an ion balance")
         mass_formula = self.bases.get(self.canonical_basis, self.ion_formula) or self.ion_formula
         return molar_mass(mass_formula) / abs(self.charge)
+
+    def in_display_unit(self, values):
+        """Concentrations [mg/L, canonical basis] in :attr:`display_unit` (array)."""
+        from blendq.units import from_base
+
+        return np.asarray(from_base(np.asarray(values, float), "concentration",
+                                    self.display_unit))
 
     def label(self) -> str:
         """Name with basis, e.g. ``"Nitrate (as N)"``."""

@@ -64,8 +64,8 @@ ASSUMPTIONS = [
 
 def conc_display(analyte: str, value_mg_l):
     """Concentration in the analyte's display unit (mg/L or ug/L) and that unit."""
-    unit = get_analyte(analyte).display_unit
-    return from_base(np.asarray(value_mg_l, float), "concentration", unit), unit
+    an = get_analyte(analyte)
+    return an.in_display_unit(value_mg_l), an.display_unit
 
 
 def _sig(value: float, scale: float) -> str:

@@ -25,8 +25,9 @@ def _rate_text(value: float, units: str) -> str:
 
 
 def _conc_text(analyte: str, values) -> tuple[str, str]:
-    unit = get_analyte(analyte).display_unit
-    lo, med, hi = (float(v) for v in from_base(np.asarray(values, float), "concentration", unit))
+    an = get_analyte(analyte)
+    unit = an.display_unit
+    lo, med, hi = (float(v) for v in an.in_display_unit(values))
     if not np.isfinite(med):
         return "-", "-"
     return f"{med:.3g} {unit}", f"{lo:.3g} to {hi:.3g} {unit}"

@@ -82,7 +82,7 @@ def _conc_unit(analyte: str) -> tuple[str, str]:
 
 def _conc(values, analyte: str):
     """Concentrations [mg/L canonical] in the analyte's display unit."""
-    return np.asarray(from_base(np.asarray(values, float), "concentration", _conc_unit(analyte)[0]))
+    return get_analyte(analyte).in_display_unit(values)
 
 
 def _limit_text(limit: Limit, analyte: str) -> str:
