@@ -195,10 +195,8 @@ def predict(fit: FitResult, draws: Draws, rates, conductance_factor=None,
     rates = np.asarray(rates, float)
     model = draws_model(fit, draws, conductance_factor, changes)
     state = model.state(rates)
-    from blendq.mixing import discharge_weights
-
     # NaN where no water reaches the intake (zero rate): nothing is pumped, nothing to predict
-    shares = discharge_weights(state.zone_flow, model.geometry)
+    shares = intake_weights(state.zone_flow, model.geometry)
     conc = np.einsum("brn,bna->bra", shares, draws.zone_values)
     level = model.pumping_level_depth(rates, state)
     return Prediction(rates, conc, level, shares, state.zone_flow, list(draws.analytes))
