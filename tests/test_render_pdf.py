@@ -1,4 +1,4 @@
-"""Tests of blendq.render_pdf: wrapping, pagination, and the PDF file itself.
+"""Tests of blendq.render_pdf: text measure, pagination rules, and the PDF file itself.
 
 Run this file as a script to write the demo report for a visual check::
 
@@ -19,8 +19,6 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
-from hypothesis import given
-from hypothesis import strategies as st
 
 from blendq.document import (
     BulletList,
@@ -34,16 +32,11 @@ from blendq.document import (
 )
 from blendq.errors import InputError
 from blendq.render_pdf import (
-    MARGIN_BOTTOM,
-    MARGIN_TOP,
     PAPER_SIZES,
-    _build,
-    _paginate,
     paginate,
     render_pdf,
     render_pdf_bytes,
     text_width,
-    wrap,
 )
 
 HOSTILE = "<script>alert(1)</script> (unbalanced \\ paren"
@@ -200,12 +193,13 @@ def demo_pdf() -> bytes:
     return render_pdf_bytes(demo_document())
 
 
-# --- text measuring and wrapping ------------------------------------------------------------
+# --- text measuring --------------------------------------------------------------------------
 
 
 def test_text_width_matches_matplotlib_layout() -> None:
-    # reference: matplotlib's own text-to-path layout (which applies kerning); our sum of
-    # advances may only be a little wider, never narrower
+    # reference: matplotlib's own text-to-path layout of the same DejaVu Sans font (a second,
+    # independent reader of the font file, which applies kerning); our width, the sum of
+    # advances as the PDF draws them, may only be a little wider, never narrower
     from matplotlib.font_manager import FontProperties
     from matplotlib.textpath import TextToPath
 
@@ -217,39 +211,21 @@ def test_text_width_matches_matplotlib_layout() -> None:
         assert reference * (1 - 1e-3) <= ours <= reference * 1.04
 
 
-def test_wrap_keeps_words_and_margin() -> None:
-    text = "The blend at each step is the flow-weighted mix of the zones open to the well. " * 5
-    lines = wrap(text, 200.0, 9.5)
-    assert len(lines) > 5
-    assert all(text_width(line, 9.5) <= 200.0 + 1e-6 for line in lines)
-    # textwrap may break after a hyphen ("flow-" / "weighted"): compare the characters
-    assert "".join("".join(lines).split()) == "".join(text.split())
+def test_paper_sizes_are_the_standard_ones() -> None:
+    # ISO 216 A4 is 210 mm x 297 mm and US Letter 8.5 in x 11 in; reportlab.lib.pagesizes
+    # holds both in points (1 pt = 1/72 in)
+    from reportlab.lib.pagesizes import A4, LETTER
 
-
-def test_wrap_breaks_overlong_words_and_honours_newlines_and_indent() -> None:
-    lines = wrap("x" * 300, 100.0, 9.5)
-    assert "".join(lines) == "x" * 300
-    assert all(text_width(line, 9.5) <= 100.0 + 1e-6 for line in lines)
-    assert wrap("one\ntwo", 500.0, 9.5) == ["one", "two"]
-    assert wrap("", 100.0, 9.5) == [""]
-    indented = wrap("alpha beta gamma delta epsilon zeta", 120.0, 9.5, first_indent=60.0)
-    assert text_width(indented[0], 9.5) + 60.0 <= 120.0 + 1e-6
-
-
-@given(
-    st.lists(
-        st.text(alphabet="abcdefghijkl mnop,.-ABC0123µ³", min_size=1, max_size=14), max_size=40
-    ),
-    st.floats(min_value=60.0, max_value=480.0),
-)
-def test_wrap_property_lines_fit(words: list[str], width: float) -> None:
-    text = " ".join(words)
-    lines = wrap(text, width, 9.5)
-    assert all(text_width(line, 9.5) <= width + 1e-6 for line in lines)
-    assert "".join("".join(lines).split()) == "".join(text.split())
+    assert PAPER_SIZES["a4"] == pytest.approx(A4, abs=1e-3)
+    assert PAPER_SIZES["a4"] == pytest.approx((210 / 25.4 * 72, 297 / 25.4 * 72), abs=1e-3)
+    assert PAPER_SIZES["letter"] == pytest.approx(LETTER)
 
 
 # --- pagination -------------------------------------------------------------------------------
+
+
+def _of(layout, tag: str) -> list:
+    return [p for p in layout.placed if p.tag == tag]
 
 
 def test_two_tall_figures_never_share_a_page() -> None:
@@ -263,6 +239,7 @@ def test_two_tall_figures_never_share_a_page() -> None:
     layout = paginate(doc)
     assert layout.page_count == 3
     assert layout.section_pages == {"part-1": 1, "part-2": 2, "part-3": 3}
+    assert [p.page for p in layout.placed if p.tag.startswith("figure")] == [1, 2, 3]
     data = render_pdf_bytes(doc)
     assert _page_count_in_file(data) == 3
 
@@ -277,58 +254,57 @@ def test_long_table_runs_over_pages_with_repeated_header() -> None:
     rows = 150
     frame = pd.DataFrame({"rate": np.arange(rows) * 10.0, "nitrate": np.linspace(2, 9, rows)})
     doc = Document("t", "", "", [Section("Sweep", [Table(frame, "Long table")], key="sweep")])
-    pieces, _, frame_h = _build(doc, "a4")
-    pages = _paginate(pieces, frame_h)
+    parts = _of(paginate(doc), "table:1")
     # A4 text height 713.9 pt; a one-line row is 1.3 x 8 pt + 2 x 2.6 pt = 15.6 pt tall,
     # so 150 rows (2340 pt) need at least 4 pages
-    assert frame_h == pytest.approx(PAPER_SIZES["a4"][1] - MARGIN_TOP - MARGIN_BOTTOM)
-    assert len(pages) >= 4
-    body = [p for p in pieces if p.repeat]
-    assert len(body) == rows
-    repeat = body[0].repeat
-    for page in pages[1:]:
-        opening = [piece for piece, _ in page[: len(repeat)]]
-        assert opening == list(repeat)  # "(continued)" caption and column labels first
-    for page in pages:
-        assert max(offset + piece.height for piece, offset in page) <= frame_h + 1e-9
-    placed_rows = [piece for page in pages for piece, _ in page if piece.repeat]
-    assert placed_rows == body  # every row once, in order
+    assert len(parts) >= 4
+    assert [p.page for p in parts] == list(range(1, len(parts) + 1))
+    assert [p.continued for p in parts] == [False] + [True] * (len(parts) - 1)
+    assert sum(p.count for p in parts) == rows  # every row once
+    assert all(p.count >= 2 for p in parts)
 
 
 def test_paragraph_never_leaves_a_single_line_at_a_page_edge() -> None:
     # a five-line paragraph after fillers of growing length: the page break moves through it
     para = Paragraph(" ".join(["A paragraph that must split across the page."] * 10))
     splits = set()
-    for filler_words in range(100, 160):
+    for filler_words in range(100, 160, 2):
         filler = Paragraph(" ".join(["Filler"] * filler_words * 5))
         doc = Document("t", "", "", [Section("S", [filler, para], key="s")])
-        pieces, width, frame_h = _build(doc, "a4")
-        pages = _paginate(pieces, frame_h)
-        n_lines = len(wrap(para.text, width, 9.5))
-        assert n_lines == 5
-        lines_of = {id(p) for p in pieces[-n_lines:]}
-        counts = tuple(sum(id(piece) in lines_of for piece, _ in page) for page in pages)
+        counts = tuple(p.count for p in _of(paginate(doc), "paragraph:2"))
+        assert sum(counts) == 5
         assert 1 not in counts, counts
-        splits.add(tuple(c for c in counts if c))
+        splits.add(counts)
     assert {(2, 3), (3, 2)} <= splits  # both legal splits did occur
     assert (5,) in splits
 
 
-def test_long_callout_splits_with_label_and_two_lines_together() -> None:
+def test_long_callout_splits_with_label_and_text_together() -> None:
     callout = Callout(" ".join(["Run below the window only after review."] * 60), "decision")
+    alone = Document("t", "", "", [Section("S", [callout], key="s")])
+    (whole,) = _of(paginate(alone), "callout:1")
+    assert whole.count > 20  # the label line and the text lines
+    pages_seen = set()
     for filler_lines in range(30, 50):
         filler = Paragraph("\n".join(["line"] * filler_lines))
         doc = Document("t", "", "", [Section("S", [filler, callout], key="s")])
-        pieces, _, frame_h = _build(doc, "a4")
-        pages = _paginate(pieces, frame_h)
-        # title, rule, "CONTENTS", one contents entry, heading, then the filler lines
-        callout_pieces = pieces[5 + filler_lines :]
-        assert any(op[3] == "DECISION" for op in callout_pieces[0].ops if op[0] == "text")
-        ours = {id(p) for p in callout_pieces}
-        counts = [sum(id(piece) in ours for piece, _ in page) for page in pages]
-        assert len(pages) == 2
-        assert counts[0] == 0 or counts[0] >= 3, counts  # label row plus two text lines
-        assert counts[1] >= 2
+        layout = paginate(doc)
+        parts = _of(layout, "callout:1")
+        pages_seen.add(len(parts))
+        assert layout.page_count == 2
+        assert sum(p.count for p in parts) == whole.count
+        # the label is the first line: never alone at a page foot, and two lines at the head
+        assert all(p.count >= 2 for p in parts), parts
+    assert pages_seen == {1, 2} or pages_seen == {2}
+
+
+def test_short_callout_moves_whole() -> None:
+    for filler_lines in range(40, 52):
+        filler = Paragraph("\n".join(["line"] * filler_lines))
+        callout = Callout("A caution of three lines. " * 12, "caution")
+        doc = Document("t", "", "", [Section("S", [filler, callout], key="s")])
+        parts = _of(paginate(doc), "callout:1")
+        assert len(parts) == 1
 
 
 def test_heading_is_kept_with_what_follows() -> None:
@@ -340,11 +316,31 @@ def test_heading_is_kept_with_what_follows() -> None:
             "",
             [Section("A", [filler], key="a"), Section("B", [Paragraph("x\ny\nz")], key="b")],
         )
-        pieces, _, frame_h = _build(doc, "a4")
-        pages = _paginate(pieces, frame_h)
-        for page in pages:
-            last = page[-1][0]
-            assert not last.section, f"heading alone at a page foot with {filler_lines} lines"
+        layout = paginate(doc)
+        (heading,) = _of(layout, "heading:b")
+        (after,) = _of(layout, "paragraph:2")
+        assert heading.page == after.page, f"heading alone at a page foot ({filler_lines} lines)"
+        assert after.count == 3
+
+
+def test_heading_is_kept_with_a_chart() -> None:
+    for filler_lines in range(5, 40, 3):
+        filler = Paragraph("\n".join(["line"] * filler_lines))
+        doc = Document("t", "", "", [Section("A", [filler], key="a"),
+                                     Section("B", [_chart()], key="b")])
+        layout = paginate(doc)
+        (heading,) = _of(layout, "heading:b")
+        (chart,) = _of(layout, "figure:1")
+        assert heading.page == chart.page
+
+
+def test_markup_characters_are_text() -> None:
+    # the layout engine reads markup: user text with <, > and & must come through as text
+    doc = Document(HOSTILE, "a & b", "<c>", [Section("A <b>", [
+        Paragraph(HOSTILE), BulletList([HOSTILE]), Callout(HOSTILE, "note"),
+        KeyValues([(HOSTILE, HOSTILE)]),
+        Table(pd.DataFrame({HOSTILE: [HOSTILE]}), HOSTILE, note=HOSTILE)], key="a")])
+    assert paginate(doc).page_count == 1
 
 
 def test_unknown_paper_is_an_input_error() -> None:
@@ -360,9 +356,9 @@ def test_pdf_file_basics(demo_pdf: bytes) -> None:
     assert demo_pdf.startswith(b"%PDF-")
     assert demo_pdf.rstrip().endswith(b"%%EOF")
     assert _page_count_in_file(demo_pdf) == paginate(demo_document()).page_count
-    assert b"/CreationDate" not in demo_pdf and b"/ModDate" not in demo_pdf
     assert b"/Creator (blendq" in demo_pdf
-    assert re.search(rb"/MediaBox \[ 0 0 595\.276 841\.89 \]", demo_pdf)
+    assert re.search(rb"/MediaBox \[ 0 0 595\.27\d* 841\.8\d* \]", demo_pdf)
+    assert b"DejaVuSans" not in demo_pdf or b"/FontFile2" in demo_pdf  # fonts embedded
 
 
 def test_letter_paper_and_file_output(tmp_path: Path) -> None:
@@ -391,6 +387,8 @@ def test_svg_only_figure_and_empty_table_still_render() -> None:
             )
         ],
     )
+    layout = paginate(doc)
+    assert [p.tag for p in layout.placed] == ["heading:a", "figure:1", "table:1", "table:2"]
     assert render_pdf_bytes(doc).startswith(b"%PDF-")
 
 
