@@ -280,14 +280,16 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = No
 
 
 def _write_report(proj, out: Path, units: str, draws, seed) -> None:
+    from blendq.chart_pool import ChartPool
     from blendq.outputs import check_output_folder, write_outputs
     from blendq.pipeline import decision_sentence
     from blendq.report import output_files
 
     protect = [proj.folder / f for f in proj.files.values()] if proj.folder else []
     check_output_folder(out, protect)  # refuse a bad folder before the long run, not after
-    a = _analyse(proj, draws, seed)
-    files = output_files(a, units, created=f"blendq {__version__}")
+    with ChartPool() as charts:  # the chart workers get ready while the analysis runs
+        a = _analyse(proj, draws, seed)
+        files = output_files(a, units, created=f"blendq {__version__}", charts=charts)
     folder = write_outputs(out, files, protect=protect)
     typer.echo(decision_sentence(a, units))
     typer.echo(f"Report written to {folder / 'report.html'} and {folder / 'report.pdf'}")

@@ -7,11 +7,14 @@ display units (US or SI) here, at the edge; the analysis itself stays in base un
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
 import numpy as np
 import pandas as pd
 
 from blendq import CAUTIONS, __version__
 from blendq.analytes import get_analyte
+from blendq.chart_pool import ChartJob, ChartPool
 from blendq.document import (
     BulletList,
     Callout,
@@ -23,6 +26,7 @@ from blendq.document import (
     Table,
 )
 from blendq.pipeline import Analysis, decision_sentence
+from blendq.report_scenarios import scenario_chart_job, scenario_section
 from blendq.units import DISPLAY_UNITS, display_unit_label, format_quantity, from_base
 
 REFERENCES = [
@@ -135,76 +139,6 @@ def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
-CHART_DPI = 110.0  #: resolution of the chart images [dots per inch]
-
-
-def rendered(caption: str, figure, svg: bool = True) -> Figure:
-    """A document figure that still holds its matplotlib figure; :func:`render_all` turns it
-    into PNG (and SVG for the decision charts) once, for the HTML page, the PDF and the files."""
-    figure.blendq_svg = svg
-    return Figure(caption, figure=figure)
-
-
-_PENDING: list = []
-
-
-def _render_one(index: int) -> tuple[bytes, str | None]:
-    import io
-
-    fig = _PENDING[index]
-    png = io.BytesIO()
-    fig.savefig(png, format="png", dpi=CHART_DPI, metadata={"Software": None})
-    text = None
-    if getattr(fig, "blendq_svg", False):
-        buf = io.StringIO()
-        fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": None})
-        text = buf.getvalue()
-    return png.getvalue(), text
-
-
-def _pending(sections: list[Section]) -> list[Figure]:
-    return [b for sec in sections for b in sec.blocks
-            if isinstance(b, Figure) and b.figure is not None]
-
-
-def _replace(sections: list[Section], done: dict) -> list[Section]:
-    out = []
-    for sec in sections:
-        blocks = tuple(Figure(b.caption, alt=b.alt, png=done[id(b)][0], svg=done[id(b)][1])
-                       if id(b) in done else b for b in sec.blocks)
-        out.append(Section(sec.heading, blocks, sec.key))
-    return out
-
-
-def render_all(sections: list[Section], meanwhile=None) -> tuple[list[Section], object]:
-    """Replace every figure that still holds a matplotlib figure by its rendered bytes.
-
-    Drawing is the slowest part of a report, so where the system can fork the figures are
-    drawn by two worker processes while this process runs ``meanwhile()`` (other work that
-    does not need the drawings); the bytes are the same either way. Returns the sections and
-    what ``meanwhile`` returned.
-    """
-    global _PENDING
-    pending = _pending(sections)
-    _PENDING = [b.figure for b in pending]
-    try:
-        import multiprocessing as mp
-        import os
-
-        if len(pending) > 1 and "fork" in mp.get_all_start_methods() and (os.cpu_count() or 1) > 1:
-            with mp.get_context("fork").Pool(2) as pool:
-                job = pool.map_async(_render_one, range(len(pending)), chunksize=1)
-                extra = meanwhile() if meanwhile is not None else None
-                results = job.get()
-        else:
-            results = [_render_one(i) for i in range(len(pending))]
-            extra = meanwhile() if meanwhile is not None else None
-    finally:
-        _PENDING = []
-    done = dict(zip((id(b) for b in pending), results, strict=True))
-    return _replace(sections, done), extra
-
-
 def sample_use_blocks(a: Analysis) -> list:
     """What the fit did with the samples the review flagged."""
     use = a.sample_use
@@ -227,8 +161,32 @@ def sample_use_blocks(a: Analysis) -> list:
     return blocks
 
 
-def step_drawdown_section(a: Analysis, units: str) -> Section:
-    """Step-drawdown analysis, well condition, and which pumping-level prediction is used."""
+def step_drawdown_jobs(a: Analysis, units: str) -> list[ChartJob]:
+    """The step-drawdown charts (none without a step-drawdown analysis)."""
+    from blendq.charts import stepdrawdown as sd
+
+    lc = a.step_drawdown
+    if lc is None or lc.result is None:
+        return []
+    res = lc.result
+    jobs = [
+        ChartJob("Specific drawdown against rate with the fitted well-loss lines.",
+                 sd.specific_drawdown_chart, (res, units), svg=False),
+        ChartJob("Drawdown against rate: steps, fits and the linear part.",
+                 sd.drawdown_rate_chart, (res, units), svg=False),
+    ]
+    if res.record is not None:
+        jobs.append(ChartJob("Water-level record with each step's extrapolation.",
+                             sd.step_record_chart, (res, units), svg=False))
+    return jobs
+
+
+def step_drawdown_section(a: Analysis, units: str,
+                          figures: Sequence[Figure] = ()) -> Section:
+    """Step-drawdown analysis, well condition, and which pumping-level prediction is used.
+
+    ``figures``: the drawn :func:`step_drawdown_jobs`, shown after the text.
+    """
     lc = a.step_drawdown
     blocks: list = []
     if lc is None or lc.result is None:
@@ -258,60 +216,53 @@ def step_drawdown_section(a: Analysis, units: str) -> Section:
     else:
         blocks.append(Paragraph(f"The window uses the pumping level from the {lc.source}: "
                                 f"{lc.reason}."))
-    try:
-        from blendq.charts import stepdrawdown as sd_charts
-
-        blocks.append(rendered("Specific drawdown against rate with the fitted well-loss lines.",
-                               sd_charts.specific_drawdown_chart(res, units), svg=False))
-        blocks.append(rendered("Drawdown against rate: steps, fits and the linear part.",
-                               sd_charts.drawdown_rate_chart(res, units), svg=False))
-        if res.record is not None:
-            blocks.append(rendered("Water-level record with each step's extrapolation.",
-                                   sd_charts.step_record_chart(res, units), svg=False))
-    except ImportError:
-        pass
+    blocks += list(figures)
     return Section("Step-drawdown test and well condition", tuple(blocks), "stepdrawdown")
 
 
-def _scenario_section(a: Analysis, units: str) -> Section:
-    """What-if comparison of the project's scenarios (same draws as the base case)."""
-    from blendq.report_scenarios import scenario_section
-    from blendq.scenarios import compare
+def quality_jobs(a: Analysis, units: str) -> list[ChartJob]:
+    """The decision charts: quality, zone shares and pumping level against rate; zone
+    estimates."""
+    from blendq.charts import quality
 
-    section = scenario_section(a, compare(a), units)
-    for b in section.blocks:
-        if isinstance(b, Figure) and b.figure is not None:
-            b.figure.blendq_svg = False
-    return section
-
-
-def _charts(a: Analysis, units: str) -> list[Figure]:
-    try:
-        from blendq.charts import quality
-    except ImportError:  # charts are optional for the text outputs
-        return []
     s = a.project.settings
-    figs = [
-        rendered("Discharge quality against pumping rate: median, band, limits, the step samples "
-               "and the operating window.",
-               quality.quality_vs_rate(a.prediction, a.window, a.limits, s.margin,
-                                              s.interval, a.project, units=units)),
-        rendered("Share of the discharge from each zone against pumping rate.",
-               quality.zone_shares(a.prediction, a.project.zone_names, a.window, units=units)),
-        rendered(f"Pumping level against rate after {s.horizon:g} days of pumping (the operating "
-               "horizon), with the intake and screen limits. The measured step levels are from "
-               "the hours-long test and so lie above the long-term prediction.",
-               quality.pumping_level(a.prediction, a.project, a.window, units=units)),
-        rendered("Zone estimates with intervals; unresolved zones as the range the data allow.",
-               quality.zone_estimates(a.zones, a.prediction.analytes)),
+    return [
+        ChartJob("Discharge quality against pumping rate: median, band, limits, the step "
+                 "samples and the operating window.", quality.quality_vs_rate,
+                 (a.prediction, a.window, a.limits, s.margin, s.interval, a.project, units)),
+        ChartJob("Share of the discharge from each zone against pumping rate.",
+                 quality.zone_shares, (a.prediction, a.project.zone_names, a.window, units)),
+        ChartJob(f"Pumping level against rate after {s.horizon:g} days of pumping (the "
+                 "operating horizon), with the intake and screen limits. The measured step "
+                 "levels are from the hours-long test and so lie above the long-term "
+                 "prediction.", quality.pumping_level, (a.prediction, a.project, a.window, units)),
+        ChartJob("Zone estimates with intervals; unresolved zones as the range the data allow.",
+                 quality.zone_estimates, (a.zones, a.prediction.analytes)),
     ]
-    return figs
 
 
-def build_document(a: Analysis, units: str = "US", created: str = "") -> Document:
-    """The report of an analysis as a renderer-neutral document."""
+def build_document(a: Analysis, units: str = "US", created: str = "",
+                   charts: ChartPool | None = None) -> Document:
+    """The report of an analysis as a renderer-neutral document.
+
+    ``charts`` draws the charts while the text is built (a pool of its own is started when
+    none is given; see :class:`blendq.chart_pool.ChartPool`).
+    """
+    if charts is None:
+        with ChartPool() as pool:
+            return build_document(a, units, created, pool)
     p = a.project
     s = p.settings
+    comparison = None
+    if p.scenarios:
+        from blendq.scenarios import compare
+
+        comparison = compare(a)
+    jobs = quality_jobs(a, units)
+    sd_jobs = step_drawdown_jobs(a, units)
+    scenario_job = [scenario_chart_job(a, comparison, units)] if comparison else []
+    # the scenario chart, the slowest to draw, goes first: the two workers end closer together
+    collect = charts.submit([*scenario_job, *jobs, *sd_jobs])
     w = p.well
     decision = decision_sentence(a, units)
     inputs = KeyValues([
@@ -382,9 +333,9 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
             Table(at_rate_table(a, rec_rate, units),
                   f"Predicted discharge at {format_quantity(rec_rate, 'rate', units)}."),
         ), "window"),
-        Section("Charts", tuple(_charts(a, units)) or (Paragraph("Charts unavailable."),), "charts"),
-        # the scenario section is built while the charts above are being drawn
-        step_drawdown_section(a, units),
+        Section("Charts", (), "charts"),  # the figures come last, when they are drawn
+        Section("Options compared", (), "scenarios"),
+        Section("Step-drawdown test and well condition", (), "stepdrawdown"),
         Section("Assumptions", (BulletList(ASSUMPTIONS),), "assumptions"),
         Section("Methods and references", (
             Paragraph("Zone inflow: common wellbore head, q_i = G_i (h0_i - h_w) with optional "
@@ -402,21 +353,18 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
             Paragraph(f"blendq {__version__}."),
         ), "methods"),
     ]
-    def meanwhile():
-        extra = []
-        if p.scenarios:
-            global _PENDING
-            scen = _scenario_section(a, units)
-            _PENDING = [b.figure for b in _pending([scen])]
-            done = {id(b): _render_one(i) for i, b in enumerate(_pending([scen]))}
-            extra = _replace([scen], done)
-        import matplotlib.backends.backend_pdf  # noqa: F401 - warm the PDF writer meanwhile
-
-        return extra
-
-    sections, extra = render_all(sections, meanwhile)
-    k = next(i for i, sec in enumerate(sections) if sec.key == "charts") + 1
-    sections[k:k] = extra
+    figures = collect()
+    k, n = len(scenario_job), len(scenario_job) + len(jobs)
+    chart_blocks = {
+        "charts": tuple(figures[k:n]),
+        "stepdrawdown": step_drawdown_section(a, units, figures[n:]).blocks,
+    }
+    if comparison is not None:
+        chart_blocks["scenarios"] = scenario_section(a, comparison, units,
+                                                     chart=figures[0]).blocks
+    sections = [Section(sec.heading, chart_blocks[sec.key], sec.key)
+                if sec.key in chart_blocks else sec
+                for sec in sections if sec.key != "scenarios" or comparison is not None]
     return Document(title=f"Discharge quality and operating window: {w.name}",
                     subtitle=p.name, created=created, sections=tuple(sections))
 
@@ -444,13 +392,17 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
     }
 
 
-def output_files(a: Analysis, units: str = "US", created: str = "") -> dict[str, bytes | str]:
-    """All files of a report folder: report.html, report.pdf, CSV tables, summary.json, charts."""
+def output_files(a: Analysis, units: str = "US", created: str = "",
+                 charts: ChartPool | None = None) -> dict[str, bytes | str]:
+    """All files of a report folder: report.html, report.pdf, CSV tables, summary.json, charts.
+
+    ``charts``: see :func:`build_document`.
+    """
     from blendq.outputs import to_csv_safe, to_json_stable
     from blendq.render_html import render_html
     from blendq.render_pdf import render_pdf_bytes
 
-    doc = build_document(a, units, created)
+    doc = build_document(a, units, created, charts)
     files: dict[str, bytes | str] = {
         "report.html": render_html(doc),
         "report.pdf": render_pdf_bytes(doc),

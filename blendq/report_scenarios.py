@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 
 from blendq.analytes import get_analyte
+from blendq.chart_pool import ChartJob, render_chart
 from blendq.document import Figure, Paragraph, Section, Table
 from blendq.scenarios import BASE_NAME, Comparison
 from blendq.units import DISPLAY_UNITS, display_unit_label, from_base
@@ -106,7 +107,20 @@ def widest_sentence(comparison: Comparison, units: str = "US") -> str:
     return text + ")."
 
 
-def scenario_section(analysis, comparison: Comparison, units: str = "US") -> Section:
+def scenario_chart_job(analysis, comparison: Comparison, units: str = "US") -> ChartJob:
+    """The chart of the scenario section, to be drawn (see :mod:`blendq.chart_pool`)."""
+    from blendq.charts.scenarios import scenario_chart, window_summary
+
+    return ChartJob(
+        "Median delivered quality against the well's pumping rate for each option, with the "
+        "limit and the operating margin; beneath, each option's operating window (which "
+        "also accounts for the prediction bands), recommended rate and pumping-level yield.",
+        scenario_chart, (comparison, analysis.limits, units), svg=False,
+        alt="Operating windows: " + "; ".join(window_summary(comparison, units)))
+
+
+def scenario_section(analysis, comparison: Comparison, units: str = "US",
+                     chart: Figure | None = None) -> Section:
     """The report section comparing scenarios.
 
     Parameters
@@ -115,6 +129,8 @@ def scenario_section(analysis, comparison: Comparison, units: str = "US") -> Sec
     comparison : Comparison
         From :func:`blendq.scenarios.compare`.
     units : {"US", "SI"}
+    chart : Figure, optional
+        The drawn :func:`scenario_chart_job`; drawn here when not given.
 
     Returns
     -------
@@ -122,6 +138,8 @@ def scenario_section(analysis, comparison: Comparison, units: str = "US") -> Sec
         Key ``"scenarios"``.
     """
     s = analysis.project.settings
+    if chart is None:
+        chart = (job := scenario_chart_job(analysis, comparison, units)).figure(render_chart(job))
     blocks = [
         Paragraph(widest_sentence(comparison, units)),
         Paragraph("Each option is the calibrated well model with the changes listed, evaluated "
@@ -134,16 +152,6 @@ def scenario_section(analysis, comparison: Comparison, units: str = "US") -> Sec
         Table(compact_display_table(comparison, units, s.interval),
               "Options compared at the recommended rate of each (median and band of the "
               "delivered concentration)."),
+        chart,
     ]
-    try:
-        from blendq.charts.scenarios import scenario_chart, window_summary
-    except ImportError:  # charts are optional for the text outputs
-        pass
-    else:
-        blocks.append(Figure(
-            "Median delivered quality against the well's pumping rate for each option, with the "
-            "limit and the operating margin; beneath, each option's operating window (which "
-            "also accounts for the prediction bands), recommended rate and pumping-level yield.",
-            alt="Operating windows: " + "; ".join(window_summary(comparison, units)),
-            figure=scenario_chart(comparison, analysis.limits, units)))
     return Section("Options compared", tuple(blocks), "scenarios")

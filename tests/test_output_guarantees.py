@@ -1,5 +1,5 @@
 """What blendq promises about its files: inputs are never modified; a failed run leaves no
-partial report and an older report intact; the same seed gives byte-identical summary.json;
+partial report and an older report intact; the same seed gives byte-identical files;
 user text is escaped in the HTML report; CSV cells a spreadsheet would run as a formula are
 made inert.
 
@@ -89,7 +89,7 @@ def test_inputs_never_modified(run):
     assert len(run["before"]) == 6
 
 
-def test_same_seed_gives_identical_summary(run, tmp_path):
+def test_same_seed_gives_identical_files(run, tmp_path):
     again = _invoke("report", run["project"], "--out", tmp_path / "again", "--draws", DRAWS)
     assert again.exit_code == 0, again.output
     first = (run["out"] / "summary.json").read_bytes()
@@ -97,6 +97,10 @@ def test_same_seed_gives_identical_summary(run, tmp_path):
     for table in ("zones", "sweep", "residuals", "hydraulics", "qa_findings"):
         name = f"tables/{table}.csv"
         assert (tmp_path / "again" / name).read_bytes() == (run["out"] / name).read_bytes()
+    # every file, the PDF, the HTML page and the charts (PNG and SVG) included
+    files = _checksums(run["out"])
+    assert {"report.pdf", "report.html", "charts/chart_1.svg"} <= set(files)
+    assert _checksums(tmp_path / "again") == files
 
 
 def test_user_text_is_escaped_in_html(run):
