@@ -23,6 +23,7 @@ import numpy as np
 from blendq import qp
 from blendq.errors import ModelError
 from blendq.estimation import FitResult, Problem, row_weights, scaled_pinv, solve_concentrations
+from blendq.mixing import intake_weights, intake_weights_by_zone
 
 
 def residual_layout(problem: Problem) -> dict[str, slice]:
@@ -200,78 +201,6 @@ def predict(fit: FitResult, draws: Draws, rates, conductance_factor=None,
     conc = np.einsum("brn,bna->bra", shares, draws.zone_values)
     level = model.pumping_level_depth(rates, state)
     return Prediction(rates, conc, level, shares, state.zone_flow, list(draws.analytes))
-
-
-def intake_weights(flows, geometry) -> np.ndarray:
-    """Discharge weights a_i from zone flows by pass-through fractions, shape (..., n_zones).
-
-    The same quantity as :func:`blendq.mixing.discharge_weights` (complete mixing at each node
-    of the wellbore, steady flow), computed with O(n) work per rate instead of carrying a full
-    composition vector through every node, for sweeps over many rates and draws. NaN where
-    the pumping rate is zero.
-
-    Notes
-    -----
-    A node's water leaves in proportion to its outflows, so the part of zone i's inflow
-    q_i^+ that reaches the intake is q_i^+ times, for every node on the way (zone i's node
-    included, the intake excluded), the fraction of that node's water that flows on towards
-    the intake; the intake pumps the same fraction Q / T_in of all the water T_in arriving at
-    it, so
-
-        a_i = q_i^+ prod_k (F_k / T_k) / T_in
-
-    with T_k the water entering node k (its own inflow plus the stream arriving from the side
-    away from the intake) and F_k the segment flow leaving it towards the intake.
-
-    References
-    ----------
-    Konikow, Hornberger, Halford and Hanson (2009) USGS TM 6-A30 (intraborehole flow between
-    the nodes of a multi-node well).
-    """
-    flows = np.asarray(flows, float)
-    parts = intake_weights_by_zone([flows[..., i] for i in range(flows.shape[-1])], geometry)
-    return np.stack(parts, axis=-1)
-
-
-def intake_weights_by_zone(flows: list, geometry) -> list:
-    """:func:`intake_weights` on one array per zone (any common shape), returning one array of
-    weights per zone: the layout a sweep uses so that every pass runs over contiguous memory."""
-    from blendq.mixing import INTAKE
-
-    nodes = geometry.nodes
-    k_in = nodes.index(INTAKE)
-    rate = sum(flows)
-    inflow = [np.maximum(f, 0.0) for f in flows]
-    # downward flow in the segment below node k, k = 0 .. N-2 (node inflow summed from the top)
-    seg_down = []
-    running = np.zeros_like(rate)
-    for code in nodes[:-1]:
-        running = running + (-rate if code == INTAKE else flows[code])
-        seg_down.append(running)
-    out = [np.zeros_like(rate) for _ in flows]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        # above the intake: walk up from it; water moves down
-        passed = np.ones_like(rate)
-        for k in range(k_in - 1, -1, -1):
-            i = nodes[k]
-            from_above = np.maximum(seg_down[k - 1], 0.0) if k > 0 else 0.0
-            total = from_above + inflow[i]
-            passed = passed * np.where(total > 0, np.maximum(seg_down[k], 0.0) / total, 0.0)
-            out[i] = inflow[i] * passed
-        # below the intake: walk down from it; water moves up
-        passed = np.ones_like(rate)
-        for k in range(k_in + 1, len(nodes)):
-            i = nodes[k]
-            from_below = np.maximum(-seg_down[k], 0.0) if k < len(nodes) - 1 else 0.0
-            total = from_below + inflow[i]
-            passed = passed * np.where(total > 0, np.maximum(-seg_down[k - 1], 0.0) / total, 0.0)
-            out[i] = inflow[i] * passed
-        # the intake mixes what arrives from both sides; part of it may pass on to a thief
-        arriving = (np.maximum(seg_down[k_in - 1], 0.0) if k_in > 0 else 0.0) + (
-            np.maximum(-seg_down[k_in], 0.0) if k_in < len(nodes) - 1 else 0.0)
-        scale = sum(np.abs(f) for f in flows)
-        pumped = (rate > 1e-9 * scale) & (arriving > 0)
-        return [np.where(pumped, o / arriving, np.nan) for o in out]
 
 
 @dataclass(frozen=True)

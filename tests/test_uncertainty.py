@@ -2,7 +2,7 @@
 
 Sources:
 - Coverage of a confidence interval (e.g. Efron and Tibshirani 1993, An Introduction to the
-  Bootstrap, ch. 12-13; BRIEF section 5): over repeated synthetic experiments, a 90 % interval
+  Bootstrap, ch. 12-13): over repeated synthetic experiments, a 90 % interval
   contains the true value in about 90 % of them. With the lab error stated correctly and a
   linear model, the parametric bootstrap interval is exact up to Monte Carlo noise.
 - Linearised least squares (Golub and Pereyra 1973; any regression text): for residuals
@@ -10,8 +10,8 @@ Sources:
   (J^T J)^-1, and the zone values of a linear problem have covariance (A^T W^2 A)^-1.
 - Continuity at every node of the wellbore (Konikow et al. 2009, USGS TM 6-A30): discharge
   weights are >= 0 and sum to one; the pass-through computation of intake_weights must equal
-  blendq.mixing.discharge_weights.
-- Linear zone law q_i = G_i (h0_i - h_w) with sum q_i = Q (BRIEF section 2): scaling every G_i
+  the node-by-node mixing of a full composition vector (blendq.mixing.discharge_composition).
+- Linear zone law q_i = G_i (h0_i - h_w) with sum q_i = Q (Thiem 1906, one conductance per zone): scaling every G_i
   by f gives at rate Q the zone flows of rate Q / f, times f, hence the same shares.
 """
 
@@ -158,15 +158,17 @@ def test_exceedance_and_quantiles_hand_built():
 @given(st.integers(0, 2**32 - 1), st.floats(0.0, 120.0), st.integers(1, 5))
 def test_intake_weights_equal_mixing(seed, intake, n):
     # any zone flows (thieves included) and any intake depth: the pass-through weights equal the
-    # node-by-node mixing of blendq.mixing, sum to one and are never negative
+    # node-by-node mixing of a full composition vector (blendq.mixing.discharge_composition with
+    # the identity as zone values), sum to one and are never negative
     rng = np.random.default_rng(seed)
     top = np.sort(rng.uniform(5.0, 110.0, n))
     bot = top + rng.uniform(0.5, 5.0, n)
     geo = mixing.WellGeometry(top, bot, intake)
     flows = rng.normal(0.0, 100.0, (64, n))
     flows[::2] = np.abs(flows[::2])
-    a = mixing.discharge_weights(flows, geo)
+    a = mixing.discharge_composition(flows, geo)
     b = uncertainty.intake_weights(flows, geo)
+    np.testing.assert_array_equal(mixing.discharge_weights(flows, geo), b)
     np.testing.assert_array_equal(np.isfinite(a), np.isfinite(b))
     ok = np.isfinite(b).all(-1)
     np.testing.assert_allclose(b[ok], a[ok], rtol=1e-10, atol=1e-12)
