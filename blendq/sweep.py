@@ -1,4 +1,4 @@
-"""Rate sweep and operating window (BRIEF section 6).
+"""Rate sweep and operating window (docs/methods.md, section 8).
 
 For a grid of rates: predicted discharge concentration per analyte with its band, the
 probability of exceeding margin x limit, the pumping level and each zone's share. The window is

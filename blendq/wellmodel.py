@@ -5,7 +5,7 @@ nonlinear losses, the well loss) and answers, for any array of rates, the zone f
 discharge weights and the pumping level. :func:`prior_hydraulics` turns the zone properties of
 a project into prior values with spreads for the fit (:mod:`blendq.estimation`).
 
-Conductances from properties (BRIEF section 2):
+Conductances from properties (docs/methods.md, section 1):
 
 * ``steady``: Thiem with skin, G = 2 pi T / (ln(R/r_w) + s);
 * ``transient``: Cooper-Jacob with skin at time t, G = 4 pi T / (ln(2.25 T t/(r_w^2 S)) + 2 s);

@@ -91,7 +91,7 @@ def test_nitrite_factor_against_molmass():
     factor = nitrite_n_to_no2()
     # M(NO2)/M(N) from molmass: 46.0055/14.0067 = 3.2845
     assert factor == pytest.approx(_molmass("NO2") / _molmass("N"), rel=1e-4)
-    # about 3.29 (BRIEF section 7 attributes 3.29 to NRC 1995: from memory, not verified here)
+    # about 3.29 (a factor attributed to NRC 1995: from memory, not verified here)
     assert factor == pytest.approx(3.29, rel=2e-3)
 
 

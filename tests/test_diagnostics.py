@@ -4,7 +4,7 @@ Sources:
 - Identifiability of a linear least-squares problem (any numerical linear algebra text, e.g.
   Golub and Van Loan, Matrix Computations): with fewer independent weight patterns than zones,
   the zone values along the null space of the weight matrix are not determined by the data
-  (BRIEF section 5: "never print a precise number for a zone the data cannot see").
+  (so no precise number may be printed for a zone the data cannot see).
 - Standard normal quantile: z(0.95) = 1.6449 (any statistical table, e.g. Abramowitz and
   Stegun 1964, table 26.5).
 """

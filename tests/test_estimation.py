@@ -9,7 +9,8 @@ Sources:
   196-99) depth-dependent sampling mass balance: with upward flows F_above, F_below and
   concentrations C_above, C_below just above and below an inflowing zone,
   c_zone = (F_above C_above - F_below C_below) / (F_above - F_below).
-- Censored (non-detect) results as inequalities, BRIEF section 5: the fitted blend at a
+- Censored (non-detect) results as inequalities (Helsel 2012, Statistics for Censored
+  Environmental Data, 2nd ed.): the fitted blend at a
   non-detect step may not exceed the detection limit.
 """
 
@@ -189,7 +190,7 @@ def test_predict_is_weights_times_zone_values():
     assert pred.shape == (7, 2)
     np.testing.assert_allclose(pred, result.model.weights(rates) @ result.zone_values(),
                                rtol=1e-12)
-    # a blend lies between the smallest and the largest zone value (BRIEF section 3)
+    # a blend lies between the smallest and the largest zone value (a flow-weighted mean)
     zv = result.zone_values()
     assert np.all(pred >= zv.min(0) - 1e-12) and np.all(pred <= zv.max(0) + 1e-12)
 

@@ -61,7 +61,7 @@ def test_well(us):
     assert w.demand == pytest.approx(400 * GPM, rel=1e-12)
     # 2.5 s^2/ft^5 in d^2/m^5: 1 s = 1/86400 d
     assert w.well_loss == pytest.approx(2.5 / 86400**2 / FT**5, rel=1e-12)
-    # domain brief (Walton criteria): 1 s^2/ft^5 = 0.1056 min^2/m^5
+    # 1 s^2/ft^5 = (1/60 min)^2 / (0.3048 m)^5 = 0.1056 min^2/m^5 (NIST SP 811 foot)
     assert w.well_loss / 2.5 * 1440**2 == pytest.approx(0.1056, rel=5e-4)
     assert w.keep_above_screen is True
     assert w.radius_of_influence == pytest.approx(1500 * FT, rel=1e-12)

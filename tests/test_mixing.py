@@ -7,7 +7,8 @@ Sources:
   and co-workers' depth-dependent sampling: with upward flows F_below, F_above and
   concentrations C_below, C_above measured just below and just above an inflowing zone,
   c_zone = (F_above C_above - F_below C_below) / (F_above - F_below).
-- Complete mixing at junctions, steady flow, no reaction (BRIEF section 3): the discharge is a
+- Complete mixing at junctions, steady flow, no reaction (Konikow et al. 2009, USGS TM 6-A30):
+  the discharge is a
   flow-weighted mix, so its weights are >= 0 and sum to one, and a blend lies between the
   smallest and the largest zone value.
 """
@@ -235,7 +236,7 @@ def _scale(flows, rate):
 @given(wells())
 def test_zone_flows_sum_to_the_rate(well):
     geom, flows, rate, _ = well
-    # sum_i q_i = Q (BRIEF section 2); at Q = 0 the ambient crossflow sums to zero
+    # sum_i q_i = Q (continuity at the well); at Q = 0 the ambient crossflow sums to zero
     assert abs(flows.sum() - rate) <= 1e-10 * _scale(flows, rate)
 
 

@@ -1,8 +1,7 @@
 """Tests of blendq.observations: the fitting rows of each analyte.
 
 Sources:
-- Censored data (Helsel, D.R. 2012, Statistics for Censored Environmental Data, 2nd ed.; BRIEF
-  section 5): a non-detect is an inequality at its detection limit, not a value such as DL/2,
+- Censored data (Helsel, D.R. 2012, Statistics for Censored Environmental Data, 2nd ed.): a non-detect is an inequality at its detection limit, not a value such as DL/2,
   so it becomes a censored row and never a detected value.
 - The uncertainty floors in lab_sigma (half the detection limit; 0.1 % of the largest result)
   are common practice, stated in its docstring; tested here as documented behaviour.

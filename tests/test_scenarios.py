@@ -125,7 +125,7 @@ def test_redevelopment_factor_thiem(analysis):
 
 # ------------------------------------------------------------------------------- blending
 def test_blend_concentration_hand_values():
-    # (Q C_w + Q_b C_b) / (Q + Q_b), BRIEF section 6: (100 x 10 + 50 x 1) / 150 = 7
+    # (Q C_w + Q_b C_b) / (Q + Q_b), a flow-weighted mean: (100 x 10 + 50 x 1) / 150 = 7
     np.testing.assert_allclose(sc.blend_concentration(10.0, 100.0, 50.0, 1.0), 7.0, rtol=1e-15)
     # no well water: the second source alone
     np.testing.assert_allclose(sc.blend_concentration(np.nan, 0.0, 50.0, 1.0), 1.0, rtol=1e-15)
@@ -214,7 +214,7 @@ def test_blend_needs_every_predicted_analyte(analysis):
 
 # ------------------------------------------------------------------------ intake and heads
 def test_uniform_head_drop_shifts_the_pumping_level_by_the_drop(analysis):
-    # linear zones: h_w = (sum G h0 - Q) / sum G (BRIEF section 2), so lowering every h0 by dh
+    # linear zones: h_w = (sum G h0 - Q) / sum G (from sum G (h0 - h_w) = Q), so lowering every h0 by dh
     # lowers h_w by dh and leaves the zone flows and shares unchanged
     base = sc.evaluate(analysis, _scenario(analysis, {}))
     low = sc.evaluate(analysis, _scenario(analysis, {"lower_heads": "10 ft"}))

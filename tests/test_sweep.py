@@ -1,8 +1,8 @@
 """Tests of blendq.sweep: the operating window on hand-built predictions, and the rate sweep.
 
 Sources:
-- BRIEF section 6: the window is the set of rates where, for every analyte,
-  P(C > margin x limit) <= alpha, and the pumping level stays above the intake plus the
+- Definition (docs/methods.md, section 8): the window is the set of rates where, for every
+  analyte, P(C > margin x limit) <= alpha, and the pumping level stays above the intake plus the
   required submergence (and, if asked, above the top screen), within the pump's range; it may
   be several intervals; the recommended rate is the largest compliant rate not above the
   demand; an empty window comes with its reason.

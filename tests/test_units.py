@@ -136,14 +136,14 @@ def test_milliequivalents_per_litre():
 
 def test_walton_well_loss_criteria_in_si():
     # 1 s^2/ft^5 = (1/60)^2 min^2 / 0.3048^5 m^5 = 0.105591... min^2/m^5 (NIST SP 811 foot);
-    # the SI form of Walton's (1962) criteria quotes 1 s^2/ft^5 = 0.1056 min^2/m^5 (BRIEF s. 4)
+    # the SI form of Walton's (1962) criteria quotes 1 s^2/ft^5 = 0.1056 min^2/m^5
     by_hand = (1.0 / 60.0) ** 2 / FOOT_M**5
     assert by_hand == pytest.approx(0.1056, rel=1e-3)
     c_base = to_base(1.0, "s2/ft5", "well_loss")
     assert from_base(c_base, "well_loss", "min2/m5") == pytest.approx(by_hand, rel=1e-12)
     assert from_base(c_base, "well_loss", "min2/m5") == pytest.approx(0.1056, rel=1e-3)
     # the criteria 5, 10 and 40 s^2/ft^5 become about 0.53, 1.06 and 4.2 min^2/m^5, the
-    # rounded 0.5, 1 and 4 min^2/m^5 quoted in SI (Walton 1962, from memory: BRIEF s. 4)
+    # rounded 0.5, 1 and 4 min^2/m^5 quoted in SI (Walton 1962, from memory)
     si = [from_base(to_base(c, "s2/ft5", "well_loss"), "well_loss", "min2/m5")
           for c in (5.0, 10.0, 40.0)]
     np.testing.assert_allclose(si, [0.528, 1.056, 4.224], rtol=1e-3)
