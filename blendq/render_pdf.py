@@ -51,6 +51,7 @@ __all__ = [
     "Pagination",
     "Placed",
     "paginate",
+    "prepare",
     "render_pdf",
     "render_pdf_bytes",
     "text_width",
@@ -100,6 +101,13 @@ def _register_fonts() -> None:
     pdfmetrics.registerFont(TTFont(FONT_BOLD, os.path.join(folder, "DejaVuSans-Bold.ttf")))
     for bold, italic in ((0, 0), (0, 1), (1, 0), (1, 1)):  # <b> in markup picks the bold face
         addMapping(FONT, bold, italic, FONT_BOLD if bold else FONT)
+
+
+def prepare() -> None:
+    """Import the layout engine and load the fonts now (both happen on first use anyway)."""
+    _register_fonts()
+    _flowable_classes()
+    import reportlab.platypus  # noqa: F401
 
 
 def text_width(text: str, size: float, bold: bool = False) -> float:

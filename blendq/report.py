@@ -353,6 +353,9 @@ def build_document(a: Analysis, units: str = "US", created: str = "",
             Paragraph(f"blendq {__version__}."),
         ), "methods"),
     ]
+    from blendq.render_pdf import prepare  # load the PDF fonts while the charts are drawn
+
+    prepare()
     figures = collect()
     k, n = len(scenario_job), len(scenario_job) + len(jobs)
     chart_blocks = {
