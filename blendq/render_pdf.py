@@ -225,6 +225,7 @@ def _flowable_classes() -> dict[str, type]:
 
         bq_tag = ""
         bq_label = ""
+        bq_caption_style: Any = None
         bq_fixed = 2  # caption row and column-label row
         bq_note = 0  # 1 when the last row is a note
         bq_continued = False
@@ -235,10 +236,11 @@ def _flowable_classes() -> dict[str, type]:
                 head, rest = parts
                 for part in parts:
                     part.bq_tag, part.bq_label = self.bq_tag, self.bq_label
+                    part.bq_caption_style = self.bq_caption_style
                 head.bq_continued, head.bq_note = self.bq_continued, 0
                 rest.bq_continued, rest.bq_note = True, self.bq_note
                 caption = RLParagraph(f"<b>{escape(self.bq_label)}</b> (continued)",
-                                      _CAPTION_STYLE[0])
+                                      self.bq_caption_style)
                 # a new row list: the parts share the row lists of the table they came from
                 rest._cellvalues[0] = [caption, *rest._cellvalues[0][1:]]
             return parts
@@ -339,7 +341,6 @@ def _flowable_classes() -> dict[str, type]:
 
 
 _CLASSES: dict[str, type] = {}
-_CAPTION_STYLE: list[Any] = []  # the caption style, for the "(continued)" captions
 
 
 # ---------------------------------------------------------------------------------------------
@@ -400,7 +401,6 @@ class _Builder:
         self.cell = {(bold, right): _style("cell", TABLE_SIZE, 1.3 * TABLE_SIZE, bold,
                                            alignment=TA_RIGHT if right else 0)
                      for bold in (False, True) for right in (False, True)}
-        _CAPTION_STYLE[:] = [self.caption]
 
     def _tag(self, kind: str) -> str:
         self.counts[kind] += 1
@@ -495,6 +495,7 @@ class _Builder:
                                         spaceBefore=10.0)
         table.setStyle(TableStyle(commands))
         table.bq_tag, table.bq_label, table.bq_note = tag, label[:-1], int(bool(block.note))
+        table.bq_caption_style = self.caption
         return [table]
 
     def figure(self, block: Figure) -> list[Any]:
