@@ -22,6 +22,7 @@ pint is used at the edges only: to read user input and to format output.
 from __future__ import annotations
 
 import functools
+import math
 import re
 
 import pint
@@ -246,7 +247,16 @@ def format_quantity(value: float, kind: str, system: str = "US", digits: int = 3
     """Format a base-unit magnitude in the display unit of ``system`` ("US" or "SI")."""
     unit = DISPLAY_UNITS[system].get(kind, BASE_UNITS[kind])
     mag = from_base(value, kind, unit)
-    return f"{mag:.{digits}g} {display_unit_label(unit)}"
+    return f"{significant(mag, digits)} {display_unit_label(unit)}"
+
+
+def significant(value: float, digits: int = 3) -> str:
+    """A number rounded to ``digits`` significant digits, as a reader expects it: thousands
+    with separators and no exponent (2,180 rather than 2.18e+03), very small or very large
+    numbers in exponent form."""
+    if math.isfinite(value) and 1e3 <= abs(value) < 1e9:
+        return f"{float(f'{value:.{digits}g}'):,.0f}"
+    return f"{value:.{digits}g}"
 
 
 def display_unit_label(unit: str) -> str:
