@@ -64,8 +64,9 @@ def comparison_display_table(comparison: Comparison, units: str = "US",
             label = get_analyte(a).label()
             row[f"{label} median"] = med
             row[f"{label} {interval:.0%} band"] = band
-        row["Window limited by"] = (r["upper_end_set_by"] if w.intervals
-                                    else w.reason_empty or "no rate meets every criterion")
+        row["Window limited by"] = (
+            f"low end: {r['lower_end_set_by']}; high end: {r['upper_end_set_by']}"
+            if w.intervals else w.reason_empty or "no rate meets every criterion")
         rows.append(row)
     return pd.DataFrame(rows)
 

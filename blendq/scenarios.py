@@ -570,6 +570,7 @@ def _row(analysis, res: ScenarioResult) -> dict:
         "window_high": max((hi for _, hi, _, _ in win.intervals), default=np.nan),
         "window_width": float(sum(widths)) if widths else 0.0,
         "n_intervals": len(win.intervals),
+        "lower_end_set_by": win.intervals[0][2] if win.intervals else win.reason_empty,
         "upper_end_set_by": win.intervals[-1][3] if win.intervals else win.reason_empty,
         "recommended": np.nan if win.recommended is None else win.recommended,
         "blend_rate": res.scenario.blend.rate if res.scenario.blend else 0.0,
@@ -603,7 +604,8 @@ def compare(analysis, scenarios: list[Scenario] | None = None,
     -------
     Comparison
         ``table`` columns (base units): scenario, changes, window_low, window_high,
-        window_width [m^3/d] (sum of the interval widths), n_intervals, upper_end_set_by,
+        window_width [m^3/d] (sum of the interval widths), n_intervals, lower_end_set_by and
+        upper_end_set_by (what sets the lowest and the highest end of the window),
         recommended, blend_rate, yield, yield_beyond_grid, delivered [m^3/d] (recommended well
         rate + blend rate), and per analyte ``<a>_median``, ``<a>_lower``, ``<a>_upper``
         [mg/L] at the recommended rate.

@@ -88,3 +88,15 @@ def test_cli_compare_bad_options(args, field):
     res = runner.invoke(app, ["compare", str(DEMO), "--draws", "20", *args])
     assert res.exit_code == 2
     assert f"command line field {field}" in res.output
+
+
+def test_limited_by_names_both_ends(setup):
+    a, comp = setup
+    us = comparison_display_table(comp, "US")
+    for res, text in zip(comp.results, us["Window limited by"], strict=True):
+        w = res.window
+        if w.intervals:  # what closes the lowest end and what closes the highest end
+            assert text == f"low end: {w.intervals[0][2]}; high end: {w.intervals[-1][3]}"
+        else:
+            assert text == (w.reason_empty or "no rate meets every criterion")
+    assert list(comp.table["lower_end_set_by"][:1]) == [comp.results[0].window.intervals[0][2]]
