@@ -384,8 +384,6 @@ class _Builder:
     """Turns document blocks into flowables for a text block ``width`` x ``height`` [pt]."""
 
     def __init__(self, width: float, height: float) -> None:
-        from reportlab.lib.enums import TA_RIGHT
-
         self.width, self.height = width, height
         self.counts = {"paragraph": 0, "table": 0, "figure": 0, "callout": 0}
         self.cls = _flowable_classes()
@@ -393,14 +391,10 @@ class _Builder:
         self.bullet = _style("bullet", BODY, BODY_LEAD, leftIndent=13.0, bulletIndent=3.0,
                              bulletFontName=FONT, spaceBefore=2.0)
         self.small = _style("small", SMALL, SMALL_LEAD, grey="muted")
-        self.label = _style("label", SMALL, SMALL_LEAD, bold=True, grey="muted")
         self.caption = _style("caption", BODY, BODY * 1.4)
         self.heading = _style("heading", HEADING, HEADING_LEAD, bold=True)
         self.heading_number = _style("heading-number", HEADING, HEADING_LEAD, bold=True,
                                      grey="muted")
-        self.cell = {(bold, right): _style("cell", TABLE_SIZE, 1.3 * TABLE_SIZE, bold,
-                                           alignment=TA_RIGHT if right else 0)
-                     for bold in (False, True) for right in (False, True)}
 
     def _tag(self, kind: str) -> str:
         self.counts[kind] += 1
@@ -440,6 +434,7 @@ class _Builder:
         return [KeepTogether([para])]
 
     def table(self, block: Table) -> list[Any]:
+        from reportlab.lib.enums import TA_LEFT, TA_RIGHT
         from reportlab.platypus import TableStyle
 
         tag = self._tag("table")
@@ -455,8 +450,9 @@ class _Builder:
         if widths is None:
             widths = _column_widths(header, rows, self.width, size, force=True)
         assert widths is not None
-        cell = {key: _style("cell", size, 1.3 * size, key[0], alignment=style.alignment)
-                for key, style in self.cell.items()}
+        cell = {(bold, right): _style("cell", size, 1.3 * size, bold,
+                                     alignment=TA_RIGHT if right else TA_LEFT)
+                for bold in (False, True) for right in (False, True)}
         caption = self.cls["TaggedParagraph"](
             f"<b>{escape(label)}</b> {_markup(block.caption)}", self.caption)
         data: list[list[Any]] = [[caption] + [""] * (len(header) - 1)]
@@ -478,7 +474,7 @@ class _Builder:
             ("BOTTOMPADDING", (0, 0), (-1, 0), 4.0),
             ("LINEBELOW", (0, 0), (-1, 0), 1.1, _grey("ink")),
             ("LINEBELOW", (0, 1), (-1, 1), 0.6, _grey("ink")),
-            ("LINEBELOW", (0, 2), (-1, -1), 0.3, _grey("faint")),
+            ("LINEBELOW", (0, 2), (-1, n_body + 1), 0.3, _grey("faint")),
             ("LINEBELOW", (0, n_body + 1), (-1, n_body + 1), 1.1, _grey("ink")),
         ]
         commands += [("BACKGROUND", (0, 2 + k), (-1, 2 + k), _grey("wash"))
@@ -489,8 +485,7 @@ class _Builder:
         if block.note:
             data.append([self.para(block.note, self.small)] + [""] * (len(header) - 1))
             commands += [("SPAN", (0, -1), (-1, -1)), ("LEFTPADDING", (0, -1), (-1, -1), 0.0),
-                         ("TOPPADDING", (0, -1), (-1, -1), 3.0),
-                         ("LINEBELOW", (0, -1), (-1, -1), 0, _grey("ink"))]
+                         ("TOPPADDING", (0, -1), (-1, -1), 3.0)]
         table = self.cls["TaggedTable"](data, colWidths=widths, repeatRows=2, hAlign="LEFT",
                                         spaceBefore=10.0)
         table.setStyle(TableStyle(commands))
