@@ -1,26 +1,32 @@
 """Draw the report's charts in worker processes while the main process goes on.
 
 Drawing the charts is the largest single cost of a report, and the analysis cannot be split
-across processes, so the two overlap: a :class:`ChartPool` forks two workers before the
-analysis starts; they import matplotlib and load the chart font while the main process fits
-and samples; the charts are then handed to them as :class:`ChartJob` objects (a module-level
-drawing function and its arguments, sent to the worker by pickling) and come back as PNG bytes
-and SVG text. The main process meanwhile builds the text of the report.
+across processes, so the two overlap. A :class:`ChartPool` forks a chart server as the
+command starts (this module imports nothing heavy, so that can happen before numpy is loaded).
+The server imports matplotlib and what unpickling an analysis needs, on the second core, while
+the main process does the same imports, loads the project and runs the analysis; then it forks
+two workers, which share those imports. The charts are handed over as :class:`ChartJob`
+objects (a module-level drawing function and its arguments, sent by pickling) and come back as
+PNG bytes and SVG text, while the main process builds the text of the report.
 
 Where the system cannot fork (Windows, macOS' default start method) or has one core, the pool
-draws the charts in the main process when asked; the bytes are the same either way.
+draws the charts in the main process when asked; the bytes are the same either way. Ctrl-C is
+left to the main process, which closes the pool.
 """
 
 from __future__ import annotations
 
+import atexit
+import functools
 import io
 import multiprocessing as mp
 import os
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from blendq.document import Figure
+if TYPE_CHECKING:  # the module imports nothing heavy: a pool can start before numpy is loaded
+    from blendq.document import Figure
 
 __all__ = ["CHART_DPI", "ChartJob", "ChartPool", "render_chart"]
 
@@ -54,6 +60,8 @@ class ChartJob:
 
     def figure(self, rendered: tuple[bytes, str | None]) -> Figure:
         """The document figure holding this chart's rendered PNG (and SVG)."""
+        from blendq.document import Figure
+
         png, svg = rendered
         return Figure(self.caption, alt=self.alt, png=png, svg=svg)
 
@@ -82,7 +90,7 @@ def render_chart(job: ChartJob) -> tuple[bytes, str | None]:
 
 
 def _warm_up() -> None:
-    """Worker start: import matplotlib and load the chart font before the first chart comes."""
+    """Import matplotlib and load the chart font before the first chart comes."""
     from matplotlib.backends import backend_agg, backend_svg  # noqa: F401
     from matplotlib.figure import Figure as MplFigure
 
@@ -91,10 +99,65 @@ def _warm_up() -> None:
     fig.savefig(io.BytesIO(), format="png", dpi=20)
 
 
-class ChartPool:
-    """Two worker processes that draw charts, started when the pool is made.
+def _serve(requests: Any, results: Any, processes: int) -> None:
+    """The chart server: import once, fork the workers, then pass jobs on until told to stop.
 
-    Use as a context manager; leaving it stops the workers, also on an error.
+    Runs in its own process. Everything a job needs (matplotlib, and pandas, pint and scipy
+    to unpickle an analysis) is imported here before the workers are forked, so they start
+    with it. A request is ``(ticket, jobs)``; the answer ``(ticket, True, [(png, svg), ...])``
+    or ``(ticket, False, exception)``. ``None`` or a closed pipe ends the server.
+    """
+    import signal
+    import threading
+
+    # Ctrl-C is the main process's to handle: it closes the pool, which ends this server and
+    # its workers (they inherit this setting) without a traceback from each
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    _warm_up()
+    import blendq.pipeline  # noqa: F401 - what unpickling an analysis needs
+    import blendq.report  # noqa: F401 - and the chart functions the jobs name
+
+    lock = threading.Lock()  # answers come from the pool's result thread
+
+    def answer(message: tuple) -> None:
+        with lock:
+            results.send(message)
+
+    with mp.get_context("fork").Pool(processes) as pool:
+        while True:
+            try:
+                request = requests.recv()
+            except (EOFError, OSError):
+                break
+            if request is None:
+                break
+            ticket, jobs = request
+            pool.map_async(render_chart, jobs, chunksize=1,
+                           callback=lambda out, t=ticket: answer((t, True, out)),
+                           error_callback=lambda exc, t=ticket: answer((t, False, exc)))
+        pool.terminate()
+
+
+def _stop_server(server: Any, requests: Any) -> None:
+    """Ask the chart server to stop its workers and end; end it if it does not."""
+    try:
+        requests.send(None)
+        requests.close()
+    except (OSError, ValueError):  # already closed
+        pass
+    server.join(timeout=10.0)
+    if server.is_alive():
+        server.terminate()
+        server.join()
+
+
+class ChartPool:
+    """Worker processes that draw charts, started when the pool is made.
+
+    A server process is forked at once; it imports matplotlib (and what the jobs need) while
+    the caller goes on with its own work, then forks ``processes`` workers that share those
+    imports. Use as a context manager; leaving it stops the server and its workers, also on
+    an error.
 
     Parameters
     ----------
@@ -103,10 +166,24 @@ class ChartPool:
     """
 
     def __init__(self, processes: int = 2) -> None:
-        self._pool: Any = None
+        self._server: Any = None
+        self._requests: Any = None
+        self._results: Any = None
+        self._tickets = 0
+        self._answers: dict[int, tuple[bool, Any]] = {}
         if (processes > 0 and (os.cpu_count() or 1) > 1
                 and "fork" in mp.get_all_start_methods()):
-            self._pool = mp.get_context("fork").Pool(processes, initializer=_warm_up)
+            ctx = mp.get_context("fork")
+            get_requests, self._requests = ctx.Pipe(duplex=False)
+            self._results, send_results = ctx.Pipe(duplex=False)
+            self._server = ctx.Process(target=_serve, args=(get_requests, send_results,
+                                                            processes), name="blendq-charts")
+            self._server.start()
+            get_requests.close()
+            send_results.close()
+            # a pool left open must not keep the interpreter waiting for its server at exit
+            self._stop = functools.partial(_stop_server, self._server, self._requests)
+            atexit.register(self._stop)
 
     def __enter__(self) -> ChartPool:
         return self
@@ -115,17 +192,32 @@ class ChartPool:
         self.close()
 
     def close(self) -> None:
-        """Stop the workers (charts not yet collected are dropped)."""
-        if self._pool is not None:
-            self._pool.terminate()
-            self._pool.join()
-            self._pool = None
+        """Stop the server and its workers (charts not yet collected are dropped)."""
+        if self._server is not None:
+            atexit.unregister(self._stop)
+            self._stop()
+            self._results.close()
+            self._server = None
 
     def submit(self, jobs: Sequence[ChartJob]) -> Callable[[], list[Figure]]:
         """Start drawing ``jobs``; returns a function that waits for them and gives the
         document figures in the order of ``jobs``."""
         jobs = list(jobs)
-        if self._pool is None or not jobs:
+        if self._server is None or not jobs:
             return lambda: [job.figure(render_chart(job)) for job in jobs]
-        pending = self._pool.map_async(render_chart, jobs, chunksize=1)
-        return lambda: [job.figure(r) for job, r in zip(jobs, pending.get(), strict=True)]
+        ticket = self._tickets
+        self._tickets += 1
+        self._requests.send((ticket, jobs))
+
+        def collect() -> list[Figure]:
+            while ticket not in self._answers:
+                if self._server is None:
+                    raise RuntimeError("the chart pool was closed before its charts came")
+                number, ok, payload = self._results.recv()
+                self._answers[number] = (ok, payload)
+            ok, payload = self._answers.pop(ticket)
+            if not ok:
+                raise payload
+            return [job.figure(r) for job, r in zip(jobs, payload, strict=True)]
+
+        return collect

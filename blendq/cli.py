@@ -279,15 +279,19 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = No
     _guard(body)
 
 
-def _write_report(proj, out: Path, units: str, draws, seed) -> None:
+def _write_report(project: Path, out: Path, units: str, draws, seed) -> None:
     from blendq.chart_pool import ChartPool
-    from blendq.outputs import check_output_folder, write_outputs
-    from blendq.pipeline import decision_sentence
-    from blendq.report import output_files
 
-    protect = [proj.folder / f for f in proj.files.values()] if proj.folder else []
-    check_output_folder(out, protect)  # refuse a bad folder before the long run, not after
-    with ChartPool() as charts:  # the chart workers get ready while the analysis runs
+    # the chart server starts first: it imports matplotlib while this process loads the
+    # project and runs the analysis
+    with ChartPool() as charts:
+        from blendq.outputs import check_output_folder, write_outputs
+        from blendq.pipeline import decision_sentence
+        from blendq.report import output_files
+
+        proj = _load(project)
+        protect = [proj.folder / f for f in proj.files.values()] if proj.folder else []
+        check_output_folder(out, protect)  # refuse a bad folder before the long run, not after
         a = _analyse(proj, draws, seed)
         files = output_files(a, units, created=f"blendq {__version__}", charts=charts)
     folder = write_outputs(out, files, protect=protect)
@@ -301,7 +305,7 @@ def report_cmd(project: ProjectArg,
                out: Annotated[Path, typer.Option("--out", "-o", help="Output folder (replaced as a whole).")] = Path("blendq-out"),
                units: UnitsOpt = "US", draws: DrawsOpt = None, seed: SeedOpt = None) -> None:
     """Run the whole analysis and write the report (HTML, PDF), tables (CSV) and a JSON summary."""
-    _guard(lambda: _write_report(_load(project), out, _units(units), draws, seed))
+    _guard(lambda: _write_report(project, out, _units(units), draws, seed))
 
 
 @app.command("demo")
@@ -312,12 +316,9 @@ def demo_cmd(out: Annotated[Path, typer.Option("--out", "-o", help="Output folde
     def body():
         from importlib import resources
 
-        from blendq.loader import load_project
-
         demo = resources.files("blendq") / "data" / "demo"
         with resources.as_file(demo) as folder:
-            proj = load_project(Path(folder))
-            _write_report(proj, out, _units(units), draws, seed)
+            _write_report(Path(folder), out, _units(units), draws, seed)
 
     _guard(body)
 
