@@ -88,6 +88,11 @@ def demo() -> None:
         phases = subprocess.run([sys.executable, "-c", ONE_PROCESS, out], check=True,
                                 capture_output=True, text=True).stdout
     t, b, one = min(runs), min(base), min(serial)
+    import timeit
+
+    ref = min(timeit.repeat("sum(range(10**6))", number=10, repeat=5)) / 10
+    print(f"machine reference: sum(range(10**6)) takes {ref * 1e3:.1f} ms (the speed of this "
+          "machine now; shared machines vary by a third or more over a day)")
     print(f"blendq demo end to end: {t:.2f} s (target < 5 s); the same work in one process "
           f"{one:.2f} s; ratio {one / t:.2f}x; bare start-up {b:.2f} s")
     print("one-process run, where the time goes:")

@@ -1,13 +1,13 @@
 """Draw the report's charts in worker processes while the main process goes on.
 
 Drawing the charts is the largest single cost of a report, and the analysis cannot be split
-across processes, so the two overlap. A :class:`ChartPool` forks a chart server as the
-command starts (this module imports nothing heavy, so that can happen before numpy is loaded).
-The server imports matplotlib and what unpickling an analysis needs, on the second core, while
-the main process does the same imports, loads the project and runs the analysis; then it forks
-two workers, which share those imports. The charts are handed over as :class:`ChartJob`
-objects (a module-level drawing function and its arguments, sent by pickling) and come back as
-PNG bytes and SVG text, while the main process builds the text of the report.
+across processes, so the two overlap. A :class:`ChartPool` forks a chart server; the report
+commands make it after their own imports (numpy, pandas, pint, scipy), which it shares, and
+before loading the project. The server imports matplotlib on the second core while the main
+process loads the project and runs the analysis, then forks two workers, which share that
+import too. The charts are handed over as :class:`ChartJob` objects (a module-level drawing
+function and its arguments, sent by pickling) and come back as PNG bytes and SVG text, while
+the main process builds the text of the report.
 
 Where the system cannot fork (Windows, macOS' default start method) or has one core, the pool
 draws the charts in the main process when asked; the bytes are the same either way. Ctrl-C is
@@ -103,8 +103,8 @@ def _serve(requests: Any, results: Any, processes: int) -> None:
     """The chart server: import once, fork the workers, then pass jobs on until told to stop.
 
     Runs in its own process. Everything a job needs (matplotlib, and pandas, pint and scipy
-    to unpickle an analysis) is imported here before the workers are forked, so they start
-    with it. A request is ``(ticket, jobs)``; the answer ``(ticket, True, [(png, svg), ...])``
+    to unpickle an analysis, when the caller has not imported them already) is imported here
+    before the workers are forked, so they start with it. A request is ``(ticket, jobs)``; the answer ``(ticket, True, [(png, svg), ...])``
     or ``(ticket, False, exception)``. ``None`` or a closed pipe ends the server.
     """
     import signal
@@ -156,7 +156,7 @@ class ChartPool:
 
     A server process is forked at once; it imports matplotlib (and what the jobs need) while
     the caller goes on with its own work, then forks ``processes`` workers that share those
-    imports. Use as a context manager; leaving it stops the server and its workers, also on
+    imports. Make it after the caller's own heavy imports, so that the server shares them. Use as a context manager; leaving it stops the server and its workers, also on
     an error.
 
     Parameters

@@ -281,14 +281,13 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = No
 
 def _write_report(project: Path, out: Path, units: str, draws, seed) -> None:
     from blendq.chart_pool import ChartPool
+    from blendq.outputs import check_output_folder, write_outputs
+    from blendq.pipeline import decision_sentence
+    from blendq.report import output_files
 
-    # the chart server starts first: it imports matplotlib while this process loads the
-    # project and runs the analysis
+    # the chart server starts now, sharing the imports above (numpy, pandas, pint, scipy): it
+    # imports matplotlib on the second core while this process loads and analyses
     with ChartPool() as charts:
-        from blendq.outputs import check_output_folder, write_outputs
-        from blendq.pipeline import decision_sentence
-        from blendq.report import output_files
-
         proj = _load(project)
         protect = [proj.folder / f for f in proj.files.values()] if proj.folder else []
         check_output_folder(out, protect)  # refuse a bad folder before the long run, not after
