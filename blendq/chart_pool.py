@@ -89,6 +89,21 @@ def render_chart(job: ChartJob) -> tuple[bytes, str | None]:
     return png.getvalue(), svg
 
 
+def _render_in_worker(job: ChartJob) -> tuple[bytes, str | None]:
+    """:func:`render_chart` in a worker: an error that cannot be sent back as it is (pickled)
+    is sent as its type and text."""
+    import pickle
+
+    try:
+        return render_chart(job)
+    except Exception as exc:
+        try:
+            pickle.dumps(exc)
+        except Exception:
+            raise RuntimeError(f"{type(exc).__name__}: {exc}") from None
+        raise
+
+
 def _warm_up() -> None:
     """Import matplotlib and load the chart font before the first chart comes."""
     from matplotlib.backends import backend_agg, backend_svg  # noqa: F401
@@ -104,8 +119,9 @@ def _serve(requests: Any, results: Any, processes: int) -> None:
 
     Runs in its own process. Everything a job needs (matplotlib, and pandas, pint and scipy
     to unpickle an analysis, when the caller has not imported them already) is imported here
-    before the workers are forked, so they start with it. A request is ``(ticket, jobs)``; the answer ``(ticket, True, [(png, svg), ...])``
-    or ``(ticket, False, exception)``. ``None`` or a closed pipe ends the server.
+    before the workers are forked, so they start with it. A request is ``(ticket, jobs)``; the
+    answer ``(ticket, True, [(png, svg), ...])`` or ``(ticket, False, exception)``. ``None`` or
+    a closed pipe ends the server.
     """
     import signal
     import threading
@@ -121,7 +137,10 @@ def _serve(requests: Any, results: Any, processes: int) -> None:
 
     def answer(message: tuple) -> None:
         with lock:
-            results.send(message)
+            try:
+                results.send(message)
+            except Exception as exc:  # an error that cannot be pickled: send its text instead
+                results.send((message[0], False, RuntimeError(f"chart worker: {exc!r}")))
 
     with mp.get_context("fork").Pool(processes) as pool:
         while True:
@@ -132,7 +151,7 @@ def _serve(requests: Any, results: Any, processes: int) -> None:
             if request is None:
                 break
             ticket, jobs = request
-            pool.map_async(render_chart, jobs, chunksize=1,
+            pool.map_async(_render_in_worker, jobs, chunksize=1,
                            callback=lambda out, t=ticket: answer((t, True, out)),
                            error_callback=lambda exc, t=ticket: answer((t, False, exc)))
         pool.terminate()
@@ -156,8 +175,8 @@ class ChartPool:
 
     A server process is forked at once; it imports matplotlib (and what the jobs need) while
     the caller goes on with its own work, then forks ``processes`` workers that share those
-    imports. Make it after the caller's own heavy imports, so that the server shares them. Use as a context manager; leaving it stops the server and its workers, also on
-    an error.
+    imports. Make it after the caller's own heavy imports, so that the server shares them.
+    Use as a context manager; leaving it stops the server and its workers, also on an error.
 
     Parameters
     ----------

@@ -31,6 +31,16 @@ def _broken_chart():
     raise RuntimeError("cannot draw this")
 
 
+class _Unpicklable(Exception):
+    def __init__(self) -> None:
+        super().__init__("holds a function")
+        self.hook = lambda: None  # a lambda cannot be pickled
+
+
+def _chart_with_odd_error():
+    raise _Unpicklable()
+
+
 def _jobs() -> list[ChartJob]:
     return [ChartJob(f"chart {k}", _line_chart, (float(k), f"slope {k}"), svg=k % 2 == 0)
             for k in range(5)]
@@ -73,4 +83,14 @@ def test_worker_error_reaches_the_caller_and_workers_stop() -> None:
     with pytest.raises(KeyError):
         with ChartPool(2):
             raise KeyError("an error in the main process while the workers wait")
+    assert not mp.active_children()
+
+
+def test_an_error_that_cannot_be_pickled_still_reaches_the_caller() -> None:
+    with ChartPool(2) as pool:
+        collect = pool.submit([ChartJob("odd", _chart_with_odd_error)])
+        with pytest.raises(RuntimeError, match="_Unpicklable: holds a function"):
+            collect()
+        # the pool still works after it
+        assert pool.submit(_jobs()[:1])()[0].png.startswith(b"\x89PNG")
     assert not mp.active_children()
