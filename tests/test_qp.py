@@ -39,6 +39,10 @@ def _random_problem(rng, m, n, p, finite_ub=False, rank_deficient=False):
     return a, y, sigma, lb, ub, ac, dl
 
 
+def _objective(a, y, sigma, c):
+    return float(np.sum(((a @ c - y) / sigma) ** 2))
+
+
 def _slsqp_reference(a, y, sigma, lb, ub, ac, dl):
     """Independent SLSQP solve of min ||W(Ac - y)||^2, lb <= c <= ub, ac c <= dl."""
     wa = a / sigma[:, None]
@@ -82,9 +86,14 @@ def test_batch_matches_scipy_per_problem(seed):
     for b in range(batch):
         ref = _slsqp_reference(a[b], y[b], sigma, lb, ub, ac[b], dl)
         single = qp.solve_censored_lsq(a[b], y[b], sigma, lb, ub, ac[b], dl)
-        # the problem is strictly convex (full column rank), so the optimum is unique
-        np.testing.assert_allclose(c[b], ref, rtol=1e-5, atol=1e-5)
-        np.testing.assert_allclose(single, ref, rtol=1e-5, atol=1e-5)
+        # the problem is strictly convex (full column rank), so the optimum is unique. SLSQP
+        # (scipy 1.17) stops with the censoring rows violated by up to about 3e-5 and so with
+        # an objective lower than the feasible optimum by up to about 1e-5 relative; ours is
+        # feasible (checked below) and must agree to that precision
+        for sol in (c[b], single):
+            np.testing.assert_allclose(sol, ref, rtol=1e-4, atol=1e-4)
+            np.testing.assert_allclose(_objective(a[b], y[b], sigma, sol),
+                                       _objective(a[b], y[b], sigma, ref), rtol=1e-4)
         assert np.all(ac[b] @ c[b] <= dl * (1 + 1e-9) + 1e-12)
         assert np.all(c[b] >= lb) and np.all(c[b] <= ub)
 
