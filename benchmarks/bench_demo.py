@@ -31,35 +31,35 @@ def mark(name):
     marks.append((name, time.perf_counter()))
 from importlib import resources
 from pathlib import Path
-from blendq.chart_pool import ChartPool
-from blendq.loader import load_project
-from blendq.outputs import write_outputs
-from blendq.pipeline import analyse
-import blendq.chart_pool, blendq.render_pdf, blendq.report
+from blendq.report.chart_pool import ChartPool
+from blendq.inputs.loader import load_project
+from blendq.report.outputs import write_outputs
+from blendq.decide.analysis import analyse
+import blendq.report.chart_pool, blendq.report.pdf, blendq.report.assemble
 mark("imports")
 project = load_project(Path(str(resources.files("blendq") / "data" / "demo")))
 analysis = analyse(project)
 mark("load and analysis")
 drawn = 0.0
-render = blendq.chart_pool.render_chart
+render = blendq.report.chart_pool.render_chart
 def timed_render(job):
     global drawn
     t = time.perf_counter()
     out = render(job)
     drawn += time.perf_counter() - t
     return out
-blendq.chart_pool.render_chart = timed_render
+blendq.report.chart_pool.render_chart = timed_render
 pdf_time = 0.0
-pdf = blendq.render_pdf.render_pdf_bytes
+pdf = blendq.report.pdf.render_pdf_bytes
 def timed_pdf(doc, paper="a4"):
     global pdf_time
     t = time.perf_counter()
     out = pdf(doc, paper)
     pdf_time += time.perf_counter() - t
     return out
-blendq.render_pdf.render_pdf_bytes = timed_pdf
+blendq.report.pdf.render_pdf_bytes = timed_pdf
 with ChartPool(0) as charts:
-    files = blendq.report.output_files(analysis, "US", created="blendq", charts=charts)
+    files = blendq.report.assemble.output_files(analysis, "US", created="blendq", charts=charts)
 write_outputs(Path(sys.argv[1]), files)
 mark("report")
 last = t0
@@ -102,10 +102,10 @@ def demo() -> None:
 
 
 def example_monte_carlo() -> None:
-    from blendq import qp
-    from blendq.estimation import fit, row_weights
-    from blendq.loader import load_project
-    from blendq.uncertainty import monte_carlo
+    from blendq.fit import constrained_lsq as qp
+    from blendq.fit.estimation import fit, row_weights
+    from blendq.inputs.loader import load_project
+    from blendq.fit.uncertainty import monte_carlo
 
     project = load_project(ROOT / "examples" / "quillmarsh_us")
     limited = {lim.analyte for lim in project.limits}

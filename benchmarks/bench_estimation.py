@@ -1,12 +1,12 @@
 """Benchmark: the joint fit and its 1,000-draw Monte Carlo (4 zones, 5 steps, 3 analytes).
 
-Vectorised path: :func:`blendq.estimation.fit` (variable projection) and
-:func:`blendq.uncertainty.monte_carlo` (one Gauss-Newton step for the hydraulics of every draw,
-then the batched active-set solver of :mod:`blendq.qp` for every draw and analyte at once).
+Vectorised path: :func:`blendq.fit.estimation.fit` (variable projection) and
+:func:`blendq.fit.uncertainty.monte_carlo` (one Gauss-Newton step for the hydraulics of every draw,
+then the batched active-set solver of :mod:`blendq.fit.constrained_lsq` for every draw and analyte at once).
 
 Plain baseline, measured in the same run: the same draws refitted one at a time -- a well model
 per draw, its weight rows, and one scipy least-squares solve (``lsq_linear``, SLSQP where a
-non-detect binds; :func:`blendq.qp.solve_censored_lsq`) per draw and analyte. Both paths use
+non-detect binds; :func:`blendq.fit.constrained_lsq.solve_censored_lsq`) per draw and analyte. Both paths use
 the same random numbers, and the largest difference between their zone values is printed.
 
 Run:  python benchmarks/bench_estimation.py [--draws 1000]
@@ -19,9 +19,11 @@ import time
 
 import numpy as np
 
-from blendq import diagnostics, qp, uncertainty
-from blendq.estimation import fit, row_weights
-from blendq.synthetic import synthetic_project
+from blendq.fit import diagnostics
+from blendq.fit import constrained_lsq as qp
+from blendq.fit import uncertainty
+from blendq.fit.estimation import fit, row_weights
+from blendq.well.synthetic import synthetic_project
 
 # an invented four-zone well, intake above the zones
 G = np.array([40.0, 120.0, 60.0, 90.0])

@@ -1,13 +1,13 @@
 """Benchmark: a rate sweep of 10^4 rates x 10^3 Monte Carlo draws (4 zones, wellbore mixing).
 
-Vectorised path: :func:`blendq.uncertainty.predict_summary` (chunks of rates, every draw at
+Vectorised path: :func:`blendq.fit.uncertainty.predict_summary` (chunks of rates, every draw at
 once: wellbore head, zone flows, discharge weights, concentrations, quantiles, exceedance
-probabilities, pumping levels). For reference, :func:`blendq.uncertainty.predict` on a share of
+probabilities, pumping levels). For reference, :func:`blendq.fit.uncertainty.predict` on a share of
 the draws, scaled.
 
 Plain baseline, measured in the same run: for each (draw, rate) point, the wellbore head by
 ``scipy.optimize.brentq`` on sum_i q_i(h_w) = Q, then the discharge weights of that one point
-by :func:`blendq.mixing.discharge_weights` and the blend a . c. It is timed on a random
+by :func:`blendq.well.mixing.discharge_weights` and the blend a . c. It is timed on a random
 subsample of points and scaled to the full sweep; the two paths are also compared on that
 subsample.
 
@@ -22,9 +22,11 @@ import time
 import numpy as np
 from scipy import optimize
 
-from blendq import hydraulics, mixing, uncertainty
-from blendq.estimation import fit
-from blendq.synthetic import synthetic_project
+from blendq.well import hydraulics
+from blendq.well import mixing
+from blendq.fit import uncertainty
+from blendq.fit.estimation import fit
+from blendq.well.synthetic import synthetic_project
 
 # an invented four-zone well; the pump intake sits between Z2 and Z3, so water from above
 # flows down to it and water from below flows up, and Z4 is a thief at low rates

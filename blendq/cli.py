@@ -30,7 +30,7 @@ SeedOpt = Annotated[int | None, typer.Option("--seed", help="Random seed (defaul
 
 
 def _fail(message: str, code: int = 2) -> None:
-    from blendq.table_reader import one_line
+    from blendq.inputs.tables import one_line
 
     typer.echo(f"blendq: error: {one_line(message)}", err=True)
     raise typer.Exit(code)
@@ -82,13 +82,13 @@ def _progress():
 
 
 def _load(project: Path):
-    from blendq.loader import load_project
+    from blendq.inputs.loader import load_project
 
     return load_project(project)
 
 
 def _analyse(project, draws, seed, sample_mode="keep"):
-    from blendq.pipeline import analyse
+    from blendq.decide.analysis import analyse
 
     callback, prog = _progress()
     with prog:
@@ -121,8 +121,8 @@ def inflow_cmd(
 
     def body():
         from blendq.errors import InputError
-        from blendq.pipeline import inflow_table
         from blendq.units import DISPLAY_UNITS, from_base, parse_quantity
+        from blendq.well.inflow import inflow_table
 
         u = _units(units)
         proj = _load(project)
@@ -181,7 +181,7 @@ def check_cmd(
     """Read a project, check every input and review the lab and field results."""
 
     def body():
-        from blendq import qa
+        from blendq.review import findings as qa
 
         if fail_on not in ("error", "warning", "info"):
             raise typer.BadParameter(f'"{fail_on}" is not error, warning or info', param_hint="--fail-on")
@@ -217,7 +217,7 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
         proj = _load(project)
         a = _analyse(proj, draws, seed, samples)
         if as_json:
-            from blendq.outputs import to_json_stable
+            from blendq.report.outputs import to_json_stable
 
             typer.echo(to_json_stable({"zones": a.zones.to_dict(orient="records"),
                                        "sample_mode": a.sample_mode,
@@ -231,7 +231,7 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
         from rich.table import Table
 
         t = Table(title=escape(f"{proj.well.name}: zone water quality"))
-        from blendq.report import zone_display_table
+        from blendq.report.assemble import zone_display_table
 
         df = zone_display_table(a)
         for col in df.columns:
@@ -258,14 +258,14 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = No
     """Find the rates at which the discharge meets every limit with the margin."""
 
     def body():
-        from blendq.pipeline import decision_sentence
-        from blendq.report import summary_json, window_display_table
+        from blendq.decide.analysis import decision_sentence
+        from blendq.report.assemble import summary_json, window_display_table
 
         u = _units(units)
         proj = _load(project)
         a = _analyse(proj, draws, seed)
         if as_json:
-            from blendq.outputs import to_json_stable
+            from blendq.report.outputs import to_json_stable
 
             typer.echo(to_json_stable(summary_json(a, u)))
             return
@@ -280,10 +280,10 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = No
 
 
 def _write_report(project: Path, out: Path, units: str, draws, seed) -> None:
-    from blendq.chart_pool import ChartPool
-    from blendq.outputs import check_output_folder, write_outputs
-    from blendq.pipeline import decision_sentence
-    from blendq.report import output_files
+    from blendq.decide.analysis import decision_sentence
+    from blendq.report.assemble import output_files
+    from blendq.report.chart_pool import ChartPool
+    from blendq.report.outputs import check_output_folder, write_outputs
 
     # the chart server starts now, sharing the imports above (numpy, pandas, pint, scipy): it
     # imports matplotlib on the second core while this process loads and analyses
@@ -327,7 +327,7 @@ def new_cmd(folder: Annotated[Path, typer.Argument(help="Folder for the new proj
     """Write a commented template project for a new well."""
 
     def body():
-        from blendq.template import write_template
+        from blendq.inputs.template import write_template
 
         written = write_template(folder)
         typer.echo(f"Template written: {', '.join(str(p) for p in written)}")
@@ -341,9 +341,9 @@ def drawdown_cmd(project: ProjectArg, units: UnitsOpt = "US", as_json: JsonOpt =
     """Step-drawdown analysis: well loss, specific capacity, efficiency and well condition."""
 
     def body():
+        from blendq.decide.levelcheck import static_level_of
         from blendq.errors import InputError
-        from blendq.levelcheck import static_level_of
-        from blendq.steptest import analyse_step_test
+        from blendq.well.steptest import analyse_step_test
 
         u = _units(units)
         proj = _load(project)
@@ -356,7 +356,7 @@ def drawdown_cmd(project: ProjectArg, units: UnitsOpt = "US", as_json: JsonOpt =
                                 steps_file=proj.files.get("steps", "steps.csv"),
                                 levels_file=proj.files.get("levels", "levels.csv"))
         if as_json:
-            from blendq.outputs import to_json_stable
+            from blendq.report.outputs import to_json_stable
 
             typer.echo(to_json_stable({"steps": res.per_step.to_dict(orient="records"),
                                        "parameters": res.parameters.to_dict(orient="records")}))
@@ -417,9 +417,9 @@ def compare_cmd(
     the project's [[scenarios]] plus any given here, all with the same Monte Carlo draws."""
 
     def body():
+        from blendq.decide.scenarios import compare, parse_scenario, project_scenarios
         from blendq.errors import InputError
-        from blendq.report_scenarios import comparison_display_table, widest_sentence
-        from blendq.scenarios import compare, parse_scenario, project_scenarios
+        from blendq.report.scenario_section import comparison_display_table, widest_sentence
 
         u = _units(units)
         proj = _load(project)
@@ -438,7 +438,7 @@ def compare_cmd(
         a = _analyse(proj, draws, seed)
         comp = compare(a, scenarios)
         if as_json:
-            from blendq.outputs import to_json_stable
+            from blendq.report.outputs import to_json_stable
 
             typer.echo(to_json_stable({
                 "units": {"rate": "m3/d", "concentration": "mg/L canonical basis"},

@@ -14,7 +14,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from blendq import hydraulics, mixing
+from blendq.well import hydraulics
+from blendq.well import mixing
 from blendq.units import from_base, to_base
 
 OUT = Path(__file__).resolve().parents[1] / "blendq" / "data" / "demo"

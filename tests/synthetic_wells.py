@@ -1,6 +1,6 @@
 """Invented synthetic wells shared by the estimation, uncertainty and diagnostics tests.
 
-Every number here is invented; the data come from blendq.synthetic.synthetic_project, which
+Every number here is invented; the data come from blendq.well.synthetic.synthetic_project, which
 follows the blendq model exactly, so a fit must recover these values.
 """
 
@@ -10,8 +10,8 @@ import dataclasses
 
 import numpy as np
 
-from blendq.project import Project, Settings
-from blendq.synthetic import synthetic_project
+from blendq.inputs.project import Project, Settings
+from blendq.well.synthetic import synthetic_project
 
 # four zones, top to bottom: conductance [m^2/d], static head [m], depths [m]
 G = np.array([40.0, 120.0, 60.0, 90.0])

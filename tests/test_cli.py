@@ -2,7 +2,7 @@
 exit codes and one-line errors for bad input.
 
 The Monte Carlo analysis is the slow part of every command that fits; these tests check the
-command line around it, so :func:`blendq.pipeline.analyse` is wrapped in a cache keyed by the
+command line around it, so :func:`blendq.decide.analysis.analyse` is wrapped in a cache keyed by the
 project folder, well name, draws, seed and sample use. The analysis is seeded, so a cached
 result equals a fresh one; tests/test_pipeline.py and tests/test_report.py run it uncached.
 """
@@ -19,7 +19,7 @@ import pytest
 from typer.testing import CliRunner
 
 import blendq
-import blendq.pipeline
+import blendq.decide.analysis
 from blendq import __version__
 from blendq.cli import app
 
@@ -29,7 +29,7 @@ DRAWS = "200"
 # A wide terminal so that rich tables print zone names on one line.
 runner = CliRunner(env={"COLUMNS": "200", "NO_COLOR": "1"})
 
-_real_analyse = blendq.pipeline.analyse
+_real_analyse = blendq.decide.analysis.analyse
 _cache: dict = {}
 
 
@@ -43,7 +43,7 @@ def _cached_analyse(project, draws=None, seed=None, sample_mode="keep", progress
 
 @pytest.fixture(autouse=True)
 def _fast_analyse(monkeypatch):
-    monkeypatch.setattr(blendq.pipeline, "analyse", _cached_analyse)
+    monkeypatch.setattr(blendq.decide.analysis, "analyse", _cached_analyse)
 
 
 def run(*args: str):

@@ -15,8 +15,8 @@ from fuzz_projects import FUZZ_EXAMPLES, mutated_projects, write_project
 from hypothesis import HealthCheck, given, settings
 
 from blendq.errors import InputError
-from blendq.loader import load_project
-from blendq.project import Project
+from blendq.inputs.loader import load_project
+from blendq.inputs.project import Project
 
 
 @pytest.mark.slow

@@ -18,8 +18,8 @@ from typer.testing import CliRunner
 
 from blendq.cli import app
 from blendq.errors import InputError
-from blendq.loader import load_project
-from blendq.table_reader import parse_number
+from blendq.inputs.loader import load_project
+from blendq.inputs.tables import parse_number
 
 try:  # Python 3.11+
     import tomllib

@@ -17,9 +17,9 @@ from pathlib import Path
 import pytest
 from typer.testing import CliRunner
 
-import blendq.outputs
-import blendq.pipeline
-import blendq.render_html
+import blendq.decide.analysis
+import blendq.report.html
+import blendq.report.outputs
 from blendq.cli import app
 
 US = Path(__file__).parent / "data" / "projects" / "quillmarsh_us"
@@ -138,7 +138,7 @@ _analysis_cache: dict = {}
 def old_report(run, tmp_path, monkeypatch):
     """A copy of the report folder (blendq's marker inside) as the output of a later run; the
     analysis of the failing runs is computed once (it is seeded, so a cached one is the same)."""
-    real = blendq.pipeline.analyse
+    real = blendq.decide.analysis.analyse
 
     def cached(project, draws=None, seed=None, sample_mode="keep", progress=None):
         key = (draws, seed, sample_mode)
@@ -146,7 +146,7 @@ def old_report(run, tmp_path, monkeypatch):
             _analysis_cache[key] = real(project, draws=draws, seed=seed, sample_mode=sample_mode)
         return _analysis_cache[key]
 
-    monkeypatch.setattr(blendq.pipeline, "analyse", cached)
+    monkeypatch.setattr(blendq.decide.analysis, "analyse", cached)
     out = tmp_path / "out"
     shutil.copytree(run["out"], out)
     return out, _checksums(out)
@@ -158,7 +158,7 @@ def test_render_failure_leaves_old_report_intact(run, old_report, monkeypatch):
     def broken(*args, **kwargs):
         raise RuntimeError("renderer broke")
 
-    monkeypatch.setattr(blendq.render_html, "render_html", broken)
+    monkeypatch.setattr(blendq.report.html, "render_html", broken)
     result = _invoke("report", run["project"], "--out", out, "--draws", DRAWS)
     assert result.exit_code == 3 and "renderer broke" in result.output
     assert _checksums(out) == before
@@ -170,7 +170,7 @@ def test_render_failure_leaves_old_report_intact(run, old_report, monkeypatch):
 
 def test_write_failure_midway_leaves_no_partial_folder(run, old_report, monkeypatch):
     out, before = old_report
-    real_write, written = blendq.outputs._write_file, []
+    real_write, written = blendq.report.outputs._write_file, []
 
     def failing(path, data):
         if len(written) == 3:
@@ -178,7 +178,7 @@ def test_write_failure_midway_leaves_no_partial_folder(run, old_report, monkeypa
         written.append(path)
         real_write(path, data)
 
-    monkeypatch.setattr(blendq.outputs, "_write_file", failing)
+    monkeypatch.setattr(blendq.report.outputs, "_write_file", failing)
     result = _invoke("report", run["project"], "--out", out, "--draws", DRAWS)
     assert result.exit_code == 2 and "No space left on device" in result.output
     assert len(result.output.strip().splitlines()) == 1

@@ -1,1 +1,0 @@
-"""Charts of blendq, built with matplotlib (imported lazily by each chart function)."""

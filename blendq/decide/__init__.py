@@ -1,0 +1,4 @@
+"""Decide: the rate sweep, the operating window, the level check, the scenarios, the analysis.
+
+May import: the packages above it (units, errors, chemistry, inputs, review, well, fit).
+"""

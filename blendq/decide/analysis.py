@@ -1,0 +1,175 @@
+"""The whole analysis in one pass: review -> fit -> uncertainty -> sweep -> window.
+
+Data flow one way: each stage takes the objects of the stages before it and returns new ones.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+import pandas as pd
+
+from blendq.chemistry.limits import Limit
+from blendq.decide import sweep
+from blendq.decide.levelcheck import LevelCheck, check_levels
+from blendq.errors import ModelError
+from blendq.fit import diagnostics, estimation, uncertainty
+from blendq.inputs.project import Project
+
+
+@dataclass
+class Analysis:
+    """Everything one run of blendq computes for a project (base units throughout)."""
+
+    project: Project
+    qa: object
+    sample_use: pd.DataFrame
+    sample_mode: str
+    fit: estimation.FitResult
+    draws: uncertainty.Draws
+    zones: pd.DataFrame
+    analyte_diagnostics: pd.DataFrame
+    residuals: pd.DataFrame
+    hydraulics: pd.DataFrame
+    prediction: uncertainty.Prediction
+    window: sweep.Window
+    limits: dict[str, Limit]
+    sweep_table: pd.DataFrame
+    not_fitted: dict[str, str] = field(default_factory=dict)
+    step_drawdown: LevelCheck | None = None
+    notes: list[str] = field(default_factory=list)
+
+
+def fit_analytes(project: Project) -> tuple[list[str], dict[str, str]]:
+    """Analytes to fit (a limit applies and at least one result is detected) and the others
+    with the reason they are not fitted."""
+    s = project.samples
+    limited = {lim.analyte for lim in project.limits}
+    fitted, skipped = [], {}
+    for analyte in project.analytes():
+        rows = s[s["analyte"] == analyte]
+        if analyte not in limited:
+            skipped[analyte] = "no limit applies (reviewed only)"
+        elif rows["nondetect"].astype(bool).all():
+            dl = rows["detection_limit"].astype(float).max()
+            skipped[analyte] = f"every result is a non-detect (below {dl:g} mg/L)"
+        else:
+            fitted.append(analyte)
+    return fitted, skipped
+
+
+def analyse(project: Project, draws: int | None = None, seed: int | None = None,
+            sample_mode: str = "keep",
+            progress: Callable[[int, int], None] | None = None) -> Analysis:
+    """Run the full analysis of a project.
+
+    Parameters
+    ----------
+    project : Project
+    draws : int, optional
+        Monte Carlo draws (default: the project's setting).
+    seed : int, optional
+        Random seed (default: the project's setting).
+    sample_mode : {"keep", "exclude", "downweight"}
+        Use of samples that the lab review flags.
+    progress : callable(done, total), optional
+    """
+    from blendq.review import findings as qa_module
+
+    review = qa_module.review(project)
+    use = review.sample_weights(sample_mode).reset_index()
+    analytes, skipped = fit_analytes(project)
+    if not analytes:
+        raise ModelError("no analyte with a limit has a detected result: nothing to fit")
+    fit_project = replace(project, samples=project.samples[project.samples["analyte"].isin(analytes)])
+    fit = estimation.fit(fit_project, sample_use=use)
+    s = project.settings
+    d = uncertainty.monte_carlo(fit, s.draws if draws is None else draws,
+                                s.seed if seed is None else seed, progress=progress)
+    zones = diagnostics.zone_table(fit, d, s.interval)
+    pred = sweep.sweep(fit, d)
+    levels = check_levels(fit, d, pred, s.exceedance_probability, s.horizon)
+    window = sweep.window_for(fit, pred, level_deep=levels.level_deep)
+    limits = sweep.governing_limits(project.limits, pred.analytes)
+    table = sweep.sweep_table(pred, limits, s.margin, s.interval, project.zone_names)
+    notes = []
+    if not fit.success:
+        notes.append(f"The hydraulic fit did not converge: {fit.message}")
+    hyd = diagnostics.hydraulics_table(fit)
+    if (hyd["conductance_from"] == "prior").any():
+        notes.append("Some zone conductances rest on the zone properties (priors) rather than "
+                     "on the test data; zone shares carry that uncertainty.")
+    if project.flowlogs.empty:
+        notes.append("No flow log: drawdown alone identifies only the total conductance and "
+                     "the well loss; zone shares come from zone properties (priors).")
+    residuals = diagnostics.residual_table(fit)
+    table_outliers = residuals[residuals["outlier"] & residuals["analyte"].isin(limits)]
+    if len(table_outliers):
+        listed = ", ".join(f"{r.sample_id} ({r.analyte}, step {r.step})"
+                           for r in table_outliers.itertuples())
+        notes.insert(0, f"The fit does not reproduce {len(table_outliers)} lab result(s) of an "
+                        f"analyte with a limit: {listed}. The model and these results disagree; "
+                        "explain them (sampling, lab, or a zone the model lacks) before relying "
+                        "on the window.")
+    notes.append(f"Pumping level in the window from the {levels.source}: {levels.reason}.")
+    notes += [n + "." for n in sweep.applicable_ratio_rules(s.limit_sets, pred.analytes)[1]]
+    return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
+                    residuals, hyd, pred, window, limits, table, skipped,
+                    levels, notes)
+
+
+def decision_sentence(a: Analysis, units: str = "US") -> str:
+    """The decision in one sentence."""
+    from blendq.units import format_quantity
+
+    w = a.window
+    s = a.project.settings
+    if w.empty:
+        options = window_options(a, units)
+        tail = f" Options that could open a window: {'; '.join(options)}." if options else ""
+        return (f"No pumping rate meets every limit with the {s.margin:.0%} margin at "
+                f"{1 - s.exceedance_probability:.0%} confidence: {w.reason_empty}.{tail}")
+    parts = [f"{format_quantity(lo, 'rate', units)} and {format_quantity(hi, 'rate', units)}"
+             for lo, hi, _, _ in w.intervals]
+    rec = format_quantity(w.recommended, "rate", units) if w.recommended is not None else "none"
+    res = a.residuals
+    n_out = int((res["outlier"] & res["analyte"].isin(a.limits)).sum()) if len(res) else 0
+    caveat = (f" Provisional: the fit does not reproduce {n_out} lab result(s); see the notes."
+              if n_out else "")
+    return (f"Operate between {' and between '.join(parts)}; recommended rate {rec} "
+            f"(every analyte below {s.margin:.0%} of its limit with at least "
+            f"{1 - s.exceedance_probability:.0%} probability, pumping level above the intake "
+            f"plus submergence).{caveat}")
+
+
+def window_options(a: Analysis, units: str = "US") -> list[str]:
+    """Options that could open (or widen) the window, from what binds (planning prompts for
+    the scenario comparison, not results)."""
+    out = []
+    rates = a.window.rates
+    for crit in a.window.criteria:
+        if np.all(crit.ok[rates > 0]):
+            continue  # this criterion holds everywhere: nothing to open
+        if crit.kind == "quality":
+            analyte = crit.name.split(" ")[0]
+            z = a.zones[a.zones["analyte"] == analyte]
+            if len(z):
+                value = z["estimate"].where(z["estimate"].notna(), z["range_high"])
+                richest = z.loc[value.idxmax(), "zone"]
+                out.append(f"seal, line or case off the {richest} (the richest source of {analyte})")
+            out.append(f"blend with a source lower in {analyte}")
+            ok = crit.ok & (rates > 0)
+            if ok.any() and not ok[-1]:
+                from blendq.units import format_quantity
+
+                out.append(f"a rate at or below {format_quantity(rates[ok].max(), 'rate', units)}"
+                           f" where {analyte} complies")
+        elif crit.kind == "hydraulic":
+            skins = [(z.skin, z.name) for z in a.project.zones]
+            worst = max(skins)
+            if worst[0] > 0:
+                out.append(f"redevelop the {worst[1]} (skin {worst[0]:g})")
+            out.append("lower the pump intake if the screen and the pump allow")
+    return list(dict.fromkeys(out))

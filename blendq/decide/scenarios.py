@@ -1,0 +1,658 @@
+"""What-if scenarios: the calibrated well with changes, compared with the base case.
+
+A scenario changes the fitted well model (seal zones, redevelop a zone, move the pump intake,
+lower the static heads) and/or the water delivered (blend with a second source), and may set its
+own margin and exceedance probability. Every scenario is evaluated with the same Monte Carlo
+draws and the same rate grid as the base case (common random numbers), so differences between
+scenarios are differences of the changes, not of sampling noise.
+
+Scenario entries (``[[scenarios]]`` in project.toml; see ``docs/scenarios.md``)::
+
+    name = "Seal the upper sand and blend"
+    seal = ["Upper sand"]                            # conductance 0
+    redevelop = { zone = "Gravel (clogged)", skin = 0 }  # or factor = 2; or a list of these
+    intake = "140 ft"                                # new pump intake depth
+    lower_heads = "10 ft"                            # every static head lowered (drought)
+    blend = { rate = "200 gpm", nitrate = "2 mg/L as N", arsenic = "1 ug/L" }
+    margin = 0.8
+    exceedance_probability = 0.05
+
+Rates on the comparison are the well's own pumping rate; a blend adds its rate to what is
+delivered. The core works in base units (m, m^3/d, d, mg/L canonical).
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+import pandas as pd
+
+from blendq.chemistry.analytes import get_analyte, to_canonical
+from blendq.decide.sweep import Window, operating_window, sweep
+from blendq.errors import InputError, ModelError
+from blendq.fit.uncertainty import Prediction
+from blendq.inputs.project import Project
+from blendq.units import parse_quantity
+from blendq.well import hydraulics
+from blendq.well.model import WellModel
+
+#: keys a scenario entry may have
+SCENARIO_KEYS = ("name", "description", "seal", "redevelop", "intake", "lower_heads", "blend",
+                 "margin", "exceedance_probability")
+BASE_NAME = "Base case"
+
+_CONC = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)(?:\s+as\s+(\S+))?\s*$",
+                   re.IGNORECASE)
+
+
+@dataclass(frozen=True)
+class Blend:
+    """A second source mixed into the discharge.
+
+    Attributes
+    ----------
+    rate : float
+        Q_b [m^3/d].
+    concentration : dict analyte key -> float
+        C_b [mg/L canonical basis].
+    """
+
+    rate: float
+    concentration: dict[str, float]
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """One what-if case, resolved against a project (base units).
+
+    Attributes
+    ----------
+    name : str
+    zone_factor : ndarray (n_zones,)
+        Multiplier of each zone conductance [-]: 0 for a sealed zone, the redevelopment factor
+        for a redeveloped one, 1 otherwise.
+    intake_depth : float or None
+        New pump intake depth [m]; None keeps the well's.
+    head_drop : float
+        Lowering of every static head [m] (0 for none).
+    blend : Blend or None
+    margin, exceedance_probability : float or None
+        Override the project's settings when given.
+    changes : list of str
+        The changes in words (for tables).
+    """
+
+    name: str
+    zone_factor: np.ndarray
+    intake_depth: float | None = None
+    head_drop: float = 0.0
+    blend: Blend | None = None
+    margin: float | None = None
+    exceedance_probability: float | None = None
+    changes: list[str] = field(default_factory=list)
+
+    @property
+    def changes_well(self) -> bool:
+        """True when the well model itself changes (not only the blend or the settings)."""
+        return (bool(np.any(self.zone_factor != 1.0)) or self.intake_depth is not None
+                or self.head_drop != 0.0)
+
+
+def base_scenario(project: Project) -> Scenario:
+    """The base case as a scenario with no change."""
+    return Scenario(BASE_NAME, np.ones(len(project.zones)), changes=["as tested"])
+
+
+# ------------------------------------------------------------------------------ parsing
+def _zone_index(project: Project, name, file: str, field_name: str) -> int:
+    names = project.zone_names
+    if not isinstance(name, str) or name not in names:
+        raise InputError(f"{name!r} is not a zone of this well (expected one of "
+                         f"{', '.join(repr(n) for n in names)})", file=file, field=field_name)
+    return names.index(name)
+
+
+def _number(value, file: str, field_name: str, low: float, high: float, open_low: bool,
+            what: str) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise InputError(f"expected {what}, got {value!r}", file=file, field=field_name)
+    v = float(value)
+    if not np.isfinite(v) or v > high or v < low or (open_low and v == low):
+        raise InputError(f"expected {what}, got {value!r}", file=file, field=field_name)
+    return v
+
+
+def redevelopment_factor(project: Project, zone: int, new_skin: float) -> float:
+    """Conductance factor G(s_new) / G(s_old) [-] of a zone whose skin changes.
+
+    Parameters
+    ----------
+    project : Project
+    zone : int
+        Zone index.
+    new_skin : float
+        Skin factor after redevelopment [-].
+
+    Returns
+    -------
+    float
+        (L + s_old) / (L + s_new), with L = ln(R / r_w) (Thiem) or
+        L = ln(2.25 T t / (r_w^2 S)) / 2 (Cooper-Jacob at the operating horizon t).
+
+    Raises
+    ------
+    InputError
+        When the zone lacks what the log term needs (transmissivity; storativity or a radius
+        of influence), or its conductance was given directly (use ``factor`` instead).
+    ModelError
+        When the new skin makes the log term non-positive.
+
+    Notes
+    -----
+    Thiem with skin: G = 2 pi T / (ln(R / r_w) + s); Cooper-Jacob with skin:
+    G = 4 pi T / (ln(2.25 T t / (r_w^2 S)) + 2 s). Only the skin changes, so the ratio of the
+    two conductances is the ratio of the log terms.
+
+    References
+    ----------
+    Thiem, G. (1906) Hydrologische Methoden. Cooper, H.H. and Jacob, C.E. (1946) Trans. AGU
+    27(4). Hawkins, M.F. (1956) J. Petroleum Technology 8 (skin factor).
+    """
+    z = project.zones[zone]
+    where = dict(file="project.toml", field=f"zones[{zone + 1}]")
+    t = z.zone_transmissivity
+    if z.conductance is not None or t is None:
+        raise InputError(f'zone "{z.name}" has no transmissivity to scale by a new skin (its '
+                         'conductance is given); redevelop it with factor = ... instead', **where)
+    rw = project.well.well_radius
+    model = project.settings.conductance_model
+    use_transient = z.storativity is not None and model != "steady"
+    if use_transient:
+        h = project.settings.horizon
+        g_old = hydraulics.cooper_jacob_conductance(t, z.storativity, h, rw, z.skin)
+        g_new = hydraulics.cooper_jacob_conductance(t, z.storativity, h, rw, new_skin)
+    else:
+        r = project.well.radius_of_influence
+        if r is None:
+            raise InputError(f'a new skin for zone "{z.name}" needs its storativity or '
+                             "well.radius_of_influence", **where)
+        g_old = hydraulics.thiem_conductance(t, r, rw, z.skin)
+        g_new = hydraulics.thiem_conductance(t, r, rw, new_skin)
+    return float(g_new / g_old)
+
+
+def parse_concentration(text, analyte: str, file: str, field_name: str) -> float:
+    """``"2 mg/L as N"`` (or ``{value = "2 mg/L", basis = "as N"}``) -> mg/L canonical."""
+    try:
+        an = get_analyte(analyte)
+        if isinstance(text, dict):
+            extra = set(text) - {"value", "basis"}
+            if extra or "value" not in text:
+                raise InputError(f"expected {{value = \"2 mg/L\", basis = \"as N\"}}, got {text!r}")
+            inner = str(text["value"])
+            m = _CONC.match(inner)
+            basis = text.get("basis")
+        else:
+            m = _CONC.match(str(text)) if isinstance(text, str) else None
+            basis = m.group(3) if m else None
+        if not m or not m.group(2):
+            raise InputError(f'expected a concentration with a unit such as "2 mg/L as N", '
+                             f"got {text!r}")
+        value = float(m.group(1))
+        if value < 0:
+            raise InputError(f"a concentration cannot be negative, got {text!r}")
+        return to_canonical(value, m.group(2), an, basis)
+    except InputError as err:
+        raise InputError(err.message, file=file, field=field_name) from None
+
+
+def _parse_blend(raw, project: Project, file: str, key: str) -> Blend:
+    if not isinstance(raw, dict):
+        raise InputError(f'expected a table such as {{ rate = "200 gpm", nitrate = "2 mg/L as N" }}, '
+                         f"got {raw!r}", file=file, field=key)
+    if "rate" not in raw:
+        raise InputError("a blend needs the rate of the second source", file=file,
+                         field=f"{key}.rate")
+    try:
+        rate = parse_quantity(raw["rate"], "rate")
+    except InputError as err:
+        raise InputError(err.message, file=file, field=f"{key}.rate") from None
+    if rate <= 0:
+        raise InputError(f"the blend rate must be above zero, got {raw['rate']!r}", file=file,
+                         field=f"{key}.rate")
+    conc = {}
+    for name, text in raw.items():
+        if name == "rate":
+            continue
+        try:
+            analyte_key = get_analyte(name).key
+        except InputError as err:
+            raise InputError(err.message, file=file, field=f"{key}.{name}") from None
+        conc[analyte_key] = parse_concentration(text, name, file, f"{key}.{name}")
+    if not conc:
+        raise InputError("a blend needs the second source's concentration of each analyte, "
+                         'e.g. nitrate = "2 mg/L as N"', file=file, field=key)
+    return Blend(rate, conc)
+
+
+def parse_scenario(raw: dict, index: int, project: Project, file: str = "project.toml",
+                   prefix: str | None = None) -> Scenario:
+    """Resolve one raw scenario entry against a project.
+
+    Parameters
+    ----------
+    raw : dict
+        The entry as written (see the module docstring).
+    index : int
+        1-based position in ``[[scenarios]]`` (for messages).
+    project : Project
+    file : str
+        Where the entry came from (for messages).
+    prefix : str, optional
+        Field prefix for messages (default ``scenarios[index]``).
+
+    Raises
+    ------
+    InputError
+        For an unknown key or a bad value, naming ``scenarios[k].key``.
+    ModelError
+        When every zone would be sealed.
+    """
+    pre = prefix if prefix is not None else f"scenarios[{index}]"
+    if not isinstance(raw, dict):
+        raise InputError(f"expected a table, got {raw!r}", file=file, field=pre)
+    unknown = [k for k in raw if k not in SCENARIO_KEYS]
+    if unknown:
+        raise InputError(f"{unknown[0]!r} is not a scenario key (expected one of "
+                         f"{', '.join(SCENARIO_KEYS)})", file=file, field=f"{pre}.{unknown[0]}")
+    name = raw.get("name")
+    if not isinstance(name, str) or not name.strip():
+        raise InputError(f"each scenario needs a name, got {name!r}", file=file, field=f"{pre}.name")
+    n = len(project.zones)
+    factor = np.ones(n)
+    changes = []
+    seal = raw.get("seal", [])
+    if isinstance(seal, str):
+        seal = [seal]
+    if not isinstance(seal, list):
+        raise InputError(f'expected a list of zone names such as ["Upper sand"], got {seal!r}',
+                         file=file, field=f"{pre}.seal")
+    for z in seal:
+        factor[_zone_index(project, z, file, f"{pre}.seal")] = 0.0
+    if seal:
+        changes.append("seal " + ", ".join(seal))
+        if not np.any(factor > 0):
+            raise ModelError(f'scenario "{name}" seals every zone: the well would yield nothing')
+    redev = raw.get("redevelop", [])
+    redev = [redev] if isinstance(redev, dict) else redev
+    if not isinstance(redev, list):
+        raise InputError(f'expected {{ zone = "...", skin = 0 }} or {{ zone = "...", factor = 2 }}, '
+                         f"got {redev!r}", file=file, field=f"{pre}.redevelop")
+    for item in redev:
+        key = f"{pre}.redevelop"
+        if not isinstance(item, dict) or set(item) - {"zone", "skin", "factor"} or "zone" not in item \
+                or ("skin" in item) == ("factor" in item):
+            raise InputError(f'expected {{ zone = "...", skin = 0 }} or {{ zone = "...", factor = 2 }}, '
+                             f"got {item!r}", file=file, field=key)
+        i = _zone_index(project, item["zone"], file, f"{key}.zone")
+        if factor[i] == 0.0:
+            raise InputError(f'zone "{item["zone"]}" is both sealed and redeveloped', file=file,
+                             field=f"{key}.zone")
+        if "skin" in item:
+            skin = _number(item["skin"], file, f"{key}.skin", -np.inf, np.inf, False,
+                           "a skin factor (a plain number)")
+            f = redevelopment_factor(project, i, skin)
+            changes.append(f'redevelop {item["zone"]} to skin {skin:g} (conductance x {f:.3g})')
+        else:
+            f = _number(item["factor"], file, f"{key}.factor", 0.0, np.inf, True,
+                        "a conductance factor above zero")
+            changes.append(f'redevelop {item["zone"]} (conductance x {f:.3g})')
+        factor[i] *= f
+    intake = None
+    if "intake" in raw:
+        try:
+            intake = parse_quantity(raw["intake"], "length")
+        except InputError as err:
+            raise InputError(err.message, file=file, field=f"{pre}.intake") from None
+        if intake <= 0:
+            raise InputError(f"the intake depth must be below the datum, got {raw['intake']!r}",
+                             file=file, field=f"{pre}.intake")
+        changes.append(f"intake at {raw['intake']}")
+    drop = 0.0
+    if "lower_heads" in raw:
+        try:
+            drop = parse_quantity(raw["lower_heads"], "length")
+        except InputError as err:
+            raise InputError(err.message, file=file, field=f"{pre}.lower_heads") from None
+        changes.append(f"static heads {raw['lower_heads']} lower")
+    blend = _parse_blend(raw["blend"], project, file, f"{pre}.blend") if "blend" in raw else None
+    if blend is not None:
+        parts = ", ".join(f"{k} {v}" for k, v in raw["blend"].items() if k != "rate")
+        changes.append(f"blend {raw['blend']['rate']} ({parts})")
+    margin = alpha = None
+    if "margin" in raw:
+        margin = _number(raw["margin"], file, f"{pre}.margin", 0.0, 1.0, True,
+                         "a fraction of the limit above 0 and at most 1")
+        changes.append(f"margin {margin:g}")
+    if "exceedance_probability" in raw:
+        alpha = _number(raw["exceedance_probability"], file, f"{pre}.exceedance_probability",
+                        0.0, 0.5, True, "a probability above 0 and at most 0.5")
+        changes.append(f"exceedance probability {alpha:g}")
+    if not changes:
+        changes.append("no change")
+    return Scenario(name.strip(), factor, intake, drop, blend, margin, alpha, changes)
+
+
+def project_scenarios(project: Project) -> list[Scenario]:
+    """Every ``[[scenarios]]`` entry of a project, resolved."""
+    return [parse_scenario(raw, k, project) for k, raw in enumerate(project.scenarios, start=1)]
+
+
+# ------------------------------------------------------------------------------ the core
+def well_changes(scenario: Scenario) -> Callable[[WellModel], WellModel] | None:
+    """The change of the (batched) well model a scenario makes, or None for no change."""
+    if not scenario.changes_well:
+        return None
+
+    def apply(model: WellModel) -> WellModel:
+        geometry = model.geometry
+        if scenario.intake_depth is not None:
+            geometry = replace(geometry, intake_depth=scenario.intake_depth)
+        return model.with_changes(conductance=model.conductance * scenario.zone_factor,
+                                  static_head=model.static_head - scenario.head_drop,
+                                  geometry=geometry)
+
+    return apply
+
+
+def blend_concentration(well_concentration, rate, blend_rate: float, blend_concentration):
+    """Concentration of the well's discharge mixed with a second source [mg/L].
+
+    Parameters
+    ----------
+    well_concentration : array_like (..., n_rates[, ...])
+        C_w [mg/L] at each well rate.
+    rate : array_like
+        Well rate Q [m^3/d], broadcastable against ``well_concentration``.
+    blend_rate : float
+        Q_b [m^3/d] > 0.
+    blend_concentration : float or array_like
+        C_b [mg/L].
+
+    Notes
+    -----
+    Complete mixing of two streams: C = (Q C_w + Q_b C_b) / (Q + Q_b). At Q = 0 the delivered
+    water is the second source alone.
+    """
+    q = np.asarray(rate, float)
+    cw = np.where(q > 0, np.asarray(well_concentration, float), 0.0)
+    return (q * cw + blend_rate * np.asarray(blend_concentration, float)) / (q + blend_rate)
+
+
+def required_blend_rate(well_concentration, rate: float, blend_concentration: float,
+                        threshold: float, alpha: float) -> float:
+    """Smallest blend rate Q_b [m^3/d] that keeps P(C > threshold) <= alpha at well rate Q.
+
+    Parameters
+    ----------
+    well_concentration : array_like (n_draws,)
+        C_w of each draw at the well rate [mg/L].
+    rate : float
+        Well rate Q [m^3/d] > 0.
+    blend_concentration : float
+        C_b [mg/L].
+    threshold : float
+        Concentration to stay under, e.g. margin x limit [mg/L].
+    alpha : float
+        Largest acceptable fraction of draws above the threshold.
+
+    Returns
+    -------
+    float
+        Q_b [m^3/d]; 0 when the well alone complies.
+
+    Raises
+    ------
+    ModelError
+        When no blend rate can do it (the second source is itself at or above the threshold
+        where the well water is above it in more than alpha of the draws).
+
+    Notes
+    -----
+    For one draw, (Q C_w + Q_b C_b) / (Q + Q_b) <= T holds for Q_b >= Q (C_w - T) / (T - C_b)
+    when C_w > T > C_b, for every Q_b when C_w <= T, and for none when C_b >= T < C_w. The
+    draws above T at Q_b are those whose own requirement exceeds Q_b, so the answer is the
+    (n - m)-th smallest requirement, with m the largest count with m / n <= alpha.
+    """
+    cw = np.asarray(well_concentration, float).ravel()
+    if rate <= 0:
+        raise ModelError(f"the well rate must be above zero for a blend ratio, got {rate!r}")
+    n = len(cw)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        need = np.where(cw <= threshold, 0.0,
+                        np.where(blend_concentration < threshold,
+                                 rate * (cw - threshold) / (threshold - blend_concentration), np.inf))
+    m = int(np.floor(alpha * n))
+    while m + 1 <= n and (m + 1) / n <= alpha:
+        m += 1
+    while m > 0 and m / n > alpha:
+        m -= 1
+    if m >= n:
+        return 0.0
+    q_b = float(np.sort(need)[n - m - 1])
+    if not np.isfinite(q_b):
+        raise ModelError(f"no blend rate keeps the discharge under {threshold:.4g} mg/L: the "
+                         f"second source ({blend_concentration:.4g} mg/L) is not below it")
+    return q_b
+
+
+# ------------------------------------------------------------------------------ evaluation
+@dataclass
+class ScenarioResult:
+    """One evaluated scenario.
+
+    Attributes
+    ----------
+    scenario : Scenario
+    prediction : Prediction
+        Delivered water (blended where the scenario blends) at each well rate.
+    window : Window
+    yield_rate : float
+        Largest well rate [m^3/d] at which the pumping-level criteria hold (interpolated on the
+        grid); the top of the grid when they hold everywhere.
+    yield_beyond_grid : bool
+        True when the pumping-level criteria hold up to the top of the grid.
+    margin, alpha : float
+        The margin and exceedance probability used.
+    """
+
+    scenario: Scenario
+    prediction: Prediction
+    window: Window
+    yield_rate: float
+    yield_beyond_grid: bool
+    margin: float
+    alpha: float
+
+
+@dataclass
+class Comparison:
+    """All scenarios side by side.
+
+    Attributes
+    ----------
+    table : DataFrame
+        One row per scenario, the base case first (base units; see :func:`compare`).
+    results : list of ScenarioResult
+    """
+
+    table: pd.DataFrame
+    results: list[ScenarioResult]
+
+
+def pumping_level_yield(rates, level, allowed_depth: float) -> tuple[float, bool]:
+    """Largest rate [m^3/d] whose pumping level [m depth] stays at or above ``allowed_depth``.
+
+    ``level`` (n_rates,) grows with rate; the crossing is interpolated linearly between grid
+    rates. Returns (rate, True) when the level never reaches the allowed depth on the grid.
+    """
+    rates = np.asarray(rates, float)
+    level = np.asarray(level, float)
+    bad = np.nonzero(level > allowed_depth)[0]
+    if not len(bad):
+        return float(rates[-1]), True
+    k = int(bad[0])
+    if k == 0:
+        return 0.0, False
+    x0, x1, y0, y1 = rates[k - 1], rates[k], level[k - 1], level[k]
+    return float(x0 + (allowed_depth - y0) * (x1 - x0) / (y1 - y0)), False
+
+
+def evaluate(analysis, scenario: Scenario) -> ScenarioResult:
+    """Evaluate one scenario with the base case's draws and rate grid.
+
+    Parameters
+    ----------
+    analysis : blendq.decide.analysis.Analysis
+    scenario : Scenario
+    """
+    project = analysis.project
+    s, w = project.settings, project.well
+    rates = analysis.prediction.rates
+    pred = sweep(analysis.fit, analysis.draws, rates, changes=well_changes(scenario))
+    if scenario.blend is not None:
+        missing = [a for a in pred.analytes if a not in scenario.blend.concentration]
+        if missing:
+            raise InputError(f'the blend of scenario "{scenario.name}" needs a concentration of '
+                             f"{', '.join(missing)} (every analyte that is predicted)",
+                             file="project.toml", field=f"scenario {scenario.name!r} blend")
+        cb = np.array([scenario.blend.concentration[a] for a in pred.analytes])
+        conc = blend_concentration(pred.concentration, rates[None, :, None], scenario.blend.rate,
+                                   cb[None, None, :])
+        conc = np.where(rates[None, :, None] > 0, conc, np.nan)
+        pred = replace(pred, concentration=conc)
+    margin = s.margin if scenario.margin is None else scenario.margin
+    alpha = s.exceedance_probability if scenario.exceedance_probability is None \
+        else scenario.exceedance_probability
+    intake = w.pump_intake_depth if scenario.intake_depth is None else scenario.intake_depth
+    top = float(project.zone_top.min()) if w.keep_above_screen else None
+    from blendq.decide.sweep import applicable_ratio_rules, measured_exceedances
+
+    same_water = scenario.blend is None and not scenario.changes_well
+    # the base case's step-test levels and measured exceedances describe the well as tested:
+    # they carry over only to options that change neither the well nor the water
+    lc = analysis.step_drawdown
+    level_deep = lc.level_deep if (lc is not None and not scenario.changes_well
+                                   and scenario.intake_depth is None) else None
+    extra = measured_exceedances(analysis.fit, analysis.limits, margin, rates) \
+        if same_water else []
+    window = operating_window(pred, analysis.limits, margin, alpha, intake, w.submergence,
+                              w.rate_min, w.rate_max, w.demand, top, level_deep=level_deep,
+                              ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
+                              extra_criteria=extra)
+    allowed = intake - w.submergence if top is None else min(intake - w.submergence, top)
+    level = np.quantile(pred.pumping_level, 1 - alpha, axis=0)
+    y, beyond = pumping_level_yield(rates, level, allowed)
+    return ScenarioResult(scenario, pred, window, y, beyond, margin, alpha)
+
+
+def _row(analysis, res: ScenarioResult) -> dict:
+    s = analysis.project.settings
+    win, pred = res.window, res.prediction
+    widths = [hi - lo for lo, hi, _, _ in win.intervals]
+    row = {
+        "scenario": res.scenario.name,
+        "changes": "; ".join(res.scenario.changes),
+        "window_low": min((lo for lo, _, _, _ in win.intervals), default=np.nan),
+        "window_high": max((hi for _, hi, _, _ in win.intervals), default=np.nan),
+        "window_width": float(sum(widths)) if widths else 0.0,
+        "n_intervals": len(win.intervals),
+        "lower_end_set_by": win.intervals[0][2] if win.intervals else win.reason_empty,
+        "upper_end_set_by": win.intervals[-1][3] if win.intervals else win.reason_empty,
+        "recommended": np.nan if win.recommended is None else win.recommended,
+        "blend_rate": res.scenario.blend.rate if res.scenario.blend else 0.0,
+        "yield": res.yield_rate,
+        "yield_beyond_grid": res.yield_beyond_grid,
+    }
+    row["delivered"] = row["recommended"] + row["blend_rate"]
+    q = [(1 - s.interval) / 2, 0.5, 1 - (1 - s.interval) / 2]
+    k = None if win.recommended is None else int(np.argmin(np.abs(pred.rates - win.recommended)))
+    for j, a in enumerate(pred.analytes):
+        vals = (np.full(3, np.nan) if k is None
+                else np.quantile(pred.concentration[:, k, j], q))
+        row[f"{a}_median"], row[f"{a}_lower"], row[f"{a}_upper"] = (float(v) for v in
+                                                                    (vals[1], vals[0], vals[2]))
+    return row
+
+
+def compare(analysis, scenarios: list[Scenario] | None = None,
+            include_base: bool = True) -> Comparison:
+    """Evaluate the base case and every scenario with common random numbers.
+
+    Parameters
+    ----------
+    analysis : blendq.decide.analysis.Analysis
+    scenarios : list of Scenario, optional
+        Default: the project's ``[[scenarios]]``.
+    include_base : bool
+        Put the base case (no change) first.
+
+    Returns
+    -------
+    Comparison
+        ``table`` columns (base units): scenario, changes, window_low, window_high,
+        window_width [m^3/d] (sum of the interval widths), n_intervals, lower_end_set_by and
+        upper_end_set_by (what sets the lowest and the highest end of the window),
+        recommended, blend_rate, yield, yield_beyond_grid, delivered [m^3/d] (recommended well
+        rate + blend rate), and per analyte ``<a>_median``, ``<a>_lower``, ``<a>_upper``
+        [mg/L] at the recommended rate.
+    """
+    project = analysis.project
+    scenarios = project_scenarios(project) if scenarios is None else list(scenarios)
+    if include_base:
+        scenarios = [base_scenario(project), *scenarios]
+    results = [evaluate(analysis, sc) for sc in scenarios]
+    table = pd.DataFrame([_row(analysis, r) for r in results])
+    return Comparison(table, results)
+
+
+def blend_needed(analysis, rate: float, blend_concentration: dict[str, float],
+                 margin: float | None = None, alpha: float | None = None) -> pd.DataFrame:
+    """Blend rate needed per analyte at one well rate of the base case.
+
+    Parameters
+    ----------
+    analysis : blendq.decide.analysis.Analysis
+    rate : float
+        Well rate Q [m^3/d] (the nearest grid rate is used).
+    blend_concentration : dict analyte -> float
+        C_b [mg/L canonical].
+    margin, alpha : float, optional
+        Default: the project's settings.
+
+    Returns
+    -------
+    DataFrame
+        Columns analyte, rate, blend_rate [m^3/d], ratio (Q_b / Q) [-]; the row "all" holds
+        the largest, which meets every analyte.
+    """
+    s = analysis.project.settings
+    margin = s.margin if margin is None else margin
+    alpha = s.exceedance_probability if alpha is None else alpha
+    pred = analysis.prediction
+    k = int(np.argmin(np.abs(pred.rates - rate)))
+    q = float(pred.rates[k])
+    rows = []
+    for j, a in enumerate(pred.analytes):
+        if a not in analysis.limits or a not in blend_concentration:
+            continue
+        qb = required_blend_rate(pred.concentration[:, k, j], q, blend_concentration[a],
+                                 margin * analysis.limits[a].canonical(), alpha)
+        rows.append({"analyte": a, "rate": q, "blend_rate": qb, "ratio": qb / q})
+    if rows:
+        top = max(rows, key=lambda r: r["blend_rate"])
+        rows.append({**top, "analyte": "all"})
+    return pd.DataFrame(rows, columns=["analyte", "rate", "blend_rate", "ratio"])

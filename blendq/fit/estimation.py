@@ -1,0 +1,316 @@
+"""Estimate zone concentrations, jointly with the zone hydraulics, from step-test data.
+
+For fixed hydraulics the blend at step k is linear in the zone values: y_kj = sum_i a_i(Q_k) c_ij.
+For each analyte j the zone values solve a weighted, bounded and censored least-squares problem
+(:mod:`blendq.fit.constrained_lsq`). The hydraulic parameters theta = (ln G_i, h0_i[, C]) are fitted by
+``scipy.optimize.least_squares`` on the combined residuals of the flow logs, the pumping
+levels, the priors and the quality data, with the concentrations projected out at every theta
+(variable projection, Golub and Pereyra 1973). Every analyte shares the same hydraulics.
+
+References
+----------
+Golub, G.H. and Pereyra, V. (1973) The differentiation of pseudo-inverses and nonlinear least
+squares problems whose variables separate. SIAM J. Numer. Anal. 10(2), 413-432.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy import optimize
+
+from blendq.errors import ModelError
+from blendq.fit import constrained_lsq as qp
+from blendq.fit.observations import AnalyteData, quality_data
+from blendq.inputs.project import Project
+from blendq.well import mixing
+from blendq.well.flowlog import log_error
+from blendq.well.model import (
+    HydraulicPrior,
+    WellModel,
+    model_from_parameters,
+    prior_hydraulics,
+)
+
+
+def row_weights(model: WellModel, rate, depth) -> np.ndarray:
+    """Weights of each zone in samples taken at ``rate`` [m^3/d] and ``depth`` [m].
+
+    ``depth`` NaN means the discharge. Returns shape (..., m, n_zones) for a model whose
+    parameters have batch shape (...).
+    """
+    rate = np.asarray(rate, float)
+    depth = np.asarray(depth, float)
+    n = np.asarray(model.conductance).shape[-1]
+    batch = np.broadcast_shapes(np.shape(model.conductance)[:-1], np.shape(model.static_head)[:-1])
+    out = np.zeros(batch + (len(rate), n))
+    if len(rate) == 0:
+        return out
+    uniq, inv = np.unique(rate, return_inverse=True)
+    st = model.state(uniq)
+    flows = st.zone_flow  # (..., n_uniq, n)
+    disch = mixing.discharge_weights(flows, model.geometry)
+    out[...] = disch[..., inv, :]
+    for k in np.flatnonzero(np.isfinite(depth)):
+        comp = mixing.wellbore_composition(flows[..., inv[k], :], model.geometry, [depth[k]])
+        out[..., k, :] = comp[..., 0, :]
+    return np.nan_to_num(out, nan=0.0)
+
+
+@dataclass(frozen=True)
+class FitOptions:
+    """Options of the fit.
+
+    Attributes
+    ----------
+    fit_hydraulics : bool
+        Fit the hydraulic parameters jointly (True) or keep the prior values (False).
+    fit_well_loss : bool
+        Fit Jacob's well-loss coefficient C from the pumping levels.
+    lower, upper : dict
+        Per-analyte bounds on the zone values [mg/L]: {analyte: array (n_zones,)}.
+    outlier_z : float
+        |standardised residual| above which a result is flagged as an outlier.
+    """
+
+    fit_hydraulics: bool = True
+    fit_well_loss: bool = True
+    lower: dict = field(default_factory=dict)
+    upper: dict = field(default_factory=dict)
+    outlier_z: float = 3.0
+
+
+@dataclass
+class Problem:
+    """Everything the residual function needs, in base units."""
+
+    project: Project
+    prior: HydraulicPrior
+    data: dict[str, AnalyteData]
+    options: FitOptions
+    log_rows: pd.DataFrame
+    log_sd: np.ndarray
+    level_rate: np.ndarray
+    level_depth: np.ndarray
+    level_sd: float
+    fit_c: bool
+    n_zones: int
+
+    def bounds(self, analyte: str):
+        n = self.n_zones
+        lb = np.asarray(self.options.lower.get(analyte, np.zeros(n)), float)
+        ub = np.asarray(self.options.upper.get(analyte, np.full(n, np.inf)), float)
+        return lb, ub
+
+    def unpack(self, theta):
+        n = self.n_zones
+        g = np.exp(theta[..., :n])
+        h0 = theta[..., n:2 * n]
+        c = theta[..., 2 * n] if self.fit_c else self.project.well.well_loss
+        return g, h0, c
+
+    def model(self, theta) -> WellModel:
+        g, h0, c = self.unpack(np.asarray(theta, float))
+        return model_from_parameters(self.project, g, h0, c)
+
+
+def build_problem(project: Project, options: FitOptions | None = None,
+                  sample_use: pd.DataFrame | None = None) -> Problem:
+    """Collect the data of a project for :func:`fit`."""
+    options = options or FitOptions()
+    prior = prior_hydraulics(project)
+    data = quality_data(project, sample_use)
+    s = project.settings
+    logs = project.flowlogs
+    if logs is None or logs.empty:
+        logs = pd.DataFrame(columns=["log", "rate", "depth", "upward_flow"])
+    log_sd = log_error(logs["upward_flow"].astype(float), s.flowlog_relative_error,
+                       s.flowlog_absolute_error) if len(logs) else np.zeros(0)
+    steps = project.steps
+    lv = steps[np.isfinite(steps["pumping_level"].astype(float))] if len(steps) else steps
+    rates = list(lv["rate"].astype(float)) if len(lv) else []
+    depths = list(lv["pumping_level"].astype(float)) if len(lv) else []
+    if project.well.static_level is not None:
+        rates.append(0.0)
+        depths.append(project.well.static_level)
+    fit_c = options.fit_hydraulics and options.fit_well_loss and len(lv) >= 2
+    return Problem(project, prior, data, options, logs.reset_index(drop=True), np.asarray(log_sd),
+                   np.array(rates, float), np.array(depths, float), s.level_error, fit_c,
+                   len(project.zones))
+
+
+def solve_concentrations(problem: Problem, model: WellModel, analyte: str, values=None):
+    """Zone values [mg/L] of one analyte for fixed hydraulics; also the weight matrices."""
+    d = problem.data[analyte]
+    a = row_weights(model, d.rate, d.depth)
+    ac = row_weights(model, d.cens_rate, d.cens_depth)
+    lb, ub = problem.bounds(analyte)
+    y = d.value if values is None else values
+    c = qp.solve_censored_lsq(a, y, d.sigma, lb, ub, ac if len(ac) else None,
+                              d.cens_limit if len(ac) else None)
+    return c, a, ac
+
+
+def _hydraulic_residuals(problem: Problem, theta, model: WellModel) -> list[np.ndarray]:
+    p = problem.prior
+    n = problem.n_zones
+    res = []
+    finite = np.isfinite(p.log_conductance_sd)
+    res.append((theta[:n][finite] - p.log_conductance[finite]) / p.log_conductance_sd[finite])
+    finite = np.isfinite(p.static_head_sd)
+    res.append((theta[n:2 * n][finite] - p.static_head[finite]) / p.static_head_sd[finite])
+    logs = problem.log_rows
+    if len(logs):
+        pred = np.empty(len(logs))
+        for rate, idx in logs.groupby("rate").groups.items():
+            st = model.state(np.array([float(rate)]))
+            pred[np.asarray(idx)] = mixing.wellbore_flow(
+                st.zone_flow[0], model.geometry, logs.loc[idx, "depth"].to_numpy(float))
+        res.append((pred - logs["upward_flow"].to_numpy(float)) / problem.log_sd)
+    if len(problem.level_rate):
+        depth = model.pumping_level_depth(problem.level_rate)
+        res.append((depth - problem.level_depth) / problem.level_sd)
+    return res
+
+
+def residuals(problem: Problem, theta) -> np.ndarray:
+    """Whitened residual vector of the joint problem at theta (concentrations projected out)."""
+    theta = np.asarray(theta, float)
+    model = problem.model(theta)
+    res = _hydraulic_residuals(problem, theta, model)
+    for analyte, d in problem.data.items():
+        c, a, ac = solve_concentrations(problem, model, analyte)
+        res.append((a @ c - d.value) / d.sigma)
+        if len(ac):
+            res.append(np.maximum(ac @ c - d.cens_limit, 0.0) / np.maximum(d.cens_limit, 1e-12))
+    return np.concatenate(res) if res else np.zeros(0)
+
+
+def initial_theta(problem: Problem) -> np.ndarray:
+    p = problem.prior
+    h0 = np.where(np.isfinite(p.static_head), p.static_head, 0.0)
+    parts = [p.log_conductance, h0]
+    if problem.fit_c:
+        parts.append([max(problem.project.well.well_loss, 0.0)])
+    return np.concatenate(parts).astype(float)
+
+
+@dataclass
+class FitResult:
+    """Outcome of :func:`fit`.
+
+    Attributes
+    ----------
+    problem : Problem
+    theta : ndarray
+        Fitted hydraulic parameters (ln G_i [ln(m^2/d)], h0_i [m][, C [d^2/m^5]]).
+    theta_cov : ndarray
+        Linearised covariance of theta.
+    jacobian : ndarray
+        Jacobian of the whitened residuals at theta.
+    model : WellModel
+        The well at the fitted parameters.
+    concentrations : DataFrame
+        Index zone names, columns analytes: zone values [mg/L canonical].
+    analytes : list of str
+    success : bool
+    message : str
+    """
+
+    problem: Problem
+    theta: np.ndarray
+    theta_cov: np.ndarray
+    jacobian: np.ndarray
+    model: WellModel
+    concentrations: pd.DataFrame
+    analytes: list[str]
+    success: bool
+    message: str
+    cost: float
+
+    @property
+    def zone_names(self) -> list[str]:
+        return self.problem.project.zone_names
+
+    def zone_values(self) -> np.ndarray:
+        """Zone values, shape (n_zones, n_analytes) [mg/L]."""
+        return self.concentrations[self.analytes].to_numpy(float)
+
+    def predict(self, rates) -> np.ndarray:
+        """Discharge concentration at each rate [mg/L], shape (n_rates, n_analytes)."""
+        w = self.model.weights(np.asarray(rates, float))
+        return w @ self.zone_values()
+
+
+def fit(project: Project, options: FitOptions | None = None,
+        sample_use: pd.DataFrame | None = None) -> FitResult:
+    """Fit zone concentrations (and, by default, zone hydraulics) to a project's data.
+
+    Parameters
+    ----------
+    project : Project
+    options : FitOptions, optional
+    sample_use : DataFrame, optional
+        Per-sample use from the lab review (see :func:`blendq.fit.observations.quality_data`).
+
+    Returns
+    -------
+    FitResult
+
+    Raises
+    ------
+    ModelError
+        If the project has no quality data at a known step.
+    """
+    problem = build_problem(project, options, sample_use)
+    if not problem.data:
+        raise ModelError("no lab results at a known step: nothing to fit")
+    theta0 = initial_theta(problem)
+    n = problem.n_zones
+    if problem.options.fit_hydraulics:
+        lo = np.full(theta0.shape, -np.inf)
+        hi = np.full(theta0.shape, np.inf)
+        if problem.fit_c:
+            lo[2 * n] = 0.0
+        sol = optimize.least_squares(lambda t: residuals(problem, t), theta0, bounds=(lo, hi),
+                                     method="trf", x_scale="jac", xtol=1e-12, ftol=1e-12,
+                                     gtol=1e-12, max_nfev=400 * (len(theta0) + 1))
+        theta, jac, success, message, cost = sol.x, sol.jac, sol.success, sol.message, sol.cost
+    else:
+        theta = theta0
+        jac = _jacobian(problem, theta0)
+        r = residuals(problem, theta0)
+        success, message, cost = True, "hydraulics fixed at prior values", 0.5 * float(r @ r)
+    theta_cov = scaled_pinv(jac) @ scaled_pinv(jac).T if jac.size else np.zeros((0, 0))
+    model = problem.model(theta)
+    conc = {}
+    for analyte in problem.data:
+        conc[analyte], _, _ = solve_concentrations(problem, model, analyte)
+    table = pd.DataFrame(conc, index=pd.Index(project.zone_names, name="zone"))
+    return FitResult(problem, theta, theta_cov, jac, model, table, list(problem.data), success,
+                     str(message), float(cost))
+
+
+def scaled_pinv(jac: np.ndarray, rcond: float = 1e-10) -> np.ndarray:
+    """Pseudo-inverse of a Jacobian after scaling its columns to unit norm.
+
+    Parameters differ by many orders of magnitude (ln G ~ 5, C ~ 1e-7 d^2/m^5), so the columns
+    are equilibrated before the cut-off of small singular values and scaled back after.
+    """
+    norms = np.linalg.norm(jac, axis=0)
+    norms = np.where(norms > 0, norms, 1.0)
+    return np.linalg.pinv(jac / norms, rcond=rcond) / norms[:, None]
+
+
+def _jacobian(problem: Problem, theta) -> np.ndarray:
+    """Forward-difference Jacobian of the whitened residuals."""
+    r0 = residuals(problem, theta)
+    jac = np.empty((len(r0), len(theta)))
+    for k in range(len(theta)):
+        step = 1e-6 * max(1.0, abs(theta[k]))
+        t = theta.copy()
+        t[k] += step
+        jac[:, k] = (residuals(problem, t) - r0) / step
+    return jac

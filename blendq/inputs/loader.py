@@ -1,0 +1,307 @@
+"""Read a blendq project: a TOML project file and its tables, checked, in base units.
+
+:func:`load_project` is the one entry point. It reads ``project.toml`` (see
+:mod:`blendq.inputs.project_file`), the tables it names (cells and header units by
+:mod:`blendq.inputs.tables`), checks each table's rows and the links between tables, converts
+every quantity to the core's base units (m, m^3/d, d, mg/L on the analyte's canonical basis;
+see :mod:`blendq.units`) and returns a :class:`blendq.inputs.project.Project`. Any problem is an
+:class:`~blendq.errors.InputError` naming the file, the row (1-based data row, header = row 0)
+and the field, with the value received. Files are opened for reading only; the format is
+described in ``docs/input-files.md``.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import pandas as pd
+
+from blendq.chemistry.analytes import get_analyte, implied_basis, normalise_basis, to_canonical
+from blendq.errors import InputError
+from blendq.inputs.project import TABLE_COLUMNS, Project
+from blendq.inputs.project_file import read_project_file
+from blendq.inputs.tables import Table, located, one_line, read_table, split_unit_basis
+
+
+def _steps(t: Table) -> pd.DataFrame:
+    out, seen = [], {}
+    for n, (row, get) in enumerate(t.records()):
+        step = get("step")
+        if step in seen:
+            raise t.error(row, "step", f'"{step}" is already the id of row {seen[step]}')
+        seen[step] = row
+        rate = get("rate")
+        if rate < 0:
+            raise t.error(row, "rate", f'"{t.raw(row, "rate")}" is negative')
+        start, end, duration = get("start"), get("end"), get("duration")
+        if duration is not None and duration <= 0:
+            raise t.error(row, "duration", f'"{t.raw(row, "duration")}" is not positive')
+        if start is not None and end is not None:
+            span = (end - start) / pd.Timedelta(days=1)
+            if span <= 0:
+                raise t.error(row, "end", f'"{t.raw(row, "end")}" is not after the start')
+            if duration is not None and abs(span - duration) > 1.0 / 1440:
+                raise t.error(row, "duration", f'"{t.raw(row, "duration")}" differs from end '
+                                               "minus start by more than a minute")
+            duration = span
+        elif start is not None and duration is not None:
+            end = _shifted(t, row, start, duration)
+        elif end is not None and duration is not None:
+            start = _shifted(t, row, end, -duration)
+        recovered = get("recovered_before")
+        out.append([step, rate, start, end, duration, get("pumping_level"),
+                    (n == 0) if recovered is None else recovered, row])
+    return _frame("steps", out)
+
+
+def _shifted(t: Table, row: int, stamp: pd.Timestamp, days: float) -> pd.Timestamp:
+    """``stamp`` moved by ``days``; a duration that leaves the datetime range is an error."""
+    try:
+        moved = stamp + pd.Timedelta(days=days)
+    except (OverflowError, ValueError):  # pandas' out-of-bounds errors are ValueErrors
+        moved = None
+    if moved is None or not pd.Timestamp.min <= moved <= pd.Timestamp.max:
+        raise t.error(row, "duration", f'"{t.raw(row, "duration")}" is too long (the step '
+                                       "would end outside the years 1678 to 2261)")
+    return moved
+
+
+def _samples(t: Table, steps: dict[str, float]) -> pd.DataFrame:
+    if "unit" not in t.columns and t.unit("value") is None:
+        raise t.error(0, "unit", "column is missing; add a unit column or a unit in the value "
+                                 'header such as "value [mg/L]"')
+    out, seen = [], {}
+    for row, get in t.records():
+        sample_id, step = get("sample_id"), get("step")
+        _known_step(t, row, step, steps)
+        try:
+            analyte = get_analyte(get("analyte"))
+        except InputError as err:
+            raise located(err, t.label, row, "analyte", t.raw(row, "analyte")) from err
+        if (sample_id, analyte.key) in seen:
+            raise t.error(row, "analyte", f'sample "{sample_id}" already has a {analyte.key} '
+                                          f"result in row {seen[sample_id, analyte.key]}")
+        seen[sample_id, analyte.key] = row
+        unit_text = get("unit") or t.unit("value")
+        if not unit_text:
+            raise t.error(row, "unit", "is empty; give the unit of the value")
+        _, unit, unit_basis = split_unit_basis(unit_text)
+        basis_text = get("basis") or ""
+        named = implied_basis(t.raw(row, "analyte"))
+        if named and not (basis_text or unit_basis):
+            basis_text = named  # "Nitrate-N", "NO3-N", "nitrate as N": the name states it
+        elif named and _row_basis(t, row, analyte, basis_text or unit_basis) != \
+                _row_basis(t, row, analyte, named):
+            raise t.error(row, "basis", f'"{basis_text or unit_basis}" disagrees with the '
+                                        f'analyte name "{t.raw(row, "analyte")}"')
+        basis = _row_basis(t, row, analyte, basis_text or unit_basis)
+        if unit_basis and basis_text and _row_basis(t, row, analyte, unit_basis) != basis:
+            raise t.error(row, "basis", f'"{basis_text}" disagrees with the unit "{unit_text}"')
+        basis_text = basis_text or unit_basis or ""
+        try:
+            factor = to_canonical(1.0, unit, analyte, basis or None)
+        except InputError as err:
+            raise located(err, t.label, row, "unit", unit_text) from err
+        value, nondetect, dl, uncertainty, reported = _sample_value(t, row, get, factor)
+        analyzed, sampled = get("analyzed_at"), get("sampled_at")
+        if analyzed is not None and sampled is not None and analyzed < sampled:
+            raise t.error(row, "analyzed_at", f'"{t.raw(row, "analyzed_at")}" is before '
+                                              f'sampled_at "{t.raw(row, "sampled_at")}"')
+        depth = get("depth")
+        if depth is not None and depth < 0:
+            raise t.error(row, "depth", f'"{t.raw(row, "depth")}" is above the datum')
+        out.append([sample_id, step, analyte.key, value, nondetect, dl, uncertainty,
+                    get("qualifier") or "", sampled, analyzed, get("duplicate_of") or "",
+                    math.nan if depth is None else depth, get("preservation") or "",
+                    reported, unit, basis_text, row])
+    ids = {r[0] for r in out}
+    for r in out:
+        if r[10] and (r[10] not in ids or r[10] == r[0]):
+            raise t.error(r[-1], "duplicate_of", f'"{r[10]}" is not the sample_id of another '
+                                                 "sample in this file")
+    return _frame("samples", out)
+
+
+def _row_basis(t: Table, row: int, analyte, text: str | None) -> str:
+    try:
+        return normalise_basis(analyte, text or None)
+    except InputError as err:
+        raise located(err, t.label, row, "basis", text) from err
+
+
+_NONDETECT_WORDS = {"nd", "n.d.", "<dl", "<rl", "<mdl", "bdl"}
+
+
+def _sample_value(t: Table, row: int, get, factor: float) -> tuple:
+    """(value, nondetect, detection limit, uncertainty, reported number) of one result.
+
+    The first four are in canonical mg/L; the reported number is as written (NaN if none).
+    """
+    raw = t.raw(row, "value")
+    marked = raw.startswith("<") or raw.lower() in _NONDETECT_WORDS
+    flagged = get("nondetect")
+    if flagged is False and marked:
+        raise t.error(row, "nondetect", f'says false but the value is "{raw}"')
+    nondetect = bool(flagged) or marked
+    try:
+        number = t.number_in(row, "value")
+    except InputError as err:
+        raise t.error(row, "value", f'{err.message} (expected e.g. "4.2", "<0.5" or "ND")') from None
+    if not nondetect and math.isnan(number):
+        raise t.error(row, "value", "is empty; give the result or mark it as a non-detect")
+    if number < 0:
+        raise t.error(row, "value", f'"{raw}" is negative')
+    dl = t.number_in(row, "detection_limit")
+    if nondetect:
+        if math.isnan(dl):
+            dl = number
+        elif not math.isnan(number) and not math.isclose(number, dl, rel_tol=1e-9):
+            raise t.error(row, "detection_limit", f'"{t.raw(row, "detection_limit")}" differs '
+                                                  f'from the limit in the value "{raw}"')
+        if math.isnan(dl):
+            raise t.error(row, "detection_limit", "is empty; a non-detect needs its detection "
+                                                  'limit (or write the value as "<0.5")')
+    if dl <= 0:
+        raise t.error(row, "detection_limit", f'"{t.raw(row, "detection_limit")}" is not positive')
+    unc_raw = t.raw(row, "uncertainty")
+    if unc_raw.endswith("%"):
+        unc = t.number_text(row, "uncertainty", unc_raw[:-1]) / 100.0 * number
+    else:
+        unc = t.number_in(row, "uncertainty")
+    if unc < 0:
+        raise t.error(row, "uncertainty", f'"{unc_raw}" is negative')
+    value = math.nan if nondetect else number * factor
+    uncertainty = math.nan if nondetect else unc * factor
+    for column, base in (("value", value), ("detection_limit", dl * factor),
+                         ("uncertainty", uncertainty)):
+        if math.isinf(base):  # a finite number that overflows in mg/L (1e308 g/L)
+            raise t.error(row, column, f'"{t.raw(row, column)}" is too large (not a finite '
+                                       "number once converted to mg/L)")
+    return value, nondetect, dl * factor, uncertainty, number
+
+
+def _flowlogs(t: Table, steps: dict[str, float]) -> pd.DataFrame:
+    out, logs = [], {}
+    for row, get in t.records():
+        log, step, rate = get("log"), get("step") or "", get("rate")
+        if step:
+            _known_step(t, row, step, steps)
+        if rate is None:
+            if not step:
+                raise t.error(row, "rate", "is empty and no step is given; give the pumping "
+                                           "rate of the log (0 for ambient)")
+            rate = steps[step]
+        if rate < 0:
+            raise t.error(row, "rate", f'"{t.raw(row, "rate")}" is negative')
+        first_row, first_rate, first_step = logs.setdefault(log, (row, rate, step))
+        if first_step != step:
+            raise t.error(row, "step", f'"{step}" differs from the step "{first_step}" of log '
+                                       f'"{log}" in row {first_row}; one log is one run')
+        if not math.isclose(first_rate, rate, rel_tol=1e-9, abs_tol=1e-12):
+            raise t.error(row, "rate", f'"{t.raw(row, "rate")}" differs from the rate of log '
+                                       f'"{log}" in row {first_row}; one log is run at one rate')
+        depth = get("depth")
+        if depth < 0:
+            raise t.error(row, "depth", f'"{t.raw(row, "depth")}" is above the datum')
+        out.append([log, step, rate, depth, get("upward_flow"), row])
+    return _frame("flowlogs", out)
+
+
+def _levels(t: Table) -> pd.DataFrame:
+    return _frame("levels", [[get("time"), get("level"), row] for row, get in t.records()])
+
+
+#: parameter columns of the field table
+FIELD_PARAMETERS = ("temperature", "ph", "specific_conductance", "dissolved_oxygen", "turbidity")
+
+
+def _field(t: Table, steps: dict[str, float]) -> pd.DataFrame:
+    measured = FIELD_PARAMETERS
+    if not any(c in t.columns for c in measured):
+        raise t.error(0, measured[0], "no field parameter columns found (expected one or more "
+                                      f"of {', '.join(measured)})")
+    out = []
+    for row, get in t.records():
+        step = get("step")
+        _known_step(t, row, step, steps)
+        values = [get(c) for c in measured]
+        for c, v in zip(measured, values, strict=True):
+            low, high = (0.0, 14.0) if c == "ph" else (-math.inf if c == "temperature" else 0.0,
+                                                       math.inf)
+            if v is not None and not low <= v <= high:
+                expected = "0 to 14" if c == "ph" else "zero or more"
+                raise t.error(row, c, f'"{t.raw(row, c)}" is out of range (expected {expected})')
+        out.append([step, get("time")] + [math.nan if v is None else v for v in values] + [row])
+    return _frame("field", out)
+
+
+def _known_step(t: Table, row: int, step: str, steps: dict[str, float]) -> None:
+    if step not in steps:
+        known = ", ".join(f'"{s}"' for s in steps)
+        raise t.error(row, "step", f'"{step}" is not a step of the steps table (known: {known})')
+
+
+def _frame(name: str, rows: list[list]) -> pd.DataFrame:
+    frame = pd.DataFrame(rows, columns=TABLE_COLUMNS[name])
+    for col in frame.columns:
+        if col in ("start", "end", "time", "sampled_at", "analyzed_at"):
+            frame[col] = pd.to_datetime(frame[col]).astype("datetime64[ns]")
+        elif col in ("recovered_before", "nondetect"):
+            frame[col] = frame[col].astype(bool)
+        elif col == "source_row":
+            frame[col] = frame[col].astype(int)
+        elif frame[col].map(lambda v: v is None or isinstance(v, float)).all():
+            frame[col] = frame[col].astype(float)
+    return frame
+
+
+def load_project(path: str | Path) -> Project:
+    """Read, check and convert a blendq project.
+
+    Parameters
+    ----------
+    path : str or Path
+        The project file (TOML) or a folder holding ``project.toml``.
+
+    Returns
+    -------
+    Project
+        Well, zones, settings, limits (the named sets followed by the user's own) and tables,
+        all in base units: m, m^3/d, d, mg/L on each analyte's canonical basis.
+
+    Raises
+    ------
+    InputError
+        For any problem, naming file, row (1-based data row; header = row 0) and field.
+
+    Notes
+    -----
+    The format is described in ``docs/input-files.md``. Reading never writes to any file.
+    """
+    try:
+        return _load(path)
+    except InputError as err:  # a cell or key may hold a line break: keep the message one line
+        raise InputError(one_line(err.message), file=one_line(err.file or "") or None,
+                         row=err.row, field=one_line(err.field or "") or None) from None
+
+
+def _load(path: str | Path) -> Project:
+    head = read_project_file(path)
+    files = {"project": head.path.name} | {k: v[1] for k, v in head.tables.items()}
+    tables = {k: read_table(p, lbl, k) for k, (p, lbl) in head.tables.items()}
+    steps = _steps(tables["steps"])
+    step_rates = dict(zip(steps["step"], steps["rate"], strict=True))
+    project = Project(name=head.name, well=head.well, zones=head.zones, settings=head.settings,
+                      limits=head.limits, steps=steps, scenarios=head.scenarios,
+                      folder=head.path.parent, files=files)
+    if "samples" in tables:
+        project.samples = _samples(tables["samples"], step_rates)
+    if "flowlogs" in tables:
+        project.flowlogs = _flowlogs(tables["flowlogs"], step_rates)
+    if "levels" in tables:
+        project.levels = _levels(tables["levels"])
+    if "field" in tables:
+        project.field_readings = _field(tables["field"], step_rates)
+    return project
+

@@ -1,0 +1,254 @@
+"""In-memory description of a well, its zones, its step test and its samples.
+
+Everything here is in the core's base units (see :mod:`blendq.units`): lengths and depths in m
+(depths positive downward from the well's datum), rates in m^3/d, times in d, concentrations in
+mg/L on each analyte's canonical basis. :mod:`blendq.inputs.loader` builds a :class:`Project` from the
+user's files; tests and scripts may build one directly.
+
+Tables are pandas DataFrames with the columns listed in :data:`TABLE_COLUMNS`; every table has a
+``source_row`` column (1-based data row in the file it came from) so later stages can name the
+row in a message.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from blendq.chemistry.limits import Limit
+
+#: columns of each table (in base units), in order
+TABLE_COLUMNS: dict[str, list[str]] = {
+    # one row per step of the step-rate test; start/end as pandas Timestamps (NaT if unknown)
+    # duration [d]; pumping_level [m depth below datum] at the end of the step (NaN if not read)
+    # recovered_before: True when the well recovered to static before this step began
+    "steps": ["step", "rate", "start", "end", "duration", "pumping_level", "recovered_before",
+              "source_row"],
+    # one row per lab result. value [mg/L canonical basis]; for a non-detect value is NaN and
+    # detection_limit holds the limit. uncertainty is one standard deviation [mg/L], NaN if the
+    # lab gave none. depth [m] is NaN for a discharge sample, a depth for a sample taken inside
+    # the well. duplicate_of names the sample_id of the primary sample ("" if not a duplicate).
+    "samples": ["sample_id", "step", "analyte", "value", "nondetect", "detection_limit",
+                "uncertainty", "qualifier", "sampled_at", "analyzed_at", "duplicate_of", "depth",
+                "preservation", "reported_value", "reported_unit", "reported_basis",
+                "source_row"],
+    # spinner or heat-pulse log: upward_flow [m^3/d] (positive up) at depth [m], for a log run
+    # at pumping rate `rate` [m^3/d] (0 for ambient). `step` may name the step it was run in.
+    "flowlogs": ["log", "step", "rate", "depth", "upward_flow", "source_row"],
+    # water-level record of the test: time (Timestamp), level [m depth below datum]
+    "levels": ["time", "level", "source_row"],
+    # field readings logged while purging before a sample: temperature [degC], ph [-],
+    # specific_conductance [uS/cm], dissolved_oxygen [mg/L], turbidity [FNU]
+    "field": ["step", "time", "temperature", "ph", "specific_conductance", "dissolved_oxygen",
+              "turbidity", "source_row"],
+}
+
+
+def empty_table(name: str) -> pd.DataFrame:
+    """An empty table with the columns of ``name``."""
+    return pd.DataFrame({c: pd.Series(dtype=object) for c in TABLE_COLUMNS[name]})
+
+
+@dataclass(frozen=True)
+class Well:
+    """The well and its pump.
+
+    Attributes
+    ----------
+    name : str
+    well_radius : float
+        Effective well (screen) radius r_w [m].
+    pump_intake_depth : float
+        Depth of the pump intake below the datum [m].
+    submergence : float
+        Required water depth above the intake [m].
+    rate_min, rate_max : float
+        The pump's usable rate range [m^3/d].
+    demand : float or None
+        Rate the system would like to pump [m^3/d].
+    well_loss : float
+        Jacob's well-loss coefficient C [d^2/m^5] for the loss above the zones (s = C Q^2);
+        zero when unknown.
+    keep_above_screen : bool
+        Also keep the pumping level above the top of the uppermost zone.
+    radius_of_influence : float or None
+        R [m] for steady Thiem conductances.
+    static_level : float or None
+        Depth to water in the well before pumping [m] (the composite ambient level).
+    datum : str
+        What depths are measured from (e.g. "top of casing").
+    location : str
+        Free text.
+    """
+
+    name: str
+    well_radius: float
+    pump_intake_depth: float
+    submergence: float = 0.0
+    rate_min: float = 0.0
+    rate_max: float = np.inf
+    demand: float | None = None
+    well_loss: float = 0.0
+    keep_above_screen: bool = False
+    radius_of_influence: float | None = None
+    static_level: float | None = None
+    datum: str = "top of casing"
+    location: str = ""
+
+
+@dataclass(frozen=True)
+class Zone:
+    """One screened zone (or open interval) of the well.
+
+    Attributes
+    ----------
+    name : str
+    top, bottom : float
+        Depths below the datum [m], top < bottom.
+    static_level : float or None
+        Depth to static water of the zone [m]; None where unknown (a flow log may give it).
+    transmissivity : float or None
+        T [m^2/d].
+    conductivity : float or None
+        K_h [m/d]; T = K_h (bottom - top) when T is not given.
+    storativity : float or None
+        S [-], for transient (Cooper-Jacob) conductances.
+    skin : float
+        Skin factor s [-] (positive for a clogged interval).
+    nonlinear_loss : float
+        D [d^2/m^5] in dh = q/G + D q|q|.
+    conductance : float or None
+        G [m^2/d], when known directly (overrides T, S, skin).
+    """
+
+    name: str
+    top: float
+    bottom: float
+    static_level: float | None = None
+    transmissivity: float | None = None
+    conductivity: float | None = None
+    storativity: float | None = None
+    skin: float = 0.0
+    nonlinear_loss: float = 0.0
+    conductance: float | None = None
+
+    @property
+    def thickness(self) -> float:
+        """Open thickness b [m]."""
+        return self.bottom - self.top
+
+    @property
+    def zone_transmissivity(self) -> float | None:
+        """T [m^2/d], from T or from K b."""
+        if self.transmissivity is not None:
+            return self.transmissivity
+        if self.conductivity is not None:
+            return self.conductivity * self.thickness
+        return None
+
+    @property
+    def static_head(self) -> float | None:
+        """Static head [m] as elevation relative to the datum (= -static_level)."""
+        return None if self.static_level is None else -self.static_level
+
+
+@dataclass(frozen=True)
+class Settings:
+    """Decision and computation settings.
+
+    Attributes
+    ----------
+    limit_sets : tuple of str
+        Named limit sets that apply ("US-EPA", "WHO", "EU").
+    margin : float
+        Operating margin as a fraction of each limit (0.8 = stay under 80 % of the limit).
+        A utility's policy, not a rule.
+    exceedance_probability : float
+        Largest acceptable probability of exceeding margin x limit (alpha).
+    interval : float
+        Central probability of reported intervals (0.90).
+    horizon : float
+        Operating horizon t [d] for transient conductances.
+    rate_grid_points : int
+    rate_grid_max : float or None
+        Largest rate of the sweep [m^3/d]; default 1.2 x the largest of pump range and steps.
+    draws : int
+        Monte Carlo draws.
+    seed : int
+    display_units : str
+        "US" or "SI".
+    conductance_model : str
+        "auto", "steady", "transient", "given" or "flowlog".
+    flowlog_relative_error : float
+        Relative error of a logged flow [-] (1 sd).
+    flowlog_absolute_error : float
+        Absolute floor of a logged flow's error [m^3/d] (spinner stall; 2.7 m^3/d = 0.5 gpm).
+    level_error : float
+        Error of a measured water level [m] (1 sd).
+    default_relative_uncertainty : float
+        Lab uncertainty (1 sd, relative) used where a result has none.
+    qa : dict
+        Options of the lab and field review.
+    """
+
+    limit_sets: tuple[str, ...] = ("US-EPA",)
+    margin: float = 0.8
+    exceedance_probability: float = 0.05
+    interval: float = 0.90
+    horizon: float = 365.0
+    rate_grid_points: int = 121
+    rate_grid_max: float | None = None
+    draws: int = 1000
+    seed: int = 20261202
+    display_units: str = "US"
+    conductance_model: str = "auto"
+    flowlog_relative_error: float = 0.05
+    flowlog_absolute_error: float = 2.7
+    level_error: float = 0.05
+    default_relative_uncertainty: float = 0.05
+    qa: dict = field(default_factory=dict)
+
+
+@dataclass
+class Project:
+    """A well, its zones, its test data and the settings of the analysis."""
+
+    name: str
+    well: Well
+    zones: list[Zone]
+    settings: Settings = field(default_factory=Settings)
+    limits: list[Limit] = field(default_factory=list)
+    steps: pd.DataFrame = field(default_factory=lambda: empty_table("steps"))
+    samples: pd.DataFrame = field(default_factory=lambda: empty_table("samples"))
+    flowlogs: pd.DataFrame = field(default_factory=lambda: empty_table("flowlogs"))
+    levels: pd.DataFrame = field(default_factory=lambda: empty_table("levels"))
+    field_readings: pd.DataFrame = field(default_factory=lambda: empty_table("field"))
+    scenarios: list[dict] = field(default_factory=list)
+    folder: Path | None = None
+    files: dict[str, str] = field(default_factory=dict)
+
+    @property
+    def zone_names(self) -> list[str]:
+        return [z.name for z in self.zones]
+
+    @property
+    def zone_top(self) -> np.ndarray:
+        return np.array([z.top for z in self.zones])
+
+    @property
+    def zone_bottom(self) -> np.ndarray:
+        return np.array([z.bottom for z in self.zones])
+
+    def analytes(self) -> list[str]:
+        """Analyte keys present in the samples, in order of first appearance."""
+        if self.samples.empty:
+            return []
+        return list(dict.fromkeys(self.samples["analyte"]))
+
+    def limits_for(self, analyte: str) -> list[Limit]:
+        """Limits that apply to ``analyte``, strictest (lowest canonical value) first."""
+        return sorted((lim for lim in self.limits if lim.analyte == analyte),
+                      key=lambda lim: lim.canonical())

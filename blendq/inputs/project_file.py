@@ -1,0 +1,430 @@
+"""Read and check the TOML project file (``project.toml``) of a blendq project.
+
+Every physical quantity in the file is a string with its unit (``"185 ft"``, ``"350 gpm"``);
+dimensionless values (skin, storativity, margin) are plain numbers. Each value is checked and
+converted to the core's base units (see :mod:`blendq.units`); a problem is an
+:class:`~blendq.errors.InputError` naming the file and the dotted key (``zones[2].top``, with
+``[[zones]]`` entries counted from 1). The format is described in ``docs/input-files.md``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from blendq.chemistry.analytes import get_analyte, normalise_basis
+from blendq.chemistry.limits import Limit, limit_set
+from blendq.errors import InputError
+from blendq.inputs.project import TABLE_COLUMNS, Settings, Well, Zone
+from blendq.inputs.tables import located, split_unit_basis
+from blendq.units import parse_quantity
+
+try:  # Python 3.11+
+    import tomllib
+except ModuleNotFoundError:  # pragma: no cover - Python 3.10
+    import tomli as tomllib
+
+PROJECT_FILE = "project.toml"
+
+#: conductance models the later stages understand
+CONDUCTANCE_MODELS = ("auto", "steady", "transient", "given", "flowlog")
+
+#: top-level tables of the project file
+SECTIONS = ("project", "well", "zones", "tables", "settings", "limits", "scenarios")
+
+#: file suffixes a table may have
+TABLE_SUFFIXES = (".csv", ".txt", ".xlsx")
+
+_MISSING = object()
+
+
+@dataclass
+class ProjectFile:
+    """Contents of a checked project file, in base units.
+
+    Attributes
+    ----------
+    name : str
+    well : Well
+    zones : list of Zone
+        Sorted top to bottom.
+    settings : Settings
+    limits : list of Limit
+        Limits of the named sets followed by the user's ``[[limits]]``.
+    scenarios : list of dict
+        ``[[scenarios]]`` as written (each has a unique ``name``).
+    tables : dict
+        Table name -> (path, label as written in ``[tables]``).
+    path : Path
+        The project file.
+    """
+
+    name: str
+    well: Well
+    zones: list[Zone]
+    settings: Settings
+    limits: list[Limit]
+    scenarios: list[dict]
+    tables: dict[str, tuple[Path, str]] = field(default_factory=dict)
+    path: Path = Path(PROJECT_FILE)
+
+
+class _Section:
+    """One TOML table, read key by key; every error names ``file`` and the dotted key."""
+
+    def __init__(self, data, where: str, file: str) -> None:
+        if not isinstance(data, dict):
+            raise InputError(f"expected a table, got {data!r}", file=file, field=where)
+        self.data, self.where, self.file, self.used = data, where, file, set()
+
+    def error(self, key: str, message: str) -> InputError:
+        return InputError(message, file=self.file, field=f"{self.where}.{key}" if self.where else key)
+
+    def get(self, key: str, default=_MISSING):
+        self.used.add(key)
+        if key in self.data:
+            return self.data[key]
+        if default is _MISSING:
+            raise self.error(key, "is missing (required)")
+        return default
+
+    def text(self, key: str, default=_MISSING) -> str:
+        value = self.get(key, default)
+        if key in self.data and not isinstance(value, str):
+            raise self.error(key, f"expected text in quotes, got {value!r}")
+        return value.strip() if isinstance(value, str) else value
+
+    def flag(self, key: str, default: bool) -> bool:
+        value = self.get(key, default)
+        if not isinstance(value, bool):
+            raise self.error(key, f"expected true or false, got {value!r}")
+        return value
+
+    def number(self, key: str, default=_MISSING, low=None, high=None, open_low=False,
+               open_high=False, integer=False):
+        """A plain (dimensionless) number, optionally within [low, high] (or open ends)."""
+        value = self.get(key, default)
+        if key not in self.data:
+            return value
+        kind = "a whole number" if integer else "a plain number"
+        if isinstance(value, bool) or not isinstance(value, int if integer else (int, float)):
+            raise self.error(key, f"expected {kind} without quotes or unit, got {value!r}")
+        if not math.isfinite(value):
+            raise self.error(key, f"{value!r} is not a finite number")
+        too_low = low is not None and (value <= low if open_low else value < low)
+        too_high = high is not None and (value >= high if open_high else value > high)
+        if too_low or too_high:
+            left = "(" if open_low else "["
+            right = ")" if open_high else "]"
+            span = f"{left}{'-inf' if low is None else low}, {'inf' if high is None else high}{right}"
+            raise self.error(key, f"{value!r} is out of range (expected {kind} in {span})")
+        return value
+
+    def quantity(self, key: str, kind: str, default=_MISSING, sign: str = "positive"):
+        """A quantity string such as ``"185 ft"`` in base units of ``kind``.
+
+        ``sign`` is "positive" (> 0), "nonnegative" (>= 0) or "any".
+        """
+        value = self.get(key, default)
+        if key not in self.data:
+            return value
+        if isinstance(value, (int, float)) and not isinstance(value, bool):
+            raise self.error(key, f"{value!r} has no unit; write the quantity as a string with "
+                                  f'its unit, e.g. "{value} {_EXAMPLE_UNIT[kind]}"')
+        if not isinstance(value, str):
+            raise self.error(key, f'expected a quantity such as "10 {_EXAMPLE_UNIT[kind]}", '
+                                  f"got {value!r}")
+        try:
+            base = parse_quantity(value, kind)
+        except InputError as err:
+            raise located(err, self.file, None, f"{self.where}.{key}", value) from err
+        if (sign == "positive" and base <= 0) or (sign == "nonnegative" and base < 0):
+            word = "greater than zero" if sign == "positive" else "zero or more"
+            raise self.error(key, f'"{value}" must be {word}')
+        return base
+
+    def done(self) -> None:
+        """Reject keys that were never read (most often a misspelling)."""
+        unknown = [k for k in self.data if k not in self.used]
+        if unknown:
+            known = ", ".join(sorted(self.used))
+            raise self.error(unknown[0], f'"{unknown[0]}" is not a key blendq knows here '
+                                         f"(known: {known})")
+
+
+_EXAMPLE_UNIT = {"length": "ft", "rate": "gpm", "time": "d", "transmissivity": "ft2/d",
+                 "conductivity": "ft/d", "conductance": "ft2/d", "well_loss": "s2/ft5",
+                 "nonlinear_loss": "s2/ft5", "concentration": "mg/L"}
+
+
+def _read_toml(path: Path) -> dict:
+    label = path.name
+    try:
+        text = path.read_bytes().decode("utf-8-sig")
+    except UnicodeDecodeError as err:
+        raise InputError(f"is not UTF-8 text (byte 0x{err.object[err.start]:02x} at offset "
+                         f"{err.start}); save it as UTF-8", file=label) from err
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as err:
+        raise InputError(f"is not valid TOML: {err}", file=label) from err
+
+
+def _tables_list(doc: dict, key: str, label: str) -> list[dict]:
+    value = doc.get(key, [])
+    if not isinstance(value, list) or not all(isinstance(v, dict) for v in value):
+        raise InputError(f"write each entry as a [[{key}]] table, got {value!r}", file=label,
+                         field=key)
+    return value
+
+
+def _well(doc: dict, label: str) -> Well:
+    s = _Section(_table(doc, "well", label), "well", label)
+    d = _WELL_DEFAULTS
+    well = Well(
+        name=s.text("name"),
+        location=s.text("location", d.location),
+        datum=s.text("datum", d.datum),
+        well_radius=s.quantity("well_radius", "length"),
+        pump_intake_depth=s.quantity("pump_intake_depth", "length", sign="nonnegative"),
+        submergence=s.quantity("submergence", "length", d.submergence, sign="nonnegative"),
+        rate_min=s.quantity("rate_min", "rate", d.rate_min, sign="nonnegative"),
+        rate_max=s.quantity("rate_max", "rate", d.rate_max),
+        demand=s.quantity("demand", "rate", d.demand, sign="nonnegative"),
+        well_loss=s.quantity("well_loss", "well_loss", d.well_loss, sign="nonnegative"),
+        keep_above_screen=s.flag("keep_above_screen", d.keep_above_screen),
+        radius_of_influence=s.quantity("radius_of_influence", "length", d.radius_of_influence),
+        static_level=s.quantity("static_level", "length", d.static_level, sign="any"),
+    )
+    s.done()
+    if well.rate_max <= well.rate_min:
+        raise s.error("rate_max", f'"{s.data["rate_max"]}" is not above rate_min '
+                                  f'"{s.data.get("rate_min", "0")}"')
+    roi = well.radius_of_influence
+    if roi is not None and roi <= well.well_radius:
+        raise s.error("radius_of_influence", f'"{s.data["radius_of_influence"]}" is not larger '
+                                             f'than well_radius "{s.data["well_radius"]}"')
+    return well
+
+
+# defaults of the optional keys come from the dataclasses themselves
+_WELL_DEFAULTS = Well(name="", well_radius=1.0, pump_intake_depth=0.0)
+
+
+def _table(doc: dict, name: str, label: str):
+    if name not in doc:
+        raise InputError(f"the [{name}] table is missing", file=label, field=name)
+    return doc[name]
+
+
+def _zones(doc: dict, label: str) -> list[Zone]:
+    entries = _tables_list(doc, "zones", label)
+    if not entries:
+        raise InputError("no [[zones]] given; describe at least one screened zone", file=label,
+                         field="zones")
+    zones, where = [], {}
+    for i, entry in enumerate(entries, start=1):
+        s = _Section(entry, f"zones[{i}]", label)
+        name = s.text("name")
+        if not name:
+            raise s.error("name", "is empty; give each zone a name")
+        if name in where:
+            raise s.error("name", f'"{name}" is already the name of zones[{where[name]}]')
+        top = s.quantity("top", "length", sign="nonnegative")
+        bottom = s.quantity("bottom", "length")
+        if bottom <= top:
+            raise s.error("bottom", f'"{entry["bottom"]}" is not below top "{entry["top"]}"')
+        zone = Zone(
+            name=name, top=top, bottom=bottom,
+            static_level=s.quantity("static_level", "length", None, sign="any"),
+            transmissivity=s.quantity("transmissivity", "transmissivity", None),
+            conductivity=s.quantity("conductivity", "conductivity", None),
+            storativity=s.number("storativity", None, 0.0, 1.0, open_low=True, open_high=True),
+            skin=float(s.number("skin", 0.0)),
+            nonlinear_loss=s.quantity("nonlinear_loss", "nonlinear_loss", 0.0, sign="nonnegative"),
+            conductance=s.quantity("conductance", "conductance", None),
+        )
+        if zone.transmissivity is not None and zone.conductivity is not None:
+            raise s.error("conductivity", "give transmissivity or conductivity, not both "
+                                          f'(got "{entry["transmissivity"]}" and '
+                                          f'"{entry["conductivity"]}")')
+        s.done()
+        zones.append(zone)
+        where[name] = i
+    ordered = sorted(zones, key=lambda z: z.top)
+    for upper, lower in zip(ordered, ordered[1:], strict=False):
+        if lower.top < upper.bottom:
+            i = where[lower.name]
+            raise InputError(
+                f'zone "{lower.name}" (top "{entries[i - 1]["top"]}") overlaps zone '
+                f'"{upper.name}" (bottom "{entries[where[upper.name] - 1]["bottom"]}")',
+                file=label, field=f"zones[{i}].top")
+    return ordered
+
+
+def _settings(doc: dict, display_units: str, label: str) -> Settings:
+    s, d = _Section(doc.get("settings", {}), "settings", label), Settings()
+    sets = s.get("limit_sets", list(d.limit_sets))
+    sets = [sets] if isinstance(sets, str) else sets
+    if not isinstance(sets, list) or not all(isinstance(x, str) for x in sets):
+        raise s.error("limit_sets", f'expected a list of names such as ["US-EPA"], got {sets!r}')
+    for name in sets:
+        try:
+            limit_set(name)
+        except InputError as err:
+            raise located(err, label, None, "settings.limit_sets") from None
+    model = s.text("conductance_model", d.conductance_model)
+    if model not in CONDUCTANCE_MODELS:
+        raise s.error("conductance_model", f'"{model}" is not one of {", ".join(CONDUCTANCE_MODELS)}')
+    qa = s.get("qa", d.qa)
+    if not isinstance(qa, dict):
+        raise s.error("qa", f"expected a [settings.qa] table, got {qa!r}")
+    fraction = {"low": 0.0, "high": 1.0, "open_low": True}
+    settings = Settings(
+        limit_sets=tuple(dict.fromkeys(sets)),
+        margin=float(s.number("margin", d.margin, **fraction)),
+        exceedance_probability=float(s.number("exceedance_probability",
+                                              d.exceedance_probability, 0.0, 0.5, True)),
+        interval=float(s.number("interval", d.interval, **fraction, open_high=True)),
+        horizon=s.quantity("horizon", "time", d.horizon),
+        rate_grid_points=s.number("rate_grid_points", d.rate_grid_points, 3, 100_000,
+                                  integer=True),
+        rate_grid_max=s.quantity("rate_grid_max", "rate", d.rate_grid_max),
+        draws=s.number("draws", d.draws, 1, 1_000_000, integer=True),
+        seed=s.number("seed", d.seed, 0, None, integer=True),
+        display_units=display_units,
+        conductance_model=model,
+        flowlog_relative_error=float(s.number("flowlog_relative_error",
+                                              d.flowlog_relative_error, 0.0, 1.0)),
+        flowlog_absolute_error=s.quantity("flowlog_absolute_error", "rate",
+                                          d.flowlog_absolute_error, sign="nonnegative"),
+        level_error=s.quantity("level_error", "length", d.level_error, sign="nonnegative"),
+        default_relative_uncertainty=float(s.number("default_relative_uncertainty",
+                                                    d.default_relative_uncertainty, 0.0, 1.0)),
+        qa=dict(qa),
+    )
+    s.done()
+    return settings
+
+
+def _user_limits(doc: dict, label: str) -> list[Limit]:
+    limits = []
+    for i, entry in enumerate(_tables_list(doc, "limits", label), start=1):
+        s = _Section(entry, f"limits[{i}]", label)
+        try:
+            analyte = get_analyte(s.text("analyte"))
+        except InputError as err:
+            raise located(err, label, None, f"limits[{i}].analyte") from err
+        text = s.text("value")
+        number, unit, basis_in_unit = split_unit_basis(text, with_number=True)
+        if number is None or not math.isfinite(number) or number <= 0:
+            raise s.error("value", f'"{text}" is not a positive number with a unit such as '
+                                   '"10 mg/L"')
+        basis = s.text("basis", basis_in_unit or "")
+        try:
+            basis = normalise_basis(analyte, basis or None)
+        except InputError as err:
+            raise located(err, label, None, f"limits[{i}].basis", basis) from err
+        authority = s.text("authority", s.text("name", "user"))
+        limit = Limit(analyte.key, number, unit, basis, authority,
+                      s.text("kind", "user limit"), s.text("citation", f"{label} [[limits]]"))
+        try:
+            limit.canonical()
+        except InputError as err:
+            raise located(err, label, None, f"limits[{i}].value", text) from err
+        s.done()
+        limits.append(limit)
+    return limits
+
+
+def _scenarios(doc: dict, label: str) -> list[dict]:
+    entries, seen = _tables_list(doc, "scenarios", label), {}
+    for i, entry in enumerate(entries, start=1):
+        name = entry.get("name")
+        if not isinstance(name, str) or not name.strip():
+            raise InputError(f"each scenario needs a name, got {name!r}", file=label,
+                             field=f"scenarios[{i}].name")
+        if name in seen:
+            raise InputError(f'"{name}" is already the name of scenarios[{seen[name]}]',
+                             file=label, field=f"scenarios[{i}].name")
+        seen[name] = i
+    return [dict(e) for e in entries]
+
+
+def _table_paths(doc: dict, folder: Path, label: str) -> dict[str, tuple[Path, str]]:
+    s = _Section(_table(doc, "tables", label), "tables", label)
+    found = {}
+    for name in TABLE_COLUMNS:
+        text = s.text(name) if name == "steps" else s.text(name, None)
+        if text is None:
+            continue
+        path = folder / text
+        try:
+            is_file = bool(text) and path.is_file()
+        except (OSError, ValueError):  # a name too long for the file system
+            is_file = False
+        if not is_file:
+            what = "is a folder, not a file" if text and _is_dir(path) else "does not exist"
+            raise s.error(name, f'file "{text}" {what} in {folder}')
+        if path.suffix.lower() not in (".csv", ".txt", ".xlsx"):
+            raise s.error(name, f'"{text}" is not a .csv or .xlsx file')
+        found[name] = (path, Path(text).as_posix())
+    s.done()
+    return found
+
+
+
+def _is_dir(path: Path) -> bool:
+    try:
+        return path.is_dir()
+    except (OSError, ValueError):
+        return False
+
+
+def resolve_project_file(path: str | Path) -> Path:
+    """The project file for ``path`` (a project file or a folder holding ``project.toml``)."""
+    path = Path(path)
+    candidate = path / PROJECT_FILE if path.is_dir() else path
+    if not candidate.is_file():
+        raise InputError(f"project file not found: {candidate}", file=candidate.name)
+    return candidate
+
+
+def read_project_file(path: str | Path) -> ProjectFile:
+    """Read and check a project file.
+
+    Parameters
+    ----------
+    path : str or Path
+        The project file or a folder holding ``project.toml``.
+
+    Returns
+    -------
+    ProjectFile
+        Everything but the tables' contents, in base units; table paths checked to exist.
+
+    Raises
+    ------
+    InputError
+        Naming the file and the dotted key, with the value received.
+    """
+    project_file = resolve_project_file(path)
+    label = project_file.name
+    doc = _read_toml(project_file)
+    for key in doc:
+        if key not in SECTIONS:
+            raise InputError(f'"{key}" is not a table blendq knows (known: {", ".join(SECTIONS)})',
+                             file=label, field=key)
+    head = _Section(_table(doc, "project", label), "project", label)
+    name = head.text("name")
+    units = head.text("display_units", Settings().display_units)
+    if units not in ("US", "SI"):
+        raise head.error("display_units", f'"{units}" is not "US" or "SI"')
+    head.done()
+    well, zones = _well(doc, label), _zones(doc, label)
+    settings = _settings(doc, units, label)
+    limits = [lim for s in settings.limit_sets for lim in limit_set(s)]
+    limits += _user_limits(doc, label)
+    return ProjectFile(name, well, zones, settings, limits, _scenarios(doc, label),
+                       _table_paths(doc, project_file.parent, label), project_file)

@@ -1,0 +1,161 @@
+"""Write a commented template project for a new well.
+
+:func:`write_template` writes ``project.toml`` and one CSV per table, each with its header row
+and one or two example rows of invented values, so a user can replace the numbers with their
+own. The template loads with :func:`blendq.inputs.loader.load_project` as written.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from blendq.errors import InputError
+
+PROJECT_TOML = """\
+# blendq project file. Every physical quantity is a string with its unit ("185 ft", "350 gpm",
+# "1500 ft2/d"); plain numbers are only for dimensionless values (skin, storativity, margin).
+# Depths are measured downward from the datum. The full format is in docs/input-files.md.
+# All values below are invented examples: replace them with your own.
+
+[project]
+name = "Example well, step test"      # title used in the report
+display_units = "US"                  # "US" (ft, gpm) or "SI" (m, m3/d) for output
+
+[well]
+name = "Example well 1"
+location = "Example well field"       # free text
+datum = "top of casing"               # what depths are measured from
+well_radius = "6 in"                  # effective screen radius
+pump_intake_depth = "160 ft"          # depth of the pump intake below the datum
+submergence = "10 ft"                 # water depth required above the intake
+rate_min = "100 gpm"                  # the pump's usable range
+rate_max = "500 gpm"
+demand = "300 gpm"                    # rate the system would like (optional)
+well_loss = "0 s2/ft5"                # Jacob's C (s = C Q^2), "0 s2/ft5" when unknown
+keep_above_screen = true              # also keep the pumping level above the top zone
+radius_of_influence = "1000 ft"       # R for steady (Thiem) conductances (optional)
+
+# One [[zones]] table per screened zone or open interval (any order; blendq sorts them).
+# Give transmissivity or conductivity (not both); storativity, skin, nonlinear_loss and
+# conductance are optional.
+[[zones]]
+name = "Upper sand"
+top = "170 ft"
+bottom = "210 ft"
+static_level = "82 ft"                # depth to the zone's static water level
+transmissivity = "1200 ft2/d"
+storativity = 1e-4
+skin = 0
+
+[[zones]]
+name = "Lower gravel"
+top = "240 ft"
+bottom = "300 ft"
+static_level = "86 ft"
+conductivity = "25 ft/d"
+storativity = 2e-4
+skin = 1.5
+
+# Tables (paths relative to this file). Only steps is required.
+[tables]
+steps = "steps.csv"
+samples = "samples.csv"
+flowlogs = "flowlogs.csv"
+levels = "levels.csv"
+field = "field.csv"
+
+[settings]
+limit_sets = ["US-EPA"]               # any of "US-EPA", "WHO", "EU"
+margin = 0.8                          # stay under 80 % of each limit (a utility's policy)
+exceedance_probability = 0.05         # largest acceptable chance of exceeding margin x limit
+interval = 0.9                        # central probability of reported intervals
+horizon = "365 d"                     # operating time for transient conductances
+draws = 1000                          # Monte Carlo draws
+seed = 1                              # random seed (results repeat exactly)
+conductance_model = "auto"            # "auto", "steady", "transient", "given" or "flowlog"
+
+[settings.qa]                         # options of the lab and field review (free table)
+
+# Your own limits, in addition to the named sets (optional):
+[[limits]]
+analyte = "nitrate"
+value = "8 mg/L"
+basis = "as N"
+authority = "Example water system"
+kind = "operating target"
+
+# Options to compare (optional; see docs/scenarios.md); each needs a unique name:
+# [[scenarios]]
+# name = "Seal the lower gravel"
+# seal = ["Lower gravel"]
+#
+# [[scenarios]]
+# name = "Blend 100 gpm from the spring"
+# blend = { rate = "100 gpm", nitrate = "1 mg/L as N", arsenic = "0.5 ug/L" }
+"""
+
+TABLES = {
+    "steps.csv": """\
+step,rate [gpm],start,duration [min],pumping_level [ft]
+1,150,2025-06-02 08:00,120,101.5
+2,300,2025-06-02 10:00,120,118.2
+""",
+    "samples.csv": """\
+sample_id,step,analyte,value,unit,basis,detection_limit,uncertainty,sampled_at,analyzed_at,duplicate_of,depth [ft],preservation
+EX-1,1,nitrate,23.2,mg/L,as NO3,0.1,5%,2025-06-02 09:55,2025-06-03 09:00,,,cooled
+EX-1,1,arsenic,5.3,ug/L,,1,0.4,2025-06-02 09:55,2025-06-20,,,HNO3 pH<2
+EX-2,2,nitrate,4.9,mg/L,as N,0.02,5%,2025-06-02 11:55,2025-06-03 09:00,,,cooled
+EX-2,2,arsenic,5.5,ug/L,,1,0.4,2025-06-02 11:55,2025-06-20,,,HNO3 pH<2
+""",
+    "flowlogs.csv": """\
+log,step,rate [gpm],depth [ft],upward_flow [gpm]
+ambient,,0,225,-8
+pumped,2,300,225,190
+""",
+    "levels.csv": """\
+time,level [ft]
+2025-06-02 07:55,84.0
+2025-06-02 09:59,101.5
+""",
+    "field.csv": """\
+step,time,temperature [degC],ph,specific_conductance [uS/cm],dissolved_oxygen [mg/L],turbidity [NTU]
+1,2025-06-02 09:45,15.1,7.31,540,5.2,0.8
+1,2025-06-02 09:55,15.1,7.30,538,5.2,0.6
+""",
+}
+
+
+def write_template(folder: str | Path) -> list[Path]:
+    """Write a template project into ``folder`` (created if missing).
+
+    Parameters
+    ----------
+    folder : str or Path
+        Where to write ``project.toml`` and the CSV tables.
+
+    Returns
+    -------
+    list of Path
+        The files written.
+
+    Raises
+    ------
+    InputError
+        If any of the files already exists (nothing is written then), or ``folder`` is a file.
+    """
+    folder = Path(folder)
+    if folder.exists() and not folder.is_dir():
+        raise InputError(f"{folder} is a file, not a folder", file=folder.name)
+    contents = {"project.toml": PROJECT_TOML, **TABLES}
+    for name in contents:
+        if (folder / name).exists():
+            raise InputError(f"already exists in {folder}; blendq will not overwrite it "
+                             "(choose an empty folder)", file=name)
+    folder.mkdir(parents=True, exist_ok=True)
+    written = []
+    for name, text in contents.items():
+        path = folder / name
+        with path.open("x", encoding="utf-8", newline="\n") as handle:
+            handle.write(text)
+        written.append(path)
+    return written

@@ -1,0 +1,424 @@
+"""Turn an :class:`~blendq.decide.analysis.Analysis` into a report and machine-readable outputs.
+
+Sections: the decision in one sentence; cautions; inputs and their review; zone estimates;
+operating window; charts; assumptions; methods with references. Tables are converted to the
+display units (US or SI) here, at the edge; the analysis itself stays in base units.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+import pandas as pd
+
+from blendq import CAUTIONS, __version__
+from blendq.chemistry.analytes import get_analyte
+from blendq.decide.analysis import Analysis, decision_sentence
+from blendq.report.chart_pool import ChartJob, ChartPool
+from blendq.report.document import (
+    BulletList,
+    Callout,
+    Document,
+    Figure,
+    KeyValues,
+    Paragraph,
+    Section,
+    Table,
+)
+from blendq.report.scenario_section import scenario_chart_job, scenario_section
+from blendq.units import DISPLAY_UNITS, display_unit_label, format_quantity, from_base
+
+REFERENCES = [
+    "Thiem, G. (1906) Hydrologische Methoden. Gebhardt, Leipzig.",
+    "Cooper, H.H. and Jacob, C.E. (1946) A generalized graphical method for evaluating formation "
+    "constants and summarizing well-field history. Trans. AGU 27(4), 526-534.",
+    "Jacob, C.E. (1947) Drawdown test to determine effective radius of artesian well. Trans. ASCE 112.",
+    "Rorabaugh, M.I. (1953) Graphical and theoretical analysis of step-drawdown test of artesian "
+    "well. Proc. ASCE 79.",
+    "Hawkins, M.F. (1956) A note on the skin effect. J. Petroleum Technology 8(12).",
+    "Walton, W.C. (1962) Selected analytical methods for well and aquifer evaluation. Illinois "
+    "State Water Survey Bulletin 49.",
+    "Golub, G.H. and Pereyra, V. (1973) SIAM J. Numer. Anal. 10(2), 413-432 (variable projection).",
+    "Paillet, F.L. (1998) Water Resources Research 34(5), 997-1010 (flow-log analysis).",
+    "Konikow, L.F., Hornberger, G.Z., Halford, K.J. and Hanson, R.T. (2009) Revised multi-node "
+    "well (MNW2) package for MODFLOW. USGS Techniques and Methods 6-A30.",
+    "Izbicki, J.A. and others, USGS reports on well-bore flow and depth-dependent sampling.",
+    "US EPA, 40 CFR 141.62 and 141.66 (maximum contaminant levels); 40 CFR 136.3 (holding times).",
+    "WHO (2017) Guidelines for Drinking-water Quality, 4th ed. incorporating the first addendum.",
+    "Directive (EU) 2020/2184, Annex I.",
+    "National Research Council (1995) Nitrate and Nitrite in Drinking Water.",
+    "Standard Methods for the Examination of Water and Wastewater, 1030 E (ion balance).",
+    "USGS National Field Manual for the Collection of Water-Quality Data, chapter A6.",
+]
+
+ASSUMPTIONS = [
+    "Each zone joins the well through its own conductance and far-field head; zones connect "
+    "only through the wellbore (layered, anisotropic aquifer).",
+    "Zone conductances are constant over the step test; for the operating horizon they are "
+    "scaled by the Cooper-Jacob ratio G(horizon)/G(test) where storativity is known.",
+    "Complete mixing where streams meet in the well; steady flow; no reaction.",
+    "Zone water quality does not change with rate or time (no induced inflow from elsewhere, no "
+    "trend).",
+    "Bands describe the uncertainty of the mean discharge concentration from lab error, "
+    "flow-log and level error and the priors; they are not the spread of single future samples.",
+    "Non-detects are censored values: the fitted blend may not exceed the detection limit.",
+]
+
+
+def conc_display(analyte: str, value_mg_l):
+    """Concentration in the analyte's display unit (mg/L or ug/L) and that unit."""
+    an = get_analyte(analyte)
+    return an.in_display_unit(value_mg_l), an.display_unit
+
+
+def _sig(value: float, scale: float) -> str:
+    """Three significant digits; values below a millionth of the analyte's scale print as 0."""
+    if not np.isfinite(value):
+        return "no upper limit"
+    if abs(value) <= 1e-6 * scale:
+        return "0"
+    return f"{value:.3g}"
+
+
+def zone_display_table(a: Analysis) -> pd.DataFrame:
+    """Zone estimates in display units, unresolved zones as a range only."""
+    rows = []
+    scales = {an: conc_display(an, np.nanmax(np.abs(g[["estimate", "range_low"]].to_numpy(float))))[0]
+              for an, g in a.zones.groupby("analyte")}
+    for _, r in a.zones.iterrows():
+        an = get_analyte(r["analyte"])
+        vals, unit = conc_display(r["analyte"], [r["estimate"], r["lower"], r["upper"],
+                                                 r["range_low"], r["range_high"]])
+        est, lo, hi, rlo, rhi = vals
+        sc = float(scales[r["analyte"]]) if np.isfinite(scales[r["analyte"]]) else 1.0
+        if r["verdict"] == "not resolved":
+            shown = f"{_sig(rlo, sc)} to {_sig(rhi, sc)}"
+            interval = "-"
+        else:
+            shown = _sig(est, sc)
+            interval = f"{_sig(lo, sc)} to {_sig(hi, sc)}"
+        rows.append({"Zone": r["zone"], "Analyte": an.label(), "Unit": unit, "Estimate": shown,
+                     f"{a.project.settings.interval:.0%} interval": interval,
+                     "Verdict": r["verdict"]})
+    return pd.DataFrame(rows)
+
+
+def window_display_table(a: Analysis, units: str) -> pd.DataFrame:
+    rows = []
+    for lo, hi, why_lo, why_hi in a.window.intervals:
+        rows.append({"From": format_quantity(lo, "rate", units),
+                     "To": format_quantity(hi, "rate", units),
+                     "Lower end set by": why_lo, "Upper end set by": why_hi})
+    return pd.DataFrame(rows, columns=["From", "To", "Lower end set by", "Upper end set by"])
+
+
+def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
+    """Predicted quality and level at one rate (median and band)."""
+    k = int(np.argmin(np.abs(a.prediction.rates - rate)))
+    s = a.project.settings
+    q = [(1 - s.interval) / 2, 0.5, 1 - (1 - s.interval) / 2]
+    rows = []
+    for j, analyte in enumerate(a.prediction.analytes):
+        vals = np.quantile(a.prediction.concentration[:, k, j], q)
+        (lo, med, hi), unit = conc_display(analyte, vals)
+        lim = a.limits.get(analyte)
+        p = (a.prediction.concentration[:, k, j] > s.margin * lim.canonical()).mean() if lim else np.nan
+        rows.append({"Analyte": get_analyte(analyte).label(), "Median": f"{med:.3g} {unit}",
+                     "Band": f"{lo:.3g} to {hi:.3g} {unit}",
+                     "Limit": lim.label() if lim else "none",
+                     f"P(> {s.margin:.0%} of limit)": f"{p:.1%}" if lim else "-"})
+    lv = np.quantile(a.prediction.pumping_level[:, k], q)
+    rows.append({"Analyte": "Pumping level (depth)",
+                 "Median": format_quantity(lv[1], "length", units),
+                 "Band": f"{format_quantity(lv[0], 'length', units)} to "
+                         f"{format_quantity(lv[2], 'length', units)}",
+                 "Limit": "intake - submergence " + format_quantity(
+                     a.project.well.pump_intake_depth - a.project.well.submergence, "length", units),
+                 f"P(> {s.margin:.0%} of limit)": "-"})
+    return pd.DataFrame(rows)
+
+
+def sample_use_blocks(a: Analysis) -> list:
+    """What the fit did with the samples the review flagged."""
+    use = a.sample_use
+    mode = a.sample_mode
+    flagged = use[use["reason"].astype(str) != ""] if len(use) else use
+    text = {"keep": "Flagged samples stay in the fit (noted below).",
+            "exclude": "Samples with a warning or error are left out of the fit.",
+            "downweight": "Samples with a warning or error are kept with their uncertainty "
+                          "multiplied by the down-weighting factor."}[mode]
+    used = int(use["used"].astype(bool).sum()) if len(use) else 0
+    blocks = [Paragraph(f"Samples in the fit ({mode}): {used} of {len(use)} samples used. {text}")]
+    if len(flagged):
+        t = flagged[["sample_id", "used", "sigma_factor", "reason"]].copy()
+        t["used"] = t["used"].map(lambda v: "yes" if v else "no")
+        t["sigma_factor"] = t["sigma_factor"].map(lambda v: f"{v:g}")
+        blocks.append(Table(t.rename(columns={"sample_id": "Sample", "used": "Used",
+                                              "sigma_factor": "Uncertainty x",
+                                              "reason": "Flagged for"}),
+                            "Use of the flagged samples in the fit."))
+    return blocks
+
+
+def step_drawdown_jobs(a: Analysis, units: str) -> list[ChartJob]:
+    """The step-drawdown charts (none without a step-drawdown analysis)."""
+    from blendq.report.charts import stepdrawdown as sd
+
+    lc = a.step_drawdown
+    if lc is None or lc.result is None:
+        return []
+    res = lc.result
+    jobs = [
+        ChartJob("Specific drawdown against rate with the fitted well-loss lines.",
+                 sd.specific_drawdown_chart, (res, units), svg=False),
+        ChartJob("Drawdown against rate: steps, fits and the linear part.",
+                 sd.drawdown_rate_chart, (res, units), svg=False),
+    ]
+    if res.record is not None:
+        jobs.append(ChartJob("Water-level record with each step's extrapolation.",
+                             sd.step_record_chart, (res, units), svg=False))
+    return jobs
+
+
+def step_drawdown_section(a: Analysis, units: str,
+                          figures: Sequence[Figure] = ()) -> Section:
+    """Step-drawdown analysis, well condition, and which pumping-level prediction is used.
+
+    ``figures``: the drawn :func:`step_drawdown_jobs`, shown after the text.
+    """
+    lc = a.step_drawdown
+    blocks: list = []
+    if lc is None or lc.result is None:
+        why = lc.reason if lc is not None else "not run"
+        blocks.append(Paragraph(f"No step-drawdown analysis: {why}."))
+        return Section("Step-drawdown test and well condition", tuple(blocks), "stepdrawdown")
+    res = lc.result
+    blocks.append(BulletList(res.summary_lines(units)))
+    blocks.append(Paragraph("Walton's (1962) well-condition classes from the well-loss "
+                            "coefficient C are quoted from memory (below 5, 5-10, 10-40, above "
+                            "40 s²/ft⁵); check them against the bulletin before relying on them."))
+    if lc.comparison is not None:
+        c = lc.comparison
+        du = DISPLAY_UNITS[units]
+        unit = f"{du['length']}/({du['rate']})"
+        from blendq.units import Q_
+
+        def per(v):
+            return Q_(v, "d/m**2").to(f"{du['length']}/({du['rate']})").magnitude
+
+        blocks.append(Paragraph(
+            f"Linear loss: step test B = {per(c.step_linear_loss):.4g} ± "
+            f"{per(c.step_stderr):.2g} {display_unit_label(unit)}; zone model 1/ΣG = "
+            f"{per(c.zone_linear_loss):.4g} ± {per(c.zone_stderr):.2g} "
+            f"{display_unit_label(unit)} (difference {c.relative_difference:+.1%}). "
+            f"The window uses the pumping level from the {lc.source}: {lc.reason}."))
+    else:
+        blocks.append(Paragraph(f"The window uses the pumping level from the {lc.source}: "
+                                f"{lc.reason}."))
+    blocks += list(figures)
+    return Section("Step-drawdown test and well condition", tuple(blocks), "stepdrawdown")
+
+
+def quality_jobs(a: Analysis, units: str) -> list[ChartJob]:
+    """The decision charts: quality, zone shares and pumping level against rate; zone
+    estimates."""
+    from blendq.report.charts import quality
+
+    s = a.project.settings
+    return [
+        ChartJob("Discharge quality against pumping rate: median, band, limits, the step "
+                 "samples and the operating window.", quality.quality_vs_rate,
+                 (a.prediction, a.window, a.limits, s.margin, s.interval, a.project, units)),
+        ChartJob("Share of the discharge from each zone against pumping rate.",
+                 quality.zone_shares, (a.prediction, a.project.zone_names, a.window, units)),
+        ChartJob(f"Pumping level against rate after {s.horizon:g} days of pumping (the "
+                 "operating horizon), with the intake and screen limits. The measured step "
+                 "levels are from the hours-long test and so lie above the long-term "
+                 "prediction.", quality.pumping_level, (a.prediction, a.project, a.window, units)),
+        ChartJob("Zone estimates with intervals; unresolved zones as the range the data allow.",
+                 quality.zone_estimates, (a.zones, a.prediction.analytes)),
+    ]
+
+
+def build_document(a: Analysis, units: str = "US", created: str = "",
+                   charts: ChartPool | None = None) -> Document:
+    """The report of an analysis as a renderer-neutral document.
+
+    ``charts`` draws the charts while the text is built (a pool of its own is started when
+    none is given; see :class:`blendq.report.chart_pool.ChartPool`).
+    """
+    if charts is None:
+        with ChartPool() as pool:
+            return build_document(a, units, created, pool)
+    p = a.project
+    s = p.settings
+    comparison = None
+    if p.scenarios:
+        from blendq.decide.scenarios import compare
+
+        comparison = compare(a)
+    jobs = quality_jobs(a, units)
+    sd_jobs = step_drawdown_jobs(a, units)
+    scenario_job = [scenario_chart_job(a, comparison, units)] if comparison else []
+    # the scenario chart, the slowest to draw, goes first: the two workers end closer together
+    collect = charts.submit([*scenario_job, *jobs, *sd_jobs])
+    w = p.well
+    decision = decision_sentence(a, units)
+    inputs = KeyValues([
+        ("Well", w.name), ("Location", w.location or "-"), ("Depth datum", w.datum),
+        ("Pump intake", format_quantity(w.pump_intake_depth, "length", units)),
+        ("Required submergence", format_quantity(w.submergence, "length", units)),
+        ("Pump range", f"{format_quantity(w.rate_min, 'rate', units)} to "
+                       f"{format_quantity(w.rate_max, 'rate', units) if np.isfinite(w.rate_max) else 'unlimited'}"),
+        ("Demand", format_quantity(w.demand, "rate", units) if w.demand else "-"),
+        ("Steps", str(len(p.steps))), ("Lab results", str(len(p.samples))),
+        ("Flow logs", str(p.flowlogs["log"].nunique()) if len(p.flowlogs) else "none"),
+        ("Limits", "; ".join(f"{get_analyte(k).label()}: {lim.label()}"
+                             for k, lim in sorted(a.limits.items())) or "none"),
+        ("Margin", f"{s.margin:.0%} of each limit"),
+        ("Accepted exceedance probability", f"{s.exceedance_probability:.0%}"),
+        ("Monte Carlo draws / seed", f"{a.draws.n_draws} / {a.draws.seed}"),
+    ])
+    zones_geo = pd.DataFrame([{"Zone": z.name,
+                               "Top": format_quantity(z.top, "length", units),
+                               "Bottom": format_quantity(z.bottom, "length", units),
+                               "Static level": format_quantity(z.static_level, "length", units)
+                               if z.static_level is not None else "-"} for z in p.zones])
+    qa_lines = a.qa.summary_lines()
+    qa_table = a.qa.findings[["severity", "rule", "sample_id", "analyte", "message"]].copy() \
+        if len(a.qa.findings) else pd.DataFrame(columns=["severity", "rule", "message"])
+    skipped = [f"{rule}: {why}" for rule, why in a.qa.skipped]
+    du = DISPLAY_UNITS[units]
+    hyd = pd.DataFrame({
+        "Zone": a.hydraulics["zone"],
+        f"Conductance [{display_unit_label(du['conductance'])}]": [
+            f"{from_base(g, 'conductance', du['conductance']):.3g}" for g in a.hydraulics["conductance"]],
+        "± (relative)": [f"{v:.0%}" for v in a.hydraulics["conductance_rel_sd"]],
+        "Conductance from": a.hydraulics["conductance_from"],
+        f"Static level [{display_unit_label(du['length'])}]": [
+            f"{from_base(-h, 'length', du['length']):.4g}" for h in a.hydraulics["static_head"]],
+        "Static level from": a.hydraulics["static_head_from"],
+    })
+    diag = a.analyte_diagnostics.copy()
+    diag["condition"] = diag["condition"].map(lambda v: f"{v:.3g}")
+    diag["chi_square"] = diag["chi_square"].map(lambda v: f"{v:.3g}")
+    not_fitted = [f"{k}: {v}" for k, v in a.not_fitted.items()]
+    rec_rate = a.window.recommended if a.window.recommended is not None else (w.demand or a.prediction.rates[-1])
+    sections = [
+        Section("Decision", (Callout(decision, "decision"),
+                             *(Callout(n, "note") for n in a.notes)), "decision"),
+        Section("Cautions", tuple(Callout(c, "caution") for c in CAUTIONS), "cautions"),
+        Section("Inputs and their review", (
+            inputs, Table(zones_geo, "Zones (depths below the datum)."),
+            Paragraph("Lab and field review: " + "; ".join(qa_lines) + "."),
+            Table(qa_table, "Findings of the lab and field review."),
+            *( [BulletList(skipped)] if skipped else []),
+            *sample_use_blocks(a),
+            *( [Paragraph("Not fitted: " + "; ".join(not_fitted) + ".")] if not_fitted else []),
+        ), "inputs"),
+        Section("Zone estimates", (
+            Paragraph("Each zone's water quality estimated from the blended step samples "
+                      "(and any depth samples), with the zone hydraulics fitted jointly. A zone "
+                      "the data do not resolve is reported as the range of values the data "
+                      "allow, never as one number."),
+            Table(zone_display_table(a), "Zone water quality."),
+            Table(hyd, "Zone hydraulics (fitted; 'prior' means the data added little to the "
+                       "zone properties)."),
+            Table(diag, "Identifiability per analyte: rank and condition number of the weight "
+                        "matrix, chi-square of the fit."),
+        ), "zones"),
+        Section("Operating window", (
+            Table(window_display_table(a, units), "Rates that meet every criterion."),
+            Table(at_rate_table(a, rec_rate, units),
+                  f"Predicted discharge at {format_quantity(rec_rate, 'rate', units)}."),
+        ), "window"),
+        Section("Charts", (), "charts"),  # the figures come last, when they are drawn
+        Section("Options compared", (), "scenarios"),
+        Section("Step-drawdown test and well condition", (), "stepdrawdown"),
+        Section("Assumptions", (BulletList(ASSUMPTIONS),), "assumptions"),
+        Section("Methods and references", (
+            Paragraph("Zone inflow: common wellbore head, q_i = G_i (h0_i - h_w) with optional "
+                      "nonlinear loss; conductances from Thiem or Cooper-Jacob with skin. "
+                      "Wellbore mixing: upwind mass balance along the well. Zone "
+                      "concentrations: weighted, bounded and censored least squares; hydraulics "
+                      "by variable projection with scipy least_squares on flow-log, level, "
+                      "prior and quality residuals. Uncertainty: linearised covariance and a "
+                      "seeded Monte Carlo refit. Window: P(C > margin x limit) <= alpha for "
+                      "every analyte, pumping level above intake plus submergence, pump range; "
+                      "rates near a step whose sample exceeded margin x limit are left out "
+                      "whatever the model says; a fit that misses a lab result by more than "
+                      "3 standard deviations makes the decision provisional."),
+            BulletList(REFERENCES),
+            Paragraph(f"blendq {__version__}."),
+        ), "methods"),
+    ]
+    from blendq.report.pdf import prepare  # load the PDF fonts while the charts are drawn
+
+    prepare()
+    figures = collect()
+    k, n = len(scenario_job), len(scenario_job) + len(jobs)
+    chart_blocks = {
+        "charts": tuple(figures[k:n]),
+        "stepdrawdown": step_drawdown_section(a, units, figures[n:]).blocks,
+    }
+    if comparison is not None:
+        chart_blocks["scenarios"] = scenario_section(a, comparison, units,
+                                                     chart=figures[0]).blocks
+    sections = [Section(sec.heading, chart_blocks[sec.key], sec.key)
+                if sec.key in chart_blocks else sec
+                for sec in sections if sec.key != "scenarios" or comparison is not None]
+    return Document(title=f"Discharge quality and operating window: {w.name}",
+                    subtitle=p.name, created=created, sections=tuple(sections))
+
+
+def summary_json(a: Analysis, units: str = "US") -> dict:
+    """Machine-readable summary (base units, with the display strings beside them)."""
+    w = a.window
+    return {
+        "blendq_version": __version__,
+        "project": a.project.name,
+        "well": a.project.well.name,
+        "decision": decision_sentence(a, units),
+        "window_m3_per_day": [[lo, hi] for lo, hi, _, _ in w.intervals],
+        "window_limiting": [[lo_r, hi_r] for _, _, lo_r, hi_r in w.intervals],
+        "recommended_rate_m3_per_day": w.recommended,
+        "reason_empty": w.reason_empty,
+        "zones": a.zones.to_dict(orient="records"),
+        "not_fitted": a.not_fitted,
+        "qa": a.qa.summary_lines(),
+        "draws": a.draws.n_draws,
+        "seed": a.draws.seed,
+        "cautions": list(CAUTIONS),
+        "units_note": "concentrations in mg/L on each analyte's canonical basis (nitrate as N); "
+                      "rates in m3/d; depths in m below the datum",
+    }
+
+
+def output_files(a: Analysis, units: str = "US", created: str = "",
+                 charts: ChartPool | None = None) -> dict[str, bytes | str]:
+    """All files of a report folder: report.html, report.pdf, CSV tables, summary.json, charts.
+
+    ``charts``: see :func:`build_document`.
+    """
+    from blendq.report.html import render_html
+    from blendq.report.outputs import to_csv_safe, to_json_stable
+    from blendq.report.pdf import render_pdf_bytes
+
+    doc = build_document(a, units, created, charts)
+    files: dict[str, bytes | str] = {
+        "report.html": render_html(doc),
+        "report.pdf": render_pdf_bytes(doc),
+        "summary.json": to_json_stable(summary_json(a, units)),
+        "tables/zones.csv": to_csv_safe(a.zones),
+        "tables/sweep.csv": to_csv_safe(a.sweep_table),
+        "tables/residuals.csv": to_csv_safe(a.residuals),
+        "tables/hydraulics.csv": to_csv_safe(a.hydraulics),
+        "tables/qa_findings.csv": to_csv_safe(a.qa.findings),
+    }
+    for k, block in enumerate(b for sec in doc.sections for b in sec.blocks if isinstance(b, Figure)):
+        if block.png is not None:
+            files[f"charts/chart_{k + 1}.png"] = block.png
+        if block.svg is not None:
+            files[f"charts/chart_{k + 1}.svg"] = block.svg
+    return files

@@ -1,0 +1,158 @@
+"""The report section comparing what-if scenarios (seal, redevelop, intake, heads, blend).
+
+:func:`scenario_section` turns a :class:`~blendq.decide.scenarios.Comparison` into a
+:class:`~blendq.report.document.Section` with key ``"scenarios"``: a sentence naming the option with the
+widest operating window, the comparison table in display units, and the chart.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from blendq.chemistry.analytes import get_analyte
+from blendq.decide.scenarios import BASE_NAME, Comparison
+from blendq.report.chart_pool import ChartJob, render_chart
+from blendq.report.document import Figure, Paragraph, Section, Table
+from blendq.units import DISPLAY_UNITS, display_unit_label, from_base
+
+
+def _rate_text(value: float, units: str) -> str:
+    """A rate [m^3/d] in the display unit, whole numbers from 100 up."""
+    unit = DISPLAY_UNITS[units]["rate"]
+    x = float(from_base(value, "rate", unit))
+    return f"{x:,.0f} {display_unit_label(unit)}" if abs(x) >= 100 else \
+        f"{x:.3g} {display_unit_label(unit)}"
+
+
+def _conc_text(analyte: str, values) -> tuple[str, str]:
+    an = get_analyte(analyte)
+    unit = an.display_unit
+    lo, med, hi = (float(v) for v in an.in_display_unit(values))
+    if not np.isfinite(med):
+        return "-", "-"
+    return f"{med:.3g} {unit}", f"{lo:.3g} to {hi:.3g} {unit}"
+
+
+def comparison_display_table(comparison: Comparison, units: str = "US",
+                             interval: float = 0.9) -> pd.DataFrame:
+    """The comparison in display units, one row per scenario, as text cells."""
+    rows = []
+    analytes = comparison.results[0].prediction.analytes if comparison.results else []
+    for res, (_, r) in zip(comparison.results, comparison.table.iterrows(), strict=True):
+        w = res.window
+        window = " and ".join(f"{_rate_text(lo, units)} to "
+                              f"{_rate_text(hi, units)}"
+                              for lo, hi, _, _ in w.intervals) or "none"
+        row = {
+            "Option": r["scenario"],
+            "Changes": r["changes"],
+            "Operating window": window,
+            "Width": _rate_text(r["window_width"], units),
+            "Recommended": ("-" if w.recommended is None
+                            else _rate_text(w.recommended, units)),
+            "Pumping-level yield": (("at least " if r["yield_beyond_grid"] else "")
+                                    + _rate_text(r["yield"], units)),
+        }
+        if res.scenario.blend is not None:
+            row["Delivered"] = ("-" if w.recommended is None
+                                else _rate_text(r["delivered"], units))
+        else:
+            row["Delivered"] = row["Recommended"]
+        for a in analytes:
+            med, band = _conc_text(a, [r[f"{a}_lower"], r[f"{a}_median"], r[f"{a}_upper"]])
+            label = get_analyte(a).label()
+            row[f"{label} median"] = med
+            row[f"{label} {interval:.0%} band"] = band
+        row["Window limited by"] = (
+            f"low end: {r['lower_end_set_by']}; high end: {r['upper_end_set_by']}"
+            if w.intervals else w.reason_empty or "no rate meets every criterion")
+        rows.append(row)
+    return pd.DataFrame(rows)
+
+
+def compact_display_table(comparison: Comparison, units: str = "US",
+                          interval: float = 0.9) -> pd.DataFrame:
+    """The comparison with fewer, wider columns for a printed page: the median and band of
+    each analyte in one cell, the delivered rate beside the recommended one."""
+    full = comparison_display_table(comparison, units, interval)
+    out = full[["Option", "Operating window"]].copy()
+    out["Recommended"] = [rec if rec == dlv else f"{rec} (delivered {dlv})"
+                          for rec, dlv in zip(full["Recommended"], full["Delivered"], strict=True)]
+    out["Pumping-level yield"] = full["Pumping-level yield"]
+    for col in full.columns:
+        if col.endswith(" median"):
+            label = col[: -len(" median")]
+            band = full[f"{label} {interval:.0%} band"]
+            out[f"{label} at recommended rate ({interval:.0%} band)"] = [
+                "-" if m == "-" else f"{m} ({b})" for m, b in zip(full[col], band, strict=True)]
+    out["Window limited by"] = full["Window limited by"]
+    return out
+
+
+def widest_sentence(comparison: Comparison, units: str = "US") -> str:
+    """A sentence naming the option with the widest operating window."""
+    t = comparison.table
+    if t.empty or not (t["window_width"] > 0).any() and not (t["n_intervals"] > 0).any():
+        return "No option compared here opens an operating window."
+    k = int(np.argmax(t["window_width"].to_numpy(float)))
+    name = t["scenario"].iloc[k]
+    width = _rate_text(t["window_width"].iloc[k], units)
+    base = t[t["scenario"] == BASE_NAME]
+    if name == BASE_NAME:
+        return (f"None of the options widens the operating window: the base case has the widest "
+                f"({width}).")
+    text = f'"{name}" opens the widest operating window ({width}'
+    if len(base):
+        text += f" against {_rate_text(base['window_width'].iloc[0], units)} as tested"
+    return text + ")."
+
+
+def scenario_chart_job(analysis, comparison: Comparison, units: str = "US") -> ChartJob:
+    """The chart of the scenario section, to be drawn (see :mod:`blendq.report.chart_pool`)."""
+    from blendq.report.charts.scenarios import scenario_chart, window_summary
+
+    return ChartJob(
+        "Median delivered quality against the well's pumping rate for each option, with the "
+        "limit and the operating margin; beneath, each option's operating window (which "
+        "also accounts for the prediction bands), recommended rate and pumping-level yield.",
+        scenario_chart, (comparison, analysis.limits, units), svg=False,
+        alt="Operating windows: " + "; ".join(window_summary(comparison, units)))
+
+
+def scenario_section(analysis, comparison: Comparison, units: str = "US",
+                     chart: Figure | None = None) -> Section:
+    """The report section comparing scenarios.
+
+    Parameters
+    ----------
+    analysis : blendq.decide.analysis.Analysis
+    comparison : Comparison
+        From :func:`blendq.decide.scenarios.compare`.
+    units : {"US", "SI"}
+    chart : Figure, optional
+        The drawn :func:`scenario_chart_job`; drawn here when not given.
+
+    Returns
+    -------
+    Section
+        Key ``"scenarios"``.
+    """
+    s = analysis.project.settings
+    if chart is None:
+        chart = (job := scenario_chart_job(analysis, comparison, units)).figure(render_chart(job))
+    blocks = [
+        Paragraph(widest_sentence(comparison, units)),
+        Paragraph("Each option is the calibrated well model with the changes listed, evaluated "
+                  "with the same Monte Carlo draws and rate grid as the base case, so that the "
+                  "differences come from the changes alone. Rates are the well's own pumping "
+                  "rate; a blend adds its rate to what is delivered. The pumping-level yield is "
+                  "the largest rate at which the pumping level stays above the intake plus the "
+                  "submergence. Options are planning estimates: sealing, redevelopment and pump "
+                  "changes need a licensed professional's review and field confirmation."),
+        Table(compact_display_table(comparison, units, s.interval),
+              "Options compared at the recommended rate of each (median and band of the "
+              "delivered concentration)."),
+        chart,
+    ]
+    return Section("Options compared", tuple(blocks), "scenarios")

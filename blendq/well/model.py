@@ -1,0 +1,231 @@
+"""Build the zone inflow model of a well from a project: geometry, conductances and heads.
+
+A :class:`WellModel` holds one set of hydraulic parameters (zone conductances, static heads,
+nonlinear losses, the well loss) and answers, for any array of rates, the zone flows, the
+discharge weights and the pumping level. :func:`prior_hydraulics` turns the zone properties of
+a project into prior values with spreads for the fit (:mod:`blendq.fit.estimation`).
+
+Conductances from properties (docs/methods.md, section 1):
+
+* ``steady``: Thiem with skin, G = 2 pi T / (ln(R/r_w) + s);
+* ``transient``: Cooper-Jacob with skin at time t, G = 4 pi T / (ln(2.25 T t/(r_w^2 S)) + 2 s);
+* ``given``: the zone's own ``conductance``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from blendq.errors import InputError
+from blendq.inputs.project import Project
+from blendq.well import hydraulics, mixing
+
+#: spread of a property-based conductance prior, as a factor (1 sd of ln G): common practice
+#: for transmissivities estimated from lithology or slug tests (within a factor of about 3)
+PRIOR_LOG_CONDUCTANCE_SD = np.log(3.0)
+#: spread of a measured zone static level [m] (common practice)
+PRIOR_HEAD_SD_MEASURED = 0.3
+#: spread of a zone static level taken from the well's composite level [m] (common practice)
+PRIOR_HEAD_SD_ASSUMED = 3.0
+
+
+@dataclass(frozen=True)
+class WellModel:
+    """Hydraulic parameters of one well, in base units; arrays may carry batch dimensions.
+
+    Attributes
+    ----------
+    geometry : mixing.WellGeometry
+    conductance : ndarray (..., n_zones)
+        G_i [m^2/d].
+    static_head : ndarray (..., n_zones)
+        h0_i [m] (elevation relative to the datum).
+    nonlinear_loss : ndarray (..., n_zones)
+        D_i [d^2/m^5].
+    well_loss : ndarray (...,) or float
+        C [d^2/m^5] (pumping level = h_w - C Q^2).
+    """
+
+    geometry: mixing.WellGeometry
+    conductance: np.ndarray
+    static_head: np.ndarray
+    nonlinear_loss: np.ndarray
+    well_loss: np.ndarray | float = 0.0
+
+    def state(self, rate) -> hydraulics.WellState:
+        """Wellbore head and zone flows at each rate [m^3/d]; shapes (..., n_rates[, n_zones])."""
+        d = self.nonlinear_loss if np.any(np.asarray(self.nonlinear_loss) > 0) else None
+        return hydraulics.solve_wellbore_head(rate, self.conductance, self.static_head, d)
+
+    def weights(self, rate) -> np.ndarray:
+        """Discharge weights a_i(Q), shape (..., n_rates, n_zones)."""
+        return mixing.discharge_weights(self.state(rate).zone_flow, self.geometry)
+
+    def pumping_level_depth(self, rate, state: hydraulics.WellState | None = None) -> np.ndarray:
+        """Depth of the pumping level below the datum [m], shape (..., n_rates)."""
+        st = self.state(rate) if state is None else state
+        c = np.asarray(self.well_loss, float)[..., None]
+        return -hydraulics.pumping_level_head(st.wellbore_head, st.rate, c)
+
+    def with_changes(self, **kw) -> WellModel:
+        """A copy with some attributes replaced."""
+        return replace(self, **kw)
+
+
+def geometry_of(project: Project) -> mixing.WellGeometry:
+    """Zone depths and intake depth of a project."""
+    return mixing.WellGeometry(project.zone_top, project.zone_bottom,
+                               project.well.pump_intake_depth)
+
+
+def elapsed_test_time(project: Project) -> float:
+    """Elapsed time from the start of the step test to the end of its last step [d]."""
+    steps = project.steps
+    if steps.empty:
+        return 1.0
+    dur = np.asarray(steps["duration"], float)
+    total = float(np.nansum(dur))
+    return total if total > 0 else 1.0
+
+
+def property_conductance(project: Project, time: float | None, model: str | None = None) -> np.ndarray:
+    """Zone conductances [m^2/d] from zone properties.
+
+    Parameters
+    ----------
+    project : Project
+    time : float or None
+        Elapsed pumping time t [d] for the transient model.
+    model : str, optional
+        "steady", "transient", "given" or "auto" (default: the project's setting). "auto" takes
+        each zone's given conductance, else Cooper-Jacob when storativity is known, else Thiem.
+
+    Raises
+    ------
+    InputError
+        When a zone lacks what the model needs.
+    """
+    model = model or project.settings.conductance_model
+    out = []
+    rw = project.well.well_radius
+    for i, z in enumerate(project.zones):
+        where = dict(file="project.toml", field=f"zones[{i + 1}]")
+        use = model
+        if model in ("auto", "flowlog"):
+            if z.conductance is not None:
+                use = "given"
+            elif z.storativity is not None:
+                use = "transient"
+            else:
+                use = "steady"
+        if use == "given":
+            if z.conductance is None:
+                raise InputError(f'zone "{z.name}" has no conductance', **where)
+            out.append(z.conductance)
+            continue
+        t = z.zone_transmissivity
+        if t is None:
+            raise InputError(f'zone "{z.name}" needs transmissivity, conductivity or conductance',
+                             **where)
+        if use == "transient":
+            if z.storativity is None:
+                raise InputError(f'zone "{z.name}" needs storativity for transient conductance',
+                                 **where)
+            out.append(float(hydraulics.cooper_jacob_conductance(t, z.storativity, time, rw, z.skin)))
+        else:
+            r = project.well.radius_of_influence
+            if r is None:
+                raise InputError("steady conductances need well.radius_of_influence (or zone "
+                                 "storativity for transient ones)", file="project.toml",
+                                 field="well.radius_of_influence")
+            out.append(float(hydraulics.thiem_conductance(t, r, rw, z.skin)))
+    return np.array(out)
+
+
+def horizon_factor(project: Project, conductance_test_time: float, horizon: float) -> np.ndarray:
+    """Factor G_i(horizon) / G_i(test) per zone [-] from Cooper-Jacob; 1 where S is unknown.
+
+    Fitted conductances describe the well over the step test; for long-term operation the
+    cone of depression keeps growing, so each zone's conductance falls as
+    1 / (ln(2.25 T t / (r_w^2 S)) + 2 s) (Cooper and Jacob 1946).
+    """
+    f = []
+    rw = project.well.well_radius
+    for z in project.zones:
+        t = z.zone_transmissivity
+        if z.conductance is not None or t is None or z.storativity is None:
+            f.append(1.0)
+            continue
+        g1 = hydraulics.cooper_jacob_conductance(t, z.storativity, conductance_test_time, rw, z.skin)
+        g2 = hydraulics.cooper_jacob_conductance(t, z.storativity, horizon, rw, z.skin)
+        f.append(float(g2 / g1))
+    return np.array(f)
+
+
+@dataclass(frozen=True)
+class HydraulicPrior:
+    """Prior values and spreads of the hydraulic parameters.
+
+    Attributes
+    ----------
+    log_conductance, log_conductance_sd : ndarray (n_zones,)
+        Mean and sd of ln G_i (G in m^2/d); sd ``inf`` for no prior information.
+    static_head, static_head_sd : ndarray (n_zones,)
+        Mean and sd of h0_i [m]; sd ``inf`` for no prior information.
+    source : list of str
+        Where each zone's prior came from (for the report).
+    """
+
+    log_conductance: np.ndarray
+    log_conductance_sd: np.ndarray
+    static_head: np.ndarray
+    static_head_sd: np.ndarray
+    source: list[str]
+
+
+def prior_hydraulics(project: Project) -> HydraulicPrior:
+    """Prior zone conductances and static heads from the project's zone properties."""
+    n = len(project.zones)
+    t_test = elapsed_test_time(project)
+    logg = np.zeros(n)
+    logg_sd = np.full(n, np.inf)
+    src = []
+    try:
+        g = property_conductance(project, t_test)
+        logg = np.log(g)
+        logg_sd = np.where([z.conductance is not None for z in project.zones],
+                           0.25 * PRIOR_LOG_CONDUCTANCE_SD, PRIOR_LOG_CONDUCTANCE_SD)
+        src = ["zone properties"] * n
+    except InputError:
+        # no usable properties: a flat prior with equal shares as a starting point
+        logg = np.log(np.full(n, 100.0))
+        src = ["none (start value only)"] * n
+    well_level = project.well.static_level
+    heads = []
+    head_sd = []
+    for z in project.zones:
+        if z.static_level is not None:
+            heads.append(-z.static_level)
+            head_sd.append(PRIOR_HEAD_SD_MEASURED)
+        elif well_level is not None:
+            heads.append(-well_level)
+            head_sd.append(PRIOR_HEAD_SD_ASSUMED)
+        else:
+            heads.append(0.0)
+            head_sd.append(np.inf)
+    return HydraulicPrior(logg, np.asarray(logg_sd, float), np.array(heads, float),
+                          np.array(head_sd, float), src)
+
+
+def model_from_parameters(project: Project, conductance, static_head, well_loss=None) -> WellModel:
+    """A :class:`WellModel` of the project with the given conductances and heads."""
+    nl = np.array([z.nonlinear_loss for z in project.zones], float)
+    return WellModel(
+        geometry=geometry_of(project),
+        conductance=np.asarray(conductance, float),
+        static_head=np.asarray(static_head, float),
+        nonlinear_loss=nl,
+        well_loss=project.well.well_loss if well_loss is None else well_loss,
+    )

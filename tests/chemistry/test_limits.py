@@ -1,0 +1,149 @@
+"""Tests of the drinking-water limits catalogue against the published rules.
+
+Each expected value carries its source beside it:
+- 40 CFR 141.62(b): US EPA maximum contaminant levels for inorganic contaminants;
+- 40 CFR 141.66(e): US EPA MCL for uranium;
+- WHO Guidelines for Drinking-water Quality, 4th ed. (2017, addenda 2022), chapter 12 and the
+  chemical summary tables (annex 3, from memory);
+- Directive (EU) 2020/2184, Annex I, Part B (chemical parameters) and its notes.
+The nitrate/nitrite conversions use molar masses from the ``molmass`` library and the National
+Research Council (1995) factor 1 mg/L NO3-N = 4.429 mg/L NO3.
+"""
+
+from __future__ import annotations
+
+import molmass
+import pytest
+
+from blendq.chemistry.analytes import get_analyte
+from blendq.chemistry.limits import CATALOGUE, RATIO_RULES, limit_set, ratio_value
+from blendq.errors import InputError
+
+N_PER_NO3 = molmass.Formula("N").mass / molmass.Formula("NO3").mass  # molmass library
+N_PER_NO2 = molmass.Formula("N").mass / molmass.Formula("NO2").mass  # molmass library
+
+# (authority, analyte) -> (value, unit, basis, expected canonical mg/L); source beside each
+PUBLISHED = {
+    # 40 CFR 141.62(b): nitrate 10 mg/L (as nitrogen)
+    ("US-EPA", "nitrate"): (10.0, "mg/L", "N", 10.0),
+    # 40 CFR 141.62(b): nitrite 1 mg/L (as nitrogen)
+    ("US-EPA", "nitrite"): (1.0, "mg/L", "N", 1.0),
+    # 40 CFR 141.62(b): total nitrate and nitrite 10 mg/L (as nitrogen)
+    ("US-EPA", "nitrate_nitrite"): (10.0, "mg/L", "N", 10.0),
+    # 40 CFR 141.62(b): arsenic 0.010 mg/L
+    ("US-EPA", "arsenic"): (0.010, "mg/L", "As", 0.010),
+    # 40 CFR 141.62(b): fluoride 4.0 mg/L
+    ("US-EPA", "fluoride"): (4.0, "mg/L", "F", 4.0),
+    # 40 CFR 141.62(b): selenium 0.05 mg/L
+    ("US-EPA", "selenium"): (0.05, "mg/L", "Se", 0.05),
+    # 40 CFR 141.66(e): uranium 30 ug/L
+    ("US-EPA", "uranium"): (30.0, "ug/L", "U", 0.030),
+    # WHO GDWQ 4th ed.: nitrate 50 mg/L as NO3- (= 11.29 mg/L as N by molar masses)
+    ("WHO", "nitrate"): (50.0, "mg/L", "NO3", 50.0 * N_PER_NO3),
+    # WHO GDWQ 4th ed.: nitrite 3 mg/L as NO2- (= 0.913 mg/L as N)
+    ("WHO", "nitrite"): (3.0, "mg/L", "NO2", 3.0 * N_PER_NO2),
+    # WHO GDWQ 4th ed.: arsenic 10 ug/L (provisional guideline value)
+    ("WHO", "arsenic"): (10.0, "ug/L", "As", 0.010),
+    # Directive (EU) 2020/2184 Annex I Part B: nitrate 50 mg/l (as the ion)
+    ("EU", "nitrate"): (50.0, "mg/L", "NO3", 50.0 * N_PER_NO3),
+    # Directive (EU) 2020/2184 Annex I Part B: nitrite 0,50 mg/l (as the ion)
+    ("EU", "nitrite"): (0.50, "mg/L", "NO2", 0.50 * N_PER_NO2),
+    # Directive (EU) 2020/2184 Annex I Part B: arsenic 10 ug/l
+    ("EU", "arsenic"): (10.0, "ug/L", "As", 0.010),
+}
+
+
+@pytest.mark.parametrize(("authority", "analyte"), sorted(PUBLISHED))
+def test_catalogue_value_matches_published_rule(authority, analyte):
+    value, unit, basis, canonical = PUBLISHED[(authority, analyte)]
+    matches = [lim for lim in CATALOGUE[authority] if lim.analyte == analyte]
+    assert len(matches) == 1
+    lim = matches[0]
+    assert lim.value == pytest.approx(value, rel=1e-12)
+    assert lim.unit == unit
+    assert lim.basis == basis
+    assert lim.authority == authority
+    assert lim.citation
+    # molar masses: blendq's IUPAC abridged table against molmass, rtol 1e-4
+    assert lim.canonical() == pytest.approx(canonical, rel=1e-4)
+
+
+def test_catalogue_has_no_unchecked_entries():
+    # every limit in the catalogue is one of the published values checked above
+    listed = {(a, lim.analyte) for a, limits in CATALOGUE.items() for lim in limits}
+    assert listed == set(PUBLISHED)
+
+
+def test_us_citations_name_the_cfr_sections():
+    for lim in CATALOGUE["US-EPA"]:
+        expected = "141.66(e)" if lim.analyte == "uranium" else "141.62(b)"
+        assert expected in lim.citation
+    assert all("2020/2184" in lim.citation for lim in CATALOGUE["EU"])
+    assert all("4th ed" in lim.citation for lim in CATALOGUE["WHO"])
+
+
+def test_ten_mg_per_litre_as_n_is_about_44_mg_per_litre_as_no3():
+    # 10 mg/L NO3-N x 4.429 = 44.29 mg/L NO3 (National Research Council 1995)
+    us = next(lim for lim in CATALOGUE["US-EPA"] if lim.analyte == "nitrate")
+    as_no3 = us.canonical() / N_PER_NO3
+    assert as_no3 == pytest.approx(44.29, rel=1e-3)
+    assert as_no3 == pytest.approx(44.3, abs=0.05)
+
+
+def test_fifty_mg_per_litre_no3_is_about_11_3_mg_per_litre_as_n():
+    # 50 mg/L NO3 / 4.429 = 11.29 mg/L NO3-N (National Research Council 1995)
+    who = next(lim for lim in CATALOGUE["WHO"] if lim.analyte == "nitrate")
+    assert who.canonical() == pytest.approx(50.0 / 4.429, rel=1e-3)
+    assert who.canonical() == pytest.approx(11.3, abs=0.05)
+    # the WHO/EU nitrate value is looser than the US MCL once both are on the same basis
+    us = next(lim for lim in CATALOGUE["US-EPA"] if lim.analyte == "nitrate")
+    assert who.canonical() > us.canonical()
+
+
+def test_who_ratio_rule():
+    # WHO GDWQ 4th ed.: C_nitrate/GV_nitrate + C_nitrite/GV_nitrite <= 1
+    (rule,) = RATIO_RULES["WHO"]
+    # 25 mg/L NO3 and 1.5 mg/L NO2 (half of each guideline value) -> ratio 1
+    conc = {"nitrate": 25.0 * N_PER_NO3, "nitrite": 1.5 * N_PER_NO2}
+    assert ratio_value(rule, conc) == pytest.approx(1.0, rel=1e-4)
+    # nitrate alone at 40 mg/L NO3 -> 0.8
+    assert ratio_value(rule, {"nitrate": 40.0 * N_PER_NO3}) == pytest.approx(0.8, rel=1e-4)
+    assert ratio_value(rule, {}) == 0.0
+
+
+def test_eu_ratio_rule():
+    # Directive (EU) 2020/2184 Annex I Part B, note to nitrate/nitrite:
+    # [nitrate]/50 + [nitrite]/3 <= 1, concentrations in mg/l as the ions
+    (rule,) = RATIO_RULES["EU"]
+    conc = {"nitrate": 30.0 * N_PER_NO3, "nitrite": 0.45 * N_PER_NO2}
+    # 30/50 + 0.45/3 = 0.6 + 0.15 = 0.75
+    assert ratio_value(rule, conc) == pytest.approx(0.75, rel=1e-4)
+
+
+def test_no_us_ratio_rule():
+    # 40 CFR 141.62(b) sets a separate MCL for the sum of nitrate and nitrite instead
+    assert RATIO_RULES["US-EPA"] == []
+
+
+def test_labels():
+    us = {lim.analyte: lim for lim in CATALOGUE["US-EPA"]}
+    assert us["nitrate"].label() == "US-EPA MCL 10 mg/L as N"
+    assert us["arsenic"].label() == "US-EPA MCL 0.01 mg/L"
+    who = {lim.analyte: lim for lim in CATALOGUE["WHO"]}
+    assert who["nitrate"].label() == "WHO guideline value 50 mg/L as NO3"
+
+
+def test_limit_set_lookup():
+    assert [lim.analyte for lim in limit_set("WHO")] == ["nitrate", "nitrite", "arsenic"]
+    # a copy: changing it leaves the catalogue alone
+    copy = limit_set("EU")
+    copy.clear()
+    assert len(CATALOGUE["EU"]) == 3
+    with pytest.raises(InputError, match='no limit set "Atlantis"'):
+        limit_set("Atlantis")
+
+
+def test_limit_analytes_are_catalogued():
+    for limits in CATALOGUE.values():
+        for lim in limits:
+            assert get_analyte(lim.analyte).key == lim.analyte

@@ -1,0 +1,124 @@
+"""Tests of the whole-analysis pipeline (blendq.decide.analysis) on the invented demo well TH-2."""
+
+from __future__ import annotations
+
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+import blendq
+from blendq.decide.analysis import analyse, decision_sentence, fit_analytes
+from blendq.inputs.loader import load_project
+from blendq.units import format_quantity, parse_quantity
+from blendq.well.inflow import inflow_table
+
+DEMO = Path(blendq.__file__).parent / "data" / "demo"
+DRAWS = 200
+
+
+@pytest.fixture(scope="module")
+def project():
+    return load_project(DEMO)
+
+
+@pytest.fixture(scope="module")
+def analysis(project):
+    return analyse(project, draws=DRAWS, seed=7)
+
+
+def test_window_and_recommended_rate(analysis, project):
+    w = analysis.window
+    assert not w.empty
+    assert w.reason_empty == ""
+    assert w.recommended is not None
+    assert any(lo - 1e-9 <= w.recommended <= hi + 1e-9 for lo, hi, _, _ in w.intervals)
+    demand = project.well.demand
+    assert demand == pytest.approx(parse_quantity("600 gpm", "rate"), rel=1e-12)
+    assert w.recommended <= demand * (1 + 1e-9)
+    for lo, hi, why_lo, why_hi in w.intervals:
+        assert lo < hi
+        assert why_lo and why_hi
+
+
+def test_window_meets_criterion_at_recommended_rate(analysis, project):
+    # The window definition (docs/methods.md): at a compliant rate the fraction of draws
+    # above margin x limit is at most the accepted exceedance probability, for every analyte.
+    s = project.settings
+    p = analysis.prediction
+    k = int(np.argmin(np.abs(p.rates - analysis.window.recommended)))
+    assert analysis.window.ok[k]
+    for j, analyte in enumerate(p.analytes):
+        lim = analysis.limits.get(analyte)
+        if lim is None:
+            continue
+        exceed = (p.concentration[:, k, j] > s.margin * lim.canonical()).mean()
+        assert exceed <= s.exceedance_probability + 1.0 / DRAWS
+
+
+def test_window_flags_agree_with_intervals(analysis):
+    w = analysis.window
+    inside = np.zeros_like(w.ok)
+    for lo, hi, _, _ in w.intervals:
+        inside |= (w.rates >= lo - 1e-9) & (w.rates <= hi + 1e-9)
+    assert np.array_equal(inside, w.ok)
+
+
+def test_analysis_contents(analysis, project):
+    assert analysis.draws.n_draws == DRAWS
+    assert analysis.draws.seed == 7
+    assert set(analysis.zones["zone"]) == set(project.zone_names)
+    assert {"nitrate", "arsenic"} <= set(analysis.prediction.analytes)
+    # every nitrite result of the demo is a non-detect: reported, not fitted
+    assert "nitrite" in analysis.not_fitted
+    assert "non-detect" in analysis.not_fitted["nitrite"]
+
+
+def test_fit_analytes_splits_by_limit_and_detection(project):
+    fitted, skipped = fit_analytes(project)
+    assert "nitrate" in fitted and "arsenic" in fitted
+    assert not set(fitted) & set(skipped)
+    assert set(fitted) | set(skipped) == set(project.analytes())
+
+
+@pytest.mark.parametrize("units", ["US", "SI"])
+def test_decision_sentence_names_recommended_rate(analysis, units):
+    text = decision_sentence(analysis, units)
+    assert text.startswith("Operate between")
+    assert format_quantity(analysis.window.recommended, "rate", units) in text
+    lo, hi, _, _ = analysis.window.intervals[0]
+    assert format_quantity(lo, "rate", units) in text
+    assert format_quantity(hi, "rate", units) in text
+
+
+def test_decision_sentence_empty_window(analysis):
+    empty = replace(analysis.window, intervals=[], recommended=None,
+                    reason_empty="arsenic above the margin at every rate")
+    text = decision_sentence(replace(analysis, window=empty))
+    assert text.startswith("No pumping rate meets every limit")
+    assert "arsenic above the margin at every rate" in text
+
+
+def test_inflow_table_shares_and_balance(project):
+    rates = np.array([0.0, 500.0, 1500.0, 3000.0, 4500.0])  # [m^3/d]
+    t = inflow_table(project, rates)
+    assert len(t) == len(rates) * len(project.zones)
+    for q, g in t.groupby("rate"):
+        if q > 0:
+            assert g["share"].sum() == pytest.approx(1.0, abs=1e-9)
+            assert (g["share"] >= -1e-12).all()
+        # mass balance in the well: zone flows add up to the pumping rate
+        assert g["zone_flow"].sum() == pytest.approx(q, abs=1e-6 * max(q, 1.0))
+    level = t.groupby("rate")["pumping_level"].first().to_numpy()
+    assert np.all(np.diff(level) > 0)  # deeper pumping level at higher rate
+
+
+@settings(max_examples=20)
+@given(st.floats(min_value=10.0, max_value=6000.0))
+def test_inflow_shares_sum_to_one(project, rate):
+    t = inflow_table(project, [rate])
+    assert t["share"].sum() == pytest.approx(1.0, abs=1e-9)
+    assert t["zone_flow"].sum() == pytest.approx(rate, rel=1e-6)

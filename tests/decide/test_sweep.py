@@ -1,0 +1,207 @@
+"""Tests of blendq.decide.sweep: the operating window on hand-built predictions, and the rate sweep.
+
+Sources:
+- Definition (docs/methods.md, section 8): the window is the set of rates where, for every
+  analyte, P(C > margin x limit) <= alpha, and the pumping level stays above the intake plus the
+  required submergence (and, if asked, above the top screen), within the pump's range; it may
+  be several intervals; the recommended rate is the largest compliant rate not above the
+  demand; an empty window comes with its reason.
+- US EPA 40 CFR 141.62(b): nitrate MCL 10 mg/L as N; WHO GDWQ 4th ed.: nitrate 50 mg/L as NO3
+  (11.3 mg/L as N), so the US MCL is the stricter of the two.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import synthetic_wells as sw
+
+from blendq.chemistry.limits import CATALOGUE, Limit
+from blendq.decide import sweep
+from blendq.fit import uncertainty
+from blendq.fit.estimation import FitOptions, fit
+from blendq.fit.uncertainty import Prediction
+
+RATES = np.arange(0.0, 1100.0, 100.0)  # 0, 100, ..., 1000 m^3/d
+NITRATE_MCL = Limit("nitrate", 10.0, "mg/L", "N", "US-EPA", "MCL", "40 CFR 141.62(b)")
+LIMITS = {"nitrate": NITRATE_MCL}
+QUALITY = "nitrate (P > 0.8 x limit above 0.05)"
+LEVEL = "pumping level above intake + submergence"
+
+
+def _prediction(nitrate_by_rate, level_by_rate=None, n_draws=40, spread=0.3, seed=0):
+    """Draws scattered +-spread around a given nitrate curve [mg/L] and pumping level [m]."""
+    rng = np.random.default_rng(seed)
+    base = np.asarray(nitrate_by_rate, float)
+    conc = base[None, :, None] + rng.uniform(-spread, spread, (n_draws, len(RATES), 1))
+    level = np.asarray(level_by_rate if level_by_rate is not None else 10.0 + 0.01 * RATES, float)
+    levels = level[None, :] + rng.uniform(-0.2, 0.2, (n_draws, len(RATES)))
+    shares = np.full((n_draws, len(RATES), 2), 0.5)
+    return Prediction(RATES, conc, levels, shares, shares * RATES[None, :, None], ["nitrate"])
+
+
+def _window(pred, margin=0.8, alpha=0.05, intake=60.0, submergence=5.0, rate_min=0.0,
+            rate_max=np.inf, demand=None, top_of_screen=None):
+    return sweep.operating_window(pred, LIMITS, margin, alpha, intake, submergence, rate_min,
+                                  rate_max, demand, top_of_screen)
+
+
+def test_two_interval_window():
+    # a nitrate peak at 300-400 m^3/d (for example a thief zone turning into a source) splits
+    # the window in two: threshold 0.8 x 10 = 8 mg/L
+    pred = _prediction([5, 5, 5, 9, 9, 5, 5, 5, 5, 5, 5])
+    w = _window(pred, demand=650.0)
+    assert not w.empty and w.reason_empty == ""
+    assert w.intervals == [(100.0, 200.0, "zero rate", QUALITY),
+                           (500.0, 1000.0, QUALITY, "highest rate of the sweep")]
+    np.testing.assert_array_equal(w.ok, [False, True, True, False, False] + [True] * 6)
+    assert w.recommended == 600.0  # largest compliant rate not above the demand
+    assert _window(pred, demand=450.0).recommended == 200.0  # 300, 400 fail
+    assert _window(pred).recommended == 1000.0  # no demand: the largest compliant rate
+    # below the smallest compliant rate: the compliant rate nearest the demand
+    assert _window(pred, demand=50.0).recommended == 100.0
+    kinds = {c.kind for c in w.criteria}
+    assert kinds == {"quality", "hydraulic", "pump"}
+
+
+def test_empty_window_quality_everywhere():
+    pred = _prediction([12.0] * len(RATES))
+    w = _window(pred, demand=500.0)
+    assert w.empty and w.intervals == [] and w.recommended is None
+    assert w.reason_empty == f"{QUALITY} fails at every rate"
+
+
+def test_empty_window_no_rate_meets_all_at_once():
+    # quality only at high rates, pumping level only at low rates
+    pred = _prediction([9, 9, 9, 9, 9, 9, 5, 5, 5, 5, 5], level_by_rate=10.0 + 0.08 * RATES)
+    w = _window(pred)
+    assert w.empty and w.recommended is None
+    assert w.reason_empty.startswith("no rate meets all criteria at once: ")
+    assert QUALITY in w.reason_empty and LEVEL in w.reason_empty
+
+
+def test_hydraulic_limit_binds_before_quality():
+    # level 10 m + 0.05 m per m^3/d against intake 60 m with 5 m submergence: deeper than 55 m
+    # from 900 m^3/d; nitrate crosses 8 mg/L only at 1000 m^3/d
+    pred = _prediction([4, 4, 4, 4, 4, 5, 5, 6, 6, 7, 9], level_by_rate=10.0 + 0.05 * RATES)
+    w = _window(pred)
+    assert w.intervals == [(100.0, 800.0, "zero rate", LEVEL)]
+    # asking also for the top screen at 40 m moves the end to 500 m^3/d (level 35-40 m)
+    w2 = _window(pred, top_of_screen=40.0)
+    assert w2.intervals[0][1] == 500.0
+    assert w2.intervals[0][3] == "pumping level above top of screen"
+
+
+def test_margin_moves_an_end():
+    # nitrate rising 1 mg/L per 100 m^3/d: under 0.8 x 10 mg/L up to 700 m^3/d (800 has draws
+    # at 8 +- 0.3), under the full limit up to 900 m^3/d
+    pred = _prediction(RATES / 100.0)
+    w08 = _window(pred, margin=0.8)
+    w10 = _window(pred, margin=1.0)
+    assert w08.intervals == [(100.0, 700.0, "zero rate", QUALITY)]
+    assert w10.intervals[0][:2] == (100.0, 900.0)
+    assert w10.intervals[0][3] == "nitrate (P > 1 x limit above 0.05)"
+
+
+def test_alpha_is_the_allowed_exceedance_probability():
+    # at 500 m^3/d exactly 4 of 40 draws (10 %) exceed 8 mg/L
+    pred = _prediction([5.0] * len(RATES), spread=0.0)
+    conc = np.array(pred.concentration, copy=True)
+    conc[:4, 5, 0] = 8.5
+    pred = Prediction(RATES, conc, pred.pumping_level, pred.shares, pred.zone_flow, ["nitrate"])
+    assert not _window(pred, alpha=0.05).ok[5]
+    assert _window(pred, alpha=0.10).ok[5]  # P <= alpha passes
+
+
+def test_pump_range_bounds_the_window():
+    pred = _prediction([5.0] * len(RATES))
+    w = _window(pred, rate_min=250.0, rate_max=750.0, demand=2000.0)
+    assert w.intervals == [(300.0, 700.0, "pump rate range", "pump rate range")]
+    assert w.recommended == 700.0
+
+
+def test_governing_limit_is_the_strictest():
+    limits = CATALOGUE["US-EPA"] + CATALOGUE["WHO"]
+    gov = sweep.governing_limits(limits, ["nitrate", "arsenic"])
+    assert set(gov) == {"nitrate", "arsenic"}
+    # 10 mg/L as N (40 CFR 141.62) is below 50 mg/L as NO3 = 11.3 mg/L as N (WHO)
+    assert gov["nitrate"].authority == "US-EPA"
+    assert gov["nitrate"].canonical() == pytest.approx(10.0, rel=1e-12)
+    assert gov["arsenic"].canonical() == pytest.approx(0.010, rel=1e-12)
+
+
+@pytest.fixture(scope="module")
+def fitted():
+    result = fit(sw.project(relative_error=0.05, seed=2), FitOptions(fit_hydraulics=False))
+    return result, uncertainty.monte_carlo(result, 200, seed=3)
+
+
+def test_rate_grid_and_sweep(fitted):
+    result, draws = fitted
+    grid = sweep.rate_grid(result, points=13)
+    # 1.2 x the largest step rate (no pump range or demand in the synthetic well)
+    np.testing.assert_allclose(grid, np.linspace(0.0, 1.2 * sw.RATES.max(), 13), rtol=1e-12)
+    rates = grid[1:]
+    pred = sweep.sweep(result, draws, rates)
+    # no storativity: the horizon leaves the conductances as fitted
+    ref = uncertainty.predict(result, draws, rates)
+    np.testing.assert_allclose(pred.concentration, ref.concentration, rtol=1e-12)
+    table = sweep.sweep_table(pred, sweep.governing_limits(CATALOGUE["US-EPA"], pred.analytes),
+                              0.8, 0.9, result.zone_names)
+    assert len(table) == len(rates)
+    for col in ("rate", "nitrate_median", "nitrate_lower", "nitrate_upper",
+                "nitrate_p_exceed_margin", "nitrate_p_exceed_limit", "arsenic_p_exceed_limit",
+                "pumping_level_median", "pumping_level_deep", "share_Z1", "share_Z4"):
+        assert col in table.columns
+    assert np.all(table["nitrate_lower"] <= table["nitrate_median"])
+    assert np.all(table["nitrate_median"] <= table["nitrate_upper"])
+    assert np.all(table["nitrate_p_exceed_limit"] <= table["nitrate_p_exceed_margin"])
+    np.testing.assert_allclose(table[[f"share_{z}" for z in result.zone_names]].sum(axis=1), 1.0,
+                               rtol=0.05)
+
+
+def test_who_nitrate_nitrite_ratio_rule_closes_the_window():
+    # WHO GDWQ 4th ed.: nitrate/50 + nitrite/3 <= 1 (both as the ion). 8 mg/L nitrate as N is
+    # 35.41 mg/L NO3 (ratio 0.708); 0.5 mg/L nitrite as N is 1.642 mg/L NO2 (ratio 0.547):
+    # the sum 1.255 breaks the rule although each is under its own guideline value.
+    from blendq.chemistry.limits import RATIO_RULES, limit_set
+
+    rates = np.linspace(0.0, 100.0, 11)
+    conc = np.zeros((20, 11, 2))
+    conc[:, :, 0] = 8.0
+    conc[:, :, 1] = 0.5
+    pred = Prediction(rates, conc, np.zeros((20, 11)), np.zeros((20, 11, 1)),
+                      np.zeros((20, 11, 1)), ["nitrate", "nitrite"])
+    limits = {lim.analyte: lim for lim in limit_set("WHO")}
+    without = sweep.operating_window(pred, limits, 1.0, 0.05, 100.0, 0.0, 0.0, 1e9)
+    assert not without.empty
+    with_rule = sweep.operating_window(pred, limits, 1.0, 0.05, 100.0, 0.0, 0.0, 1e9,
+                                 ratio_rules=RATIO_RULES["WHO"])
+    assert with_rule.empty
+    assert "nitrite/3" in with_rule.reason_empty
+    # half the nitrite: 0.708 + 0.274 = 0.982 <= 1, the window opens again
+    pred.concentration[:, :, 1] = 0.25
+    assert not sweep.operating_window(pred, limits, 1.0, 0.05, 100.0, 0.0, 0.0, 1e9,
+                                ratio_rules=RATIO_RULES["WHO"]).empty
+
+
+def test_a_measured_exceedance_closes_the_rates_around_its_step():
+    # the model may miss a sample; a rate at which a sample broke margin x limit is not
+    # recommended on the strength of the model (common practice)
+    from blendq.well.synthetic import synthetic_project
+
+    g, h0 = np.array([150.0, 300.0]), np.array([-10.0, -11.0])
+    p = synthetic_project(g, h0, [20, 40], [25, 50], {"nitrate": np.array([6.0, 1.0])},
+                          [300.0, 800.0, 1500.0], 15.0)
+    p.samples.loc[p.samples["step"] == "S1", "value"] = 8.5  # above 0.8 x 10 mg/L
+    res = fit(p, FitOptions(fit_hydraulics=False))
+    limits = {"nitrate": Limit("nitrate", 10.0, "mg/L", "N", "test", "MCL", "40 CFR 141.62")}
+    rates = np.linspace(0.0, 2000.0, 201)
+    crit = sweep.measured_exceedances(res, limits, 0.8, rates)
+    assert len(crit) == 1 and "step S1" in crit[0].name
+    # S1 at 300 m3/d, nearest other step at 800: the rates within 250 of 300 fail
+    fails = rates[~crit[0].ok]
+    assert fails.min() == pytest.approx(50.0) and fails.max() == pytest.approx(550.0)
+    assert crit[0].ok[rates > 550].all() and crit[0].ok[rates < 50].all()
+    # no sample above the margin: no criterion
+    assert sweep.measured_exceedances(res, limits, 0.9, rates) == []

@@ -1,0 +1,234 @@
+"""Tests of blendq.fit.estimation: the joint (variable projection) fit of zone hydraulics and zone
+concentrations, on synthetic wells with known truth.
+
+Sources:
+- Golub, G.H. and Pereyra, V. (1973) SIAM J. Numer. Anal. 10(2): with the linear parameters
+  projected out, the nonlinear least-squares problem has the same minimiser; noise-free data
+  are then fitted exactly (zero residual at the true parameters).
+- Izbicki, J.A. and co-workers (USGS; Izbicki, Christensen and Hanson 1999, USGS Fact Sheet
+  196-99) depth-dependent sampling mass balance: with upward flows F_above, F_below and
+  concentrations C_above, C_below just above and below an inflowing zone,
+  c_zone = (F_above C_above - F_below C_below) / (F_above - F_below).
+- Censored (non-detect) results as inequalities (Helsel 2012, Statistics for Censored
+  Environmental Data, 2nd ed.): the fitted blend at a
+  non-detect step may not exceed the detection limit.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+import pandas as pd
+import pytest
+import synthetic_wells as sw
+
+from blendq.errors import ModelError
+from blendq.fit.estimation import FitOptions, build_problem, fit, residuals, row_weights
+from blendq.inputs.project import Settings
+from blendq.well import mixing
+
+
+def _check_recovery(result, c_rtol, h_rtol, c_atol=0.0):
+    truth = sw.true_values(result.analytes)
+    np.testing.assert_allclose(result.zone_values(), truth, rtol=c_rtol, atol=c_atol)
+    np.testing.assert_allclose(result.model.conductance, sw.G, rtol=h_rtol)
+    np.testing.assert_allclose(result.model.static_head, sw.H0, rtol=h_rtol)
+
+
+@pytest.mark.parametrize("intake", [25.0, 65.0])
+def test_noise_free_recovery_priors_at_truth(intake):
+    # exact data and priors at the truth: every residual is zero at the truth (Golub and
+    # Pereyra 1973: the projected problem keeps the minimiser), so the fit must return it
+    result = fit(sw.project(intake))
+    assert result.success
+    _check_recovery(result, c_rtol=1e-6, h_rtol=1e-4)
+    np.testing.assert_allclose(result.theta[-1], sw.WELL_LOSS, rtol=1e-4)  # Jacob's C
+    assert result.cost < 1e-12
+
+
+@pytest.mark.parametrize("intake", [25.0, 65.0])
+def test_noise_free_recovery_without_priors(intake):
+    # no zone properties at all (flat priors, start at G = 100 m^2/d and h0 = 0): the flow
+    # logs, levels and samples alone fix every parameter
+    result = fit(sw.without_priors(sw.project(intake)))
+    assert result.success
+    _check_recovery(result, c_rtol=1e-6, h_rtol=1e-4)
+    np.testing.assert_allclose(result.theta[-1], sw.WELL_LOSS, rtol=1e-4)
+
+
+def test_prior_pull_on_noise_free_data_shrinks_with_data_error():
+    # Priors 1.5 sd away from the truth (G x 1.5, heads 0.5 m high). The fit is a maximum a
+    # posteriori estimate, so exact data with a stated error still leave a pull towards the
+    # prior of about (data sd / prior sd)^2: with the default errors (5 % logs and lab, 0.05 m
+    # levels) it moves G by up to ~20 %; with errors 100 x smaller it must vanish (< 0.1 %).
+    def run(scale):
+        s = Settings(conductance_model="given", flowlog_relative_error=0.05 * scale,
+                     flowlog_absolute_error=2.7 * scale, level_error=0.05 * scale,
+                     default_relative_uncertainty=0.05 * scale)
+        p = sw.project(settings=s)
+        p.zones = [dataclasses.replace(z, conductance=z.conductance * 1.5,
+                                       static_level=z.static_level + 0.5) for z in p.zones]
+        r = fit(p)
+        return (np.abs(r.model.conductance / sw.G - 1).max(),
+                np.abs(r.zone_values() / sw.true_values(r.analytes) - 1).max())
+    g_coarse, c_coarse = run(1.0)
+    g_fine, c_fine = run(0.01)
+    assert g_fine < 1e-3 and c_fine < 1e-3
+    assert g_fine < g_coarse / 20 and c_fine < c_coarse / 20
+
+
+def test_fixed_hydraulics_keeps_priors_and_recovers_concentrations():
+    result = fit(sw.project(), FitOptions(fit_hydraulics=False))
+    assert result.message == "hydraulics fixed at prior values"
+    np.testing.assert_allclose(result.model.conductance, sw.G, rtol=1e-14)
+    np.testing.assert_allclose(result.zone_values(), sw.true_values(result.analytes), rtol=1e-9)
+
+
+def test_izbicki_mass_balance_from_depth_samples():
+    # Izbicki and co-workers (USGS): zone value from depth samples and a flow log during the
+    # same pumping; the log is run at the rate of step S5, samples just above and below Z2, Z3
+    p = sw.project(flowlog_rates=[0.0, sw.RATES[-1]])
+    logs = p.flowlogs[p.flowlogs["rate"] == sw.RATES[-1]].set_index("depth")["upward_flow"]
+    s = p.samples[(p.samples["step"] == "S5") & p.samples["depth"].notna()]
+    result = fit(p)
+    for analyte in sw.CONC:
+        conc_at = s[s["analyte"] == analyte].set_index("depth")["value"]
+        for zone, (d_above, d_below) in {1: (45.0, 65.0), 2: (65.0, 85.0)}.items():
+            f_a, f_b = logs[d_above], logs[d_below]
+            c_a, c_b = conc_at[d_above], conc_at[d_below]
+            c_zone = (f_a * c_a - f_b * c_b) / (f_a - f_b)
+            np.testing.assert_allclose(c_zone, sw.CONC[analyte][zone], rtol=1e-10)
+            j = result.analytes.index(analyte)
+            np.testing.assert_allclose(result.zone_values()[zone, j], c_zone, rtol=1e-6)
+        # bottom zone: nothing flows up from below it (F_below = 0), so c_zone = C_above
+        np.testing.assert_allclose(conc_at[85.0], sw.CONC[analyte][3], rtol=1e-10)
+
+
+def test_nondetect_fitted_blend_at_most_detection_limit():
+    # noise-free data, then step S2's arsenic becomes a non-detect with a limit 30 % below the
+    # true blend there: the censoring must bind, the blend sits on the limit, not above it
+    p = sw.project()
+    truth = fit(p, FitOptions(fit_hydraulics=False))
+    blend_s2 = truth.predict([sw.RATES[1]])[0, truth.analytes.index("arsenic")]
+    dl = 0.7 * blend_s2
+    row = (p.samples["analyte"] == "arsenic") & (p.samples["step"] == "S2") & p.samples["depth"].isna()
+    assert row.sum() == 1
+    p.samples.loc[row, ["value", "nondetect", "detection_limit", "qualifier"]] = [np.nan, True, dl, "U"]
+    for options in (FitOptions(fit_hydraulics=False), FitOptions()):
+        result = fit(p, options)
+        fitted = result.predict([sw.RATES[1]])[0, result.analytes.index("arsenic")]
+        assert fitted <= dl * (1 + 1e-9)
+        np.testing.assert_allclose(fitted, dl, rtol=1e-4)  # the constraint binds
+        assert np.all(np.isfinite(result.zone_values()))
+
+
+def test_nondetects_with_noise_never_exceed_their_limit():
+    # a detection limit that the nitrate blend crosses: the low-rate steps become non-detects
+    dl = 4.0
+    for seed in range(3):
+        p = sw.project(seed=seed, relative_error=0.05, absolute_error={"nitrate": 0.05},
+                       nondetect_limits={"nitrate": dl})
+        assert p.samples["nondetect"].any()
+        result = fit(p, FitOptions(fit_hydraulics=False))
+        d = result.problem.data["nitrate"]
+        ac = row_weights(result.model, d.cens_rate, d.cens_depth)
+        j = result.analytes.index("nitrate")
+        assert np.all(ac @ result.zone_values()[:, j] <= d.cens_limit * (1 + 1e-9))
+
+
+def test_thief_zone_at_lowest_step_weight_zero_and_others_recovered():
+    # Z4 (lowest head) takes water from the well at the lowest step: weight zero there
+    p = sw.project()
+    result = fit(p)
+    flows = result.model.state(sw.RATES).zone_flow
+    assert flows[0, 3] < 0  # a thief at step S1
+    a = row_weights(result.model, sw.RATES, np.full(len(sw.RATES), np.nan))
+    assert a[0, 3] == 0.0
+    np.testing.assert_allclose(a.sum(1), 1.0, rtol=1e-12)
+    np.testing.assert_allclose(result.zone_values()[:3], sw.true_values(result.analytes)[:3],
+                               rtol=1e-6)
+
+
+def test_row_weights_shapes_and_depth_rows():
+    p = sw.project()
+    result = fit(p, FitOptions(fit_hydraulics=False))
+    rates = np.array([500.0, 2000.0, 2000.0])
+    depth = np.array([np.nan, 65.0, 15.0])  # discharge, between Z2 and Z3, above the intake
+    a = row_weights(result.model, rates, depth)
+    assert a.shape == (3, 4)
+    np.testing.assert_allclose(a[0], result.model.weights(np.array([500.0]))[0], rtol=1e-12)
+    # 65 m at 2000 m^3/d: the upward stream carries Z3 and Z4 in proportion to their inflow
+    q = result.model.state(np.array([2000.0])).zone_flow[0]
+    np.testing.assert_allclose(a[1], [0, 0, q[2], q[3]] / (q[2] + q[3]), rtol=1e-12)
+    np.testing.assert_array_equal(a[2], 0.0)  # stagnant water above the intake says nothing
+    # batched parameters give a leading batch dimension
+    batch = result.model.with_changes(conductance=np.stack([sw.G, 2 * sw.G]),
+                                      static_head=np.stack([sw.H0, sw.H0]))
+    ab = row_weights(batch, rates, depth)
+    assert ab.shape == (2, 3, 4)
+    np.testing.assert_allclose(ab[0], a, rtol=1e-12)
+    # doubling every conductance leaves the shares at a rate unchanged only if heads are equal;
+    # here they are not, so the batch members differ
+    assert not np.allclose(ab[1, 0], a[0])
+
+
+def test_residuals_zero_at_truth_and_layout():
+    p = sw.project()
+    problem = build_problem(p)
+    theta = np.concatenate([np.log(sw.G), sw.H0, [sw.WELL_LOSS]])
+    r = residuals(problem, theta)
+    # priors (4 + 4) + log readings (2 x 5) + levels (5) + samples (2 analytes x 8)
+    assert r.shape == (8 + 10 + 5 + 16,)
+    np.testing.assert_allclose(r, 0.0, atol=1e-9)
+
+
+def test_predict_is_weights_times_zone_values():
+    result = fit(sw.project(), FitOptions(fit_hydraulics=False))
+    rates = np.linspace(100.0, 3000.0, 7)
+    pred = result.predict(rates)
+    assert pred.shape == (7, 2)
+    np.testing.assert_allclose(pred, result.model.weights(rates) @ result.zone_values(),
+                               rtol=1e-12)
+    # a blend lies between the smallest and the largest zone value (a flow-weighted mean)
+    zv = result.zone_values()
+    assert np.all(pred >= zv.min(0) - 1e-12) and np.all(pred <= zv.max(0) + 1e-12)
+
+
+def test_no_quality_data_is_a_model_error():
+    p = sw.project()
+    p.samples = p.samples.iloc[0:0]
+    with pytest.raises(ModelError, match="nothing to fit"):
+        fit(p)
+
+
+def test_sample_use_drops_and_reweights():
+    p = sw.project(relative_error=0.05, seed=3)
+    ids = p.samples["sample_id"].tolist()
+    use = pd.DataFrame(dict(sample_id=ids[:2], used=[False, True], sigma_factor=[1.0, 4.0]))
+    base = build_problem(p).data["nitrate"]
+    problem = build_problem(p, sample_use=use).data["nitrate"]
+    assert len(problem.value) == len(base.value) - 1
+    assert ids[0] not in set(problem.sample_id)
+    k = list(problem.sample_id).index(ids[1])
+    np.testing.assert_allclose(problem.sigma[k], 4 * base.sigma[list(base.sample_id).index(ids[1])],
+                               rtol=1e-12)
+
+
+def test_mixing_weights_of_depth_samples_match_synthetic_values():
+    # the rows the fit builds for depth samples reproduce the sampled values exactly
+    p = sw.project()
+    result = fit(p, FitOptions(fit_hydraulics=False))
+    d = result.problem.data["arsenic"]
+    a = row_weights(result.model, d.rate, d.depth)
+    np.testing.assert_allclose(a @ sw.CONC["arsenic"], d.value, rtol=1e-12)
+    flows = result.model.state(np.array([sw.RATES[-1]])).zone_flow[0]
+    comp = mixing.wellbore_composition(flows, result.model.geometry, [45.0], sw.CONC["arsenic"])
+    k = np.flatnonzero(d.depth == 45.0)[0]
+    np.testing.assert_allclose(d.value[k], comp[0, 0], rtol=1e-12)
+
+
+def test_synthetic_depth_sample_in_stagnant_water_is_refused():
+    # above the intake nothing flows: a sample there would be a NaN "result"
+    with pytest.raises(ModelError, match="15 m during step S5"):
+        sw.project(depth_samples=[("S5", 15.0)])

@@ -1,0 +1,139 @@
+"""Tests of blendq.inputs.project_file: project.toml keys, units, defaults and checks."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import pytest
+
+from blendq.chemistry.limits import CATALOGUE
+from blendq.errors import InputError
+from blendq.inputs.project import Settings
+from blendq.inputs.project_file import read_project_file
+
+FT = 0.3048  # m, exact (NIST SP 811 appendix B)
+US = Path(__file__).parents[1] / "data" / "projects" / "quillmarsh_us"
+
+HEAD = """\
+[project]
+name = "p"
+[well]
+name = "w"
+well_radius = "0.1 m"
+pump_intake_depth = "30 m"
+{well}
+[[zones]]
+name = "deep"
+top = "60 m"
+bottom = "70 m"
+[[zones]]
+name = "shallow"
+top = "40 m"
+bottom = "50 m"
+{zones}
+[tables]
+steps = "s.csv"
+{rest}
+"""
+
+
+def _project(tmp_path: Path, well: str = "", zones: str = "", rest: str = "") -> Path:
+    (tmp_path / "s.csv").write_text("step,rate [gpm]\n1,100\n", encoding="utf-8")
+    path = tmp_path / "project.toml"
+    path.write_text(HEAD.format(well=well, zones=zones, rest=rest), encoding="utf-8")
+    return path
+
+
+def test_reads_the_test_project():
+    head = read_project_file(US)
+    assert head.name.startswith("Quillmarsh 3")
+    assert set(head.tables) == {"steps", "samples", "flowlogs", "levels", "field"}
+    path, label = head.tables["samples"]
+    assert label == "lab/samples.csv" and path == US / "lab" / "samples.csv"
+    assert head.path == US / "project.toml"
+
+
+def test_zones_sorted_top_down_and_defaults(tmp_path):
+    head = read_project_file(_project(tmp_path))
+    assert [z.name for z in head.zones] == ["shallow", "deep"]
+    z = head.zones[0]
+    assert (z.skin, z.nonlinear_loss, z.storativity, z.static_level) == (0.0, 0.0, None, None)
+    assert head.settings == Settings()
+    assert len(head.limits) == len(CATALOGUE["US-EPA"])
+    assert head.well.rate_max == math.inf and head.well.submergence == 0.0
+
+
+def test_limit_forms(tmp_path):
+    rest = """
+[settings]
+limit_sets = "WHO"
+[[limits]]
+analyte = "nitrate"
+value = "10 mg/L as N"
+name = "district target"
+[[limits]]
+analyte = "Arsenic"
+value = "5 ug/L"
+"""
+    head = read_project_file(_project(tmp_path, rest=rest))
+    assert head.settings.limit_sets == ("WHO",)
+    nitrate, arsenic = head.limits[-2:]
+    assert (nitrate.basis, nitrate.authority, nitrate.kind) == ("N", "district target",
+                                                                "user limit")
+    assert nitrate.canonical() == pytest.approx(10.0, rel=1e-12)
+    assert (arsenic.analyte, arsenic.basis) == ("arsenic", "As")
+    assert arsenic.canonical() == pytest.approx(0.005, rel=1e-12)  # 5 ug/L = 0.005 mg/L
+
+
+def test_new_well_and_settings_fields(tmp_path):
+    rest = """
+[settings]
+flowlog_absolute_error = "1 gpm"
+level_error = "0.1 ft"
+default_relative_uncertainty = 0.1
+"""
+    head = read_project_file(_project(tmp_path, well='static_level = "-2 ft"', rest=rest))
+    assert head.well.static_level == pytest.approx(-2 * FT, rel=1e-12)  # flowing well
+    # 1 gpm = 231 in^3/min = 5.45099296896 m^3/d (US gallon = 231 in^3 exactly, NIST SP 811)
+    assert head.settings.flowlog_absolute_error == pytest.approx(5.45099296896, rel=1e-12)
+    assert head.settings.level_error == pytest.approx(0.1 * FT, rel=1e-12)
+    assert head.settings.default_relative_uncertainty == 0.1
+
+
+@pytest.mark.parametrize(("well", "zones", "rest", "field", "fragment"), [
+    ('rate_min = "300 gpm"\nrate_max = "200 gpm"', "", "", "well.rate_max", "is not above"),
+    ('radius_of_influence = "1 in"', "", "", "well.radius_of_influence", "is not larger"),
+    ("", "storativity = 1.5", "", "zones[2].storativity", "out of range"),
+    ("", 'skin = "2"', "", "zones[2].skin", "expected a plain number"),
+    ("", "", "[settings]\ndraws = 10.5", "settings.draws", "whole number"),
+    ("", "", "[settings]\nseed = -1", "settings.seed", "out of range"),
+    ("", "", '[settings]\nconductance_model = "magic"', "settings.conductance_model",
+     "is not one of"),
+    ("", "", "[settings]\nhorizon = 365", "settings.horizon", "has no unit"),
+    ("", "", "[settings]\nqa = 3", "settings.qa", "expected a [settings.qa] table"),
+    ("", "", "[extras]\nx = 1", "extras", "is not a table blendq knows"),
+    ("", "", '[[limits]]\nanalyte = "arsenic"\nvalue = "-1 ug/L"', "limits[1].value",
+     "is not a positive number"),
+    ("", "", '[[limits]]\nanalyte = "arsenic"\nvalue = "10 ft"', "limits[1].value",
+     "is not a concentration unit"),
+    ("", "", '[[scenarios]]\naction = "seal"', "scenarios[1].name", "needs a name"),
+    ("keep_above_screen = 1", "", "", "well.keep_above_screen", "true or false"),
+    ('name = 3', "", "", "well.name", "expected text"),
+])
+def test_bad_values_name_their_key(tmp_path, well, zones, rest, field, fragment):
+    text = HEAD.format(well=well, zones=zones, rest=rest)
+    if well.startswith("name"):
+        text = text.replace('name = "w"\n', "")
+    (tmp_path / "s.csv").write_text("step,rate [gpm]\n1,100\n", encoding="utf-8")
+    (tmp_path / "project.toml").write_text(text, encoding="utf-8")
+    with pytest.raises(InputError, match=fragment.replace("[", r"\[")) as info:
+        read_project_file(tmp_path)
+    assert info.value.file == "project.toml" and info.value.field == field
+    assert info.value.row is None
+
+
+def test_toml_with_byte_order_mark(tmp_path):
+    path = _project(tmp_path)
+    path.write_bytes(b"\xef\xbb\xbf" + path.read_bytes())
+    assert read_project_file(path).name == "p"

@@ -1,0 +1,51 @@
+"""Tests of blendq.inputs.template: the template project loads and is never written over."""
+
+from __future__ import annotations
+
+import pytest
+
+from blendq.errors import InputError
+from blendq.inputs.loader import load_project
+from blendq.inputs.template import TABLES, write_template
+
+FT = 0.3048  # m, exact (NIST SP 811 appendix B)
+GPM = 231 * 0.0254**3 * 1440  # m^3/d per gpm; US gallon = 231 in^3 exactly (NIST SP 811)
+
+
+def test_template_round_trip(tmp_path):
+    folder = tmp_path / "new well"
+    written = write_template(folder)
+    assert sorted(p.name for p in written) == sorted(["project.toml", *TABLES])
+    project = load_project(folder)
+    assert project.zone_names == ["Upper sand", "Lower gravel"]
+    assert project.well.pump_intake_depth == pytest.approx(160 * FT, rel=1e-12)
+    assert list(project.steps["rate"]) == pytest.approx([150 * GPM, 300 * GPM], rel=1e-12)
+    for table in (project.samples, project.flowlogs, project.levels, project.field_readings):
+        assert 1 <= len(table) <= 4
+    assert project.samples["nondetect"].tolist() == [False] * 4
+    assert project.limits[-1].authority == "Example water system"
+
+
+def test_template_refuses_to_overwrite(tmp_path):
+    write_template(tmp_path)
+    before = {p.name: p.read_bytes() for p in tmp_path.iterdir()}
+    with pytest.raises(InputError, match="will not overwrite") as info:
+        write_template(tmp_path)
+    assert info.value.file == "project.toml"
+    assert {p.name: p.read_bytes() for p in tmp_path.iterdir()} == before
+
+
+def test_one_existing_file_stops_all_writing(tmp_path):
+    (tmp_path / "samples.csv").write_text("mine\n", encoding="utf-8")
+    with pytest.raises(InputError) as info:
+        write_template(tmp_path)
+    assert info.value.file == "samples.csv"
+    assert [p.name for p in tmp_path.iterdir()] == ["samples.csv"]
+    assert (tmp_path / "samples.csv").read_text(encoding="utf-8") == "mine\n"
+
+
+def test_folder_that_is_a_file(tmp_path):
+    target = tmp_path / "project"
+    target.write_text("", encoding="utf-8")
+    with pytest.raises(InputError, match="is a file"):
+        write_template(target)

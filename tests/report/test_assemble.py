@@ -1,0 +1,157 @@
+"""Tests of the report folder (blendq.report.assemble with the HTML and PDF renderers), written through
+``blendq demo`` and ``blendq report`` on the invented demo well TH-2."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import re
+import shutil
+from html.parser import HTMLParser
+from pathlib import Path
+
+import pytest
+from typer.testing import CliRunner
+
+import blendq
+from blendq import CAUTIONS
+from blendq.cli import app
+
+DEMO = Path(blendq.__file__).parent / "data" / "demo"
+DRAWS = "200"
+SEED = "11"
+SECTIONS = ("decision", "cautions", "inputs", "zones", "window", "charts", "assumptions", "methods")
+
+runner = CliRunner(env={"COLUMNS": "200", "NO_COLOR": "1"})
+
+
+def run(*args):
+    return runner.invoke(app, [str(a) for a in args])
+
+
+class _Scan(HTMLParser):
+    """Collects element ids, resource links and the visible text of an HTML page."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.ids: set[str] = set()
+        self.links: list[str] = []
+        self.text: list[str] = []
+        self.tags: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        self.tags.append(tag)
+        for name, value in attrs:
+            if name in ("id", "data-key") and value:
+                self.ids.add(value)
+            if name in ("src", "href", "srcset", "action", "data") and value is not None:
+                self.links.append(value)
+
+    def handle_data(self, data):
+        self.text.append(data)
+
+
+def _scan(html: str) -> _Scan:
+    s = _Scan()
+    s.feed(html)
+    s.close()
+    return s
+
+
+def _pdf_pages(data: bytes) -> int:
+    # Page objects of a PDF carry "/Type /Page"; the page tree carries "/Type /Pages"
+    # (ISO 32000-1:2008, 7.7.3).
+    return len(re.findall(rb"/Type\s*/Page(?!s)", data))
+
+
+@pytest.fixture(scope="module")
+def demo_out(tmp_path_factory) -> Path:
+    out = tmp_path_factory.mktemp("demo") / "blendq-demo"
+    r = run("demo", "--out", out, "--draws", DRAWS, "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    assert r.stdout.startswith("Operate between")
+    return out
+
+
+def test_demo_writes_every_file(demo_out):
+    for name in ("report.html", "report.pdf", "summary.json"):
+        assert (demo_out / name).is_file(), name
+    tables = sorted(p.name for p in (demo_out / "tables").glob("*.csv"))
+    assert {"zones.csv", "sweep.csv", "hydraulics.csv", "residuals.csv", "qa_findings.csv"} <= set(tables)
+    pngs = sorted((demo_out / "charts").glob("*.png"))
+    assert len(pngs) >= 4
+    for png in pngs:
+        assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    rows = list(csv.DictReader(io.StringIO((demo_out / "tables" / "zones.csv").read_text())))
+    assert {r["zone"] for r in rows} == {"Upper sand", "Silty sand", "Gravel (clogged)", "Deep sand"}
+
+
+def test_html_sections_and_no_external_resource(demo_out):
+    html = (demo_out / "report.html").read_text(encoding="utf-8")
+    scan = _scan(html)
+    for key in SECTIONS:
+        assert key in scan.ids, key
+    assert scan.links, "expected at least the in-page contents links and embedded charts"
+    for link in scan.links:
+        low = link.strip().lower()
+        assert not low.startswith(("http:", "https:", "//", "file:", "ftp:")), link
+    assert not re.search(r"url\(\s*['\"]?(https?:|//|file:)", html, re.I)
+    assert "<script" not in html.lower()
+    text = re.sub(r"\s+", " ", " ".join(scan.text))
+    for caution in CAUTIONS:
+        assert caution in text, caution
+    assert "Operate between" in text
+    assert "TH-2" in text
+
+
+def test_pdf_has_pages(demo_out):
+    data = (demo_out / "report.pdf").read_bytes()
+    assert data.startswith(b"%PDF")
+    assert data.rstrip().endswith(b"%%EOF")
+    assert _pdf_pages(data) > 3
+
+
+def test_summary_json(demo_out):
+    data = json.loads((demo_out / "summary.json").read_text(encoding="utf-8"))
+    assert data["well"] == "TH-2"
+    assert data["draws"] == int(DRAWS)
+    assert data["seed"] == int(SEED)
+    assert data["cautions"] == list(CAUTIONS)
+    assert data["decision"].startswith("Operate between")
+    lo, hi = data["window_m3_per_day"][0]
+    assert lo <= data["recommended_rate_m3_per_day"] <= hi
+
+
+def test_same_seed_same_summary(demo_out, tmp_path):
+    out = tmp_path / "again"
+    r = run("demo", "--out", out, "--draws", DRAWS, "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    assert (out / "summary.json").read_bytes() == (demo_out / "summary.json").read_bytes()
+    assert (out / "tables" / "zones.csv").read_bytes() == (demo_out / "tables" / "zones.csv").read_bytes()
+
+
+def test_user_text_escaped_in_html(tmp_path):
+    project = tmp_path / "proj"
+    shutil.copytree(DEMO, project)
+    toml = project / "project.toml"
+    text = toml.read_text(encoding="utf-8")
+    evil = "<script>alert(1)</script>"
+    assert 'name = "TH-2"' in text
+    text = text.replace('name = "TH-2"', f'name = "TH-2 {evil}"', 1)
+    text = text.replace('location = "', f'location = "{evil} & <b>x</b> ', 1)
+    toml.write_text(text, encoding="utf-8")
+    out = tmp_path / "out"
+    r = run("report", project, "--out", out, "--draws", DRAWS, "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert evil not in html
+    assert "<b>x</b>" not in html
+    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in html
+    scan = _scan(html)
+    assert "script" not in scan.tags
+    assert "b" not in scan.tags
+    # the parsed text shows the name as the user wrote it
+    assert f"TH-2 {evil}" in " ".join(scan.text)
+    assert json.loads((out / "summary.json").read_text(encoding="utf-8"))["well"] == f"TH-2 {evil}"
+    assert (out / "report.pdf").read_bytes().startswith(b"%PDF")

@@ -1,0 +1,120 @@
+"""Tests of the scenario chart (blendq.report.charts.scenarios), inspected through its artists."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+pytest.importorskip("matplotlib")
+
+import blendq  # noqa: E402
+from blendq.decide import scenarios as sc  # noqa: E402
+from blendq.decide.analysis import analyse  # noqa: E402
+from blendq.errors import InputError  # noqa: E402
+from blendq.inputs.loader import load_project  # noqa: E402
+from blendq.report.charts.scenarios import (  # noqa: E402
+    SCENARIO_STYLES,
+    save_figure,
+    scenario_chart,
+    window_summary,
+)
+
+DEMO = Path(blendq.__file__).parent / "data" / "demo"
+# 1 US gallon = 3.785411784 L exactly (NIST SP 811, 2008, Appendix B.8): 1 gpm = 5.450992969 m^3/d
+M3D_PER_GPM = 3.785411784e-3 * 1440.0
+
+
+@pytest.fixture(scope="module")
+def setup():
+    a = analyse(load_project(DEMO), draws=100)
+    return a, sc.compare(a)
+
+
+def _lines(ax, prefix):
+    return [ln for ln in ax.get_lines() if (ln.get_gid() or "").startswith(prefix)]
+
+
+def test_one_line_per_scenario_per_analyte_each_styled_apart(setup):
+    a, comp = setup
+    fig = scenario_chart(comp, a.limits, "US")
+    axes = fig.axes
+    assert len(axes) == len(a.prediction.analytes) + 1
+    for ax in axes[:-1]:
+        lines = _lines(ax, "scenario ")
+        assert [ln.get_label() for ln in lines] == list(comp.table["scenario"])
+        for k, ln in enumerate(lines):
+            colour, _, marker = SCENARIO_STYLES[k]
+            assert ln.get_color() == colour
+            assert ln.get_marker() == (marker or "None")
+    # every pair of styles differs in colour, dash pattern and marker (grayscale-readable)
+    for m in range(3):
+        assert len({str(s[m]) for s in SCENARIO_STYLES}) == len(SCENARIO_STYLES)
+
+
+def test_median_lines_are_in_display_units(setup):
+    a, comp = setup
+    fig = scenario_chart(comp, a.limits, "US")
+    j = a.prediction.analytes.index("arsenic")
+    line = _lines(fig.axes[j], "scenario Base case")[0]
+    x, y = line.get_data()
+    k = 60
+    np.testing.assert_allclose(x[k], a.prediction.rates[k] / M3D_PER_GPM, rtol=1e-9)
+    # arsenic is shown in ug/L: 1 mg/L = 1000 ug/L
+    np.testing.assert_allclose(y[k], 1000 * np.median(a.prediction.concentration[:, k, j]),
+                               rtol=1e-9)
+    assert np.isnan(y[0])  # no discharge at zero rate
+
+
+def test_limit_and_margin_lines(setup):
+    a, comp = setup
+    fig = scenario_chart(comp, a.limits, "SI")
+    j = a.prediction.analytes.index("nitrate")
+    ax = fig.axes[j]
+    limit = _lines(ax, "limit")[0].get_ydata()[0]
+    margin = _lines(ax, "margin")[0].get_ydata()[0]
+    # US-EPA nitrate MCL 10 mg/L as N (40 CFR 141.62)
+    np.testing.assert_allclose(limit, 10.0, rtol=1e-12)
+    np.testing.assert_allclose(margin, 0.8 * 10.0, rtol=1e-12)
+
+
+def test_window_strip_bars_match_each_window(setup):
+    a, comp = setup
+    fig = scenario_chart(comp, a.limits, "SI")
+    strip = fig.axes[-1]
+    for res in comp.results:
+        bars = [c for c in strip.collections if c.get_gid() == f"window {res.scenario.name}"]
+        assert len(bars) == len(res.window.intervals)
+        for bar, (lo, hi, _, _) in zip(bars, res.window.intervals, strict=True):
+            x0, _, w, _ = bar.get_paths()[0].get_extents().bounds
+            np.testing.assert_allclose([x0, x0 + w], [lo, hi], rtol=1e-9)
+    labels = [t.get_text() for t in strip.get_yticklabels()]
+    assert labels[-1] == sc.BASE_NAME  # base case on top
+    assert len(_lines(strip, "recommended")) == sum(not r.window.empty for r in comp.results)
+
+
+def test_empty_window_is_said(setup):
+    a, comp = setup
+    empty = [r for r in comp.results if r.window.empty]
+    assert empty  # sealing the upper sand closes the demo's window
+    fig = scenario_chart(comp, a.limits, "US")
+    texts = [t.get_text() for t in fig.axes[-1].texts]
+    assert texts.count("no window") == len(empty)
+    assert any(line.endswith("no window") for line in window_summary(comp))
+
+
+def test_png_and_svg_written(setup, tmp_path):
+    a, comp = setup
+    paths = save_figure(scenario_chart(comp, a.limits), tmp_path / "options")
+    assert [p.suffix for p in paths] == [".png", ".svg"]
+    assert paths[0].read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert "<svg" in paths[1].read_text()
+
+
+def test_bad_units_and_empty_comparison(setup):
+    a, comp = setup
+    with pytest.raises(InputError, match="unit system"):
+        scenario_chart(comp, a.limits, "imperial")
+    with pytest.raises(InputError, match="no scenario"):
+        scenario_chart(sc.Comparison(comp.table.iloc[:0], []), a.limits)

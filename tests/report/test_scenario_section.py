@@ -1,0 +1,106 @@
+"""Tests of the scenario report section (blendq.report.scenario_section) and the compare command."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+from typer.testing import CliRunner
+
+import blendq
+from blendq.cli import app
+from blendq.decide import scenarios as sc
+from blendq.decide.analysis import analyse
+from blendq.inputs.loader import load_project
+from blendq.report.document import Figure, Paragraph, Table
+from blendq.report.scenario_section import (
+    comparison_display_table,
+    scenario_section,
+    widest_sentence,
+)
+
+DEMO = Path(blendq.__file__).parent / "data" / "demo"
+runner = CliRunner(env={"COLUMNS": "200", "NO_COLOR": "1"})
+
+
+@pytest.fixture(scope="module")
+def setup():
+    a = analyse(load_project(DEMO), draws=100)
+    return a, sc.compare(a)
+
+
+def test_section_has_sentence_table_and_chart(setup):
+    a, comp = setup
+    section = scenario_section(a, comp, "US")
+    assert section.key == "scenarios"
+    kinds = [type(b) for b in section.blocks]
+    assert kinds[0] is Paragraph and Table in kinds and Figure in kinds
+    k = int(np.argmax(comp.table["window_width"]))
+    assert f'"{comp.table["scenario"].iloc[k]}"' in section.blocks[0].text
+    table = next(b for b in section.blocks if isinstance(b, Table))
+    assert list(table.data["Option"]) == list(comp.table["scenario"])
+
+
+def test_display_table_units(setup):
+    a, comp = setup
+    us = comparison_display_table(comp, "US")
+    si = comparison_display_table(comp, "SI")
+    assert us["Recommended"].iloc[0].endswith("gpm")
+    assert si["Recommended"].iloc[0].endswith("m³/d")
+    # 600 gpm x 5.450992969 (m^3/d)/gpm = 3,271 m^3/d (NIST SP 811 gallon)
+    assert us["Recommended"].iloc[0] == "600 gpm"
+    assert si["Recommended"].iloc[0] == "3,271 m³/d"
+    assert us["Nitrate (as N) median"].iloc[0].endswith("mg/L")
+    assert us["Arsenic median"].iloc[0].endswith("ug/L")
+    empty = [i for i, r in enumerate(comp.results) if r.window.empty]
+    assert all(us["Operating window"].iloc[i] == "none" for i in empty)
+
+
+def test_widest_sentence_when_base_is_widest(setup):
+    a, comp = setup
+    only_base = sc.compare(a, [])
+    assert "None of the options widens" in widest_sentence(only_base)
+
+
+def test_cli_compare_text_and_json():
+    res = runner.invoke(app, ["compare", str(DEMO), "--draws", "60", "--seal", "Deep sand",
+                              "--blend", "300 gpm; nitrate=1 mg/L as N; arsenic=0.5 ug/L"])
+    assert res.exit_code == 0, res.output
+    assert "Base case (as tested)" in res.output
+    assert "Seal Deep sand" in res.output and "Blend 300 gpm" in res.output
+    assert "opens the widest operating window" in res.output
+    res = runner.invoke(app, ["compare", str(DEMO), "--draws", "60", "--json",
+                              "--redevelop", "Gravel (clogged):factor=2"])
+    assert res.exit_code == 0, res.output
+    rows = json.loads(res.output)["comparison"]
+    assert [r["scenario"] for r in rows][0] == sc.BASE_NAME
+    assert rows[-1]["scenario"] == "Redevelop Gravel (clogged) (factor 2)"
+    assert len(rows) == 1 + len(load_project(DEMO).scenarios) + 1
+
+
+@pytest.mark.parametrize("args, field", [
+    (["--redevelop", "Gravel:skin=0"], "--redevelop"),
+    (["--redevelop", "Gravel (clogged)"], "--redevelop"),
+    (["--redevelop", "Gravel (clogged):skin=zero"], "--redevelop"),
+    (["--blend", "nitrate=2 mg/L as N"], "--blend"),
+    (["--blend", "200 gpm; nitrate 2"], "--blend"),
+    (["--seal", "Nowhere"], "--seal"),
+])
+def test_cli_compare_bad_options(args, field):
+    res = runner.invoke(app, ["compare", str(DEMO), "--draws", "20", *args])
+    assert res.exit_code == 2
+    assert f"command line field {field}" in res.output
+
+
+def test_limited_by_names_both_ends(setup):
+    a, comp = setup
+    us = comparison_display_table(comp, "US")
+    for res, text in zip(comp.results, us["Window limited by"], strict=True):
+        w = res.window
+        if w.intervals:  # what closes the lowest end and what closes the highest end
+            assert text == f"low end: {w.intervals[0][2]}; high end: {w.intervals[-1][3]}"
+        else:
+            assert text == (w.reason_empty or "no rate meets every criterion")
+    assert list(comp.table["lower_end_set_by"][:1]) == [comp.results[0].window.intervals[0][2]]
