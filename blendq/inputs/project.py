@@ -190,6 +190,15 @@ class Settings:
         Error of a measured water level [m] (1 sd).
     default_relative_uncertainty : float
         Lab uncertainty (1 sd, relative) used where a result has none.
+    detection_limit_sigma_fraction : float
+        Floor of the uncertainty of a result without a stated one, as a fraction of its
+        detection limit [-] (common practice: a detection limit sits about three standard
+        deviations of low-level replicates above zero, so half the limit is a cautious floor).
+        A stated uncertainty is used as stated.
+    measured_exceedance_rate_tolerance : float
+        Relative band [-] around a step's rate that a discharge sample above margin x limit
+        closes, whatever the model says (common practice: a step's rate is held and metered
+        to within a few percent).
     qa : dict
         Options of the lab and field review.
     """
@@ -209,6 +218,8 @@ class Settings:
     flowlog_absolute_error: float = 2.7
     level_error: float = 0.05
     default_relative_uncertainty: float = 0.05
+    detection_limit_sigma_fraction: float = 0.5
+    measured_exceedance_rate_tolerance: float = 0.05
     qa: dict = field(default_factory=dict)
 
 

@@ -302,6 +302,12 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
         level_error=s.quantity("level_error", "length", d.level_error, sign="nonnegative"),
         default_relative_uncertainty=float(s.number("default_relative_uncertainty",
                                                     d.default_relative_uncertainty, 0.0, 1.0)),
+        detection_limit_sigma_fraction=float(s.number("detection_limit_sigma_fraction",
+                                                      d.detection_limit_sigma_fraction, 0.0,
+                                                      1.0)),
+        measured_exceedance_rate_tolerance=float(s.number(
+            "measured_exceedance_rate_tolerance", d.measured_exceedance_rate_tolerance, 0.0,
+            0.5)),
         qa=dict(qa),
     )
     s.done()

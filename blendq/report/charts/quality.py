@@ -184,7 +184,8 @@ def _step_samples(project: Project | None, analyte: str, interval: float) -> pd.
     half = np.zeros(len(s))
     det = ~nd & np.isfinite(value)
     if det.any():
-        sigma = lab_sigma(value[det], unc[det], dl, project.settings.default_relative_uncertainty)
+        sigma = lab_sigma(value[det], unc[det], dl[det], project.settings.default_relative_uncertainty,
+                          project.settings.detection_limit_sigma_fraction)
         half[det] = interval_z(interval) * sigma
     value = np.where(nd, dl, value)
     out = pd.DataFrame({"rate": rate.to_numpy(float), "value": value, "half": half,
