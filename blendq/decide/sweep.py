@@ -230,33 +230,53 @@ def applicable_ratio_rules(limit_sets, analytes) -> tuple[list, list[str]]:
 
 
 def measured_exceedances(fit: FitResult, limits: dict[str, Limit], margin: float,
-                         rates) -> list[Criterion]:
-    """Rates near a step whose discharge sample exceeded margin x limit.
+                         rates, tolerance: float | None = None) -> list[Criterion]:
+    """Rates at which a discharge sample measured above margin x limit.
 
-    A measured exceedance overrides the model near the rate where it was measured: the rates
-    closer to that step's rate than half the distance to the neighbouring step rates (10 % of
-    the rate for a lone step) fail, whatever the fitted blend says there (common practice: a
-    rate at which a sample broke the target is not recommended on the strength of a model).
+    A measurement speaks for the rate at which it was taken, within that rate's own tolerance
+    (a step's rate is held and metered to within a few percent): the rates within
+    ``tolerance`` x the step's rate of it fail, whatever the fitted blend says there, and so do
+    the two grid rates that bracket the step's rate, so that the measured rate can never lie
+    inside a reported window. Every other rate is judged by the model, which is fitted to the
+    same sample (docs/methods.md, section 8; common practice).
+
+    Parameters
+    ----------
+    fit : FitResult
+    limits : dict analyte -> Limit
+    margin : float
+        Fraction of each limit [-].
+    rates : array_like (n_rates,)
+        Rate grid [m^3/d].
+    tolerance : float, optional
+        Relative band around the step's rate [-] (default:
+        ``settings.measured_exceedance_rate_tolerance``).
+
+    Returns
+    -------
+    list of Criterion
+        One "quality" criterion per analyte with a measured exceedance.
     """
     rates = np.asarray(rates, float)
+    if tolerance is None:
+        tolerance = fit.problem.project.settings.measured_exceedance_rate_tolerance
     out = []
     for analyte, d in fit.problem.data.items():
         if analyte not in limits:
             continue
         thr = margin * limits[analyte].canonical()
-        discharge = ~np.isfinite(d.depth)
-        # every step sampled at the discharge, non-detects included, bounds the neighbourhood
-        step_rates = np.unique(np.concatenate([d.rate[discharge],
-                                               d.cens_rate[~np.isfinite(d.cens_depth)]]))
-        bad = np.unique(d.rate[discharge & (d.value > thr)])
-        if len(bad) == 0:
+        above = ~np.isfinite(d.depth) & (d.value > thr)  # discharge samples only
+        if not above.any():
             continue
         ok = np.ones(len(rates), bool)
-        for q in bad:
-            others = step_rates[step_rates != q]
-            half = 0.5 * np.min(np.abs(others - q)) if len(others) else 0.1 * q
-            ok &= np.abs(rates - q) > half
-        steps = ", ".join(sorted(set(d.step[discharge & (d.value > thr)].astype(str))))
+        for q in np.unique(d.rate[above]):
+            ok &= np.abs(rates - q) > tolerance * q
+            below, beyond = rates[rates <= q], rates[rates >= q]
+            if len(below):
+                ok &= rates != below.max()
+            if len(beyond):
+                ok &= rates != beyond.min()
+        steps = ", ".join(sorted(set(d.step[above].astype(str))))
         out.append(Criterion(f"{analyte} measured above {margin:g} x limit (step {steps})", ok,
                              "quality"))
     return out

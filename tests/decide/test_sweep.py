@@ -185,23 +185,71 @@ def test_who_nitrate_nitrite_ratio_rule_closes_the_window():
                                 ratio_rules=RATIO_RULES["WHO"]).empty
 
 
-def test_a_measured_exceedance_closes_the_rates_around_its_step():
-    # the model may miss a sample; a rate at which a sample broke margin x limit is not
-    # recommended on the strength of the model (common practice)
+def _two_zone_fit(nitrate, relative_error=0.05, s1_value=None):
+    from blendq.inputs.project import Settings
     from blendq.well.synthetic import synthetic_project
 
     g, h0 = np.array([150.0, 300.0]), np.array([-10.0, -11.0])
-    p = synthetic_project(g, h0, [20, 40], [25, 50], {"nitrate": np.array([6.0, 1.0])},
-                          [300.0, 800.0, 1500.0], 15.0)
-    p.samples.loc[p.samples["step"] == "S1", "value"] = 8.5  # above 0.8 x 10 mg/L
-    res = fit(p, FitOptions(fit_hydraulics=False))
-    limits = {"nitrate": Limit("nitrate", 10.0, "mg/L", "N", "test", "MCL", "40 CFR 141.62")}
-    rates = np.linspace(0.0, 2000.0, 201)
+    p = synthetic_project(g, h0, [20, 40], [25, 50], {"nitrate": np.asarray(nitrate, float)},
+                          [300.0, 800.0, 1500.0], 15.0,
+                          settings=Settings(conductance_model="given",
+                                            default_relative_uncertainty=relative_error))
+    if s1_value is not None:
+        p.samples.loc[p.samples["step"] == "S1", "value"] = s1_value
+    return fit(p, FitOptions(fit_hydraulics=False))
+
+
+def test_a_measured_exceedance_closes_its_own_rate_whatever_the_model_says():
+    # the model may miss a sample; the rate at which a sample broke margin x limit is never
+    # recommended on the strength of the model (a safety rule, common practice)
+    res = _two_zone_fit([6.0, 1.0], s1_value=8.5)  # S1 at 300 m3/d, above 0.8 x 10 mg/L
+    limits = {"nitrate": NITRATE_MCL}
+    rates = np.linspace(0.0, 2000.0, 201)  # every 10 m3/d
     crit = sweep.measured_exceedances(res, limits, 0.8, rates)
     assert len(crit) == 1 and "step S1" in crit[0].name
-    # S1 at 300 m3/d, nearest other step at 800: the rates within 250 of 300 fail
-    fails = rates[~crit[0].ok]
-    assert fails.min() == pytest.approx(50.0) and fails.max() == pytest.approx(550.0)
-    assert crit[0].ok[rates > 550].all() and crit[0].ok[rates < 50].all()
+    # the rates within 5 % (the default tolerance, 15 m3/d) of 300 fail: 290, 300 and 310
+    np.testing.assert_allclose(rates[~crit[0].ok], [290.0, 300.0, 310.0], atol=1e-9)
+    # a prediction that calls every rate compliant (5 mg/L): 300 m3/d stays out of the window
+    conc = np.full((20, len(rates), 1), 5.0)
+    pred = Prediction(rates, conc, np.zeros((20, len(rates))), np.zeros((20, len(rates), 2)),
+                      np.zeros((20, len(rates), 2)), ["nitrate"])
+    model_only = sweep.operating_window(pred, limits, 0.8, 0.05, 100.0, 0.0, 0.0, 1e9)
+    assert model_only.ok[1:].all()
+    w = sweep.operating_window(pred, limits, 0.8, 0.05, 100.0, 0.0, 0.0, 1e9,
+                               extra_criteria=crit)
+    assert not w.ok[30]
+    assert not any(lo <= 300.0 <= hi for lo, hi, _, _ in w.intervals)
+    # a grid without 300 m3/d and no tolerance: the two rates bracketing it fail, so the
+    # measured rate cannot fall inside a reported interval
+    coarse = np.arange(0.0, 2000.0, 40.0)
+    crit = sweep.measured_exceedances(res, limits, 0.8, coarse, tolerance=0.0)
+    np.testing.assert_allclose(coarse[~crit[0].ok], [280.0, 320.0], atol=1e-9)
+    # a wider band is a setting
+    crit = sweep.measured_exceedances(res, limits, 0.8, rates, tolerance=0.2)
+    np.testing.assert_allclose(rates[~crit[0].ok], np.arange(240.0, 361.0, 10.0), atol=1e-9)
     # no sample above the margin: no criterion
     assert sweep.measured_exceedances(res, limits, 0.9, rates) == []
+
+
+def test_a_measured_exceedance_leaves_the_rates_the_model_shows_compliant():
+    # nitrate 13 and 2 mg/L in the two zones: S1 (300 m3/d) measured 9.33 mg/L, above 8;
+    # the fit reproduces it and, from the three samples together, shows the blend below
+    # 8 mg/L with 95 % probability from 490 m3/d on
+    res = _two_zone_fit([13.0, 2.0], relative_error=0.01)
+    np.testing.assert_allclose(res.problem.data["nitrate"].value[0], 9.0 + 1.0 / 3.0,
+                               rtol=1e-9)
+    limits = {"nitrate": NITRATE_MCL}
+    rates = np.linspace(0.0, 2000.0, 201)
+    pred = uncertainty.predict(res, uncertainty.monte_carlo(res, 200, 1), rates)
+    model_only = sweep.operating_window(pred, limits, 0.8, 0.05, 100.0, 0.0, 0.0, 1e9)
+    crit = sweep.measured_exceedances(res, limits, 0.8, rates)
+    w = sweep.operating_window(pred, limits, 0.8, 0.05, 100.0, 0.0, 0.0, 1e9,
+                               extra_criteria=crit)
+    # the model's low end (490 m3/d with these draws) lies beyond the measured rate's 5 %
+    # band but within 250 m3/d of it: the earlier rule (every rate within half the distance
+    # to S2 at 800 m3/d) closed it and pinned the low end at 560; the model's end now stands
+    low = model_only.intervals[0][0]
+    assert 315.0 < low <= 550.0
+    assert w.intervals[0][0] == pytest.approx(low)
+    np.testing.assert_array_equal(w.ok, model_only.ok)
+    assert not crit[0].ok[rates == 300.0].all()
