@@ -167,6 +167,35 @@ def test_inflow_rates_without_unit():
     assert "unit" in line
 
 
+NO_T = Path(__file__).parent / "data" / "projects" / "quillmarsh_no_transmissivity"
+
+
+def test_inflow_assumes_no_transmissivity():
+    # the zone flows of `inflow` rest on zone properties alone: none given, none assumed
+    r = run("inflow", NO_T, "--rates", "200,400 gpm")
+    _one_error_line(r, "project.toml", "zones[1].transmissivity", 'zone "Upper"')
+    assert r.stdout == ""
+
+
+def test_fit_without_transmissivity_says_the_flow_logs_decide():
+    r = run("fit", NO_T, "--draws", DRAWS)
+    assert r.exit_code == 0, r.output
+    assert "Note: No zone transmissivity, conductivity or conductance is given" in r.stdout
+    assert "start value with no weight" in r.stdout
+
+
+@pytest.mark.parametrize("command", ["fit", "window"])
+def test_no_transmissivity_and_no_flow_log_is_an_input_error(tmp_path, command):
+    project = tmp_path / "no-t"
+    shutil.copytree(NO_T, project)
+    toml = project / "project.toml"
+    toml.write_text("\n".join(ln for ln in toml.read_text().splitlines()
+                              if not ln.startswith("flowlogs =")) + "\n")
+    r = run(command, project, "--draws", DRAWS)
+    line = _one_error_line(r, "project.toml", "zones[1].transmissivity", "flow log")
+    assert "assumes none" in line
+
+
 def test_readme_drawdown():
     r = run("drawdown", DEMO)
     assert r.exit_code == 0, r.output

@@ -17,6 +17,7 @@ from blendq.decide.levelcheck import LevelCheck, check_levels
 from blendq.errors import ModelError
 from blendq.fit import diagnostics, estimation, uncertainty
 from blendq.inputs.project import Project
+from blendq.well.model import NO_PRIOR_SOURCE, START_CONDUCTANCE
 
 
 @dataclass
@@ -101,6 +102,10 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     if (hyd["conductance_from"] == "prior").any():
         notes.append("Some zone conductances rest on the zone properties (priors) rather than "
                      "on the test data; zone shares carry that uncertainty.")
+    if (hyd["prior_source"] == NO_PRIOR_SOURCE).any():
+        notes.append(f"No zone transmissivity, conductivity or conductance is given: the zone "
+                     f"conductances rest on the flow logs and levels alone (the fit starts from "
+                     f"{START_CONDUCTANCE:g} m2/d per zone, a start value with no weight).")
     if project.flowlogs.empty:
         notes.append("No flow log: drawdown alone identifies only the total conductance and "
                      "the well loss; zone shares come from zone properties (priors).")

@@ -23,8 +23,16 @@ from blendq.well.model import (
 
 def inflow_table(project: Project, rates, horizon: float | None = None) -> pd.DataFrame:
     """Zone flows, discharge shares and pumping level at each rate from the zone properties
-    (no fitting): the quick look at a well before any lab result."""
-    prior = prior_hydraulics(project)
+    (no fitting): the quick look at a well before any lab result.
+
+    Raises
+    ------
+    InputError
+        When a zone lacks the properties its conductance model needs (nothing is assumed).
+    ModelError
+        When a zone has no static level.
+    """
+    prior = prior_hydraulics(project, need_properties=True)
     if not np.all(np.isfinite(prior.static_head_sd)):
         missing = [z.name for z, sd in zip(project.zones, prior.static_head_sd, strict=False) if not np.isfinite(sd)]
         raise ModelError(f"zones without a static level: {', '.join(missing)} (give zone "

@@ -29,6 +29,11 @@ PRIOR_LOG_CONDUCTANCE_SD = np.log(3.0)
 PRIOR_HEAD_SD_MEASURED = 0.3
 #: spread of a zone static level taken from the well's composite level [m] (common practice)
 PRIOR_HEAD_SD_ASSUMED = 3.0
+#: start value of every zone conductance [m^2/d] when no zone has usable properties and flow
+#: logs at a pumped rate decide the zone shares: where the fit starts, with no prior weight
+START_CONDUCTANCE = 100.0
+#: how the hydraulics table labels a zone whose conductance has no prior (flow logs decide)
+NO_PRIOR_SOURCE = "none: no zone properties; shares from the flow logs"
 
 
 @dataclass(frozen=True)
@@ -110,8 +115,9 @@ def property_conductance(project: Project, time: float | None, model: str | None
     model = model or project.settings.conductance_model
     out = []
     rw = project.well.well_radius
+    label = project_file_name(project)
     for i, z in enumerate(project.zones):
-        where = dict(file="project.toml", field=f"zones[{i + 1}]")
+        where = dict(file=label, field=f"zones[{i + 1}]")
         use = model
         if model in ("auto", "flowlog"):
             if z.conductance is not None:
@@ -122,23 +128,24 @@ def property_conductance(project: Project, time: float | None, model: str | None
                 use = "steady"
         if use == "given":
             if z.conductance is None:
-                raise InputError(f'zone "{z.name}" has no conductance', **where)
+                raise InputError(f'zone "{z.name}" has no conductance', file=label,
+                                 field=f"zones[{i + 1}].conductance")
             out.append(z.conductance)
             continue
         t = z.zone_transmissivity
         if t is None:
             raise InputError(f'zone "{z.name}" needs transmissivity, conductivity or conductance',
-                             **where)
+                             file=label, field=f"zones[{i + 1}].transmissivity")
         if use == "transient":
             if z.storativity is None:
                 raise InputError(f'zone "{z.name}" needs storativity for transient conductance',
-                                 **where)
+                                 file=label, field=f"zones[{i + 1}].storativity")
             out.append(float(hydraulics.cooper_jacob_conductance(t, z.storativity, time, rw, z.skin)))
         else:
             r = project.well.radius_of_influence
             if r is None:
                 raise InputError("steady conductances need well.radius_of_influence (or zone "
-                                 "storativity for transient ones)", file="project.toml",
+                                 "storativity for transient ones)", file=label,
                                  field="well.radius_of_influence")
             out.append(float(hydraulics.thiem_conductance(t, r, rw, z.skin)))
     return np.array(out)
@@ -185,23 +192,61 @@ class HydraulicPrior:
     source: list[str]
 
 
-def prior_hydraulics(project: Project) -> HydraulicPrior:
-    """Prior zone conductances and static heads from the project's zone properties."""
+def project_file_name(project: Project) -> str:
+    """Name of the project file (for error messages)."""
+    return project.files.get("project", "project.toml") if project.files else "project.toml"
+
+
+def shares_from_flow_logs(project: Project) -> bool:
+    """True when the project has a flow log at a pumped rate, which measures the zone shares
+    at that rate (two-condition method, docs/methods.md, section 4)."""
+    logs = project.flowlogs
+    if logs is None or logs.empty:
+        return False
+    return bool((np.asarray(logs["rate"], float) > 0).any())
+
+
+def prior_hydraulics(project: Project, need_properties: bool = False) -> HydraulicPrior:
+    """Prior zone conductances and static heads from the project's zone properties.
+
+    No command invents hydraulics. When a zone lacks the properties its conductance model needs
+    (transmissivity or conductivity, storativity, radius of influence, a given conductance),
+    this is an input error, except where flow logs at a pumped rate decide the zone shares and
+    properties are not required: then every conductance gets a flat prior (no weight) from the
+    start value :data:`START_CONDUCTANCE`, and ``source`` says so (:data:`NO_PRIOR_SOURCE`).
+
+    Parameters
+    ----------
+    project : Project
+    need_properties : bool
+        True for uses that rest on the properties alone (``blendq inflow``): a missing property
+        is an error even with flow logs.
+
+    Raises
+    ------
+    InputError
+        Naming the project file and the zone's missing field.
+    """
     n = len(project.zones)
     t_test = elapsed_test_time(project)
-    logg = np.zeros(n)
-    logg_sd = np.full(n, np.inf)
-    src = []
     try:
         g = property_conductance(project, t_test)
         logg = np.log(g)
         logg_sd = np.where([z.conductance is not None for z in project.zones],
                            0.25 * PRIOR_LOG_CONDUCTANCE_SD, PRIOR_LOG_CONDUCTANCE_SD)
         src = ["zone properties"] * n
-    except InputError:
-        # no usable properties: a flat prior with equal shares as a starting point
-        logg = np.log(np.full(n, 100.0))
-        src = ["none (start value only)"] * n
+    except InputError as err:
+        if need_properties:
+            raise InputError(f"{err.message}: zone flows from the zone properties alone need "
+                             "it (blendq assumes none)", file=err.file, field=err.field) from None
+        if not shares_from_flow_logs(project):
+            raise InputError(f"{err.message}: without a flow log at a pumped rate the zone "
+                             "shares rest on the zone properties (blendq assumes none)",
+                             file=err.file, field=err.field) from None
+        # the flow logs decide the shares: a flat prior, labelled, from a start value
+        logg = np.log(np.full(n, START_CONDUCTANCE))
+        logg_sd = np.full(n, np.inf)
+        src = [NO_PRIOR_SOURCE] * n
     well_level = project.well.static_level
     heads = []
     head_sd = []
