@@ -117,7 +117,6 @@ def property_conductance(project: Project, time: float | None, model: str | None
     rw = project.well.well_radius
     label = project_file_name(project)
     for i, z in enumerate(project.zones):
-        where = dict(file=label, field=f"zones[{i + 1}]")
         use = model
         if model in ("auto", "flowlog"):
             if z.conductance is not None:
