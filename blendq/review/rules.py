@@ -345,7 +345,10 @@ def check_duplicates(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> 
     sampling plans, common practice). When both values are below
     ``duplicate_near_limit_factor`` (default 5) times the detection limit, the absolute
     difference is compared with the detection limit instead (common practice). One non-detect:
-    a warning when the detected value exceeds that factor times the limit.
+    a warning when the detected value exceeds that factor times the limit. A duplicate whose
+    primary was taken at another step or depth is not a duplicate of that step: a warning,
+    and the fit keeps both as separate samples (a true duplicate pair is fitted as one
+    observation, :func:`blendq.fit.observations.combine_duplicates`).
     """
     out = Outcome()
     dups = samples[samples["duplicate_of"] != ""]
@@ -372,6 +375,15 @@ def check_duplicates(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> 
         prim = match.iloc[0]
         name = get_analyte(dup["analyte"]).name
         pair = f"{primary_id} / {dup['sample_id']} (row {row_number(dup['source_row'])})"
+        depths = (prim["depth"], dup["depth"])
+        same_depth = (all(np.isnan(depths)) or
+                      bool(np.isclose(depths[0], depths[1], rtol=0.0, atol=1e-6)))
+        if prim["step_key"] != dup["step_key"] or not same_depth:
+            out.add("warning", "duplicate_step",
+                    f"{name} duplicate pair {pair}: taken at another step or depth than its "
+                    "primary; fitted as two separate samples, not as one observation",
+                    SRC_COMMON, dup)
+            continue
         dl = np.nanmax([prim["detection_limit"], dup["detection_limit"], -np.inf])
         if prim["nondetect"] and dup["nondetect"]:
             continue

@@ -279,6 +279,17 @@ def test_duplicate_with_one_nondetect_and_unmatched_duplicate():
     assert rules_of(result, "S3D") == {"duplicate_unmatched": "warning"}
 
 
+def test_duplicate_of_another_step_is_flagged_not_paired():
+    # a "duplicate" of a sample taken at another step (or depth) is no duplicate of its step
+    rows = [sample("S1", 1, "nitrate", 10.0), sample("S2D", 2, "nitrate", 20.0, duplicate_of="S1"),
+            sample("S3", 3, "nitrate", 9.0), sample("S3Z", 3, "nitrate", 15.0, depth=40.0,
+                                                     duplicate_of="S3")]
+    result = review(make_project(rows))
+    assert rules_of(result, "S2D") == {"duplicate_step": "warning"}
+    assert rules_of(result, "S3Z") == {"duplicate_step": "warning"}
+    assert "duplicate_rpd" not in rules_of(result)  # 10 / 20 is not compared as a pair
+
+
 def test_no_duplicates_is_skipped():
     result = review(make_project([sample("S1", 1, "arsenic", 0.004)]))
     assert skipped_rules(result)["duplicate_rpd"] == "no duplicate samples"
