@@ -54,6 +54,14 @@ def test_stated_uncertainty_used_as_stated():
                                [1e-6, 0.5], rtol=1e-12)
 
 
+@settings(max_examples=200, deadline=None)
+@given(st.lists(st.tuples(st.floats(0.0, 1e3), st.floats(1e-9, 1e2), st.floats(1e-6, 1e2)),
+                min_size=1, max_size=6), st.floats(0.0, 1.0))
+def test_a_stated_uncertainty_is_never_changed(rows, fraction):
+    values, stated, dl = (np.array(col) for col in zip(*rows, strict=True))
+    np.testing.assert_array_equal(lab_sigma(values, stated, dl, 0.05, fraction), stated)
+
+
 def test_quality_data_keeps_stated_uncertainty_near_the_detection_limit():
     p = sw.project(nondetect_limits={"arsenic": 0.006})
     ars = p.samples[(p.samples["analyte"] == "arsenic") & ~p.samples["nondetect"].astype(bool)]
