@@ -9,7 +9,7 @@ scenarios are differences of the changes, not of sampling noise.
 Scenario entries (``[[scenarios]]`` in project.toml; see ``docs/scenarios.md``)::
 
     name = "Seal the upper sand and blend"
-    seal = ["Upper sand"]                            # conductance 0
+    seal = ["Upper sand"]              # conductance x settings.seal_leakage (gravel pack)
     redevelop = { zone = "Gravel (clogged)", skin = 0 }  # or factor = 2; or a list of these
     intake = "140 ft"                                # new pump intake depth
     lower_heads = "10 ft"                            # every static head lowered (drought)
