@@ -454,7 +454,11 @@ def compare_cmd(
                        for c in df.columns if c.endswith(" median") and r[c] != "-"]
             if quality:
                 typer.echo("  at the recommended rate: " + "; ".join(quality))
-            typer.echo(f"  window limited by: {r['Window limited by']}")
+            if r["What would tell"]:
+                typer.echo(f"  {r['Window limited by']}")
+                typer.echo(f"  what would tell: {r['What would tell']}")
+            else:
+                typer.echo(f"  window limited by: {r['Window limited by']}")
         typer.echo(widest_sentence(comp, u))
         typer.echo(_caution_line())
 

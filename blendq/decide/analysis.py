@@ -15,7 +15,7 @@ from blendq.chemistry.limits import Limit
 from blendq.decide import sweep
 from blendq.decide.levelcheck import LevelCheck, check_levels
 from blendq.errors import ModelError
-from blendq.fit import diagnostics, estimation, uncertainty
+from blendq.fit import diagnostics, estimation, uncertainty, unresolved
 from blendq.inputs.project import Project
 from blendq.well.model import NO_PRIOR_SOURCE, START_CONDUCTANCE
 
@@ -89,6 +89,9 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     s = project.settings
     d = uncertainty.monte_carlo(fit, s.draws if draws is None else draws,
                                 s.seed if seed is None else seed, progress=progress)
+    # zone values the data cannot pin spread over what the data allow (every draw still
+    # reproduces the samples); the table's intervals then come from those draws
+    d = unresolved.redraw_unresolved(fit, d, diagnostics.zone_table(fit, d, s.interval))
     zones = diagnostics.zone_table(fit, d, s.interval)
     pred = sweep.sweep(fit, d)
     levels = check_levels(fit, d, pred, s.exceedance_probability, s.horizon)
@@ -149,9 +152,35 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
             f"plus submergence).{caveat}")
 
 
+def richest_source(zones: pd.DataFrame, analyte: str) -> str | None:
+    """The zone that is the richest source of an analyte, or None when the data cannot say.
+
+    A zone qualifies only when the data resolve it (verdict "resolved" or "weakly resolved")
+    and the lower end of its interval lies above the upper end of every other zone's interval
+    (or, for a zone not resolved, above the top of its data-allowed range).
+    """
+    z = zones[zones["analyte"] == analyte]
+    if z.empty:
+        return None
+    shown = z["verdict"] != "not resolved"
+    top = z["upper"].where(shown, z["range_high"]).astype(float)
+    for k in z.index[shown]:
+        others = top.drop(k)
+        if len(others) and float(z.loc[k, "lower"]) > float(others.max()):
+            return str(z.loc[k, "zone"])
+    return None
+
+
 def window_options(a: Analysis, units: str = "US") -> list[str]:
     """Options that could open (or widen) the window, from what binds (planning prompts for
-    the scenario comparison, not results)."""
+    the scenario comparison, not results).
+
+    A zone is named as the richest source of an analyte only where the data resolve it and its
+    interval lies above the others' (:func:`richest_source`); otherwise the prompt names the
+    measurements that would find the source (:func:`blendq.fit.unresolved.what_would_tell`).
+    """
+    from blendq.units import format_quantity
+
     out = []
     rates = a.window.rates
     for crit in a.window.criteria:
@@ -161,20 +190,25 @@ def window_options(a: Analysis, units: str = "US") -> list[str]:
             analyte = crit.name.split(" ")[0]
             z = a.zones[a.zones["analyte"] == analyte]
             if len(z):
-                value = z["estimate"].where(z["estimate"].notna(), z["range_high"])
-                richest = z.loc[value.idxmax(), "zone"]
-                out.append(f"seal, line or case off the {richest} (the richest source of {analyte})")
+                richest = richest_source(a.zones, analyte)
+                if richest is not None:
+                    out.append(f"seal, line or case off the {richest} (the richest source of "
+                               f"{analyte})")
+                else:
+                    unseen = unresolved.unresolved_zones(a.zones, analyte, a.fit.zone_names)
+                    idx = unseen or list(range(len(a.fit.zone_names)))
+                    tell = unresolved.what_would_tell(a.fit, idx, units)
+                    out.append(f"find the source of {analyte} before sealing any zone (the data "
+                               f"cannot say which zone is richest): {'; '.join(tell)}")
             out.append(f"blend with a source lower in {analyte}")
             ok = crit.ok & (rates > 0)
             if ok.any() and not ok[-1]:
-                from blendq.units import format_quantity
-
                 out.append(f"a rate at or below {format_quantity(rates[ok].max(), 'rate', units)}"
                            f" where {analyte} complies")
         elif crit.kind == "hydraulic":
             skins = [(z.skin, z.name) for z in a.project.zones]
             worst = max(skins)
             if worst[0] > 0:
-                out.append(f"redevelop the {worst[1]} (skin {worst[0]:g})")
+                out.append(f"redevelop the {worst[1]} (skin {worst[0]:g} in the zone properties)")
             out.append("lower the pump intake if the screen and the pump allow")
     return list(dict.fromkeys(out))

@@ -9,7 +9,7 @@ scenarios are differences of the changes, not of sampling noise.
 Scenario entries (``[[scenarios]]`` in project.toml; see ``docs/scenarios.md``)::
 
     name = "Seal the upper sand and blend"
-    seal = ["Upper sand"]                            # conductance 0
+    seal = ["Upper sand"]              # conductance x settings.seal_leakage (gravel pack)
     redevelop = { zone = "Gravel (clogged)", skin = 0 }  # or factor = 2; or a list of these
     intake = "140 ft"                                # new pump intake depth
     lower_heads = "10 ft"                            # every static head lowered (drought)
@@ -36,7 +36,6 @@ from blendq.errors import InputError, ModelError
 from blendq.fit.uncertainty import Prediction
 from blendq.inputs.project import Project
 from blendq.units import parse_quantity
-from blendq.well import hydraulics
 from blendq.well.model import WellModel
 
 #: keys a scenario entry may have
@@ -72,8 +71,11 @@ class Scenario:
     ----------
     name : str
     zone_factor : ndarray (n_zones,)
-        Multiplier of each zone conductance [-]: 0 for a sealed zone, the redevelopment factor
-        for a redeveloped one, 1 otherwise.
+        Multiplier of each zone conductance [-]: ``settings.seal_leakage`` for a sealed zone
+        (flow through the gravel pack past the seal), 1 otherwise.
+    redevelop : tuple of (int, str, float)
+        Redevelopments: (zone index, "skin" or "factor", target skin [-] or conductance
+        factor [-]); applied to each draw's fitted conductance with an uncertain outcome.
     intake_depth : float or None
         New pump intake depth [m]; None keeps the well's.
     head_drop : float
@@ -87,6 +89,7 @@ class Scenario:
 
     name: str
     zone_factor: np.ndarray
+    redevelop: tuple = ()
     intake_depth: float | None = None
     head_drop: float = 0.0
     blend: Blend | None = None
@@ -97,8 +100,8 @@ class Scenario:
     @property
     def changes_well(self) -> bool:
         """True when the well model itself changes (not only the blend or the settings)."""
-        return (bool(np.any(self.zone_factor != 1.0)) or self.intake_depth is not None
-                or self.head_drop != 0.0)
+        return (bool(np.any(self.zone_factor != 1.0)) or bool(self.redevelop)
+                or self.intake_depth is not None or self.head_drop != 0.0)
 
 
 def base_scenario(project: Project) -> Scenario:
@@ -125,63 +128,81 @@ def _number(value, file: str, field_name: str, low: float, high: float, open_low
     return v
 
 
-def redevelopment_factor(project: Project, zone: int, new_skin: float) -> float:
-    """Conductance factor G(s_new) / G(s_old) [-] of a zone whose skin changes.
+def _skin_terms(project: Project, zone: int, file: str = "project.toml",
+                field_name: str | None = None) -> tuple[float, float, float]:
+    """(c, L, k) of a zone's conductance G = c T / (L + k s) at the operating horizon.
+
+    Cooper-Jacob with skin (storativity known and the model not "steady"): c = 4 pi,
+    L = ln(2.25 T t / (r_w^2 S)), k = 2; Thiem with skin: c = 2 pi, L = ln(R / r_w), k = 1.
+    Returns c T [m^2/d], L [-] and k [-].
+    """
+    z = project.zones[zone]
+    where = dict(file=file, field=field_name or f"zones[{zone + 1}]")
+    t = z.zone_transmissivity
+    if z.conductance is not None or t is None:
+        raise InputError(f'zone "{z.name}" has no transmissivity to scale by a new skin (its '
+                         'conductance is given); redevelop it with factor = ... instead', **where)
+    rw = project.well.well_radius
+    if z.storativity is not None and project.settings.conductance_model != "steady":
+        big_l = float(np.log(2.25 * t * project.settings.horizon / (rw**2 * z.storativity)))
+        return 4.0 * np.pi * t, big_l, 2.0
+    r = project.well.radius_of_influence
+    if r is None:
+        raise InputError(f'a new skin for zone "{z.name}" needs its storativity or '
+                         "well.radius_of_influence", **where)
+    return 2.0 * np.pi * t, float(np.log(r / rw)), 1.0
+
+
+def redeveloped_conductance(project: Project, zone: int, conductance, target_skin: float,
+                            achieved, shortfall: float | None = None) -> np.ndarray:
+    """Conductance [m^2/d] of a zone after redevelopment, from its fitted conductance.
 
     Parameters
     ----------
     project : Project
     zone : int
         Zone index.
-    new_skin : float
-        Skin factor after redevelopment [-].
+    conductance : array_like
+        Fitted conductance of the zone at the operating horizon, one per draw [m^2/d].
+    target_skin : float
+        Skin factor the redevelopment aims at [-].
+    achieved : array_like
+        Where in the range of outcomes each draw falls, in [0, 1] (0 = the target is reached).
+    shortfall : float, optional
+        ``settings.redevelopment_shortfall`` (default: the project's).
 
     Returns
     -------
-    float
-        (L + s_old) / (L + s_new), with L = ln(R / r_w) (Thiem) or
-        L = ln(2.25 T t / (r_w^2 S)) / 2 (Cooper-Jacob at the operating horizon t).
+    ndarray
+        With G = c T / (L + k s) (Cooper-Jacob: c = 4 pi, k = 2, L = ln(2.25 T t / (r_w^2 S));
+        Thiem: c = 2 pi, k = 1, L = ln(R / r_w)), the fitted skin of each draw is
+        s_fit = (c T / G - L) / k; the achieved skin is
+        s_new = s_t + achieved x shortfall x (s_fit - s_t) where s_fit > s_t (else no change),
+        and G_new = c T / (L + k s_new).
 
     Raises
     ------
     InputError
-        When the zone lacks what the log term needs (transmissivity; storativity or a radius
-        of influence), or its conductance was given directly (use ``factor`` instead).
+        When the zone lacks what the log term needs.
     ModelError
         When the new skin makes the log term non-positive.
-
-    Notes
-    -----
-    Thiem with skin: G = 2 pi T / (ln(R / r_w) + s); Cooper-Jacob with skin:
-    G = 4 pi T / (ln(2.25 T t / (r_w^2 S)) + 2 s). Only the skin changes, so the ratio of the
-    two conductances is the ratio of the log terms.
 
     References
     ----------
     Thiem, G. (1906) Hydrologische Methoden. Cooper, H.H. and Jacob, C.E. (1946) Trans. AGU
     27(4). Hawkins, M.F. (1956) J. Petroleum Technology 8 (skin factor).
     """
-    z = project.zones[zone]
-    where = dict(file="project.toml", field=f"zones[{zone + 1}]")
-    t = z.zone_transmissivity
-    if z.conductance is not None or t is None:
-        raise InputError(f'zone "{z.name}" has no transmissivity to scale by a new skin (its '
-                         'conductance is given); redevelop it with factor = ... instead', **where)
-    rw = project.well.well_radius
-    model = project.settings.conductance_model
-    use_transient = z.storativity is not None and model != "steady"
-    if use_transient:
-        h = project.settings.horizon
-        g_old = hydraulics.cooper_jacob_conductance(t, z.storativity, h, rw, z.skin)
-        g_new = hydraulics.cooper_jacob_conductance(t, z.storativity, h, rw, new_skin)
-    else:
-        r = project.well.radius_of_influence
-        if r is None:
-            raise InputError(f'a new skin for zone "{z.name}" needs its storativity or '
-                             "well.radius_of_influence", **where)
-        g_old = hydraulics.thiem_conductance(t, r, rw, z.skin)
-        g_new = hydraulics.thiem_conductance(t, r, rw, new_skin)
-    return float(g_new / g_old)
+    coef, big_l, k = _skin_terms(project, zone)
+    f = project.settings.redevelopment_shortfall if shortfall is None else shortfall
+    g = np.asarray(conductance, float)
+    s_fit = (coef / g - big_l) / k
+    s_new = np.where(s_fit > target_skin,
+                     target_skin + np.asarray(achieved, float) * f * (s_fit - target_skin), s_fit)
+    denom = big_l + k * s_new
+    if np.any(denom <= 0):
+        raise ModelError(f"a skin of {target_skin:g} makes the log term of zone "
+                         f'"{project.zones[zone].name}" non-positive: no conductance')
+    return coef / denom
 
 
 def parse_concentration(text, analyte: str, file: str, field_name: str) -> float:
@@ -273,6 +294,7 @@ def parse_scenario(raw: dict, index: int, project: Project, file: str = "project
         raise InputError(f"each scenario needs a name, got {name!r}", file=file, field=f"{pre}.name")
     n = len(project.zones)
     factor = np.ones(n)
+    sealed = np.zeros(n, bool)
     changes = []
     seal = raw.get("seal", [])
     if isinstance(seal, str):
@@ -280,17 +302,22 @@ def parse_scenario(raw: dict, index: int, project: Project, file: str = "project
     if not isinstance(seal, list):
         raise InputError(f'expected a list of zone names such as ["Upper sand"], got {seal!r}',
                          file=file, field=f"{pre}.seal")
+    leak = project.settings.seal_leakage
     for z in seal:
-        factor[_zone_index(project, z, file, f"{pre}.seal")] = 0.0
+        i = _zone_index(project, z, file, f"{pre}.seal")
+        sealed[i] = True
+        factor[i] = leak
     if seal:
-        changes.append("seal " + ", ".join(seal))
-        if not np.any(factor > 0):
+        changes.append("seal " + ", ".join(seal)
+                       + (f" ({leak:.0%} leakage past the seal)" if leak > 0 else ""))
+        if np.all(sealed):
             raise ModelError(f'scenario "{name}" seals every zone: the well would yield nothing')
     redev = raw.get("redevelop", [])
     redev = [redev] if isinstance(redev, dict) else redev
     if not isinstance(redev, list):
         raise InputError(f'expected {{ zone = "...", skin = 0 }} or {{ zone = "...", factor = 2 }}, '
                          f"got {redev!r}", file=file, field=f"{pre}.redevelop")
+    redevelop = []
     for item in redev:
         key = f"{pre}.redevelop"
         if not isinstance(item, dict) or set(item) - {"zone", "skin", "factor"} or "zone" not in item \
@@ -298,19 +325,20 @@ def parse_scenario(raw: dict, index: int, project: Project, file: str = "project
             raise InputError(f'expected {{ zone = "...", skin = 0 }} or {{ zone = "...", factor = 2 }}, '
                              f"got {item!r}", file=file, field=key)
         i = _zone_index(project, item["zone"], file, f"{key}.zone")
-        if factor[i] == 0.0:
+        if sealed[i]:
             raise InputError(f'zone "{item["zone"]}" is both sealed and redeveloped', file=file,
                              field=f"{key}.zone")
         if "skin" in item:
             skin = _number(item["skin"], file, f"{key}.skin", -np.inf, np.inf, False,
                            "a skin factor (a plain number)")
-            f = redevelopment_factor(project, i, skin)
-            changes.append(f'redevelop {item["zone"]} to skin {skin:g} (conductance x {f:.3g})')
+            _skin_terms(project, i, file, f"{key}.zone")  # the zone must have what it needs
+            redevelop.append((i, "skin", skin))
+            changes.append(f'redevelop {item["zone"]} to skin {skin:g} from its fitted skin')
         else:
             f = _number(item["factor"], file, f"{key}.factor", 0.0, np.inf, True,
                         "a conductance factor above zero")
-            changes.append(f'redevelop {item["zone"]} (conductance x {f:.3g})')
-        factor[i] *= f
+            redevelop.append((i, "factor", f))
+            changes.append(f'redevelop {item["zone"]} (fitted conductance x up to {f:.3g})')
     intake = None
     if "intake" in raw:
         try:
@@ -343,7 +371,8 @@ def parse_scenario(raw: dict, index: int, project: Project, file: str = "project
         changes.append(f"exceedance probability {alpha:g}")
     if not changes:
         changes.append("no change")
-    return Scenario(name.strip(), factor, intake, drop, blend, margin, alpha, changes)
+    return Scenario(name.strip(), factor, tuple(redevelop), intake, drop, blend, margin, alpha,
+                    changes)
 
 
 def project_scenarios(project: Project) -> list[Scenario]:
@@ -352,8 +381,28 @@ def project_scenarios(project: Project) -> list[Scenario]:
 
 
 # ------------------------------------------------------------------------------ the core
-def well_changes(scenario: Scenario) -> Callable[[WellModel], WellModel] | None:
-    """The change of the (batched) well model a scenario makes, or None for no change."""
+def well_changes(scenario: Scenario, project: Project | None = None, seed: int = 0,
+                 central: bool = False) -> Callable[[WellModel], WellModel] | None:
+    """The change of the (batched) well model a scenario makes, or None for no change.
+
+    Parameters
+    ----------
+    scenario : Scenario
+    project : Project, optional
+        Needed for a redevelopment to a new skin.
+    seed : int
+        Seed of the redevelopment outcome of each draw.
+    central : bool
+        Use the middle of the redevelopment outcomes instead of a random one per draw.
+
+    Notes
+    -----
+    A redevelopment starts from each draw's fitted conductance. Its outcome is uncertain
+    (``settings.redevelopment_shortfall``): to a new skin, the achieved skin of each draw is
+    uniform between the target and target + shortfall x (fitted skin - target)
+    (:func:`redeveloped_conductance`); by a factor f, the achieved factor is uniform between
+    1 + (1 - shortfall) (f - 1) and f.
+    """
     if not scenario.changes_well:
         return None
 
@@ -361,7 +410,20 @@ def well_changes(scenario: Scenario) -> Callable[[WellModel], WellModel] | None:
         geometry = model.geometry
         if scenario.intake_depth is not None:
             geometry = replace(geometry, intake_depth=scenario.intake_depth)
-        return model.with_changes(conductance=model.conductance * scenario.zone_factor,
+        g = np.array(np.broadcast_to(model.conductance * scenario.zone_factor,
+                                     np.shape(model.conductance)), float)
+        if scenario.redevelop:
+            rng = np.random.default_rng([seed, 5])
+            batch = g.shape[:-1]
+            for i, kind, value in scenario.redevelop:
+                u = np.full(batch, 0.5) if central else rng.random(batch)
+                if kind == "skin":
+                    g[..., i] = redeveloped_conductance(project, i, g[..., i], value, u)
+                else:
+                    f = project.settings.redevelopment_shortfall if project is not None else 0.0
+                    low = 1.0 + (1.0 - f) * (value - 1.0)
+                    g[..., i] = g[..., i] * (low + u * (value - low))
+        return model.with_changes(conductance=g,
                                   static_head=model.static_head - scenario.head_drop,
                                   geometry=geometry)
 
@@ -467,6 +529,13 @@ class ScenarioResult:
         True when the pumping-level criteria hold up to the top of the grid.
     margin, alpha : float
         The margin and exceedance probability used.
+    undecided : dict analyte -> ndarray of bool (n_rates,)
+        Rates (within the pump range and the pumping-level limits) at which the analyte's
+        compliance depends on zone values the data cannot pin (see :func:`undecided_rates`).
+    tell_zones : list of int
+        Unresolved zones that matter most where compliance is undecided.
+    would_tell : dict units -> list of str
+        Measurements that would decide a "cannot tell" option, in "US" and "SI" units.
     """
 
     scenario: Scenario
@@ -476,6 +545,14 @@ class ScenarioResult:
     yield_beyond_grid: bool
     margin: float
     alpha: float
+    undecided: dict = field(default_factory=dict)
+    tell_zones: list = field(default_factory=list)
+    would_tell: dict = field(default_factory=dict)
+
+    @property
+    def cannot_tell(self) -> bool:
+        """True when the option's window depends on zone values the data cannot pin."""
+        return any(bool(np.any(v)) for v in self.undecided.values())
 
 
 @dataclass
@@ -522,7 +599,9 @@ def evaluate(analysis, scenario: Scenario) -> ScenarioResult:
     project = analysis.project
     s, w = project.settings, project.well
     rates = analysis.prediction.rates
-    pred = sweep(analysis.fit, analysis.draws, rates, changes=well_changes(scenario))
+    seed = analysis.draws.seed
+    pred = sweep(analysis.fit, analysis.draws, rates,
+                 changes=well_changes(scenario, project, seed))
     if scenario.blend is not None:
         missing = [a for a in pred.analytes if a not in scenario.blend.concentration]
         if missing:
@@ -556,7 +635,85 @@ def evaluate(analysis, scenario: Scenario) -> ScenarioResult:
     allowed = intake - w.submergence if top is None else min(intake - w.submergence, top)
     level = np.quantile(pred.pumping_level, 1 - alpha, axis=0)
     y, beyond = pumping_level_yield(rates, level, allowed)
-    return ScenarioResult(scenario, pred, window, y, beyond, margin, alpha)
+    undecided, tell = undecided_rates(analysis, scenario, window, margin)
+    res = ScenarioResult(scenario, pred, window, y, beyond, margin, alpha, undecided, tell)
+    res.would_tell = {u: would_tell(analysis, res, u) for u in ("US", "SI")}
+    return res
+
+
+def undecided_rates(analysis, scenario: Scenario, window: Window, margin: float,
+                    max_zones: int = 2) -> tuple[dict, list[int]]:
+    """Rates at which an option's compliance depends on zone values the data cannot pin.
+
+    Parameters
+    ----------
+    analysis : blendq.decide.analysis.Analysis
+    scenario : Scenario
+    window : Window
+        The option's window (its pump-range and pumping-level criteria say which rates count).
+    margin : float
+    max_zones : int
+        Unresolved zones named (those that matter most).
+
+    Returns
+    -------
+    undecided : dict analyte -> ndarray of bool (n_rates,)
+    zones : list of int
+
+    Notes
+    -----
+    At the fitted hydraulics (the central redevelopment outcome), the option's discharge
+    concentration C(Q) = sum_i w_i(Q) c_i is linear in the zone values, so its range over the
+    zone values with the fitted blends (:func:`blendq.fit.unresolved.unresolved_sets`) is its
+    range over the corners of that set. A rate is undecided for an analyte when that range
+    straddles margin x limit and is wider than ``settings.unresolved_tolerance`` x margin x
+    limit. For the well as tested the discharge weights of any rate lie in the span of the
+    tested ones (linear zone losses), so the range is nil there; an option that changes the
+    zone shares (seal, redevelop, intake) can bring the unseen combinations into the blend.
+    """
+    from blendq.fit.uncertainty import Draws
+    from blendq.fit.unresolved import unresolved_sets
+
+    fit = analysis.fit
+    sets = unresolved_sets(fit, analysis.zones)
+    rates = window.rates
+    sets = {a: u for a, u in sets.items() if a in analysis.limits}
+    if not sets:
+        return {}, []
+    ref = Draws(fit.theta[None, :], fit.zone_values()[None], list(fit.analytes), 0)
+    changes = well_changes(scenario, analysis.project, central=True)
+    weights = sweep(fit, ref, rates, changes=changes).shares[0]  # (n_rates, n_zones)
+    feasible = rates > 0
+    for crit in window.criteria:
+        if crit.kind != "quality":
+            feasible &= crit.ok
+    tol = analysis.project.settings.unresolved_tolerance
+    undecided, effect = {}, {}
+    for analyte, uset in sets.items():
+        lo, hi = uset.value_range(np.nan_to_num(weights, nan=0.0))
+        if scenario.blend is not None:
+            cb = scenario.blend.concentration[analyte]
+            lo = blend_concentration(lo, rates, scenario.blend.rate, cb)
+            hi = blend_concentration(hi, rates, scenario.blend.rate, cb)
+        thr = margin * analysis.limits[analyte].canonical()
+        und = feasible & (hi - lo > tol * thr) & (lo <= thr) & (hi > thr)
+        undecided[analyte] = und
+        if und.any():
+            spread = uset.vertices.max(0) - uset.vertices.min(0)
+            for i in uset.zones:
+                e = float(np.nanmax(weights[und, i])) * spread[i]
+                effect[i] = max(effect.get(i, 0.0), e)
+    ranked = sorted((i for i in effect if effect[i] > 0), key=lambda i: -effect[i])
+    return undecided, ranked[:max_zones]
+
+
+def would_tell(analysis, result: ScenarioResult, units: str = "US") -> list[str]:
+    """Measurements that would decide a "cannot tell" option (empty when it is decided)."""
+    from blendq.fit.unresolved import what_would_tell
+
+    if not result.cannot_tell:
+        return []
+    return what_would_tell(analysis.fit, result.tell_zones, units)
 
 
 def _row(analysis, res: ScenarioResult) -> dict:
@@ -578,6 +735,13 @@ def _row(analysis, res: ScenarioResult) -> dict:
         "yield_beyond_grid": res.yield_beyond_grid,
     }
     row["delivered"] = row["recommended"] + row["blend_rate"]
+    row["cannot_tell"] = res.cannot_tell
+    und = [a for a, v in res.undecided.items() if np.any(v)]
+    row["undecided"] = ", ".join(und)
+    anyund = np.any([res.undecided[a] for a in und], axis=0) if und else None
+    row["undecided_low"] = float(pred.rates[anyund].min()) if und else np.nan
+    row["undecided_high"] = float(pred.rates[anyund].max()) if und else np.nan
+    row["would_tell"] = "; ".join(res.would_tell.get(s.display_units, []))
     q = [(1 - s.interval) / 2, 0.5, 1 - (1 - s.interval) / 2]
     k = None if win.recommended is None else int(np.argmin(np.abs(pred.rates - win.recommended)))
     for j, a in enumerate(pred.analytes):
@@ -607,7 +771,10 @@ def compare(analysis, scenarios: list[Scenario] | None = None,
         window_width [m^3/d] (sum of the interval widths), n_intervals, lower_end_set_by and
         upper_end_set_by (what sets the lowest and the highest end of the window),
         recommended, blend_rate, yield, yield_beyond_grid, delivered [m^3/d] (recommended well
-        rate + blend rate), and per analyte ``<a>_median``, ``<a>_lower``, ``<a>_upper``
+        rate + blend rate), cannot_tell (the window depends on zone values the data cannot
+        pin), undecided (those analytes), undecided_low and undecided_high [m^3/d] (the rates
+        concerned), would_tell (measurements that would decide, in the project's display
+        units), and per analyte ``<a>_median``, ``<a>_lower``, ``<a>_upper``
         [mg/L] at the recommended rate.
     """
     project = analysis.project

@@ -201,6 +201,18 @@ class Settings:
         to within a few percent).
     qa : dict
         Options of the lab and field review.
+    seal_leakage : float
+        Fraction of a sealed zone's conductance left by the seal [-]: flow through the gravel
+        pack around a packer or liner (0 = a perfect seal, 1 = no seal). Common practice: 0.05.
+    redevelopment_shortfall : float
+        Redevelopment's uncertain outcome [-]: the achieved skin is uniform between the target
+        skin and target + shortfall x (fitted skin - target). Common practice: 0.5.
+    unresolved_tolerance : float
+        A spread of an option's concentration over the values the data cannot pin smaller than
+        this fraction of margin x limit is ignored [-]. Common practice: 0.05 (lab precision).
+    unseen_zone_factor : float
+        A zone value the data put no upper limit on is drawn up to this multiple of the
+        analyte's largest result or detection limit [-]. Common practice: 3.
     """
 
     limit_sets: tuple[str, ...] = ("US-EPA",)
@@ -221,6 +233,10 @@ class Settings:
     detection_limit_sigma_fraction: float = 0.5
     measured_exceedance_rate_tolerance: float = 0.05
     qa: dict = field(default_factory=dict)
+    seal_leakage: float = 0.05
+    redevelopment_shortfall: float = 0.5
+    unresolved_tolerance: float = 0.05
+    unseen_zone_factor: float = 3.0
 
 
 @dataclass

@@ -309,6 +309,13 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
             "measured_exceedance_rate_tolerance", d.measured_exceedance_rate_tolerance, 0.0,
             0.5)),
         qa=dict(qa),
+        seal_leakage=float(s.number("seal_leakage", d.seal_leakage, 0.0, 1.0)),
+        redevelopment_shortfall=float(s.number("redevelopment_shortfall",
+                                               d.redevelopment_shortfall, 0.0, 1.0)),
+        unresolved_tolerance=float(s.number("unresolved_tolerance", d.unresolved_tolerance,
+                                            0.0, 1.0)),
+        unseen_zone_factor=float(s.number("unseen_zone_factor", d.unseen_zone_factor, 1.0,
+                                          None)),
     )
     s.done()
     return settings

@@ -41,34 +41,48 @@ def comparison_display_table(comparison: Comparison, units: str = "US",
     analytes = comparison.results[0].prediction.analytes if comparison.results else []
     for res, (_, r) in zip(comparison.results, comparison.table.iterrows(), strict=True):
         w = res.window
+        told = not res.cannot_tell
         window = " and ".join(f"{_rate_text(lo, units)} to "
                               f"{_rate_text(hi, units)}"
                               for lo, hi, _, _ in w.intervals) or "none"
         row = {
             "Option": r["scenario"],
             "Changes": r["changes"],
-            "Operating window": window,
-            "Width": _rate_text(r["window_width"], units),
-            "Recommended": ("-" if w.recommended is None
+            "Operating window": window if told else "cannot tell",
+            "Width": _rate_text(r["window_width"], units) if told else "-",
+            "Recommended": ("-" if w.recommended is None or not told
                             else _rate_text(w.recommended, units)),
             "Pumping-level yield": (("at least " if r["yield_beyond_grid"] else "")
                                     + _rate_text(r["yield"], units)),
         }
         if res.scenario.blend is not None:
-            row["Delivered"] = ("-" if w.recommended is None
+            row["Delivered"] = ("-" if w.recommended is None or not told
                                 else _rate_text(r["delivered"], units))
         else:
             row["Delivered"] = row["Recommended"]
         for a in analytes:
-            med, band = _conc_text(a, [r[f"{a}_lower"], r[f"{a}_median"], r[f"{a}_upper"]])
+            med, band = (_conc_text(a, [r[f"{a}_lower"], r[f"{a}_median"], r[f"{a}_upper"]])
+                         if told else ("-", "-"))
             label = get_analyte(a).label()
             row[f"{label} median"] = med
             row[f"{label} {interval:.0%} band"] = band
         row["Window limited by"] = (
+            cannot_tell_text(r, units) if not told else
             f"low end: {r['lower_end_set_by']}; high end: {r['upper_end_set_by']}"
             if w.intervals else w.reason_empty or "no rate meets every criterion")
+        row["What would tell"] = "; ".join(res.would_tell.get(units, [])) if not told else ""
         rows.append(row)
     return pd.DataFrame(rows)
+
+
+def cannot_tell_text(row, units: str = "US") -> str:
+    """Why an option's window cannot be told, from a row of the comparison table."""
+    names = row["undecided"].split(", ")
+    which = " and ".join(names) if len(names) <= 2 else ", ".join(names)
+    return (f"cannot tell: compliance with the {which} limit{'s' if len(names) > 1 else ''} "
+            f"at rates from {_rate_text(row['undecided_low'], units)} to "
+            f"{_rate_text(row['undecided_high'], units)} depends on zone values the data "
+            "cannot pin")
 
 
 def compact_display_table(comparison: Comparison, units: str = "US",
@@ -93,19 +107,26 @@ def compact_display_table(comparison: Comparison, units: str = "US",
 def widest_sentence(comparison: Comparison, units: str = "US") -> str:
     """A sentence naming the option with the widest operating window."""
     t = comparison.table
-    if t.empty or not (t["window_width"] > 0).any() and not (t["n_intervals"] > 0).any():
-        return "No option compared here opens an operating window."
-    k = int(np.argmax(t["window_width"].to_numpy(float)))
+    told = ~t["cannot_tell"].astype(bool) if "cannot_tell" in t else pd.Series(True, t.index)
+    untold = [f'"{n}"' for n in t.loc[~told, "scenario"]]
+    tail = (f" The data cannot tell whether {', '.join(untold)} would "
+            f"{'open a window' if len(untold) == 1 else 'open windows'}: see what would tell."
+            if untold else "")
+    if t.empty or not ((t["window_width"] > 0) & told).any() \
+            and not ((t["n_intervals"] > 0) & told).any():
+        return "No option compared here opens an operating window that the data can vouch " \
+               "for." + tail if untold else "No option compared here opens an operating window."
+    k = int(np.argmax(np.where(told, t["window_width"].to_numpy(float), -np.inf)))
     name = t["scenario"].iloc[k]
     width = _rate_text(t["window_width"].iloc[k], units)
     base = t[t["scenario"] == BASE_NAME]
     if name == BASE_NAME:
         return (f"None of the options widens the operating window: the base case has the widest "
-                f"({width}).")
+                f"({width}).{tail}")
     text = f'"{name}" opens the widest operating window ({width}'
     if len(base):
         text += f" against {_rate_text(base['window_width'].iloc[0], units)} as tested"
-    return text + ")."
+    return text + ")." + tail
 
 
 def scenario_chart_job(analysis, comparison: Comparison, units: str = "US") -> ChartJob:
@@ -153,6 +174,18 @@ def scenario_section(analysis, comparison: Comparison, units: str = "US",
         Table(compact_display_table(comparison, units, s.interval),
               "Options compared at the recommended rate of each (median and band of the "
               "delivered concentration)."),
-        chart,
     ]
+    untold = [(res, r) for res, (_, r) in zip(comparison.results, comparison.table.iterrows(),
+                                              strict=True) if res.cannot_tell]
+    if untold:
+        blocks.append(Paragraph(
+            "Cannot tell: an option that changes the zone shares can bring into the blend a "
+            "combination of zone values that no sample has seen. Where the option's delivered "
+            "concentration, over the zone values the data allow, straddles the margin at rates "
+            "the pump and the pumping level allow, blendq shows no window, rate or band for it: "
+            "the data cannot decide it. The measurements that would decide it:"))
+        for res, r in untold:
+            blocks.append(Paragraph(f'"{r["scenario"]}": {cannot_tell_text(r, units)}. What '
+                                    f"would tell: {'; '.join(res.would_tell.get(units, []))}."))
+    blocks.append(chart)
     return Section("Options compared", tuple(blocks), "scenarios")

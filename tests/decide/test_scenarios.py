@@ -3,17 +3,20 @@
 from __future__ import annotations
 
 import copy
+import dataclasses
 from pathlib import Path
 
 import numpy as np
 import pytest
+import synthetic_wells as sw
 from hypothesis import given
 from hypothesis import strategies as st
 from scipy.optimize import brentq
 
 import blendq
+from blendq.chemistry.limits import limit_set
 from blendq.decide import scenarios as sc
-from blendq.decide.analysis import analyse
+from blendq.decide.analysis import analyse, richest_source, window_options
 from blendq.errors import InputError, ModelError
 from blendq.inputs.loader import load_project
 from blendq.units import parse_quantity
@@ -33,6 +36,13 @@ def comparison(analysis):
 
 def _scenario(analysis, raw):
     return sc.parse_scenario({"name": "test", **raw}, 1, analysis.project)
+
+
+def _with_settings(analysis, **kw):
+    """The same analysis with other settings (the draws and the fit unchanged)."""
+    project = dataclasses.replace(analysis.project,
+                                  settings=dataclasses.replace(analysis.project.settings, **kw))
+    return dataclasses.replace(analysis, project=project)
 
 
 def _zone(analysis, name):
@@ -57,6 +67,7 @@ def test_no_change_scenario_equals_base(analysis):
 
 # ------------------------------------------------------------------------------- sealing
 def test_sealing_richest_zone_lowers_that_analyte_and_the_yield(analysis):
+    analysis = _with_settings(analysis, seal_leakage=0.0)  # a perfect seal
     j = analysis.prediction.analytes.index("nitrate")
     richest = analysis.project.zone_names[int(np.argmax(analysis.fit.zone_values()[:, j]))]
     assert richest == "Upper sand"
@@ -71,6 +82,33 @@ def test_sealing_richest_zone_lowers_that_analyte_and_the_yield(analysis):
     assert np.all(sealed.prediction.pumping_level[:, pos] > base.prediction.pumping_level[:, pos])
     np.testing.assert_allclose(sealed.prediction.shares[:, pos, _zone(analysis, richest)], 0.0,
                                atol=1e-12)
+
+
+def test_seal_leakage_limits(analysis):
+    # leakage 0: the zone's conductance is 0 (a perfect seal); leakage 1: no seal at all
+    i = _zone(analysis, "Upper sand")
+    base = sc.evaluate(analysis, _scenario(analysis, {}))
+    none = _with_settings(analysis, seal_leakage=1.0)
+    open_seal = sc.evaluate(none, _scenario(none, {"seal": ["Upper sand"]}))
+    np.testing.assert_array_equal(open_seal.prediction.concentration, base.prediction.concentration)
+    np.testing.assert_array_equal(open_seal.prediction.pumping_level, base.prediction.pumping_level)
+    perfect = _with_settings(analysis, seal_leakage=0.0)
+    sealed = sc.evaluate(perfect, _scenario(perfect, {"seal": ["Upper sand"]}))
+    factor = np.ones(len(analysis.project.zones))
+    factor[i] = 0.0
+    by_hand = sc.sweep(analysis.fit, analysis.draws, analysis.prediction.rates,
+                       changes=lambda m: m.with_changes(conductance=m.conductance * factor))
+    np.testing.assert_allclose(sealed.prediction.concentration, by_hand.concentration, rtol=1e-12,
+                               equal_nan=True)
+    # the default leakage lies between: the sealed zone still gives some water, less than before
+    leaky = sc.evaluate(analysis, _scenario(analysis, {"seal": ["Upper sand"]}))
+    assert analysis.project.settings.seal_leakage == 0.05
+    pos = analysis.prediction.rates > 0
+    share = leaky.prediction.shares[:, pos, i]
+    gives = base.prediction.shares[:, pos, i] > 1e-6
+    assert np.all(share[gives] > 0)
+    assert np.all(share[gives] < base.prediction.shares[:, pos, i][gives])
+    assert "5% leakage past the seal" in leaky.scenario.changes[0]
 
 
 def test_sealing_every_zone_is_a_model_error(analysis):
@@ -95,32 +133,75 @@ def test_redevelopment_raises_the_zone_share_at_every_rate(analysis):
     assert np.all(np.median(share_new, 0)[gives] > np.median(share_base, 0)[gives])
 
 
-def test_redevelopment_factor_is_the_cooper_jacob_log_ratio(analysis):
-    # Cooper and Jacob (1946) with skin: G = 4 pi T / (ln(2.25 T t / (r_w^2 S)) + 2 s), so a
-    # new skin scales G by (L + 2 s_old) / (L + 2 s_new); computed here by hand
+def test_redeveloped_conductance_cooper_jacob_by_hand(analysis):
+    # Cooper and Jacob (1946) with skin: G = 4 pi T / (ln(2.25 T t / (r_w^2 S)) + 2 s),
+    # written out by hand: a zone fitted at its planning skin 8, redeveloped to skin 0
     project = analysis.project
     i = _zone(analysis, "Gravel (clogged)")
     z = project.zones[i]
     big_l = np.log(2.25 * z.zone_transmissivity * project.settings.horizon
                    / (project.well.well_radius ** 2 * z.storativity))
-    expected = (big_l + 2 * 8.0) / (big_l + 2 * 0.0)
-    assert z.skin == 8.0
-    np.testing.assert_allclose(sc.redevelopment_factor(project, i, 0.0), expected, rtol=1e-12)
-    s = _scenario(analysis, {"redevelop": [{"zone": "Gravel (clogged)", "factor": 2.5}]})
-    np.testing.assert_allclose(s.zone_factor, [1, 1, 2.5, 1], rtol=0)
-
-
-def test_redevelopment_factor_thiem(analysis):
-    # Thiem (1906) with skin: G = 2 pi T / (ln(R / r_w) + s); hand ratio of the log terms
-    project = copy.deepcopy(analysis.project)
-    from dataclasses import replace
-
-    zones = [replace(z, storativity=None) for z in project.zones]
-    well = replace(project.well, radius_of_influence=500.0)
-    project = replace(project, zones=zones, well=well)
-    lr = np.log(500.0 / project.well.well_radius)
-    np.testing.assert_allclose(sc.redevelopment_factor(project, 2, 1.0), (lr + 8) / (lr + 1),
+    four_pi_t = 4 * np.pi * z.zone_transmissivity
+    g_fit = four_pi_t / (big_l + 2 * 8.0)
+    # target reached (achieved = 0): skin 0
+    np.testing.assert_allclose(sc.redeveloped_conductance(project, i, g_fit, 0.0, 0.0),
+                               four_pi_t / big_l, rtol=1e-12)
+    # the worst outcome with a shortfall of 0.5: half the skin stays (skin 4)
+    np.testing.assert_allclose(sc.redeveloped_conductance(project, i, g_fit, 0.0, 1.0, 0.5),
+                               four_pi_t / (big_l + 2 * 4.0), rtol=1e-12)
+    # a zone already better than the target is left as it is
+    g_good = four_pi_t / (big_l - 1.0)
+    np.testing.assert_allclose(sc.redeveloped_conductance(project, i, g_good, 0.0, 0.3), g_good,
                                rtol=1e-12)
+
+
+def test_redeveloped_conductance_thiem_by_hand(analysis):
+    # Thiem (1906) with skin: G = 2 pi T / (ln(R / r_w) + s), by hand
+    project = copy.deepcopy(analysis.project)
+    zones = [dataclasses.replace(z, storativity=None) for z in project.zones]
+    well = dataclasses.replace(project.well, radius_of_influence=500.0)
+    project = dataclasses.replace(project, zones=zones, well=well)
+    t = project.zones[2].zone_transmissivity
+    lr = np.log(500.0 / project.well.well_radius)
+    g_fit = 2 * np.pi * t / (lr + 8.0)
+    np.testing.assert_allclose(sc.redeveloped_conductance(project, 2, g_fit, 1.0, 0.0),
+                               2 * np.pi * t / (lr + 1.0), rtol=1e-12)
+
+
+def test_redevelopment_starts_from_each_draws_fitted_conductance(analysis):
+    i = _zone(analysis, "Gravel (clogged)")
+    s = _scenario(analysis, {"redevelop": {"zone": "Gravel (clogged)", "skin": 0}})
+    assert s.redevelop == ((i, "skin", 0.0),)
+    model = analysis.fit.problem.model(analysis.draws.theta)
+    after = sc.well_changes(s, analysis.project, seed=3)(model)
+    g0, g1 = model.conductance[:, i], after.conductance[:, i]
+    # bounds from the published equation: target reached (achieved 0) and the largest
+    # shortfall (achieved 1), each from the draw's own fitted conductance
+    best = sc.redeveloped_conductance(analysis.project, i, g0, 0.0, 0.0)
+    worst = sc.redeveloped_conductance(analysis.project, i, g0, 0.0, 1.0)
+    assert np.all(g1 <= best * (1 + 1e-12)) and np.all(g1 >= worst * (1 - 1e-12))
+    assert np.all(g1 >= g0 * (1 - 1e-12))
+    # the outcome is uncertain: it varies between draws, more than the fitted values do
+    assert np.std(g1 / g0) > 0.05
+    # seeded: the same seed repeats it exactly, another seed does not
+    again = sc.well_changes(s, analysis.project, seed=3)(model).conductance[:, i]
+    np.testing.assert_array_equal(again, g1)
+    assert not np.array_equal(sc.well_changes(s, analysis.project, seed=4)(model).conductance[:, i],
+                              g1)
+    # other zones untouched
+    others = [k for k in range(len(analysis.project.zones)) if k != i]
+    np.testing.assert_array_equal(after.conductance[:, others], model.conductance[:, others])
+
+
+def test_redevelopment_factor_outcome_range(analysis):
+    s = _scenario(analysis, {"redevelop": [{"zone": "Gravel (clogged)", "factor": 2.5}]})
+    np.testing.assert_allclose(s.zone_factor, [1, 1, 1, 1], rtol=0)
+    model = analysis.fit.problem.model(analysis.draws.theta)
+    ratio = sc.well_changes(s, analysis.project, seed=1)(model).conductance[:, 2] \
+        / model.conductance[:, 2]
+    # shortfall 0.5: the achieved factor is uniform between 1 + 0.5 x 1.5 = 1.75 and 2.5
+    assert ratio.min() >= 1.75 - 1e-12 and ratio.max() <= 2.5 + 1e-12
+    assert ratio.max() - ratio.min() > 0.6
 
 
 # ------------------------------------------------------------------------------- blending
@@ -291,4 +372,105 @@ def test_bad_entries_name_the_field(analysis, raw, field):
 def test_project_scenarios_are_resolved(analysis):
     scs = sc.project_scenarios(analysis.project)
     assert [s.name for s in scs] == [raw["name"] for raw in analysis.project.scenarios]
-    assert scs[0].zone_factor[0] == 0.0
+    assert scs[0].zone_factor[0] == analysis.project.settings.seal_leakage
+
+
+# ----------------------------------------------------------- what the data cannot tell
+def _synthetic_analysis(depth: bool, **settings):
+    p = sw.project(relative_error=0.03, depth=depth, seed=3)
+    p.limits = limit_set("US-EPA")
+    p.settings = dataclasses.replace(p.settings, **settings)
+    return analyse(p, draws=300, seed=7)
+
+
+@pytest.fixture(scope="module")
+def deficient():
+    """The synthetic well without depth samples: some zone values are not resolved."""
+    return _synthetic_analysis(depth=False)
+
+
+@pytest.fixture(scope="module")
+def resolved():
+    """The same well with depth samples: every zone value is resolved or weakly resolved."""
+    return _synthetic_analysis(depth=True)
+
+
+def _seal_each(a):
+    return sc.compare(a, [sc.parse_scenario({"name": f"Seal {z}", "seal": [z]}, 1, a.project)
+                          for z in a.project.zone_names])
+
+
+def test_sealing_the_deepest_zone_cannot_be_told_without_depth_samples(deficient, resolved):
+    comp = _seal_each(deficient)
+    t = comp.table.set_index("scenario")
+    assert not t.loc[sc.BASE_NAME, "cannot_tell"]
+    # sealing Z4 changes the blend into combinations of zone values no sample saw
+    assert t.loc["Seal Z4", "cannot_tell"]
+    assert "arsenic" in t.loc["Seal Z4", "undecided"]
+    assert "a depth sample between" in t.loc["Seal Z4", "would_tell"]
+    # with depth samples the same options are decided
+    told = _seal_each(resolved).table.set_index("scenario")
+    assert not told["cannot_tell"].any()
+
+
+def test_cannot_tell_option_has_no_window_rate_or_band(deficient):
+    from blendq.report.scenario_section import comparison_display_table, widest_sentence
+
+    comp = _seal_each(deficient)
+    untold = [k for k, r in enumerate(comp.results) if r.cannot_tell]
+    assert untold
+    us = comparison_display_table(comp, "US")
+    for k in untold:
+        row = us.iloc[k]
+        assert row["Operating window"] == "cannot tell"
+        assert row["Recommended"] == "-" and row["Width"] == "-"
+        assert all(row[c] == "-" for c in us.columns if c.endswith(" band"))
+        assert row["Window limited by"].startswith("cannot tell: compliance with the")
+        assert "depth sample" in row["What would tell"]
+    sentence = widest_sentence(comp)
+    for k in untold:
+        assert f'"{comp.table["scenario"].iloc[k]}" opens' not in sentence
+    assert "cannot tell whether" in sentence
+
+
+def test_undecided_rates_follow_the_corner_range(deficient):
+    # an option is undecided at a rate exactly when the range of its concentration over the
+    # corners of the data-allowed set straddles margin x limit (wider than the tolerance)
+    from blendq.fit.uncertainty import Draws
+    from blendq.fit.unresolved import unresolved_sets
+
+    a = deficient
+    s = sc.parse_scenario({"name": "Seal Z4", "seal": ["Z4"]}, 1, a.project)
+    res = sc.evaluate(a, s)
+    fit = a.fit
+    ref = Draws(fit.theta[None], fit.zone_values()[None], list(fit.analytes), 0)
+    w = sc.sweep(fit, ref, a.prediction.rates, changes=sc.well_changes(s, a.project,
+                                                                       central=True)).shares[0]
+    uset = unresolved_sets(fit, a.zones)["arsenic"]
+    values = np.nan_to_num(w) @ uset.vertices.T
+    thr = res.margin * a.limits["arsenic"].canonical()
+    lo, hi = values.min(1), values.max(1)
+    expect = (a.prediction.rates > 0) & (lo <= thr) & (hi > thr) \
+        & (hi - lo > a.project.settings.unresolved_tolerance * thr)
+    for crit in res.window.criteria:
+        if crit.kind != "quality":
+            expect &= crit.ok
+    np.testing.assert_array_equal(res.undecided["arsenic"], expect)
+
+
+def test_advice_names_a_source_only_where_the_data_resolve_it(analysis, resolved):
+    # the demo's nitrate zones are all unresolved (discharge samples only): no zone is named
+    strict = analyse(dataclasses.replace(
+        analysis.project, settings=dataclasses.replace(analysis.project.settings, margin=0.3)),
+        draws=100)
+    assert strict.window.empty
+    assert (strict.zones.loc[strict.zones["analyte"] == "nitrate", "verdict"]
+            == "not resolved").all()
+    assert richest_source(strict.zones, "nitrate") is None
+    opts = window_options(strict)
+    assert not any("richest source of nitrate" in o for o in opts)
+    assert any(o.startswith("find the source of nitrate") and "depth sample" in o for o in opts)
+    # with depth samples Z1 (12 mg/L as N, far above the others) is resolved and named
+    assert richest_source(resolved.zones, "nitrate") == "Z1"
+    low = _synthetic_analysis(depth=True, margin=0.3)
+    assert any("the Z1 (the richest source of nitrate)" in o for o in window_options(low))

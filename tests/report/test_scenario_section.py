@@ -104,3 +104,26 @@ def test_limited_by_names_both_ends(setup):
         else:
             assert text == (w.reason_empty or "no rate meets every criterion")
     assert list(comp.table["lower_end_set_by"][:1]) == [comp.results[0].window.intervals[0][2]]
+
+
+def test_cannot_tell_option_in_section_and_cli(setup):
+    # on the demo the nitrate zones are not resolved (discharge samples only); sealing the
+    # gravel changes the shares into combinations no sample saw
+    a, _ = setup
+    seal = sc.parse_scenario({"name": "Seal the gravel", "seal": ["Gravel (clogged)"]}, 1,
+                             a.project)
+    comp = sc.compare(a, [seal])
+    assert comp.results[1].cannot_tell and not comp.results[0].cannot_tell
+    section = scenario_section(a, comp, "US")
+    texts = [b.text for b in section.blocks if isinstance(b, Paragraph)]
+    assert any(t.startswith("Cannot tell:") for t in texts)
+    line = next(t for t in texts if t.startswith('"Seal the gravel": cannot tell'))
+    assert "What would tell:" in line and "depth sample between" in line and " ft " in line
+    si = scenario_section(a, comp, "SI")
+    assert any(" m and " in b.text for b in si.blocks if isinstance(b, Paragraph)
+               and b.text.startswith('"Seal the gravel"'))
+    res = runner.invoke(app, ["compare", str(DEMO), "--draws", "60", "--seal", "Gravel (clogged)"])
+    assert res.exit_code == 0, res.output
+    assert "window cannot tell; recommended -" in res.output
+    assert "  what would tell: " in res.output
+    assert "The data cannot tell whether \"Seal Gravel (clogged)\"" in res.output

@@ -182,6 +182,15 @@ def _window_strip(ax, comparison: Comparison, units: str) -> None:
         row = ns - 1 - k
         colour, _, _ = _style(k)
         w = res.window
+        if res.cannot_tell:  # the data cannot decide this option: no window, no rate
+            ax.annotate("cannot tell (see what would tell)", (0.01, row),
+                        xycoords=("axes fraction", "data"), ha="left", va="center",
+                        fontsize=7.5, color=VERMILLION, style="italic")
+            if not res.yield_beyond_grid:
+                xy = float(_rate(res.yield_rate, units)[0])
+                ax.plot([xy], [row], marker=">", markersize=5, color=BLACK,
+                        markerfacecolor="white", linestyle="none", zorder=5, gid="yield")
+            continue
         for lo, hi, _, _ in w.intervals:
             a, b = _rate([max(lo - half, 0.0), hi + half] if hi - lo < half else [lo, hi], units)[0]
             ax.broken_barh([(a, b - a)], (row - 0.32, 0.64), facecolors=colour, alpha=0.55,
@@ -211,6 +220,9 @@ def window_summary(comparison: Comparison, units: str = "US") -> list[str]:
     out = []
     for res in comparison.results:
         w = res.window
+        if res.cannot_tell:
+            out.append(f"{res.scenario.name}: cannot tell")
+            continue
         if w.empty:
             out.append(f"{res.scenario.name}: no window")
             continue
