@@ -93,7 +93,8 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     levels = check_levels(fit, d, pred, s.exceedance_probability, s.horizon)
     window = sweep.window_for(fit, pred, level_deep=levels.level_deep)
     limits = sweep.governing_limits(project.limits, pred.analytes)
-    table = sweep.sweep_table(pred, limits, s.margin, s.interval, project.zone_names)
+    table = sweep.sweep_table(pred, limits, s.margin, s.interval, project.zone_names,
+                              sweep.compliance_statistics(project, limits))
     notes = []
     if not fit.success:
         notes.append(f"The hydraulic fit did not converge: {fit.message}")

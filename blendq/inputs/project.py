@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from blendq.chemistry.limits import Limit
+from blendq.chemistry.limits import DEFAULT_TEMPORAL_CV, Limit
 
 #: columns of each table (in base units), in order
 TABLE_COLUMNS: dict[str, list[str]] = {
@@ -192,6 +192,10 @@ class Settings:
         Lab uncertainty (1 sd, relative) used where a result has none.
     qa : dict
         Options of the lab and field review.
+    temporal_cv : dict
+        Coefficient of variation [-] of each analyte's concentration from sample to sample at
+        a fixed rate, beyond lab error (analyte key -> value; the key "default" for analytes
+        not named). Analytes without a value take ``DEFAULT_TEMPORAL_CV`` (common practice).
     """
 
     limit_sets: tuple[str, ...] = ("US-EPA",)
@@ -210,6 +214,16 @@ class Settings:
     level_error: float = 0.05
     default_relative_uncertainty: float = 0.05
     qa: dict = field(default_factory=dict)
+    temporal_cv: dict = field(default_factory=dict)
+
+    def temporal_cv_for(self, analyte: str) -> tuple[float, str]:
+        """Temporal coefficient of variation of ``analyte`` [-] and where it comes from
+        ("setting" or "default setting, common practice")."""
+        if analyte in self.temporal_cv:
+            return float(self.temporal_cv[analyte]), "setting"
+        if "default" in self.temporal_cv:
+            return float(self.temporal_cv["default"]), "setting"
+        return DEFAULT_TEMPORAL_CV, "default setting, common practice"
 
 
 @dataclass
