@@ -140,7 +140,7 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
     caveat = (f" Provisional: the fit does not reproduce {n_out} lab result(s); see the notes."
               if n_out else "")
     return (f"Operate between {' and between '.join(parts)}; recommended rate {rec} "
-            f"(every analyte below {s.margin:.0%} of its limit with at least "
+            f"(every limit's judged statistic below {s.margin:.0%} of the limit with at least "
             f"{1 - s.exceedance_probability:.0%} probability, pumping level above the intake "
             f"plus submergence).{caveat}")
 
