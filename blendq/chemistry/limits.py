@@ -31,7 +31,6 @@ from scipy.special import ndtr
 from blendq.chemistry.analytes import get_analyte, to_canonical
 from blendq.errors import InputError
 
-
 SINGLE_SAMPLE = "single sample"
 ANNUAL_MEAN = "annual mean"
 STATISTICS = (SINGLE_SAMPLE, ANNUAL_MEAN)
