@@ -26,7 +26,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.special import ndtr
+from scipy.special import erfc
 
 from blendq.chemistry.analytes import get_analyte, to_canonical
 from blendq.errors import InputError
@@ -171,8 +171,13 @@ def exceedance_given_mean(mean, threshold, log_sd: float) -> np.ndarray:
     if log_sd <= 0:
         return (m > t).astype(float)
     with np.errstate(divide="ignore", invalid="ignore"):
-        z = (np.log(m / t) - 0.5 * log_sd**2) / log_sd
-    return np.where(m > 0, ndtr(z), 0.0)
+        # u = -z / sqrt(2) and Phi(z) = erfc(u) / 2 (erfc is accurate in the far lower tail);
+        # log(0) = -inf gives 0, NaN (nothing pumped, or a negative mean) is set to 0 below
+        u = (np.log(t) + 0.5 * log_sd**2) - np.log(m)
+        u *= 1.0 / (log_sd * np.sqrt(2.0))
+    p = erfc(u)
+    p *= 0.5
+    return np.nan_to_num(p, nan=0.0, copy=False)
 
 
 _CONFIRMATION = ComplianceBasis(SINGLE_SAMPLE, 2, "40 CFR 141.23", "secondary")
