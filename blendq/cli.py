@@ -274,6 +274,10 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = No
         for _, r in df.iterrows():
             typer.echo(f"  {r['From']} to {r['To']}: lower end set by {r['Lower end set by']}; "
                        f"upper end set by {r['Upper end set by']}")
+        from blendq.decide.sweep import compliance_statistics
+
+        for st in compliance_statistics(a.project, a.limits).values():
+            typer.echo(f"  judged: {st.describe()}")
         typer.echo(_caution_line())
 
     _guard(body)

@@ -230,9 +230,15 @@ def test_readme_window():
     r = run("window", DEMO, "--draws", DRAWS)
     assert r.exit_code == 0, r.output
     lines = r.stdout.splitlines()
-    assert lines[0].startswith("Operate between")
-    assert "recommended rate" in lines[0] and "gpm" in lines[0]
-    assert any("lower end set by" in ln for ln in lines)
+    # the demo at the default temporal CV has no window (tests/decide/test_analysis.py)
+    assert lines[0].startswith("No pumping rate meets every limit")
+    assert "Options that could open a window" in lines[0] and "gpm" in lines[0]
+    # each limit's judged statistic, its rule's source and the temporal CV
+    assert any(ln.startswith("  judged: nitrate: single sample with confirmation (40 CFR 141.23; "
+                             "secondary), temporal CV 10% (default setting, common practice), "
+                             "lab error ") for ln in lines)
+    assert any(ln.startswith("  judged: arsenic: annual mean of 4 quarterly samples "
+                             "(40 CFR 141.23(i); secondary)") for ln in lines)
     assert lines[-1].startswith("Caution: blendq is a planning aid")
 
 
@@ -241,10 +247,39 @@ def test_window_json_matches_text():
     assert r.exit_code == 0, r.output
     data = json.loads(r.stdout)
     assert data["draws"] == int(DRAWS)
-    lo, hi = data["window_m3_per_day"][0]
-    assert lo < data["recommended_rate_m3_per_day"] <= hi
+    assert data["window_m3_per_day"] == [] and data["recommended_rate_m3_per_day"] is None
+    assert data["compliance_basis"]["nitrate"]["description"] == "single sample with confirmation"
     text = run("window", DEMO, "--draws", DRAWS).stdout.splitlines()[0]
     assert data["decision"] == text
+
+
+def _demo_with(tmp_path, settings: str, limits: str) -> Path:
+    """A copy of the demo with lines added to [settings] and [[limits]] entries appended."""
+    project = tmp_path / "demo"
+    shutil.copytree(DEMO, project)
+    toml = project / "project.toml"
+    text = toml.read_text(encoding="utf-8").replace("[settings]\n", "[settings]\n" + settings, 1)
+    toml.write_text(text + "\n" + limits, encoding="utf-8")
+    return project
+
+
+def test_window_with_a_basis_and_temporal_cv_from_the_project_file(tmp_path):
+    # arsenic judged on single samples instead of the annual mean, no temporal variability
+    project = _demo_with(tmp_path, "temporal_cv = 0.0\n",
+                         '[[limits]]\nanalyte = "arsenic"\nauthority = "US-EPA"\n'
+                         'compliance = "single sample"\ncompliance_citation = "district rule"\n')
+    r = run("window", project, "--draws", DRAWS, "--json")
+    assert r.exit_code == 0, r.output
+    data = json.loads(r.stdout)
+    arsenic = data["compliance_basis"]["arsenic"]
+    assert (arsenic["statistic"], arsenic["samples_averaged"]) == ("single sample", 1)
+    assert (arsenic["citation"], arsenic["status"]) == ("district rule", "user setting")
+    assert data["compliance_basis"]["nitrate"]["temporal_cv"] == 0.0
+    assert data["compliance_basis"]["nitrate"]["temporal_cv_source"] == "setting"
+    assert data["window_m3_per_day"]  # lab error only: the demo's window opens
+    text = run("window", project, "--draws", DRAWS).stdout
+    assert "judged: arsenic: single sample (district rule; user setting), temporal CV 0% " \
+           "(setting)" in text
 
 
 def test_window_si_units():
@@ -261,7 +296,7 @@ def test_readme_report(tmp_path):
     out = tmp_path / "my-well-report"
     r = run("report", project, "--out", out, "--units", "SI", "--draws", DRAWS)
     assert r.exit_code == 0, r.output
-    assert r.stdout.startswith("Operate between")
+    assert r.stdout.startswith("No pumping rate meets every limit")
     assert "Report written to" in r.stdout
     assert "Caution:" in r.stdout
     for name in ("report.html", "report.pdf", "summary.json", "tables/zones.csv"):

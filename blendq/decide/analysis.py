@@ -97,7 +97,8 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     levels = check_levels(fit, d, pred, s.exceedance_probability, s.horizon)
     window = sweep.window_for(fit, pred, level_deep=levels.level_deep)
     limits = sweep.governing_limits(project.limits, pred.analytes)
-    table = sweep.sweep_table(pred, limits, s.margin, s.interval, project.zone_names)
+    table = sweep.sweep_table(pred, limits, s.margin, s.interval, project.zone_names,
+                              sweep.compliance_statistics(project, limits))
     notes = []
     if not fit.success:
         notes.append(f"The hydraulic fit did not converge: {fit.message}")
@@ -147,7 +148,7 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
     caveat = (f" Provisional: the fit does not reproduce {n_out} lab result(s); see the notes."
               if n_out else "")
     return (f"Operate between {' and between '.join(parts)}; recommended rate {rec} "
-            f"(every analyte below {s.margin:.0%} of its limit with at least "
+            f"(every limit's judged statistic below {s.margin:.0%} of the limit with at least "
             f"{1 - s.exceedance_probability:.0%} probability, pumping level above the intake "
             f"plus submergence).{caveat}")
 

@@ -508,7 +508,9 @@ def required_blend_rate(well_concentration, rate: float, blend_concentration: fl
     if not np.isfinite(q_b):
         raise ModelError(f"no blend rate keeps the discharge under {threshold:.4g} mg/L: the "
                          f"second source ({blend_concentration:.4g} mg/L) is not below it")
-    return q_b
+    # the binding draw blends to the threshold itself; a few ulps more keep rounding from
+    # putting it a hair above
+    return q_b * (1.0 + 8.0 * np.finfo(float).eps)
 
 
 # ------------------------------------------------------------------------------ evaluation
@@ -618,7 +620,11 @@ def evaluate(analysis, scenario: Scenario) -> ScenarioResult:
         else scenario.exceedance_probability
     intake = w.pump_intake_depth if scenario.intake_depth is None else scenario.intake_depth
     top = float(project.zone_top.min()) if w.keep_above_screen else None
-    from blendq.decide.sweep import applicable_ratio_rules, measured_exceedances
+    from blendq.decide.sweep import (
+        applicable_ratio_rules,
+        compliance_statistics,
+        measured_exceedances,
+    )
 
     same_water = scenario.blend is None and not scenario.changes_well
     # the base case's step-test levels and measured exceedances describe the well as tested:
@@ -631,7 +637,8 @@ def evaluate(analysis, scenario: Scenario) -> ScenarioResult:
     window = operating_window(pred, analysis.limits, margin, alpha, intake, w.submergence,
                               w.rate_min, w.rate_max, w.demand, top, level_deep=level_deep,
                               ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
-                              extra_criteria=extra)
+                              extra_criteria=extra,
+                              statistics=compliance_statistics(project, analysis.limits))
     allowed = intake - w.submergence if top is None else min(intake - w.submergence, top)
     level = np.quantile(pred.pumping_level, 1 - alpha, axis=0)
     y, beyond = pumping_level_yield(rates, level, allowed)

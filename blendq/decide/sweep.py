@@ -2,9 +2,16 @@
 
 For a grid of rates: predicted discharge concentration per analyte with its band, the
 probability of exceeding margin x limit, the pumping level and each zone's share. The window is
-the set of rates where, for every analyte, P(C > margin x limit) <= alpha, the pumping level
+the set of rates where, for every analyte, P(S > margin x limit) <= alpha, the pumping level
 stays above the pump intake plus the required submergence (and, if asked, above the top of the
 uppermost zone), within the pump's rate range. It may be several intervals.
+
+S is the statistic the limit is judged on (its :class:`~blendq.chemistry.limits.ComplianceBasis`:
+a single sample, averaged with its confirmation sample where the rule has one, or the annual
+mean of quarterly samples). For each Monte Carlo draw of the mean discharge concentration m,
+P(S > t | m) is a lognormal tail that carries the water's temporal variability and the lab's
+error (:func:`~blendq.chemistry.limits.exceedance_given_mean`); the exceedance probability is
+its average over the draws (the predictive distribution of S).
 """
 
 from __future__ import annotations
@@ -15,7 +22,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from blendq.chemistry.limits import Limit
+from blendq.chemistry.limits import Limit, RatioRule, exceedance_given_mean
 from blendq.fit.estimation import FitResult
 from blendq.fit.uncertainty import Draws, Prediction, predict
 from blendq.well.model import elapsed_test_time, horizon_factor
@@ -106,11 +113,182 @@ def governing_limits(limits: list[Limit], analytes: list[str]) -> dict[str, Limi
     return out
 
 
+@dataclass(frozen=True)
+class Statistic:
+    """The statistic an analyte's governing limit is judged on, and its spread at a fixed rate.
+
+    Attributes
+    ----------
+    analyte : str
+    limit : Limit
+        Governing limit; ``limit.compliance`` is the basis (single sample or annual mean).
+    temporal_cv : float
+        Coefficient of variation of the water's concentration from sample to sample [-].
+    temporal_cv_source : str
+        "setting" or "default setting, common practice".
+    lab_cv : float
+        Relative one-sd lab error of a compliance result [-].
+    lab_cv_source : str
+    """
+
+    analyte: str
+    limit: Limit
+    temporal_cv: float
+    temporal_cv_source: str
+    lab_cv: float
+    lab_cv_source: str
+
+    @property
+    def log_sd(self) -> float:
+        """sd of ln(S / m) [-] (:func:`blendq.chemistry.limits.statistic_log_sd`)."""
+        return self.limit.compliance.log_sd(self.temporal_cv, self.lab_cv)
+
+    def describe(self) -> str:
+        """One line such as ``"nitrate: single sample with confirmation (40 CFR 141.23,
+        secondary), temporal CV 10 % (default setting, common practice), lab error 5 % (...)"``."""
+        b = self.limit.compliance
+        return (f"{self.analyte}: {b.describe()} ({b.citation}; {b.status}), temporal CV "
+                f"{self.temporal_cv:.0%} ({self.temporal_cv_source}), lab error "
+                f"{self.lab_cv:.0%} ({self.lab_cv_source})")
+
+    def as_dict(self) -> dict:
+        b = self.limit.compliance
+        return {"limit": self.limit.label(), "limit_mg_per_l": self.limit.canonical(),
+                "statistic": b.statistic, "samples_averaged": b.samples,
+                "description": b.describe(), "rule": b.rule(), "citation": b.citation,
+                "status": b.status, "temporal_cv": self.temporal_cv,
+                "temporal_cv_source": self.temporal_cv_source, "lab_cv": self.lab_cv,
+                "lab_cv_source": self.lab_cv_source, "log_sd": self.log_sd}
+
+
+def lab_relative_error(samples: pd.DataFrame, analyte: str, default: float) -> tuple[float, str]:
+    """Relative one-sd lab error [-] of a compliance result of ``analyte``.
+
+    The median of uncertainty / value over the detected results whose lab stated an
+    uncertainty; ``default`` (``settings.default_relative_uncertainty``) where none did.
+    """
+    if len(samples) and "uncertainty" in samples:
+        rows = samples[(samples["analyte"] == analyte)
+                       & ~samples["nondetect"].astype(bool)]
+        value = rows["value"].to_numpy(float)
+        unc = rows["uncertainty"].to_numpy(float)
+        good = np.isfinite(value) & np.isfinite(unc) & (value > 0)
+        if good.any():
+            return float(np.median(unc[good] / value[good])), "median stated by the lab"
+    return float(default), "default lab uncertainty setting"
+
+
+def compliance_statistics(project, limits: dict[str, Limit]) -> dict[str, Statistic]:
+    """The statistic each governing limit is judged on, with the project's temporal CV and the
+    lab error of its results.
+
+    Parameters
+    ----------
+    project : blendq.inputs.project.Project
+    limits : dict analyte -> Limit
+        Governing limits (:func:`governing_limits`).
+    """
+    s = project.settings
+    out = {}
+    for analyte, lim in limits.items():
+        cv, cv_source = s.temporal_cv_for(analyte)
+        lab, lab_source = lab_relative_error(project.samples, analyte,
+                                             s.default_relative_uncertainty)
+        out[analyte] = Statistic(analyte, lim, cv, cv_source, lab, lab_source)
+    return out
+
+
+def exceedance(concentration, threshold: float, log_sd: float = 0.0) -> np.ndarray:
+    """Predictive probability that the judged statistic exceeds ``threshold`` at each rate.
+
+    Parameters
+    ----------
+    concentration : ndarray (n_draws, n_rates)
+        Mean discharge concentration of each draw [mg/L].
+    threshold : float
+        [mg/L], e.g. margin x limit.
+    log_sd : float
+        Spread of the statistic around the mean (:attr:`Statistic.log_sd`); 0 judges the mean.
+
+    Returns
+    -------
+    ndarray (n_rates,)
+        The average over draws of P(S > threshold | mean) [-].
+    """
+    return exceedance_given_mean(concentration, threshold, log_sd).mean(0)
+
+
+def statistic_quantiles(concentration, probs, log_sd: float, iterations: int = 48) -> np.ndarray:
+    """Quantiles of the predictive distribution of the judged statistic at each rate.
+
+    The distribution is the mixture over draws of S = m_d F (F lognormal with mean 1 and
+    ``log_sd``); its CDF is the average of the lognormal CDFs, inverted by bisection on ln S.
+
+    Parameters
+    ----------
+    concentration : ndarray (n_draws, n_rates)
+        Mean discharge concentration of each draw [mg/L] (NaN where nothing is pumped).
+    probs : sequence of float
+    log_sd : float
+    iterations : int
+        Bisection steps (48 halve the bracket to about 1e-13 of its width).
+
+    Returns
+    -------
+    ndarray (n_probs, n_rates) [mg/L]; NaN at a rate whose draws are all NaN.
+    """
+    from scipy.special import ndtr
+
+    c = np.asarray(concentration, float)
+    probs = np.asarray(probs, float)
+    if log_sd <= 0:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            return np.nanquantile(c, probs, axis=0)
+    s = float(log_sd)
+    valid = np.isfinite(c)
+    n = valid.sum(0)
+    pos = valid & (c > 0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lm = np.where(pos, np.log(np.where(pos, c, 1.0)) - 0.5 * s * s, np.nan)
+    zero_frac = np.where(n > 0, (valid & ~pos).sum(0) / np.maximum(n, 1), np.nan)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        lo = np.nanmin(lm, axis=0) - 9 * s
+        hi = np.nanmax(lm, axis=0) + 9 * s
+    lo = np.where(np.isfinite(lo), lo, 0.0)[None, :].repeat(len(probs), 0)
+    hi = np.where(np.isfinite(hi), hi, 0.0)[None, :].repeat(len(probs), 0)
+    for _ in range(iterations):
+        mid = 0.5 * (lo + hi)
+        z = (mid[:, None, :] - lm[None, :, :]) / s
+        cdf = (np.where(pos[None], ndtr(z), 0.0).sum(1) + (valid & ~pos).sum(0)) \
+            / np.maximum(n, 1)
+        below = cdf < probs[:, None]
+        lo = np.where(below, mid, lo)
+        hi = np.where(below, hi, mid)
+    out = np.exp(0.5 * (lo + hi))
+    out = np.where(zero_frac[None, :] >= probs[:, None], 0.0, out)
+    return np.where(n[None, :] > 0, out, np.nan)
+
+
+def rule_log_sd(rule: RatioRule, statistics: dict[str, Statistic] | None) -> float:
+    """Spread of a ratio rule's sum: the largest of its terms' (each term judged on its own
+    limit's basis with its analyte's temporal CV and lab error). Taking one common factor for
+    every term treats them as varying together, which gives the sum its largest spread."""
+    if not statistics:
+        return 0.0
+    sds = [term.compliance.log_sd(statistics[term.analyte].temporal_cv,
+                                  statistics[term.analyte].lab_cv)
+           for term in rule.terms if term.analyte in statistics]
+    return max(sds, default=0.0)
+
+
 def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, alpha: float,
                      intake_depth: float, submergence: float, rate_min: float, rate_max: float,
                      demand: float | None = None, top_of_screen: float | None = None,
                      level_quantile: float | None = None, level_deep=None,
-                     ratio_rules=(), extra_criteria=()) -> Window:
+                     ratio_rules=(), extra_criteria=(),
+                     statistics: dict[str, Statistic] | None = None) -> Window:
     """Find the rates that meet every quality and hydraulic criterion.
 
     Parameters
@@ -139,21 +317,28 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
         predicted are left out (see :func:`applicable_ratio_rules`).
     extra_criteria : sequence of Criterion
         Further conditions on the same rate grid (see :func:`measured_exceedances`).
+    statistics : dict analyte -> Statistic, optional
+        The statistic each limit is judged on (:func:`compliance_statistics`); P(S > margin x
+        limit) is its predictive probability. An analyte without one is judged on the mean
+        (the share of draws whose mean exceeds).
     """
     rates = pred.rates
+    statistics = statistics or {}
     crit = []
     for j, analyte in enumerate(pred.analytes):
         if analyte not in limits:
             continue
         thr = margin * limits[analyte].canonical()
-        p_exc = (pred.concentration[:, :, j] > thr).mean(0)
+        sd = statistics[analyte].log_sd if analyte in statistics else 0.0
+        p_exc = exceedance(pred.concentration[:, :, j], thr, sd)
         crit.append(Criterion(f"{analyte} (P > {margin:g} x limit above {alpha:g})",
                               p_exc <= alpha, "quality"))
     for rule in ratio_rules:
         total = sum(pred.concentration[:, :, pred.analytes.index(t.analyte)] / t.canonical()
                     for t in rule.terms)
+        p_exc = exceedance(total, margin, rule_log_sd(rule, statistics))
         crit.append(Criterion(f"{rule.authority} {rule.name} (P > {margin:g} above {alpha:g})",
-                              (total > margin).mean(0) <= alpha, "quality"))
+                              p_exc <= alpha, "quality"))
     crit.extend(extra_criteria)
     lq = 1 - alpha if level_quantile is None else level_quantile
     if level_deep is not None:
@@ -289,6 +474,7 @@ def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
     s = project.settings
     w = project.well
     limits = governing_limits(project.limits, pred.analytes)
+    statistics = compliance_statistics(project, limits)
     return operating_window(
         pred, limits, s.margin if margin is None else margin,
         s.exceedance_probability if alpha is None else alpha,
@@ -296,23 +482,38 @@ def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
         float(project.zone_top.min()) if w.keep_above_screen else None, level_deep=level_deep,
         ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
         extra_criteria=measured_exceedances(fit, limits, s.margin if margin is None else margin,
-                                            pred.rates))
+                                            pred.rates),
+        statistics=statistics)
 
 
 def sweep_table(pred: Prediction, limits: dict[str, Limit], margin: float, interval: float,
-                zone_names: list[str]) -> pd.DataFrame:
-    """A long-format table of the sweep: one row per rate with median and band per analyte,
-    exceedance probabilities, pumping level and zone shares (base units)."""
+                zone_names: list[str],
+                statistics: dict[str, Statistic] | None = None) -> pd.DataFrame:
+    """A long-format table of the sweep: one row per rate (base units).
+
+    Columns: per analyte the median and band of the mean concentration (``<a>_median``,
+    ``<a>_lower``, ``<a>_upper``); where a limit applies, the predictive probability that the
+    judged statistic exceeds margin x limit and the limit (``<a>_p_exceed_margin``,
+    ``<a>_p_exceed_limit``), and, when ``statistics`` are given, the band of the judged
+    statistic (``<a>_statistic_lower``, ``<a>_statistic_upper``); the pumping level; the
+    median share of each zone.
+    """
     q = [(1 - interval) / 2, 0.5, 1 - (1 - interval) / 2]
     cq = pred.quantiles(q)
+    statistics = statistics or {}
     data = {"rate": pred.rates}
     for j, a in enumerate(pred.analytes):
         data[f"{a}_median"] = cq[1, :, j]
         data[f"{a}_lower"] = cq[0, :, j]
         data[f"{a}_upper"] = cq[2, :, j]
         if a in limits:
-            data[f"{a}_p_exceed_margin"] = (pred.concentration[:, :, j] > margin * limits[a].canonical()).mean(0)
-            data[f"{a}_p_exceed_limit"] = (pred.concentration[:, :, j] > limits[a].canonical()).mean(0)
+            sd = statistics[a].log_sd if a in statistics else 0.0
+            c = pred.concentration[:, :, j]
+            data[f"{a}_p_exceed_margin"] = exceedance(c, margin * limits[a].canonical(), sd)
+            data[f"{a}_p_exceed_limit"] = exceedance(c, limits[a].canonical(), sd)
+            if a in statistics:
+                sq = statistic_quantiles(c, [q[0], q[2]], sd)
+                data[f"{a}_statistic_lower"], data[f"{a}_statistic_upper"] = sq[0], sq[1]
     lq = np.quantile(pred.pumping_level, q, axis=0)
     data["pumping_level_median"] = lq[1]
     data["pumping_level_deep"] = lq[2]

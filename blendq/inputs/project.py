@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from blendq.chemistry.limits import Limit
+from blendq.chemistry.limits import DEFAULT_TEMPORAL_CV, Limit
 
 #: columns of each table (in base units), in order
 TABLE_COLUMNS: dict[str, list[str]] = {
@@ -213,6 +213,10 @@ class Settings:
     unseen_zone_factor : float
         A zone value the data put no upper limit on is drawn up to this multiple of the
         analyte's largest result or detection limit [-]. Common practice: 3.
+    temporal_cv : dict
+        Coefficient of variation [-] of each analyte's concentration from sample to sample at
+        a fixed rate, beyond lab error (analyte key -> value; the key "default" for analytes
+        not named). Analytes without a value take ``DEFAULT_TEMPORAL_CV`` (common practice).
     """
 
     limit_sets: tuple[str, ...] = ("US-EPA",)
@@ -237,6 +241,16 @@ class Settings:
     redevelopment_shortfall: float = 0.5
     unresolved_tolerance: float = 0.05
     unseen_zone_factor: float = 3.0
+    temporal_cv: dict = field(default_factory=dict)
+
+    def temporal_cv_for(self, analyte: str) -> tuple[float, str]:
+        """Temporal coefficient of variation of ``analyte`` [-] and where it comes from
+        ("setting" or "default setting, common practice")."""
+        if analyte in self.temporal_cv:
+            return float(self.temporal_cv[analyte]), "setting"
+        if "default" in self.temporal_cv:
+            return float(self.temporal_cv["default"]), "setting"
+        return DEFAULT_TEMPORAL_CV, "default setting, common practice"
 
 
 @dataclass

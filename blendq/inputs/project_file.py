@@ -10,11 +10,17 @@ converted to the core's base units (see :mod:`blendq.units`); a problem is an
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from blendq.chemistry.analytes import get_analyte, normalise_basis
-from blendq.chemistry.limits import Limit, limit_set
+from blendq.chemistry.limits import (
+    ANNUAL_MEAN,
+    SINGLE_SAMPLE,
+    ComplianceBasis,
+    Limit,
+    limit_set,
+)
 from blendq.errors import InputError
 from blendq.inputs.project import TABLE_COLUMNS, Settings, Well, Zone
 from blendq.inputs.tables import located, split_unit_basis
@@ -316,19 +322,80 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
                                             0.0, 1.0)),
         unseen_zone_factor=float(s.number("unseen_zone_factor", d.unseen_zone_factor, 1.0,
                                           None)),
+        temporal_cv=_temporal_cv(s),
     )
     s.done()
     return settings
 
 
-def _user_limits(doc: dict, label: str) -> list[Limit]:
-    limits = []
+#: largest accepted temporal coefficient of variation [-]
+_CV_MAX = 5.0
+
+
+def _temporal_cv(s: _Section) -> dict[str, float]:
+    """``temporal_cv``: one number for every analyte, or a table analyte -> number (the key
+    ``default`` for the analytes not named)."""
+    value = s.get("temporal_cv", None)
+    if value is None:
+        return {}
+    if not isinstance(value, dict):
+        return {"default": float(s.number("temporal_cv", None, 0.0, _CV_MAX))}
+    sub = _Section(value, f"{s.where}.temporal_cv", s.file)
+    out = {}
+    for key in value:
+        cv = float(sub.number(key, None, 0.0, _CV_MAX))
+        if key == "default":
+            out["default"] = cv
+            continue
+        try:
+            out[get_analyte(key).key] = cv
+        except InputError as err:
+            raise located(err, s.file, None, f"{sub.where}.{key}") from err
+    return out
+
+
+#: values of a limit's ``compliance`` key -> (statistic, samples averaged)
+COMPLIANCE_BASES = {"single sample": (SINGLE_SAMPLE, 1),
+                    "single sample with confirmation": (SINGLE_SAMPLE, 2),
+                    "annual mean": (ANNUAL_MEAN, 4)}
+
+
+def _compliance(s: _Section, label: str) -> ComplianceBasis | None:
+    text = s.text("compliance", None)
+    if text is None:
+        return None
+    if text not in COMPLIANCE_BASES:
+        raise s.error("compliance", f'"{text}" is not one of '
+                                    + ", ".join(f'"{k}"' for k in COMPLIANCE_BASES))
+    statistic, samples = COMPLIANCE_BASES[text]
+    return ComplianceBasis(statistic, samples,
+                           s.text("compliance_citation", f"{label} [[limits]]"), "user setting")
+
+
+def _user_limits(doc: dict, label: str, limits: list[Limit]) -> list[Limit]:
+    """The limits of the named sets with the user's ``[[limits]]`` applied: an entry with a
+    ``value`` adds a limit; an entry with only ``compliance`` changes the compliance basis of
+    the limits of that analyte (of ``authority`` when given) already in the list."""
+    limits = list(limits)
     for i, entry in enumerate(_tables_list(doc, "limits", label), start=1):
         s = _Section(entry, f"limits[{i}]", label)
         try:
             analyte = get_analyte(s.text("analyte"))
         except InputError as err:
             raise located(err, label, None, f"limits[{i}].analyte") from err
+        compliance = _compliance(s, label)
+        if "value" not in entry and compliance is not None:
+            authority = s.text("authority", s.text("name", None))
+            hits = [k for k, lim in enumerate(limits) if lim.analyte == analyte.key
+                    and (authority is None or lim.authority == authority)]
+            if not hits:
+                whose = f"{authority} " if authority else ""
+                raise s.error("analyte", f"no {whose}limit of {analyte.key} to give a compliance "
+                                         "basis to; add a value to make it a new limit")
+            for k in hits:
+                limits[k] = replace(limits[k], compliance=compliance)
+            s.done()
+            continue
         text = s.text("value")
         number, unit, basis_in_unit = split_unit_basis(text, with_number=True)
         if number is None or not math.isfinite(number) or number <= 0:
@@ -341,7 +408,8 @@ def _user_limits(doc: dict, label: str) -> list[Limit]:
             raise located(err, label, None, f"limits[{i}].basis", basis) from err
         authority = s.text("authority", s.text("name", "user"))
         limit = Limit(analyte.key, number, unit, basis, authority,
-                      s.text("kind", "user limit"), s.text("citation", f"{label} [[limits]]"))
+                      s.text("kind", "user limit"), s.text("citation", f"{label} [[limits]]"),
+                      *([compliance] if compliance is not None else []))
         try:
             limit.canonical()
         except InputError as err:
@@ -437,7 +505,6 @@ def read_project_file(path: str | Path) -> ProjectFile:
     head.done()
     well, zones = _well(doc, label), _zones(doc, label)
     settings = _settings(doc, units, label)
-    limits = [lim for s in settings.limit_sets for lim in limit_set(s)]
-    limits += _user_limits(doc, label)
+    limits = _user_limits(doc, label, [lim for s in settings.limit_sets for lim in limit_set(s)])
     return ProjectFile(name, well, zones, settings, limits, _scenarios(doc, label),
                        _table_paths(doc, project_file.parent, label), project_file)

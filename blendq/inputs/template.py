@@ -73,6 +73,9 @@ horizon = "365 d"                     # operating time for transient conductance
 draws = 1000                          # Monte Carlo draws
 seed = 1                              # random seed (results repeat exactly)
 conductance_model = "auto"            # "auto", "steady", "transient", "given" or "flowlog"
+temporal_cv = 0.10                    # sample-to-sample variation of the water at a fixed
+                                      # rate (common practice); estimate it from the well's
+                                      # monitoring history, per analyte in [settings.temporal_cv]
 
 [settings.qa]                         # options of the lab and field review (free table)
 
@@ -83,6 +86,13 @@ value = "8 mg/L"
 basis = "as N"
 authority = "Example water system"
 kind = "operating target"
+compliance = "single sample"          # or "single sample with confirmation", "annual mean"
+
+# Judge a named set's limit on another statistic (optional):
+# [[limits]]
+# analyte = "arsenic"
+# authority = "US-EPA"
+# compliance = "single sample"
 
 # Options to compare (optional; see docs/scenarios.md); each needs a unique name:
 # [[scenarios]]

@@ -15,6 +15,7 @@ import pandas as pd
 from blendq import CAUTIONS, __version__
 from blendq.chemistry.analytes import get_analyte
 from blendq.decide.analysis import Analysis, decision_sentence
+from blendq.decide.sweep import compliance_statistics, exceedance, statistic_quantiles
 from blendq.report.chart_pool import ChartJob, ChartPool
 from blendq.report.document import (
     BulletList,
@@ -45,6 +46,10 @@ REFERENCES = [
     "well (MNW2) package for MODFLOW. USGS Techniques and Methods 6-A30.",
     "Izbicki, J.A. and others, USGS reports on well-bore flow and depth-dependent sampling.",
     "US EPA, 40 CFR 141.62 and 141.66 (maximum contaminant levels); 40 CFR 136.3 (holding times).",
+    "US EPA, 40 CFR 141.23 (nitrate confirmation sample; running annual average of quarterly "
+    "samples for inorganics, 141.23(i)), as restated by state program guidance.",
+    "Fenton, L.F. (1960) The sum of log-normal probability distributions in scatter transmission "
+    "systems. IRE Trans. Communication Systems 8(1), 57-67.",
     "WHO (2017) Guidelines for Drinking-water Quality, 4th ed. incorporating the first addendum.",
     "Directive (EU) 2020/2184, Annex I.",
     "National Research Council (1995) Nitrate and Nitrite in Drinking Water.",
@@ -62,6 +67,11 @@ ASSUMPTIONS = [
     "trend).",
     "Bands describe the uncertainty of the mean discharge concentration from lab error, "
     "flow-log and level error and the priors; they are not the spread of single future samples.",
+    "The window judges each limit on the statistic its rule judges (a single sample with its "
+    "confirmation sample, or the annual mean of quarterly samples): the water's temporal "
+    "variability at a fixed rate (a coefficient of variation per analyte) and the lab's error "
+    "of a compliance result are added to the mean as lognormal factors. Two samples taken "
+    "within a day share one temporal draw; quarterly samples have independent ones.",
     "Non-detects are censored values: the fitted blend may not exceed the detection limit.",
 ]
 
@@ -113,19 +123,44 @@ def window_display_table(a: Analysis, units: str) -> pd.DataFrame:
     return pd.DataFrame(rows, columns=["From", "To", "Lower end set by", "Upper end set by"])
 
 
+def compliance_table(a: Analysis) -> pd.DataFrame:
+    """Each governing limit with the statistic the window judges it on."""
+    rows = []
+    for analyte, st in compliance_statistics(a.project, a.limits).items():
+        b = st.limit.compliance
+        rows.append({"Analyte": get_analyte(analyte).label(), "Limit": st.limit.label(),
+                     "Judged on": b.describe(), "Rule": b.rule(),
+                     "Source of the rule": f"{b.citation} ({b.status})",
+                     "Temporal CV": f"{st.temporal_cv:.0%} ({st.temporal_cv_source})",
+                     "Lab error": f"{st.lab_cv:.0%} ({st.lab_cv_source})"})
+    return pd.DataFrame(rows, columns=["Analyte", "Limit", "Judged on", "Rule",
+                                       "Source of the rule", "Temporal CV", "Lab error"])
+
+
 def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
-    """Predicted quality and level at one rate (median and band)."""
+    """Predicted quality and level at one rate: median and band of the mean, and the
+    probability that the judged statistic exceeds margin x limit."""
     k = int(np.argmin(np.abs(a.prediction.rates - rate)))
     s = a.project.settings
     q = [(1 - s.interval) / 2, 0.5, 1 - (1 - s.interval) / 2]
+    stats = compliance_statistics(a.project, a.limits)
     rows = []
     for j, analyte in enumerate(a.prediction.analytes):
-        vals = np.quantile(a.prediction.concentration[:, k, j], q)
+        c = a.prediction.concentration[:, k:k + 1, j]
+        vals = np.quantile(c[:, 0], q)
         (lo, med, hi), unit = conc_display(analyte, vals)
         lim = a.limits.get(analyte)
-        p = (a.prediction.concentration[:, k, j] > s.margin * lim.canonical()).mean() if lim else np.nan
+        st = stats.get(analyte)
+        sd = st.log_sd if st is not None else 0.0
+        p = float(exceedance(c, s.margin * lim.canonical(), sd)[0]) if lim else np.nan
+        if st is not None:
+            (slo, shi), _ = conc_display(analyte, statistic_quantiles(c, [q[0], q[2]], sd)[:, 0])
+            judged = f"{st.limit.compliance.describe()}: {slo:.3g} to {shi:.3g} {unit}"
+        else:
+            judged = "-"
         rows.append({"Analyte": get_analyte(analyte).label(), "Median": f"{med:.3g} {unit}",
                      "Band": f"{lo:.3g} to {hi:.3g} {unit}",
+                     "Judged statistic (band)": judged,
                      "Limit": lim.label() if lim else "none",
                      f"P(> {s.margin:.0%} of limit)": f"{p:.1%}" if lim else "-"})
     lv = np.quantile(a.prediction.pumping_level[:, k], q)
@@ -133,6 +168,7 @@ def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
                  "Median": format_quantity(lv[1], "length", units),
                  "Band": f"{format_quantity(lv[0], 'length', units)} to "
                          f"{format_quantity(lv[2], 'length', units)}",
+                 "Judged statistic (band)": "-",
                  "Limit": "intake - submergence " + format_quantity(
                      a.project.well.pump_intake_depth - a.project.well.submergence, "length", units),
                  f"P(> {s.margin:.0%} of limit)": "-"})
@@ -226,10 +262,17 @@ def quality_jobs(a: Analysis, units: str) -> list[ChartJob]:
     from blendq.report.charts import quality
 
     s = a.project.settings
+    stats = compliance_statistics(a.project, a.limits)
+    single = [k for k, st in stats.items() if st.limit.compliance.statistic == "single sample"]
+    extra = (f" Dashed: {s.interval:.0%} range of a compliance sample for the limits judged on "
+             f"single samples ({', '.join(single)}), with the water's temporal variability and "
+             "the lab's error." if single else "")
     return [
-        ChartJob("Discharge quality against pumping rate: median, band, limits, the step "
-                 "samples and the operating window.", quality.quality_vs_rate,
-                 (a.prediction, a.window, a.limits, s.margin, s.interval, a.project, units)),
+        ChartJob("Discharge quality against pumping rate: median and band of the mean discharge "
+                 "concentration, limits, the step samples and the operating window." + extra,
+                 quality.quality_vs_rate,
+                 (a.prediction, a.window, a.limits, s.margin, s.interval, a.project, units, None,
+                  stats)),
         ChartJob("Share of the discharge from each zone against pumping rate.",
                  quality.zone_shares, (a.prediction, a.project.zone_names, a.window, units)),
         ChartJob(f"Pumping level against rate after {s.horizon:g} days of pumping (the "
@@ -274,7 +317,8 @@ def build_document(a: Analysis, units: str = "US", created: str = "",
         ("Demand", format_quantity(w.demand, "rate", units) if w.demand else "-"),
         ("Steps", str(len(p.steps))), ("Lab results", str(len(p.samples))),
         ("Flow logs", str(p.flowlogs["log"].nunique()) if len(p.flowlogs) else "none"),
-        ("Limits", "; ".join(f"{get_analyte(k).label()}: {lim.label()}"
+        ("Limits", "; ".join(f"{get_analyte(k).label()}: {lim.label()}, judged on "
+                             f"{lim.compliance.describe()}"
                              for k, lim in sorted(a.limits.items())) or "none"),
         ("Margin", f"{s.margin:.0%} of each limit"),
         ("Accepted exceedance probability", f"{s.exceedance_probability:.0%}"),
@@ -330,6 +374,11 @@ def build_document(a: Analysis, units: str = "US", created: str = "",
         ), "zones"),
         Section("Operating window", (
             Table(window_display_table(a, units), "Rates that meet every criterion."),
+            Table(compliance_table(a),
+                  "The statistic each limit is judged on. The window asks that the probability "
+                  "of this statistic exceeding margin x limit stay at or below the accepted "
+                  "exceedance probability. The temporal CV should be estimated from the well's "
+                  "monitoring history where one exists."),
             Table(at_rate_table(a, rec_rate, units),
                   f"Predicted discharge at {format_quantity(rec_rate, 'rate', units)}."),
         ), "window"),
@@ -344,8 +393,11 @@ def build_document(a: Analysis, units: str = "US", created: str = "",
                       "concentrations: weighted, bounded and censored least squares; hydraulics "
                       "by variable projection with scipy least_squares on flow-log, level, "
                       "prior and quality residuals. Uncertainty: linearised covariance and a "
-                      "seeded Monte Carlo refit. Window: P(C > margin x limit) <= alpha for "
-                      "every analyte, pumping level above intake plus submergence, pump range; "
+                      "seeded Monte Carlo refit. Window: P(S > margin x limit) <= alpha for "
+                      "every analyte, S the statistic its limit is judged on (a single sample "
+                      "averaged with its confirmation sample, or the annual mean of quarterly "
+                      "samples), each draw's mean concentration times a lognormal factor for "
+                      "temporal variability and lab error, averaged over the draws; pumping level above intake plus submergence, pump range; "
                       "rates near a step whose sample exceeded margin x limit are left out "
                       "whatever the model says; a fit that misses a lab result by more than "
                       "3 standard deviations makes the decision provisional."),
@@ -384,6 +436,8 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
         "window_limiting": [[lo_r, hi_r] for _, _, lo_r, hi_r in w.intervals],
         "recommended_rate_m3_per_day": w.recommended,
         "reason_empty": w.reason_empty,
+        "compliance_basis": {k: st.as_dict()
+                             for k, st in compliance_statistics(a.project, a.limits).items()},
         "zones": a.zones.to_dict(orient="records"),
         "not_fitted": a.not_fitted,
         "qa": a.qa.summary_lines(),

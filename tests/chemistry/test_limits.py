@@ -8,15 +8,33 @@ Each expected value carries its source beside it:
 - Directive (EU) 2020/2184, Annex I, Part B (chemical parameters) and its notes.
 The nitrate/nitrite conversions use molar masses from the ``molmass`` library and the National
 Research Council (1995) factor 1 mg/L NO3-N = 4.429 mg/L NO3.
+Compliance bases: state program guidance restating 40 CFR 141.23 (nitrate confirmation sample)
+and 40 CFR 141.23(i) (running annual average), both secondary sources; the lognormal tail is
+checked against scipy.stats.lognorm.
 """
 
 from __future__ import annotations
 
+import math
+
 import molmass
+import numpy as np
 import pytest
+from scipy import stats
 
 from blendq.chemistry.analytes import get_analyte
-from blendq.chemistry.limits import CATALOGUE, RATIO_RULES, limit_set, ratio_value
+from blendq.chemistry.limits import (
+    ANNUAL_MEAN,
+    CATALOGUE,
+    DEFAULT_TEMPORAL_CV,
+    RATIO_RULES,
+    SINGLE_SAMPLE,
+    ComplianceBasis,
+    exceedance_given_mean,
+    limit_set,
+    ratio_value,
+    statistic_log_sd,
+)
 from blendq.errors import InputError
 
 N_PER_NO3 = molmass.Formula("N").mass / molmass.Formula("NO3").mass  # molmass library
@@ -147,3 +165,76 @@ def test_limit_analytes_are_catalogued():
     for limits in CATALOGUE.values():
         for lim in limits:
             assert get_analyte(lim.analyte).key == lim.analyte
+
+
+# ------------------------------------------------------------------- compliance basis
+def test_us_compliance_bases_follow_40_cfr_141_23():
+    # state program guidance restating 40 CFR 141.23 (secondary): nitrate, a confirmation
+    # sample within 24 h and compliance on the average of the two; 40 CFR 141.23(i):
+    # arsenic and other inorganics on a running annual average of quarterly samples
+    us = {lim.analyte: lim.compliance for lim in CATALOGUE["US-EPA"]}
+    assert (us["nitrate"].statistic, us["nitrate"].samples) == (SINGLE_SAMPLE, 2)
+    assert (us["nitrate"].citation, us["nitrate"].status) == ("40 CFR 141.23", "secondary")
+    for analyte in ("arsenic", "fluoride", "selenium"):
+        b = us[analyte]
+        assert (b.statistic, b.samples, b.citation, b.status) == (
+            ANNUAL_MEAN, 4, "40 CFR 141.23(i)", "secondary")
+    # not in the checked sources: the same rules, called common practice
+    for analyte in ("nitrite", "nitrate_nitrite", "uranium"):
+        assert us[analyte].status == "common practice (setting)"
+    assert us["uranium"].statistic == ANNUAL_MEAN
+
+
+def test_who_and_eu_bases_are_common_practice_settings():
+    # the WHO and EU texts checked give the values only: each sample is compared with them
+    for authority in ("WHO", "EU"):
+        for lim in CATALOGUE[authority]:
+            b = lim.compliance
+            assert (b.statistic, b.samples) == (SINGLE_SAMPLE, 1)
+            assert b.status == "common practice (setting)"
+            assert "not a sampling rule" in b.citation
+    every = [lim.compliance for s in CATALOGUE.values() for lim in s]
+    assert all("memory" not in b.citation + b.status for b in every)
+    assert 0 < DEFAULT_TEMPORAL_CV <= 0.2  # a modest default
+
+
+def test_basis_descriptions():
+    assert CATALOGUE["US-EPA"][0].compliance.describe() == "single sample with confirmation"
+    assert CATALOGUE["US-EPA"][3].compliance.describe() == "annual mean of 4 quarterly samples"
+    assert "within 24 h" in CATALOGUE["US-EPA"][0].compliance.rule()
+    with pytest.raises(InputError, match="is not one of"):
+        ComplianceBasis("monthly mean", 3, "", "")
+    with pytest.raises(InputError, match="cannot average"):
+        ComplianceBasis(SINGLE_SAMPLE, 3, "", "")
+
+
+def test_statistic_log_sd_by_hand():
+    # single sample with confirmation: one temporal draw, two lab errors averaged
+    # sigma^2 = ln(1 + 0.1^2) + ln(1 + 0.05^2 / 2)
+    conf = ComplianceBasis(SINGLE_SAMPLE, 2, "", "")
+    assert statistic_log_sd(conf, 0.1, 0.05) == pytest.approx(
+        math.sqrt(math.log(1.01) + math.log(1.00125)), rel=1e-12)
+    # annual mean of 4: c^2 = 1.01 x 1.0025 - 1; sigma^2 = ln(1 + c^2 / 4)
+    annual = ComplianceBasis(ANNUAL_MEAN, 4, "", "")
+    assert statistic_log_sd(annual, 0.1, 0.05) == pytest.approx(
+        math.sqrt(math.log(1 + (1.01 * 1.0025 - 1) / 4)), rel=1e-12)
+    assert statistic_log_sd(annual, 0.0, 0.0) == 0.0
+    with pytest.raises(InputError):
+        statistic_log_sd(annual, -0.1, 0.0)
+
+
+@pytest.mark.parametrize(("mean", "threshold", "sigma"), [
+    (7.0, 8.0, 0.1), (9.0, 8.0, 0.05), (0.004, 0.008, 0.6), (8.0, 8.0, 0.2)])
+def test_lognormal_tail_against_scipy(mean, threshold, sigma):
+    # reference: scipy.stats.lognorm with s = sigma and scale = m exp(-sigma^2 / 2), whose
+    # mean is m
+    ref = stats.lognorm(s=sigma, scale=mean * math.exp(-sigma**2 / 2))
+    assert ref.mean() == pytest.approx(mean, rel=1e-12)
+    got = exceedance_given_mean(np.array([mean]), threshold, sigma)[0]
+    assert got == pytest.approx(ref.sf(threshold), rel=1e-10, abs=1e-15)
+
+
+def test_tail_edges():
+    m = np.array([np.nan, 0.0, 5.0, 9.0])
+    np.testing.assert_array_equal(exceedance_given_mean(m, 8.0, 0.0), [0.0, 0.0, 0.0, 1.0])
+    np.testing.assert_array_equal(exceedance_given_mean(m, 8.0, 0.1)[:2], [0.0, 0.0])

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import pytest
 
-from blendq.chemistry.limits import CATALOGUE
+from blendq.chemistry.limits import CATALOGUE, DEFAULT_BASIS, DEFAULT_TEMPORAL_CV
 from blendq.errors import InputError
 from blendq.inputs.project import Settings
 from blendq.inputs.project_file import read_project_file
@@ -137,3 +137,76 @@ def test_toml_with_byte_order_mark(tmp_path):
     path = _project(tmp_path)
     path.write_bytes(b"\xef\xbb\xbf" + path.read_bytes())
     assert read_project_file(path).name == "p"
+
+
+def test_temporal_cv_one_number_or_per_analyte(tmp_path):
+    # the default is a named setting (common practice), used where the project gives none
+    assert Settings().temporal_cv_for("nitrate") == (DEFAULT_TEMPORAL_CV,
+                                                     "default setting, common practice")
+    head = read_project_file(_project(tmp_path, rest="[settings]\ntemporal_cv = 0.2\n"))
+    assert head.settings.temporal_cv_for("arsenic") == (0.2, "setting")
+    rest = "[settings.temporal_cv]\nNO3 = 0.25\n"  # analyte names are normalised
+    s = read_project_file(_project(tmp_path, rest=rest)).settings
+    assert s.temporal_cv_for("nitrate") == (0.25, "setting")
+    assert s.temporal_cv_for("arsenic")[0] == DEFAULT_TEMPORAL_CV
+    rest = "[settings.temporal_cv]\ndefault = 0.05\narsenic = 0.0\n"
+    s = read_project_file(_project(tmp_path, rest=rest)).settings
+    assert s.temporal_cv_for("arsenic") == (0.0, "setting")
+    assert s.temporal_cv_for("nitrate") == (0.05, "setting")
+
+
+def test_compliance_basis_override_and_user_limit(tmp_path):
+    rest = """
+[settings]
+limit_sets = ["US-EPA", "WHO"]
+[[limits]]
+analyte = "arsenic"
+authority = "US-EPA"
+compliance = "single sample"
+[[limits]]
+analyte = "nitrate"
+compliance = "annual mean"
+compliance_citation = "district policy 4.2"
+[[limits]]
+analyte = "nitrate"
+value = "8 mg/L as N"
+compliance = "single sample with confirmation"
+"""
+    head = read_project_file(_project(tmp_path, rest=rest))
+    by = {(lim.authority, lim.analyte): lim for lim in head.limits}
+    # the US-EPA arsenic MCL is now judged on single samples; the WHO value keeps its basis
+    us_as = by[("US-EPA", "arsenic")].compliance
+    assert (us_as.statistic, us_as.samples, us_as.status) == ("single sample", 1, "user setting")
+    assert by[("WHO", "arsenic")].compliance == CATALOGUE["WHO"][2].compliance
+    # no authority: every nitrate limit of the sets takes the basis
+    for authority in ("US-EPA", "WHO"):
+        b = by[(authority, "nitrate")].compliance
+        assert (b.statistic, b.samples, b.citation) == ("annual mean", 4, "district policy 4.2")
+    # value and basis: a new limit judged on the average of a sample and its confirmation
+    user = head.limits[-1]
+    assert (user.authority, user.canonical()) == ("user", pytest.approx(8.0, rel=1e-12))
+    assert (user.compliance.statistic, user.compliance.samples) == ("single sample", 2)
+    assert len(head.limits) == len(CATALOGUE["US-EPA"]) + len(CATALOGUE["WHO"]) + 1
+    # a limit without a basis is judged on single samples (common practice)
+    assert read_project_file(_project(tmp_path, rest='[[limits]]\nanalyte = "arsenic"\n'
+                                                     'value = "5 ug/L"\n')).limits[-1] \
+        .compliance == DEFAULT_BASIS
+
+
+@pytest.mark.parametrize(("rest", "field", "fragment"), [
+    ("[settings]\ntemporal_cv = -0.1", "settings.temporal_cv", "out of range"),
+    ('[settings]\ntemporal_cv = "10 %"', "settings.temporal_cv", "expected a plain number"),
+    ('[settings.temporal_cv]\n"no3?" = 0.1', "settings.temporal_cv.no3?",
+     "is not an analyte name"),
+    ("[settings.temporal_cv]\nnitrate = 9", "settings.temporal_cv.nitrate", "out of range"),
+    ('[[limits]]\nanalyte = "arsenic"\ncompliance = "monthly"', "limits[1].compliance",
+     "is not one of"),
+    ('[[limits]]\nanalyte = "uranium"\nauthority = "WHO"\ncompliance = "annual mean"',
+     "limits[1].analyte", "no WHO limit of uranium"),
+    ('[[limits]]\nanalyte = "arsenic"\ncompliance = "annual mean"\nkind = "x"',
+     "limits[1].kind", "is not a key blendq knows"),
+])
+def test_bad_basis_settings_name_their_key(tmp_path, rest, field, fragment):
+    with pytest.raises(InputError, match=fragment) as info:
+        read_project_file(_project(tmp_path, rest=rest))
+    assert info.value.file == "project.toml" and info.value.field == field

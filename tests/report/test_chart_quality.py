@@ -281,3 +281,24 @@ def test_import_does_not_load_matplotlib():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          cwd=Path(__file__).parent, check=True)
     assert out.stdout.strip() == "False"
+
+
+def test_single_sample_range_drawn_where_the_basis_is_a_single_sample(case):
+    from blendq.decide.sweep import compliance_statistics, statistic_quantiles
+
+    stats = compliance_statistics(case["project"], case["limits"])
+    fig = cq.quality_vs_rate(case["pred"], case["window"], case["limits"], 0.8, 0.9,
+                             case["project"], statistics=stats)
+    nitrate, arsenic = fig.axes[:2]
+    label = "90 % range of a compliance sample"
+    # nitrate is judged on a sample with its confirmation (40 CFR 141.23): its range is drawn;
+    # arsenic on the annual mean (40 CFR 141.23(i)): only the band of the mean
+    upper = [ln for ln in nitrate.get_lines() if ln.get_linestyle() != "-"
+             and ln.get_color() == cq.BLUE]
+    assert len(upper) == 2 and upper[0].get_label() == label
+    assert not [ln for ln in arsenic.get_lines() if ln.get_label() == label]
+    ref = statistic_quantiles(case["pred"].concentration[:, :, 0], [0.05, 0.95],
+                              stats["nitrate"].log_sd)
+    np.testing.assert_allclose(upper[1].get_ydata()[1:], ref[1, 1:], rtol=1e-12)  # mg/L as N
+    # the shaded band is the band of the mean, and says so
+    assert any(c.get_label() == "90 % interval of the mean" for c in nitrate.collections)

@@ -30,7 +30,7 @@ if TYPE_CHECKING:
     from matplotlib.figure import Figure
 
     from blendq.chemistry.limits import Limit
-    from blendq.decide.sweep import Window
+    from blendq.decide.sweep import Statistic, Window
     from blendq.fit.uncertainty import Prediction
     from blendq.inputs.project import Project
 
@@ -206,11 +206,14 @@ def _figure_legend(fig: Figure, axes, ncols: int = 4) -> None:
 # ------------------------------------------------------------------------------ the charts
 def quality_vs_rate(pred: Prediction, window: Window | None, limits: dict[str, Limit],
                     margin: float, interval: float, project: Project | None = None,
-                    units: str = "US", title: str | None = None) -> Figure:
+                    units: str = "US", title: str | None = None,
+                    statistics: dict[str, Statistic] | None = None) -> Figure:
     """Predicted discharge quality against pumping rate, one panel per analyte.
 
     Each panel shows the median prediction and its central ``interval`` band over the Monte
-    Carlo draws, the governing limit and ``margin`` x limit, the step samples (detected results
+    Carlo draws (both of the mean discharge concentration), for a limit judged on single
+    samples the same interval of a compliance sample (dashed lines: the mean's uncertainty
+    with the water's temporal variability and the lab's error), the governing limit and ``margin`` x limit, the step samples (detected results
     with error bars of the same interval from the lab's one-sd uncertainty; non-detects as open
     markers at the detection limit with a downward arrow), every interval of the operating window
     shaded and the recommended rate. An empty window is stated under the title with its reason.
@@ -230,7 +233,12 @@ def quality_vs_rate(pred: Prediction, window: Window | None, limits: dict[str, L
         Source of the step samples.
     units : {"US", "SI"}
         Rates in gpm or m^3/d.
+    title : str, optional
+    statistics : dict analyte -> Statistic, optional
+        The statistic each limit is judged on (:func:`blendq.decide.sweep.compliance_statistics`).
     """
+    from blendq.decide.sweep import statistic_quantiles
+
     n = len(pred.analytes)
     if n == 0:
         raise InputError("the prediction has no analytes to chart", field="analytes")
@@ -247,11 +255,24 @@ def quality_vs_rate(pred: Prediction, window: Window | None, limits: dict[str, L
         sh = _conc(s["half"], analyte)
         lim = limits.get(analyte)
         v = float(_conc(lim.canonical(), analyte)) if lim is not None else np.nan
+        st = (statistics or {}).get(analyte)
+        single = None
+        if st is not None and st.limit.compliance.statistic == "single sample" and st.log_sd > 0:
+            sq = statistic_quantiles(pred.concentration[:, :, j],
+                                     [(1 - interval) / 2, (1 + interval) / 2], st.log_sd)
+            sq[:, pred.rates <= 0] = np.nan
+            single = _conc(sq, analyte)
         ytop = max(float(np.nanmax(hi)), float(np.max(sv + sh, initial=0)) * 1.05,
-                   1.25 * v if lim is not None else 0.0, 1e-12)
+                   1.25 * v if lim is not None else 0.0,
+                   float(np.nanmax(single[1])) * 1.02 if single is not None else 0.0, 1e-12)
         _window_spans(ax, window, units)
         ax.fill_between(x, lo, hi, color=SKY, alpha=0.45, linewidth=0,
-                        label=f"{interval * 100:g} % interval of prediction")
+                        label=f"{interval * 100:g} % interval of the mean")
+        if single is not None:
+            for k in range(2):
+                ax.plot(x, single[k], color=BLUE, linewidth=1.0, linestyle=(0, (4, 2)),
+                        label=f"{interval * 100:g} % range of a compliance sample"
+                        if k == 0 else None)
         ax.plot(x, med, color=BLUE, linewidth=1.8, label="median prediction")
         if lim is not None:
             ax.axhline(v, color=BLACK, linewidth=1.4, label="limit")
