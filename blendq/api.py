@@ -690,7 +690,7 @@ class Result:
         if n:
             lines.append(f"  {n} note{'s' if n > 1 else ''} (result.notes)")
         lines += _wrap("zones, window, review, hydraulics, residuals, sweep; predict(rates), "
-                       "compare(...), plot, write_report(folder)", "  tables: ")
+                       "compare(options), plot, write_report(folder)", "  tables: ")
         return "\n".join([*lines, *_wrap(_short_caution())])
 
     def _repr_html_(self) -> str:
