@@ -34,7 +34,7 @@ from collections.abc import Callable, Iterable, Sequence
 from functools import cached_property
 from importlib import resources
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
@@ -51,6 +51,11 @@ from blendq.report import assemble as _assemble
 from blendq.report import outputs as _outputs
 from blendq.report import scenario_section as _scenario_section
 from blendq.units import DISPLAY_UNITS, format_quantity, from_base, parse_quantity, to_base
+
+if TYPE_CHECKING:
+    from matplotlib.figure import Figure
+
+    from blendq.report.chart_pool import ChartPool
 
 __all__ = [
     "CAUTIONS",
@@ -81,12 +86,12 @@ def _unit_system(units: str) -> str:
     return text
 
 
-def unit_label(unit: str) -> str:
+def _unit_label(unit: str) -> str:
     """A unit expression as it is typed: ``m**3/d`` -> ``m3/d``, ``gallon`` -> ``gal``."""
     return unit.replace("**", "").replace("gallon", "gal")
 
 
-def concentration_unit(analyte: str) -> str:
+def _concentration_unit(analyte: str) -> str:
     """The display unit of an analyte's concentrations with its basis (``"mg/L as N"``)."""
     an = get_analyte(analyte)
     basis = f" as {an.canonical_basis}" if an.canonical_basis and len(an.bases) > 1 else ""
@@ -213,7 +218,8 @@ def parse_rates(rates: Any, units: str = "US") -> np.ndarray:
         raise InputError("no rate given", field="rates")
     bad = values[~np.isfinite(values) | (values < 0)]
     if bad.size:
-        raise InputError(f"a pumping rate must be zero or above, got {bad[0]:g} m3/d",
+        raise InputError("a pumping rate must be zero or above, got "
+                         f"{format_quantity(bad[0], 'rate', _unit_system(units))}",
                          field="rates")
     return values
 
@@ -281,7 +287,7 @@ def _raw_intake(item: Any, units: str) -> dict:
     if _is_quantity(item):
         text = _quantity_text(item)
     elif isinstance(item, (int, float)) and not isinstance(item, bool):
-        text = f"{item:g} {unit_label(DISPLAY_UNITS[units]['length'])}"
+        text = f"{item:g} {_unit_label(DISPLAY_UNITS[units]['length'])}"
     else:
         text = item
     return {"name": f"Intake at {text}", "intake": text}
@@ -347,17 +353,20 @@ def build_scenarios(project: Project, seal: Any = None, redevelop: Any = None,
     raws += [(option_prefix + "intake", _raw_intake(item, units)) for item in _as_list(intake)]
     key = option_prefix + "blend"
     raws += [(key, _raw_blend(item, file, key)) for item in _as_list(blend)]
-    raws += [(f"{option_prefix}scenarios[{k}]", raw)
-             for k, raw in enumerate(_as_list(scenarios), 1)]
-    for k, (key, raw) in enumerate(raws, 1):
+    # a one-change option is named by its argument alone; a [[scenarios]] entry keeps the key
+    # inside it (scenarios[2].blend.rate) in messages
+    entries = [(key, raw, True) for key, raw in raws]
+    entries += [(f"{option_prefix}scenarios[{k}]", raw, False)
+                for k, raw in enumerate(_as_list(scenarios), 1)]
+    for k, (key, raw, by_argument) in enumerate(entries, 1):
         if isinstance(raw, _scenarios.Scenario):
             sc = raw
-        elif key.startswith(f"{option_prefix}scenarios["):
-            sc = _scenarios.parse_scenario(raw, k, project, file=file, prefix=key)
         else:
             try:
                 sc = _scenarios.parse_scenario(raw, k, project, file=file, prefix=key)
             except InputError as err:
+                if not by_argument:
+                    raise
                 raise InputError(err.message, file=file, field=key) from None
         if sc.name in names:
             raise InputError(f'"{sc.name}" is given twice', file=file, field=key)
@@ -444,12 +453,12 @@ class Result:
     @property
     def rate_unit(self) -> str:
         """Display unit of rates ("gpm" or "m3/d")."""
-        return unit_label(self._du["rate"])
+        return _unit_label(self._du["rate"])
 
     @property
     def length_unit(self) -> str:
         """Display unit of depths and lengths ("ft" or "m")."""
-        return unit_label(self._du["length"])
+        return _unit_label(self._du["length"])
 
     @property
     def decision(self) -> str:
@@ -483,7 +492,7 @@ class Result:
         """
         z = self.analysis.zones
         out = pd.DataFrame({"zone": z["zone"], "analyte": z["analyte"],
-                            "unit": [concentration_unit(a) for a in z["analyte"]]})
+                            "unit": [_concentration_unit(a) for a in z["analyte"]]})
         for col, name in (("estimate", "estimate"), ("sd", "sd"), ("lower", "lower"),
                           ("upper", "upper"), ("range_low", "range low"),
                           ("range_high", "range high")):
@@ -498,7 +507,7 @@ class Result:
         """Fitted zone hydraulics: conductance and static level of each zone, with their
         uncertainty and whether the test data or the zone properties (prior) set them."""
         h = self.analysis.hydraulics
-        du, cu = self._du, unit_label(self._du["conductance"])
+        du, cu = self._du, _unit_label(self._du["conductance"])
         return pd.DataFrame({
             "zone": h["zone"],
             f"conductance [{cu}]": from_base(h["conductance"].to_numpy(float), "conductance",
@@ -523,7 +532,7 @@ class Result:
                             "analyte": r["analyte"],
                             f"depth [{self.length_unit}]": from_base(
                                 r["depth"].to_numpy(float), "length", self._du["length"]),
-                            "unit": [concentration_unit(a) for a in r["analyte"]]})
+                            "unit": [_concentration_unit(a) for a in r["analyte"]]})
         for col in ("observed", "fitted", "sigma"):
             out[col] = [float(get_analyte(a).in_display_unit(v))
                         for a, v in zip(r["analyte"], r[col], strict=True)]
@@ -576,7 +585,7 @@ class Result:
         out = {f"rate [{self.rate_unit}]": from_base(table["rate"].to_numpy(float), "rate",
                                                      du["rate"])}
         for a in self.analysis.prediction.analytes:
-            cu, an = concentration_unit(a), get_analyte(a)
+            cu, an = _concentration_unit(a), get_analyte(a)
             for stat in ("median", "lower", "upper"):
                 out[f"{a} {stat} [{cu}]"] = an.in_display_unit(table[f"{a}_{stat}"])
             if f"{a}_p_exceed_margin" in table:
@@ -615,7 +624,7 @@ class Result:
                                 self.units)
 
     def write_report(self, folder: str | os.PathLike[str], units: str | None = None,
-                     charts: Any = None) -> Path:
+                     charts: ChartPool | None = None) -> Path:
         """Write the report folder of ``blendq report``: report.html, report.pdf, the tables
         (CSV), summary.json and the charts.
 
@@ -726,7 +735,7 @@ class OperatingWindow:
         self._analysis = analysis
         self.units = units
         w, du = analysis.window, DISPLAY_UNITS[units]
-        self.rate_unit = unit_label(du["rate"])
+        self.rate_unit = _unit_label(du["rate"])
         self.intervals = pd.DataFrame(
             [(float(from_base(lo, "rate", du["rate"])), float(from_base(hi, "rate", du["rate"])),
               why_lo, why_hi) for lo, hi, why_lo, why_hi in w.intervals],
@@ -826,7 +835,7 @@ class ComparisonResult:
         median and band at the recommended rate (its display unit)."""
         t = self.comparison.table
         du = DISPLAY_UNITS[self.units]
-        ru = unit_label(du["rate"])
+        ru = _unit_label(du["rate"])
         out = pd.DataFrame({"option": t["scenario"], "changes": t["changes"]})
         for col, name in (("window_low", "window low"), ("window_high", "window high"),
                           ("window_width", "window width"), ("recommended", "recommended"),
@@ -840,7 +849,7 @@ class ComparisonResult:
         analytes = self.comparison.results[0].prediction.analytes if self.comparison.results \
             else []
         for a in analytes:
-            cu, an = concentration_unit(a), get_analyte(a)
+            cu, an = _concentration_unit(a), get_analyte(a)
             for stat in ("median", "lower", "upper"):
                 out[f"{a} {stat} [{cu}]"] = an.in_display_unit(t[f"{a}_{stat}"])
         return out
@@ -855,7 +864,7 @@ class ComparisonResult:
         """A sentence naming the option with the widest operating window."""
         return _scenario_section.widest_sentence(self.comparison, self.units)
 
-    def plot(self) -> Any:
+    def plot(self) -> Figure:
         """Median delivered quality against rate for each option, and their windows
         (matplotlib Figure; the report's chart)."""
         from blendq.report.charts.scenarios import scenario_chart
@@ -902,11 +911,11 @@ class Plots:
         self._analysis = analysis
         self.units = units
 
-    def _draw(self, jobs: list, draw: Any) -> Any:
+    def _draw(self, jobs: list, draw: Any) -> Figure:
         job = next(j for j in jobs if j.draw is draw)
         return job.draw(*job.args)
 
-    def quality(self) -> Any:
+    def quality(self) -> Figure:
         """Discharge quality against pumping rate: median, band, limits, step samples and
         the operating window, one panel per fitted analyte."""
         from blendq.report.charts import quality
@@ -914,28 +923,28 @@ class Plots:
         return self._draw(_assemble.quality_jobs(self._analysis, self.units),
                           quality.quality_vs_rate)
 
-    def shares(self) -> Any:
+    def shares(self) -> Figure:
         """Each zone's share of the discharge against pumping rate."""
         from blendq.report.charts import quality
 
         return self._draw(_assemble.quality_jobs(self._analysis, self.units),
                           quality.zone_shares)
 
-    def levels(self) -> Any:
+    def levels(self) -> Figure:
         """Pumping level against rate at the operating horizon, with the intake and screen."""
         from blendq.report.charts import quality
 
         return self._draw(_assemble.quality_jobs(self._analysis, self.units),
                           quality.pumping_level)
 
-    def zones(self) -> Any:
+    def zones(self) -> Figure:
         """Zone estimates with intervals; unresolved zones as the range the data allow."""
         from blendq.report.charts import quality
 
         return self._draw(_assemble.quality_jobs(self._analysis, self.units),
                           quality.zone_estimates)
 
-    def step_drawdown(self, kind: str = "specific") -> Any:
+    def step_drawdown(self, kind: str = "specific") -> Figure:
         """A chart of the step-drawdown analysis.
 
         Parameters

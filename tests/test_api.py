@@ -257,6 +257,7 @@ def test_compare_options_like_the_command_line(result):
     ({"blend": "200 gpm; nitrate 2"}, "blend"),
     ({"intake": "deep"}, "intake"),
     ({"seal": ["Upper sand", "Upper sand"]}, "seal"),
+    ({"scenarios": [{"name": "Deeper", "intake": "deep"}]}, "scenarios[1].intake"),
 ])
 def test_bad_options_name_their_argument(result, kwargs, field):
     with pytest.raises(InputError) as err:
