@@ -298,6 +298,18 @@ def test_window_summary_shows_the_decision(result):
     assert " ".join(result.decision.split()) in text
 
 
+def test_empty_window_says_why(result):
+    p = result.project
+    strict = dataclasses.replace(p, settings=dataclasses.replace(p.settings, margin=0.1))
+    w = bq.analyse(strict, draws=50, seed=SEED).window
+    assert w.empty and w.recommended is None and w.intervals.empty
+    assert list(w.intervals.columns[:2]) == ["from [gpm]", "to [gpm]"]
+    text = " ".join(repr(w).split())
+    assert "no rate meets every criterion" in text and w.reason_empty in text
+    assert "No pumping rate meets every limit" in text  # the decision sentence
+    assert "planning aid" in text and "planning aid" in w._repr_html_()
+
+
 def test_html_reprs_carry_the_full_cautions(result):
     import html
 
