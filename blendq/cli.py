@@ -87,12 +87,14 @@ def _load(project: Path):
     return load_project(project)
 
 
-def _analyse(project, draws, seed, sample_mode="keep"):
-    from blendq.decide.analysis import analyse
+def _analyse(project, draws, seed, units: str, sample_mode="keep"):
+    """The analysis through the public API (:func:`blendq.api.analyse`), with a progress bar."""
+    from blendq.api import analyse
 
     callback, prog = _progress()
     with prog:
-        return analyse(project, draws=draws, seed=seed, sample_mode=sample_mode, progress=callback)
+        return analyse(project, draws=draws, seed=seed, sample_mode=sample_mode, units=units,
+                       progress=callback)
 
 
 def version_callback(value: bool) -> None:
@@ -213,13 +215,15 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
     """Fit each zone's water quality (and the zone hydraulics) and print the zone table."""
 
     def body():
-        _units(units)  # concentrations print in each analyte's unit; the option is still checked
-        proj = _load(project)
-        a = _analyse(proj, draws, seed, samples)
-        if as_json:
-            from blendq.report.outputs import to_json_stable
+        from blendq.api import load_project, to_json
 
-            typer.echo(to_json_stable({"zones": a.zones.to_dict(orient="records"),
+        # concentrations print in each analyte's unit; the option is still checked
+        u = _units(units)
+        proj = load_project(project)
+        result = _analyse(proj, draws, seed, u, samples)
+        a = result.analysis  # the JSON holds the pipeline's tables in base units
+        if as_json:
+            typer.echo(to_json({"zones": a.zones.to_dict(orient="records"),
                                        "sample_mode": a.sample_mode,
                                        "sample_use": a.sample_use.to_dict(orient="records"),
                                        "hydraulics": a.hydraulics.to_dict(orient="records"),
@@ -231,9 +235,7 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
         from rich.table import Table
 
         t = Table(title=escape(f"{proj.well.name}: zone water quality"))
-        from blendq.report.assemble import zone_display_table
-
-        df = zone_display_table(a)
+        df = result.text_table("zones")
         for col in df.columns:
             t.add_column(escape(str(col)))
         for _, r in df.iterrows():
@@ -245,7 +247,7 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
                    f"{len(use)} used; {len(flagged)} flagged by the review"
                    + (f" ({', '.join(flagged['sample_id'].astype(str))})" if len(flagged) else "")
                    + ".")
-        for note in a.notes:
+        for note in result.notes:
             typer.echo("Note: " + note)
         typer.echo(_caution_line())
 
@@ -258,25 +260,22 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = No
     """Find the rates at which the discharge meets every limit with the margin."""
 
     def body():
-        from blendq.decide.analysis import decision_sentence
-        from blendq.report.assemble import summary_json, window_display_table
+        from blendq.api import load_project, to_json
 
         u = _units(units)
-        proj = _load(project)
-        a = _analyse(proj, draws, seed)
+        proj = load_project(project)
+        result = _analyse(proj, draws, seed, u)
         if as_json:
-            from blendq.report.outputs import to_json_stable
-
-            typer.echo(to_json_stable(summary_json(a, u)))
+            typer.echo(to_json(result.summary()))
             return
-        typer.echo(decision_sentence(a, u))
-        df = window_display_table(a, u)
+        typer.echo(result.decision)
+        df = result.text_table("window")
         for _, r in df.iterrows():
             typer.echo(f"  {r['From']} to {r['To']}: lower end set by {r['Lower end set by']}; "
                        f"upper end set by {r['Upper end set by']}")
         from blendq.decide.sweep import compliance_statistics
 
-        for st in compliance_statistics(a.project, a.limits).values():
+        for st in compliance_statistics(result.analysis.project, result.analysis.limits).values():
             typer.echo(f"  judged: {st.describe()}")
         typer.echo(_caution_line())
 
@@ -284,21 +283,17 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = No
 
 
 def _write_report(project: Path, out: Path, units: str, draws, seed) -> None:
-    from blendq.decide.analysis import decision_sentence
-    from blendq.report.assemble import output_files
+    from blendq.api import check_report_folder, load_project
     from blendq.report.chart_pool import ChartPool
-    from blendq.report.outputs import check_output_folder, write_outputs
 
     # the chart server starts now, sharing the imports above (numpy, pandas, pint, scipy): it
     # imports matplotlib on the second core while this process loads and analyses
     with ChartPool() as charts:
-        proj = _load(project)
-        protect = [proj.folder / f for f in proj.files.values()] if proj.folder else []
-        check_output_folder(out, protect)  # refuse a bad folder before the long run, not after
-        a = _analyse(proj, draws, seed)
-        files = output_files(a, units, created=f"blendq {__version__}", charts=charts)
-    folder = write_outputs(out, files, protect=protect)
-    typer.echo(decision_sentence(a, units))
+        proj = load_project(project)
+        check_report_folder(out, proj)  # refuse a bad folder before the long run, not after
+        result = _analyse(proj, draws, seed, units)
+        folder = result.write_report(out, charts=charts)
+    typer.echo(result.decision)
     typer.echo(f"Report written to {folder / 'report.html'} and {folder / 'report.pdf'}")
     typer.echo(_caution_line())
 
@@ -317,11 +312,9 @@ def demo_cmd(out: Annotated[Path, typer.Option("--out", "-o", help="Output folde
     """Run the whole analysis on the invented demo well (TH-2) and write its report."""
 
     def body():
-        from importlib import resources
+        from blendq.api import demo_path
 
-        demo = resources.files("blendq") / "data" / "demo"
-        with resources.as_file(demo) as folder:
-            _write_report(Path(folder), out, _units(units), draws, seed)
+        _write_report(demo_path(), out, _units(units), draws, seed)
 
     _guard(body)
 
@@ -371,43 +364,6 @@ def drawdown_cmd(project: ProjectArg, units: UnitsOpt = "US", as_json: JsonOpt =
     _guard(body)
 
 
-def _option_scenarios(seal: list[str], redevelop: list[str], blend: list[str]) -> list[dict]:
-    """Raw scenario entries from the compare options (one scenario per option given)."""
-    from blendq.errors import InputError
-
-    raws: list[dict] = []
-    for zone in seal:
-        raws.append({"name": f"Seal {zone}", "seal": [zone]})
-    for text in redevelop:
-        zone, sep, change = text.rpartition(":")
-        key, eq, value = change.partition("=")
-        if not sep or not eq or key.strip() not in ("skin", "factor"):
-            raise InputError(f'"{text}" is not ZONE:skin=VALUE or ZONE:factor=VALUE',
-                             file="command line", field="--redevelop")
-        try:
-            number = float(value)
-        except ValueError:
-            raise InputError(f'"{value.strip()}" in "{text}" is not a number',
-                             file="command line", field="--redevelop") from None
-        raws.append({"name": f"Redevelop {zone.strip()} ({key.strip()} {number:g})",
-                     "redevelop": {"zone": zone.strip(), key.strip(): number}})
-    for text in blend:
-        parts = [p.strip() for p in text.split(";") if p.strip()]
-        if not parts or "=" in parts[0]:
-            raise InputError(f'"{text}" does not start with the blend rate (expected e.g. '
-                             '"200 gpm; nitrate=2 mg/L as N; arsenic=1 ug/L")',
-                             file="command line", field="--blend")
-        entry: dict = {"rate": parts[0]}
-        for p in parts[1:]:
-            name, eq, value = p.partition("=")
-            if not eq:
-                raise InputError(f'"{p}" is not ANALYTE=CONCENTRATION', file="command line",
-                                 field="--blend")
-            entry[name.strip()] = value.strip()
-        raws.append({"name": f"Blend {parts[0]}", "blend": entry})
-    return raws
-
-
 @app.command("compare")
 def compare_cmd(
     project: ProjectArg,
@@ -421,34 +377,21 @@ def compare_cmd(
     the project's [[scenarios]] plus any given here, all with the same Monte Carlo draws."""
 
     def body():
-        from blendq.decide.scenarios import compare, parse_scenario, project_scenarios
-        from blendq.errors import InputError
-        from blendq.report.scenario_section import comparison_display_table, widest_sentence
+        from blendq.api import build_scenarios, load_project, to_json
 
         u = _units(units)
-        proj = _load(project)
-        scenarios = project_scenarios(proj)
-        names = {s.name for s in scenarios}
-        for k, raw in enumerate(_option_scenarios(seal or [], redevelop or [], blend or []), 1):
-            key = "--seal" if "seal" in raw else "--redevelop" if "redevelop" in raw else "--blend"
-            try:
-                sc = parse_scenario(raw, k, proj, file="command line", prefix=key)
-            except InputError as err:
-                raise InputError(err.message, file="command line", field=key) from None
-            if sc.name in names:
-                raise InputError(f'"{sc.name}" is given twice', file="command line", field=key)
-            names.add(sc.name)
-            scenarios.append(sc)
-        a = _analyse(proj, draws, seed)
-        comp = compare(a, scenarios)
+        proj = load_project(project)
+        # the options are read before the long run, so a bad one stops the command at once
+        scenarios = build_scenarios(proj, seal, redevelop, blend=blend, units=u,
+                                    file="command line", option_prefix="--")
+        result = _analyse(proj, draws, seed, u)
+        comp = result.compare(scenarios=scenarios, include_project=False)
         if as_json:
-            from blendq.report.outputs import to_json_stable
-
-            typer.echo(to_json_stable({
+            typer.echo(to_json({
                 "units": {"rate": "m3/d", "concentration": "mg/L canonical basis"},
-                "comparison": comp.table.to_dict(orient="records")}))
+                "comparison": comp.comparison.table.to_dict(orient="records")}))
             return
-        df = comparison_display_table(comp, u, proj.settings.interval)
+        df = comp.text_table()
         band = f"{proj.settings.interval:.0%} band"
         for _, r in df.iterrows():
             typer.echo(f"{r['Option']} ({r['Changes']})")
@@ -463,7 +406,7 @@ def compare_cmd(
                 typer.echo(f"  what would tell: {r['What would tell']}")
             else:
                 typer.echo(f"  window limited by: {r['Window limited by']}")
-        typer.echo(widest_sentence(comp, u))
+        typer.echo(comp.widest)
         typer.echo(_caution_line())
 
     _guard(body)

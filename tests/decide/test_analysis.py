@@ -43,7 +43,8 @@ def test_demo_window_at_the_default_temporal_cv(demo):
     # nitrate is judged on a single sample with its confirmation sample (40 CFR 141.23): with
     # a temporal CV of 10 % a sample of a mean near 7.6 mg/L as N exceeds 8 mg/L (0.8 x MCL)
     # far more often than 5 %, and arsenic closes the rates above about 430 gpm
-    a = analyse(demo, draws=DRAWS, seed=7)
+    # (the demo project sets 5 % from its monitoring record; here the default applies)
+    a = analyse(replace(demo, settings=replace(demo.settings, temporal_cv={})), draws=DRAWS, seed=7)
     assert a.window.empty
     assert "nitrate (P > 0.8 x limit above 0.05)" in a.window.reason_empty
     assert decision_sentence(a).startswith("No pumping rate meets every limit")

@@ -1,0 +1,980 @@
+"""The public Python API of blendq: load a project, analyse it, and read the results in the
+project's display units.
+
+::
+
+    import blendq as bq
+
+    project = bq.load_project("my-well")            # a folder or its project.toml
+    result = bq.analyse(project, draws=1000, seed=1)
+    result.window                                   # the operating window, in display units
+    result.zones                                    # zone water quality (DataFrame)
+    result.predict("200, 400 gpm")                  # discharge quality at given rates
+    result.compare(seal="Upper sand")               # options side by side
+    result.write_report("out")                      # the report folder of `blendq report`
+    result.plot.quality()                           # a matplotlib Figure
+
+:class:`Result` is a thin holder over the pipeline's plain
+:class:`~blendq.decide.analysis.Analysis` (base units throughout; ``result.analysis``): it
+converts tables to the display units ("US": gpm, ft; "SI": m^3/d, m) at the edge and calls the
+same functions as the command line and the report, never a second implementation. The command
+line (:mod:`blendq.cli`) is built on this module. See ``docs/api.md``.
+
+This module sits at the top of the package beside the command line and may import every
+package below it; ``import blendq`` loads it only when one of its names is asked for.
+"""
+
+from __future__ import annotations
+
+import html
+import os
+import re
+import textwrap
+from collections.abc import Callable, Iterable, Sequence
+from functools import cached_property
+from importlib import resources
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import pandas as pd
+
+from blendq import CAUTIONS, __version__
+from blendq.chemistry.analytes import get_analyte
+from blendq.decide import analysis as _pipeline
+from blendq.decide import scenarios as _scenarios
+from blendq.decide import sweep as _sweep
+from blendq.errors import InputError, ModelError
+from blendq.inputs.loader import load_project
+from blendq.inputs.project import Project
+from blendq.report import assemble as _assemble
+from blendq.report import outputs as _outputs
+from blendq.report import scenario_section as _scenario_section
+from blendq.units import DISPLAY_UNITS, format_quantity, from_base, parse_quantity, to_base
+
+if TYPE_CHECKING:
+    from matplotlib.figure import Figure
+
+    from blendq.report.chart_pool import ChartPool
+
+__all__ = [
+    "CAUTIONS",
+    "ComparisonResult",
+    "OperatingWindow",
+    "Plots",
+    "Result",
+    "analyse",
+    "build_scenarios",
+    "check_report_folder",
+    "demo_path",
+    "load_project",
+    "parse_rates",
+    "to_json",
+]
+
+#: characters of a printed line in the text summaries
+_WIDTH = 96
+
+
+# ------------------------------------------------------------------------------ helpers
+def _unit_system(units: str) -> str:
+    """``"US"`` or ``"SI"`` from any capitalisation; InputError otherwise."""
+    text = str(units).strip().upper()
+    if text not in DISPLAY_UNITS:
+        raise InputError(f'"{units}" is not a unit system (expected "US" or "SI")',
+                         field="units")
+    return text
+
+
+def _unit_label(unit: str) -> str:
+    """A unit expression as it is typed: ``m**3/d`` -> ``m3/d``, ``gallon`` -> ``gal``."""
+    return unit.replace("**", "").replace("gallon", "gal")
+
+
+def _concentration_unit(analyte: str) -> str:
+    """The display unit of an analyte's concentrations with its basis (``"mg/L as N"``)."""
+    an = get_analyte(analyte)
+    basis = f" as {an.canonical_basis}" if an.canonical_basis and len(an.bases) > 1 else ""
+    return an.display_unit + basis
+
+
+def _short_caution() -> str:
+    return "Caution: " + " ".join(CAUTIONS[:2])
+
+
+def _wrap(text: str, first: str = "") -> list[str]:
+    """``text`` in lines of :data:`_WIDTH`, the first starting with ``first``, the others
+    indented two spaces more than its leading spaces."""
+    rest = " " * (len(first) - len(first.lstrip()) + 2)
+    return textwrap.wrap(text, _WIDTH, initial_indent=first, subsequent_indent=rest)
+
+
+def _html_cautions() -> str:
+    items = "".join(f"<li>{html.escape(c)}</li>" for c in CAUTIONS)
+    return f"<p><b>Cautions</b></p><ul>{items}</ul>"
+
+
+def _html_rows(rows: Iterable[tuple[str, str]]) -> str:
+    body = "".join(f"<tr><th style='text-align:left'>{html.escape(k)}</th>"
+                   f"<td style='text-align:left'>{html.escape(v)}</td></tr>" for k, v in rows)
+    return f"<table>{body}</table>"
+
+
+def _is_quantity(value: Any) -> bool:
+    return hasattr(value, "magnitude") and hasattr(value, "units")
+
+
+def _quantity_text(value: Any) -> str:
+    """A pint Quantity as text that :func:`blendq.units.parse_quantity` reads ("140 ft")."""
+    return f"{float(value.magnitude):g} {value.units:~}"
+
+
+def demo_path() -> Path:
+    """Folder of the invented demo project shipped with blendq (well TH-2).
+
+    Returns
+    -------
+    pathlib.Path
+        ``blendq/data/demo`` inside the installed package.
+    """
+    return Path(str(resources.files("blendq") / "data" / "demo"))
+
+
+def to_json(obj: Any) -> str:
+    """JSON text that is byte-identical for equal inputs (sorted keys, NaN as null).
+
+    Parameters
+    ----------
+    obj : Any
+        Dicts, lists, numbers, strings, numpy arrays, DataFrames (see
+        :func:`blendq.report.outputs.to_json_stable`).
+
+    Returns
+    -------
+    str
+    """
+    return _outputs.to_json_stable(obj)
+
+
+_NUMBER_UNIT = re.compile(r"^\s*[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?\s*(.*?)\s*$")
+
+
+def parse_rates(rates: Any, units: str = "US") -> np.ndarray:
+    """Pumping rates from numbers, pint Quantities or text, in base units.
+
+    Parameters
+    ----------
+    rates : float, str, pint.Quantity or sequence of these
+        Numbers are read in the display rate unit of ``units`` (gpm for "US", m^3/d for
+        "SI"). Text gives the unit: ``"450 gpm"``, ``"30 L/s"``, or a list such as
+        ``"200, 400 gpm"`` (comma or semicolon between rates; a rate without a unit takes the
+        unit of the last rate). Write numbers without thousands separators.
+    units : {"US", "SI"}
+        Unit system of bare numbers.
+
+    Returns
+    -------
+    ndarray (n_rates,)
+        Rates [m^3/d].
+
+    Raises
+    ------
+    InputError
+        For text that is not a rate, a unit that is not a rate unit, or a rate below zero or
+        not finite (field ``rates``).
+    """
+    unit = DISPLAY_UNITS[_unit_system(units)]["rate"]
+    out: list[float] = []
+
+    def add(item: Any) -> None:
+        if isinstance(item, bool) or item is None:
+            raise InputError(f"{item!r} is not a rate", field="rates")
+        if _is_quantity(item):
+            magnitudes = np.atleast_1d(np.asarray(item.magnitude, float))
+            factor = to_base(1.0, f"{item.units}", "rate")  # rate units have no offset
+            out.extend(float(m) * factor for m in magnitudes)
+        elif isinstance(item, str):
+            parts = [p for p in re.split(r"[,;]", item) if p.strip()]
+            if not parts:
+                raise InputError(f'"{item}" holds no rate', field="rates")
+            last = _NUMBER_UNIT.match(parts[-1])
+            default = last.group(1) if last and last.group(1) else unit
+            out.extend(parse_quantity(p, "rate", default_unit=default) for p in parts)
+        elif isinstance(item, (int, float, np.integer, np.floating)):
+            out.append(parse_quantity(float(item), "rate", default_unit=unit))
+        elif isinstance(item, (Sequence, np.ndarray, pd.Series, pd.Index)):
+            for sub in item:
+                add(sub)
+        else:
+            raise InputError(f"{item!r} is not a rate (give a number, a pint Quantity or text "
+                             'such as "450 gpm")', field="rates")
+
+    try:
+        add(rates)
+    except InputError as err:
+        raise err.located(field="rates") from None
+    values = np.asarray(out, float)
+    if values.size == 0:
+        raise InputError("no rate given", field="rates")
+    bad = values[~np.isfinite(values) | (values < 0)]
+    if bad.size:
+        raise InputError("a pumping rate must be zero or above, got "
+                         f"{format_quantity(bad[0], 'rate', _unit_system(units))}",
+                         field="rates")
+    return values
+
+
+def check_report_folder(folder: str | os.PathLike[str], project: Project) -> None:
+    """Raise :class:`InputError` now if :meth:`Result.write_report` would refuse ``folder``
+    (a folder blendq did not write, or one holding the project's input files), so that a long
+    analysis does not end in a refusal."""
+    _outputs.check_output_folder(folder, _protected(project))
+
+
+def _protected(project: Project) -> list[Path]:
+    return [project.folder / f for f in project.files.values()] if project.folder else []
+
+
+# ------------------------------------------------------------------------------ scenarios
+def _as_list(value: Any) -> list:
+    if value is None:
+        return []
+    if isinstance(value, (str, dict, int, float)) or _is_quantity(value):
+        return [value]
+    return list(value)
+
+
+def _raw_redevelop(item: Any, file: str, key: str) -> dict:
+    if isinstance(item, dict):
+        kind = "skin" if "skin" in item else "factor"
+        value = item.get(kind)
+        shown = f"{value:g}" if isinstance(value, (int, float)) else f"{value}"
+        return {"name": f"Redevelop {item.get('zone')} ({kind} {shown})", "redevelop": item}
+    text = str(item)
+    zone, sep, change = text.rpartition(":")
+    kind, eq, value = change.partition("=")
+    if not sep or not eq or kind.strip() not in ("skin", "factor"):
+        raise InputError(f'"{text}" is not ZONE:skin=VALUE or ZONE:factor=VALUE', file=file,
+                         field=key)
+    try:
+        number = float(value)
+    except ValueError:
+        raise InputError(f'"{value.strip()}" in "{text}" is not a number', file=file,
+                         field=key) from None
+    return {"name": f"Redevelop {zone.strip()} ({kind.strip()} {number:g})",
+            "redevelop": {"zone": zone.strip(), kind.strip(): number}}
+
+
+def _raw_blend(item: Any, file: str, key: str) -> dict:
+    if isinstance(item, dict):
+        entry = {k: (_quantity_text(v) if _is_quantity(v) else v) for k, v in item.items()}
+        return {"name": f"Blend {entry.get('rate')}", "blend": entry}
+    text = str(item)
+    parts = [p.strip() for p in text.split(";") if p.strip()]
+    if not parts or "=" in parts[0]:
+        raise InputError(f'"{text}" does not start with the blend rate (expected e.g. '
+                         '"200 gpm; nitrate=2 mg/L as N; arsenic=1 ug/L")', file=file, field=key)
+    entry: dict = {"rate": parts[0]}
+    for p in parts[1:]:
+        name, eq, value = p.partition("=")
+        if not eq:
+            raise InputError(f'"{p}" is not ANALYTE=CONCENTRATION', file=file, field=key)
+        entry[name.strip()] = value.strip()
+    return {"name": f"Blend {parts[0]}", "blend": entry}
+
+
+def _raw_intake(item: Any, units: str) -> dict:
+    if _is_quantity(item):
+        text = _quantity_text(item)
+    elif isinstance(item, (int, float)) and not isinstance(item, bool):
+        text = f"{item:g} {_unit_label(DISPLAY_UNITS[units]['length'])}"
+    else:
+        text = item
+    return {"name": f"Intake at {text}", "intake": text}
+
+
+def build_scenarios(project: Project, seal: Any = None, redevelop: Any = None,
+                    intake: Any = None, blend: Any = None, *,
+                    scenarios: Sequence[dict | _scenarios.Scenario] | None = None,
+                    include_project: bool = True, units: str | None = None,
+                    file: str = "compare()", option_prefix: str = "",
+                    ) -> list[_scenarios.Scenario]:
+    """The options to compare with the base case, resolved against a project.
+
+    Each ``seal``, ``redevelop``, ``intake`` and ``blend`` item is one option of its own;
+    ``scenarios`` holds options that combine changes, written as a ``[[scenarios]]`` entry of
+    project.toml (see ``docs/scenarios.md``).
+
+    Parameters
+    ----------
+    project : Project
+    seal : str or list of str, optional
+        Zone names; one option seals each.
+    redevelop : str, dict or list of these, optional
+        ``"Lower gravel:skin=0"``, ``"Lower gravel:factor=2"`` or
+        ``{"zone": "Lower gravel", "skin": 0}`` (new skin [-] or conductance factor [-]).
+    intake : str, float, pint.Quantity or list of these, optional
+        New pump intake depth below the datum: ``"140 ft"``, a Quantity, or a number in the
+        display length unit (ft for "US", m for "SI").
+    blend : str, dict or list of these, optional
+        A second source: ``"200 gpm; nitrate=2 mg/L as N; arsenic=1 ug/L"`` or
+        ``{"rate": "200 gpm", "nitrate": "2 mg/L as N", "arsenic": "1 ug/L"}``; every predicted
+        analyte needs a concentration.
+    scenarios : list of dict or Scenario, optional
+        Further options as raw ``[[scenarios]]`` entries (or already resolved).
+    include_project : bool
+        Start with the project's own ``[[scenarios]]``.
+    units : {"US", "SI"}, optional
+        Unit system of a bare intake number (default: the project's display units).
+    file, option_prefix : str
+        Where the options came from, for messages (the command line gives
+        ``"command line"`` and ``"--"``).
+
+    Returns
+    -------
+    list of Scenario
+        In order: the project's, ``seal``, ``redevelop``, ``intake``, ``blend``, ``scenarios``.
+
+    Raises
+    ------
+    InputError
+        For a bad option (naming it) or a name given twice.
+    ModelError
+        When an option seals every zone.
+    """
+    units = _unit_system(units or project.settings.display_units)
+    out = _scenarios.project_scenarios(project) if include_project else []
+    names = {s.name for s in out}
+    raws: list[tuple[str, Any]] = []
+    raws += [(option_prefix + "seal", {"name": f"Seal {zone}", "seal": [zone]})
+             for zone in _as_list(seal)]
+    key = option_prefix + "redevelop"
+    raws += [(key, _raw_redevelop(item, file, key)) for item in _as_list(redevelop)]
+    raws += [(option_prefix + "intake", _raw_intake(item, units)) for item in _as_list(intake)]
+    key = option_prefix + "blend"
+    raws += [(key, _raw_blend(item, file, key)) for item in _as_list(blend)]
+    # a one-change option is named by its argument alone; a [[scenarios]] entry keeps the key
+    # inside it (scenarios[2].blend.rate) in messages
+    entries = [(key, raw, True) for key, raw in raws]
+    entries += [(f"{option_prefix}scenarios[{k}]", raw, False)
+                for k, raw in enumerate(_as_list(scenarios), 1)]
+    for k, (key, raw, by_argument) in enumerate(entries, 1):
+        if isinstance(raw, _scenarios.Scenario):
+            sc = raw
+        else:
+            try:
+                sc = _scenarios.parse_scenario(raw, k, project, file=file, prefix=key)
+            except InputError as err:
+                if not by_argument:
+                    raise
+                raise InputError(err.message, file=file, field=key) from None
+        if sc.name in names:
+            raise InputError(f'"{sc.name}" is given twice', file=file, field=key)
+        names.add(sc.name)
+        out.append(sc)
+    return out
+
+
+# ------------------------------------------------------------------------------ analysis
+def analyse(project: Project | str | os.PathLike[str], draws: int | None = None,
+            seed: int | None = None, *, sample_mode: str = "keep", units: str | None = None,
+            progress: Callable[[int, int], None] | None = None) -> Result:
+    """Run the whole analysis of a project: review, fit, uncertainty, sweep and window.
+
+    Parameters
+    ----------
+    project : Project or path
+        A loaded project (:func:`load_project`) or its folder / project.toml.
+    draws : int, optional
+        Monte Carlo draws (default: the project's ``draws`` setting).
+    seed : int, optional
+        Random seed (default: the project's ``seed`` setting). The same seed gives the same
+        numbers.
+    sample_mode : {"keep", "exclude", "downweight"}
+        Use of the samples the lab and field review flags.
+    units : {"US", "SI"}, optional
+        Display units of the result's tables (default: the project's ``display_units``).
+    progress : callable(done, total), optional
+        Called as the Monte Carlo refit advances.
+
+    Returns
+    -------
+    Result
+
+    Raises
+    ------
+    InputError
+        For unreadable or inconsistent inputs (naming file, row and field).
+    ModelError
+        When nothing can be fitted.
+    """
+    if not isinstance(project, Project):
+        project = load_project(project)
+    units = _unit_system(units or project.settings.display_units)
+    # looked up at call time, so the pipeline function stays the one place the analysis runs
+    a = _pipeline.analyse(project, draws=draws, seed=seed, sample_mode=sample_mode,
+                          progress=progress)
+    return Result(a, units)
+
+
+class Result:
+    """The analysis of one project, with its tables in display units.
+
+    Made by :func:`analyse`. Tables are pandas DataFrames whose column names carry their unit
+    (``"rate [gpm]"``); concentrations are in each analyte's display unit (``"mg/L as N"``,
+    ``"ug/L"``), which does not change with the unit system.
+
+    Attributes
+    ----------
+    analysis : blendq.decide.analysis.Analysis
+        The pipeline's plain result (base units: m, m^3/d, d, mg/L canonical basis).
+    units : {"US", "SI"}
+        Display units of the tables and texts.
+    """
+
+    def __init__(self, analysis: _pipeline.Analysis, units: str = "US") -> None:
+        self.analysis = analysis
+        self.units = _unit_system(units)
+
+    def in_units(self, units: str) -> Result:
+        """The same result shown in another unit system ("US" or "SI"); nothing is re-run."""
+        return Result(self.analysis, units)
+
+    # -- plain facts -----------------------------------------------------------------------
+    @property
+    def project(self) -> Project:
+        """The project analysed."""
+        return self.analysis.project
+
+    @property
+    def _du(self) -> dict[str, str]:
+        return DISPLAY_UNITS[self.units]
+
+    @property
+    def rate_unit(self) -> str:
+        """Display unit of rates ("gpm" or "m3/d")."""
+        return _unit_label(self._du["rate"])
+
+    @property
+    def length_unit(self) -> str:
+        """Display unit of depths and lengths ("ft" or "m")."""
+        return _unit_label(self._du["length"])
+
+    @property
+    def decision(self) -> str:
+        """The decision in one sentence, in display units."""
+        return _pipeline.decision_sentence(self.analysis, self.units)
+
+    @property
+    def notes(self) -> list[str]:
+        """Notes of the analysis (what the decision rests on, what to check)."""
+        return list(self.analysis.notes)
+
+    @property
+    def not_fitted(self) -> dict[str, str]:
+        """Analytes reviewed but not fitted, with the reason."""
+        return dict(self.analysis.not_fitted)
+
+    # -- tables ----------------------------------------------------------------------------
+    @cached_property
+    def window(self) -> OperatingWindow:
+        """The operating window (intervals, what limits each end, recommended rate)."""
+        return OperatingWindow(self.analysis, self.units)
+
+    @cached_property
+    def zones(self) -> pd.DataFrame:
+        """Zone water quality, one row per zone and analyte (tidy).
+
+        Columns: zone, analyte, unit (the analyte's display unit, which differs between
+        analytes), estimate, sd, lower, upper (the project's interval), range low, range high
+        (the values the data allow), verdict ("resolved", "weakly resolved", "not resolved";
+        estimate, sd, lower and upper are NaN for a zone the data do not resolve).
+        """
+        z = self.analysis.zones
+        out = pd.DataFrame({"zone": z["zone"], "analyte": z["analyte"],
+                            "unit": [_concentration_unit(a) for a in z["analyte"]]})
+        for col, name in (("estimate", "estimate"), ("sd", "sd"), ("lower", "lower"),
+                          ("upper", "upper"), ("range_low", "range low"),
+                          ("range_high", "range high")):
+            out[name] = [float(get_analyte(a).in_display_unit(v))
+                         for a, v in zip(z["analyte"], z[col], strict=True)]
+        out["verdict"] = z["verdict"].to_numpy()
+        out.attrs["interval"] = self.project.settings.interval
+        return out
+
+    @cached_property
+    def hydraulics(self) -> pd.DataFrame:
+        """Fitted zone hydraulics: conductance and static level of each zone, with their
+        uncertainty and whether the test data or the zone properties (prior) set them."""
+        h = self.analysis.hydraulics
+        du, cu = self._du, _unit_label(self._du["conductance"])
+        return pd.DataFrame({
+            "zone": h["zone"],
+            f"conductance [{cu}]": from_base(h["conductance"].to_numpy(float), "conductance",
+                                             du["conductance"]),
+            "conductance relative sd [-]": h["conductance_rel_sd"].to_numpy(float),
+            "conductance from": h["conductance_from"],
+            f"static level [{self.length_unit} depth]": from_base(
+                -h["static_head"].to_numpy(float), "length", du["length"]),
+            f"static level sd [{self.length_unit}]": from_base(
+                h["static_head_sd"].to_numpy(float), "length", du["length"]),
+            "static level from": h["static_head_from"],
+            "prior source": h["prior_source"],
+        })
+
+    @cached_property
+    def residuals(self) -> pd.DataFrame:
+        """One row per lab result: observed and fitted concentration (in the row's unit),
+        lab sigma, standardised residual [-] and the outlier flag. A non-detect shows its
+        detection limit as observed."""
+        r = self.analysis.residuals
+        out = pd.DataFrame({"sample id": r["sample_id"], "step": r["step"],
+                            "analyte": r["analyte"],
+                            f"depth [{self.length_unit}]": from_base(
+                                r["depth"].to_numpy(float), "length", self._du["length"]),
+                            "unit": [_concentration_unit(a) for a in r["analyte"]]})
+        for col in ("observed", "fitted", "sigma"):
+            out[col] = [float(get_analyte(a).in_display_unit(v))
+                        for a, v in zip(r["analyte"], r[col], strict=True)]
+        out["standardised [-]"] = r["standardised"].to_numpy(float)
+        out["nondetect"] = r["nondetect"].to_numpy(bool)
+        out["outlier"] = r["outlier"].to_numpy(bool)
+        return out
+
+    @property
+    def review(self) -> pd.DataFrame:
+        """Findings of the lab and field review, most severe first (severity, rule,
+        sample_id, step, analyte, message, source, source_row)."""
+        return self.analysis.qa.findings.copy()
+
+    @cached_property
+    def sweep(self) -> pd.DataFrame:
+        """The rate sweep behind the window: :meth:`predict` at every rate of the grid."""
+        return self._sweep_frame(self.analysis.sweep_table)
+
+    def predict(self, rates: Any) -> pd.DataFrame:
+        """Discharge quality, pumping level and zone shares at given pumping rates.
+
+        Parameters
+        ----------
+        rates : float, str, pint.Quantity or sequence of these
+            Numbers in the display rate unit (gpm for "US", m^3/d for "SI"), Quantities, or
+            text such as ``"450 gpm"``, ``"200, 400 gpm"`` or ``"30 L/s"`` (see
+            :func:`parse_rates`).
+
+        Returns
+        -------
+        DataFrame
+            One row per rate: ``rate [<unit>]``; per analyte its median, lower and upper (the
+            project's interval band) in the analyte's display unit, and the probabilities
+            [-] of exceeding the margin x limit and the limit; the pumping level [depth in the
+            display length unit] (median and deep side of the band); each zone's median share
+            of the discharge [-]. Predictions are at the operating horizon, with the same
+            Monte Carlo draws as the window.
+        """
+        a = self.analysis
+        s = self.project.settings
+        pred = _sweep.sweep(a.fit, a.draws, parse_rates(rates, self.units))
+        table = _sweep.sweep_table(pred, a.limits, s.margin, s.interval, self.project.zone_names,
+                                   _sweep.compliance_statistics(self.project, a.limits))
+        return self._sweep_frame(table)
+
+    def _sweep_frame(self, table: pd.DataFrame) -> pd.DataFrame:
+        """A base-unit sweep table (:func:`blendq.decide.sweep.sweep_table`) in display units."""
+        du, lu = self._du, self.length_unit
+        s = self.project.settings
+        out = {f"rate [{self.rate_unit}]": from_base(table["rate"].to_numpy(float), "rate",
+                                                     du["rate"])}
+        for a in self.analysis.prediction.analytes:
+            cu, an = _concentration_unit(a), get_analyte(a)
+            for stat in ("median", "lower", "upper"):
+                out[f"{a} {stat} [{cu}]"] = an.in_display_unit(table[f"{a}_{stat}"])
+            if f"{a}_p_exceed_margin" in table:
+                out[f"{a} P(above {s.margin:.0%} of limit) [-]"] = \
+                    table[f"{a}_p_exceed_margin"].to_numpy(float)
+                out[f"{a} P(above limit) [-]"] = table[f"{a}_p_exceed_limit"].to_numpy(float)
+        for stat in ("median", "deep"):
+            out[f"pumping level {stat} [{lu} depth]"] = from_base(
+                table[f"pumping_level_{stat}"].to_numpy(float), "length", du["length"])
+        for z in self.project.zone_names:
+            out[f"share {z} [-]"] = table[f"share_{z}"].to_numpy(float)
+        frame = pd.DataFrame(out)
+        frame.attrs.update(units=self.units, interval=s.interval)
+        return frame
+
+    # -- options, report, charts -----------------------------------------------------------
+    def compare(self, seal: Any = None, redevelop: Any = None, intake: Any = None,
+                blend: Any = None, *, scenarios: Sequence[dict] | None = None,
+                include_project: bool = True) -> ComparisonResult:
+        """Compare options with the base case, all with the same Monte Carlo draws.
+
+        Parameters
+        ----------
+        seal, redevelop, intake, blend, scenarios, include_project
+            See :func:`build_scenarios` (one option per item; the project's own
+            ``[[scenarios]]`` first unless ``include_project`` is False).
+
+        Returns
+        -------
+        ComparisonResult
+        """
+        built = build_scenarios(self.project, seal, redevelop, intake, blend,
+                                scenarios=scenarios, include_project=include_project,
+                                units=self.units)
+        return ComparisonResult(_scenarios.compare(self.analysis, built), self.analysis,
+                                self.units)
+
+    def write_report(self, folder: str | os.PathLike[str], units: str | None = None,
+                     charts: ChartPool | None = None) -> Path:
+        """Write the report folder of ``blendq report``: report.html, report.pdf, the tables
+        (CSV), summary.json and the charts.
+
+        Parameters
+        ----------
+        folder : path-like
+            Output folder; replaced as a whole if blendq wrote it before, refused if it holds
+            anything else or the project's input files.
+        units : {"US", "SI"}, optional
+            Display units of the report (default: this result's).
+        charts : blendq.report.chart_pool.ChartPool, optional
+            A running chart pool (one is started when not given).
+
+        Returns
+        -------
+        pathlib.Path
+            The folder written (absolute).
+        """
+        u = self.units if units is None else _unit_system(units)
+        protect = _protected(self.project)
+        _outputs.check_output_folder(folder, protect)
+        files = _assemble.output_files(self.analysis, u, created=f"blendq {__version__}",
+                                       charts=charts)
+        return _outputs.write_outputs(folder, files, protect=protect)
+
+    @cached_property
+    def plot(self) -> Plots:
+        """The report's charts as matplotlib Figures (``result.plot.quality()`` ...)."""
+        return Plots(self.analysis, self.units)
+
+    # -- texts -----------------------------------------------------------------------------
+    def summary(self) -> dict:
+        """The machine-readable summary of the report's summary.json (base units, with the
+        decision sentence in display units)."""
+        return _assemble.summary_json(self.analysis, self.units)
+
+    def text_table(self, name: str) -> pd.DataFrame:
+        """A table as the report and the command line print it (text cells, display units).
+
+        Parameters
+        ----------
+        name : {"zones", "window"}
+        """
+        if name == "zones":
+            return _assemble.zone_display_table(self.analysis)
+        if name == "window":
+            return _assemble.window_display_table(self.analysis, self.units)
+        raise InputError(f'"{name}" is not a text table (expected "zones" or "window")',
+                         field="name")
+
+    def _facts(self) -> list[tuple[str, str]]:
+        a, p = self.analysis, self.project
+        return [
+            ("Project", p.name),
+            ("Well", f"{p.well.name}: {len(p.zones)} zones, {len(p.steps)} steps, "
+                     f"{len(p.samples)} lab results"),
+            ("Fitted", ", ".join(a.prediction.analytes)
+             + (f" ({len(a.not_fitted)} analytes reviewed only or not fitted)"
+                if a.not_fitted else "")),
+            ("Monte Carlo", f"{a.draws.n_draws} draws, seed {a.draws.seed}"),
+            ("Review", "; ".join(a.qa.summary_lines()) or "no findings"),
+            ("Window", self.window.interval_text()),
+            ("Display units", self.units),
+        ]
+
+    def __repr__(self) -> str:
+        lines = [f"blendq result: {self.project.name}"]
+        for key, value in self._facts()[1:]:
+            lines += _wrap(value, f"  {key.lower()}: ")
+        lines += _wrap(self.decision, "  decision: ")
+        n = len(self.analysis.notes)
+        if n:
+            lines.append(f"  {n} note{'s' if n > 1 else ''} (result.notes)")
+        lines += _wrap("zones, window, review, hydraulics, residuals, sweep; predict(rates), "
+                       "compare(options), plot, write_report(folder)", "  tables: ")
+        return "\n".join([*lines, *_wrap(_short_caution())])
+
+    def _repr_html_(self) -> str:
+        notes = "".join(f"<li>{html.escape(n)}</li>" for n in self.analysis.notes)
+        return (f"<div><p><b>blendq result</b></p>{_html_rows(self._facts())}"
+                f"<p><b>Decision:</b> {html.escape(self.decision)}</p>"
+                + (f"<details><summary>Notes ({len(self.analysis.notes)})</summary>"
+                   f"<ul>{notes}</ul></details>" if notes else "")
+                + _html_cautions() + "</div>")
+
+
+class OperatingWindow:
+    """The rates that meet every limit with the margin inside the well's hydraulic limits.
+
+    Attributes
+    ----------
+    intervals : DataFrame
+        One row per interval: ``from [<rate unit>]``, ``to [<rate unit>]``, ``lower end set
+        by``, ``upper end set by`` (the criterion that fails just outside each end).
+    recommended : float or None
+        Recommended rate in the display unit (the largest rate in the window not above the
+        demand), None when there is no window.
+    demand : float or None
+        The well's demand in the display unit.
+    decision : str
+        The decision sentence.
+    reason_empty : str
+        Why there is no window ("" when there is one).
+    units : {"US", "SI"}
+    """
+
+    def __init__(self, analysis: _pipeline.Analysis, units: str) -> None:
+        self._analysis = analysis
+        self.units = units
+        w, du = analysis.window, DISPLAY_UNITS[units]
+        self.rate_unit = _unit_label(du["rate"])
+        self.intervals = pd.DataFrame(
+            [(float(from_base(lo, "rate", du["rate"])), float(from_base(hi, "rate", du["rate"])),
+              why_lo, why_hi) for lo, hi, why_lo, why_hi in w.intervals],
+            columns=[f"from [{self.rate_unit}]", f"to [{self.rate_unit}]", "lower end set by",
+                     "upper end set by"])
+        self.recommended = (None if w.recommended is None
+                            else float(from_base(w.recommended, "rate", du["rate"])))
+        demand = analysis.project.well.demand
+        self.demand = None if not demand else float(from_base(demand, "rate", du["rate"]))
+        self.decision = _pipeline.decision_sentence(analysis, units)
+        self.reason_empty = w.reason_empty
+
+    @property
+    def empty(self) -> bool:
+        """True when no rate meets every criterion."""
+        return self._analysis.window.empty
+
+    @property
+    def criteria(self) -> pd.DataFrame:
+        """Each criterion of the window on the sweep's rate grid: ``rate [<unit>]``, one
+        True/False column per criterion, and ``all met``."""
+        w = self._analysis.window
+        data = {f"rate [{self.rate_unit}]": from_base(w.rates, "rate",
+                                                      DISPLAY_UNITS[self.units]["rate"])}
+        for c in w.criteria:
+            data[c.name] = np.asarray(c.ok, bool)
+        data["all met"] = np.asarray(w.ok, bool)
+        return pd.DataFrame(data)
+
+    def interval_text(self) -> str:
+        """The window in one line ("283 gpm to 658 gpm; recommended 600 gpm")."""
+        w = self._analysis.window
+        if w.empty:
+            return "none"
+        spans = " and ".join(f"{format_quantity(lo, 'rate', self.units)} to "
+                             f"{format_quantity(hi, 'rate', self.units)}"
+                             for lo, hi, _, _ in w.intervals)
+        return f"{spans}; recommended {format_quantity(w.recommended, 'rate', self.units)}"
+
+    def _lines(self, shown: int = 4) -> list[str]:
+        w = self._analysis.window
+        lines = [f"Operating window of {self._analysis.project.well.name} ({self.units} units)"]
+        if w.empty:
+            lines += _wrap(f"no rate meets every criterion: {w.reason_empty}", "  ")
+        for lo, hi, why_lo, why_hi in w.intervals[:shown]:
+            lines.append(f"  {format_quantity(lo, 'rate', self.units)} to "
+                         f"{format_quantity(hi, 'rate', self.units)}")
+            lines += _wrap(f"lower end set by: {why_lo}", "    ")
+            lines += _wrap(f"upper end set by: {why_hi}", "    ")
+        if len(w.intervals) > shown:
+            lines.append(f"  and {len(w.intervals) - shown} more intervals (see .intervals)")
+        if w.recommended is not None:
+            demand = self._analysis.project.well.demand
+            lines.append(f"  recommended rate: {format_quantity(w.recommended, 'rate', self.units)}"
+                         + (f" (demand {format_quantity(demand, 'rate', self.units)})"
+                            if demand else ""))
+        return lines + _wrap(self.decision, "  decision: ")
+
+    def __repr__(self) -> str:
+        return "\n".join([*self._lines(), *_wrap(_short_caution())])
+
+    def _repr_html_(self) -> str:
+        w = self._analysis.window
+        rows = [(f"{format_quantity(lo, 'rate', self.units)} to "
+                 f"{format_quantity(hi, 'rate', self.units)}",
+                 f"lower end set by {why_lo}; upper end set by {why_hi}")
+                for lo, hi, why_lo, why_hi in w.intervals]
+        if w.empty:
+            rows = [("none", w.reason_empty)]
+        if w.recommended is not None:
+            rows.append(("Recommended rate", format_quantity(w.recommended, "rate", self.units)))
+        return (f"<div><p><b>Operating window of {html.escape(self._analysis.project.well.name)}"
+                f"</b></p>{_html_rows(rows)}<p><b>Decision:</b> {html.escape(self.decision)}</p>"
+                f"{_html_cautions()}</div>")
+
+
+class ComparisonResult:
+    """Options compared with the base case (made by :meth:`Result.compare`).
+
+    Attributes
+    ----------
+    comparison : blendq.decide.scenarios.Comparison
+        The plain comparison (base units).
+    units : {"US", "SI"}
+    """
+
+    def __init__(self, comparison: _scenarios.Comparison, analysis: _pipeline.Analysis,
+                 units: str) -> None:
+        self.comparison = comparison
+        self._analysis = analysis
+        self.units = units
+
+    @cached_property
+    def table(self) -> pd.DataFrame:
+        """One row per option, the base case first: window, recommended and delivered rate,
+        pumping-level yield (display rate unit), what limits the window, and each analyte's
+        median and band at the recommended rate (its display unit)."""
+        t = self.comparison.table
+        du = DISPLAY_UNITS[self.units]
+        ru = _unit_label(du["rate"])
+        out = pd.DataFrame({"option": t["scenario"], "changes": t["changes"]})
+        for col, name in (("window_low", "window low"), ("window_high", "window high"),
+                          ("window_width", "window width"), ("recommended", "recommended"),
+                          ("blend_rate", "blend rate"), ("delivered", "delivered"),
+                          ("yield", "pumping-level yield")):
+            out[f"{name} [{ru}]"] = from_base(t[col].to_numpy(float), "rate", du["rate"])
+        out["yield beyond grid"] = t["yield_beyond_grid"].to_numpy(bool)
+        out["intervals"] = t["n_intervals"].to_numpy(int)
+        out["lower end set by"] = t["lower_end_set_by"]
+        out["upper end set by"] = t["upper_end_set_by"]
+        analytes = self.comparison.results[0].prediction.analytes if self.comparison.results \
+            else []
+        for a in analytes:
+            cu, an = _concentration_unit(a), get_analyte(a)
+            for stat in ("median", "lower", "upper"):
+                out[f"{a} {stat} [{cu}]"] = an.in_display_unit(t[f"{a}_{stat}"])
+        return out
+
+    def text_table(self) -> pd.DataFrame:
+        """The comparison as the report and the command line print it (text cells)."""
+        return _scenario_section.comparison_display_table(
+            self.comparison, self.units, self._analysis.project.settings.interval)
+
+    @property
+    def widest(self) -> str:
+        """A sentence naming the option with the widest operating window."""
+        return _scenario_section.widest_sentence(self.comparison, self.units)
+
+    def plot(self) -> Figure:
+        """Median delivered quality against rate for each option, and their windows
+        (matplotlib Figure; the report's chart)."""
+        from blendq.report.charts.scenarios import scenario_chart
+
+        return scenario_chart(self.comparison, self._analysis.limits, self.units)
+
+    def _rows(self) -> list[tuple[str, str]]:
+        rows = []
+        for res in self.comparison.results:
+            w = res.window
+            window = " and ".join(f"{format_quantity(lo, 'rate', self.units)} to "
+                                  f"{format_quantity(hi, 'rate', self.units)}"
+                                  for lo, hi, _, _ in w.intervals) or "none"
+            rec = ("" if w.recommended is None
+                   else f"; recommended {format_quantity(w.recommended, 'rate', self.units)}")
+            rows.append((res.scenario.name, f"window {window}{rec}"))
+        return rows
+
+    def __repr__(self) -> str:
+        lines = [f"Options compared for {self._analysis.project.well.name} "
+                 f"({len(self.comparison.results)} including the base case)"]
+        rows = self._rows()
+        for name, text in rows[:12]:
+            lines += _wrap(f"{name}: {text}", "  ")
+        if len(rows) > 12:
+            lines.append(f"  and {len(rows) - 12} more options (see .table)")
+        return "\n".join([*lines, *_wrap(self.widest), *_wrap(_short_caution())])
+
+    def _repr_html_(self) -> str:
+        return (f"<div><p><b>Options compared for "
+                f"{html.escape(self._analysis.project.well.name)}</b></p>"
+                f"{_html_rows(self._rows())}<p>{html.escape(self.widest)}</p>"
+                f"{_html_cautions()}</div>")
+
+
+class Plots:
+    """The report's charts of one result, each returned as a matplotlib Figure.
+
+    The charts are the report's own (same functions, same arguments); matplotlib is imported
+    only when a chart is drawn. In a notebook, a Figure shows itself as the cell's value.
+    """
+
+    def __init__(self, analysis: _pipeline.Analysis, units: str) -> None:
+        self._analysis = analysis
+        self.units = units
+
+    def _draw(self, jobs: list, draw: Any) -> Figure:
+        job = next(j for j in jobs if j.draw is draw)
+        return job.draw(*job.args)
+
+    def quality(self) -> Figure:
+        """Discharge quality against pumping rate: median, band, limits, step samples and
+        the operating window, one panel per fitted analyte."""
+        from blendq.report.charts import quality
+
+        return self._draw(_assemble.quality_jobs(self._analysis, self.units),
+                          quality.quality_vs_rate)
+
+    def shares(self) -> Figure:
+        """Each zone's share of the discharge against pumping rate."""
+        from blendq.report.charts import quality
+
+        return self._draw(_assemble.quality_jobs(self._analysis, self.units),
+                          quality.zone_shares)
+
+    def levels(self) -> Figure:
+        """Pumping level against rate at the operating horizon, with the intake and screen."""
+        from blendq.report.charts import quality
+
+        return self._draw(_assemble.quality_jobs(self._analysis, self.units),
+                          quality.pumping_level)
+
+    def zones(self) -> Figure:
+        """Zone estimates with intervals; unresolved zones as the range the data allow."""
+        from blendq.report.charts import quality
+
+        return self._draw(_assemble.quality_jobs(self._analysis, self.units),
+                          quality.zone_estimates)
+
+    def step_drawdown(self, kind: str = "specific") -> Figure:
+        """A chart of the step-drawdown analysis.
+
+        Parameters
+        ----------
+        kind : {"specific", "drawdown", "record"}
+            Specific drawdown against rate with the well-loss fits; drawdown against rate;
+            the water-level record with each step's extrapolation (needs the levels table).
+
+        Raises
+        ------
+        ModelError
+            When the project has no step-drawdown analysis (or no level record for
+            ``"record"``).
+        """
+        from blendq.report.charts import stepdrawdown as sd
+
+        draws = {"specific": sd.specific_drawdown_chart, "drawdown": sd.drawdown_rate_chart,
+                 "record": sd.step_record_chart}
+        if kind not in draws:
+            raise InputError(f'"{kind}" is not a step-drawdown chart (expected '
+                             '"specific", "drawdown" or "record")', field="kind")
+        jobs = _assemble.step_drawdown_jobs(self._analysis, self.units)
+        if not any(j.draw is draws[kind] for j in jobs):
+            lc = self._analysis.step_drawdown
+            why = ("the project has no water-level record" if jobs
+                   else lc.reason if lc is not None else "not run")
+            raise ModelError(f"no step-drawdown chart {kind!r}: {why}")
+        return self._draw(jobs, draws[kind])
+
+    def __repr__(self) -> str:
+        return (f"charts of {self._analysis.project.well.name}: quality(), shares(), levels(), "
+                "zones(), step_drawdown(kind)")
