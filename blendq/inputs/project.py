@@ -190,6 +190,9 @@ class Settings:
         Error of a measured water level [m] (1 sd).
     default_relative_uncertainty : float
         Lab uncertainty (1 sd, relative) used where a result has none.
+    fit_time_budget : float
+        Longest time the hydraulic fit may take [s]; a fit still running then stops with an
+        error (common practice for an interactive tool, not a published value).
     qa : dict
         Options of the lab and field review.
     """
@@ -209,6 +212,7 @@ class Settings:
     flowlog_absolute_error: float = 2.7
     level_error: float = 0.05
     default_relative_uncertainty: float = 0.05
+    fit_time_budget: float = 30.0
     qa: dict = field(default_factory=dict)
 
 

@@ -302,6 +302,7 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
         level_error=s.quantity("level_error", "length", d.level_error, sign="nonnegative"),
         default_relative_uncertainty=float(s.number("default_relative_uncertainty",
                                                     d.default_relative_uncertainty, 0.0, 1.0)),
+        fit_time_budget=float(s.number("fit_time_budget", d.fit_time_budget, 0.0, None, True)),
         qa=dict(qa),
     )
     s.done()
