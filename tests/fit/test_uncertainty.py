@@ -75,15 +75,17 @@ def test_fixed_hydraulics_draws_keep_theta(fixed):
 
 
 def test_theta_draws_have_the_linearised_covariance(joint):
-    # Gauss-Newton refit: cov(J^+ e) = (J^T J)^-1 (the fitted theta_cov); 2000 draws give the
-    # sd to about 1.6 % (1 sd), so 10 % is a loose bound
+    # a well with flow logs is close to linear in theta over its posterior spread, so the
+    # randomised-maximum-likelihood draws have about the linearised covariance (J^T J)^-1 (the
+    # fitted theta_cov): 2000 draws give the sd to about 1.6 % (1 sd), so 10 % is a loose bound
     result, draws = joint
     sd_mc = draws.theta.std(axis=0, ddof=1)
     sd_lin = np.sqrt(np.diag(result.theta_cov))
     assert np.all(sd_lin > 0)
     np.testing.assert_allclose(sd_mc, sd_lin, rtol=0.10)
-    # centred on the optimum: the mean of 2000 draws within 4 standard errors
-    assert np.all(np.abs(draws.theta.mean(0) - result.theta) <= 4 * sd_lin / np.sqrt(2000))
+    # centred near the optimum: the posterior mean of a mildly nonlinear problem differs from
+    # its mode by a small fraction of a sd (here < 0.15 sd, Monte Carlo error 0.02 sd)
+    assert np.all(np.abs(draws.theta.mean(0) - result.theta) <= 0.15 * sd_lin)
 
 
 def test_linearised_zone_sd_matches_monte_carlo(fixed):
