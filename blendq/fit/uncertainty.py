@@ -45,7 +45,7 @@ def residual_layout(problem: Problem) -> dict[str, slice]:
 DISCREPANCY_QUANTILE = 0.95
 
 #: Levenberg-Marquardt iterations allowed per posterior draw
-MAX_DRAW_ITERATIONS = 40
+MAX_DRAW_ITERATIONS = 100
 
 #: a draw has converged when an accepted step lowers its chi-square by less than this
 DRAW_CHI2_TOL = 1e-6
@@ -65,7 +65,8 @@ class GroupFit:
         Sum of squared whitened residuals at the best fit.
     dof : float
         Effective degrees of freedom: rows minus their leverage (hat-matrix diagonal of the
-        hydraulic Jacobian) minus, for an analyte, the rank of its weighted weight matrix.
+        hydraulic Jacobian) minus, for an analyte, the rank of its weighted weight matrix over
+        the zones not held on a bound.
     scale : float
         Factor applied to the group's stated errors for the draws (the Birge ratio
         sqrt(chi_square / dof) where the misfit exceeds the quantile
@@ -85,10 +86,10 @@ class GroupFit:
             return None
         what = self.group if self.group in ("pumping levels", "flow logs") \
             else f"{self.group} lab results"
-        return (f"{what}: the best fit misses them by {self.scale:.1f}x their stated error "
+        return (f"{what[0].upper()}{what[1:]}: the best fit misses them by {self.scale:.1f}x their stated error "
                 f"(chi-square {self.chi_square:.1f} on {self.dof:.1f} degrees of freedom); "
                 "their errors are widened by that factor for the uncertainty bands (model "
-                "discrepancy, Birge ratio)")
+                "discrepancy, Birge ratio).")
 
 
 def draw_layout(problem: Problem) -> dict[str, slice]:
@@ -126,7 +127,6 @@ def discrepancy(fit: FitResult, quantile: float = DISCREPANCY_QUANTILE) -> list[
     jac = fit.jacobian
     lev_all = np.einsum("ij,ji->i", jac, scaled_pinv(jac)) if jac.size else np.zeros(0)
     full = residual_layout(problem)
-    n_hyd = layout["pumping levels"].stop
     lev = {"flow logs": lev_all[layout["flow logs"]] if jac.size else None,
            "pumping levels": lev_all[layout["pumping levels"]] if jac.size else None}
     out = []
@@ -142,8 +142,12 @@ def discrepancy(fit: FitResult, quantile: float = DISCREPANCY_QUANTILE) -> list[
             d = problem.data[group]
             c, a, _ = solve_concentrations(problem, fit.model, group)
             r = (a @ c - d.value) / d.sigma
-            wa = a / d.sigma[:, None]
-            sv = np.linalg.svd(wa, compute_uv=False)
+            lb, ub = problem.bounds(group)
+            with np.errstate(invalid="ignore"):
+                free = ((c > lb + 1e-9 * (1 + np.abs(lb))) | ~np.isfinite(lb)) \
+                    & ((c < ub - 1e-9 * (1 + np.abs(ub))) | ~np.isfinite(ub))
+            wa = (a / d.sigma[:, None])[:, free]  # a zone held on a bound is no free parameter
+            sv = np.linalg.svd(wa, compute_uv=False) if wa.size else np.zeros(0)
             rank = int(np.sum(sv > 1e-6 * sv[0])) if len(sv) and sv[0] > 0 else 0
             used = float(lev_all[full[group]].sum()) if jac.size else 0.0
             dof = m - rank - used
@@ -157,7 +161,6 @@ def discrepancy(fit: FitResult, quantile: float = DISCREPANCY_QUANTILE) -> list[
         if dof >= 0.5 and chi2 > stats.chi2.ppf(quantile, dof):
             scale = float(np.sqrt(chi2 / dof))
         out.append(GroupFit(group, rows, chi2, float(dof), scale))
-    del n_hyd
     return out
 
 
@@ -280,84 +283,131 @@ class _PerturbedData:
         return np.concatenate(parts, axis=1), zv, new_active
 
 
-def _jacobian_batch(data: _PerturbedData, theta, idx, active, steps) -> np.ndarray:
-    """Forward-difference Jacobian of every draw's residuals, (B, rows, n_theta), with each
-    draw's active constraints held fixed (the exact derivative where the active set does not
-    change)."""
+def _take(state, rows):
+    return {k: v[rows] for k, v in state.items()}
+
+
+def levenberg_marquardt_batch(fun, theta, lower, steps, max_iter: int = MAX_DRAW_ITERATIONS,
+                              tol: float = DRAW_CHI2_TOL):
+    """Minimise many sums of squares at once by Levenberg-Marquardt.
+
+    Parameters
+    ----------
+    fun : callable(theta (B, p), rows (B,), state, check) -> (r (B, m), extra (B, ...), state)
+        Residuals of the problems ``rows`` at ``theta``. ``state`` is a dict of per-problem
+        arrays (for example the active constraints of an inner solve; None the first time);
+        with ``check`` False it must be held fixed (used for the finite-difference Jacobian).
+    theta : ndarray (B, p)
+        Starting values.
+    lower : ndarray (p,)
+        Lower bounds (-inf for none), honoured by projection.
+    steps : ndarray (p,)
+        Forward-difference steps.
+    max_iter : int
+    tol : float
+        A problem has converged when an accepted step, or the full Gauss-Newton step, lowers its
+        sum of squares by less than ``tol`` (1 + sum of squares).
+
+    Returns
+    -------
+    theta : ndarray (B, p)
+    extra : ndarray (B, ...)
+        ``extra`` of the last accepted point.
+    converged : ndarray (B,) of bool
+
+    References
+    ----------
+    Marquardt, D.W. (1963) An algorithm for least-squares estimation of nonlinear parameters.
+    J. SIAM 11(2), 431-441. Nielsen, H.B. (1999) Damping parameter in Marquardt's method.
+    IMM-REP-1999-05, Technical University of Denmark (the damping update).
+    """
+    theta = np.array(theta, float)
     bsz, p = theta.shape
-    r0, _, _ = data.residuals(theta, idx, active, check=False)
-    pert = np.repeat(theta[None], p, axis=0)  # (p, B, p)
-    for k in range(p):
-        pert[k, :, k] += steps[k]
-    rep_active = {a: np.tile(v, (p, 1)) for a, v in active.items()}
-    rk, _, _ = data.residuals(pert.reshape(p * bsz, p), np.tile(idx, p), rep_active, check=False)
-    rk = rk.reshape(p, bsz, -1)
-    return np.moveaxis((rk - r0[None]) / steps[:, None, None], 0, -1)
-
-
-def _refit_draws(fit: FitResult, data: _PerturbedData, idx: np.ndarray):
-    """Levenberg-Marquardt refit of the draws ``idx`` from the best fit (batched, bounds by
-    projection); returns theta (B, p), zone values (B, n, a) and a converged flag (B,)."""
-    problem = fit.problem
-    n = problem.n_zones
-    bsz = len(idx)
-    theta = np.repeat(fit.theta[None, :], bsz, axis=0)
-    r, zv, active = data.residuals(theta, idx)
-    if not problem.options.fit_hydraulics or fit.jacobian.size == 0:
-        return theta, zv, np.ones(bsz, bool)
-    p = theta.shape[1]
-    lo = np.full(p, -np.inf)
-    if problem.fit_c:
-        lo[2 * n] = 0.0
-    sd = np.sqrt(np.clip(np.diag(fit.theta_cov), 0.0, None))
-    steps = 1e-4 * np.where(sd > 0, sd, 1e-6 * np.maximum(1.0, np.abs(fit.theta)))
+    rows = np.arange(bsz)
+    r, extra, state = fun(theta, rows, None, True)
+    extra = np.array(extra)
     cost = (r**2).sum(1)
     lam = np.full(bsz, 1e-3)
+    nu = np.full(bsz, 2.0)
     done = np.zeros(bsz, bool)
-    for _ in range(MAX_DRAW_ITERATIONS):
+    eye = np.eye(p)[None]
+    for _ in range(max_iter):
         todo = np.flatnonzero(~done)
         if not todo.size:
             break
-        act = {a: v[todo] for a, v in active.items()}
+        st = _take(state, todo)
         th = theta[todo]
-        jac = _jacobian_batch(data, th, idx[todo], act, steps)
-        rr = r[todo]
+        # forward differences, every parameter of every problem in one call, state held fixed
+        pert = np.repeat(th[None], p, axis=0)
+        for k in range(p):
+            pert[k, :, k] += steps[k]
+        rk, _, _ = fun(pert.reshape(p * len(todo), p), np.tile(todo, p),
+                       {k: np.tile(v, (p,) + (1,) * (v.ndim - 1)) for k, v in st.items()}, False)
+        r0, _, _ = fun(th, todo, st, False)
+        jac = np.moveaxis((rk.reshape(p, len(todo), -1) - r0[None]) / steps[:, None, None], 0, -1)
         jtj = np.einsum("bmi,bmj->bij", jac, jac)
-        grad = np.einsum("bmi,bm->bi", jac, rr)
+        grad = np.einsum("bmi,bm->bi", jac, r0)
         # a parameter resting on its bound with the gradient pushing out of it stays there
-        pinned = (th <= lo[None, :]) & (grad > 0)
+        pinned = (th <= lower[None, :]) & (grad > 0)
         dg = np.sqrt(np.einsum("bii->bi", jtj))
         dg = np.where(dg > 0, dg, 1.0)
         mat = jtj / dg[:, :, None] / dg[:, None, :]
         gs = np.where(pinned, 0.0, grad / dg)
         mat = np.where(pinned[:, :, None] | pinned[:, None, :], 0.0, mat)
-        eye = np.eye(p)[None]
-        # the Gauss-Newton decrease still available: below the tolerance the draw is done
+        # the Gauss-Newton decrease still available: below the tolerance the problem is done
         gn = np.linalg.solve(mat + eye * np.where(pinned, 1.0, 1e-12)[:, None, :],
                              gs[..., None])[..., 0]
-        flat = np.einsum("bi,bi->b", gs, gn) <= DRAW_CHI2_TOL
-        done[todo[flat]] = True
-        mat = mat + eye * np.where(pinned, 1.0, lam[todo, None])[:, None, :] * eye
+        done[todo[np.einsum("bi,bi->b", gs, gn) <= tol * (1.0 + cost[todo])]] = True
+        mat = mat + eye * np.where(pinned, 1.0, lam[todo, None])[:, None, :]
         step = -np.linalg.solve(mat, gs[..., None])[..., 0] / dg
-        new = np.maximum(th + step, lo[None, :])
-        r_new, zv_new, act_new = data.residuals(new, idx[todo], act)
+        new = np.maximum(th + step, lower[None, :])
+        r_new, x_new, st_new = fun(new, todo, st, True)
         c_new = (r_new**2).sum(1)
         ok = np.isfinite(c_new) & (c_new <= cost[todo])
         gain = cost[todo] - c_new
+        h = new - th
+        pred = -(2.0 * np.einsum("bi,bi->b", h, grad) + np.einsum("bi,bij,bj->b", h, jtj, h))
+        rho = np.where(ok, gain / np.maximum(pred, 1e-300), 0.0)
         acc = todo[ok]
         theta[acc] = new[ok]
         r[acc] = r_new[ok]
-        zv[acc] = zv_new[ok]
+        extra[acc] = x_new[ok]
         cost[acc] = c_new[ok]
-        for a in active:
-            active[a][acc] = act_new[a][ok]
-        lam[acc] = np.maximum(lam[acc] * 0.2, 1e-9)
-        lam[todo[~ok]] *= 10.0
-        done[acc[gain[ok] <= DRAW_CHI2_TOL * (1.0 + c_new[ok])]] = True
-        # no step of a thousandth of the Gauss-Newton length lowers the misfit: a minimum (at a
-        # kink where the set of zone values on their bounds changes, the misfit is not smooth)
-        done[todo[~ok][lam[todo[~ok]] > 1e3]] = True
-    return theta, zv, done
+        for k in state:
+            state[k][acc] = st_new[k][ok]
+        # Nielsen's damping update: shrink by up to 3 after a step whose gain matches its
+        # prediction, grow by a doubling factor after a failed step
+        lam[acc] = np.maximum(lam[acc] * np.maximum(1 / 3, 1 - (2 * rho[ok] - 1) ** 3), 1e-12)
+        nu[acc] = 2.0
+        bad = todo[~ok]
+        lam[bad] *= nu[bad]
+        nu[bad] *= 2.0
+        done[acc[gain[ok] <= tol * (1.0 + c_new[ok])]] = True
+        # no step of a thousandth of the Gauss-Newton length lowers the sum: a minimum (at a
+        # kink where the set of zone values on their bounds changes, the sum is not smooth)
+        done[bad[lam[bad] > 1e3]] = True
+    return theta, extra, done
+
+
+def _refit_draws(fit: FitResult, data: _PerturbedData, idx: np.ndarray):
+    """Refit of the draws ``idx`` from the best fit; returns theta (B, p), zone values
+    (B, n, a) and a converged flag (B,)."""
+    problem = fit.problem
+    n = problem.n_zones
+    theta = np.repeat(fit.theta[None, :], len(idx), axis=0)
+
+    def fun(th, rows, state, check):
+        return data.residuals(th, idx[rows], state, check)
+
+    if not problem.options.fit_hydraulics or fit.jacobian.size == 0:
+        _, zv, _ = fun(theta, np.arange(len(idx)), None, True)
+        return theta, zv, np.ones(len(idx), bool)
+    lower = np.full(theta.shape[1], -np.inf)
+    if problem.fit_c:
+        lower[2 * n] = 0.0
+    sd = np.sqrt(np.clip(np.diag(fit.theta_cov), 0.0, None))
+    steps = 1e-4 * np.where(sd > 0, sd, 1e-6 * np.maximum(1.0, np.abs(fit.theta)))
+    return levenberg_marquardt_batch(fun, theta, lower, steps)
 
 
 @dataclass(frozen=True)
@@ -440,7 +490,7 @@ def monte_carlo(fit: FitResult, n_draws: int = 1000, seed: int = 0,
     notes = [g.note for g in groups if g.note]
     if not converged.all():
         notes.append(f"{int((~converged).sum())} of {n_draws} posterior draws did not converge "
-                     f"in {MAX_DRAW_ITERATIONS} iterations and are kept at their last iterate")
+                     f"in {MAX_DRAW_ITERATIONS} iterations and are kept at their last iterate.")
     return Draws(theta, out, list(fit.analytes), seed, groups, notes)
 
 
