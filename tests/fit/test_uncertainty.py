@@ -36,7 +36,6 @@ import pytest
 import synthetic_wells as sw
 from hypothesis import given, settings
 from hypothesis import strategies as st
-
 from scipy import stats
 
 from blendq.fit import diagnostics, uncertainty
