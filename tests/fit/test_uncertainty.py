@@ -258,8 +258,8 @@ def test_interval_coverage_fixed_hydraulics():
 
 
 def test_interval_coverage_joint_fit():
-    # a smaller check of the joint fit (hydraulics refitted by the linearised step): 40
-    # experiments x 4 zones, with a wider band for the smaller sample (and correlated zones)
+    # a smaller check of the joint fit (every draw's hydraulics refitted): 40 experiments x
+    # 4 zones, with a wider band for the smaller sample (and correlated zones); measured 0.90
     hits = []
     for seed in range(40):
         result = fit(_coverage_project(seed, True))
@@ -269,7 +269,7 @@ def test_interval_coverage_joint_fit():
         inside = (table["lower"].to_numpy() <= truth) & (truth <= table["upper"].to_numpy())
         hits.extend(inside[resolved])
     assert len(hits) >= 0.9 * 160
-    assert 0.78 <= np.mean(hits) <= 0.98
+    assert 0.84 <= np.mean(hits) <= 0.96
 
 
 def test_levenberg_marquardt_draws_match_the_linear_gaussian_posterior():
