@@ -5,11 +5,13 @@ Two views, both propagated to predictions at any rate:
 * linearised: the covariance of the hydraulic parameters from the Jacobian at the optimum,
   (J^T J)^-1, and of the zone values from the weighted normal equations plus the hydraulic part
   through the sensitivity dc/dtheta;
-* Monte Carlo: every whitened residual (lab results, flow-log readings, pumping levels, prior
-  values) is perturbed by a standard normal draw; the hydraulic parameters are refitted by one
-  Gauss-Newton step from the optimum (theta_d = theta* + J^+ e_d, exact for a linear model and
-  the usual linearisation otherwise) and the zone values are refitted exactly, bounds and
-  censoring included, for all draws at once (:func:`blendq.fit.constrained_lsq.solve_censored_lsq_batch`).
+* posterior draws by randomised maximum likelihood (Oliver, He and Reynolds 1996; Kitanidis
+  1995): every datum (lab results, flow-log readings, pumping levels) is perturbed by its stated
+  error and every prior mean by its prior sd, and each draw is refitted fully -- the hydraulics
+  by batched Levenberg-Marquardt from the best fit, the zone values projected out exactly at
+  every step, bounds and censoring included. Exact for a linear-Gaussian problem, the accepted
+  approximation otherwise. A data group the best fit misses by more than its stated errors has
+  them widened by its Birge ratio (Birge 1932) for the draws, with a note for the report.
   Draws are seeded and reproducible.
 """
 
