@@ -1,11 +1,13 @@
 """Benchmark: the joint fit and its 1,000-draw Monte Carlo (4 zones, 5 steps, 3 analytes).
 
 Vectorised path: :func:`blendq.fit.estimation.fit` (variable projection) and
-:func:`blendq.fit.uncertainty.monte_carlo` (one Gauss-Newton step for the hydraulics of every draw,
-then the batched active-set solver of :mod:`blendq.fit.constrained_lsq` for every draw and analyte at once).
+:func:`blendq.fit.uncertainty.monte_carlo` (randomised maximum likelihood: every draw's hydraulics
+refitted by batched Levenberg-Marquardt, the zone values by the batched active-set solvers of
+:mod:`blendq.fit.constrained_lsq`).
 
-Plain baseline, measured in the same run: the same draws refitted one at a time -- a well model
-per draw, its weight rows, and one scipy least-squares solve (``lsq_linear``, SLSQP where a
+Plain baseline, measured in the same run: the zone values of the same draws (at each draw's
+hydraulics) refitted one at a time -- a well model per draw, its weight rows, and one scipy
+least-squares solve (``lsq_linear``, SLSQP where a
 non-detect binds; :func:`blendq.fit.constrained_lsq.solve_censored_lsq`) per draw and analyte. Both paths use
 the same random numbers, and the largest difference between their zone values is printed.
 
@@ -49,22 +51,24 @@ def project(nondetects: bool):
 def plain_monte_carlo(result, draws, n_draws: int, seed: int) -> np.ndarray:
     """The Monte Carlo refit one draw and one analyte at a time, with the same random draws."""
     problem = result.problem
-    rng = np.random.default_rng(seed)
-    eps = rng.standard_normal((n_draws, result.jacobian.shape[0]))
-    layout = uncertainty.residual_layout(problem)
+    # the perturbations of the randomised-maximum-likelihood draws (uncertainty.monte_carlo)
+    layout = uncertainty.draw_layout(problem)
+    eps = np.random.default_rng(seed).standard_normal((n_draws, max(s.stop for s in layout.values())))
+    widen = {g.group: g.scale for g in draws.groups}
     out = np.empty((n_draws, problem.n_zones, len(result.analytes)))
     for b in range(n_draws):
         model = problem.model(draws.theta[b])
         for j, analyte in enumerate(result.analytes):
             d = problem.data[analyte]
             a = row_weights(model, d.rate, d.depth)
-            y = d.value + d.sigma * eps[b, layout[analyte]]
+            sigma = d.sigma * widen.get(analyte, 1.0)
+            y = d.value + sigma * eps[b, layout[analyte]]
             lb, ub = problem.bounds(analyte)
             if len(d.cens_limit):
                 ac = row_weights(model, d.cens_rate, d.cens_depth)
-                out[b, :, j] = qp.solve_censored_lsq(a, y, d.sigma, lb, ub, ac, d.cens_limit)
+                out[b, :, j] = qp.solve_censored_lsq(a, y, sigma, lb, ub, ac, d.cens_limit)
             else:
-                out[b, :, j] = qp.solve_censored_lsq(a, y, d.sigma, lb, ub)
+                out[b, :, j] = qp.solve_censored_lsq(a, y, sigma, lb, ub)
     return out
 
 

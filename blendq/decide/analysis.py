@@ -99,9 +99,7 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     limits = sweep.governing_limits(project.limits, pred.analytes)
     table = sweep.sweep_table(pred, limits, s.margin, s.interval, project.zone_names,
                               sweep.compliance_statistics(project, limits))
-    notes = []
-    if not fit.success:
-        notes.append(f"The hydraulic fit did not converge: {fit.message}")
+    notes = list(d.notes)
     hyd = diagnostics.hydraulics_table(fit)
     if (hyd["conductance_from"] == "prior").any():
         notes.append("Some zone conductances rest on the zone properties (priors) rather than "

@@ -504,13 +504,13 @@ def required_blend_rate(well_concentration, rate: float, blend_concentration: fl
         m -= 1
     if m >= n:
         return 0.0
-    q_b = float(np.sort(need)[n - m - 1])
+    # a relative 1e-12 above the binding draw's own requirement, so that rounding in the blend
+    # formula cannot put that draw a hair above the threshold
+    q_b = float(np.sort(need)[n - m - 1]) * (1.0 + 1e-12)
     if not np.isfinite(q_b):
         raise ModelError(f"no blend rate keeps the discharge under {threshold:.4g} mg/L: the "
                          f"second source ({blend_concentration:.4g} mg/L) is not below it")
-    # the binding draw blends to the threshold itself; a few ulps more keep rounding from
-    # putting it a hair above
-    return q_b * (1.0 + 8.0 * np.finfo(float).eps)
+    return q_b
 
 
 # ------------------------------------------------------------------------------ evaluation

@@ -177,3 +177,105 @@ def solve_censored_lsq_batch(a, y, sigma, lb, ub, a_censored=None, dl=None, rtol
         best[b] = solve_censored_lsq(a[b], y[b], 1.0 / w[b], lb, ub, ac[b] if p else None,
                                      dl if p else None)
     return np.clip(best, lb, ub)
+
+
+def constraint_rows(lb, ub, a_censored=None, dl=None):
+    """The constraints of :func:`solve_censored_lsq_batch` as rows G c <= h.
+
+    Order: the finite lower bounds (-c_i <= -lb_i), the finite upper bounds (c_i <= ub_i), then
+    the censored rows (A_nd c <= dl).
+
+    Parameters
+    ----------
+    lb, ub : ndarray (n,)
+    a_censored : ndarray (B, p, n), optional
+    dl : ndarray (p,), optional
+
+    Returns
+    -------
+    g : ndarray (B, K, n) or (1, K, n) without censored rows
+    h : ndarray (K,)
+    """
+    lb = np.asarray(lb, float)
+    ub = np.asarray(ub, float)
+    n = len(lb)
+    eye = np.eye(n)
+    lo_i = np.flatnonzero(np.isfinite(lb))
+    hi_i = np.flatnonzero(np.isfinite(ub))
+    rows = np.concatenate([-eye[lo_i], eye[hi_i]])[None]
+    h = np.concatenate([-lb[lo_i], ub[hi_i]])
+    if a_censored is None or np.shape(a_censored)[1] == 0:
+        return rows, h
+    ac = np.asarray(a_censored, float)
+    rows = np.concatenate([np.broadcast_to(rows, (ac.shape[0],) + rows.shape[1:]), ac], axis=1)
+    return rows, np.concatenate([h, np.asarray(dl, float)])
+
+
+def active_constraints(c, g, h, rtol=1e-9):
+    """Which constraints G c <= h hold with equality at c, shape (B, K)."""
+    gc = np.einsum("bkn,bn->bk", np.broadcast_to(g, (c.shape[0],) + g.shape[1:]), c)
+    scale = 1.0 + np.abs(h) + np.abs(c).max(1, keepdims=True)
+    return gc >= h - rtol * scale
+
+
+def solve_on_active_set(a, y, sigma, g, h, active, rtol=1e-9):
+    """Solve the weighted least-squares problems with a given set of active constraints, and
+    tell which solutions are the constrained optimum.
+
+    For every problem b, minimise ||W (A c - y)||^2 subject to G_S c = h_S on its active set S
+    (the KKT system). By the Karush-Kuhn-Tucker conditions of a convex problem (Nocedal and
+    Wright 2006, Theorem 16.4) the solution is the optimum of the inequality-constrained problem
+    exactly when every constraint holds and every active multiplier is >= 0.
+
+    Parameters
+    ----------
+    a : ndarray (B, m, n)
+    y : ndarray (B, m)
+    sigma : ndarray (m,) or (B, m)
+    g, h : constraint rows from :func:`constraint_rows`
+    active : ndarray (B, K) of bool
+
+    Returns
+    -------
+    c : ndarray (B, n)
+    optimal : ndarray (B,) of bool
+
+    References
+    ----------
+    Nocedal, J. and Wright, S.J. (2006) Numerical Optimization, 2nd ed. Springer.
+    """
+    a = np.asarray(a, float)
+    bsz, m, n = a.shape
+    g = np.broadcast_to(g, (bsz,) + g.shape[1:])
+    k = g.shape[1]
+    w = 1.0 / np.broadcast_to(np.asarray(sigma, float), (bsz, m))
+    wa = a * w[..., None]
+    hess = np.einsum("bmi,bmj->bij", wa, wa)
+    grad = np.einsum("bmi,bm->bi", wa, np.asarray(y, float) * w)
+    # equilibrate the objective so that its curvature and the constraint rows have one scale
+    s = np.maximum(np.einsum("bii->bi", hess).max(1), 1e-300)
+    hess = hess / s[:, None, None]
+    grad = grad / s[:, None]
+    act = np.asarray(active, float)
+    kkt = np.zeros((bsz, n + k, n + k))
+    kkt[:, :n, :n] = hess
+    kkt[:, :n, n:] = np.swapaxes(g, 1, 2) * act[:, None, :]
+    kkt[:, n:, :n] = g * act[:, :, None]
+    kkt[:, n:, n:] = np.eye(k)[None] * (1.0 - act)[:, :, None]
+    rhs = np.concatenate([grad, act * h[None, :]], axis=1)
+    # a tiny ridge on the curvature (1e-10 of its largest value) keeps the system regular where
+    # the data do not see a zone; such a zone then takes the least-norm value, as with a
+    # pseudo-inverse, and the fitted blends are unchanged
+    kkt[:, :n, :n] += 1e-10 * np.eye(n)
+    try:
+        sol = np.linalg.solve(kkt, rhs[..., None])[..., 0]
+    except np.linalg.LinAlgError:  # dependent active constraints: least squares
+        sol = np.einsum("bij,bj->bi", np.linalg.pinv(kkt, rcond=1e-12), rhs)
+    c, lam = sol[:, :n], sol[:, n:]
+    gc = np.einsum("bkn,bn->bk", g, c)
+    scale = 1.0 + np.abs(h)[None, :] + np.abs(c).max(1, keepdims=True)
+    feasible = np.all(gc <= h + rtol * scale, axis=1)
+    on_set = np.all(np.where(act > 0, np.abs(gc - h) <= rtol * scale, True), axis=1)
+    lam_tol = rtol * (1.0 + np.abs(grad).max(1, keepdims=True))
+    dual = np.all(np.where(act > 0, lam >= -lam_tol, True), axis=1)
+    return c, feasible & on_set & dual

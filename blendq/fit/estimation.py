@@ -7,26 +7,36 @@ For each analyte j the zone values solve a weighted, bounded and censored least-
 levels, the priors and the quality data, with the concentrations projected out at every theta
 (variable projection, Golub and Pereyra 1973). Every analyte shares the same hydraulics.
 
+The fit starts from data-driven values (the total conductance of the pumping levels, the
+two-condition flow-log estimates, the priors), restarts from the next one when a fit fails or
+misses the data, and stops with a :class:`~blendq.errors.ModelError` when no start converges
+within the time budget: a failed fit never yields a result.
+
 References
 ----------
+Jacob, C.E. (1947) Drawdown test to determine effective radius of artesian well. Trans. ASCE
+112, 1047-1064.
+Paillet, F.L. (1998) Flow modeling and permeability estimation using borehole flow logs in
+heterogeneous fractured formations. Water Resources Research 34(5), 997-1010.
 Golub, G.H. and Pereyra, V. (1973) The differentiation of pseudo-inverses and nonlinear least
 squares problems whose variables separate. SIAM J. Numer. Anal. 10(2), 413-432.
 """
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy import optimize
+from scipy import optimize, stats
 
-from blendq.errors import ModelError
+from blendq.errors import InputError, ModelError
 from blendq.fit import constrained_lsq as qp
 from blendq.fit.observations import AnalyteData, quality_data
 from blendq.inputs.project import Project
 from blendq.well import mixing
-from blendq.well.flowlog import log_error
+from blendq.well.flowlog import calibrate, log_error
 from blendq.well.model import (
     HydraulicPrior,
     WellModel,
@@ -189,12 +199,90 @@ def residuals(problem: Problem, theta) -> np.ndarray:
 
 
 def initial_theta(problem: Problem) -> np.ndarray:
+    """The prior values of theta (flat priors: G = 100 m^2/d per zone, h0 = 0)."""
     p = problem.prior
     h0 = np.where(np.isfinite(p.static_head), p.static_head, 0.0)
     parts = [p.log_conductance, h0]
     if problem.fit_c:
         parts.append([max(problem.project.well.well_loss, 0.0)])
     return np.concatenate(parts).astype(float)
+
+
+def _step_drawdown_start(problem: Problem):
+    """Total conductance [m^2/d], well loss C [d^2/m^5] and static level depth [m] from the
+    pumping levels, or None.
+
+    For linear zones depth(Q) = d0 + Q / sum G + C Q^2 exactly (section 2 of the model:
+    h_w = (sum G h0 - Q) / sum G and the pumping level lies C Q^2 below h_w; Jacob 1947), so
+    a bounded linear least-squares fit of the levels gives the specific-capacity estimate of
+    the total conductance.
+    """
+    q = problem.level_rate
+    depth = problem.level_depth
+    if len(np.unique(q)) < 3:
+        return None
+    x = np.column_stack([np.ones_like(q), q, q**2 if problem.fit_c else np.zeros_like(q)])
+    lo = [-np.inf, 1e-12, 0.0]
+    sol = optimize.lsq_linear(x, depth, bounds=(lo, [np.inf, np.inf, np.inf]))
+    d0, inv_g, c = sol.x
+    if not np.isfinite(inv_g) or inv_g <= 1e-12:
+        return None
+    return 1.0 / inv_g, float(c), float(d0)
+
+
+def starting_points(problem: Problem) -> list[np.ndarray]:
+    """Candidate starting values of theta, the most data-driven first.
+
+    1. The priors scaled to the total conductance of the pumping levels (specific capacity;
+       Jacob 1947), with the fitted well loss and, where no zone head is known, the static
+       level of the level fit;
+    2. where flow logs exist, the two-condition flow-log conductances and heads (Paillet
+       1998) at the wellbore heads of start 1;
+    3. the priors themselves.
+    """
+    n = problem.n_zones
+    base = initial_theta(problem)
+    starts = []
+    sd = _step_drawdown_start(problem)
+    if sd is not None:
+        g_total, c, d0 = sd
+        t = base.copy()
+        t[:n] += np.log(g_total / np.exp(base[:n]).sum())
+        known = np.isfinite(problem.prior.static_head)
+        t[n:2 * n] = np.where(known, base[n:2 * n], -d0)
+        if problem.fit_c:
+            t[2 * n] = c
+        starts.append(t)
+        logs = problem.log_rows
+        if len(logs) and "log" in logs and logs["log"].nunique() >= 2:
+            g0, h0 = np.exp(t[:n]), t[n:2 * n]
+            heads = {name: float(((g0 * h0).sum() - float(rate)) / g0.sum())
+                     for name, rate in logs.groupby("log")["rate"].first().items()}
+            pr = problem.project
+            s = pr.settings
+            try:
+                cal = calibrate(logs, heads, pr.zone_names, pr.zone_top, pr.zone_bottom,
+                                pr.well.pump_intake_depth, s.flowlog_relative_error,
+                                s.flowlog_absolute_error)
+            except (InputError, ValueError, KeyError):
+                cal = None
+            if cal is not None:
+                ok = np.isfinite(cal.conductance) & (cal.conductance > 0)
+                t2 = t.copy()
+                t2[:n] = np.where(ok, np.log(np.where(ok, cal.conductance, 1.0)), t[:n])
+                okh = ok & np.isfinite(cal.static_head)
+                t2[n:2 * n] = np.where(okh, cal.static_head, t[n:2 * n])
+                starts.append(t2)
+    starts.append(base)
+    unique = []
+    for t in starts:
+        if np.all(np.isfinite(t)) and not any(np.allclose(t, u) for u in unique):
+            unique.append(t)
+    return unique
+
+
+class _OutOfTime(Exception):
+    pass
 
 
 @dataclass
@@ -267,30 +355,69 @@ def fit(project: Project, options: FitOptions | None = None,
     problem = build_problem(project, options, sample_use)
     if not problem.data:
         raise ModelError("no lab results at a known step: nothing to fit")
-    theta0 = initial_theta(problem)
-    n = problem.n_zones
     if problem.options.fit_hydraulics:
-        lo = np.full(theta0.shape, -np.inf)
-        hi = np.full(theta0.shape, np.inf)
-        if problem.fit_c:
-            lo[2 * n] = 0.0
-        sol = optimize.least_squares(lambda t: residuals(problem, t), theta0, bounds=(lo, hi),
-                                     method="trf", x_scale="jac", xtol=1e-12, ftol=1e-12,
-                                     gtol=1e-12, max_nfev=400 * (len(theta0) + 1))
-        theta, jac, success, message, cost = sol.x, sol.jac, sol.success, sol.message, sol.cost
+        theta, jac, message, cost = _fit_hydraulics(problem)
     else:
-        theta = theta0
-        jac = _jacobian(problem, theta0)
-        r = residuals(problem, theta0)
-        success, message, cost = True, "hydraulics fixed at prior values", 0.5 * float(r @ r)
+        theta = initial_theta(problem)
+        jac = _jacobian(problem, theta)
+        r = residuals(problem, theta)
+        message, cost = "hydraulics fixed at prior values", 0.5 * float(r @ r)
     theta_cov = scaled_pinv(jac) @ scaled_pinv(jac).T if jac.size else np.zeros((0, 0))
     model = problem.model(theta)
     conc = {}
     for analyte in problem.data:
         conc[analyte], _, _ = solve_concentrations(problem, model, analyte)
     table = pd.DataFrame(conc, index=pd.Index(project.zone_names, name="zone"))
-    return FitResult(problem, theta, theta_cov, jac, model, table, list(problem.data), success,
+    return FitResult(problem, theta, theta_cov, jac, model, table, list(problem.data), True,
                      str(message), float(cost))
+
+
+def _fit_hydraulics(problem: Problem):
+    """Least-squares fit of theta from each starting point in turn (:func:`starting_points`).
+
+    The next start is tried only when the fit so far failed or misses the data by more than the
+    95 % quantile of its chi-square (a local minimum is then suspected); the best converged fit
+    is kept. The time budget (``settings.fit_time_budget``) covers every start.
+    """
+    n = problem.n_zones
+    budget = float(problem.project.settings.fit_time_budget)
+    t_end = time.perf_counter() + budget
+    lo = np.full(2 * n + int(problem.fit_c), -np.inf)
+    hi = np.full(lo.shape, np.inf)
+    if problem.fit_c:
+        lo[2 * n] = 0.0
+
+    def fun(t):
+        if time.perf_counter() > t_end:
+            raise _OutOfTime
+        return residuals(problem, t)
+
+    best, failures = None, []
+    for k, theta0 in enumerate(starting_points(problem)):
+        try:
+            sol = optimize.least_squares(fun, np.clip(theta0, lo, hi), bounds=(lo, hi),
+                                         method="trf", x_scale="jac", xtol=1e-12, ftol=1e-12,
+                                         gtol=1e-12, max_nfev=400 * (len(theta0) + 1))
+        except _OutOfTime:
+            failures.append(f"start {k + 1} ran out of time")
+            break
+        if not sol.success or not np.all(np.isfinite(sol.x)):
+            failures.append(f"start {k + 1}: {sol.message}")
+            continue
+        if best is None or sol.cost < best.cost:
+            best = sol
+        m = len(sol.fun)
+        if 2 * best.cost <= stats.chi2.ppf(0.95, max(m - len(theta0), 1)):
+            break
+    if best is None:
+        if failures and failures[-1].endswith("ran out of time"):
+            raise ModelError(f"the hydraulic fit did not finish within fit_time_budget = "
+                             f"{budget:g} s ({'; '.join(failures)}); check the levels, flow "
+                             "logs and zone properties, or raise the setting")
+        raise ModelError("the hydraulic fit did not converge from any starting point ("
+                         + "; ".join(failures) + "); check the levels, flow logs and zone "
+                         "properties")
+    return best.x, best.jac, best.message, best.cost
 
 
 def scaled_pinv(jac: np.ndarray, rcond: float = 1e-10) -> np.ndarray:

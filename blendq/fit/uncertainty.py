@@ -5,25 +5,29 @@ Two views, both propagated to predictions at any rate:
 * linearised: the covariance of the hydraulic parameters from the Jacobian at the optimum,
   (J^T J)^-1, and of the zone values from the weighted normal equations plus the hydraulic part
   through the sensitivity dc/dtheta;
-* Monte Carlo: every whitened residual (lab results, flow-log readings, pumping levels, prior
-  values) is perturbed by a standard normal draw; the hydraulic parameters are refitted by one
-  Gauss-Newton step from the optimum (theta_d = theta* + J^+ e_d, exact for a linear model and
-  the usual linearisation otherwise) and the zone values are refitted exactly, bounds and
-  censoring included, for all draws at once (:func:`blendq.fit.constrained_lsq.solve_censored_lsq_batch`).
+* posterior draws by randomised maximum likelihood (Oliver, He and Reynolds 1996; Kitanidis
+  1995): every datum (lab results, flow-log readings, pumping levels) is perturbed by its stated
+  error and every prior mean by its prior sd, and each draw is refitted fully -- the hydraulics
+  by batched Levenberg-Marquardt from the best fit, the zone values projected out exactly at
+  every step, bounds and censoring included. Exact for a linear-Gaussian problem, the accepted
+  approximation otherwise. A data group the best fit misses by more than its stated errors has
+  them widened by its Birge ratio (Birge 1932) for the draws, with a note for the report.
   Draws are seeded and reproducible.
 """
 
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
+from scipy import stats
 
 from blendq.chemistry.limits import exceedance_given_mean
 from blendq.errors import ModelError
 from blendq.fit import constrained_lsq as qp
 from blendq.fit.estimation import FitResult, Problem, row_weights, scaled_pinv, solve_concentrations
+from blendq.well import mixing
 from blendq.well.mixing import intake_weights, intake_weights_by_zone
 
 
@@ -39,9 +43,379 @@ def residual_layout(problem: Problem) -> dict[str, slice]:
     return out
 
 
+#: quantile of a data group's chi-square above which its best-fit misfit counts as a model
+#: discrepancy and its errors are widened for the draws (common practice: the 95 % quantile)
+DISCREPANCY_QUANTILE = 0.95
+
+#: Levenberg-Marquardt iterations allowed per posterior draw
+MAX_DRAW_ITERATIONS = 100
+
+#: a draw has converged when an accepted step lowers its chi-square by less than this
+DRAW_CHI2_TOL = 1e-6
+
+
+@dataclass(frozen=True)
+class GroupFit:
+    """Misfit of one data group at the best fit.
+
+    Attributes
+    ----------
+    group : str
+        "pumping levels", "flow logs" or an analyte name.
+    rows : slice
+        Its rows in the whitened residual vector of the draws (:func:`draw_layout`).
+    chi_square : float
+        Sum of squared whitened residuals at the best fit.
+    dof : float
+        Effective degrees of freedom: rows minus their leverage (hat-matrix diagonal of the
+        hydraulic Jacobian) minus, for an analyte, the rank of its weighted weight matrix over
+        the zones not held on a bound.
+    scale : float
+        Factor applied to the group's stated errors for the draws (the Birge ratio
+        sqrt(chi_square / dof) where the misfit exceeds the quantile
+        :data:`DISCREPANCY_QUANTILE` of its chi-square distribution, else 1).
+    """
+
+    group: str
+    rows: slice
+    chi_square: float
+    dof: float
+    scale: float
+
+    @property
+    def note(self) -> str | None:
+        """The sentence a report prints about a widened group, or None."""
+        if self.scale <= 1.0:
+            return None
+        what = self.group if self.group in ("pumping levels", "flow logs") \
+            else f"{self.group} lab results"
+        return (f"{what[0].upper()}{what[1:]}: the best fit misses them by {self.scale:.1f}x their stated error "
+                f"(chi-square {self.chi_square:.1f} on {self.dof:.1f} degrees of freedom); "
+                "their errors are widened by that factor for the uncertainty bands (model "
+                "discrepancy, Birge ratio).")
+
+
+def draw_layout(problem: Problem) -> dict[str, slice]:
+    """Rows of the draws' whitened residual vector: "priors", "flow logs", "pumping levels",
+    then each analyte's detected results (non-detects are constraints, not rows)."""
+    p = problem.prior
+    k = int(np.isfinite(p.log_conductance_sd).sum() + np.isfinite(p.static_head_sd).sum())
+    out = {"priors": slice(0, k)}
+    out["flow logs"] = slice(k, k + len(problem.log_rows))
+    k += len(problem.log_rows)
+    out["pumping levels"] = slice(k, k + len(problem.level_rate))
+    k += len(problem.level_rate)
+    for analyte, d in problem.data.items():
+        out[analyte] = slice(k, k + len(d.value))
+        k += len(d.value)
+    return out
+
+
+def discrepancy(fit: FitResult, quantile: float = DISCREPANCY_QUANTILE) -> list[GroupFit]:
+    """Best-fit misfit of every data group, and the Birge ratio that widens its errors.
+
+    A group whose chi-square exceeds the ``quantile`` of the chi-square distribution with its
+    effective degrees of freedom is missed by the model by more than its stated errors allow;
+    its errors are scaled by sqrt(chi2 / dof) (Birge 1932) for the draws. Groups with less than
+    half a degree of freedom are not judged.
+
+    References
+    ----------
+    Birge, R.T. (1932) The calculation of errors by the method of least squares. Physical
+    Review 40, 207-227.
+    """
+    problem = fit.problem
+    layout = draw_layout(problem)
+    # leverage of each row of the fit's residual vector (its layout also has censored rows)
+    jac = fit.jacobian
+    lev_all = np.einsum("ij,ji->i", jac, scaled_pinv(jac)) if jac.size else np.zeros(0)
+    full = residual_layout(problem)
+    lev = {"flow logs": lev_all[layout["flow logs"]] if jac.size else None,
+           "pumping levels": lev_all[layout["pumping levels"]] if jac.size else None}
+    out = []
+    r_hyd = draw_residuals_at(fit, fit.theta[None, :], fit.zone_values()[None])[0] \
+        if problem.options.fit_hydraulics else None
+    for group, rows in layout.items():
+        if group == "priors":
+            continue
+        m = rows.stop - rows.start
+        if m == 0:
+            continue
+        if group in problem.data:
+            d = problem.data[group]
+            c, a, _ = solve_concentrations(problem, fit.model, group)
+            r = (a @ c - d.value) / d.sigma
+            lb, ub = problem.bounds(group)
+            with np.errstate(invalid="ignore"):
+                free = ((c > lb + 1e-9 * (1 + np.abs(lb))) | ~np.isfinite(lb)) \
+                    & ((c < ub - 1e-9 * (1 + np.abs(ub))) | ~np.isfinite(ub))
+            wa = (a / d.sigma[:, None])[:, free]  # a zone held on a bound is no free parameter
+            sv = np.linalg.svd(wa, compute_uv=False) if wa.size else np.zeros(0)
+            rank = int(np.sum(sv > 1e-6 * sv[0])) if len(sv) and sv[0] > 0 else 0
+            used = float(lev_all[full[group]].sum()) if jac.size else 0.0
+            dof = m - rank - used
+        else:
+            if r_hyd is None:
+                continue
+            r = r_hyd[rows]
+            dof = m - (float(lev[group].sum()) if lev[group] is not None else 0.0)
+        chi2 = float(r @ r)
+        scale = 1.0
+        if dof >= 0.5 and chi2 > stats.chi2.ppf(quantile, dof):
+            scale = float(np.sqrt(chi2 / dof))
+        out.append(GroupFit(group, rows, chi2, float(dof), scale))
+    return out
+
+
+def draw_residuals_at(fit: FitResult, theta, zone_values) -> np.ndarray:
+    """Whitened residuals of given draws against the *measured* data (stated errors),
+    rows as in :func:`draw_layout`, shape (n_draws, n_rows)."""
+    problem = fit.problem
+    theta = np.asarray(theta, float)
+    model = problem.model(theta)
+    parts = [_hydraulic_residuals_batch(problem, theta, model)]
+    for j, analyte in enumerate(fit.analytes):
+        d = problem.data[analyte]
+        a = row_weights(model, d.rate, d.depth)
+        parts.append((np.einsum("bmn,bn->bm", a, zone_values[:, :, j]) - d.value) / d.sigma)
+    return np.concatenate(parts, axis=1)
+
+
+def draw_misfit(fit: FitResult, draws: Draws) -> dict[str, np.ndarray]:
+    """Chi-square of every draw against the measured data of each group (stated errors), and
+    the total: {group: (n_draws,)}. The test of a posterior sample: each group's misfit
+    follows (approximately) a chi-square distribution with as many degrees of freedom as the
+    group has rows."""
+    r = draw_residuals_at(fit, draws.theta, draws.zone_values)
+    out = {g: (r[:, sl] ** 2).sum(1) for g, sl in draw_layout(fit.problem).items()
+           if sl.stop > sl.start}
+    out["total"] = (r**2).sum(1)
+    return out
+
+
+def _hydraulic_residuals_batch(problem: Problem, theta, model) -> np.ndarray:
+    """Prior, flow-log and level residuals (stated errors) of a batch of theta, (B, rows)."""
+    p = problem.prior
+    n = problem.n_zones
+    bsz = theta.shape[0]
+    parts = []
+    fg = np.isfinite(p.log_conductance_sd)
+    parts.append((theta[:, :n][:, fg] - p.log_conductance[fg]) / p.log_conductance_sd[fg])
+    fh = np.isfinite(p.static_head_sd)
+    parts.append((theta[:, n:2 * n][:, fh] - p.static_head[fh]) / p.static_head_sd[fh])
+    logs = problem.log_rows
+    if len(logs):
+        pred = np.empty((bsz, len(logs)))
+        for rate, idx in logs.groupby("rate").groups.items():
+            st = model.state(np.array([float(rate)]))
+            pred[:, np.asarray(idx)] = mixing.wellbore_flow(
+                st.zone_flow[:, 0], model.geometry, logs.loc[idx, "depth"].to_numpy(float))
+        parts.append((pred - logs["upward_flow"].to_numpy(float)) / problem.log_sd)
+    if len(problem.level_rate):
+        depth = model.pumping_level_depth(problem.level_rate)
+        parts.append((depth - problem.level_depth) / problem.level_sd)
+    return np.concatenate(parts, axis=1) if parts else np.zeros((bsz, 0))
+
+
+class _PerturbedData:
+    """The data of a chunk of draws, each datum perturbed by its (widened) error and each
+    prior mean by its prior sd: the randomised maximum-likelihood objective of every draw."""
+
+    def __init__(self, problem: Problem, eps: np.ndarray, scale: dict[str, float],
+                 analytes: list[str], model):
+        self.problem = problem
+        self.analytes = analytes
+        layout = draw_layout(problem)
+        self.layout = layout
+        self.eps = eps
+        # whitened hydraulic residuals of draw b: (pred - obs) / (s sd) - e_b, with the group
+        # scale s (1 for the priors); dividing the stated-error residual by s does it
+        hyd_scale = np.ones(layout["pumping levels"].stop)
+        for g in ("flow logs", "pumping levels"):
+            hyd_scale[layout[g]] = scale.get(g, 1.0)
+        self.hyd_scale = hyd_scale
+        self.n_hyd = len(hyd_scale)
+        self.y, self.sigma, self.start_active = {}, {}, {}
+        for analyte in analytes:
+            d = problem.data[analyte]
+            lb, ub = problem.bounds(analyte)
+            c, _, ac = solve_concentrations(problem, model, analyte)
+            g, h = qp.constraint_rows(lb, ub, ac[None] if len(ac) else None,
+                                      d.cens_limit if len(ac) else None)
+            self.start_active[analyte] = qp.active_constraints(c[None], g, h)[0]
+            sig = d.sigma * scale.get(analyte, 1.0)
+            self.sigma[analyte] = sig
+            self.y[analyte] = d.value[None, :] + sig[None, :] * eps[:, layout[analyte]]
+
+    def residuals(self, theta, idx, active=None, check=True):
+        """Residuals (B, rows), zone values (B, n, n_analytes) and active sets of the draws
+        ``idx`` at ``theta`` (B, n_theta). With ``check`` the zone values are the exact
+        constrained optimum (warm-started from ``active``); without, ``active`` is kept."""
+        problem = self.problem
+        model = problem.model(theta)
+        bsz = theta.shape[0]
+        r_h = _hydraulic_residuals_batch(problem, theta, model) / self.hyd_scale \
+            - self.eps[idx, :self.n_hyd]
+        parts = [r_h]
+        zv = np.empty((bsz, problem.n_zones, len(self.analytes)))
+        new_active = {}
+        for j, analyte in enumerate(self.analytes):
+            d = problem.data[analyte]
+            a = row_weights(model, d.rate, d.depth)
+            ac = row_weights(model, d.cens_rate, d.cens_depth) if len(d.cens_limit) else None
+            lb, ub = problem.bounds(analyte)
+            g, h = qp.constraint_rows(lb, ub, ac, d.cens_limit if ac is not None else None)
+            y = self.y[analyte][idx]
+            sig = self.sigma[analyte]
+            if active is None:  # start from the active constraints of the best fit
+                act = np.broadcast_to(self.start_active[analyte], (bsz, len(h))).copy()
+            else:
+                act = active[analyte]
+            c, optimal = qp.solve_on_active_set(a, y, sig, g, h, act)
+            if check and not np.all(optimal):
+                bad = np.flatnonzero(~optimal)
+                c[bad] = qp.solve_censored_lsq_batch(
+                    a[bad], y[bad], sig, lb, ub, ac[bad] if ac is not None else None,
+                    d.cens_limit if ac is not None else None)
+                gb = g if g.shape[0] == 1 else g[bad]
+                act = act.copy()
+                act[bad] = qp.active_constraints(c[bad], gb, h)
+            new_active[analyte] = act
+            zv[:, :, j] = c
+            parts.append((np.einsum("bmn,bn->bm", a, c) - y) / sig)
+        return np.concatenate(parts, axis=1), zv, new_active
+
+
+def _take(state, rows):
+    return {k: v[rows] for k, v in state.items()}
+
+
+def levenberg_marquardt_batch(fun, theta, lower, steps, max_iter: int = MAX_DRAW_ITERATIONS,
+                              tol: float = DRAW_CHI2_TOL):
+    """Minimise many sums of squares at once by Levenberg-Marquardt.
+
+    Parameters
+    ----------
+    fun : callable(theta (B, p), rows (B,), state, check) -> (r (B, m), extra (B, ...), state)
+        Residuals of the problems ``rows`` at ``theta``. ``state`` is a dict of per-problem
+        arrays (for example the active constraints of an inner solve; None the first time);
+        with ``check`` False it must be held fixed (used for the finite-difference Jacobian).
+    theta : ndarray (B, p)
+        Starting values.
+    lower : ndarray (p,)
+        Lower bounds (-inf for none), honoured by projection.
+    steps : ndarray (p,)
+        Forward-difference steps.
+    max_iter : int
+    tol : float
+        A problem has converged when an accepted step, or the full Gauss-Newton step, lowers its
+        sum of squares by less than ``tol`` (1 + sum of squares).
+
+    Returns
+    -------
+    theta : ndarray (B, p)
+    extra : ndarray (B, ...)
+        ``extra`` of the last accepted point.
+    converged : ndarray (B,) of bool
+
+    References
+    ----------
+    Marquardt, D.W. (1963) An algorithm for least-squares estimation of nonlinear parameters.
+    J. SIAM 11(2), 431-441. Nielsen, H.B. (1999) Damping parameter in Marquardt's method.
+    IMM-REP-1999-05, Technical University of Denmark (the damping update).
+    """
+    theta = np.array(theta, float)
+    bsz, p = theta.shape
+    rows = np.arange(bsz)
+    r, extra, state = fun(theta, rows, None, True)
+    extra = np.array(extra)
+    cost = (r**2).sum(1)
+    lam = np.full(bsz, 1e-3)
+    nu = np.full(bsz, 2.0)
+    done = np.zeros(bsz, bool)
+    eye = np.eye(p)[None]
+    for _ in range(max_iter):
+        todo = np.flatnonzero(~done)
+        if not todo.size:
+            break
+        st = _take(state, todo)
+        th = theta[todo]
+        # forward differences, every parameter of every problem in one call, state held fixed
+        pert = np.repeat(th[None], p, axis=0)
+        for k in range(p):
+            pert[k, :, k] += steps[k]
+        rk, _, _ = fun(pert.reshape(p * len(todo), p), np.tile(todo, p),
+                       {k: np.tile(v, (p,) + (1,) * (v.ndim - 1)) for k, v in st.items()}, False)
+        r0, _, _ = fun(th, todo, st, False)
+        jac = np.moveaxis((rk.reshape(p, len(todo), -1) - r0[None]) / steps[:, None, None], 0, -1)
+        jtj = np.einsum("bmi,bmj->bij", jac, jac)
+        grad = np.einsum("bmi,bm->bi", jac, r0)
+        # a parameter resting on its bound with the gradient pushing out of it stays there
+        pinned = (th <= lower[None, :]) & (grad > 0)
+        dg = np.sqrt(np.einsum("bii->bi", jtj))
+        dg = np.where(dg > 0, dg, 1.0)
+        mat = jtj / dg[:, :, None] / dg[:, None, :]
+        gs = np.where(pinned, 0.0, grad / dg)
+        mat = np.where(pinned[:, :, None] | pinned[:, None, :], 0.0, mat)
+        # the Gauss-Newton decrease still available: below the tolerance the problem is done
+        gn = np.linalg.solve(mat + eye * np.where(pinned, 1.0, 1e-12)[:, None, :],
+                             gs[..., None])[..., 0]
+        done[todo[np.einsum("bi,bi->b", gs, gn) <= tol * (1.0 + cost[todo])]] = True
+        mat = mat + eye * np.where(pinned, 1.0, lam[todo, None])[:, None, :]
+        step = -np.linalg.solve(mat, gs[..., None])[..., 0] / dg
+        new = np.maximum(th + step, lower[None, :])
+        r_new, x_new, st_new = fun(new, todo, st, True)
+        c_new = (r_new**2).sum(1)
+        ok = np.isfinite(c_new) & (c_new <= cost[todo])
+        gain = cost[todo] - c_new
+        h = new - th
+        pred = -(2.0 * np.einsum("bi,bi->b", h, grad) + np.einsum("bi,bij,bj->b", h, jtj, h))
+        rho = np.clip(np.where(ok, gain / np.maximum(pred, 1e-300), 0.0), 0.0, 1.0)
+        acc = todo[ok]
+        theta[acc] = new[ok]
+        r[acc] = r_new[ok]
+        extra[acc] = x_new[ok]
+        cost[acc] = c_new[ok]
+        for k in state:
+            state[k][acc] = st_new[k][ok]
+        # Nielsen's damping update: shrink by up to 3 after a step whose gain matches its
+        # prediction, grow by a doubling factor after a failed step
+        lam[acc] = np.maximum(lam[acc] * np.maximum(1 / 3, 1 - (2 * rho[ok] - 1) ** 3), 1e-12)
+        nu[acc] = 2.0
+        bad = todo[~ok]
+        lam[bad] *= nu[bad]
+        nu[bad] *= 2.0
+        done[acc[gain[ok] <= tol * (1.0 + c_new[ok])]] = True
+        # no step of a thousandth of the Gauss-Newton length lowers the sum: a minimum (at a
+        # kink where the set of zone values on their bounds changes, the sum is not smooth)
+        done[bad[lam[bad] > 1e3]] = True
+    return theta, extra, done
+
+
+def _refit_draws(fit: FitResult, data: _PerturbedData, idx: np.ndarray):
+    """Refit of the draws ``idx`` from the best fit; returns theta (B, p), zone values
+    (B, n, a) and a converged flag (B,)."""
+    problem = fit.problem
+    n = problem.n_zones
+    theta = np.repeat(fit.theta[None, :], len(idx), axis=0)
+
+    def fun(th, rows, state, check):
+        return data.residuals(th, idx[rows], state, check)
+
+    if not problem.options.fit_hydraulics or fit.jacobian.size == 0:
+        _, zv, _ = fun(theta, np.arange(len(idx)), None, True)
+        return theta, zv, np.ones(len(idx), bool)
+    lower = np.full(theta.shape[1], -np.inf)
+    if problem.fit_c:
+        lower[2 * n] = 0.0
+    sd = np.sqrt(np.clip(np.diag(fit.theta_cov), 0.0, None))
+    steps = 1e-4 * np.where(sd > 0, sd, 1e-6 * np.maximum(1.0, np.abs(fit.theta)))
+    return levenberg_marquardt_batch(fun, theta, lower, steps)
+
+
 @dataclass(frozen=True)
 class Draws:
-    """Monte Carlo draws of the fitted quantities.
+    """Posterior draws of the fitted quantities.
 
     Attributes
     ----------
@@ -51,12 +425,18 @@ class Draws:
         Zone values [mg/L].
     analytes : list of str
     seed : int
+    groups : list of GroupFit
+        Best-fit misfit of each data group and the factor its errors were widened by.
+    notes : list of str
+        Sentences for the report (widened groups, draws that did not converge).
     """
 
     theta: np.ndarray
     zone_values: np.ndarray
     analytes: list[str]
     seed: int
+    groups: list = field(default_factory=list)
+    notes: list = field(default_factory=list)
 
     @property
     def n_draws(self) -> int:
@@ -65,8 +445,15 @@ class Draws:
 
 def monte_carlo(fit: FitResult, n_draws: int = 1000, seed: int = 0,
                 progress: Callable[[int, int], None] | None = None,
-                chunk: int = 250) -> Draws:
-    """Seeded Monte Carlo refit of perturbed data.
+                chunk: int = 500, widen: bool = True) -> Draws:
+    """Seeded posterior draws by randomised maximum likelihood.
+
+    Every datum (lab result, flow-log reading, pumping level) is perturbed by its stated error
+    (widened by its group's Birge ratio where the best fit misses the group, see
+    :func:`discrepancy`) and every prior mean by its prior sd; each draw is then refitted fully:
+    the hydraulics by Levenberg-Marquardt from the best fit, the zone values projected out
+    exactly at every step with bounds and non-detects honoured. Exact for a linear-Gaussian
+    problem; the accepted approximation otherwise.
 
     Parameters
     ----------
@@ -76,38 +463,38 @@ def monte_carlo(fit: FitResult, n_draws: int = 1000, seed: int = 0,
     progress : callable(done, total), optional
         Called after each chunk of draws (the CLI shows a progress bar).
     chunk : int
-        Draws solved together.
+        Draws refitted together (the draws themselves do not depend on it).
+    widen : bool
+        Widen the errors of groups the best fit misses (model discrepancy).
+
+    References
+    ----------
+    Kitanidis, P.K. (1995) Quasi-linear geostatistical theory for inversing. Water Resources
+    Research 31(10), 2411-2419.
+    Oliver, D.S., He, N. and Reynolds, A.C. (1996) Conditioning permeability fields to pressure
+    data. 5th European Conference on the Mathematics of Oil Recovery.
     """
     problem = fit.problem
     rng = np.random.default_rng(seed)
-    jac = fit.jacobian
-    m = jac.shape[0]
+    layout = draw_layout(problem)
+    m = max(sl.stop for sl in layout.values())
     eps = rng.standard_normal((n_draws, m))
-    if problem.options.fit_hydraulics and jac.size:
-        jplus = scaled_pinv(jac)
-        theta = fit.theta[None, :] + eps @ jplus.T
-    else:
-        theta = np.repeat(fit.theta[None, :], n_draws, axis=0)
-    layout = residual_layout(problem)
-    n = problem.n_zones
-    out = np.empty((n_draws, n, len(fit.analytes)))
+    groups = discrepancy(fit) if widen else []
+    scale = {g.group: g.scale for g in groups}
+    data = _PerturbedData(problem, eps, scale, list(fit.analytes), fit.model)
+    theta = np.empty((n_draws, len(fit.theta)))
+    out = np.empty((n_draws, problem.n_zones, len(fit.analytes)))
+    converged = np.empty(n_draws, bool)
     for lo in range(0, n_draws, chunk):
         hi = min(lo + chunk, n_draws)
-        model = problem.model(theta[lo:hi])
-        for j, analyte in enumerate(fit.analytes):
-            d = problem.data[analyte]
-            a = row_weights(model, d.rate, d.depth)
-            y = d.value[None, :] + d.sigma[None, :] * eps[lo:hi, layout[analyte]]
-            lb, ub = problem.bounds(analyte)
-            if len(d.cens_limit):
-                ac = row_weights(model, d.cens_rate, d.cens_depth)
-                out[lo:hi, :, j] = qp.solve_censored_lsq_batch(a, y, d.sigma, lb, ub, ac,
-                                                               d.cens_limit)
-            else:
-                out[lo:hi, :, j] = qp.solve_censored_lsq_batch(a, y, d.sigma, lb, ub)
+        theta[lo:hi], out[lo:hi], converged[lo:hi] = _refit_draws(fit, data, np.arange(lo, hi))
         if progress is not None:
             progress(hi, n_draws)
-    return Draws(theta, out, list(fit.analytes), seed)
+    notes = [g.note for g in groups if g.note]
+    if not converged.all():
+        notes.append(f"{int((~converged).sum())} of {n_draws} posterior draws did not converge "
+                     f"in {MAX_DRAW_ITERATIONS} iterations and are kept at their last iterate.")
+    return Draws(theta, out, list(fit.analytes), seed, groups, notes)
 
 
 def linearised_zone_sd(fit: FitResult) -> np.ndarray:

@@ -33,7 +33,7 @@ Operations Research 32(6), 1296-1308 (hit-and-run).
 from __future__ import annotations
 
 import itertools
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 import pandas as pd
@@ -145,7 +145,7 @@ def redraw_unresolved(fit: FitResult, draws: Draws, zones: pd.DataFrame,
             c = out[lo:hi, :, j]
             t = _hit_and_run(rng, c, null, lb, ub, ac, d.cens_limit, _STEPS_PER_DIM * k + 10)
             out[lo:hi, :, j] = np.clip(c + np.einsum("bnk,bk->bn", null, t), lb, ub)
-    return Draws(draws.theta, out, list(draws.analytes), draws.seed)
+    return replace(draws, zone_values=out)
 
 
 def _hit_and_run(rng, c, null, lb, ub, ac, dl, steps: int) -> np.ndarray:

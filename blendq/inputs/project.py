@@ -199,6 +199,9 @@ class Settings:
         Relative band [-] around a step's rate that a discharge sample above margin x limit
         closes, whatever the model says (common practice: a step's rate is held and metered
         to within a few percent).
+    fit_time_budget : float
+        Longest time the hydraulic fit may take [s]; a fit still running then stops with an
+        error (common practice for an interactive tool, not a published value).
     qa : dict
         Options of the lab and field review.
     seal_leakage : float
@@ -236,6 +239,7 @@ class Settings:
     default_relative_uncertainty: float = 0.05
     detection_limit_sigma_fraction: float = 0.5
     measured_exceedance_rate_tolerance: float = 0.05
+    fit_time_budget: float = 30.0
     qa: dict = field(default_factory=dict)
     seal_leakage: float = 0.05
     redevelopment_shortfall: float = 0.5

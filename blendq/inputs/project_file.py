@@ -314,6 +314,7 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
         measured_exceedance_rate_tolerance=float(s.number(
             "measured_exceedance_rate_tolerance", d.measured_exceedance_rate_tolerance, 0.0,
             0.5)),
+        fit_time_budget=float(s.number("fit_time_budget", d.fit_time_budget, 0.0, None, True)),
         qa=dict(qa),
         seal_leakage=float(s.number("seal_leakage", d.seal_leakage, 0.0, 1.0)),
         redevelopment_shortfall=float(s.number("redevelopment_shortfall",

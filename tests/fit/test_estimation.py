@@ -9,6 +9,9 @@ Sources:
   196-99) depth-dependent sampling mass balance: with upward flows F_above, F_below and
   concentrations C_above, C_below just above and below an inflowing zone,
   c_zone = (F_above C_above - F_below C_below) / (F_above - F_below).
+- Jacob (1947) step drawdown: with linear zone losses the pumping level is
+  depth(Q) = d0 + Q / sum G + C Q^2 exactly (wellbore head h_w = (sum G h0 - Q) / sum G), so the
+  specific-capacity start recovers sum G and C from noise-free levels.
 - Censored (non-detect) results as inequalities (Helsel 2012, Statistics for Censored
   Environmental Data, 2nd ed.): the fitted blend at a
   non-detect step may not exceed the detection limit.
@@ -24,7 +27,15 @@ import pytest
 import synthetic_wells as sw
 
 from blendq.errors import ModelError
-from blendq.fit.estimation import FitOptions, build_problem, fit, residuals, row_weights
+from blendq.fit import estimation
+from blendq.fit.estimation import (
+    FitOptions,
+    build_problem,
+    fit,
+    residuals,
+    row_weights,
+    starting_points,
+)
 from blendq.inputs.project import Settings
 from blendq.well import mixing
 
@@ -232,3 +243,39 @@ def test_synthetic_depth_sample_in_stagnant_water_is_refused():
     # above the intake nothing flows: a sample there would be a NaN "result"
     with pytest.raises(ModelError, match="15 m during step S5"):
         sw.project(depth_samples=[("S5", 15.0)])
+
+
+def test_first_start_has_the_total_conductance_of_the_levels():
+    # flat priors (no zone properties): the first start takes sum G and C from the levels
+    # (Jacob 1947), exact for noise-free levels of linear zones
+    problem = build_problem(sw.without_priors(sw.project()))
+    starts = starting_points(problem)
+    n = len(sw.G)
+    np.testing.assert_allclose(np.exp(starts[0][:n]).sum(), sw.G.sum(), rtol=1e-6)
+    np.testing.assert_allclose(starts[0][2 * n], sw.WELL_LOSS, rtol=1e-6)
+    # with two flow logs the next start is the two-condition estimate (Paillet 1998), close to
+    # the truth for exact logs (the wellbore heads come from the first start, which has the
+    # true total conductance)
+    np.testing.assert_allclose(np.exp(starts[1][:n]), sw.G, rtol=0.02)
+    # the priors (G = 100 m^2/d each, h0 = 0) come last
+    np.testing.assert_allclose(np.exp(starts[-1][:n]), 100.0, rtol=1e-12)
+
+
+def test_fit_out_of_time_is_a_one_line_model_error():
+    p = sw.project(settings=Settings(conductance_model="given", fit_time_budget=1e-9))
+    with pytest.raises(ModelError, match="fit_time_budget = 1e-09 s") as err:
+        fit(p)
+    assert "\n" not in str(err.value)
+
+
+def test_fit_that_does_not_converge_raises(monkeypatch):
+    # every start stopped after two evaluations of the residuals: no result, a ModelError
+    real = estimation.optimize.least_squares
+
+    def stopped(*args, **kw):
+        kw["max_nfev"] = 2
+        return real(*args, **kw)
+
+    monkeypatch.setattr(estimation.optimize, "least_squares", stopped)
+    with pytest.raises(ModelError, match="did not converge from any starting point"):
+        fit(sw.without_priors(sw.project(seed=1, relative_error=0.05)))

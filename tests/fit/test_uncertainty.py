@@ -8,6 +8,18 @@ Sources:
 - Linearised least squares (Golub and Pereyra 1973; any regression text): for residuals
   r = J dtheta - e with e ~ N(0, I), the Gauss-Newton refit dtheta = J^+ e has covariance
   (J^T J)^-1, and the zone values of a linear problem have covariance (A^T W^2 A)^-1.
+- Randomised maximum likelihood (Oliver, He and Reynolds 1996; Kitanidis 1995): for a linear
+  model y = X theta + e, e ~ N(0, S), with a Gaussian prior N(mu, P), minimising
+  |S^-1/2 (X t - y - e_d)|^2 + |P^-1/2 (t - mu - p_d)|^2 with e_d ~ N(0, S), p_d ~ N(0, P)
+  gives exact draws of the posterior N(m, V), V = (X^T S^-1 X + P^-1)^-1,
+  m = V (X^T S^-1 y + P^-1 mu) (Gaussian conjugate posterior, e.g. Tarantola 2005, eq. 3.37).
+- Chi-square of posterior draws: for a correct model and a linear-Gaussian posterior, the misfit
+  of a posterior draw to the m data of a group has expectation m (the best-fit misfit,
+  chi-square with m - p degrees of freedom, plus p from the posterior spread), so the median
+  over draws lies in the central 90 % of the chi-square distribution with m degrees of freedom
+  in most replicates.
+- Birge, R.T. (1932) Phys. Rev. 40: errors of a group whose chi-square per degree of freedom
+  exceeds one are scaled by sqrt(chi2 / dof).
 - Continuity at every node of the wellbore (Konikow et al. 2009, USGS TM 6-A30): discharge
   weights are >= 0 and sum to one; the pass-through computation of intake_weights must equal
   the node-by-node mixing of a full composition vector (blendq.well.mixing.discharge_composition).
@@ -24,9 +36,11 @@ import pytest
 import synthetic_wells as sw
 from hypothesis import given, settings
 from hypothesis import strategies as st
+from scipy import stats
 
 from blendq.fit import diagnostics, uncertainty
 from blendq.fit.estimation import FitOptions, fit
+from blendq.inputs.project import Settings
 from blendq.well import mixing
 from blendq.well.flowlog import log_error
 from blendq.well.model import PRIOR_HEAD_SD_MEASURED, PRIOR_LOG_CONDUCTANCE_SD
@@ -75,15 +89,17 @@ def test_fixed_hydraulics_draws_keep_theta(fixed):
 
 
 def test_theta_draws_have_the_linearised_covariance(joint):
-    # Gauss-Newton refit: cov(J^+ e) = (J^T J)^-1 (the fitted theta_cov); 2000 draws give the
-    # sd to about 1.6 % (1 sd), so 10 % is a loose bound
+    # a well with flow logs is close to linear in theta over its posterior spread, so the
+    # randomised-maximum-likelihood draws have about the linearised covariance (J^T J)^-1 (the
+    # fitted theta_cov): 2000 draws give the sd to about 1.6 % (1 sd), so 10 % is a loose bound
     result, draws = joint
     sd_mc = draws.theta.std(axis=0, ddof=1)
     sd_lin = np.sqrt(np.diag(result.theta_cov))
     assert np.all(sd_lin > 0)
     np.testing.assert_allclose(sd_mc, sd_lin, rtol=0.10)
-    # centred on the optimum: the mean of 2000 draws within 4 standard errors
-    assert np.all(np.abs(draws.theta.mean(0) - result.theta) <= 4 * sd_lin / np.sqrt(2000))
+    # centred near the optimum: the posterior mean of a mildly nonlinear problem differs from
+    # its mode by a small fraction of a sd (here < 0.15 sd, Monte Carlo error 0.02 sd)
+    assert np.all(np.abs(draws.theta.mean(0) - result.theta) <= 0.15 * sd_lin)
 
 
 def test_linearised_zone_sd_matches_monte_carlo(fixed):
@@ -242,8 +258,8 @@ def test_interval_coverage_fixed_hydraulics():
 
 
 def test_interval_coverage_joint_fit():
-    # a smaller check of the joint fit (hydraulics refitted by the linearised step): 40
-    # experiments x 4 zones, with a wider band for the smaller sample (and correlated zones)
+    # a smaller check of the joint fit (every draw's hydraulics refitted): 40 experiments x
+    # 4 zones, with a wider band for the smaller sample (and correlated zones); measured 0.90
     hits = []
     for seed in range(40):
         result = fit(_coverage_project(seed, True))
@@ -253,4 +269,138 @@ def test_interval_coverage_joint_fit():
         inside = (table["lower"].to_numpy() <= truth) & (truth <= table["upper"].to_numpy())
         hits.extend(inside[resolved])
     assert len(hits) >= 0.9 * 160
-    assert 0.78 <= np.mean(hits) <= 0.98
+    assert 0.84 <= np.mean(hits) <= 0.96
+
+
+def test_levenberg_marquardt_draws_match_the_linear_gaussian_posterior():
+    # randomised maximum likelihood on a linear-Gaussian problem (see the module docstring):
+    # each refit equals the exact per-draw minimiser, and the draws have the analytic
+    # posterior mean and covariance (4000 draws: mean within 4 standard errors, sd within 6 %)
+    rng = np.random.default_rng(3)
+    n_obs, p, n_draws = 12, 3, 4000
+    x = rng.standard_normal((n_obs, p))
+    s_obs = 0.5 + rng.random(n_obs)
+    mu, s_pri = np.array([1.0, -2.0, 0.5]), np.array([2.0, 0.7, 1.5])
+    y = x @ np.array([1.5, -1.0, 0.0]) + s_obs * rng.standard_normal(n_obs)
+    e = rng.standard_normal((n_draws, n_obs + p))
+
+    def fun(theta, rows, state, check):
+        r_obs = (theta @ x.T - y) / s_obs - e[rows, :n_obs]
+        r_pri = (theta - mu) / s_pri - e[rows, n_obs:]
+        return np.concatenate([r_obs, r_pri], axis=1), theta.copy(), state or {}
+
+    theta, _, done = uncertainty.levenberg_marquardt_batch(
+        fun, np.zeros((n_draws, p)), np.full(p, -np.inf), np.full(p, 1e-6))
+    assert done.all()
+    big = np.vstack([x / s_obs[:, None], np.diag(1 / s_pri)])
+    rhs = np.concatenate([y / s_obs, mu / s_pri])[None] + e
+    exact = np.linalg.lstsq(big, rhs.T, rcond=None)[0].T
+    np.testing.assert_allclose(theta, exact, rtol=0, atol=1e-5)
+    v = np.linalg.inv(x.T @ (x / s_obs[:, None] ** 2) + np.diag(1 / s_pri**2))
+    m = v @ (x.T @ (y / s_obs**2) + mu / s_pri**2)
+    sd = np.sqrt(np.diag(v))
+    assert np.all(np.abs(theta.mean(0) - m) <= 4 * sd / np.sqrt(n_draws))
+    np.testing.assert_allclose(theta.std(0, ddof=1), sd, rtol=0.06)
+    corr = np.corrcoef(theta.T)
+    np.testing.assert_allclose(corr, v / np.outer(sd, sd), atol=0.05)
+
+
+def test_levenberg_marquardt_honours_a_lower_bound():
+    # minimise (t - a)^2 with t >= 0: the answer is max(a, 0) (a bound-constrained quadratic)
+    a = np.array([-2.0, -0.1, 0.3, 4.0])
+
+    def fun(theta, rows, state, check):
+        return theta - a[rows, None], theta.copy(), {}
+
+    theta, _, done = uncertainty.levenberg_marquardt_batch(
+        fun, np.ones((4, 1)), np.zeros(1), np.full(1, 1e-6))
+    assert done.all()
+    np.testing.assert_allclose(theta[:, 0], np.maximum(a, 0.0), atol=1e-6)
+
+
+_R_INFLUENCE = 300.0  # [m]
+
+
+def _property_prior_project(seed):
+    """The four-zone well with no flow log and no depth sample: zone shares rest on priors from
+    zone transmissivities (prior sd of ln G: ln 3), the priors themselves drawn around the truth
+    with their stated sd, the data generated exactly by the model with their stated errors."""
+    p = synthetic_project(sw.G, sw.H0, sw.TOP, sw.BOT, sw.CONC, sw.RATES, 25.0,
+                          relative_error=0.05, absolute_error={"nitrate": 0.1, "arsenic": 0.0005},
+                          well_loss=sw.WELL_LOSS, level_noise=0.05, seed=seed,
+                          settings=Settings(conductance_model="steady"))
+    rng = np.random.default_rng(10_000 + seed)
+    rw = p.well.well_radius
+    p.well = dataclasses.replace(p.well, radius_of_influence=_R_INFLUENCE)
+    # Thiem: G = 2 pi T / ln(R / r_w), so T = G ln(R / r_w) / (2 pi)
+    p.zones = [dataclasses.replace(
+        z, conductance=None,
+        transmissivity=g * np.exp(PRIOR_LOG_CONDUCTANCE_SD * rng.standard_normal())
+        * np.log(_R_INFLUENCE / rw) / (2 * np.pi),
+        static_level=z.static_level + PRIOR_HEAD_SD_MEASURED * rng.standard_normal())
+        for z, g in zip(p.zones, sw.G, strict=True)]
+    return p
+
+
+def _misfit_medians(result, draws):
+    misfit = uncertainty.draw_misfit(result, draws)
+    layout = uncertainty.draw_layout(result.problem)
+    rows = {g: sl.stop - sl.start for g, sl in layout.items()}
+    rows["total"] = sum(rows.values())
+    out = {}
+    for group in ("pumping levels", "total"):
+        lo, hi = stats.chi2.ppf([0.05, 0.95], rows[group])
+        out[group] = (float(np.median(misfit[group])), lo, hi)
+    return out
+
+
+def test_draws_fit_the_levels_where_shares_rest_on_priors():
+    # no flow log: the draws must stay conditioned on the measured pumping levels. For six
+    # replicates the median over draws of the level chi-square and of the total chi-square lies
+    # in the central 90 % of the chi-square distribution of their row count in at least five
+    # (one linearised Gauss-Newton step from the best fit gives medians of 80 to 800 here)
+    inside = {"pumping levels": 0, "total": 0}
+    for seed in range(6):
+        result = fit(_property_prior_project(seed))
+        assert np.isfinite(result.problem.prior.log_conductance_sd).all()
+        draws = uncertainty.monte_carlo(result, 300, seed=seed, widen=False)
+        assert not draws.notes  # every draw converged
+        for group, (med, lo, hi) in _misfit_medians(result, draws).items():
+            inside[group] += lo <= med <= hi
+            assert med < 3 * hi  # never the runaway misfit of unconditioned draws
+    assert inside["pumping levels"] >= 5 and inside["total"] >= 5
+
+
+def test_draws_fit_the_data_with_flow_logs():
+    # the same check on the well with flow logs and depth samples, every datum and prior noisy
+    # as stated (the coverage experiments below): nothing is widened on a correct model here
+    inside = {"pumping levels": 0, "total": 0}
+    for seed in range(5):
+        result = fit(_coverage_project(seed, True))
+        draws = uncertainty.monte_carlo(result, 300, seed=seed, widen=False)
+        assert not draws.notes
+        for group, (med, lo, hi) in _misfit_medians(result, draws).items():
+            inside[group] += lo <= med <= hi
+    assert inside["pumping levels"] >= 4 and inside["total"] >= 4
+
+
+def test_discrepancy_widens_a_missed_group_and_says_so():
+    # levels measured with 0.5 m scatter but stated as 0.05 m: the best fit misses them by
+    # about 10x their stated error; the draws widen their errors by the Birge ratio and the
+    # level bands widen with them; groups within their errors stay as stated
+    p = sw.project(seed=5, level_noise=0.5, **NOISE)
+    result = fit(p)
+    groups = {g.group: g for g in uncertainty.discrepancy(result)}
+    lev = groups["pumping levels"]
+    assert lev.chi_square > stats.chi2.ppf(0.95, lev.dof)
+    np.testing.assert_allclose(lev.scale, np.sqrt(lev.chi_square / lev.dof), rtol=1e-12)
+    assert 4 < lev.scale < 25
+    assert lev.note.startswith("Pumping levels: the best fit misses them by ")
+    assert groups["nitrate"].scale == 1.0 and groups["nitrate"].note is None
+    wide = uncertainty.monte_carlo(result, 400, seed=1)
+    narrow = uncertainty.monte_carlo(result, 400, seed=1, widen=False)
+    assert any(n.startswith("Pumping levels") for n in wide.notes) and not narrow.notes
+    rates = np.array([500.0, 2000.0])
+    sd_wide = uncertainty.predict(result, wide, rates).pumping_level.std(0)
+    sd_narrow = uncertainty.predict(result, narrow, rates).pumping_level.std(0)
+    assert np.all(sd_wide > 2 * sd_narrow)
