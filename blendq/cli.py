@@ -282,17 +282,13 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = No
 def _write_report(project: Path, out: Path, units: str, draws, seed) -> None:
     from blendq.decide.analysis import decision_sentence
     from blendq.report.assemble import output_files
-    from blendq.report.chart_pool import ChartPool
     from blendq.report.outputs import check_output_folder, write_outputs
 
-    # the chart server starts now, sharing the imports above (numpy, pandas, pint, scipy): it
-    # imports matplotlib on the second core while this process loads and analyses
-    with ChartPool() as charts:
-        proj = _load(project)
-        protect = [proj.folder / f for f in proj.files.values()] if proj.folder else []
-        check_output_folder(out, protect)  # refuse a bad folder before the long run, not after
-        a = _analyse(proj, draws, seed)
-        files = output_files(a, units, created=f"blendq {__version__}", charts=charts)
+    proj = _load(project)
+    protect = [proj.folder / f for f in proj.files.values()] if proj.folder else []
+    check_output_folder(out, protect)  # refuse a bad folder before the long run, not after
+    a = _analyse(proj, draws, seed)
+    files = output_files(a, units, created=f"blendq {__version__}")
     folder = write_outputs(out, files, protect=protect)
     typer.echo(decision_sentence(a, units))
     typer.echo(f"Report written to {folder / 'report.html'} and {folder / 'report.pdf'}")

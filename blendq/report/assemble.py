@@ -7,15 +7,12 @@ display units (US or SI) here, at the edge; the analysis itself stays in base un
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-
 import numpy as np
 import pandas as pd
 
 from blendq import CAUTIONS, __version__
 from blendq.chemistry.analytes import get_analyte
 from blendq.decide.analysis import Analysis, decision_sentence
-from blendq.report.chart_pool import ChartJob, ChartPool
 from blendq.report.document import (
     BulletList,
     Callout,
@@ -26,7 +23,7 @@ from blendq.report.document import (
     Section,
     Table,
 )
-from blendq.report.scenario_section import scenario_chart_job, scenario_section
+from blendq.report.scenario_section import scenario_section
 from blendq.units import DISPLAY_UNITS, display_unit_label, format_quantity, from_base
 
 REFERENCES = [
@@ -161,32 +158,30 @@ def sample_use_blocks(a: Analysis) -> list:
     return blocks
 
 
-def step_drawdown_jobs(a: Analysis, units: str) -> list[ChartJob]:
+def step_drawdown_figures(a: Analysis, units: str) -> list[Figure]:
     """The step-drawdown charts (none without a step-drawdown analysis)."""
     from blendq.report.charts import stepdrawdown as sd
+    from blendq.report.charts.render import chart_figure
 
     lc = a.step_drawdown
     if lc is None or lc.result is None:
         return []
     res = lc.result
-    jobs = [
-        ChartJob("Specific drawdown against rate with the fitted well-loss lines.",
-                 sd.specific_drawdown_chart, (res, units), svg=False),
-        ChartJob("Drawdown against rate: steps, fits and the linear part.",
-                 sd.drawdown_rate_chart, (res, units), svg=False),
+    figures = [
+        chart_figure("Specific drawdown against rate with the fitted well-loss lines.",
+                     sd.specific_drawdown_chart(res, units), svg=False),
+        chart_figure("Drawdown against rate: steps, fits and the linear part.",
+                     sd.drawdown_rate_chart(res, units), svg=False),
     ]
     if res.record is not None:
-        jobs.append(ChartJob("Water-level record with each step's extrapolation.",
-                             sd.step_record_chart, (res, units), svg=False))
-    return jobs
+        figures.append(chart_figure("Water-level record with each step's extrapolation.",
+                                    sd.step_record_chart(res, units), svg=False))
+    return figures
 
 
-def step_drawdown_section(a: Analysis, units: str,
-                          figures: Sequence[Figure] = ()) -> Section:
-    """Step-drawdown analysis, well condition, and which pumping-level prediction is used.
-
-    ``figures``: the drawn :func:`step_drawdown_jobs`, shown after the text.
-    """
+def step_drawdown_section(a: Analysis, units: str) -> Section:
+    """Step-drawdown analysis, well condition, and which pumping-level prediction is used,
+    with the step-drawdown charts."""
     lc = a.step_drawdown
     blocks: list = []
     if lc is None or lc.result is None:
@@ -216,53 +211,38 @@ def step_drawdown_section(a: Analysis, units: str,
     else:
         blocks.append(Paragraph(f"The window uses the pumping level from the {lc.source}: "
                                 f"{lc.reason}."))
-    blocks += list(figures)
+    blocks += step_drawdown_figures(a, units)
     return Section("Step-drawdown test and well condition", tuple(blocks), "stepdrawdown")
 
 
-def quality_jobs(a: Analysis, units: str) -> list[ChartJob]:
+def quality_figures(a: Analysis, units: str) -> list[Figure]:
     """The decision charts: quality, zone shares and pumping level against rate; zone
     estimates."""
     from blendq.report.charts import quality
+    from blendq.report.charts.render import chart_figure
 
     s = a.project.settings
     return [
-        ChartJob("Discharge quality against pumping rate: median, band, limits, the step "
-                 "samples and the operating window.", quality.quality_vs_rate,
-                 (a.prediction, a.window, a.limits, s.margin, s.interval, a.project, units)),
-        ChartJob("Share of the discharge from each zone against pumping rate.",
-                 quality.zone_shares, (a.prediction, a.project.zone_names, a.window, units)),
-        ChartJob(f"Pumping level against rate after {s.horizon:g} days of pumping (the "
-                 "operating horizon), with the intake and screen limits. The measured step "
-                 "levels are from the hours-long test and so lie above the long-term "
-                 "prediction.", quality.pumping_level, (a.prediction, a.project, a.window, units)),
-        ChartJob("Zone estimates with intervals; unresolved zones as the range the data allow.",
-                 quality.zone_estimates, (a.zones, a.prediction.analytes)),
+        chart_figure("Discharge quality against pumping rate: median, band, limits, the step "
+                     "samples and the operating window.",
+                     quality.quality_vs_rate(a.prediction, a.window, a.limits, s.margin,
+                                             s.interval, a.project, units)),
+        chart_figure("Share of the discharge from each zone against pumping rate.",
+                     quality.zone_shares(a.prediction, a.project.zone_names, a.window, units)),
+        chart_figure(f"Pumping level against rate after {s.horizon:g} days of pumping (the "
+                     "operating horizon), with the intake and screen limits. The measured step "
+                     "levels are from the hours-long test and so lie above the long-term "
+                     "prediction.", quality.pumping_level(a.prediction, a.project, a.window,
+                                                          units)),
+        chart_figure("Zone estimates with intervals; unresolved zones as the range the data "
+                     "allow.", quality.zone_estimates(a.zones, a.prediction.analytes)),
     ]
 
 
-def build_document(a: Analysis, units: str = "US", created: str = "",
-                   charts: ChartPool | None = None) -> Document:
-    """The report of an analysis as a renderer-neutral document.
-
-    ``charts`` draws the charts while the text is built (a pool of its own is started when
-    none is given; see :class:`blendq.report.chart_pool.ChartPool`).
-    """
-    if charts is None:
-        with ChartPool() as pool:
-            return build_document(a, units, created, pool)
+def build_document(a: Analysis, units: str = "US", created: str = "") -> Document:
+    """The report of an analysis as a renderer-neutral document (its charts drawn here)."""
     p = a.project
     s = p.settings
-    comparison = None
-    if p.scenarios:
-        from blendq.decide.scenarios import compare
-
-        comparison = compare(a)
-    jobs = quality_jobs(a, units)
-    sd_jobs = step_drawdown_jobs(a, units)
-    scenario_job = [scenario_chart_job(a, comparison, units)] if comparison else []
-    # the scenario chart, the slowest to draw, goes first: the two workers end closer together
-    collect = charts.submit([*scenario_job, *jobs, *sd_jobs])
     w = p.well
     decision = decision_sentence(a, units)
     inputs = KeyValues([
@@ -333,9 +313,14 @@ def build_document(a: Analysis, units: str = "US", created: str = "",
             Table(at_rate_table(a, rec_rate, units),
                   f"Predicted discharge at {format_quantity(rec_rate, 'rate', units)}."),
         ), "window"),
-        Section("Charts", (), "charts"),  # the figures come last, when they are drawn
-        Section("Options compared", (), "scenarios"),
-        Section("Step-drawdown test and well condition", (), "stepdrawdown"),
+        Section("Charts", tuple(quality_figures(a, units)), "charts"),
+    ]
+    if p.scenarios:
+        from blendq.decide.scenarios import compare
+
+        sections.append(scenario_section(a, compare(a), units))
+    sections += [
+        step_drawdown_section(a, units),
         Section("Assumptions", (BulletList(ASSUMPTIONS),), "assumptions"),
         Section("Methods and references", (
             Paragraph("Zone inflow: common wellbore head, q_i = G_i (h0_i - h_w) with optional "
@@ -353,21 +338,6 @@ def build_document(a: Analysis, units: str = "US", created: str = "",
             Paragraph(f"blendq {__version__}."),
         ), "methods"),
     ]
-    from blendq.report.pdf import prepare  # load the PDF fonts while the charts are drawn
-
-    prepare()
-    figures = collect()
-    k, n = len(scenario_job), len(scenario_job) + len(jobs)
-    chart_blocks = {
-        "charts": tuple(figures[k:n]),
-        "stepdrawdown": step_drawdown_section(a, units, figures[n:]).blocks,
-    }
-    if comparison is not None:
-        chart_blocks["scenarios"] = scenario_section(a, comparison, units,
-                                                     chart=figures[0]).blocks
-    sections = [Section(sec.heading, chart_blocks[sec.key], sec.key)
-                if sec.key in chart_blocks else sec
-                for sec in sections if sec.key != "scenarios" or comparison is not None]
     return Document(title=f"Discharge quality and operating window: {w.name}",
                     subtitle=p.name, created=created, sections=tuple(sections))
 
@@ -395,17 +365,13 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
     }
 
 
-def output_files(a: Analysis, units: str = "US", created: str = "",
-                 charts: ChartPool | None = None) -> dict[str, bytes | str]:
-    """All files of a report folder: report.html, report.pdf, CSV tables, summary.json, charts.
-
-    ``charts``: see :func:`build_document`.
-    """
+def output_files(a: Analysis, units: str = "US", created: str = "") -> dict[str, bytes | str]:
+    """All files of a report folder: report.html, report.pdf, CSV tables, summary.json, charts."""
     from blendq.report.html import render_html
     from blendq.report.outputs import to_csv_safe, to_json_stable
     from blendq.report.pdf import render_pdf_bytes
 
-    doc = build_document(a, units, created, charts)
+    doc = build_document(a, units, created)
     files: dict[str, bytes | str] = {
         "report.html": render_html(doc),
         "report.pdf": render_pdf_bytes(doc),
