@@ -108,9 +108,11 @@ def old_tree(folder: Path) -> Path:
     return folder
 
 
-def timed(cmd: list[str], pythonpath: Path) -> float:
+def timed(cmd: list[str], pythonpath: Path, cwd: str) -> float:
+    """Seconds ``cmd`` takes with the package at ``pythonpath`` (run in ``cwd``, a folder
+    without a package of its own, since ``python -c`` looks there first)."""
     t0 = time.perf_counter()
-    subprocess.run(cmd, check=True, capture_output=True,
+    subprocess.run(cmd, check=True, capture_output=True, cwd=cwd,
                    env={**os.environ, "PYTHONPATH": str(pythonpath)})
     return time.perf_counter() - t0
 
@@ -129,11 +131,11 @@ def main(runs: int = 3) -> None:
                                        ROOT),
         }
         for cmd, path in commands.values():  # warm the file caches, check that each one runs
-            timed(cmd, path)
+            timed(cmd, path, tmp)
         times: dict[str, list[float]] = {name: [] for name in commands}
         for _ in range(runs):
             for name, (cmd, path) in commands.items():
-                times[name].append(timed(cmd, path))
+                times[name].append(timed(cmd, path, tmp))
     ref = min(timeit.repeat("sum(range(10**6))", number=10, repeat=5)) / 10
     print(f"machine reference: sum(range(10**6)) takes {ref * 1e3:.1f} ms (the speed of this "
           "machine now; shared machines vary by a third or more over a day)")

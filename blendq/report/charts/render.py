@@ -2,8 +2,8 @@
 for the same chart.
 
 The report draws its charts in the main process, one after the other: on the 2-core
-development machine a pool of worker processes saved no more than a few tenths of a second
-of ``blendq demo`` (``benchmarks/bench_charts.py``).
+development machine, worker processes saved at most 0.2 s of ``blendq demo``'s 4.3 s when the
+machine was idle and cost time under load (``benchmarks/bench_charts.py``).
 """
 
 from __future__ import annotations
