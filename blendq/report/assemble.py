@@ -191,8 +191,10 @@ def step_drawdown_section(a: Analysis, units: str) -> Section:
     res = lc.result
     blocks.append(BulletList(res.summary_lines(units)))
     blocks.append(Paragraph("Walton's (1962) well-condition classes from the well-loss "
-                            "coefficient C are quoted from memory (below 5, 5-10, 10-40, above "
-                            "40 s²/ft⁵); check them against the bulletin before relying on them."))
+                            "coefficient C (below 5, 5-10, 10-40, above 40 s²/ft⁵, set from "
+                            "field experience) are taken from a published restatement that "
+                            "attributes them to Walton, not from the bulletin itself; check "
+                            "them against the bulletin before relying on them."))
     if lc.comparison is not None:
         c = lc.comparison
         du = DISPLAY_UNITS[units]
