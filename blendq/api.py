@@ -55,8 +55,6 @@ from blendq.units import DISPLAY_UNITS, format_quantity, from_base, parse_quanti
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
 
-    from blendq.report.chart_pool import ChartPool
-
 __all__ = [
     "CAUTIONS",
     "ComparisonResult",
@@ -624,8 +622,7 @@ class Result:
         return ComparisonResult(_scenarios.compare(self.analysis, built), self.analysis,
                                 self.units)
 
-    def write_report(self, folder: str | os.PathLike[str], units: str | None = None,
-                     charts: ChartPool | None = None) -> Path:
+    def write_report(self, folder: str | os.PathLike[str], units: str | None = None) -> Path:
         """Write the report folder of ``blendq report``: report.html, report.pdf, the tables
         (CSV), summary.json and the charts.
 
@@ -636,8 +633,6 @@ class Result:
             anything else or the project's input files.
         units : {"US", "SI"}, optional
             Display units of the report (default: this result's).
-        charts : blendq.report.chart_pool.ChartPool, optional
-            A running chart pool (one is started when not given).
 
         Returns
         -------
@@ -647,8 +642,7 @@ class Result:
         u = self.units if units is None else _unit_system(units)
         protect = _protected(self.project)
         _outputs.check_output_folder(folder, protect)
-        files = _assemble.output_files(self.analysis, u, created=f"blendq {__version__}",
-                                       charts=charts)
+        files = _assemble.output_files(self.analysis, u, created=f"blendq {__version__}")
         return _outputs.write_outputs(folder, files, protect=protect)
 
     @cached_property
@@ -912,38 +906,22 @@ class Plots:
         self._analysis = analysis
         self.units = units
 
-    def _draw(self, jobs: list, draw: Any) -> Figure:
-        job = next(j for j in jobs if j.draw is draw)
-        return job.draw(*job.args)
-
     def quality(self) -> Figure:
         """Discharge quality against pumping rate: median, band, limits, step samples and
         the operating window, one panel per fitted analyte."""
-        from blendq.report.charts import quality
-
-        return self._draw(_assemble.quality_jobs(self._analysis, self.units),
-                          quality.quality_vs_rate)
+        return _assemble.quality_chart(self._analysis, self.units)
 
     def shares(self) -> Figure:
         """Each zone's share of the discharge against pumping rate."""
-        from blendq.report.charts import quality
-
-        return self._draw(_assemble.quality_jobs(self._analysis, self.units),
-                          quality.zone_shares)
+        return _assemble.shares_chart(self._analysis, self.units)
 
     def levels(self) -> Figure:
         """Pumping level against rate at the operating horizon, with the intake and screen."""
-        from blendq.report.charts import quality
-
-        return self._draw(_assemble.quality_jobs(self._analysis, self.units),
-                          quality.pumping_level)
+        return _assemble.levels_chart(self._analysis, self.units)
 
     def zones(self) -> Figure:
         """Zone estimates with intervals; unresolved zones as the range the data allow."""
-        from blendq.report.charts import quality
-
-        return self._draw(_assemble.quality_jobs(self._analysis, self.units),
-                          quality.zone_estimates)
+        return _assemble.zones_chart(self._analysis)
 
     def step_drawdown(self, kind: str = "specific") -> Figure:
         """A chart of the step-drawdown analysis.
@@ -967,13 +945,14 @@ class Plots:
         if kind not in draws:
             raise InputError(f'"{kind}" is not a step-drawdown chart (expected '
                              '"specific", "drawdown" or "record")', field="kind")
-        jobs = _assemble.step_drawdown_jobs(self._analysis, self.units)
-        if not any(j.draw is draws[kind] for j in jobs):
-            lc = self._analysis.step_drawdown
-            why = ("the project has no water-level record" if jobs
-                   else lc.reason if lc is not None else "not run")
-            raise ModelError(f"no step-drawdown chart {kind!r}: {why}")
-        return self._draw(jobs, draws[kind])
+        lc = self._analysis.step_drawdown
+        if lc is None or lc.result is None:
+            raise ModelError(f"no step-drawdown chart {kind!r}: "
+                             f"{lc.reason if lc is not None else 'not run'}")
+        if kind == "record" and lc.result.record is None:
+            raise ModelError(f"no step-drawdown chart {kind!r}: the project has no water-level "
+                             "record")
+        return draws[kind](lc.result, self.units)
 
     def __repr__(self) -> str:
         return (f"charts of {self._analysis.project.well.name}: quality(), shares(), levels(), "

@@ -284,15 +284,11 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = No
 
 def _write_report(project: Path, out: Path, units: str, draws, seed) -> None:
     from blendq.api import check_report_folder, load_project
-    from blendq.report.chart_pool import ChartPool
 
-    # the chart server starts now, sharing the imports above (numpy, pandas, pint, scipy): it
-    # imports matplotlib on the second core while this process loads and analyses
-    with ChartPool() as charts:
-        proj = load_project(project)
-        check_report_folder(out, proj)  # refuse a bad folder before the long run, not after
-        result = _analyse(proj, draws, seed, units)
-        folder = result.write_report(out, charts=charts)
+    proj = load_project(project)
+    check_report_folder(out, proj)  # refuse a bad folder before the long run, not after
+    result = _analyse(proj, draws, seed, units)
+    folder = result.write_report(out)
     typer.echo(result.decision)
     typer.echo(f"Report written to {folder / 'report.html'} and {folder / 'report.pdf'}")
     typer.echo(_caution_line())

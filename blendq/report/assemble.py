@@ -7,8 +7,6 @@ display units (US or SI) here, at the edge; the analysis itself stays in base un
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-
 import numpy as np
 import pandas as pd
 
@@ -16,7 +14,6 @@ from blendq import CAUTIONS, __version__
 from blendq.chemistry.analytes import get_analyte
 from blendq.decide.analysis import Analysis, decision_sentence
 from blendq.decide.sweep import compliance_statistics, exceedance, statistic_quantiles
-from blendq.report.chart_pool import ChartJob, ChartPool
 from blendq.report.document import (
     BulletList,
     Callout,
@@ -27,7 +24,7 @@ from blendq.report.document import (
     Section,
     Table,
 )
-from blendq.report.scenario_section import scenario_chart_job, scenario_section
+from blendq.report.scenario_section import scenario_section
 from blendq.units import DISPLAY_UNITS, display_unit_label, format_quantity, from_base
 
 REFERENCES = [
@@ -197,32 +194,30 @@ def sample_use_blocks(a: Analysis) -> list:
     return blocks
 
 
-def step_drawdown_jobs(a: Analysis, units: str) -> list[ChartJob]:
+def step_drawdown_figures(a: Analysis, units: str) -> list[Figure]:
     """The step-drawdown charts (none without a step-drawdown analysis)."""
     from blendq.report.charts import stepdrawdown as sd
+    from blendq.report.charts.render import chart_figure
 
     lc = a.step_drawdown
     if lc is None or lc.result is None:
         return []
     res = lc.result
-    jobs = [
-        ChartJob("Specific drawdown against rate with the fitted well-loss lines.",
-                 sd.specific_drawdown_chart, (res, units), svg=False),
-        ChartJob("Drawdown against rate: steps, fits and the linear part.",
-                 sd.drawdown_rate_chart, (res, units), svg=False),
+    figures = [
+        chart_figure("Specific drawdown against rate with the fitted well-loss lines.",
+                     sd.specific_drawdown_chart(res, units), svg=False),
+        chart_figure("Drawdown against rate: steps, fits and the linear part.",
+                     sd.drawdown_rate_chart(res, units), svg=False),
     ]
     if res.record is not None:
-        jobs.append(ChartJob("Water-level record with each step's extrapolation.",
-                             sd.step_record_chart, (res, units), svg=False))
-    return jobs
+        figures.append(chart_figure("Water-level record with each step's extrapolation.",
+                                    sd.step_record_chart(res, units), svg=False))
+    return figures
 
 
-def step_drawdown_section(a: Analysis, units: str,
-                          figures: Sequence[Figure] = ()) -> Section:
-    """Step-drawdown analysis, well condition, and which pumping-level prediction is used.
-
-    ``figures``: the drawn :func:`step_drawdown_jobs`, shown after the text.
-    """
+def step_drawdown_section(a: Analysis, units: str) -> Section:
+    """Step-drawdown analysis, well condition, and which pumping-level prediction is used,
+    with the step-drawdown charts."""
     lc = a.step_drawdown
     blocks: list = []
     if lc is None or lc.result is None:
@@ -232,8 +227,10 @@ def step_drawdown_section(a: Analysis, units: str,
     res = lc.result
     blocks.append(BulletList(res.summary_lines(units)))
     blocks.append(Paragraph("Walton's (1962) well-condition classes from the well-loss "
-                            "coefficient C are quoted from memory (below 5, 5-10, 10-40, above "
-                            "40 s²/ft⁵); check them against the bulletin before relying on them."))
+                            "coefficient C (below 5, 5-10, 10-40, above 40 s²/ft⁵, set from "
+                            "field experience) are taken from a published restatement that "
+                            "attributes them to Walton, not from the bulletin itself; check "
+                            "them against the bulletin before relying on them."))
     if lc.comparison is not None:
         c = lc.comparison
         du = DISPLAY_UNITS[units]
@@ -252,14 +249,45 @@ def step_drawdown_section(a: Analysis, units: str,
     else:
         blocks.append(Paragraph(f"The window uses the pumping level from the {lc.source}: "
                                 f"{lc.reason}."))
-    blocks += list(figures)
+    blocks += step_drawdown_figures(a, units)
     return Section("Step-drawdown test and well condition", tuple(blocks), "stepdrawdown")
 
 
-def quality_jobs(a: Analysis, units: str) -> list[ChartJob]:
+def quality_chart(a: Analysis, units: str):
+    """Discharge quality against rate (matplotlib Figure), as the report draws it."""
+    from blendq.report.charts import quality
+
+    s = a.project.settings
+    return quality.quality_vs_rate(a.prediction, a.window, a.limits, s.margin, s.interval,
+                                   a.project, units, None,
+                                   compliance_statistics(a.project, a.limits))
+
+
+def shares_chart(a: Analysis, units: str):
+    """Each zone's share of the discharge against rate (matplotlib Figure)."""
+    from blendq.report.charts import quality
+
+    return quality.zone_shares(a.prediction, a.project.zone_names, a.window, units)
+
+
+def levels_chart(a: Analysis, units: str):
+    """Pumping level against rate at the operating horizon (matplotlib Figure)."""
+    from blendq.report.charts import quality
+
+    return quality.pumping_level(a.prediction, a.project, a.window, units)
+
+
+def zones_chart(a: Analysis):
+    """Zone estimates with intervals (matplotlib Figure)."""
+    from blendq.report.charts import quality
+
+    return quality.zone_estimates(a.zones, a.prediction.analytes)
+
+
+def quality_figures(a: Analysis, units: str) -> list[Figure]:
     """The decision charts: quality, zone shares and pumping level against rate; zone
     estimates."""
-    from blendq.report.charts import quality
+    from blendq.report.charts.render import chart_figure
 
     s = a.project.settings
     stats = compliance_statistics(a.project, a.limits)
@@ -268,44 +296,24 @@ def quality_jobs(a: Analysis, units: str) -> list[ChartJob]:
              f"single samples ({', '.join(single)}), with the water's temporal variability and "
              "the lab's error." if single else "")
     return [
-        ChartJob("Discharge quality against pumping rate: median and band of the mean discharge "
-                 "concentration, limits, the step samples and the operating window." + extra,
-                 quality.quality_vs_rate,
-                 (a.prediction, a.window, a.limits, s.margin, s.interval, a.project, units, None,
-                  stats)),
-        ChartJob("Share of the discharge from each zone against pumping rate.",
-                 quality.zone_shares, (a.prediction, a.project.zone_names, a.window, units)),
-        ChartJob(f"Pumping level against rate after {s.horizon:g} days of pumping (the "
-                 "operating horizon), with the intake and screen limits. The measured step "
-                 "levels are from the hours-long test and so lie above the long-term "
-                 "prediction.", quality.pumping_level, (a.prediction, a.project, a.window, units)),
-        ChartJob("Zone estimates with intervals; unresolved zones as the range the data allow.",
-                 quality.zone_estimates, (a.zones, a.prediction.analytes)),
+        chart_figure("Discharge quality against pumping rate: median and band of the mean "
+                     "discharge concentration, limits, the step samples and the operating window."
+                     + extra, quality_chart(a, units)),
+        chart_figure("Share of the discharge from each zone against pumping rate.",
+                     shares_chart(a, units)),
+        chart_figure(f"Pumping level against rate after {s.horizon:g} days of pumping (the "
+                     "operating horizon), with the intake and screen limits. The measured step "
+                     "levels are from the hours-long test and so lie above the long-term "
+                     "prediction.", levels_chart(a, units)),
+        chart_figure("Zone estimates with intervals; unresolved zones as the range the data "
+                     "allow.", zones_chart(a)),
     ]
 
 
-def build_document(a: Analysis, units: str = "US", created: str = "",
-                   charts: ChartPool | None = None) -> Document:
-    """The report of an analysis as a renderer-neutral document.
-
-    ``charts`` draws the charts while the text is built (a pool of its own is started when
-    none is given; see :class:`blendq.report.chart_pool.ChartPool`).
-    """
-    if charts is None:
-        with ChartPool() as pool:
-            return build_document(a, units, created, pool)
+def build_document(a: Analysis, units: str = "US", created: str = "") -> Document:
+    """The report of an analysis as a renderer-neutral document (its charts drawn here)."""
     p = a.project
     s = p.settings
-    comparison = None
-    if p.scenarios:
-        from blendq.decide.scenarios import compare
-
-        comparison = compare(a)
-    jobs = quality_jobs(a, units)
-    sd_jobs = step_drawdown_jobs(a, units)
-    scenario_job = [scenario_chart_job(a, comparison, units)] if comparison else []
-    # the scenario chart, the slowest to draw, goes first: the two workers end closer together
-    collect = charts.submit([*scenario_job, *jobs, *sd_jobs])
     w = p.well
     decision = decision_sentence(a, units)
     inputs = KeyValues([
@@ -382,9 +390,14 @@ def build_document(a: Analysis, units: str = "US", created: str = "",
             Table(at_rate_table(a, rec_rate, units),
                   f"Predicted discharge at {format_quantity(rec_rate, 'rate', units)}."),
         ), "window"),
-        Section("Charts", (), "charts"),  # the figures come last, when they are drawn
-        Section("Options compared", (), "scenarios"),
-        Section("Step-drawdown test and well condition", (), "stepdrawdown"),
+        Section("Charts", tuple(quality_figures(a, units)), "charts"),
+    ]
+    if p.scenarios:
+        from blendq.decide.scenarios import compare
+
+        sections.append(scenario_section(a, compare(a), units))
+    sections += [
+        step_drawdown_section(a, units),
         Section("Assumptions", (BulletList(ASSUMPTIONS),), "assumptions"),
         Section("Methods and references", (
             Paragraph("Zone inflow: common wellbore head, q_i = G_i (h0_i - h_w) with optional "
@@ -405,21 +418,6 @@ def build_document(a: Analysis, units: str = "US", created: str = "",
             Paragraph(f"blendq {__version__}."),
         ), "methods"),
     ]
-    from blendq.report.pdf import prepare  # load the PDF fonts while the charts are drawn
-
-    prepare()
-    figures = collect()
-    k, n = len(scenario_job), len(scenario_job) + len(jobs)
-    chart_blocks = {
-        "charts": tuple(figures[k:n]),
-        "stepdrawdown": step_drawdown_section(a, units, figures[n:]).blocks,
-    }
-    if comparison is not None:
-        chart_blocks["scenarios"] = scenario_section(a, comparison, units,
-                                                     chart=figures[0]).blocks
-    sections = [Section(sec.heading, chart_blocks[sec.key], sec.key)
-                if sec.key in chart_blocks else sec
-                for sec in sections if sec.key != "scenarios" or comparison is not None]
     return Document(title=f"Discharge quality and operating window: {w.name}",
                     subtitle=p.name, created=created, sections=tuple(sections))
 
@@ -449,17 +447,13 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
     }
 
 
-def output_files(a: Analysis, units: str = "US", created: str = "",
-                 charts: ChartPool | None = None) -> dict[str, bytes | str]:
-    """All files of a report folder: report.html, report.pdf, CSV tables, summary.json, charts.
-
-    ``charts``: see :func:`build_document`.
-    """
+def output_files(a: Analysis, units: str = "US", created: str = "") -> dict[str, bytes | str]:
+    """All files of a report folder: report.html, report.pdf, CSV tables, summary.json, charts."""
     from blendq.report.html import render_html
     from blendq.report.outputs import to_csv_safe, to_json_stable
     from blendq.report.pdf import render_pdf_bytes
 
-    doc = build_document(a, units, created, charts)
+    doc = build_document(a, units, created)
     files: dict[str, bytes | str] = {
         "report.html": render_html(doc),
         "report.pdf": render_pdf_bytes(doc),

@@ -12,7 +12,6 @@ import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
 from blendq.decide.scenarios import BASE_NAME, Comparison
-from blendq.report.chart_pool import ChartJob, render_chart
 from blendq.report.document import Figure, Paragraph, Section, Table
 from blendq.units import DISPLAY_UNITS, display_unit_label, from_base
 
@@ -129,20 +128,20 @@ def widest_sentence(comparison: Comparison, units: str = "US") -> str:
     return text + ")." + tail
 
 
-def scenario_chart_job(analysis, comparison: Comparison, units: str = "US") -> ChartJob:
-    """The chart of the scenario section, to be drawn (see :mod:`blendq.report.chart_pool`)."""
+def scenario_chart_figure(analysis, comparison: Comparison, units: str = "US") -> Figure:
+    """The chart of the scenario section, drawn."""
+    from blendq.report.charts.render import chart_figure
     from blendq.report.charts.scenarios import scenario_chart, window_summary
 
-    return ChartJob(
+    return chart_figure(
         "Median delivered quality against the well's pumping rate for each option, with the "
         "limit and the operating margin; beneath, each option's operating window (which "
         "also accounts for the prediction bands), recommended rate and pumping-level yield.",
-        scenario_chart, (comparison, analysis.limits, units), svg=False,
+        scenario_chart(comparison, analysis.limits, units), svg=False,
         alt="Operating windows: " + "; ".join(window_summary(comparison, units)))
 
 
-def scenario_section(analysis, comparison: Comparison, units: str = "US",
-                     chart: Figure | None = None) -> Section:
+def scenario_section(analysis, comparison: Comparison, units: str = "US") -> Section:
     """The report section comparing scenarios.
 
     Parameters
@@ -151,8 +150,6 @@ def scenario_section(analysis, comparison: Comparison, units: str = "US",
     comparison : Comparison
         From :func:`blendq.decide.scenarios.compare`.
     units : {"US", "SI"}
-    chart : Figure, optional
-        The drawn :func:`scenario_chart_job`; drawn here when not given.
 
     Returns
     -------
@@ -160,8 +157,6 @@ def scenario_section(analysis, comparison: Comparison, units: str = "US",
         Key ``"scenarios"``.
     """
     s = analysis.project.settings
-    if chart is None:
-        chart = (job := scenario_chart_job(analysis, comparison, units)).figure(render_chart(job))
     blocks = [
         Paragraph(widest_sentence(comparison, units)),
         Paragraph("Each option is the calibrated well model with the changes listed, evaluated "
@@ -187,5 +182,5 @@ def scenario_section(analysis, comparison: Comparison, units: str = "US",
         for res, r in untold:
             blocks.append(Paragraph(f'"{r["scenario"]}": {cannot_tell_text(r, units)}. What '
                                     f"would tell: {'; '.join(res.would_tell.get(units, []))}."))
-    blocks.append(chart)
+    blocks.append(scenario_chart_figure(analysis, comparison, units))
     return Section("Options compared", tuple(blocks), "scenarios")
