@@ -252,7 +252,7 @@ def reversal_rate(fit: FitResult, zone: int) -> float:
         g = np.asarray(m.conductance, float)
         h0 = np.asarray(m.static_head, float)
         return float(max(np.sum(g * (h0 - h0[zone])), 0.0))
-    top = 2.0 * float(np.max(fit.problem.project.steps["rate"].astype(float), initial=1.0))
+    top = 2.0 * float(np.max(fit.problem.project.steps["rate"].to_numpy(float), initial=1.0))
     rates = np.linspace(0.0, top, 401)
     q = m.state(rates).zone_flow[:, zone]
     taking = rates[q < 0]

@@ -108,8 +108,9 @@ def widest_sentence(comparison: Comparison, units: str = "US") -> str:
     t = comparison.table
     told = ~t["cannot_tell"].astype(bool) if "cannot_tell" in t else pd.Series(True, t.index)
     untold = [f'"{n}"' for n in t.loc[~told, "scenario"]]
-    tail = (f" The data cannot tell whether {', '.join(untold)} would "
-            f"{'open a window' if len(untold) == 1 else 'open windows'}: see what would tell."
+    listed = untold[0] if len(untold) == 1 else ", ".join(untold[:-1]) + " or " + untold[-1] \
+        if untold else ""
+    tail = (f" The data cannot tell whether {listed} would open a window: see what would tell."
             if untold else "")
     if t.empty or not ((t["window_width"] > 0) & told).any() \
             and not ((t["n_intervals"] > 0) & told).any():
