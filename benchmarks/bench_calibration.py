@@ -42,6 +42,7 @@ def line(name: str, s) -> str:
             f"{pct(s.zone_coverage)} {ci(s.zone_ci):10s} n={s.zone_n:<4d}"
             f"{pct(s.band_coverage)} {ci(s.band_ci):10s} "
             f"{pct(s.band50_coverage)} {ci(s.band50_ci):10s} "
+            f"{pct(s.level_coverage)} {ci(s.level_ci):10s} "
             f"{s.stick_out:3d} {pct(s.stick_out_rate)} {ci(s.stick_out_ci):10s} "
             f"{pct(s.width_median)} {pct(s.width_min)} {s.width_under_70:3d}  "
             f"{s.seconds_median:5.2f} {s.seconds_max:6.2f}")
@@ -76,6 +77,7 @@ def main(argv=None) -> int:
     total = time.perf_counter() - t0
     head = (f"{'kind':8s} {'reps':>4s} {'fail':>4s} {'zone 90%':>6s} {'(95% CI)':10s} "
             f"{'checks':6s}{'band 90%':>6s} {'(95% CI)':10s} {'band 50%':>6s} {'(95% CI)':10s} "
+            f"{'level90':>6s} {'(95% CI)':10s} "
             f"{'out':>3s} {'rate':>6s} {'(95% CI)':10s} {'width':>6s} {'min':>6s} {'<70':>3s}  "
             f"{'s med':>5s} {'s max':>6s}")
     print()
@@ -86,12 +88,17 @@ def main(argv=None) -> int:
     print(line("all", summarise(scores, failures)))
     print("targets: zone and band 90% coverage 85-95%; band 50% coverage near 50%; stick-out "
           "<= 5% of replicates at alpha 0.05; width: as wide as the data allow (explain < 70%)")
+    print("level90: 90% band of the pumping level against the true level (target 85-95%)")
     print("band CIs count one trial per (replicate, analyte): rates of one replicate are "
           "strongly correlated")
     for s in scores:
         if s.stick_out:
             print(f"  stick-out: {s.kind} replicate {s.replicate}: reported rates outside the "
                   f"true window {', '.join(f'{r:g}' for r in s.stick_out_rates)} m3/d")
+    for s in scores:
+        if s.width_fraction < 0.7:
+            print(f"  width {100 * s.width_fraction:.0f}%: {s.kind} replicate {s.replicate}: "
+                  f"{s.reasons}")
     for s in scores:
         if not s.converged:
             print(f"  not converged (results still returned): {s.kind} replicate {s.replicate}")

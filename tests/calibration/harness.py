@@ -43,12 +43,18 @@ class Estimate:
     bands : dict analyte -> ndarray (4, n_rates)
         Quantiles 5 %, 25 %, 75 %, 95 % of the discharge concentration [mg/L].
     window_ok : ndarray of bool (n_rates,)
+    level_band : ndarray (2, n_rates) or None
+        5 % and 95 % quantiles of the pumping-level depth [m].
+    reasons : str
+        What ends the reported window (or why it is empty), for the notes.
     """
 
     zones: list
     rates: np.ndarray
     bands: dict
     window_ok: np.ndarray
+    level_band: np.ndarray | None = None
+    reasons: str = ""
 
     @classmethod
     def from_analysis(cls, a) -> Estimate:
@@ -59,7 +65,13 @@ class Estimate:
         bands = {an: q[:, :, j] for j, an in enumerate(pred.analytes)}
         zones = [(r.zone, r.analyte, r.verdict, float(r.lower), float(r.upper))
                  for r in a.zones.itertuples()]
-        return cls(zones, np.asarray(pred.rates, float), bands, np.asarray(a.window.ok, bool))
+        level = np.quantile(pred.pumping_level, [lo, hi], axis=0)
+        w = a.window
+        reasons = w.reason_empty if w.empty else " | ".join(
+            f"{low:g}-{high:g} m3/d: low end {lr}; high end {hr}"
+            for low, high, lr, hr in w.intervals)
+        return cls(zones, np.asarray(pred.rates, float), bands, np.asarray(w.ok, bool), level,
+                   reasons)
 
 
 @dataclass
@@ -73,11 +85,13 @@ class Score:
     zone_checks: list = field(default_factory=list)     # (zone, analyte, covered)
     band90: dict = field(default_factory=dict)          # analyte -> bool array over rates > 0
     band50: dict = field(default_factory=dict)
+    level90: np.ndarray | None = None                   # bool array over rates > 0
     stick_out: bool = False
     stick_out_rates: tuple = ()
     width_fraction: float = np.nan
     reported_points: int = 0
     true_points: int = 0
+    reasons: str = ""
 
 
 def score(well: Well, est: Estimate, kind: str = "", replicate: int = 0, seconds: float = 0.0,
@@ -99,6 +113,10 @@ def score(well: Well, est: Estimate, kind: str = "", replicate: int = 0, seconds
         t = truth_c[analyte][pos]
         out.band90[analyte] = (q[0, pos] <= t) & (t <= q[3, pos])
         out.band50[analyte] = (q[1, pos] <= t) & (t <= q[2, pos])
+    if est.level_band is not None:
+        t = well.pumping_level(rates[pos])
+        out.level90 = (est.level_band[0, pos] <= t) & (t <= est.level_band[1, pos])
+    out.reasons = est.reasons
     rep = est.window_ok & pos
     idx_true = np.flatnonzero(truth_ok)
     idx_rep = np.flatnonzero(rep)
@@ -190,6 +208,8 @@ class Summary:
     band_ci: tuple
     band50_coverage: float
     band50_ci: tuple
+    level_coverage: float
+    level_ci: tuple
     stick_out: int
     stick_out_rate: float
     stick_out_ci: tuple
@@ -208,6 +228,8 @@ def summarise(scores: list[Score], failures: list[Failure] = ()) -> Summary:
     n_cl = len(cl90)
     band = float(np.mean(cl90)) if n_cl else np.nan
     band50 = float(np.mean(cl50)) if n_cl else np.nan
+    lv = [float(s.level90.mean()) for s in scores if s.level90 is not None and s.level90.size]
+    level = float(np.mean(lv)) if lv else np.nan
     stick = sum(s.stick_out for s in scores)
     widths = np.array([s.width_fraction for s in scores], float)
     wf = widths[np.isfinite(widths)]
@@ -219,6 +241,7 @@ def summarise(scores: list[Score], failures: list[Failure] = ()) -> Summary:
         zone_ci=wilson(sum(zc), len(zc)),
         band_clusters=n_cl, band_coverage=band, band_ci=wilson(band * n_cl, n_cl),
         band50_coverage=band50, band50_ci=wilson(band50 * n_cl, n_cl),
+        level_coverage=level, level_ci=wilson(level * len(lv), len(lv)),
         stick_out=stick, stick_out_rate=stick / n if n else np.nan, stick_out_ci=wilson(stick, n),
         width_median=float(np.median(wf)) if len(wf) else np.nan,
         width_min=float(wf.min()) if len(wf) else np.nan,
