@@ -22,7 +22,7 @@ from harness import (
     summarise,
     wilson,
 )
-from truth import KINDS, Well, well_of, without_prior_noise, write_replicate
+from truth import KINDS, LOG_DEPTHS, Well, well_of, without_prior_noise, write_replicate
 
 # -- the generator ------------------------------------------------------------------------------
 
@@ -279,3 +279,30 @@ def test_pumping_level_bands_cover(measured):
     s = summarise(*measured)
     lo, _ = coverage_bounds(s.replicates - s.failures, 0.90)
     assert s.level_coverage >= lo, (s.level_coverage, lo)
+
+
+@pytest.mark.parametrize("kind", KINDS)
+def test_blendq_forward_model_reproduces_the_truth(kind, tmp_path):
+    """blendq's own forward model, given the true parameters, reproduces the independent
+    generator (discharge weights, pumping level, logged flows, depth composition): a
+    disagreement here would make every calibration figure meaningless."""
+    from blendq.inputs.loader import load_project
+    from blendq.well import mixing
+    from blendq.well.model import model_from_parameters
+
+    w = without_prior_noise(well_of(kind))
+    p = load_project(write_replicate(w, tmp_path / "rep", seed=1))
+    m = model_from_parameters(p, w.conductance, w.static_head, w.well_loss)
+    rates = w.rates[1:]
+    np.testing.assert_allclose(m.weights(rates), w.discharge_weights(rates), rtol=0, atol=1e-9)
+    np.testing.assert_allclose(m.pumping_level_depth(rates), w.pumping_level(rates),
+                               rtol=1e-10, atol=1e-9)
+    for q in (0.0, 500.0, 2600.0):
+        flows = m.state(np.array([q])).zone_flow[0]
+        depths = np.array(w.design.log_depths or LOG_DEPTHS)
+        np.testing.assert_allclose(mixing.wellbore_flow(flows, m.geometry, depths),
+                                   [w.upward_flow(q, z) for z in depths], rtol=1e-10, atol=1e-7)
+    for _, depth in w.design.depth_samples:
+        flows = m.state(np.array([1800.0])).zone_flow[0]
+        comp = mixing.wellbore_composition(flows, m.geometry, [depth])[0]
+        np.testing.assert_allclose(comp, w.wellbore_weights(1800.0, depth), rtol=0, atol=1e-9)
