@@ -306,3 +306,33 @@ def test_blendq_forward_model_reproduces_the_truth(kind, tmp_path):
         flows = m.state(np.array([1800.0])).zone_flow[0]
         comp = mixing.wellbore_composition(flows, m.geometry, [depth])[0]
         np.testing.assert_allclose(comp, w.wellbore_weights(1800.0, depth), rtol=0, atol=1e-9)
+
+
+def test_estimate_reads_the_analysis_as_reported(tmp_path):
+    """The harness scores the bands and window the analysis reports: its 90 % band equals the
+    sweep table's lower and upper columns, its window the reported one."""
+    from blendq.decide.analysis import analyse
+    from blendq.inputs.loader import load_project
+
+    w = well_of("logs")
+    a = analyse(load_project(write_replicate(w, tmp_path / "rep", seed=3)), draws=200, seed=3)
+    est = Estimate.from_analysis(a)
+    t = a.sweep_table
+    for analyte in ("nitrate", "arsenic"):
+        np.testing.assert_allclose(est.bands[analyte][0], t[f"{analyte}_lower"], rtol=1e-12)
+        np.testing.assert_allclose(est.bands[analyte][3], t[f"{analyte}_upper"], rtol=1e-12)
+    np.testing.assert_array_equal(est.window_ok, a.window.ok)
+    np.testing.assert_allclose(est.level_band[1], t["pumping_level_deep"], rtol=1e-12)
+    shown = a.zones[a.zones["verdict"] == "resolved"]
+    assert len([z for z in est.zones if z[2] == "resolved"]) == len(shown)
+
+
+@pytest.mark.parametrize("n", [12, 40, 160])
+def test_binomial_bounds_hold_their_tail_probabilities(n):
+    from scipy import stats
+
+    lo, hi = coverage_bounds(n, 0.9, 0.005)
+    assert stats.binom.cdf(round(lo * n) - 1, n, 0.9) <= 0.005
+    assert stats.binom.sf(round(hi * n), n, 0.9) <= 0.005
+    k = max_count(n, 0.05, 0.01)
+    assert stats.binom.sf(k, n, 0.05) <= 0.01 < stats.binom.sf(k - 1, n, 0.05)
