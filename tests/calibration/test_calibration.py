@@ -268,11 +268,6 @@ def test_prior_only_bands_are_not_far_too_wide(measured):
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(strict=True, reason=(
-    "measured 2026-12-02 on commit 391b0b7: pooled 90 % pumping-level band coverage 57 % "
-    "against a bound of 67 % (3 replicates per kind); with 20 replicates per kind 60 % "
-    "overall, 20 % for the prior-only well (predicted level about 1.2 m shallower than the "
-    "truth at 4,200 m3/d) and 42 % for the depth-sample well"))
 def test_pumping_level_bands_cover(measured):
     """The 90 % band of the predicted pumping level holds the true level; bound: the 0.5 %
     binomial quantile at one trial per replicate."""
