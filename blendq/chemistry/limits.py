@@ -180,6 +180,36 @@ def exceedance_given_mean(mean, threshold, log_sd: float) -> np.ndarray:
     return np.nan_to_num(p, nan=0.0, copy=False)
 
 
+def mean_threshold(threshold, log_sd: float, sample_probability: float):
+    """The mean concentration at which the judged statistic exceeds ``threshold`` with
+    probability ``sample_probability``.
+
+    With S lognormal of mean m and log-sd sigma (:func:`exceedance_given_mean`),
+    P(S > t | m) = beta at m* = t exp(sigma^2 / 2 - sigma z_(1-beta)), z the standard normal
+    quantile; P(S > t | m) > beta exactly when m > m*. With sigma = 0, m* = t.
+
+    Parameters
+    ----------
+    threshold : float or array_like
+        t [mg/L] (or a dimensionless ratio-rule sum).
+    log_sd : float
+        sigma [-].
+    sample_probability : float
+        beta, in (0, 1) [-].
+
+    Returns
+    -------
+    float or ndarray
+        m* [same unit as ``threshold``].
+    """
+    from scipy.stats import norm
+
+    if log_sd <= 0:
+        return np.asarray(threshold, float) * 1.0
+    z = float(norm.ppf(1.0 - sample_probability))
+    return np.asarray(threshold, float) * np.exp(0.5 * log_sd**2 - log_sd * z)
+
+
 _CONFIRMATION = ComplianceBasis(SINGLE_SAMPLE, 2, "40 CFR 141.23", "secondary")
 _CONFIRMATION_LIKE_NITRATE = ComplianceBasis(
     SINGLE_SAMPLE, 2, "the nitrate rule of 40 CFR 141.23, taken for this analyte",

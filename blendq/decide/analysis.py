@@ -146,9 +146,10 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
     caveat = (f" Provisional: the fit does not reproduce {n_out} lab result(s); see the notes."
               if n_out else "")
     return (f"Operate between {' and between '.join(parts)}; recommended rate {rec} "
-            f"(every limit's judged statistic below {s.margin:.0%} of the limit with at least "
-            f"{1 - s.exceedance_probability:.0%} probability, pumping level above the intake "
-            f"plus submergence).{caveat}")
+            f"(with {1 - s.exceedance_probability:.0%} confidence, each limit's judged "
+            f"statistic stays below {s.margin:.0%} of the limit in at least "
+            f"{1 - s.sample_exceedance_probability:.0%} of samples, and the pumping level "
+            f"above the intake plus submergence).{caveat}")
 
 
 def richest_source(zones: pd.DataFrame, analyte: str) -> str | None:

@@ -8,10 +8,15 @@ uppermost zone), within the pump's rate range. It may be several intervals.
 
 S is the statistic the limit is judged on (its :class:`~blendq.chemistry.limits.ComplianceBasis`:
 a single sample, averaged with its confirmation sample where the rule has one, or the annual
-mean of quarterly samples). For each Monte Carlo draw of the mean discharge concentration m,
-P(S > t | m) is a lognormal tail that carries the water's temporal variability and the lab's
-error (:func:`~blendq.chemistry.limits.exceedance_given_mean`); the exceedance probability is
-its average over the draws (the predictive distribution of S).
+mean of quarterly samples). Given the mean discharge concentration m, P(S > t | m) is a
+lognormal tail that carries the water's temporal variability and the lab's error
+(:func:`~blendq.chemistry.limits.exceedance_given_mean`). A rate is compliant when that
+probability is at most beta (``settings.sample_exceedance_probability``), that is when
+m <= m*(t) (:func:`~blendq.chemistry.limits.mean_threshold`); the window keeps the rates where
+the posterior probability of m > m* is at most alpha. So the window is a statement with
+confidence 1 - alpha about the well's water, not a prediction averaged over what the data do
+not know: with calibrated draws it sticks out of the true window at a rate no more often than
+alpha, whatever the share of the spread that is lab error or temporal variability.
 """
 
 from __future__ import annotations
@@ -22,7 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from blendq.chemistry.limits import Limit, RatioRule, exceedance_given_mean
+from blendq.chemistry.limits import Limit, RatioRule, mean_threshold
 from blendq.fit.estimation import FitResult
 from blendq.fit.uncertainty import Draws, Prediction, predict
 from blendq.well.model import elapsed_test_time, horizon_factor
@@ -129,6 +134,9 @@ class Statistic:
     lab_cv : float
         Relative one-sd lab error of a compliance result [-].
     lab_cv_source : str
+    sample_probability : float
+        beta: the largest tolerated probability that the statistic exceeds a threshold [-]
+        (``settings.sample_exceedance_probability``).
     """
 
     analyte: str
@@ -137,6 +145,7 @@ class Statistic:
     temporal_cv_source: str
     lab_cv: float
     lab_cv_source: str
+    sample_probability: float = 0.05
 
     @property
     def log_sd(self) -> float:
@@ -158,7 +167,8 @@ class Statistic:
                 "description": b.describe(), "rule": b.rule(), "citation": b.citation,
                 "status": b.status, "temporal_cv": self.temporal_cv,
                 "temporal_cv_source": self.temporal_cv_source, "lab_cv": self.lab_cv,
-                "lab_cv_source": self.lab_cv_source, "log_sd": self.log_sd}
+                "lab_cv_source": self.lab_cv_source, "log_sd": self.log_sd,
+                "sample_exceedance_probability": self.sample_probability}
 
 
 def lab_relative_error(samples: pd.DataFrame, analyte: str, default: float) -> tuple[float, str]:
@@ -194,28 +204,37 @@ def compliance_statistics(project, limits: dict[str, Limit]) -> dict[str, Statis
         cv, cv_source = s.temporal_cv_for(analyte)
         lab, lab_source = lab_relative_error(project.samples, analyte,
                                              s.default_relative_uncertainty)
-        out[analyte] = Statistic(analyte, lim, cv, cv_source, lab, lab_source)
+        out[analyte] = Statistic(analyte, lim, cv, cv_source, lab, lab_source,
+                                 s.sample_exceedance_probability)
     return out
 
 
-def exceedance(concentration, threshold: float, log_sd: float = 0.0) -> np.ndarray:
-    """Predictive probability that the judged statistic exceeds ``threshold`` at each rate.
+def exceedance(concentration, threshold: float, log_sd: float = 0.0,
+               sample_probability: float = 0.05) -> np.ndarray:
+    """Posterior probability that the judged statistic exceeds ``threshold`` more often than
+    ``sample_probability`` allows, at each rate.
 
     Parameters
     ----------
     concentration : ndarray (n_draws, n_rates)
         Mean discharge concentration of each draw [mg/L].
     threshold : float
-        [mg/L], e.g. margin x limit.
+        t [mg/L], e.g. margin x limit.
     log_sd : float
         Spread of the statistic around the mean (:attr:`Statistic.log_sd`); 0 judges the mean.
+    sample_probability : float
+        beta [-]: a draw counts when P(S > t | its mean) > beta, that is when its mean exceeds
+        :func:`~blendq.chemistry.limits.mean_threshold`.
 
     Returns
     -------
     ndarray (n_rates,)
-        The average over draws of P(S > threshold | mean) [-].
+        The share of draws whose mean exceeds m*(t) [-]; with ``log_sd`` 0, the share whose
+        mean exceeds t.
     """
-    return exceedance_given_mean(concentration, threshold, log_sd).mean(0)
+    c = np.asarray(concentration, float)
+    with np.errstate(invalid="ignore"):
+        return (c > mean_threshold(threshold, log_sd, sample_probability)).mean(0)
 
 
 def statistic_quantiles(concentration, probs, log_sd: float, iterations: int = 48) -> np.ndarray:
@@ -269,6 +288,11 @@ def statistic_quantiles(concentration, probs, log_sd: float, iterations: int = 4
     out = np.exp(0.5 * (lo + hi))
     out = np.where(zero_frac[None, :] >= probs[:, None], 0.0, out)
     return np.where(n[None, :] > 0, out, np.nan)
+
+
+def _sample_probability(statistics: dict[str, Statistic] | None) -> float:
+    """beta of the project (every statistic carries the same setting)."""
+    return next(iter(statistics.values())).sample_probability if statistics else 0.05
 
 
 def rule_log_sd(rule: RatioRule, statistics: dict[str, Statistic] | None) -> float:
@@ -329,14 +353,16 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
         if analyte not in limits:
             continue
         thr = margin * limits[analyte].canonical()
-        sd = statistics[analyte].log_sd if analyte in statistics else 0.0
-        p_exc = exceedance(pred.concentration[:, :, j], thr, sd)
+        st = statistics.get(analyte)
+        p_exc = exceedance(pred.concentration[:, :, j], thr, st.log_sd if st else 0.0,
+                           st.sample_probability if st else 0.05)
         crit.append(Criterion(f"{analyte} (P > {margin:g} x limit above {alpha:g})",
                               p_exc <= alpha, "quality"))
     for rule in ratio_rules:
         total = sum(pred.concentration[:, :, pred.analytes.index(t.analyte)] / t.canonical()
                     for t in rule.terms)
-        p_exc = exceedance(total, margin, rule_log_sd(rule, statistics))
+        p_exc = exceedance(total, margin, rule_log_sd(rule, statistics),
+                           _sample_probability(statistics))
         crit.append(Criterion(f"{rule.authority} {rule.name} (P > {margin:g} above {alpha:g})",
                               p_exc <= alpha, "quality"))
     crit.extend(extra_criteria)
@@ -508,9 +534,11 @@ def sweep_table(pred: Prediction, limits: dict[str, Limit], margin: float, inter
         data[f"{a}_upper"] = cq[2, :, j]
         if a in limits:
             sd = statistics[a].log_sd if a in statistics else 0.0
+            beta = statistics[a].sample_probability if a in statistics else 0.05
             c = pred.concentration[:, :, j]
-            data[f"{a}_p_exceed_margin"] = exceedance(c, margin * limits[a].canonical(), sd)
-            data[f"{a}_p_exceed_limit"] = exceedance(c, limits[a].canonical(), sd)
+            data[f"{a}_p_exceed_margin"] = exceedance(c, margin * limits[a].canonical(), sd,
+                                                      beta)
+            data[f"{a}_p_exceed_limit"] = exceedance(c, limits[a].canonical(), sd, beta)
             if a in statistics:
                 sq = statistic_quantiles(c, [q[0], q[2]], sd)
                 data[f"{a}_statistic_lower"], data[f"{a}_statistic_upper"] = sq[0], sq[1]

@@ -23,7 +23,6 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy import stats
 
-from blendq.chemistry.limits import exceedance_given_mean
 from blendq.errors import ModelError
 from blendq.fit import constrained_lsq as qp
 from blendq.fit.estimation import FitResult, Problem, row_weights, scaled_pinv, solve_concentrations
@@ -622,8 +621,7 @@ class PredictionSummary:
 
 def predict_summary(fit: FitResult, draws: Draws, rates, probs=(0.05, 0.5, 0.95),
                     thresholds=None, conductance_factor=None, changes: Callable | None = None,
-                    shares: bool = False, chunk_points: int = 100_000,
-                    log_sd=None) -> PredictionSummary:
+                    shares: bool = False, chunk_points: int = 100_000) -> PredictionSummary:
     """Quantiles and exceedance probabilities over draws at every rate, in chunks of rates.
 
     The same numbers as :func:`predict` followed by quantiles over its draws, without holding
@@ -646,18 +644,12 @@ def predict_summary(fit: FitResult, draws: Draws, rates, probs=(0.05, 0.5, 0.95)
         Also return the median discharge weights.
     chunk_points : int
         Largest number of (draw, rate) points computed at once.
-    log_sd : array_like, broadcast to (n_thresholds, n_analytes), optional
-        Spread of the judged statistic around the mean concentration
-        (:func:`blendq.chemistry.limits.statistic_log_sd`); the exceedance is then the average
-        over draws of the lognormal tail P(S > threshold | mean). Default 0: the fraction of
-        draws whose mean exceeds.
     """
     rates = np.asarray(rates, float)
     probs = np.asarray(probs, float)
     model = draws_model(fit, draws, conductance_factor, changes)
     n_a = draws.zone_values.shape[-1]
     thr = np.zeros((0, n_a)) if thresholds is None else np.atleast_2d(np.asarray(thresholds, float))
-    sd = np.broadcast_to(np.asarray(0.0 if log_sd is None else log_sd, float), thr.shape)
     n_r = len(rates)
     conc_q = np.empty((len(probs), n_r, n_a))
     exc = np.empty((len(thr), n_r, n_a))
@@ -683,8 +675,7 @@ def predict_summary(fit: FitResult, draws: Draws, rates, probs=(0.05, 0.5, 0.95)
                 conc = sum(w[i] * zv[:, i, a] for i in range(g.shape[1]))
                 conc_q[:, lo:lo + step, a] = np.quantile(conc, probs, axis=1)
                 for t in range(len(thr)):
-                    exc[t, lo:lo + step, a] = exceedance_given_mean(conc, thr[t, a],
-                                                                    sd[t, a]).mean(1)
+                    exc[t, lo:lo + step, a] = (conc > thr[t, a]).mean(1)
             level = c_well * r**2 - hw
             level_q[:, lo:lo + step] = np.quantile(level, probs, axis=1)
         return PredictionSummary(rates, probs, conc_q, exc, level_q, None, list(draws.analytes))
@@ -696,8 +687,7 @@ def predict_summary(fit: FitResult, draws: Draws, rates, probs=(0.05, 0.5, 0.95)
         conc_q[:, lo:lo + step] = np.quantile(conc, probs, axis=0)
         for t in range(len(thr)):
             for a in range(n_a):
-                exc[t, lo:lo + step, a] = exceedance_given_mean(conc[..., a], thr[t, a],
-                                                                sd[t, a]).mean(0)
+                exc[t, lo:lo + step, a] = (conc[..., a] > thr[t, a]).mean(0)
         level_q[:, lo:lo + step] = np.quantile(model.pumping_level_depth(r, state), probs, axis=0)
         if shares:
             share_med[lo:lo + step] = np.median(w, axis=0)

@@ -167,7 +167,12 @@ class Settings:
         Operating margin as a fraction of each limit (0.8 = stay under 80 % of the limit).
         A utility's policy, not a rule.
     exceedance_probability : float
-        Largest acceptable probability of exceeding margin x limit (alpha).
+        alpha: largest acceptable posterior probability that a rate is not compliant, the
+        confidence of the window being 1 - alpha.
+    sample_exceedance_probability : float
+        beta: a rate is compliant when the statistic a limit is judged on (a compliance sample
+        with its confirmation, or an annual mean) exceeds margin x limit with probability at
+        most beta [-]. A utility's policy, like the margin (common practice: 0.05).
     interval : float
         Central probability of reported intervals (0.90).
     horizon : float
@@ -225,6 +230,7 @@ class Settings:
     limit_sets: tuple[str, ...] = ("US-EPA",)
     margin: float = 0.8
     exceedance_probability: float = 0.05
+    sample_exceedance_probability: float = 0.05
     interval: float = 0.90
     horizon: float = 365.0
     rate_grid_points: int = 121

@@ -292,6 +292,8 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
         margin=float(s.number("margin", d.margin, **fraction)),
         exceedance_probability=float(s.number("exceedance_probability",
                                               d.exceedance_probability, 0.0, 0.5, True)),
+        sample_exceedance_probability=float(s.number(
+            "sample_exceedance_probability", d.sample_exceedance_probability, 0.0, 0.5, True)),
         interval=float(s.number("interval", d.interval, **fraction, open_high=True)),
         horizon=s.quantity("horizon", "time", d.horizon),
         rate_grid_points=s.number("rate_grid_points", d.rate_grid_points, 3, 100_000,

@@ -149,7 +149,8 @@ def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
         lim = a.limits.get(analyte)
         st = stats.get(analyte)
         sd = st.log_sd if st is not None else 0.0
-        p = float(exceedance(c, s.margin * lim.canonical(), sd)[0]) if lim else np.nan
+        beta = st.sample_probability if st is not None else s.sample_exceedance_probability
+        p = float(exceedance(c, s.margin * lim.canonical(), sd, beta)[0]) if lim else np.nan
         if st is not None:
             (slo, shi), _ = conc_display(analyte, statistic_quantiles(c, [q[0], q[2]], sd)[:, 0])
             judged = f"{st.limit.compliance.describe()}: {slo:.3g} to {shi:.3g} {unit}"

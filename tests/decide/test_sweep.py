@@ -23,6 +23,7 @@ import pytest
 import synthetic_wells as sw
 from hypothesis import given
 from hypothesis import strategies as st
+from scipy.stats import lognorm
 from scipy.stats import norm as stats_norm
 
 from blendq.chemistry.limits import (
@@ -32,6 +33,8 @@ from blendq.chemistry.limits import (
     SINGLE_SAMPLE,
     ComplianceBasis,
     Limit,
+    exceedance_given_mean,
+    mean_threshold,
 )
 from blendq.decide import sweep
 from blendq.fit import uncertainty
@@ -304,10 +307,28 @@ def test_variability_raises_the_exceedance_of_a_mean_below_the_threshold(mean, c
     # judged on the mean, a mean below the threshold never exceeds; a sample of it may
     c = np.full((5, 1), mean)
     for basis in (CONFIRMATION, ANNUAL):
-        p = sweep.exceedance(c, 8.0, basis.log_sd(cv, lab))[0]
+        p = exceedance_given_mean(c, 8.0, basis.log_sd(cv, lab)).mean(0)[0]
         assert 0.0 == (c > 8.0).mean() < p < 0.5
     # a single sample (one temporal draw) spreads more than the mean of four quarters
     assert CONFIRMATION.log_sd(cv, lab) > ANNUAL.log_sd(cv, lab)
+
+
+@given(mean=st.floats(0.5, 20.0), sd=st.one_of(st.just(0.0), st.floats(1e-3, 1.0)),
+       beta=st.floats(0.001, 0.5))
+def test_the_window_counts_draws_whose_statistic_exceeds_too_often(mean, sd, beta):
+    # a draw counts against a rate when P(S > t | its mean) > beta; mean_threshold is the mean
+    # at which that probability is beta exactly (the lognormal tail: scipy.stats.lognorm)
+    t = 8.0
+    m_star = mean_threshold(t, sd, beta)
+    if sd > 0:
+        tail = lognorm.sf(t, sd, scale=m_star * np.exp(-0.5 * sd**2))
+        assert tail == pytest.approx(beta, rel=1e-9)
+    else:
+        assert m_star == t
+    c = np.array([[mean * 0.9], [mean], [mean * 1.1]])
+    expected = (exceedance_given_mean(c, t, sd) > beta).mean(0)
+    if not np.any(np.isclose(c, m_star, rtol=1e-9)):  # exactly on the edge: either side
+        np.testing.assert_array_equal(sweep.exceedance(c, t, sd, beta), expected)
 
 
 def test_variability_closes_rates_the_mean_allows():
@@ -323,8 +344,13 @@ def test_variability_closes_rates_the_mean_allows():
                                statistics=stats)
     assert w.empty and QUALITY in w.reason_empty
     assert not _window(pred).empty
+    # every draw's statistic exceeds 8 mg/L in 9.4 % of samples, more than beta = 5 %
     table = sweep.sweep_table(pred, LIMITS, 0.8, 0.9, ["a", "b"], stats)
-    np.testing.assert_allclose(table["nitrate_p_exceed_margin"], expected, rtol=1e-12)
+    np.testing.assert_array_equal(table["nitrate_p_exceed_margin"], 1.0)
+    # a tolerance of 10 % of samples above the margin lets every rate through
+    loose = {"nitrate": replace(stats["nitrate"], sample_probability=0.10)}
+    assert not sweep.operating_window(pred, LIMITS, 0.8, 0.05, 60.0, 5.0, 0.0, np.inf,
+                                      statistics=loose).empty
     # the ratio rules take the spread of their terms too
     assert sweep.rule_log_sd(RATIO_RULES["WHO"][0], stats) > 0.0
 
@@ -347,7 +373,7 @@ def test_average_of_two_against_a_monte_carlo_of_the_rule(mean, cv, lab):
     t = factor(cv, n)
     x1, x2 = mean * t * factor(lab, n), mean * t * factor(lab, n)
     mc = np.mean((x1 + x2) / 2 > thr)
-    got = sweep.exceedance(np.array([[mean]]), thr, CONFIRMATION.log_sd(cv, lab))[0]
+    got = exceedance_given_mean(np.array([mean]), thr, CONFIRMATION.log_sd(cv, lab))[0]
     assert got == pytest.approx(mc, abs=0.004)
     # the full rule confirms only a first sample above the threshold: never more often than
     # the average alone, so judging the average is on the safe side
@@ -355,7 +381,7 @@ def test_average_of_two_against_a_monte_carlo_of_the_rule(mean, cv, lab):
     # four quarterly samples: independent temporal and lab factors, averaged
     q = mean * factor(cv, (n, 4)) * factor(lab, (n, 4))
     mc4 = np.mean(q.mean(1) > 0.9 * mean)
-    got4 = sweep.exceedance(np.array([[mean]]), 0.9 * mean, ANNUAL.log_sd(cv, lab))[0]
+    got4 = exceedance_given_mean(np.array([mean]), 0.9 * mean, ANNUAL.log_sd(cv, lab))[0]
     assert got4 == pytest.approx(mc4, abs=0.006)
 
 
@@ -370,28 +396,28 @@ def test_statistic_quantiles_invert_the_mixture():
     # at each quantile the average over draws of the lognormal CDF is the probability
     for k, p in enumerate([0.05, 0.5, 0.95]):
         for r in (1, 2, 3):
-            cdf = 1.0 - sweep.exceedance(c[:, r:r + 1], q[k, r], s)[0]
+            cdf = 1.0 - exceedance_given_mean(c[:, r], q[k, r], s).mean()
             assert cdf == pytest.approx(p, abs=1e-9)
     # zero spread: the quantiles of the draws
     np.testing.assert_allclose(sweep.statistic_quantiles(c[:, 1:], [0.1, 0.9], 0.0),
                                np.quantile(c[:, 1:], [0.1, 0.9], axis=0), rtol=1e-12)
 
 
-def test_predict_summary_takes_the_spread_of_the_statistic(fitted):
+def test_predict_summary_counts_draws_above_each_threshold(fitted):
     result, draws = fitted
     rates = np.linspace(100.0, 1500.0, 9)
     pred = uncertainty.predict(result, draws, rates)
-    thr = np.array([[8.0, 0.008], [10.0, 0.010]])
+    # thresholds on the mean, as the window uses them (mean_threshold of each statistic)
     sd = np.array([CONFIRMATION.log_sd(0.1, 0.05), ANNUAL.log_sd(0.1, 0.05)])
+    thr = np.array([[mean_threshold(8.0, sd[0], 0.05), mean_threshold(0.008, sd[1], 0.05)],
+                    [10.0, 0.010]])
     for shares in (False, True):  # the fast path and the general one
-        summ = uncertainty.predict_summary(result, draws, rates, thresholds=thr, log_sd=sd,
+        summ = uncertainty.predict_summary(result, draws, rates, thresholds=thr,
                                            shares=shares, chunk_points=500)
         for t in range(2):
             for a in range(2):
-                np.testing.assert_allclose(
-                    summ.exceedance[t, :, a],
-                    sweep.exceedance(pred.concentration[:, :, a], thr[t, a], sd[a]),
-                    rtol=1e-10, atol=1e-14)
+                np.testing.assert_array_equal(
+                    summ.exceedance[t, :, a], (pred.concentration[:, :, a] > thr[t, a]).mean(0))
 
 
 def test_lab_error_of_a_compliance_result():
