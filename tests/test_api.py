@@ -85,7 +85,7 @@ def test_demo_path_is_the_shipped_demo():
 def test_units_in_column_names(result, si):
     p = result.predict("400 gpm")
     for name in ("rate [gpm]", "nitrate median [mg/L as N]", "nitrate lower [mg/L as N]",
-                 "arsenic upper [ug/L]", "nitrate P(above 80% of limit) [-]",
+                 "arsenic upper [ug/L]", "nitrate P(above 90% of limit) [-]",
                  "pumping level median [ft depth]", "share Upper sand [-]"):
         assert name in p.columns
     assert "rate [m3/d]" in si.predict(400).columns

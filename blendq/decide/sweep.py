@@ -342,9 +342,10 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
     extra_criteria : sequence of Criterion
         Further conditions on the same rate grid (see :func:`measured_exceedances`).
     statistics : dict analyte -> Statistic, optional
-        The statistic each limit is judged on (:func:`compliance_statistics`); P(S > margin x
-        limit) is its predictive probability. An analyte without one is judged on the mean
-        (the share of draws whose mean exceeds).
+        The statistic each limit is judged on (:func:`compliance_statistics`); a draw counts
+        against a rate when its statistic exceeds margin x limit in more than beta of samples
+        (:func:`exceedance`). An analyte without one is judged on the mean (the share of draws
+        whose mean exceeds).
     """
     rates = pred.rates
     statistics = statistics or {}
@@ -518,8 +519,9 @@ def sweep_table(pred: Prediction, limits: dict[str, Limit], margin: float, inter
     """A long-format table of the sweep: one row per rate (base units).
 
     Columns: per analyte the median and band of the mean concentration (``<a>_median``,
-    ``<a>_lower``, ``<a>_upper``); where a limit applies, the predictive probability that the
-    judged statistic exceeds margin x limit and the limit (``<a>_p_exceed_margin``,
+    ``<a>_lower``, ``<a>_upper``); where a limit applies, the posterior probability that the
+    judged statistic exceeds margin x limit (and the limit) in more than beta of samples
+    (:func:`exceedance`; ``<a>_p_exceed_margin``,
     ``<a>_p_exceed_limit``), and, when ``statistics`` are given, the band of the judged
     statistic (``<a>_statistic_lower``, ``<a>_statistic_upper``); the pumping level; the
     median share of each zone.

@@ -136,7 +136,8 @@ def compliance_table(a: Analysis) -> pd.DataFrame:
 
 def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
     """Predicted quality and level at one rate: median and band of the mean, and the
-    probability that the judged statistic exceeds margin x limit."""
+    posterior probability that the judged statistic exceeds margin x limit in more than beta
+    of samples."""
     k = int(np.argmin(np.abs(a.prediction.rates - rate)))
     s = a.project.settings
     q = [(1 - s.interval) / 2, 0.5, 1 - (1 - s.interval) / 2]
@@ -330,7 +331,8 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
                              f"{lim.compliance.describe()}"
                              for k, lim in sorted(a.limits.items())) or "none"),
         ("Margin", f"{s.margin:.0%} of each limit"),
-        ("Accepted exceedance probability", f"{s.exceedance_probability:.0%}"),
+        ("Samples that may exceed the margin (beta)", f"{s.sample_exceedance_probability:.0%}"),
+        ("Confidence of the window (1 - alpha)", f"{1 - s.exceedance_probability:.0%}"),
         ("Monte Carlo draws / seed", f"{a.draws.n_draws} / {a.draws.seed}"),
     ])
     zones_geo = pd.DataFrame([{"Zone": z.name,
@@ -384,10 +386,12 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
         Section("Operating window", (
             Table(window_display_table(a, units), "Rates that meet every criterion."),
             Table(compliance_table(a),
-                  "The statistic each limit is judged on. The window asks that the probability "
-                  "of this statistic exceeding margin x limit stay at or below the accepted "
-                  "exceedance probability. The temporal CV should be estimated from the well's "
-                  "monitoring history where one exists."),
+                  "The statistic each limit is judged on. At a rate in the window, with "
+                  f"{1 - a.project.settings.exceedance_probability:.0%} confidence, this "
+                  "statistic exceeds margin x limit in at most "
+                  f"{a.project.settings.sample_exceedance_probability:.0%} of samples. The "
+                  "temporal CV should be estimated from the well's monitoring history where "
+                  "one exists."),
             Table(at_rate_table(a, rec_rate, units),
                   f"Predicted discharge at {format_quantity(rec_rate, 'rate', units)}."),
         ), "window"),

@@ -76,7 +76,7 @@ def test_limit_and_margin_lines(setup):
     margin = _lines(ax, "margin")[0].get_ydata()[0]
     # US-EPA nitrate MCL 10 mg/L as N (40 CFR 141.62)
     np.testing.assert_allclose(limit, 10.0, rtol=1e-12)
-    np.testing.assert_allclose(margin, 0.8 * 10.0, rtol=1e-12)
+    np.testing.assert_allclose(margin, a.project.settings.margin * 10.0, rtol=1e-12)
 
 
 def test_window_strip_bars_match_each_window(setup):
