@@ -57,7 +57,7 @@ def test_png_resolution_and_no_version_stamp() -> None:
 #: ``blendq report`` on the demo project, with the zone-share chart replaced by argv[2]:
 #: "error" raises while drawing, "sigint" sends this process a real SIGINT (Ctrl-C)
 DRIVER = """
-import os, signal, sys
+import os, signal, sys, time
 
 import blendq.report.charts.quality as quality
 
@@ -67,6 +67,7 @@ out, what = sys.argv[1], sys.argv[2]
 def zone_shares(*args, **kwargs):
     if what == "sigint":
         os.kill(os.getpid(), signal.SIGINT)
+        time.sleep(60)  # the interrupt is delivered here (asynchronously, even under load)
     raise RuntimeError("the zone-share chart broke")
 
 
