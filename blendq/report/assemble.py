@@ -38,6 +38,13 @@ REFERENCES = [
     "Walton, W.C. (1962) Selected analytical methods for well and aquifer evaluation. Illinois "
     "State Water Survey Bulletin 49.",
     "Golub, G.H. and Pereyra, V. (1973) SIAM J. Numer. Anal. 10(2), 413-432 (variable projection).",
+    "Oliver, D.S., He, N. and Reynolds, A.C. (1996) Conditioning permeability fields to pressure "
+    "data. Proc. 5th European Conference on the Mathematics of Oil Recovery (randomised maximum "
+    "likelihood).",
+    "Kitanidis, P.K. (1995) Quasi-linear geostatistical theory for inversing. Water Resources "
+    "Research 31(10), 2411-2419.",
+    "Birge, R.T. (1932) The calculation of errors by the method of least squares. Physical "
+    "Review 40, 207-227.",
     "Paillet, F.L. (1998) Water Resources Research 34(5), 997-1010 (flow-log analysis).",
     "Konikow, L.F., Hornberger, G.Z., Halford, K.J. and Hanson, R.T. (2009) Revised multi-node "
     "well (MNW2) package for MODFLOW. USGS Techniques and Methods 6-A30.",
@@ -333,7 +340,7 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
         ("Margin", f"{s.margin:.0%} of each limit"),
         ("Samples that may exceed the margin (beta)", f"{s.sample_exceedance_probability:.0%}"),
         ("Confidence of the window (1 - alpha)", f"{1 - s.exceedance_probability:.0%}"),
-        ("Monte Carlo draws / seed", f"{a.draws.n_draws} / {a.draws.seed}"),
+        ("Posterior draws / seed", f"{a.draws.n_draws} / {a.draws.seed}"),
     ])
     zones_geo = pd.DataFrame([{"Zone": z.name,
                                "Top": format_quantity(z.top, "length", units),
@@ -410,15 +417,20 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
                       "Wellbore mixing: upwind mass balance along the well. Zone "
                       "concentrations: weighted, bounded and censored least squares; hydraulics "
                       "by variable projection with scipy least_squares on flow-log, level, "
-                      "prior and quality residuals. Uncertainty: linearised covariance and a "
-                      "seeded Monte Carlo refit. Window: P(S > margin x limit) <= alpha for "
-                      "every analyte, S the statistic its limit is judged on (a single sample "
-                      "averaged with its confirmation sample, or the annual mean of quarterly "
-                      "samples), each draw's mean concentration times a lognormal factor for "
-                      "temporal variability and lab error, averaged over the draws; pumping level above intake plus submergence, pump range; "
-                      "rates near a step whose sample exceeded margin x limit are left out "
-                      "whatever the model says; a fit that misses a lab result by more than "
-                      "3 standard deviations makes the decision provisional."),
+                      "prior and quality residuals. Uncertainty: seeded posterior draws by "
+                      "randomised maximum likelihood (every datum and prior perturbed by its "
+                      "stated error, each draw refitted in full), data groups that the best fit "
+                      "misses widened by their Birge ratio, zone values the data cannot pin "
+                      "spread over what the data allow. Window: for every analyte, S the "
+                      "statistic its limit is judged on (a single sample averaged with its "
+                      "confirmation sample, or the annual mean of quarterly samples; the mean "
+                      "concentration times a lognormal factor for temporal variability and lab "
+                      "error), the share of draws for which P(S > margin x limit) exceeds beta "
+                      "is at most alpha; pumping level above intake plus submergence, pump "
+                      "range; the rates a step's sample speaks for are left out when it "
+                      "exceeded margin x limit, whatever the model says; a fit that misses a "
+                      "lab result by more than 3 standard deviations makes the decision "
+                      "provisional."),
             BulletList(REFERENCES),
             Paragraph(f"blendq {__version__}."),
         ), "methods"),
