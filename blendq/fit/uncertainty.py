@@ -531,7 +531,7 @@ def draws_model(fit: FitResult, draws: Draws, conductance_factor=None,
     changes applied: what :func:`predict` and :func:`predict_summary` evaluate."""
     model = fit.problem.model(draws.theta)
     if conductance_factor is not None:
-        model = model.with_changes(conductance=model.conductance * np.asarray(conductance_factor))
+        model = model.at_horizon(conductance_factor)
     if changes is not None:
         model = changes(model)
     return model
@@ -577,7 +577,8 @@ def predict(fit: FitResult, draws: Draws, rates, conductance_factor=None,
     draws : Draws
     rates : array_like (n_rates,) [m^3/d]
     conductance_factor : array_like (n_zones,), optional
-        Multiplies every zone conductance (for example G(horizon)/G(test)).
+        Scales each zone's response to pumping, the ambient crossflow held (G(horizon)/G(test);
+        :meth:`blendq.well.model.WellModel.at_horizon`).
     changes : callable(WellModel) -> WellModel, optional
         Applied to the batched model before prediction (scenarios).
     """
