@@ -25,7 +25,7 @@ import pandas as pd
 from blendq.chemistry.limits import Limit, RatioRule, exceedance_given_mean
 from blendq.fit.estimation import FitResult
 from blendq.fit.uncertainty import Draws, Prediction, predict
-from blendq.well.model import elapsed_test_time, horizon_factor
+from blendq.well.model import elapsed_test_time, horizon_factor, operating_geometry
 
 
 @dataclass(frozen=True)
@@ -94,13 +94,21 @@ def rate_grid(fit: FitResult, points: int | None = None, rate_max: float | None 
 
 def sweep(fit: FitResult, draws: Draws, rates=None, horizon: float | None = None,
           changes=None) -> Prediction:
-    """Predictions over the rate grid at the operating horizon (conductances scaled by
-    Cooper-Jacob from the test duration to the horizon where storativity is known)."""
+    """Predictions over the rate grid for operation: at the operating horizon (each zone's
+    response scaled by its horizon factor, the ambient crossflow held; docs/methods.md,
+    section 1) and with the operating intake (``well.operating_intake_depth``), then the
+    scenario's ``changes``."""
     project = fit.problem.project
     rates = rate_grid(fit) if rates is None else np.asarray(rates, float)
     horizon = project.settings.horizon if horizon is None else horizon
     factor = horizon_factor(project, elapsed_test_time(project), horizon)
-    return predict(fit, draws, rates, conductance_factor=factor, changes=changes)
+    geometry = operating_geometry(project)
+
+    def operate(model):
+        model = model.with_changes(geometry=geometry)
+        return model if changes is None else changes(model)
+
+    return predict(fit, draws, rates, conductance_factor=factor, changes=operate)
 
 
 def governing_limits(limits: list[Limit], analytes: list[str]) -> dict[str, Limit]:
@@ -478,7 +486,7 @@ def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
     return operating_window(
         pred, limits, s.margin if margin is None else margin,
         s.exceedance_probability if alpha is None else alpha,
-        w.pump_intake_depth, w.submergence, w.rate_min, w.rate_max, w.demand,
+        w.operating_intake, w.submergence, w.rate_min, w.rate_max, w.demand,
         float(project.zone_top.min()) if w.keep_above_screen else None, level_deep=level_deep,
         ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
         extra_criteria=measured_exceedances(fit, limits, s.margin if margin is None else margin,

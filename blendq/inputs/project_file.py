@@ -194,6 +194,8 @@ def _well(doc: dict, label: str) -> Well:
         datum=s.text("datum", d.datum),
         well_radius=s.quantity("well_radius", "length"),
         pump_intake_depth=s.quantity("pump_intake_depth", "length", sign="nonnegative"),
+        operating_intake_depth=s.quantity("operating_intake_depth", "length",
+                                          d.operating_intake_depth, sign="nonnegative"),
         submergence=s.quantity("submergence", "length", d.submergence, sign="nonnegative"),
         rate_min=s.quantity("rate_min", "rate", d.rate_min, sign="nonnegative"),
         rate_max=s.quantity("rate_max", "rate", d.rate_max),

@@ -279,3 +279,33 @@ def test_fit_that_does_not_converge_raises(monkeypatch):
     monkeypatch.setattr(estimation.optimize, "least_squares", stopped)
     with pytest.raises(ModelError, match="did not converge from any starting point"):
         fit(sw.without_priors(sw.project(seed=1, relative_error=0.05)))
+
+
+def test_operating_intake_changes_operation_not_the_fit():
+    # the test intake (what the logs and samples were taken against) sets the fit; the
+    # operating intake only the predictions for operation (docs/input-files.md, "Two intakes")
+    from blendq.decide.sweep import sweep
+    from blendq.fit.uncertainty import monte_carlo
+
+    base = sw.project(25.0)
+    moved = dataclasses.replace(
+        base, well=dataclasses.replace(base.well, operating_intake_depth=105.0))
+    same = dataclasses.replace(
+        base, well=dataclasses.replace(base.well, operating_intake_depth=25.0))
+    fits = [fit(p) for p in (base, moved, same)]
+    for other in fits[1:]:
+        np.testing.assert_array_equal(other.theta, fits[0].theta)
+        np.testing.assert_array_equal(other.zone_values(), fits[0].zone_values())
+        assert other.model.geometry.intake_depth == 25.0
+    draws = monte_carlo(fits[0], 20, seed=3)
+    rates = np.array([500.0, 1500.0, 3000.0])
+    p0, p1, p2 = (sweep(f, draws, rates) for f in fits)
+    # the operating intake equal to the test intake changes nothing
+    np.testing.assert_array_equal(p2.concentration, p0.concentration)
+    # a deeper operating intake: the shares of the model with that intake, same zone flows
+    np.testing.assert_array_equal(p1.zone_flow, p0.zone_flow)
+    deep = sweep(fits[0], draws, rates,
+                 changes=lambda m: m.with_changes(geometry=dataclasses.replace(
+                     m.geometry, intake_depth=105.0)))
+    np.testing.assert_array_equal(p1.shares, deep.shares)
+    assert np.abs(p1.shares - p0.shares).max() > 0.01
