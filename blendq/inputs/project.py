@@ -133,6 +133,9 @@ class Zone:
         D [d^2/m^5] in dh = q/G + D q|q|.
     conductance : float or None
         G [m^2/d], when known directly (overrides T, S, skin).
+    sublayers : tuple of (top [m], bottom [m], conductivity [m/d])
+        Optional sub-layers inside the open interval: how the zone's inflow is spread along it
+        (in proportion to conductivity times thickness); empty: uniform over the interval.
     """
 
     name: str
@@ -145,6 +148,7 @@ class Zone:
     skin: float = 0.0
     nonlinear_loss: float = 0.0
     conductance: float | None = None
+    sublayers: tuple = ()
 
     @property
     def thickness(self) -> float:

@@ -309,3 +309,26 @@ def test_operating_intake_changes_operation_not_the_fit():
                      m.geometry, intake_depth=105.0)))
     np.testing.assert_array_equal(p1.shares, deep.shares)
     assert np.abs(p1.shares - p0.shares).max() > 0.01
+
+
+def test_flow_log_stations_inside_screens_fit_the_truth():
+    # stations inside the open intervals, their flows written out by hand from the true zone
+    # flows with the analytic rise through a uniform screen (intake above every zone, flow up):
+    # F(z) = (inflow of the zones below) + q_i (bottom_i - z) / b_i. With noise-free data the
+    # joint fit must still return the truth (Golub and Pereyra 1973), with no pull from them.
+    from blendq.well.hydraulics import solve_wellbore_head
+
+    p = sw.without_priors(sw.project(25.0))
+    logs = p.flowlogs
+    extra = []
+    for (_log, rate), rows in logs.groupby(["log", "rate"]):
+        q = solve_wellbore_head([float(rate)], sw.G, sw.H0).zone_flow[0]
+        for i, z in [(0, 32.0), (0, 38.5), (1, 55.0), (3, 91.0)]:
+            below = q[i + 1:].sum() + q[i] * (sw.BOT[i] - z) / (sw.BOT[i] - sw.TOP[i])
+            row = rows.iloc[0].copy()
+            row["depth"], row["upward_flow"] = z, below
+            extra.append(row)
+    p.flowlogs = pd.concat([logs, pd.DataFrame(extra)], ignore_index=True)
+    result = fit(p)
+    _check_recovery(result, c_rtol=1e-6, h_rtol=1e-4)
+    assert result.cost < 1e-10

@@ -186,3 +186,42 @@ def test_at_horizon_is_batched():
     for b in range(2):
         one = m.with_changes(conductance=g[b]).at_horizon(f)
         np.testing.assert_allclose(out.static_head[b], one.static_head, rtol=1e-12)
+
+
+def _write_project(folder, well_extra="", zone_extra=""):
+    (folder / "project.toml").write_text(
+        '[project]\nname = "m"\n[well]\nname = "w"\nwell_radius = "0.1 m"\n'
+        f'pump_intake_depth = "30 m"\n{well_extra}[[zones]]\nname = "z"\ntop = "40 m"\n'
+        f'bottom = "50 m"\n{zone_extra}[tables]\nsteps = "s.csv"\n', encoding="utf-8")
+    (folder / "s.csv").write_text("step,rate [L/s]\n1,10\n", encoding="utf-8")
+    return load_project(folder)
+
+
+def test_operating_intake_and_sublayers_are_read(tmp_path):
+    from blendq.well.model import geometry_of, operating_geometry
+
+    p = _write_project(tmp_path)
+    assert p.well.operating_intake_depth is None and p.well.operating_intake == 30.0
+    assert operating_geometry(p).intake_depth == 30.0 and geometry_of(p).sublayers is None
+    p = _write_project(tmp_path, 'operating_intake_depth = "60 m"\n',
+                       'sublayers = [{ top = "40 m", bottom = "44 m", conductivity = "10 m/d" },'
+                       ' { top = "46 m", bottom = "50 m", conductivity = "30 m/d" }]\n')
+    assert geometry_of(p).intake_depth == 30.0 and operating_geometry(p).intake_depth == 60.0
+    layers = geometry_of(p).sublayers[0]
+    np.testing.assert_allclose(layers, [[40.0, 44.0, 10.0], [46.0, 50.0, 30.0]], rtol=1e-12)
+    # K b shares 40 : 120 -> a quarter of the inflow enters above 44 m, none in the parting
+    np.testing.assert_allclose(geometry_of(p).fraction_above([42.0, 44.0, 45.0, 48.0])[:, 0],
+                               [0.125, 0.25, 0.25, 0.625], rtol=1e-12)
+
+
+@pytest.mark.parametrize("layers, field", [
+    ('[{ top = "38 m", bottom = "44 m", conductivity = "10 m/d" }]', "zones[1].sublayers[1].bottom"),
+    ('[{ top = "40 m", bottom = "46 m", conductivity = "10 m/d" },'
+     ' { top = "45 m", bottom = "50 m", conductivity = "10 m/d" }]', "zones[1].sublayers"),
+    ('[{ top = "40 m", bottom = "46 m" }]', "zones[1].sublayers[1].conductivity"),
+    ('"40 m"', "zones[1].sublayers"),
+])
+def test_bad_sublayers_are_input_errors(tmp_path, layers, field):
+    with pytest.raises(InputError) as err:
+        _write_project(tmp_path, zone_extra=f"sublayers = {layers}\n")
+    assert err.value.field == field and err.value.file == "project.toml"
