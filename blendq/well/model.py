@@ -110,24 +110,64 @@ def geometry_of(project: Project) -> mixing.WellGeometry:
     """Zone depths and the intake of the step test (what the flow logs and depth samples were
     taken against): the geometry of the fit."""
     return mixing.WellGeometry(project.zone_top, project.zone_bottom,
-                               project.well.pump_intake_depth)
+                               project.well.pump_intake_depth, _sublayers(project))
+
+
+def _sublayers(project: Project) -> tuple | None:
+    """Each zone's sub-layers (or None: uniform inflow), or None when no zone has any."""
+    layers = tuple(np.asarray(z.sublayers, float) if z.sublayers else None
+                   for z in project.zones)
+    return layers if any(x is not None for x in layers) else None
 
 
 def operating_geometry(project: Project) -> mixing.WellGeometry:
     """Zone depths and the intake for operation (``well.operating_intake_depth``, else the
     test's): the geometry of the sweep, the window and the scenarios."""
     return mixing.WellGeometry(project.zone_top, project.zone_bottom,
-                               project.well.operating_intake)
+                               project.well.operating_intake, _sublayers(project))
 
 
 def elapsed_test_time(project: Project) -> float:
-    """Elapsed time from the start of the step test to the end of its last step [d]."""
-    steps = project.steps
-    if steps.empty:
-        return 1.0
-    dur = np.asarray(steps["duration"], float)
-    total = float(np.nansum(dur))
-    return total if total > 0 else 1.0
+    """Pumping time of the step test [d]: the sum of the step durations (each from its
+    ``duration``, or its start and end). The time the fitted conductances belong to.
+
+    Raises
+    ------
+    InputError
+        When a zone is transient (Cooper-Jacob) and a step has no duration, naming the steps
+        file, row and field: no duration is assumed. Without a transient zone the time is not
+        used, and NaN is returned when it is unknown.
+    """
+    from blendq.well.steptest import validated_schedule
+
+    label = project.files.get("steps", "steps.csv") if project.files else "steps.csv"
+    transient = "transient" in zone_conductance_models(project)
+    if project.steps is None or project.steps.empty:
+        if transient:
+            raise InputError("the steps table has no steps: transient (Cooper-Jacob) zone "
+                             "conductances need the test's pumping time", file=label)
+        return float("nan")
+    sched = validated_schedule(project.steps, label, need_times=False)
+    dur = np.asarray(sched["duration"], float)
+    bad = np.flatnonzero(~(np.isfinite(dur) & (dur > 0)))
+    if len(bad):
+        if transient:
+            raise InputError("duration missing: transient (Cooper-Jacob) zone conductances need "
+                             "each step's duration (or its start and end)", file=label,
+                             row=sched["row"][bad[0]], field="duration")
+        return float("nan")
+    return float(dur.sum())
+
+
+def transient_slope(project: Project) -> np.ndarray:
+    """Per zone 1 / (4 pi T_i) [d/m^2] for a transient (Cooper-Jacob) zone with T and S known,
+    0 for the others: the growth of 1 / G_i per unit of ln t (Cooper and Jacob 1946)."""
+    out = []
+    for z, use in zip(project.zones, zone_conductance_models(project), strict=True):
+        t = z.zone_transmissivity
+        ok = use == "transient" and t is not None and z.storativity is not None
+        out.append(1.0 / (4.0 * np.pi * t) if ok else 0.0)
+    return np.array(out, float)
 
 
 def property_conductance(project: Project, time: float | None, model: str | None = None) -> np.ndarray:

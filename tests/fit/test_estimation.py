@@ -26,7 +26,7 @@ import pandas as pd
 import pytest
 import synthetic_wells as sw
 
-from blendq.errors import ModelError
+from blendq.errors import InputError, ModelError
 from blendq.fit import estimation
 from blendq.fit.estimation import (
     FitOptions,
@@ -332,3 +332,53 @@ def test_flow_log_stations_inside_screens_fit_the_truth():
     result = fit(p)
     _check_recovery(result, c_rtol=1e-6, h_rtol=1e-4)
     assert result.cost < 1e-10
+
+
+def _transient_project(durations=True):
+    # the synthetic well made transient: each zone gets a T and S and the skin that makes its
+    # Cooper-Jacob conductance at the test time equal to the true G (so the priors sit at the
+    # truth); its step levels are replaced by the superposed ones of blendq.well.transient
+    # (checked against ttim in tests/well/test_transient.py)
+    from blendq.well.model import elapsed_test_time, transient_slope
+    from blendq.well.transient import step_levels, step_schedule
+
+    p = sw.project(25.0, settings=Settings(conductance_model="transient"))
+    t_ref = elapsed_test_time(p)
+    t_zone, s_zone = 1.4 * sw.G, 1e-4  # skins near zero
+    big_l = np.log(2.25 * t_zone * t_ref / (p.well.well_radius**2 * s_zone))
+    skin = 0.5 * (4 * np.pi * t_zone / sw.G - big_l)
+    p.zones = [dataclasses.replace(z, conductance=None, transmissivity=float(t), storativity=s_zone,
+                                   skin=float(s)) for z, t, s in zip(p.zones, t_zone, skin, strict=True)]
+    hw, _ = step_levels(sw.G, sw.H0, np.zeros(4), transient_slope(p), step_schedule(p, t_ref))
+    steps = p.steps.copy()
+    rates = steps["rate"].to_numpy(float)
+    steps["pumping_level"] = -(hw - sw.WELL_LOSS * rates**2)
+    if not durations:
+        steps = steps.drop(columns=[c for c in ("start", "end") if c in steps])
+        steps["duration"] = np.nan
+    p.steps = steps
+    return p
+
+
+def test_transient_levels_superposed_in_time_are_fitted_exactly():
+    # noise-free levels superposed in time (Cooper and Jacob 1946) with the true well loss:
+    # the joint fit returns the truth, C included (Golub and Pereyra 1973); the former steady
+    # reading of the same levels (given conductances) puts the growth of the cone into C
+    p = _transient_project()
+    result = fit(p)
+    assert result.problem.schedule is not None
+    _check_recovery(result, c_rtol=1e-5, h_rtol=1e-4)
+    np.testing.assert_allclose(result.theta[-1], sw.WELL_LOSS, rtol=1e-3)
+    # not a trivial check: the levels differ from the steady reading at the truth by more
+    # than their stated error
+    steady = result.model.with_changes(conductance=sw.G, static_head=sw.H0,
+                                       well_loss=sw.WELL_LOSS)
+    rates = p.steps["rate"].to_numpy(float)
+    gap = np.abs(steady.pumping_level_depth(rates) - p.steps["pumping_level"].to_numpy(float))
+    assert gap.max() > 3 * p.settings.level_error
+
+
+def test_transient_zones_need_step_durations():
+    with pytest.raises(InputError) as err:
+        build_problem(_transient_project(durations=False))
+    assert err.value.field == "duration" and err.value.row is not None
