@@ -25,7 +25,12 @@ import pandas as pd
 from blendq.chemistry.limits import Limit, RatioRule, exceedance_given_mean
 from blendq.fit.estimation import FitResult
 from blendq.fit.uncertainty import Draws, Prediction, predict
-from blendq.well.model import elapsed_test_time, horizon_factor, operating_geometry
+from blendq.well.model import (
+    elapsed_test_time,
+    horizon_factor_of,
+    operating_geometry,
+    transient_slope,
+)
 
 
 @dataclass(frozen=True)
@@ -94,21 +99,23 @@ def rate_grid(fit: FitResult, points: int | None = None, rate_max: float | None 
 
 def sweep(fit: FitResult, draws: Draws, rates=None, horizon: float | None = None,
           changes=None) -> Prediction:
-    """Predictions over the rate grid for operation: at the operating horizon (each zone's
-    response scaled by its horizon factor, the ambient crossflow held; docs/methods.md,
-    section 1) and with the operating intake (``well.operating_intake_depth``), then the
-    scenario's ``changes``."""
+    """Predictions over the rate grid for operation: at the operating horizon (each transient
+    zone's response carried there by Cooper-Jacob with each draw's own conductance, the ambient
+    crossflow held; docs/methods.md, section 1) and with the operating intake
+    (``well.operating_intake_depth``), then the scenario's ``changes``."""
     project = fit.problem.project
     rates = rate_grid(fit) if rates is None else np.asarray(rates, float)
     horizon = project.settings.horizon if horizon is None else horizon
-    factor = horizon_factor(project, elapsed_test_time(project), horizon)
+    slope = transient_slope(project)
+    t_ref = elapsed_test_time(project) if np.any(slope > 0) else np.nan
     geometry = operating_geometry(project)
 
     def operate(model):
+        model = model.at_horizon(horizon_factor_of(model.conductance, slope, t_ref, horizon))
         model = model.with_changes(geometry=geometry)
         return model if changes is None else changes(model)
 
-    return predict(fit, draws, rates, conductance_factor=factor, changes=operate)
+    return predict(fit, draws, rates, changes=operate)
 
 
 def governing_limits(limits: list[Limit], analytes: list[str]) -> dict[str, Limit]:

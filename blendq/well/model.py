@@ -18,7 +18,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from blendq.errors import InputError
+from blendq.errors import InputError, ModelError
 from blendq.inputs.project import Project
 from blendq.well import hydraulics, mixing
 
@@ -301,6 +301,30 @@ def horizon_scaling(project: Project, conductance_test_time: float,
             f.append(float(g2 / g1))
             basis.append("transient (Cooper-Jacob ratio)")
     return HorizonScaling(np.array(f, float), basis, assumed)
+
+
+def horizon_factor_of(conductance, slope, test_time: float, horizon: float) -> np.ndarray:
+    """G_i(t_h) / G_i(t_ref) [-] of conductances G_i(t_ref) [m^2/d] (any batch shape).
+
+    With 1 / G_i(t) = 1 / G_i(t_ref) + slope_i ln(t / t_ref), slope_i = 1 / (4 pi T_i) for a
+    transient zone and 0 for a steady or given one (:func:`transient_slope`), the factor is
+    1 / (1 + G_i slope_i ln(t_h / t_ref)): Cooper-Jacob with the skin the conductance implies
+    (Cooper and Jacob 1946; the same law as the step levels of :mod:`blendq.well.transient`).
+    For G_i from the zone properties it equals the ratio of :func:`horizon_scaling`.
+
+    Raises
+    ------
+    ModelError
+        When the horizon lies so far before the test time that a conductance turns negative.
+    """
+    slope = np.asarray(slope, float)
+    if not np.any(slope > 0):
+        return np.ones(np.shape(conductance))
+    denom = 1.0 + np.asarray(conductance, float) * slope * np.log(horizon / test_time)
+    if np.any(denom <= 0):
+        raise ModelError(f"an operating horizon of {horizon:g} d is too short next to the test "
+                         f"time {test_time:g} d for the Cooper-Jacob form")
+    return 1.0 / denom
 
 
 def horizon_factor(project: Project, conductance_test_time: float, horizon: float) -> np.ndarray:

@@ -225,3 +225,26 @@ def test_bad_sublayers_are_input_errors(tmp_path, layers, field):
     with pytest.raises(InputError) as err:
         _write_project(tmp_path, zone_extra=f"sublayers = {layers}\n")
     assert err.value.field == field and err.value.file == "project.toml"
+
+
+def test_horizon_factor_of_a_fitted_conductance_keeps_its_skin(with_t):
+    # Cooper-Jacob (1946): 1 / G(t) = (ln(2.25 T t / (r_w^2 S)) + 2 s) / (4 pi T); a fitted G at
+    # the test time implies a skin s_fit, which the horizon keeps
+    from blendq.well.model import horizon_factor_of, transient_slope
+
+    p = with_t
+    t1, t2 = elapsed_test_time(p), 365.0
+    rw = p.well.well_radius
+    tz = np.array([z.zone_transmissivity for z in p.zones])
+    sz = np.array([z.storativity for z in p.zones])
+    big_l = [np.log(2.25 * tz * t / (rw ** 2 * sz)) for t in (t1, t2)]
+    g_prop = np.exp(prior_hydraulics(p).log_conductance)
+    slope = transient_slope(p)
+    np.testing.assert_allclose(horizon_factor_of(g_prop, slope, t1, t2),
+                               horizon_scaling(p, t1, t2).factor, rtol=1e-12)
+    g_fit = np.stack([0.6 * g_prop, 1.3 * g_prop])  # two draws
+    s_fit = 0.5 * (4 * np.pi * tz / g_fit - big_l[0])
+    g_h = 4 * np.pi * tz / (big_l[1] + 2 * s_fit)
+    np.testing.assert_allclose(horizon_factor_of(g_fit, slope, t1, t2), g_h / g_fit, rtol=1e-12)
+    # steady zones: no factor
+    np.testing.assert_array_equal(horizon_factor_of(g_fit, np.zeros(3), t1, t2), 1.0)
