@@ -26,7 +26,14 @@ from scipy import stats
 from blendq.chemistry.limits import exceedance_given_mean
 from blendq.errors import ModelError
 from blendq.fit import constrained_lsq as qp
-from blendq.fit.estimation import FitResult, Problem, row_weights, scaled_pinv, solve_concentrations
+from blendq.fit.estimation import (
+    FitResult,
+    Problem,
+    level_depths,
+    row_weights,
+    scaled_pinv,
+    solve_concentrations,
+)
 from blendq.well import mixing
 from blendq.well.mixing import intake_weights, intake_weights_by_zone
 
@@ -212,7 +219,8 @@ def _hydraulic_residuals_batch(problem: Problem, theta, model) -> np.ndarray:
                 st.zone_flow[:, 0], model.geometry, logs.loc[idx, "depth"].to_numpy(float))
         parts.append((pred - logs["upward_flow"].to_numpy(float)) / problem.log_sd)
     if len(problem.level_rate):
-        depth = model.pumping_level_depth(problem.level_rate)
+        # the same level model as the fit (superposed in time where a zone is transient)
+        depth = level_depths(problem, model)
         parts.append((depth - problem.level_depth) / problem.level_sd)
     return np.concatenate(parts, axis=1) if parts else np.zeros((bsz, 0))
 

@@ -382,3 +382,23 @@ def test_transient_zones_need_step_durations():
     with pytest.raises(InputError) as err:
         build_problem(_transient_project(durations=False))
     assert err.value.field == "duration" and err.value.row is not None
+
+
+def test_draws_see_the_levels_in_time():
+    # the posterior draws' batched residuals use the fit's level model: at the fitted theta
+    # they equal the fit's own (scalar) residuals
+    from blendq.fit.estimation import level_depths
+
+    p = _transient_project()
+    result = fit(p)
+    problem = result.problem
+    batch = problem.model(np.stack([result.theta, result.theta]))
+    one = level_depths(problem, result.model)
+    both = level_depths(problem, batch)
+    assert both.shape == (2, len(one))
+    np.testing.assert_allclose(both[1], one, rtol=1e-12)
+    from blendq.fit.uncertainty import _hydraulic_residuals_batch
+
+    r = _hydraulic_residuals_batch(problem, np.stack([result.theta]), problem.model(
+        np.stack([result.theta])))
+    np.testing.assert_allclose(np.abs(r).max(), 0.0, atol=1e-4)
