@@ -17,7 +17,12 @@ from blendq.decide.levelcheck import LevelCheck, check_levels
 from blendq.errors import ModelError
 from blendq.fit import diagnostics, estimation, uncertainty, unresolved
 from blendq.inputs.project import Project
-from blendq.well.model import NO_PRIOR_SOURCE, START_CONDUCTANCE
+from blendq.well.model import (
+    NO_PRIOR_SOURCE,
+    START_CONDUCTANCE,
+    elapsed_test_time,
+    horizon_scaling,
+)
 
 
 @dataclass
@@ -120,6 +125,9 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
                         f"analyte with a limit: {listed}. The model and these results disagree; "
                         "explain them (sampling, lab, or a zone the model lacks) before relying "
                         "on the window.")
+    horizon_note = horizon_scaling(project, elapsed_test_time(project), s.horizon).note(project)
+    if horizon_note:
+        notes.append(horizon_note)
     notes.append(f"Pumping level in the window from the {levels.source}: {levels.reason}.")
     notes += [n + "." for n in sweep.applicable_ratio_rules(s.limit_sets, pred.analytes)[1]]
     return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),

@@ -618,7 +618,7 @@ def evaluate(analysis, scenario: Scenario) -> ScenarioResult:
     margin = s.margin if scenario.margin is None else scenario.margin
     alpha = s.exceedance_probability if scenario.exceedance_probability is None \
         else scenario.exceedance_probability
-    intake = w.pump_intake_depth if scenario.intake_depth is None else scenario.intake_depth
+    intake = w.operating_intake if scenario.intake_depth is None else scenario.intake_depth
     top = float(project.zone_top.min()) if w.keep_above_screen else None
     from blendq.decide.sweep import (
         applicable_ratio_rules,

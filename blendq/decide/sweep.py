@@ -30,7 +30,12 @@ import pandas as pd
 from blendq.chemistry.limits import Limit, RatioRule, mean_threshold
 from blendq.fit.estimation import FitResult
 from blendq.fit.uncertainty import Draws, Prediction, predict
-from blendq.well.model import elapsed_test_time, horizon_factor
+from blendq.well.model import (
+    elapsed_test_time,
+    horizon_factor_of,
+    operating_geometry,
+    transient_slope,
+)
 
 
 @dataclass(frozen=True)
@@ -99,13 +104,23 @@ def rate_grid(fit: FitResult, points: int | None = None, rate_max: float | None 
 
 def sweep(fit: FitResult, draws: Draws, rates=None, horizon: float | None = None,
           changes=None) -> Prediction:
-    """Predictions over the rate grid at the operating horizon (conductances scaled by
-    Cooper-Jacob from the test duration to the horizon where storativity is known)."""
+    """Predictions over the rate grid for operation: at the operating horizon (each transient
+    zone's response carried there by Cooper-Jacob with each draw's own conductance, the ambient
+    crossflow held; docs/methods.md, section 1) and with the operating intake
+    (``well.operating_intake_depth``), then the scenario's ``changes``."""
     project = fit.problem.project
     rates = rate_grid(fit) if rates is None else np.asarray(rates, float)
     horizon = project.settings.horizon if horizon is None else horizon
-    factor = horizon_factor(project, elapsed_test_time(project), horizon)
-    return predict(fit, draws, rates, conductance_factor=factor, changes=changes)
+    slope = transient_slope(project)
+    t_ref = elapsed_test_time(project) if np.any(slope > 0) else np.nan
+    geometry = operating_geometry(project)
+
+    def operate(model):
+        model = model.at_horizon(horizon_factor_of(model.conductance, slope, t_ref, horizon))
+        model = model.with_changes(geometry=geometry)
+        return model if changes is None else changes(model)
+
+    return predict(fit, draws, rates, changes=operate)
 
 
 def governing_limits(limits: list[Limit], analytes: list[str]) -> dict[str, Limit]:
@@ -505,7 +520,7 @@ def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
     return operating_window(
         pred, limits, s.margin if margin is None else margin,
         s.exceedance_probability if alpha is None else alpha,
-        w.pump_intake_depth, w.submergence, w.rate_min, w.rate_max, w.demand,
+        w.operating_intake, w.submergence, w.rate_min, w.rate_max, w.demand,
         float(project.zone_top.min()) if w.keep_above_screen else None, level_deep=level_deep,
         ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
         extra_criteria=measured_exceedances(fit, limits, s.margin if margin is None else margin,

@@ -40,9 +40,12 @@ from blendq.well.flowlog import calibrate, log_error
 from blendq.well.model import (
     HydraulicPrior,
     WellModel,
+    elapsed_test_time,
     model_from_parameters,
     prior_hydraulics,
+    transient_slope,
 )
+from blendq.well.transient import Schedule, step_levels, step_schedule
 
 
 def row_weights(model: WellModel, rate, depth) -> np.ndarray:
@@ -107,6 +110,12 @@ class Problem:
     level_sd: float
     fit_c: bool
     n_zones: int
+    #: the step schedule when some zone is transient (levels superposed in time), else None
+    schedule: Schedule | None = None
+    #: 1 / (4 pi T_i) per zone [d/m^2] (0 for steady zones)
+    slope: np.ndarray | None = None
+    #: index into the project's steps of each step level row (the static row is last)
+    level_step: np.ndarray | None = None
 
     def bounds(self, analyte: str):
         n = self.n_zones
@@ -146,9 +155,15 @@ def build_problem(project: Project, options: FitOptions | None = None,
         rates.append(0.0)
         depths.append(project.well.static_level)
     fit_c = options.fit_hydraulics and options.fit_well_loss and len(lv) >= 2
+    slope = transient_slope(project)
+    schedule, level_step = None, None
+    if len(lv) and np.any(slope > 0):
+        # transient zones: each step's level with the rate increments superposed in time
+        schedule = step_schedule(project, elapsed_test_time(project))
+        level_step = np.flatnonzero(np.isfinite(steps["pumping_level"].astype(float)))
     return Problem(project, prior, data, options, logs.reset_index(drop=True), np.asarray(log_sd),
                    np.array(rates, float), np.array(depths, float), s.level_error, fit_c,
-                   len(project.zones))
+                   len(project.zones), schedule, slope, level_step)
 
 
 def solve_concentrations(problem: Problem, model: WellModel, analyte: str, values=None):
@@ -180,9 +195,30 @@ def _hydraulic_residuals(problem: Problem, theta, model: WellModel) -> list[np.n
                 st.zone_flow[0], model.geometry, logs.loc[idx, "depth"].to_numpy(float))
         res.append((pred - logs["upward_flow"].to_numpy(float)) / problem.log_sd)
     if len(problem.level_rate):
-        depth = model.pumping_level_depth(problem.level_rate)
-        res.append((depth - problem.level_depth) / problem.level_sd)
+        res.append((level_depths(problem, model) - problem.level_depth) / problem.level_sd)
     return res
+
+
+def level_depths(problem: Problem, model: WellModel) -> np.ndarray:
+    """Predicted depth of each level row [m] (..., n_levels): the steps' pumping levels, then
+    the static level when given.
+
+    Steady zones: the common-head model at each step's rate. With a transient zone: the rate
+    increments of the step schedule superposed in time per zone (:mod:`blendq.well.transient`),
+    recoveries included, read at the end of each step; the well loss C Q^2 at the step's rate.
+    """
+    if problem.schedule is None:
+        return model.pumping_level_depth(problem.level_rate)
+    hw, _ = step_levels(model.conductance, model.static_head, model.nonlinear_loss,
+                        problem.slope, problem.schedule)
+    k = len(problem.level_step)
+    rate = problem.level_rate[:k]
+    c = np.asarray(model.well_loss, float)[..., None]
+    steps = -(hw[..., problem.level_step] - c * rate**2)
+    if len(problem.level_rate) == k:
+        return steps
+    static = model.pumping_level_depth(problem.level_rate[k:])
+    return np.concatenate([steps, static], -1)
 
 
 def residuals(problem: Problem, theta) -> np.ndarray:

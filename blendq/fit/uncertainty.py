@@ -25,7 +25,14 @@ from scipy import stats
 
 from blendq.errors import ModelError
 from blendq.fit import constrained_lsq as qp
-from blendq.fit.estimation import FitResult, Problem, row_weights, scaled_pinv, solve_concentrations
+from blendq.fit.estimation import (
+    FitResult,
+    Problem,
+    level_depths,
+    row_weights,
+    scaled_pinv,
+    solve_concentrations,
+)
 from blendq.well import mixing
 from blendq.well.mixing import intake_weights, intake_weights_by_zone
 
@@ -211,7 +218,8 @@ def _hydraulic_residuals_batch(problem: Problem, theta, model) -> np.ndarray:
                 st.zone_flow[:, 0], model.geometry, logs.loc[idx, "depth"].to_numpy(float))
         parts.append((pred - logs["upward_flow"].to_numpy(float)) / problem.log_sd)
     if len(problem.level_rate):
-        depth = model.pumping_level_depth(problem.level_rate)
+        # the same level model as the fit (superposed in time where a zone is transient)
+        depth = level_depths(problem, model)
         parts.append((depth - problem.level_depth) / problem.level_sd)
     return np.concatenate(parts, axis=1) if parts else np.zeros((bsz, 0))
 
@@ -530,7 +538,7 @@ def draws_model(fit: FitResult, draws: Draws, conductance_factor=None,
     changes applied: what :func:`predict` and :func:`predict_summary` evaluate."""
     model = fit.problem.model(draws.theta)
     if conductance_factor is not None:
-        model = model.with_changes(conductance=model.conductance * np.asarray(conductance_factor))
+        model = model.at_horizon(conductance_factor)
     if changes is not None:
         model = changes(model)
     return model
@@ -576,7 +584,8 @@ def predict(fit: FitResult, draws: Draws, rates, conductance_factor=None,
     draws : Draws
     rates : array_like (n_rates,) [m^3/d]
     conductance_factor : array_like (n_zones,), optional
-        Multiplies every zone conductance (for example G(horizon)/G(test)).
+        Scales each zone's response to pumping, the ambient crossflow held (G(horizon)/G(test);
+        :meth:`blendq.well.model.WellModel.at_horizon`).
     changes : callable(WellModel) -> WellModel, optional
         Applied to the batched model before prediction (scenarios).
     """

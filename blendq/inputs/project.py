@@ -62,7 +62,10 @@ class Well:
     well_radius : float
         Effective well (screen) radius r_w [m].
     pump_intake_depth : float
-        Depth of the pump intake below the datum [m].
+        Depth of the pump intake during the step test below the datum [m]: the intake the flow
+        logs and depth samples were taken against (the fit's geometry).
+    operating_intake_depth : float or None
+        Depth of the intake for operation [m] (the window and scenarios); None: the test's.
     submergence : float
         Required water depth above the intake [m].
     rate_min, rate_max : float
@@ -97,6 +100,14 @@ class Well:
     static_level: float | None = None
     datum: str = "top of casing"
     location: str = ""
+    operating_intake_depth: float | None = None
+
+    @property
+    def operating_intake(self) -> float:
+        """Depth of the intake for operation [m]: ``operating_intake_depth``, else the test's."""
+        if self.operating_intake_depth is None:
+            return self.pump_intake_depth
+        return self.operating_intake_depth
 
 
 @dataclass(frozen=True)
@@ -122,6 +133,9 @@ class Zone:
         D [d^2/m^5] in dh = q/G + D q|q|.
     conductance : float or None
         G [m^2/d], when known directly (overrides T, S, skin).
+    sublayers : tuple of (top [m], bottom [m], conductivity [m/d])
+        Optional sub-layers inside the open interval: how the zone's inflow is spread along it
+        (in proportion to conductivity times thickness); empty: uniform over the interval.
     """
 
     name: str
@@ -134,6 +148,7 @@ class Zone:
     skin: float = 0.0
     nonlinear_loss: float = 0.0
     conductance: float | None = None
+    sublayers: tuple = ()
 
     @property
     def thickness(self) -> float:

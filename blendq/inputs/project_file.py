@@ -194,6 +194,8 @@ def _well(doc: dict, label: str) -> Well:
         datum=s.text("datum", d.datum),
         well_radius=s.quantity("well_radius", "length"),
         pump_intake_depth=s.quantity("pump_intake_depth", "length", sign="nonnegative"),
+        operating_intake_depth=s.quantity("operating_intake_depth", "length",
+                                          d.operating_intake_depth, sign="nonnegative"),
         submergence=s.quantity("submergence", "length", d.submergence, sign="nonnegative"),
         rate_min=s.quantity("rate_min", "rate", d.rate_min, sign="nonnegative"),
         rate_max=s.quantity("rate_max", "rate", d.rate_max),
@@ -250,6 +252,7 @@ def _zones(doc: dict, label: str) -> list[Zone]:
             skin=float(s.number("skin", 0.0)),
             nonlinear_loss=s.quantity("nonlinear_loss", "nonlinear_loss", 0.0, sign="nonnegative"),
             conductance=s.quantity("conductance", "conductance", None),
+            sublayers=_sublayers(s, top, bottom, label),
         )
         if zone.transmissivity is not None and zone.conductivity is not None:
             raise s.error("conductivity", "give transmissivity or conductivity, not both "
@@ -267,6 +270,31 @@ def _zones(doc: dict, label: str) -> list[Zone]:
                 f'"{upper.name}" (bottom "{entries[where[upper.name] - 1]["bottom"]}")',
                 file=label, field=f"zones[{i}].top")
     return ordered
+
+
+def _sublayers(s: _Section, top: float, bottom: float, label: str) -> tuple:
+    """A zone's optional ``sublayers``: a list of { top, bottom, conductivity } tables inside
+    the zone's open interval, not overlapping; returned as (top, bottom, K) in base units."""
+    raw = s.get("sublayers", [])
+    if not isinstance(raw, list) or not all(isinstance(v, dict) for v in raw):
+        raise s.error("sublayers", 'expected a list such as [{ top = "120 ft", bottom = "130 ft", '
+                                   f'conductivity = "40 ft/d" }}], got {raw!r}')
+    rows = []
+    for j, entry in enumerate(raw, start=1):
+        sub = _Section(entry, f"{s.where}.sublayers[{j}]", label)
+        t = sub.quantity("top", "length", sign="nonnegative")
+        b = sub.quantity("bottom", "length")
+        k = sub.quantity("conductivity", "conductivity")
+        sub.done()
+        if not (top <= t < b <= bottom):
+            raise sub.error("bottom", f'"{entry["top"]}" to "{entry["bottom"]}" is not a layer '
+                                      "inside the zone's open interval")
+        rows.append((t, b, k))
+    rows.sort()
+    for (_, b1, _), (t2, _, _) in zip(rows, rows[1:], strict=False):
+        if t2 < b1:
+            raise s.error("sublayers", "sub-layers overlap")
+    return tuple(rows)
 
 
 def _settings(doc: dict, display_units: str, label: str) -> Settings:

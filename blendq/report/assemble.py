@@ -64,8 +64,9 @@ REFERENCES = [
 ASSUMPTIONS = [
     "Each zone joins the well through its own conductance and far-field head; zones connect "
     "only through the wellbore (layered, anisotropic aquifer).",
-    "Zone conductances are constant over the step test; for the operating horizon they are "
-    "scaled by the Cooper-Jacob ratio G(horizon)/G(test) where storativity is known.",
+    "Zone conductances are constant over the step test; for the operating horizon each transient "
+    "zone's response to pumping is scaled by the Cooper-Jacob ratio G(horizon)/G(test) (steady "
+    "and given zones are not scaled) and the ambient crossflow is held.",
     "Complete mixing where streams meet in the well; steady flow; no reaction.",
     "Zone water quality does not change with rate or time (no induced inflow from elsewhere, no "
     "trend).",
@@ -176,7 +177,7 @@ def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
                          f"{format_quantity(lv[2], 'length', units)}",
                  "Judged statistic (band)": "-",
                  "Limit": "intake - submergence " + format_quantity(
-                     a.project.well.pump_intake_depth - a.project.well.submergence, "length", units),
+                     a.project.well.operating_intake - a.project.well.submergence, "length", units),
                  f"P(> {s.margin:.0%} of limit)": "-"})
     return pd.DataFrame(rows)
 
@@ -327,7 +328,10 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
     decision = decision_sentence(a, units)
     inputs = KeyValues([
         ("Well", w.name), ("Location", w.location or "-"), ("Depth datum", w.datum),
-        ("Pump intake", format_quantity(w.pump_intake_depth, "length", units)),
+        ("Pump intake" + (" (step test)" if w.operating_intake_depth is not None else ""),
+         format_quantity(w.pump_intake_depth, "length", units)),
+        *([("Pump intake (operation)", format_quantity(w.operating_intake, "length", units))]
+          if w.operating_intake_depth is not None else []),
         ("Required submergence", format_quantity(w.submergence, "length", units)),
         ("Pump range", f"{format_quantity(w.rate_min, 'rate', units)} to "
                        f"{format_quantity(w.rate_max, 'rate', units) if np.isfinite(w.rate_max) else 'unlimited'}"),

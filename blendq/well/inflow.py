@@ -37,10 +37,9 @@ def inflow_table(project: Project, rates, horizon: float | None = None) -> pd.Da
         missing = [z.name for z, sd in zip(project.zones, prior.static_head_sd, strict=False) if not np.isfinite(sd)]
         raise ModelError(f"zones without a static level: {', '.join(missing)} (give zone "
                          "static_level or well static_level)")
-    g = np.exp(prior.log_conductance)
+    model = model_from_parameters(project, np.exp(prior.log_conductance), prior.static_head)
     if horizon is not None:
-        g = g * horizon_factor(project, elapsed_test_time(project), horizon)
-    model = model_from_parameters(project, g, prior.static_head)
+        model = model.at_horizon(horizon_factor(project, elapsed_test_time(project), horizon))
     rates = np.asarray(rates, float)
     st = model.state(rates)
     share = np.nan_to_num(discharge_weights(st.zone_flow, model.geometry), nan=0.0)

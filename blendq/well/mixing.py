@@ -1,7 +1,11 @@
 """Wellbore mixing: which zone's water reaches the pump, and what flows past any depth.
 
 The well is a line of nodes ordered by depth: one node per zone (at the zone's mid-depth) and
-one for the pump intake. The wellbore is closed above the top node and below the bottom node,
+one for the pump intake. Within a zone's open interval the zone's inflow enters spread over the
+interval in proportion to conductivity times thickness (uniform unless sub-layers are given), so
+the flow past a depth inside a screen rises linearly through a uniform zone
+(:func:`wellbore_flow`), and the water passing it holds the part of the zone's water that has
+entered on the upstream side (:func:`wellbore_composition`). The wellbore is closed above the top node and below the bottom node,
 so the flow in each segment follows from the zone flows by mass balance. Where streams meet
 they mix completely; steady flow, no reaction. The water leaving a node (down the well, up the
 well, into a thief zone or into the pump) has the node's mixed composition. Because the nodes
@@ -37,15 +41,52 @@ class WellGeometry:
         Depth of each zone's top and bottom [m below datum], top < bottom.
     intake_depth : float
         Depth of the pump intake [m below datum].
+    sublayers : tuple, optional
+        Per zone, None (inflow uniform over the open interval) or an array of rows
+        (top [m], bottom [m], conductivity [m/d]) of sub-layers inside the zone: the zone's
+        inflow is shared among them in proportion to conductivity times thickness, and is
+        uniform within each; parts of the interval outside every sub-layer give no water.
     """
 
     zone_top: np.ndarray
     zone_bottom: np.ndarray
     intake_depth: float
+    sublayers: tuple | None = None
 
     def __post_init__(self):
         object.__setattr__(self, "zone_top", np.asarray(self.zone_top, float))
         object.__setattr__(self, "zone_bottom", np.asarray(self.zone_bottom, float))
+
+    def fraction_above(self, depth) -> np.ndarray:
+        """Share of each zone's inflow that enters the well above each depth [-].
+
+        Parameters
+        ----------
+        depth : array_like (n_depths,)
+            Depths [m below datum].
+
+        Returns
+        -------
+        ndarray (n_depths, n_zones)
+            0 above the zone, 1 below it; inside the open interval the cumulative share of
+            conductivity times thickness from the top (linear for a uniform zone).
+        """
+        depth = np.atleast_1d(np.asarray(depth, float))
+        out = np.empty((len(depth), self.n_zones))
+        for i in range(self.n_zones):
+            layers = None if self.sublayers is None else self.sublayers[i]
+            if layers is None or len(layers) == 0:
+                d = [self.zone_top[i], self.zone_bottom[i]]
+                c = [0.0, 1.0]
+            else:
+                rows = np.asarray(layers, float)
+                rows = rows[np.argsort(rows[:, 0])]
+                kb = rows[:, 2] * (rows[:, 1] - rows[:, 0])
+                cum = np.concatenate([[0.0], np.cumsum(kb)]) / kb.sum()
+                d = np.ravel(rows[:, :2])
+                c = np.ravel(np.column_stack([cum[:-1], cum[1:]]))
+            out[:, i] = np.interp(depth, d, c, left=0.0, right=1.0)
+        return out
 
     @property
     def n_zones(self) -> int:
@@ -261,7 +302,17 @@ def intake_weights_by_zone(flows: list, geometry) -> list:
 def wellbore_flow(flows, geometry: WellGeometry, depth):
     """Upward flow in the well at each depth [m^3/d] (positive up), shape (..., n_depths).
 
-    Above the top node and below the bottom node the well is stagnant (zero flow).
+    Above the top zone and below the bottom zone the well is stagnant (zero flow). Inside a
+    zone's open interval the flow changes gradually: the zone's inflow enters spread over the
+    interval (:meth:`WellGeometry.fraction_above`), so through a uniform zone the flow is linear
+    in depth. The intake removes the pumping rate at its depth (a depth at the intake counts
+    as below it).
+
+    Notes
+    -----
+    Mass balance from the closed top of the well: the downward flow at depth z is
+    sum_i q_i f_i(z) - Q [z_intake <= z], with f_i(z) the share of zone i's inflow entering
+    above z; the upward flow is its negative.
     """
     flows = np.asarray(flows, float)
     depth = np.atleast_1d(np.asarray(depth, float))
@@ -275,7 +326,35 @@ def wellbore_flow(flows, geometry: WellGeometry, depth):
     seg[-1] = np.zeros(flows.shape[:-1])
     seg_arr = np.stack(seg, -1)  # downward flow in segments 0 (above top node) .. N (below bottom)
     idx = np.searchsorted(nd, depth, side="right")
-    return -seg_arr[..., idx]
+    down = seg_arr[..., idx]
+    # inside an open interval: the part of the zone's inflow on the other side of its node
+    frac = geometry.fraction_above(depth)  # (n_depths, n_zones)
+    mid = 0.5 * (geometry.zone_top + geometry.zone_bottom)
+    counted = (mid[None, :] <= depth[:, None]).astype(float)  # node counted above the depth
+    inside = (geometry.zone_top[None, :] < depth[:, None]) & (depth[:, None] < geometry.zone_bottom)
+    corr = np.where(inside, frac - counted, 0.0)
+    if np.any(corr != 0.0):
+        down = down + np.einsum("...n,dn->...d", flows, corr)
+    return -down
+
+
+def _split_zone(flows, geometry: WellGeometry, values, depth: float):
+    """Zone flows, geometry and values with the zone whose open interval holds ``depth`` split
+    there into two zones (the parts of its inflow entering above and below ``depth``), or None
+    when ``depth`` is in no open interval."""
+    inside = np.flatnonzero((geometry.zone_top < depth) & (depth < geometry.zone_bottom))
+    if len(inside) == 0:
+        return None
+    i = int(inside[0])
+    f = float(geometry.fraction_above([depth])[0, i])
+    q = flows[..., i:i + 1]
+    flows2 = np.concatenate([flows[..., :i], q * f, q * (1.0 - f), flows[..., i + 1:]], -1)
+    top = np.concatenate([geometry.zone_top[:i], [geometry.zone_top[i], depth],
+                          geometry.zone_top[i + 1:]])
+    bot = np.concatenate([geometry.zone_bottom[:i], [depth, geometry.zone_bottom[i]],
+                          geometry.zone_bottom[i + 1:]])
+    values2 = np.concatenate([values[..., :i + 1, :], values[..., i:, :]], -2)
+    return flows2, WellGeometry(top, bot, geometry.intake_depth), values2
 
 
 def wellbore_composition(flows, geometry: WellGeometry, depth, zone_values=None):
@@ -283,20 +362,31 @@ def wellbore_composition(flows, geometry: WellGeometry, depth, zone_values=None)
 
     Where the water is stagnant (no flow in that segment) the composition is NaN: a sample there
     says nothing about the zones. A depth that coincides with a node belongs to the segment below.
+    A depth inside a zone's open interval sees the part of the zone's inflow that entered on the
+    upstream side of it: the zone is split there into two parts carrying the same water, with
+    the flows of :meth:`WellGeometry.fraction_above`.
     """
     flows = np.asarray(flows, float)
     values = _as_values(flows, zone_values)
     depth = np.atleast_1d(np.asarray(depth, float))
-    seg_down, comp_down, comp_up = _sweeps(flows, geometry, values)
-    nd = geometry.node_depth
-    idx = np.searchsorted(nd, depth, side="right")  # segment index: between node idx-1 and idx
     m = values.shape[-1]
     out = np.full(flows.shape[:-1] + (len(depth), m), np.nan)
-    for j, s in enumerate(idx):
+    plain = None
+    for j, z in enumerate(depth):
+        split = _split_zone(flows, geometry, values, float(z))
+        if split is None:
+            if plain is None:
+                plain = _sweeps(flows, geometry, values)
+            f, g, sweeps = flows, geometry, plain
+        else:
+            f, g, v = split
+            sweeps = _sweeps(f, g, v)
+        seg_down, comp_down, comp_up = sweeps
+        nd = g.node_depth
+        s = int(np.searchsorted(nd, z, side="right"))  # segment between nodes s-1 and s
         if s == 0 or s == len(nd):
             continue
         down = seg_down[s - 1]
-        c = np.where(down[..., None] > 0, comp_down[s - 1],
-                     np.where(down[..., None] < 0, comp_up[s], np.nan))
-        out[..., j, :] = c
+        out[..., j, :] = np.where(down[..., None] > 0, comp_down[s - 1],
+                                  np.where(down[..., None] < 0, comp_up[s], np.nan))
     return out

@@ -18,7 +18,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from blendq.errors import InputError
+from blendq.errors import InputError, ModelError
 from blendq.inputs.project import Project
 from blendq.well import hydraulics, mixing
 
@@ -74,25 +74,100 @@ class WellModel:
         c = np.asarray(self.well_loss, float)[..., None]
         return -hydraulics.pumping_level_head(st.wellbore_head, st.rate, c)
 
+    def at_horizon(self, factor) -> WellModel:
+        """The well at the operating horizon: each zone's response to pumping scaled by
+        ``factor`` (G_i(horizon) / G_i(test)), the ambient crossflow held.
+
+        The ambient crossflow q0_i (at Q = 0, wellbore head h_w0) is a steady state that was
+        there before the test; pumping superposes a response whose conductance falls with time
+        (linear superposition; Cooper and Jacob 1946). With G'_i = f_i G_i the static heads are
+        moved to h0'_i = h_w0 + q0_i / G'_i + D_i q0_i |q0_i| so that the model at Q = 0 still
+        gives h_w0 and q0_i exactly, while q_i - q0_i follows G'_i. For linear zones this is
+        q_i(Q) = q0_i + G'_i (h_w0 - h_w(Q)) with sum_i q_i = Q.
+
+        Parameters
+        ----------
+        factor : array_like (n_zones,)
+            G_i(horizon) / G_i(test) [-] (:func:`horizon_factor`).
+        """
+        f = np.asarray(factor, float)
+        if np.all(f == 1.0):
+            return self
+        amb = self.state(np.zeros(1))
+        hw0 = amb.wellbore_head[..., 0]
+        q0 = amb.zone_flow[..., 0, :]
+        g = np.asarray(self.conductance, float) * f
+        d = np.asarray(self.nonlinear_loss, float)
+        h0 = hw0[..., None] + q0 / g + d * q0 * np.abs(q0)
+        return replace(self, conductance=g, static_head=h0)
+
     def with_changes(self, **kw) -> WellModel:
         """A copy with some attributes replaced."""
         return replace(self, **kw)
 
 
 def geometry_of(project: Project) -> mixing.WellGeometry:
-    """Zone depths and intake depth of a project."""
+    """Zone depths and the intake of the step test (what the flow logs and depth samples were
+    taken against): the geometry of the fit."""
     return mixing.WellGeometry(project.zone_top, project.zone_bottom,
-                               project.well.pump_intake_depth)
+                               project.well.pump_intake_depth, _sublayers(project))
+
+
+def _sublayers(project: Project) -> tuple | None:
+    """Each zone's sub-layers (or None: uniform inflow), or None when no zone has any."""
+    layers = tuple(np.asarray(z.sublayers, float) if z.sublayers else None
+                   for z in project.zones)
+    return layers if any(x is not None for x in layers) else None
+
+
+def operating_geometry(project: Project) -> mixing.WellGeometry:
+    """Zone depths and the intake for operation (``well.operating_intake_depth``, else the
+    test's): the geometry of the sweep, the window and the scenarios."""
+    return mixing.WellGeometry(project.zone_top, project.zone_bottom,
+                               project.well.operating_intake, _sublayers(project))
 
 
 def elapsed_test_time(project: Project) -> float:
-    """Elapsed time from the start of the step test to the end of its last step [d]."""
-    steps = project.steps
-    if steps.empty:
-        return 1.0
-    dur = np.asarray(steps["duration"], float)
-    total = float(np.nansum(dur))
-    return total if total > 0 else 1.0
+    """Pumping time of the step test [d]: the sum of the step durations (each from its
+    ``duration``, or its start and end). The time the fitted conductances belong to.
+
+    Raises
+    ------
+    InputError
+        When a zone is transient (Cooper-Jacob) and a step has no duration, naming the steps
+        file, row and field: no duration is assumed. Without a transient zone the time is not
+        used, and NaN is returned when it is unknown.
+    """
+    from blendq.well.steptest import validated_schedule
+
+    label = project.files.get("steps", "steps.csv") if project.files else "steps.csv"
+    transient = "transient" in zone_conductance_models(project)
+    if project.steps is None or project.steps.empty:
+        if transient:
+            raise InputError("the steps table has no steps: transient (Cooper-Jacob) zone "
+                             "conductances need the test's pumping time", file=label)
+        return float("nan")
+    sched = validated_schedule(project.steps, label, need_times=False)
+    dur = np.asarray(sched["duration"], float)
+    bad = np.flatnonzero(~(np.isfinite(dur) & (dur > 0)))
+    if len(bad):
+        if transient:
+            raise InputError("duration missing: transient (Cooper-Jacob) zone conductances need "
+                             "each step's duration (or its start and end)", file=label,
+                             row=sched["row"][bad[0]], field="duration")
+        return float("nan")
+    return float(dur.sum())
+
+
+def transient_slope(project: Project) -> np.ndarray:
+    """Per zone 1 / (4 pi T_i) [d/m^2] for a transient (Cooper-Jacob) zone with T and S known,
+    0 for the others: the growth of 1 / G_i per unit of ln t (Cooper and Jacob 1946)."""
+    out = []
+    for z, use in zip(project.zones, zone_conductance_models(project), strict=True):
+        t = z.zone_transmissivity
+        ok = use == "transient" and t is not None and z.storativity is not None
+        out.append(1.0 / (4.0 * np.pi * t) if ok else 0.0)
+    return np.array(out, float)
 
 
 def property_conductance(project: Project, time: float | None, model: str | None = None) -> np.ndarray:
@@ -112,19 +187,11 @@ def property_conductance(project: Project, time: float | None, model: str | None
     InputError
         When a zone lacks what the model needs.
     """
-    model = model or project.settings.conductance_model
     out = []
     rw = project.well.well_radius
     label = project_file_name(project)
-    for i, z in enumerate(project.zones):
-        use = model
-        if model in ("auto", "flowlog"):
-            if z.conductance is not None:
-                use = "given"
-            elif z.storativity is not None:
-                use = "transient"
-            else:
-                use = "steady"
+    for i, (z, use) in enumerate(zip(project.zones, zone_conductance_models(project, model),
+                                     strict=True)):
         if use == "given":
             if z.conductance is None:
                 raise InputError(f'zone "{z.name}" has no conductance', file=label,
@@ -150,24 +217,120 @@ def property_conductance(project: Project, time: float | None, model: str | None
     return np.array(out)
 
 
-def horizon_factor(project: Project, conductance_test_time: float, horizon: float) -> np.ndarray:
-    """Factor G_i(horizon) / G_i(test) per zone [-] from Cooper-Jacob; 1 where S is unknown.
+def zone_conductance_models(project: Project, model: str | None = None) -> list[str]:
+    """The conductance model of each zone: "given", "steady" or "transient".
 
-    Fitted conductances describe the well over the step test; for long-term operation the
-    cone of depression keeps growing, so each zone's conductance falls as
-    1 / (ln(2.25 T t / (r_w^2 S)) + 2 s) (Cooper and Jacob 1946).
+    ``settings.conductance_model`` (or ``model``) "steady", "transient" and "given" apply to
+    every zone; "auto" and "flowlog" take a zone's given conductance, else Cooper-Jacob when its
+    storativity is known, else Thiem (docs/methods.md, section 1).
     """
-    f = []
+    model = model or project.settings.conductance_model
+    if model not in ("auto", "flowlog"):
+        return [model] * len(project.zones)
+    return ["given" if z.conductance is not None else
+            "transient" if z.storativity is not None else "steady" for z in project.zones]
+
+
+@dataclass(frozen=True)
+class HorizonScaling:
+    """How each zone's conductance is carried from the step test to the operating horizon.
+
+    Attributes
+    ----------
+    factor : ndarray (n_zones,)
+        G_i(horizon) / G_i(test) [-].
+    basis : list of str
+        Per zone, what the factor rests on (for the report).
+    assumed : list of int
+        Zones of a transient model held at their test value for want of transmissivity and
+        storativity (an assumption the report states).
+    """
+
+    factor: np.ndarray
+    basis: list[str]
+    assumed: list[int]
+
+    def note(self, project: Project) -> str:
+        """One sentence on the zones held at their test value by assumption ("" if none)."""
+        if not self.assumed:
+            return ""
+        names = ", ".join(project.zones[i].name for i in self.assumed)
+        return (f"The transient model carries each zone's conductance to the operating horizon "
+                f"by Cooper-Jacob; {names} lack(s) the transmissivity or storativity this needs "
+                "and is held at its step-test conductance (an assumption: its response would "
+                "weaken with time like the other zones').")
+
+
+def horizon_scaling(project: Project, conductance_test_time: float,
+                    horizon: float) -> HorizonScaling:
+    """Factor G_i(horizon) / G_i(test) per zone [-], following each zone's conductance model.
+
+    Fitted conductances describe the well's response to pumping at the end of the step test.
+
+    * transient zones (Cooper-Jacob): the cone of depression keeps growing, so the factor is
+      (ln(2.25 T t_test / (r_w^2 S)) + 2 s) / (ln(2.25 T t_h / (r_w^2 S)) + 2 s) (Cooper and
+      Jacob 1946); a transient zone without T or S is held at 1 and listed in ``assumed``;
+    * steady zones (Thiem): the conductance does not change with time (factor 1);
+    * given conductances: held as given (factor 1).
+
+    References
+    ----------
+    Cooper, H.H. and Jacob, C.E. (1946) A generalized graphical method for evaluating formation
+    constants and summarizing well-field history. Trans. AGU 27(4), 526-534.
+    """
+    f, basis, assumed = [], [], []
     rw = project.well.well_radius
-    for z in project.zones:
+    for i, (z, use) in enumerate(zip(project.zones, zone_conductance_models(project),
+                                     strict=True)):
         t = z.zone_transmissivity
-        if z.conductance is not None or t is None or z.storativity is None:
+        if use == "given":
             f.append(1.0)
-            continue
-        g1 = hydraulics.cooper_jacob_conductance(t, z.storativity, conductance_test_time, rw, z.skin)
-        g2 = hydraulics.cooper_jacob_conductance(t, z.storativity, horizon, rw, z.skin)
-        f.append(float(g2 / g1))
-    return np.array(f)
+            basis.append("given conductance: held as given")
+        elif use == "steady":
+            f.append(1.0)
+            basis.append("steady (Thiem): no change with time")
+        elif t is None or z.storativity is None:
+            f.append(1.0)
+            basis.append("transient, no transmissivity or storativity: held at its test value "
+                         "(assumed)")
+            assumed.append(i)
+        else:
+            g1 = hydraulics.cooper_jacob_conductance(t, z.storativity, conductance_test_time, rw,
+                                                     z.skin)
+            g2 = hydraulics.cooper_jacob_conductance(t, z.storativity, horizon, rw, z.skin)
+            f.append(float(g2 / g1))
+            basis.append("transient (Cooper-Jacob ratio)")
+    return HorizonScaling(np.array(f, float), basis, assumed)
+
+
+def horizon_factor_of(conductance, slope, test_time: float, horizon: float) -> np.ndarray:
+    """G_i(t_h) / G_i(t_ref) [-] of conductances G_i(t_ref) [m^2/d] (any batch shape).
+
+    With 1 / G_i(t) = 1 / G_i(t_ref) + slope_i ln(t / t_ref), slope_i = 1 / (4 pi T_i) for a
+    transient zone and 0 for a steady or given one (:func:`transient_slope`), the factor is
+    1 / (1 + G_i slope_i ln(t_h / t_ref)): Cooper-Jacob with the skin the conductance implies
+    (Cooper and Jacob 1946; the same law as the step levels of :mod:`blendq.well.transient`).
+    For G_i from the zone properties it equals the ratio of :func:`horizon_scaling`.
+
+    Raises
+    ------
+    ModelError
+        When the horizon lies so far before the test time that a conductance turns negative.
+    """
+    slope = np.asarray(slope, float)
+    if not np.any(slope > 0):
+        return np.ones(np.shape(conductance))
+    denom = 1.0 + np.asarray(conductance, float) * slope * np.log(horizon / test_time)
+    if np.any(denom <= 0):
+        raise ModelError(f"an operating horizon of {horizon:g} d is too short next to the test "
+                         f"time {test_time:g} d for the Cooper-Jacob form")
+    return 1.0 / denom
+
+
+def horizon_factor(project: Project, conductance_test_time: float, horizon: float) -> np.ndarray:
+    """Factor G_i(horizon) / G_i(test) per zone [-]: :attr:`HorizonScaling.factor` of
+    :func:`horizon_scaling` (1 for steady zones and given conductances)."""
+    return horizon_scaling(project, conductance_test_time, horizon).factor
 
 
 @dataclass(frozen=True)

@@ -111,7 +111,7 @@ class StepDrawdownResult:
         return _summary_lines(self, display_units)
 
 
-def _schedule(steps: pd.DataFrame, steps_file: str, need_times: bool):
+def validated_schedule(steps: pd.DataFrame, steps_file: str, need_times: bool):
     """Validated step schedule in time order (dict of arrays; times in d from the first start)."""
     if steps is None or len(steps) == 0:
         raise InputError("the steps table has no steps", file=steps_file)
@@ -257,7 +257,7 @@ def analyse_step_test(steps: pd.DataFrame, static_level: float, levels: pd.DataF
     if method == "equal time" and not has_levels:
         raise InputError("the equal-time (Hantush-Bierschenk) analysis needs the water-level "
                          "record", file=levels_file)
-    sched = _schedule(steps, steps_file, need_times=has_levels)
+    sched = validated_schedule(steps, steps_file, need_times=has_levels)
     n = len(sched["rate"])
     notes: list[str] = []
     increments = None

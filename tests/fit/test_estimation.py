@@ -26,7 +26,7 @@ import pandas as pd
 import pytest
 import synthetic_wells as sw
 
-from blendq.errors import ModelError
+from blendq.errors import InputError, ModelError
 from blendq.fit import estimation
 from blendq.fit.estimation import (
     FitOptions,
@@ -279,3 +279,126 @@ def test_fit_that_does_not_converge_raises(monkeypatch):
     monkeypatch.setattr(estimation.optimize, "least_squares", stopped)
     with pytest.raises(ModelError, match="did not converge from any starting point"):
         fit(sw.without_priors(sw.project(seed=1, relative_error=0.05)))
+
+
+def test_operating_intake_changes_operation_not_the_fit():
+    # the test intake (what the logs and samples were taken against) sets the fit; the
+    # operating intake only the predictions for operation (docs/input-files.md, "Two intakes")
+    from blendq.decide.sweep import sweep
+    from blendq.fit.uncertainty import monte_carlo
+
+    base = sw.project(25.0)
+    moved = dataclasses.replace(
+        base, well=dataclasses.replace(base.well, operating_intake_depth=105.0))
+    same = dataclasses.replace(
+        base, well=dataclasses.replace(base.well, operating_intake_depth=25.0))
+    fits = [fit(p) for p in (base, moved, same)]
+    for other in fits[1:]:
+        np.testing.assert_array_equal(other.theta, fits[0].theta)
+        np.testing.assert_array_equal(other.zone_values(), fits[0].zone_values())
+        assert other.model.geometry.intake_depth == 25.0
+    draws = monte_carlo(fits[0], 20, seed=3)
+    rates = np.array([500.0, 1500.0, 3000.0])
+    p0, p1, p2 = (sweep(f, draws, rates) for f in fits)
+    # the operating intake equal to the test intake changes nothing
+    np.testing.assert_array_equal(p2.concentration, p0.concentration)
+    # a deeper operating intake: the shares of the model with that intake, same zone flows
+    np.testing.assert_array_equal(p1.zone_flow, p0.zone_flow)
+    deep = sweep(fits[0], draws, rates,
+                 changes=lambda m: m.with_changes(geometry=dataclasses.replace(
+                     m.geometry, intake_depth=105.0)))
+    np.testing.assert_array_equal(p1.shares, deep.shares)
+    assert np.abs(p1.shares - p0.shares).max() > 0.01
+
+
+def test_flow_log_stations_inside_screens_fit_the_truth():
+    # stations inside the open intervals, their flows written out by hand from the true zone
+    # flows with the analytic rise through a uniform screen (intake above every zone, flow up):
+    # F(z) = (inflow of the zones below) + q_i (bottom_i - z) / b_i. With noise-free data the
+    # joint fit must still return the truth (Golub and Pereyra 1973), with no pull from them.
+    from blendq.well.hydraulics import solve_wellbore_head
+
+    p = sw.without_priors(sw.project(25.0))
+    logs = p.flowlogs
+    extra = []
+    for (_log, rate), rows in logs.groupby(["log", "rate"]):
+        q = solve_wellbore_head([float(rate)], sw.G, sw.H0).zone_flow[0]
+        for i, z in [(0, 32.0), (0, 38.5), (1, 55.0), (3, 91.0)]:
+            below = q[i + 1:].sum() + q[i] * (sw.BOT[i] - z) / (sw.BOT[i] - sw.TOP[i])
+            row = rows.iloc[0].copy()
+            row["depth"], row["upward_flow"] = z, below
+            extra.append(row)
+    p.flowlogs = pd.concat([logs, pd.DataFrame(extra)], ignore_index=True)
+    result = fit(p)
+    _check_recovery(result, c_rtol=1e-6, h_rtol=1e-4)
+    assert result.cost < 1e-10
+
+
+def _transient_project(durations=True):
+    # the synthetic well made transient: each zone gets a T and S and the skin that makes its
+    # Cooper-Jacob conductance at the test time equal to the true G (so the priors sit at the
+    # truth); its step levels are replaced by the superposed ones of blendq.well.transient
+    # (checked against ttim in tests/well/test_transient.py)
+    from blendq.well.model import elapsed_test_time, transient_slope
+    from blendq.well.transient import step_levels, step_schedule
+
+    p = sw.project(25.0, settings=Settings(conductance_model="transient"))
+    t_ref = elapsed_test_time(p)
+    t_zone, s_zone = 1.4 * sw.G, 1e-4  # skins near zero
+    big_l = np.log(2.25 * t_zone * t_ref / (p.well.well_radius**2 * s_zone))
+    skin = 0.5 * (4 * np.pi * t_zone / sw.G - big_l)
+    p.zones = [dataclasses.replace(z, conductance=None, transmissivity=float(t), storativity=s_zone,
+                                   skin=float(s)) for z, t, s in zip(p.zones, t_zone, skin, strict=True)]
+    hw, _ = step_levels(sw.G, sw.H0, np.zeros(4), transient_slope(p), step_schedule(p, t_ref))
+    steps = p.steps.copy()
+    rates = steps["rate"].to_numpy(float)
+    steps["pumping_level"] = -(hw - sw.WELL_LOSS * rates**2)
+    if not durations:
+        steps = steps.drop(columns=[c for c in ("start", "end") if c in steps])
+        steps["duration"] = np.nan
+    p.steps = steps
+    return p
+
+
+def test_transient_levels_superposed_in_time_are_fitted_exactly():
+    # noise-free levels superposed in time (Cooper and Jacob 1946) with the true well loss:
+    # the joint fit returns the truth, C included (Golub and Pereyra 1973); the former steady
+    # reading of the same levels (given conductances) puts the growth of the cone into C
+    p = _transient_project()
+    result = fit(p)
+    assert result.problem.schedule is not None
+    _check_recovery(result, c_rtol=1e-5, h_rtol=1e-4)
+    np.testing.assert_allclose(result.theta[-1], sw.WELL_LOSS, rtol=1e-3)
+    # not a trivial check: the levels differ from the steady reading at the truth by more
+    # than their stated error
+    steady = result.model.with_changes(conductance=sw.G, static_head=sw.H0,
+                                       well_loss=sw.WELL_LOSS)
+    rates = p.steps["rate"].to_numpy(float)
+    gap = np.abs(steady.pumping_level_depth(rates) - p.steps["pumping_level"].to_numpy(float))
+    assert gap.max() > 3 * p.settings.level_error
+
+
+def test_transient_zones_need_step_durations():
+    with pytest.raises(InputError) as err:
+        build_problem(_transient_project(durations=False))
+    assert err.value.field == "duration" and err.value.row is not None
+
+
+def test_draws_see_the_levels_in_time():
+    # the posterior draws' batched residuals use the fit's level model: at the fitted theta
+    # they equal the fit's own (scalar) residuals
+    from blendq.fit.estimation import level_depths
+
+    p = _transient_project()
+    result = fit(p)
+    problem = result.problem
+    batch = problem.model(np.stack([result.theta, result.theta]))
+    one = level_depths(problem, result.model)
+    both = level_depths(problem, batch)
+    assert both.shape == (2, len(one))
+    np.testing.assert_allclose(both[1], one, rtol=1e-12)
+    from blendq.fit.uncertainty import _hydraulic_residuals_batch
+
+    r = _hydraulic_residuals_batch(problem, np.stack([result.theta]), problem.model(
+        np.stack([result.theta])))
+    np.testing.assert_allclose(np.abs(r).max(), 0.0, atol=1e-4)

@@ -135,15 +135,17 @@ def test_predict_shapes_and_consistency(joint):
     assert np.all(np.diff(pred.pumping_level, axis=1) > 0)
 
 
-def test_conductance_factor_is_a_rate_rescaling(fixed):
-    # linear zone law: all G x f at rate Q <=> rate Q / f (same shares, same blend)
+def test_uniform_conductance_factor_keeps_the_blend(fixed):
+    # the horizon factor scales each zone's response to pumping and holds the ambient
+    # crossflow (WellModel.at_horizon); with every G x f the zone flows, hence the shares and
+    # the blend, are those of the test, and only the level changes
     result, draws = fixed
     rates = np.array([300.0, 900.0, 2400.0])
-    f = 0.6
-    a = uncertainty.predict(result, draws, rates, conductance_factor=np.full(4, f))
-    b = uncertainty.predict(result, draws, rates / f)
+    a = uncertainty.predict(result, draws, rates, conductance_factor=np.full(4, 0.6))
+    b = uncertainty.predict(result, draws, rates)
     np.testing.assert_allclose(a.shares, b.shares, rtol=1e-10, atol=1e-13)
     np.testing.assert_allclose(a.concentration, b.concentration, rtol=1e-10)
+    assert np.all(a.pumping_level > b.pumping_level)
 
 
 def test_changes_hook_seals_a_zone(fixed):

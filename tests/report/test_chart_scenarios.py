@@ -101,11 +101,17 @@ def test_window_strip_bars_match_each_window(setup):
 def test_empty_window_is_said(setup):
     a, comp = setup
     empty = [r for r in comp.results if r.window.empty]
-    assert empty  # sealing the upper sand closes the demo's window
+    assert empty  # sealing the upper sand leaves the demo no decided rate
     fig = scenario_chart(comp, a.limits, "US")
     texts = [t.get_text() for t in fig.axes[-1].texts]
-    assert texts.count("no window") == len(empty)
-    assert any(line.endswith("no window") for line in window_summary(comp))
+    # an empty window is "no window" when the data decide it, else "cannot tell"
+    assert texts.count("no window") == sum(not r.cannot_tell for r in empty)
+    assert texts.count("cannot tell (see what would tell)") == sum(
+        r.cannot_tell for r in comp.results)
+    summary = window_summary(comp)
+    for r in empty:
+        end = "cannot tell" if r.cannot_tell else "no window"
+        assert any(line == f"{r.scenario.name}: {end}" for line in summary)
 
 
 def test_png_and_svg_written(setup, tmp_path):

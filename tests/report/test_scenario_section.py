@@ -61,8 +61,11 @@ def test_display_table_units(setup):
     assert gpm == pytest.approx(comp.results[0].window.recommended / 5.450992969, rel=2e-3)
     assert us["Nitrate (as N) median"].iloc[0].endswith("mg/L")
     assert us["Arsenic median"].iloc[0].endswith("ug/L")
+    # an empty window reads "none" when the data decide it, else "cannot tell"
     empty = [i for i, r in enumerate(comp.results) if r.window.empty]
-    assert all(us["Operating window"].iloc[i] == "none" for i in empty)
+    assert empty
+    assert all(us["Operating window"].iloc[i] == ("cannot tell" if comp.results[i].cannot_tell
+                                                  else "none") for i in empty)
 
 
 def test_widest_sentence_when_base_is_widest(setup):

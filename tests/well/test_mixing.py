@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 
 from blendq.well.hydraulics import solve_wellbore_head
@@ -163,14 +163,21 @@ def test_izbicki_mass_balance_recovers_zone_value(zone):
     geom = _geometry(10.0)
     q = np.array([100.0, 200.0, 300.0])
     values = np.array([5.0, 20.0, 2.0])
-    mid = 0.5 * (np.array(TOPS) + np.array(BOTTOMS))
-    above, below = mid[zone] - 0.1, mid[zone] + 0.1
+    above, below = TOPS[zone] - 0.1, BOTTOMS[zone] + 0.1
     f_above, f_below = wellbore_flow(q, geom, [above, below])
     c_above, c_below = wellbore_composition(q, geom, [above, below], values)[:, 0]
     # below the bottom zone the well is stagnant: no flow and no composition
     c_below = 0.0 if f_below == 0 else c_below
     c_zone = (f_above * c_above - f_below * c_below) / (f_above - f_below)
     assert c_zone == pytest.approx(values[zone], rel=1e-12)
+    # two stations inside the screen: only the zone's water enters between them, so the
+    # balance gives the zone's value there too
+    inner = [TOPS[zone] + 2.0, TOPS[zone] + 7.0]
+    f_in = wellbore_flow(q, geom, inner)
+    c_in = wellbore_composition(q, geom, inner, values)[:, 0]
+    assert f_in[0] - f_in[1] == pytest.approx(0.5 * q[zone], rel=1e-12)
+    assert (f_in[0] * c_in[0] - f_in[1] * c_in[1]) / (f_in[0] - f_in[1]) == pytest.approx(
+        values[zone], rel=1e-12)
     if zone == 1:
         assert (f_above, c_above, f_below, c_below) == pytest.approx((500.0, 9.2, 300.0, 2.0),
                                                                      rel=1e-12)
@@ -269,17 +276,21 @@ def test_no_discharge_weights_at_zero_rate(well):
 @settings(max_examples=150)
 @given(wells())
 def test_wellbore_flow_matches_cumulative_zone_flows(well):
+    # analytic: a zone's inflow enters uniformly over its open interval, so the flow through
+    # a screen rises linearly with height (mass balance of a uniform line source)
     geom, flows, rate, _ = well
-    depths = _segment_depths(geom)
-    mid = 0.5 * (geom.zone_top + geom.zone_bottom)
-    # upward flow past depth z = inflow of everything below z (zones below, minus the pump if
-    # the intake is below)
-    expected = np.array([flows[mid > z].sum() - (rate if geom.intake_depth > z else 0.0)
-                         for z in depths])
+    top, bot = geom.zone_top, geom.zone_bottom
+    ends = [min(top[0], geom.intake_depth) - 1.0, max(bot[-1], geom.intake_depth) + 1.0]
+    depths = np.concatenate([_segment_depths(geom), top + 0.3 * (bot - top),
+                             top + 0.8 * (bot - top), ends])
+    # upward flow past depth z = inflow entering below z (the part of each zone's interval
+    # below z), minus the pump if the intake is below
+    below = np.clip((bot[None, :] - depths[:, None]) / (bot - top)[None, :], 0.0, 1.0)
+    expected = below @ flows - rate * (geom.intake_depth > depths)
     np.testing.assert_allclose(wellbore_flow(flows, geom, depths), expected, rtol=0.0,
                                atol=1e-9 * _scale(flows, rate))
-    # the well is stagnant above the top node and below the bottom node
-    assert abs(expected[0]) <= 1e-9 * _scale(flows, rate)
+    # the well is stagnant above the top zone or intake and below the bottom one
+    assert abs(expected[-2]) <= 1e-9 * _scale(flows, rate)
     assert abs(expected[-1]) <= 1e-9 * _scale(flows, rate)
 
 
@@ -317,12 +328,11 @@ def test_global_mass_balance_of_each_zone_water(well):
     sink = np.zeros(n)
     if rate > 0:
         sink += rate * discharge_weights(flows, geom)
-    nd = list(geom.node_depth)
-    nodes = geom.nodes
     for t in np.flatnonzero(flows < 0):
-        k = nodes.index(int(t))
-        above = nd[k] - 1e-3 if k == 0 else 0.5 * (nd[k - 1] + nd[k])
-        below = nd[k] + 1e-3 if k == len(nd) - 1 else 0.5 * (nd[k] + nd[k + 1])
+        # what arrives at the thief's open interval from above and from below (the intake
+        # inside a thief's interval would take a part of it on the way: not this check)
+        above, below = geom.zone_top[t], geom.zone_bottom[t]
+        assume(not (above < geom.intake_depth < below))
         f_above, f_below = wellbore_flow(flows, geom, [above, below])
         c_above, c_below = wellbore_composition(flows, geom, [above, below])
         arriving = 0.0
@@ -362,3 +372,57 @@ def test_izbicki_mass_balance_property(inflows, concentrations):
     # absolute tolerance: a billionth of the largest value, and never below 1e-12 mg/L (a
     # subnormal concentration such as 5e-324 is rounding, not water quality)
     np.testing.assert_allclose(c_zone, values, rtol=1e-9, atol=1e-12 + 1e-9 * values.max())
+
+
+# ---------------------------------------------------------------------------------------------
+# flow inside a screen
+# ---------------------------------------------------------------------------------------------
+
+
+def test_flow_through_a_uniform_screen_rises_linearly():
+    # analytic: a uniform line source (inflow per unit length q / b) with the intake above
+    # and the well closed below gives an upward flow q (bottom - z) / b at depth z in the screen
+    geom = WellGeometry([40.0], [60.0], 30.0)
+    q = np.array([[500.0]])
+    z = np.linspace(40.0, 60.0, 11)
+    np.testing.assert_allclose(wellbore_flow(q, geom, z)[0], 500.0 * (60.0 - z) / 20.0,
+                               rtol=1e-12, atol=1e-9)
+    # intake below: the flow is downward and grows with depth, -q (z - top) / b
+    geom = WellGeometry([40.0], [60.0], 70.0)
+    np.testing.assert_allclose(wellbore_flow(q, geom, z)[0], -500.0 * (z - 40.0) / 20.0,
+                               rtol=1e-12, atol=1e-9)
+
+
+def _timml_layers(conductivity, thickness, gap):
+    pytest.importorskip("timml")
+    from reference.timml_well import timml_zone_flows
+
+    q, _ = timml_zone_flows(2000.0, conductivity, thickness, np.zeros(len(thickness)), 300.0,
+                            0.15, aquitard_thickness=gap)
+    tops = 50.0 + np.concatenate([[0.0], np.cumsum(np.asarray(thickness) + gap)[:-1]])
+    return q, tops, tops + np.asarray(thickness)
+
+
+@pytest.mark.parametrize("conductivity", [[20.0] * 5, [5.0, 40.0, 12.0, 60.0, 20.0]])
+def test_flow_in_a_screen_matches_timml_split_into_layers(conductivity):
+    # timml (PyPI; Bakker's analytic-element multi-aquifer model, tests/reference/timml_well.py):
+    # one screened zone built as five timml layers (1e-4 m partings, nearly impervious) with a
+    # common head in the well. The upward flow at each layer boundary (intake above the zone)
+    # is the timml inflow of the layers below; blendq must give it at that depth with the
+    # zone's inflow spread in proportion to K x thickness: for a uniform K, blendq's plain
+    # zone (no sub-layers: the linear rise), otherwise the zone with the layers as sub-layers
+    thick = np.array([2.0, 3.0, 1.5, 2.5, 2.0])
+    q, tops, bots = _timml_layers(conductivity, thick, gap=1e-4)
+    assert q.sum() == pytest.approx(2000.0, rel=1e-6)
+    stations = np.concatenate([tops, [bots[-1]]])
+    logged = np.concatenate([np.cumsum(q[::-1])[::-1], [0.0]])
+    uniform = len(set(conductivity)) == 1
+    sub = None if uniform else (np.column_stack([tops, bots, conductivity]),)
+    geom = WellGeometry([tops[0]], [bots[-1]], 40.0, sub)
+    predicted = wellbore_flow(np.array([q.sum()]), geom, stations)
+    # tolerance: timml's ring boundary and, for the plain zone, the 4e-4 m of partings
+    np.testing.assert_allclose(predicted, logged, rtol=1e-4, atol=0.1)
+    if not uniform:
+        # the spread is not the plain linear rise here
+        linear = 2000.0 * (bots[-1] - stations) / (bots[-1] - tops[0])
+        assert np.abs(linear - logged).max() > 50.0

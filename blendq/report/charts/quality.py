@@ -418,9 +418,9 @@ def pumping_level(pred: Prediction, project: Project, window: Window | None = No
         deepest.append(d)
         ax.axhline(d, linewidth=1.4, label=f"{text} ({d:.3g} {depth_label})", **style)
 
-    level_line(well.pump_intake_depth, "pump intake", color=BLACK)
+    level_line(well.operating_intake, "pump intake", color=BLACK)
     if well.submergence > 0:
-        level_line(well.pump_intake_depth - well.submergence,
+        level_line(well.operating_intake - well.submergence,
                    "intake less submergence (deepest allowed level)", color=VERMILLION,
                    linestyle="--")
     if project.zones:

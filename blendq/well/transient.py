@@ -1,0 +1,176 @@
+"""Pumping levels of a step test with the rate increments superposed in time, zone by zone.
+
+The zone model of :mod:`blendq.well.model` holds, per zone, the conductance G_i of the response
+to pumping at a reference time t_ref (the end of the step test) and the static head h0_i; at
+Q = 0 it has the ambient wellbore head h_w0 and the ambient zone flows q0_i, a steady state that
+was there before the test. A transient (Cooper-Jacob) zone's unit response after a time tau
+since a change of its flow is
+
+    W_i(tau) = 1 / G_i(tau) = 1 / G_i(t_ref) + ln(tau / t_ref) / (4 pi T_i)
+
+(Cooper and Jacob 1946: 1 / G = (ln(2.25 T tau / (r_w^2 S)) + 2 s) / (4 pi T), so only T_i is
+needed besides the fitted G_i(t_ref)); a steady or given zone has W_i = 1 / G_i at every time.
+The zone flows change at the times t_0 < t_1 < ... of a grid that holds every rate change and
+points inside each step (more of them early on); between grid points they are held. At grid
+point t_m the common wellbore head h_w,m and the flows q_i,m solve
+
+    h_w0 - h_w,m = sum_{j <= m} (q_i,j - q_i,j-1) W_i(t_m - t_(j-1)) + D_i (q_i,m |q_i,m| - q0_i |q0_i|)
+    sum_i q_i,m = Q(t_m)
+
+with q_i,0 = q0_i: the superposition of each zone's flow increments in time, recoveries (rate 0)
+included. The unknowns enter only through the newest increment, so each point is the
+common-head problem of :func:`blendq.well.hydraulics.solve_wellbore_head` with conductances
+1 / W_i(t_m - t_(m-1)) and heads moved by the memory of the earlier increments.
+
+A step that follows a full recovery (``recovered_before`` with no start times) begins a new
+sequence from the ambient state. The pumping level at the end of a step is h_w - C Q^2 there.
+
+References
+----------
+Cooper, H.H. and Jacob, C.E. (1946) A generalized graphical method for evaluating formation
+constants and summarizing well-field history. Trans. AGU 27(4), 526-534.
+Konikow, L.F., Hornberger, G.Z., Halford, K.J. and Hanson, R.T. (2009) Revised multi-node well
+(MNW2) package for MODFLOW ground-water flow model. USGS Techniques and Methods 6-A30.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from blendq.errors import InputError
+from blendq.inputs.project import Project
+from blendq.well import hydraulics
+from blendq.well.steptest import validated_schedule
+
+#: where inside each rate period the zone flows are updated, as fractions of the period
+#: (denser early, where the response changes fastest); a numerical setting checked against
+#: ttim in tests/well/test_transient.py
+SUBSTEP_FRACTIONS = np.array([0.01, 0.03, 0.07, 0.15, 0.3, 0.55, 1.0])
+#: smallest unit response kept, as a fraction of 1 / G_i(t_ref): a guard against the
+#: Cooper-Jacob log term turning negative very early after a change (common practice: the
+#: approximation is not valid there anyway)
+MIN_RESPONSE_FRACTION = 0.05
+
+
+@dataclass(frozen=True)
+class Schedule:
+    """Rate schedule of a step test as sequences of rate periods, in base units.
+
+    Attributes
+    ----------
+    sequences : list of (start, end, rate) arrays
+        Per sequence (a new one after a full recovery given without start times), the time
+        each rate period begins and ends [d from the sequence's start] and its rate [m^3/d]; a
+        rate 0 is a recovery.
+    level_step : list of (sequence index, period index)
+        For each step in the project's order: the period whose end gives its level.
+    reference_time : float
+        t_ref [d]: the time the fitted conductances belong to (:func:`model.elapsed_test_time`).
+    """
+
+    sequences: list
+    level_step: list
+    reference_time: float
+
+
+def step_schedule(project: Project, reference_time: float) -> Schedule:
+    """The step test's schedule for :func:`step_levels`.
+
+    With start times (and ends or durations) the steps are placed in time and a gap between two
+    steps is a recovery (rate 0); without them consecutive steps follow each other, and a step
+    marked ``recovered_before`` starts a new sequence from the ambient state. Needs every step's
+    duration (or its start and end): an :class:`InputError` naming the steps file, row and field
+    otherwise (no duration is assumed).
+    """
+    steps = project.steps
+    label = project.files.get("steps", "steps.csv") if project.files else "steps.csv"
+    sched = validated_schedule(steps, label, need_times=False)
+    dur = np.asarray(sched["duration"], float)
+    bad = np.flatnonzero(~(np.isfinite(dur) & (dur > 0)))
+    if len(bad):
+        raise InputError("duration missing: a transient zone model superposes the steps in "
+                         "time and needs each step's duration (or its start and end)",
+                         file=label, row=sched["row"][bad[0]], field="duration")
+    timed = bool(sched["timed"])
+    sequences, where = [], {}
+    periods: list[tuple[float, float, float]] = []
+    for k in range(len(dur)):
+        if k > 0 and not timed and bool(sched["sequence_start"][k]):
+            sequences.append(tuple(np.array(x) for x in zip(*periods, strict=True)))
+            periods = []
+        if timed:
+            t0 = float(sched["start"][k])
+            if periods and t0 > periods[-1][1] + 1e-9:
+                periods.append((periods[-1][1], t0, 0.0))  # a recovery between two steps
+        else:
+            t0 = periods[-1][1] if periods else 0.0
+        periods.append((t0, t0 + float(dur[k]), float(sched["rate"][k])))
+        where[sched["row"][k]] = (len(sequences), len(periods) - 1)
+    sequences.append(tuple(np.array(x) for x in zip(*periods, strict=True)))
+    src = steps["source_row"] if "source_row" in steps else [np.nan] * len(steps)
+    rows = [int(r) if r == r else i + 1 for i, r in enumerate(src)]
+    return Schedule(sequences, [where[r] for r in rows], float(reference_time))
+
+
+def unit_response(conductance, slope, tau, reference_time: float):
+    """W_i(tau) = 1 / G_i(tau) [d/m^2] (module docstring), floored at
+    :data:`MIN_RESPONSE_FRACTION` / G_i."""
+    w_ref = 1.0 / np.asarray(conductance, float)
+    w = w_ref + np.asarray(slope, float) * np.log(np.asarray(tau, float) / reference_time)
+    return np.maximum(w, MIN_RESPONSE_FRACTION * w_ref)
+
+
+def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Schedule):
+    """Wellbore head at the end of each step [m] and the zone flows there [m^3/d].
+
+    Parameters
+    ----------
+    conductance, static_head, nonlinear_loss : ndarray (..., n_zones)
+        G_i(t_ref) [m^2/d], h0_i [m], D_i [d^2/m^5].
+    slope : ndarray (n_zones,)
+        1 / (4 pi T_i) [d/m^2] for a transient zone, 0 for a steady or given one.
+    schedule : Schedule
+
+    Returns
+    -------
+    wellbore_head : ndarray (..., n_steps)
+    zone_flow : ndarray (..., n_steps, n_zones)
+    """
+    g = np.asarray(conductance, float)
+    h0 = np.asarray(static_head, float)
+    d = np.broadcast_to(np.asarray(nonlinear_loss, float), np.broadcast_shapes(g.shape, h0.shape))
+    has_d = bool(np.any(d > 0))
+    amb = hydraulics.solve_wellbore_head(np.zeros(1), g, h0, d if has_d else None)
+    hw0 = amb.wellbore_head[..., 0]
+    q0 = amb.zone_flow[..., 0, :]
+    t_ref = schedule.reference_time
+    out_h, out_q = {}, {}
+    for s, (start, end, rate) in enumerate(schedule.sequences):
+        grid = np.concatenate([[0.0], (start[:, None] + (end - start)[:, None]
+                                       * SUBSTEP_FRACTIONS[None, :]).ravel()])
+        grid_rate = np.concatenate([[0.0], np.repeat(rate, len(SUBSTEP_FRACTIONS))])
+        read = {k * len(SUBSTEP_FRACTIONS) + len(SUBSTEP_FRACTIONS): k
+                for k in range(len(start))}
+        increments = []  # q_j - q_(j-1), j = 1 .. m-1
+        last = q0
+        for m in range(1, len(grid)):
+            tau = grid[m] - grid[:m]  # time since each earlier change
+            w_new = unit_response(g, slope, tau[-1], t_ref)
+            heads = hw0[..., None] + last * w_new + d * q0 * np.abs(q0)
+            if increments:
+                shape = (len(increments),) + (1,) * (np.ndim(g))
+                w_old = unit_response(g, slope, tau[:-1].reshape(shape), t_ref)
+                heads = heads - (np.stack(increments) * w_old).sum(0)
+            st = hydraulics.solve_wellbore_head(np.array([grid_rate[m]]), 1.0 / w_new, heads,
+                                                d if has_d else None)
+            q = st.zone_flow[..., 0, :]
+            increments.append(q - last)
+            last = q
+            if m in read:
+                out_h[(s, read[m])] = st.wellbore_head[..., 0]
+                out_q[(s, read[m])] = q
+    keys = list(schedule.level_step)
+    return (np.stack([out_h[key] for key in keys], -1),
+            np.stack([out_q[key] for key in keys], -2))
