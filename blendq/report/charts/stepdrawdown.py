@@ -145,9 +145,9 @@ def specific_drawdown_chart(result: StepDrawdownResult, units: str = "US",
                     _specific(pred.drawdown_high / inner, units), **BAND_STYLE,
                     label=f"Jacob {interval:.0%} band")
     ax.plot(x, _specific(pred.drawdown / inner, units), **JACOB_STYLE,
-            label="Jacob  s/Q = B + CQ")
-    if result.rorabaugh is not None:
-        r = result.rorabaugh
+            label="Jacob: fitted straight line s/Q = B + CQ")
+    if result.rorabaugh_shown is not None:
+        r = result.rorabaugh_shown
         ax.plot(x, _specific(r.drawdown_at(inner) / inner, units), **RORABAUGH_STYLE,
                 label=f"Rorabaugh  s/Q = B + CQⁿ⁻¹ (n = {r.exponent:.2f})")
     b = float(_specific(result.jacob.linear_loss, units))
@@ -205,8 +205,8 @@ def drawdown_rate_chart(result: StepDrawdownResult, units: str = "US",
                     zorder=2, label="nonlinear loss CQ²")
     ax.plot(x, lin, **LINEAR_STYLE, label="linear part BQ")
     ax.plot(x, y, **JACOB_STYLE, label="Jacob  s = BQ + CQ²")
-    if result.rorabaugh is not None:
-        r = result.rorabaugh
+    if result.rorabaugh_shown is not None:
+        r = result.rorabaugh_shown
         ax.plot(x, _length(r.drawdown_at(grid), units)[0], **RORABAUGH_STYLE,
                 label=f"Rorabaugh  s = BQ + CQⁿ (n = {r.exponent:.2f})")
     ax.plot(_rate(q_pts, units)[0], _length(s_pts, units)[0], **POINT_STYLE, label="steps")
