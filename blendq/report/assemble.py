@@ -449,6 +449,7 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
 
 def output_files(a: Analysis, units: str = "US", created: str = "") -> dict[str, bytes | str]:
     """All files of a report folder: report.html, report.pdf, CSV tables, summary.json, charts."""
+    from blendq.report.csv_tables import csv_tables
     from blendq.report.html import render_html
     from blendq.report.outputs import to_csv_safe, to_json_stable
     from blendq.report.pdf import render_pdf_bytes
@@ -458,12 +459,8 @@ def output_files(a: Analysis, units: str = "US", created: str = "") -> dict[str,
         "report.html": render_html(doc),
         "report.pdf": render_pdf_bytes(doc),
         "summary.json": to_json_stable(summary_json(a, units)),
-        "tables/zones.csv": to_csv_safe(a.zones),
-        "tables/sweep.csv": to_csv_safe(a.sweep_table),
-        "tables/residuals.csv": to_csv_safe(a.residuals),
-        "tables/hydraulics.csv": to_csv_safe(a.hydraulics),
-        "tables/qa_findings.csv": to_csv_safe(a.qa.findings),
     }
+    files.update({name: to_csv_safe(t) for name, t in csv_tables(a, units).items()})
     for k, block in enumerate(b for sec in doc.sections for b in sec.blocks if isinstance(b, Figure)):
         if block.png is not None:
             files[f"charts/chart_{k + 1}.png"] = block.png

@@ -27,6 +27,7 @@ from __future__ import annotations
 import importlib.util
 import io
 import os
+import re
 from dataclasses import dataclass, field
 from os import PathLike
 from typing import Any
@@ -136,7 +137,10 @@ def _style(name: str, size: float, lead: float, bold: bool = False, grey: str = 
 
 def _markup(text: str) -> str:
     """Plain text as ReportLab paragraph markup: escaped, newlines kept."""
-    return "<br/>".join(escape(" ".join(part.split())) for part in text.split("\n"))
+    # collapse ordinary white space only: the narrow no-break space that groups SI thousands
+    # ("1 000") must stay, or the line could break inside a number
+    return "<br/>".join(escape(" ".join(re.split(r"[ \t\r\f\v]+", part.strip(" \t\r\f\v"))))
+                        for part in text.split("\n"))
 
 
 # ---------------------------------------------------------------------------------------------

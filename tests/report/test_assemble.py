@@ -172,3 +172,38 @@ def test_user_text_escaped_in_html(tmp_path):
     assert f"TH-2 {evil}" in " ".join(scan.text)
     assert json.loads((out / "summary.json").read_text(encoding="utf-8"))["well"] == f"TH-2 {evil}"
     assert (out / "report.pdf").read_bytes().startswith(b"%PDF")
+
+
+def _significant_digits(text: str) -> int:
+    mantissa = text.lower().split("e")[0].lstrip("-").replace(".", "").lstrip("0")
+    return len(mantissa.rstrip("0")) if mantissa else 0
+
+
+def test_csv_tables_have_units_in_every_numeric_column_and_rounded_values(demo_out):
+    # display units (the demo is a US project), the unit in each numeric column name, and at
+    # most 4 significant digits (no 0.0070999999999999995)
+    for path in sorted((demo_out / "tables").glob("*.csv")):
+        rows = list(csv.DictReader(io.StringIO(path.read_text(encoding="utf-8"))))
+        assert rows, path.name
+        for col in rows[0]:
+            cells = [r[col] for r in rows if r[col] != ""]
+            try:
+                [float(c) for c in cells]
+            except ValueError:
+                continue  # a text column
+            if not cells or col == "source_row" or set(cells) <= {"True", "False"}:
+                continue
+            assert col.endswith("]"), f"{path.name}: column {col!r} has no unit"
+            worst = max(cells, key=_significant_digits)
+            assert _significant_digits(worst) <= 4, f"{path.name} {col}: {worst}"
+    sweep = (demo_out / "tables" / "sweep.csv").read_text(encoding="utf-8").splitlines()[0]
+    assert sweep.startswith("rate [gpm],") and "Arsenic median [ug/L]" in sweep
+    assert "pumping level median [ft depth]" in sweep
+
+
+def test_round_significant():
+    from blendq.report.csv_tables import round_significant
+
+    got = round_significant([0.0070999999999999995, 12345.678, -0.000123456, 0.0, float("nan")])
+    assert [repr(float(v)) for v in got[:4]] == ["0.0071", "12350.0", "-0.0001235", "0.0"]
+    assert got[4] != got[4]

@@ -157,7 +157,7 @@ def test_two_interval_window_and_recommended(case):
         np.testing.assert_allclose(lows, [300.0, 1500.0], rtol=1e-12)
         rec = [line for line in ax.get_lines() if line.get_label() == "recommended rate"]
         np.testing.assert_allclose(rec[0].get_xdata(), [2000.0, 2000.0], rtol=1e-12)
-    assert "300 to 700 m³/d and 1,500 to 2,400 m³/d" in fig.get_suptitle()
+    assert "300 to 700 m³/d and 1\u202f500 to 2\u202f400 m³/d" in fig.get_suptitle()
     shares = cq.zone_shares(pred, case["project"].zone_names, w2, units="SI")
     bars = [line for line in shares.axes[0].get_lines() if line.get_label() == "operating window"]
     assert len(bars) == 2
@@ -302,3 +302,16 @@ def test_single_sample_range_drawn_where_the_basis_is_a_single_sample(case):
     np.testing.assert_allclose(upper[1].get_ydata()[1:], ref[1, 1:], rtol=1e-12)  # mg/L as N
     # the shaded band is the band of the mean, and says so
     assert any(c.get_label() == "90 % interval of the mean" for c in nitrate.collections)
+
+
+def test_chart_rates_round_as_the_text_and_the_command_line():
+    # the chart's rate labels and the report text / CLI (blendq.units.format_quantity) give the
+    # same figure: three significant digits (3,360, not 3,358); SI groups with a narrow space
+    from blendq.report.charts.quality import _fmt_rate
+    from blendq.units import format_quantity, to_base
+
+    for system, text in (("US", "3358 gpm"), ("SI", "3358 m**3/d")):
+        q = to_base(float(text.split()[0]), text.split()[1], "rate")
+        assert _fmt_rate(q, system) == format_quantity(q, "rate", system)
+    assert _fmt_rate(to_base(3358.0, "gpm", "rate"), "US") == "3,360 gpm"
+    assert _fmt_rate(3358.0, "SI") == "3\u202f360 m³/d"

@@ -23,7 +23,7 @@ import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
 from blendq.errors import InputError
-from blendq.units import DISPLAY_UNITS, display_unit_label, from_base
+from blendq.units import DISPLAY_UNITS, display_unit_label, from_base, significant
 
 if TYPE_CHECKING:
     from matplotlib.axes import Axes
@@ -96,7 +96,7 @@ def _limit_text(limit: Limit, analyte: str) -> str:
 
 def _fmt_rate(value: float, units: str) -> str:
     x, label = _rate(value, units)
-    return f"{float(x):,.0f} {label}"
+    return f"{significant(float(x), 3, units)} {label}"  # the rounding of the text and CLI
 
 
 def _window_intervals(window: Window | None, units: str) -> list[np.ndarray]:
@@ -152,7 +152,7 @@ def _title(fig: Figure, head: str, window: Window | None, units: str) -> None:
         head += "\n" + textwrap.fill(f"No operating window: {reason}.", 88)
     elif window is not None:
         parts = [_fmt_rate(lo, units) if hi == lo else
-                 f"{_fmt_rate(lo, units).split()[0]} to {_fmt_rate(hi, units)}"
+                 f"{_fmt_rate(lo, units).rsplit(' ', 1)[0]} to {_fmt_rate(hi, units)}"
                  for lo, hi, _, _ in window.intervals]
         text = "Operating window " + " and ".join(parts)
         if window.recommended is not None:
@@ -353,7 +353,7 @@ def zone_shares(pred: Prediction, zone_names: list[str], window: Window | None =
             elif len(r) == 1 or _fmt_rate(r.min(), units) == _fmt_rate(r.max(), units):
                 label += f" (takes water from the well at {_fmt_rate(r[0], units)})"
             else:
-                label += (f" (takes water from the well from {_fmt_rate(r.min(), units).split()[0]}"
+                label += (f" (takes water from the well from {_fmt_rate(r.min(), units).rsplit(' ', 1)[0]}"
                           f" to {_fmt_rate(r.max(), units)})")
         h = ax.fill_between(x, 100 * base, 100 * (base + med[:, i]), facecolor=colour,
                             hatch=hatch, edgecolor="#333333", linewidth=0.7, label=label)

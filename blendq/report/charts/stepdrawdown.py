@@ -26,7 +26,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from blendq.errors import InputError
-from blendq.units import DISPLAY_UNITS, Q_, display_unit_label, from_base
+from blendq.units import DISPLAY_UNITS, Q_, display_unit_label, from_base, significant
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -257,7 +257,7 @@ def step_record_chart(result: StepDrawdownResult, units: str = "US") -> Figure:
         ax.axvspan(row.start * hours, row.end * hours, color="#f1f1f1" if k % 2 else "#ffffff",
                    zorder=0, linewidth=0)
         rate, rate_label = _rate(row.rate, units)
-        ax.annotate(f"{row.step}: {float(rate):,.0f} {rate_label}",
+        ax.annotate(f"{row.step}: {significant(float(rate), 3, units)} {rate_label}",
                     (0.5 * (row.start + row.end) * hours, 1.0), xycoords=("data", "axes fraction"),
                     xytext=(0, 3), textcoords="offset points", ha="center", va="bottom",
                     fontsize=7.5)
