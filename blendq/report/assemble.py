@@ -310,6 +310,135 @@ def quality_figures(a: Analysis, units: str) -> list[Figure]:
     ]
 
 
+ADDED_REFERENCES = [
+    "Kruseman, G.P. and de Ridder, N.A. (1990) Analysis and Evaluation of Pumping Test Data, "
+    "2nd ed. ILRI Publication 47, Wageningen (step-drawdown tests; Hantush-Bierschenk method).",
+    "Day-Lewis, F.D. and others (2011) USGS Techniques and Methods 4-D2 (two-condition "
+    "flow-log analysis).",
+    "Halford, K.J. and Hanson, R.T. (2002) USGS Open-File Report 02-293 (multi-node wells).",
+    "Bureau International des Poids et Mesures (2019) The International System of Units (SI), "
+    "9th ed., section 5.4.4 (digits grouped in threes by a small space).",
+]
+
+
+def report_paper(a: Analysis) -> str:
+    """Paper of the PDF: the project's ``paper`` setting, else Letter for a US project and A4
+    for an SI one (the project's display units, not a one-off ``--units``)."""
+    s = a.project.settings
+    if s.paper:
+        return s.paper
+    return "letter" if s.display_units == "US" else "a4"
+
+
+def report_date(a: Analysis) -> str:
+    """Date of the report (ISO 8601): the project's ``report_date``, else the day given by
+    ``SOURCE_DATE_EPOCH`` (UTC) when that asks for a reproducible build, else today."""
+    import datetime as dt
+    import os
+
+    if a.project.settings.report_date:
+        return a.project.settings.report_date
+    epoch = os.environ.get("SOURCE_DATE_EPOCH", "").strip()
+    if epoch:
+        try:
+            return dt.datetime.fromtimestamp(int(epoch), dt.timezone.utc).date().isoformat()
+        except (ValueError, OverflowError, OSError):
+            pass  # not a whole number of seconds: ignore it, as ReportLab does not
+    return dt.date.today().isoformat()
+
+
+def report_identity_block(a: Analysis, created: str) -> KeyValues:
+    """Date, who prepared and who reviewed the report, and the program that wrote it."""
+    s = a.project.settings
+    return KeyValues([
+        ("Report date", report_date(a)),
+        ("Prepared by", s.prepared_by or "not stated (set prepared_by in project.toml)"),
+        ("Reviewed by", s.reviewed_by or "not yet reviewed: a licensed professional reviews "
+                                         "any operating change"),
+        ("Written by", created or f"blendq {__version__}"),
+    ])
+
+
+def _rounded_text(values, digits: int = 4) -> list[str]:
+    from blendq.report.csv_tables import round_significant
+
+    return ["" if not np.isfinite(v) else f"{v:.{digits}g}"
+            for v in round_significant(np.asarray(values, float), digits)]
+
+
+def raw_data_appendix(a: Analysis, units: str) -> Section:
+    """Appendix: the data as given - steps, water levels and lab results with qualifiers."""
+    p = a.project
+    du = DISPLAY_UNITS[units]
+    rate_u, len_u = du["rate"], du["length"]
+    blocks: list = [Paragraph(
+        "The test data as read from the project's files, in the report's units (lab results "
+        "as the lab reported them). Row: the data row of the source file.")]
+    st = p.steps
+    if len(st):
+        def when(col):
+            return [("" if pd.isna(v) else pd.Timestamp(v).strftime("%Y-%m-%d %H:%M"))
+                    for v in st[col]] if col in st else [""] * len(st)
+        steps = pd.DataFrame({
+            "Step": st["step"].astype(str),
+            f"Rate [{display_unit_label(rate_u)}]": _rounded_text(
+                from_base(st["rate"].to_numpy(float), "rate", rate_u)),
+            "Start": when("start"), "End": when("end"),
+            "Duration [min]": _rounded_text(st["duration"].to_numpy(float) * 1440.0),
+            f"Pumping level [{display_unit_label(len_u)} depth]": _rounded_text(
+                from_base(st["pumping_level"].to_numpy(float), "length", len_u)),
+            "Recovered before": ["yes" if bool(v) is True and not pd.isna(v) else "no"
+                                 for v in st["recovered_before"]],
+            "Row": st["source_row"].astype(str),
+        })
+        blocks.append(Table(steps, f"Steps ({p.files.get('steps', 'steps')})."))
+    lv = p.levels
+    if len(lv):
+        levels = pd.DataFrame({
+            "Time": [pd.Timestamp(v).strftime("%Y-%m-%d %H:%M:%S") for v in lv["time"]],
+            f"Level [{display_unit_label(len_u)} depth]": _rounded_text(
+                from_base(lv["level"].to_numpy(float), "length", len_u)),
+            "Row": lv["source_row"].astype(str),
+        })
+        blocks.append(Table(levels, f"Water levels ({p.files.get('levels', 'levels')})."))
+    else:
+        blocks.append(Paragraph("No water-level record was given (levels table)."))
+    sm = p.samples
+    if len(sm):
+        def text(col):
+            return ["" if col not in sm or pd.isna(v) else str(v) for v in
+                    (sm[col] if col in sm else [None] * len(sm))]
+
+        def reported(i):
+            r = sm.iloc[i]
+            if bool(r.get("nondetect", False)) and not pd.isna(r.get("detection_limit")):
+                an = get_analyte(r["analyte"])
+                dl = an.in_display_unit([r["detection_limit"]])[0]
+                return f"< {dl:.4g} {an.display_unit}"
+            val = r.get("reported_value")
+            if val is None or (isinstance(val, float) and np.isnan(val)):
+                an = get_analyte(r["analyte"])
+                return f"{an.in_display_unit([r['value']])[0]:.4g} {an.display_unit}"
+            unit = "" if pd.isna(r.get("reported_unit")) else str(r.get("reported_unit"))
+            basis = "" if pd.isna(r.get("reported_basis")) else str(r.get("reported_basis"))
+            num = f"{float(val):.4g}" if isinstance(val, (int, float)) else str(val)
+            return " ".join(x for x in (num, unit, basis) if x)
+
+        lab = pd.DataFrame({
+            "Sample": text("sample_id"), "Step": text("step"),
+            "Analyte": [get_analyte(x).label() for x in sm["analyte"]],
+            "Result as reported": [reported(i) for i in range(len(sm))],
+            "Qualifier": text("qualifier"),
+            "Sampled": [("" if pd.isna(v) else pd.Timestamp(v).strftime("%Y-%m-%d %H:%M"))
+                        for v in sm["sampled_at"]],
+            "Duplicate of": text("duplicate_of"),
+            "Row": sm["source_row"].astype(str),
+        })
+        blocks.append(Table(lab, f"Lab results ({p.files.get('samples', 'samples')}), with "
+                                 "the lab's qualifiers."))
+    return Section("Appendix: the data", tuple(blocks), "appendix-data")
+
+
 def build_document(a: Analysis, units: str = "US", created: str = "") -> Document:
     """The report of an analysis as a renderer-neutral document (its charts drawn here)."""
     p = a.project
@@ -414,12 +543,16 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
                       "rates near a step whose sample exceeded margin x limit are left out "
                       "whatever the model says; a fit that misses a lab result by more than "
                       "3 standard deviations makes the decision provisional."),
-            BulletList(REFERENCES),
+            BulletList(REFERENCES + ADDED_REFERENCES),
             Paragraph(f"blendq {__version__}."),
         ), "methods"),
     ]
+    sections.append(raw_data_appendix(a, units))
+    sections.insert(0, Section("About this report", (report_identity_block(a, created),),
+                               "about"))
+    stamp = f"{report_date(a)} · {created or f'blendq {__version__}'}"
     return Document(title=f"Discharge quality and operating window: {w.name}",
-                    subtitle=p.name, created=created, sections=tuple(sections))
+                    subtitle=p.name, created=stamp, sections=tuple(sections))
 
 
 def summary_json(a: Analysis, units: str = "US") -> dict:
@@ -457,7 +590,7 @@ def output_files(a: Analysis, units: str = "US", created: str = "") -> dict[str,
     doc = build_document(a, units, created)
     files: dict[str, bytes | str] = {
         "report.html": render_html(doc),
-        "report.pdf": render_pdf_bytes(doc),
+        "report.pdf": render_pdf_bytes(doc, report_paper(a)),
         "summary.json": to_json_stable(summary_json(a, units)),
     }
     files.update({name: to_csv_safe(t) for name, t in csv_tables(a, units).items()})

@@ -207,3 +207,94 @@ def test_round_significant():
     got = round_significant([0.0070999999999999995, 12345.678, -0.000123456, 0.0, float("nan")])
     assert [repr(float(v)) for v in got[:4]] == ["0.0071", "12350.0", "-0.0001235", "0.0"]
     assert got[4] != got[4]
+
+
+# --- the report's identity, paper, dates and data appendix ------------------------------------
+
+def _media_box(pdf: bytes) -> tuple[float, float]:
+    # the page size of a PDF page: /MediaBox [0 0 width height] in points (ISO 32000-1, 7.7.3.3)
+    m = re.search(rb"/MediaBox\s*\[\s*0\s+0\s+([\d.]+)\s+([\d.]+)\s*\]", pdf)
+    return float(m.group(1)), float(m.group(2))
+
+
+def test_demo_report_has_date_reviewers_letter_paper_and_data_appendix(demo_out):
+    html = (demo_out / "report.html").read_text(encoding="utf-8")
+    text = " ".join(_scan(html).text)
+    assert "About this report" in text and "Report date" in text
+    assert "2026-05-27" in text  # SOURCE_DATE_EPOCH set by tests/conftest.py
+    assert "not yet reviewed" in text and "Prepared by" in text
+    assert "Appendix: the data" in text
+    assert "appendix-data" in _scan(html).ids
+    # the lab results as reported with the lab's qualifier (demo samples.csv row 3: "<0.05 mg/L
+    # as N", qualifier U); the steps with their rates and pumping levels
+    assert "< 0.05 mg/L" in text
+    assert "Lab results (samples.csv), with the lab's qualifiers." in text
+    assert "Steps (steps.csv)." in text
+    # a US project prints on Letter: 8.5 x 11 in = 612 x 792 pt
+    pdf = (demo_out / "report.pdf").read_bytes()
+    assert _media_box(pdf) == pytest.approx((612.0, 792.0))
+    assert b"/CreationDate (D:20260527000000" in pdf
+    # complete references: the step-drawdown method's source is listed
+    assert "Kruseman, G.P. and de Ridder, N.A. (1990)" in text
+
+
+def test_si_project_settings_prepared_reviewed_date_and_a4(tmp_path):
+    project = tmp_path / "proj"
+    shutil.copytree(DEMO, project)
+    toml = project / "project.toml"
+    text = toml.read_text(encoding="utf-8")
+    text = text.replace('display_units = "US"', 'display_units = "SI"\n'
+                        'prepared_by = "R. Quillfeather, hydrogeologist (invented)"\n'
+                        'reviewed_by = "M. Estragon, PE (invented)"\nreport_date = 2026-06-03', 1)
+    toml.write_text(text, encoding="utf-8")
+    out = tmp_path / "out"
+    # --units SI is given too: the paper follows the project's display_units either way
+    r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED, "--units", "SI")
+    assert r.exit_code == 0, r.output
+    page = " ".join(_scan((out / "report.html").read_text(encoding="utf-8")).text)
+    assert "R. Quillfeather, hydrogeologist (invented)" in page
+    assert "M. Estragon, PE (invented)" in page
+    assert "2026-06-03" in page and "not yet reviewed" not in page
+    pdf = (out / "report.pdf").read_bytes()
+    assert _media_box(pdf) == pytest.approx((595.276, 841.89), abs=1e-3)  # ISO 216 A4
+    sweep = (out / "tables" / "sweep.csv").read_text(encoding="utf-8").splitlines()[0]
+    assert sweep.startswith("rate [m³/d],")
+    # paper set explicitly
+    toml.write_text(text.replace('report_date = 2026-06-03', 'report_date = 2026-06-03\n'
+                                 'paper = "Letter"'), encoding="utf-8")
+    r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    assert _media_box((out / "report.pdf").read_bytes()) == pytest.approx((612.0, 792.0))
+
+
+@pytest.mark.parametrize("line, field", [('paper = "B5"', "project.paper"),
+                                         ('report_date = "03/06/2026"', "project.report_date"),
+                                         ("prepared_by = 3", "project.prepared_by")])
+def test_bad_report_settings_name_the_field(tmp_path, line, field):
+    project = tmp_path / "proj"
+    shutil.copytree(DEMO, project)
+    toml = project / "project.toml"
+    toml.write_text(toml.read_text(encoding="utf-8").replace(
+        'display_units = "US"', f'display_units = "US"\n{line}', 1), encoding="utf-8")
+    r = run("check", project)
+    assert r.exit_code == 2
+    assert field in r.output and "project.toml" in r.output
+
+
+def test_pdf_creation_date_is_real_unless_source_date_epoch(monkeypatch):
+    import datetime as dt
+
+    from blendq.report.document import Document, Paragraph, Section
+    from blendq.report.pdf import render_pdf_bytes
+
+    doc = Document("t", "s", "c", [Section("A", [Paragraph("hello")], key="a")])
+    monkeypatch.delenv("SOURCE_DATE_EPOCH", raising=False)
+    before = dt.datetime.now().strftime("%Y%m%d")
+    stamp = re.search(rb"/CreationDate \(D:(\d{8})", render_pdf_bytes(doc)).group(1).decode()
+    after = dt.datetime.now().strftime("%Y%m%d")
+    assert stamp in (before, after)
+    assert stamp != "20000101"  # not ReportLab's fixed "invariant" date
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1700000000")  # 2023-11-14 22:13:20 UTC
+    one, two = render_pdf_bytes(doc), render_pdf_bytes(doc)
+    assert one == two
+    assert b"/CreationDate (D:20231114221320" in one
