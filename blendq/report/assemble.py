@@ -295,6 +295,8 @@ def quality_figures(a: Analysis, units: str) -> list[Figure]:
     extra = (f" Dashed: {s.interval:.0%} range of a compliance sample for the limits judged on "
              f"single samples ({', '.join(single)}), with the water's temporal variability and "
              "the lab's error." if single else "")
+    if a.window.empty:  # the chart's title stays short; the reason is given here
+        extra += f" No operating window: {a.window.reason_empty or 'no rate meets every criterion'}."
     return [
         chart_figure("Discharge quality against pumping rate: median and band of the mean "
                      "discharge concentration, limits, the step samples and the operating window."

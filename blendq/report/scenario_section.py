@@ -135,7 +135,8 @@ def scenario_chart_figure(analysis, comparison: Comparison, units: str = "US") -
         "Median delivered quality against the well's pumping rate for each option, with the "
         "limit and the operating margin; beneath, each option's operating window (which "
         "also accounts for the prediction bands), recommended rate and pumping-level yield.",
-        scenario_chart(comparison, analysis.limits, units), svg=False,
+        scenario_chart(comparison, analysis.limits, units,
+                       interval=analysis.project.settings.interval), svg=False,
         alt="Operating windows: " + "; ".join(window_summary(comparison, units)))
 
 

@@ -122,3 +122,42 @@ def test_bad_units_and_empty_comparison(setup):
         scenario_chart(comp, a.limits, "imperial")
     with pytest.raises(InputError, match="no scenario"):
         scenario_chart(sc.Comparison(comp.table.iloc[:0], []), a.limits)
+
+
+def test_each_option_shows_its_band(setup):
+    # the band of the mean of each option (central 90 %), so that an option with better medians
+    # but a wider band can be seen to have the narrower window
+    a, comp = setup
+    fig = scenario_chart(comp, a.limits, "SI", interval=0.90)
+    for j, analyte in enumerate(comp.results[0].prediction.analytes):
+        ax = fig.axes[j]
+        for res in comp.results:
+            band = [c for c in ax.collections if c.get_gid() == f"band {res.scenario.name}"]
+            assert len(band) == 1, res.scenario.name
+            rates = res.prediction.rates
+            k = int(np.argmin(np.abs(rates - 2000.0)))
+            conc = res.prediction.concentration[:, k, j]
+            lo, hi = np.quantile(conc, [0.05, 0.95])
+            ys = band[0].get_paths()[0].vertices[:, 1]
+            from blendq.chemistry.analytes import get_analyte
+
+            lo, hi = get_analyte(analyte).in_display_unit([lo, hi])
+            assert ys.min() <= lo + 1e-9 and ys.max() >= hi - 1e-9
+    labels = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert any(lab.startswith("90 % band of the mean") for lab in labels)
+
+
+def test_window_edge_markers_do_not_overlap(setup):
+    # the recommended-rate marker and the pumping-level marker sit on different heights of the
+    # option's row, so the two never hide each other when they fall at the same rate
+    from blendq.report.charts.scenarios import YIELD_OFFSET
+
+    a, comp = setup
+    strip = scenario_chart(comp, a.limits, "US").axes[-1]
+    rec = {float(ln.get_ydata()[0]) for ln in _lines(strip, "recommended")}
+    yld = {float(ln.get_ydata()[0]) for ln in _lines(strip, "yield")}
+    assert rec and yld
+    assert all(abs(y - round(y)) < 1e-9 for y in rec)  # on the bar's centre line
+    assert all(abs(y - round(y) - YIELD_OFFSET) < 1e-9 for y in yld)
+    assert YIELD_OFFSET > 0.32 + 0.05  # clear of the bar (half height 0.32)
+    assert rec.isdisjoint(yld)

@@ -58,12 +58,17 @@ SCENARIO_STYLES = [
 ]
 
 
+#: The pumping-level marker sits this far [rows] above its option's bar, so that it never hides
+#: the recommended-rate marker when both fall at the window's end.
+YIELD_OFFSET = 0.42
+
+
 def _style(k: int):
     return SCENARIO_STYLES[k % len(SCENARIO_STYLES)]
 
 
 def scenario_chart(comparison: Comparison, limits: dict[str, Limit], units: str = "US",
-                   title: str | None = None) -> Figure:
+                   title: str | None = None, interval: float = 0.90) -> Figure:
     """Median delivered quality against the well's rate for each scenario, and their windows.
 
     Parameters
@@ -75,6 +80,10 @@ def scenario_chart(comparison: Comparison, limits: dict[str, Limit], units: str 
     units : {"US", "SI"}
         Rates in gpm or m^3/d.
     title : str, optional
+    interval : float, default 0.90
+        Central probability of each option's band of the mean (shaded in its colour, edged
+        in its line style), so that an option whose curves look better can be seen to overlap
+        the others.
 
     Returns
     -------
@@ -110,7 +119,16 @@ def scenario_chart(comparison: Comparison, limits: dict[str, Limit], units: str 
             med = np.full(len(rates), np.nan)
             med[pos] = np.median(res.prediction.concentration[:, pos, j], axis=0)
             y = _conc(med, analyte)
-            top = max(top, float(np.nanmax(y)))
+            band = np.full((2, len(rates)), np.nan)
+            band[:, pos] = np.quantile(res.prediction.concentration[:, pos, j],
+                                       [(1 - interval) / 2, (1 + interval) / 2], axis=0)
+            blo, bhi = _conc(band[0], analyte), _conc(band[1], analyte)
+            ax.fill_between(x, blo, bhi, facecolor=colour, alpha=0.10, linewidth=0, zorder=1,
+                            gid=f"band {res.scenario.name}")
+            for edge in (blo, bhi):
+                ax.plot(x, edge, color=colour, linestyle=dash, linewidth=0.6, alpha=0.7,
+                        zorder=1.5)
+            top = max(top, float(np.nanmax(y)), float(np.nanmax(bhi)))
             curves.append(y)
             ax.plot(x, y, color=colour, linestyle=dash, linewidth=2.0 if k == 0 else 1.6,
                     marker=marker, markevery=(k % every, every), markersize=4.5,
@@ -134,13 +152,18 @@ def scenario_chart(comparison: Comparison, limits: dict[str, Limit], units: str 
                             color=colour, zorder=6, bbox=dict(boxstyle="square,pad=0.1",
                                                               fc="white", ec="none", alpha=0.85))
         ax.set_ylim(0, top * 1.05 if top > 0 else 1.0)
-        ax.set_ylabel(f"median [{unit_label}]")
+        ax.set_ylabel(f"concentration [{unit_label}]")
         ax.set_title(get_analyte(analyte).label(), loc="left", fontsize=10, fontweight="bold")
     _window_strip(axes[n, 0], comparison, units)
     axes[n, 0].set_xlabel(f"well pumping rate [{rate_label}]")
     axes[n, 0].set_xlim(float(x.min()), float(x.max()))
     fig.suptitle(title or "Options compared: delivered quality and operating window", fontsize=10.5)
     handles, labels = axes[0, 0].get_legend_handles_labels()
+    from matplotlib.patches import Patch
+
+    handles.append(Patch(facecolor="#999999", alpha=0.25, edgecolor="#666666", linewidth=0.6))
+    labels.append(f"{interval * 100:g} % band of the mean (each option in its colour); "
+                  "lines: medians")
     extra = _strip_legend_handles()
     fig.legend(handles + [h for h, _ in extra], labels + [lab for _, lab in extra],
                loc="outside lower center", ncols=2, fontsize=8, frameon=False)
@@ -188,7 +211,7 @@ def _window_strip(ax, comparison: Comparison, units: str) -> None:
                         fontsize=7.5, color=VERMILLION, style="italic")
             if not res.yield_beyond_grid:
                 xy = float(_rate(res.yield_rate, units)[0])
-                ax.plot([xy], [row], marker=">", markersize=5, color=BLACK,
+                ax.plot([xy], [row + YIELD_OFFSET], marker=">", markersize=5, color=BLACK,
                         markerfacecolor="white", linestyle="none", zorder=5, gid="yield")
             continue
         for lo, hi, _, _ in w.intervals:
@@ -202,8 +225,8 @@ def _window_strip(ax, comparison: Comparison, units: str) -> None:
                     markerfacecolor="white", linestyle="none", zorder=5, gid="recommended")
         if not res.yield_beyond_grid:
             xy = float(_rate(res.yield_rate, units)[0])
-            ax.plot([xy], [row], marker=">", markersize=5, color=BLACK, markerfacecolor="white",
-                    linestyle="none", zorder=5, gid="yield")
+            ax.plot([xy], [row + YIELD_OFFSET], marker=">", markersize=5, color=BLACK,
+                    markerfacecolor="white", linestyle="none", zorder=5, gid="yield")
         if w.empty:
             ax.annotate("no window", (0.01, row), xycoords=("axes fraction", "data"), ha="left",
                         va="center", fontsize=7.5, color=VERMILLION, style="italic")
