@@ -215,6 +215,29 @@ def step_drawdown_figures(a: Analysis, units: str) -> list[Figure]:
     return figures
 
 
+def step_transmissivity_blocks(a: Analysis, units: str) -> list:
+    """The apparent transmissivity from the step test's B (Cooper-Jacob at the well face), when
+    the fit has a reference time: a paragraph, or nothing."""
+    from blendq.well.stepdrawdown import ASSUMED_STORATIVITY, transmissivity_from_linear_loss
+
+    res = a.step_drawdown.result
+    if res.transmissivity_from_b is not None or not np.isfinite(res.reference_time):
+        return []
+    zone_s = [z.storativity for z in a.project.zones]
+    assumed = not zone_s or None in zone_s
+    t = transmissivity_from_linear_loss(res.jacob.linear_loss, res.reference_time,
+                                        a.project.well.well_radius,
+                                        ASSUMED_STORATIVITY if assumed else sum(zone_s))
+    if not np.isfinite(t):
+        return []
+    how = (f"an assumed storativity of {ASSUMED_STORATIVITY:g} (common practice)" if assumed
+           else "the zones' summed storativity")
+    return [Paragraph(f"Apparent transmissivity from B (Cooper-Jacob at the well face, with the "
+                      f"well radius and {how}): {format_quantity(t, 'transmissivity', units)}. "
+                      "B also holds the linear losses of the skin, gravel pack and screen, so "
+                      "this is at most the aquifer's transmissivity, not an aquifer test.")]
+
+
 def step_drawdown_section(a: Analysis, units: str) -> Section:
     """Step-drawdown analysis, well condition, and which pumping-level prediction is used,
     with the step-drawdown charts."""
@@ -226,6 +249,7 @@ def step_drawdown_section(a: Analysis, units: str) -> Section:
         return Section("Step-drawdown test and well condition", tuple(blocks), "stepdrawdown")
     res = lc.result
     blocks.append(BulletList(res.summary_lines(units)))
+    blocks += step_transmissivity_blocks(a, units)
     blocks.append(Paragraph("Walton's (1962) well-condition classes from the well-loss "
                             "coefficient C (below 5, 5-10, 10-40, above 40 s²/ft⁵, set from "
                             "field experience) are taken from a published restatement that "
@@ -361,11 +385,21 @@ def report_identity_block(a: Analysis, created: str) -> KeyValues:
     ])
 
 
-def _rounded_text(values, digits: int = 4) -> list[str]:
-    from blendq.report.csv_tables import round_significant
+def _rounded_text(values, units: str, digits: int = 4) -> list[str]:
+    """Numbers as the report writes them (thousands grouped by the unit system's rule)."""
+    from blendq.units import significant
 
-    return ["" if not np.isfinite(v) else f"{v:.{digits}g}"
-            for v in round_significant(np.asarray(values, float), digits)]
+    return ["" if not np.isfinite(v) else significant(float(v), digits, units)
+            for v in np.asarray(values, float)]
+
+
+def _clock(value) -> str:
+    """A date and time to the second (an end computed from a duration in days can miss the
+    minute by a rounding error), seconds shown only when not zero."""
+    if value is None or pd.isna(value):
+        return ""
+    t = pd.Timestamp(value).round("s")
+    return t.strftime("%Y-%m-%d %H:%M:%S" if t.second else "%Y-%m-%d %H:%M")
 
 
 def raw_data_appendix(a: Analysis, units: str) -> Section:
@@ -379,16 +413,15 @@ def raw_data_appendix(a: Analysis, units: str) -> Section:
     st = p.steps
     if len(st):
         def when(col):
-            return [("" if pd.isna(v) else pd.Timestamp(v).strftime("%Y-%m-%d %H:%M"))
-                    for v in st[col]] if col in st else [""] * len(st)
+            return [_clock(v) for v in st[col]] if col in st else [""] * len(st)
         steps = pd.DataFrame({
             "Step": st["step"].astype(str),
             f"Rate [{display_unit_label(rate_u)}]": _rounded_text(
-                from_base(st["rate"].to_numpy(float), "rate", rate_u)),
+                from_base(st["rate"].to_numpy(float), "rate", rate_u), units),
             "Start": when("start"), "End": when("end"),
-            "Duration [min]": _rounded_text(st["duration"].to_numpy(float) * 1440.0),
+            "Duration [min]": _rounded_text(st["duration"].to_numpy(float) * 1440.0, units),
             f"Pumping level [{display_unit_label(len_u)} depth]": _rounded_text(
-                from_base(st["pumping_level"].to_numpy(float), "length", len_u)),
+                from_base(st["pumping_level"].to_numpy(float), "length", len_u), units),
             "Recovered before": ["yes" if bool(v) is True and not pd.isna(v) else "no"
                                  for v in st["recovered_before"]],
             "Row": st["source_row"].astype(str),
@@ -397,9 +430,9 @@ def raw_data_appendix(a: Analysis, units: str) -> Section:
     lv = p.levels
     if len(lv):
         levels = pd.DataFrame({
-            "Time": [pd.Timestamp(v).strftime("%Y-%m-%d %H:%M:%S") for v in lv["time"]],
+            "Time": [_clock(v) for v in lv["time"]],
             f"Level [{display_unit_label(len_u)} depth]": _rounded_text(
-                from_base(lv["level"].to_numpy(float), "length", len_u)),
+                from_base(lv["level"].to_numpy(float), "length", len_u), units),
             "Row": lv["source_row"].astype(str),
         })
         blocks.append(Table(levels, f"Water levels ({p.files.get('levels', 'levels')})."))
@@ -431,11 +464,15 @@ def raw_data_appendix(a: Analysis, units: str) -> Section:
             "Analyte": [get_analyte(x).label() for x in sm["analyte"]],
             "Result as reported": [reported(i) for i in range(len(sm))],
             "Qualifier": text("qualifier"),
-            "Sampled": [("" if pd.isna(v) else pd.Timestamp(v).strftime("%Y-%m-%d %H:%M"))
-                        for v in sm["sampled_at"]],
+            "Sampled": [_clock(v) for v in sm["sampled_at"]],
             "Duplicate of": text("duplicate_of"),
             "Row": sm["source_row"].astype(str),
         })
+        depth = pd.to_numeric(sm["depth"], errors="coerce").to_numpy(float) \
+            if "depth" in sm else np.full(len(sm), np.nan)
+        if np.isfinite(depth).any():  # samples taken inside the well
+            lab.insert(3, f"Depth [{display_unit_label(len_u)}]",
+                       _rounded_text(from_base(depth, "length", len_u), units))
         blocks.append(Table(lab, f"Lab results ({p.files.get('samples', 'samples')}), with "
                                  "the lab's qualifiers."))
     return Section("Appendix: the data", tuple(blocks), "appendix-data")

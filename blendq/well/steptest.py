@@ -20,7 +20,7 @@ import numpy as np
 import pandas as pd
 
 from blendq.errors import InputError, ModelError
-from blendq.units import Q_
+from blendq.units import Q_, significant
 from blendq.well.stepdrawdown import (
     ASSUMED_STORATIVITY,
     LN10,
@@ -541,16 +541,19 @@ _LABELS = {"gpm": "gpm", "ft": "ft", "ft/gpm": "ft/gpm", "s**2/ft**5": "s²/ft�
            "d/m**2": "m/(m³/d)", "min**2/m**5": "min²/m⁵", "m**2/d": "m²/d"}
 
 
-def _fmt(value, unit_from: str, unit_to: str, digits: int = 3) -> str:
+def _fmt(value, unit_from: str, unit_to: str, digits: int = 3, system: str = "US") -> str:
     if value is None or not np.isfinite(value):
         return "n/a"
-    return _number(Q_(value, unit_from).to(unit_to).magnitude, digits)
+    return _number(Q_(value, unit_from).to(unit_to).magnitude, digits, system)
 
 
-def _number(mag: float, digits: int = 3) -> str:
-    """``digits`` significant figures, positional between 1e-3 and 1e6 (1000, not 1e+03)."""
+def _number(mag: float, digits: int = 3, system: str = "US") -> str:
+    """``digits`` significant figures, positional between 1e-3 and 1e6 (1000, not 1e+03);
+    thousands grouped as everywhere in blendq's output (:func:`blendq.units.significant`)."""
     if mag == 0 or not (1e-3 <= abs(mag) < 1e6):
         return f"{mag:.{digits}g}"
+    if abs(mag) >= 1e3:
+        return significant(mag, digits, system)
     return np.format_float_positional(mag, precision=digits, unique=False, fractional=False,
                                       trim="-")
 
@@ -563,22 +566,29 @@ def _summary_lines(res: StepDrawdownResult, system: str) -> list[str]:
     if system not in _SUMMARY_UNITS:
         raise InputError(f'display units "{system}" are not known (expected "US" or "SI")')
     u = _SUMMARY_UNITS[system]
+
+    def fmt(value, unit_from, unit_to, digits=3):
+        return _fmt(value, unit_from, unit_to, digits, system)
+
+    def num(mag, digits=3):
+        return _number(mag, digits, system)
+
     lab = {k: _LABELS[v] for k, v in u.items()}
     j = res.jacob
     sd = j.stderr
     if res.method == "equal time":
         head = (f"Step-drawdown analysis: Hantush-Bierschenk at "
-                f"{_fmt(res.reference_time, 'd', u['time'])} {lab['time']} after each step start")
+                f"{fmt(res.reference_time, 'd', u['time'])} {lab['time']} after each step start")
     else:
         head = "Step-drawdown analysis: drawdown at the end of each step"
     head += "; Jacob fitted as the straight line s/Q = B + CQ"
-    lines = [head, f"  static level {_fmt(res.static_level, 'm', u['length'])} {lab['length']}"]
-    lines.append(f"  Jacob  s = BQ + CQ²: B = {_fmt(j.linear_loss, 'd/m**2', u['B'])} "
-                 f"± {_fmt(sd[0], 'd/m**2', u['B'])} {lab['B']}, "
-                 f"C = {_fmt(j.well_loss, 'd**2/m**5', u['C'])} "
-                 f"± {_fmt(sd[1], 'd**2/m**5', u['C'])} {lab['C']}")
+    lines = [head, f"  static level {fmt(res.static_level, 'm', u['length'])} {lab['length']}"]
+    lines.append(f"  Jacob  s = BQ + CQ²: B = {fmt(j.linear_loss, 'd/m**2', u['B'])} "
+                 f"± {fmt(sd[0], 'd/m**2', u['B'])} {lab['B']}, "
+                 f"C = {fmt(j.well_loss, 'd**2/m**5', u['C'])} "
+                 f"± {fmt(sd[1], 'd**2/m**5', u['C'])} {lab['C']}")
     other = "min**2/m**5" if system == "US" else "s**2/ft**5"
-    lines.append(f"  well condition (Walton 1962, C = {_fmt(j.well_loss, 'd**2/m**5', other)} "
+    lines.append(f"  well condition (Walton 1962, C = {fmt(j.well_loss, 'd**2/m**5', other)} "
                  f"{_LABELS[other]}): class {res.walton_class}, {res.walton_label}")
     r = res.rorabaugh
     if r is not None and res.rorabaugh_withheld:
@@ -590,30 +600,30 @@ def _summary_lines(res: StepDrawdownResult, system: str) -> list[str]:
         f_rate = Q_(1.0, "m**3/d").to(u["rate"]).magnitude
         c_disp = r.well_loss * f_len / f_rate**n
         c_sd = r.stderr[1] * f_len / f_rate**n
-        lines.append(f"  Rorabaugh  s = BQ + CQⁿ: B = {_fmt(r.linear_loss, 'd/m**2', u['B'])} "
-                     f"± {_fmt(r.stderr[0], 'd/m**2', u['B'])} {lab['B']}, "
-                     f"C = {_number(c_disp)} ± {_number(c_sd, 2)} "
-                     f"{lab['length']}/({lab['rate']})ⁿ, n = {_number(n)} ± "
-                     f"{_number(r.stderr[2], 2)}")
+        lines.append(f"  Rorabaugh  s = BQ + CQⁿ: B = {fmt(r.linear_loss, 'd/m**2', u['B'])} "
+                     f"± {fmt(r.stderr[0], 'd/m**2', u['B'])} {lab['B']}, "
+                     f"C = {num(c_disp)} ± {num(c_sd, 2)} "
+                     f"{lab['length']}/({lab['rate']})ⁿ, n = {num(n)} ± "
+                     f"{num(r.stderr[2], 2)}")
     if res.apparent_transmissivity is not None:
         lines.append(f"  apparent transmissivity from the log-time slopes: "
-                     f"{_fmt(res.apparent_transmissivity, 'm**2/d', u['T'])} {lab['T']}")
+                     f"{fmt(res.apparent_transmissivity, 'm**2/d', u['T'])} {lab['T']}")
     if res.transmissivity_from_b is not None:
         how = "assumed storativity" if res.storativity_assumed else "the zones' storativity"
         lines.append(f"  apparent transmissivity from B (Cooper-Jacob, {how}; B holds the "
                      f"linear well losses too): "
-                     f"{_fmt(res.transmissivity_from_b, 'm**2/d', u['T'])} {lab['T']}")
+                     f"{fmt(res.transmissivity_from_b, 'm**2/d', u['T'])} {lab['T']}")
     equal = res.method == "equal time"
     for row in res.per_step.itertuples(index=False):
-        text = (f"  step {row.step}: {_fmt(row.rate, 'm**3/d', u['rate'])} {lab['rate']}, "
-                f"measured drawdown {_fmt(row.drawdown_measured, 'm', u['length'])} "
+        text = (f"  step {row.step}: {fmt(row.rate, 'm**3/d', u['rate'])} {lab['rate']}, "
+                f"measured drawdown {fmt(row.drawdown_measured, 'm', u['length'])} "
                 f"{lab['length']} (specific capacity "
-                f"{_fmt(row.specific_capacity_measured, 'm**2/d', u['capacity'])} "
+                f"{fmt(row.specific_capacity_measured, 'm**2/d', u['capacity'])} "
                 f"{lab['capacity']}, linear share {_percent(row.efficiency_measured)})")
         if equal:
-            text += (f"; equal-time drawdown {_fmt(row.drawdown_equal_time, 'm', u['length'])} "
+            text += (f"; equal-time drawdown {fmt(row.drawdown_equal_time, 'm', u['length'])} "
                      f"{lab['length']} (specific capacity "
-                     f"{_fmt(row.specific_capacity_equal_time, 'm**2/d', u['capacity'])} "
+                     f"{fmt(row.specific_capacity_equal_time, 'm**2/d', u['capacity'])} "
                      f"{lab['capacity']}, linear share {_percent(row.efficiency_equal_time)})")
         lines.append(text)
     if equal:

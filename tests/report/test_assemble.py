@@ -298,3 +298,38 @@ def test_pdf_creation_date_is_real_unless_source_date_epoch(monkeypatch):
     one, two = render_pdf_bytes(doc), render_pdf_bytes(doc)
     assert one == two
     assert b"/CreationDate (D:20231114221320" in one
+
+
+def test_si_report_with_a_level_record(tmp_path):
+    # the invented SI test well with a water-level record made from Cooper-Jacob superposition
+    # (Cooper and Jacob 1946): the equal-time analysis, both drawdowns per step, the apparent
+    # transmissivity from B, the levels in the appendix, SI thousands with a narrow space
+    import numpy as np
+    import pandas as pd
+
+    from blendq.well.stepdrawdown import cooper_jacob_step_drawdown
+
+    project = tmp_path / "si"
+    shutil.copytree(Path(__file__).parents[1] / "data" / "projects" / "quillmarsh_si", project)
+    rates = np.array([9.46353, 15.7725, 22.0816, 28.3906]) * 86.4  # L/s -> m^3/d
+    starts = np.array([0, 2, 4, 6]) / 24.0
+    t = np.concatenate([s + np.geomspace(1 / 1440, 2 / 24, 12) for s in starts])
+    s = cooper_jacob_step_drawdown(t, starts, rates, 420.0, 2e-4, 0.1524, 2.0, 1.8e-6)
+    origin = pd.Timestamp("2025-04-08 08:00")
+    pd.DataFrame({"time": [(origin + pd.Timedelta(days=float(x))).strftime("%Y-%m-%d %H:%M:%S")
+                           for x in t], "level [m]": np.round(30.6 + s, 3)}).to_csv(
+        project / "levels.csv", index=False)
+    toml = project / "project.toml"
+    toml.write_text(toml.read_text(encoding="utf-8").replace(
+        'flowlogs = "flowlogs.csv"', 'flowlogs = "flowlogs.csv"\nlevels = "levels.csv"', 1),
+        encoding="utf-8")
+    out = tmp_path / "out"
+    r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED, "--units", "SI")
+    assert r.exit_code == 0, r.output
+    text = " ".join(_scan((out / "report.html").read_text(encoding="utf-8")).text)
+    assert "Hantush-Bierschenk at 120 min" in text
+    assert "measured drawdown" in text and "equal-time drawdown" in text
+    assert "Apparent transmissivity from B" in text
+    assert "Water levels (levels.csv)." in text
+    assert "1\u202f363" in text  # step S2, 15.7725 L/s = 1 362.7 m^3/d, in the steps appendix
+    assert "Depth [m]" in text  # the sample taken inside the well

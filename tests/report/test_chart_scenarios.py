@@ -148,16 +148,24 @@ def test_each_option_shows_its_band(setup):
 
 
 def test_window_edge_markers_do_not_overlap(setup):
-    # the recommended-rate marker and the pumping-level marker sit on different heights of the
-    # option's row, so the two never hide each other when they fall at the same rate
+    # where the pumping-level marker falls on the recommended-rate marker (the window ending at
+    # the level limit, the recommended rate at that end), it moves above the bar; elsewhere it
+    # stays on the option's row
+    import dataclasses
+
     from blendq.report.charts.scenarios import YIELD_OFFSET
 
     a, comp = setup
-    strip = scenario_chart(comp, a.limits, "US").axes[-1]
-    rec = {float(ln.get_ydata()[0]) for ln in _lines(strip, "recommended")}
-    yld = {float(ln.get_ydata()[0]) for ln in _lines(strip, "yield")}
-    assert rec and yld
-    assert all(abs(y - round(y)) < 1e-9 for y in rec)  # on the bar's centre line
-    assert all(abs(y - round(y) - YIELD_OFFSET) < 1e-9 for y in yld)
+    res = next(r for r in comp.results if r.window.recommended is not None)
+    at_end = dataclasses.replace(res, yield_rate=res.window.recommended, yield_beyond_grid=False)
+    clash = dataclasses.replace(comp, results=[at_end])
+    strip = scenario_chart(clash, a.limits, "US").axes[-1]
+    (rec,), (yld,) = _lines(strip, "recommended"), _lines(strip, "yield")
+    assert rec.get_xdata()[0] == pytest.approx(yld.get_xdata()[0])
+    assert yld.get_ydata()[0] - rec.get_ydata()[0] == pytest.approx(YIELD_OFFSET)
     assert YIELD_OFFSET > 0.32 + 0.05  # clear of the bar (half height 0.32)
-    assert rec.isdisjoint(yld)
+    far = dataclasses.replace(res, yield_rate=res.window.recommended * 3.0,
+                              yield_beyond_grid=False)
+    strip = scenario_chart(dataclasses.replace(comp, results=[far]), a.limits, "US").axes[-1]
+    (rec,), (yld,) = _lines(strip, "recommended"), _lines(strip, "yield")
+    assert yld.get_ydata()[0] == rec.get_ydata()[0]

@@ -58,9 +58,11 @@ SCENARIO_STYLES = [
 ]
 
 
-#: The pumping-level marker sits this far [rows] above its option's bar, so that it never hides
-#: the recommended-rate marker when both fall at the window's end.
+#: Where the pumping-level marker would fall on the recommended-rate marker (both at the
+#: window's end, within :data:`MARKER_CLEARANCE` of the rate axis), it moves this far [rows]
+#: above its option's bar, so that neither hides the other.
 YIELD_OFFSET = 0.42
+MARKER_CLEARANCE = 0.03
 
 
 def _style(k: int):
@@ -200,6 +202,7 @@ def _window_strip(ax, comparison: Comparison, units: str) -> None:
     results = comparison.results
     rates = results[0].prediction.rates
     half = 0.5 * float(np.min(np.diff(rates))) if len(rates) > 1 else 0.0
+    span = float(_rate(rates.max(), units)[0]) or 1.0
     ns = len(results)
     for k, res in enumerate(results):
         row = ns - 1 - k
@@ -211,7 +214,7 @@ def _window_strip(ax, comparison: Comparison, units: str) -> None:
                         fontsize=7.5, color=VERMILLION, style="italic")
             if not res.yield_beyond_grid:
                 xy = float(_rate(res.yield_rate, units)[0])
-                ax.plot([xy], [row + YIELD_OFFSET], marker=">", markersize=5, color=BLACK,
+                ax.plot([xy], [row], marker=">", markersize=5, color=BLACK,
                         markerfacecolor="white", linestyle="none", zorder=5, gid="yield")
             continue
         for lo, hi, _, _ in w.intervals:
@@ -219,14 +222,17 @@ def _window_strip(ax, comparison: Comparison, units: str) -> None:
             ax.broken_barh([(a, b - a)], (row - 0.32, 0.64), facecolors=colour, alpha=0.55,
                            edgecolor=BLACK, linewidth=0.6, hatch="////" if k % 2 else None,
                            gid=f"window {res.scenario.name}")
+        xr = None
         if w.recommended is not None:
             xr = float(_rate(w.recommended, units)[0])
             ax.plot([xr], [row], marker="D", markersize=6, markeredgewidth=1.4, color=BLACK,
                     markerfacecolor="white", linestyle="none", zorder=5, gid="recommended")
         if not res.yield_beyond_grid:
             xy = float(_rate(res.yield_rate, units)[0])
-            ax.plot([xy], [row + YIELD_OFFSET], marker=">", markersize=5, color=BLACK,
-                    markerfacecolor="white", linestyle="none", zorder=5, gid="yield")
+            clash = xr is not None and abs(xy - xr) < MARKER_CLEARANCE * span
+            ax.plot([xy], [row + (YIELD_OFFSET if clash else 0.0)], marker=">", markersize=5,
+                    color=BLACK, markerfacecolor="white", linestyle="none", zorder=5,
+                    gid="yield")
         if w.empty:
             ax.annotate("no window", (0.01, row), xycoords=("axes fraction", "data"), ha="left",
                         va="center", fontsize=7.5, color=VERMILLION, style="italic")
