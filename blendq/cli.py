@@ -330,7 +330,10 @@ def new_cmd(folder: Annotated[Path, typer.Argument(help="Folder for the new proj
 
 
 @app.command("drawdown")
-def drawdown_cmd(project: ProjectArg, units: UnitsOpt = "US", as_json: JsonOpt = False) -> None:
+def drawdown_cmd(project: ProjectArg, units: UnitsOpt = "US", as_json: JsonOpt = False,
+                 chart: Annotated[Path | None, typer.Option(
+                     "--chart", help="Also write the chart of s/Q against Q with the fitted "
+                                     "line to this PNG file.")] = None) -> None:
     """Step-drawdown analysis: well loss, specific capacity, efficiency and well condition."""
 
     def body():
@@ -344,18 +347,27 @@ def drawdown_cmd(project: ProjectArg, units: UnitsOpt = "US", as_json: JsonOpt =
         if static is None:
             raise InputError("the step-drawdown analysis needs the well's static level",
                              file="project.toml", field="well.static_level")
+        zone_s = [z.storativity for z in proj.zones]
         res = analyse_step_test(proj.steps, static,
                                 proj.levels if len(proj.levels) else None,
                                 steps_file=proj.files.get("steps", "steps.csv"),
-                                levels_file=proj.files.get("levels", "levels.csv"))
+                                levels_file=proj.files.get("levels", "levels.csv"),
+                                well_radius=proj.well.well_radius,
+                                storativity=(sum(zone_s) if zone_s and None not in zone_s
+                                             else None))
+        if chart is not None:
+            from blendq.report.charts.stepdrawdown import specific_drawdown_chart
+
+            specific_drawdown_chart(res, u).savefig(chart, dpi=150)
         if as_json:
             from blendq.report.outputs import to_json_stable
 
-            typer.echo(to_json_stable({"steps": res.per_step.to_dict(orient="records"),
-                                       "parameters": res.parameters.to_dict(orient="records")}))
+            typer.echo(to_json_stable(res.to_json_dict()))
             return
         for line in res.summary_lines(u):
             typer.echo(line)
+        if chart is not None:
+            typer.echo(f"  chart of s/Q against Q: {chart}")
 
     _guard(body)
 

@@ -243,19 +243,28 @@ def check_finite(value: float) -> float:
     return value
 
 
+#: Thousands separator of SI display output: a narrow no-break space, so that "1 000" cannot
+#: be misread by a reader who writes decimals with a comma (BIPM, The International System of
+#: Units, 9th ed. 2019, section 5.4.4: digits may be grouped in threes by a small space, never
+#: by a comma or a point). US output keeps the comma.
+SI_THOUSANDS_SEPARATOR = "\u202f"
+
+
 def format_quantity(value: float, kind: str, system: str = "US", digits: int = 3) -> str:
     """Format a base-unit magnitude in the display unit of ``system`` ("US" or "SI")."""
     unit = DISPLAY_UNITS[system].get(kind, BASE_UNITS[kind])
     mag = from_base(value, kind, unit)
-    return f"{significant(mag, digits)} {display_unit_label(unit)}"
+    return f"{significant(mag, digits, system)} {display_unit_label(unit)}"
 
 
-def significant(value: float, digits: int = 3) -> str:
+def significant(value: float, digits: int = 3, system: str = "US") -> str:
     """A number rounded to ``digits`` significant digits, as a reader expects it: thousands
-    with separators and no exponent (2,180 rather than 2.18e+03), very small or very large
-    numbers in exponent form."""
+    with separators and no exponent (2,180 rather than 2.18e+03; in SI 2 180 with a narrow
+    space, :data:`SI_THOUSANDS_SEPARATOR`), very small or very large numbers in exponent
+    form."""
     if math.isfinite(value) and 1e3 <= abs(value) < 1e9:
-        return f"{float(f'{value:.{digits}g}'):,.0f}"
+        text = f"{float(f'{value:.{digits}g}'):,.0f}"
+        return text.replace(",", SI_THOUSANDS_SEPARATOR) if system == "SI" else text
     return f"{value:.{digits}g}"
 
 

@@ -247,11 +247,14 @@ def test_base_units_are_self_consistent():
 def test_format_quantity_in_both_systems():
     # 1000 m^3/d / 5.45099296896 m^3/d per gpm = 183.452... gpm
     assert format_quantity(1000.0, "rate", "US") == "183 gpm"
-    assert format_quantity(1000.0, "rate", "SI") == "1,000 m³/d"
+    # SI groups thousands with a narrow no-break space (BIPM SI Brochure 2019, 5.4.4): a reader
+    # who writes decimals with a comma cannot take "1 000" for one
+    assert format_quantity(1000.0, "rate", "SI") == "1\u202f000 m³/d"
     # three significant digits, thousands without an exponent
-    assert format_quantity(2183.4, "rate", "SI") == "2,180 m³/d"
-    assert format_quantity(1637.0, "rate", "SI") == "1,640 m³/d"
-    assert format_quantity(-2183.4, "rate", "SI") == "-2,180 m³/d"
+    assert format_quantity(2183.4, "rate", "SI") == "2\u202f180 m³/d"
+    assert format_quantity(1637.0, "rate", "SI") == "1\u202f640 m³/d"
+    assert format_quantity(-2183.4, "rate", "SI") == "-2\u202f180 m³/d"
+    assert format_quantity(to_base(2183.4, "gpm", "rate"), "rate", "US") == "2,180 gpm"
     assert format_quantity(12.345, "rate", "SI") == "12.3 m³/d"
     assert format_quantity(2.5e-4, "length", "SI") == "0.00025 m"
     assert format_quantity(3.048, "length", "US", digits=4) == "10 ft"

@@ -240,6 +240,12 @@ class Settings:
         Coefficient of variation [-] of each analyte's concentration from sample to sample at
         a fixed rate, beyond lab error (analyte key -> value; the key "default" for analytes
         not named). Analytes without a value take ``DEFAULT_TEMPORAL_CV`` (common practice).
+    prepared_by, reviewed_by : str
+        Who prepared and who reviewed the report ("" when not given; [project] table).
+    report_date : str
+        Date of the report, ISO 8601 (YYYY-MM-DD); "" for the date of the run.
+    paper : str
+        "a4" or "letter"; "" for Letter with US display units and A4 with SI.
     """
 
     limit_sets: tuple[str, ...] = ("US-EPA",)
@@ -267,6 +273,10 @@ class Settings:
     unresolved_tolerance: float = 0.05
     unseen_zone_factor: float = 3.0
     temporal_cv: dict = field(default_factory=dict)
+    prepared_by: str = ""
+    reviewed_by: str = ""
+    report_date: str = ""
+    paper: str = ""
 
     def temporal_cv_for(self, analyte: str) -> tuple[float, str]:
         """Temporal coefficient of variation of ``analyte`` [-] and where it comes from

@@ -9,6 +9,7 @@ converted to the core's base units (see :mod:`blendq.units`); a problem is an
 
 from __future__ import annotations
 
+import datetime as dt
 import math
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -295,6 +296,29 @@ def _sublayers(s: _Section, top: float, bottom: float, label: str) -> tuple:
         if t2 < b1:
             raise s.error("sublayers", "sub-layers overlap")
     return tuple(rows)
+def _report_fields(head: _Section) -> dict:
+    """The report's optional [project] fields: who prepared and reviewed it, its date, paper."""
+    out = {"prepared_by": head.text("prepared_by", ""),
+           "reviewed_by": head.text("reviewed_by", "")}
+    date = head.get("report_date", "")
+    if isinstance(date, dt.datetime):
+        date = date.date()
+    if isinstance(date, dt.date):
+        date = date.isoformat()
+    elif not isinstance(date, str):
+        raise head.error("report_date", f'expected a date such as 2026-05-20, got {date!r}')
+    elif date.strip():
+        try:
+            date = dt.date.fromisoformat(date.strip()).isoformat()
+        except ValueError:
+            raise head.error("report_date", f'"{date}" is not a date such as 2026-05-20') \
+                from None
+    out["report_date"] = date.strip()
+    paper = head.text("paper", "")
+    if paper and paper.lower() not in ("a4", "letter"):
+        raise head.error("paper", f'"{paper}" is not "Letter" or "A4"')
+    out["paper"] = paper.lower()
+    return out
 
 
 def _settings(doc: dict, display_units: str, label: str) -> Settings:
@@ -533,9 +557,10 @@ def read_project_file(path: str | Path) -> ProjectFile:
     units = head.text("display_units", Settings().display_units)
     if units not in ("US", "SI"):
         raise head.error("display_units", f'"{units}" is not "US" or "SI"')
+    report_fields = _report_fields(head)
     head.done()
     well, zones = _well(doc, label), _zones(doc, label)
-    settings = _settings(doc, units, label)
+    settings = replace(_settings(doc, units, label), **report_fields)
     limits = _user_limits(doc, label, [lim for s in settings.limit_sets for lim in limit_set(s)])
     return ProjectFile(name, well, zones, settings, limits, _scenarios(doc, label),
                        _table_paths(doc, project_file.parent, label), project_file)

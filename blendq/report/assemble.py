@@ -225,6 +225,29 @@ def step_drawdown_figures(a: Analysis, units: str) -> list[Figure]:
     return figures
 
 
+def step_transmissivity_blocks(a: Analysis, units: str) -> list:
+    """The apparent transmissivity from the step test's B (Cooper-Jacob at the well face), when
+    the fit has a reference time: a paragraph, or nothing."""
+    from blendq.well.stepdrawdown import ASSUMED_STORATIVITY, transmissivity_from_linear_loss
+
+    res = a.step_drawdown.result
+    if res.transmissivity_from_b is not None or not np.isfinite(res.reference_time):
+        return []
+    zone_s = [z.storativity for z in a.project.zones]
+    assumed = not zone_s or None in zone_s
+    t = transmissivity_from_linear_loss(res.jacob.linear_loss, res.reference_time,
+                                        a.project.well.well_radius,
+                                        ASSUMED_STORATIVITY if assumed else sum(zone_s))
+    if not np.isfinite(t):
+        return []
+    how = (f"an assumed storativity of {ASSUMED_STORATIVITY:g} (common practice)" if assumed
+           else "the zones' summed storativity")
+    return [Paragraph(f"Apparent transmissivity from B (Cooper-Jacob at the well face, with the "
+                      f"well radius and {how}): {format_quantity(t, 'transmissivity', units)}. "
+                      "B also holds the linear losses of the skin, gravel pack and screen, so "
+                      "this is at most the aquifer's transmissivity, not an aquifer test.")]
+
+
 def step_drawdown_section(a: Analysis, units: str) -> Section:
     """Step-drawdown analysis, well condition, and which pumping-level prediction is used,
     with the step-drawdown charts."""
@@ -236,6 +259,7 @@ def step_drawdown_section(a: Analysis, units: str) -> Section:
         return Section("Step-drawdown test and well condition", tuple(blocks), "stepdrawdown")
     res = lc.result
     blocks.append(BulletList(res.summary_lines(units)))
+    blocks += step_transmissivity_blocks(a, units)
     blocks.append(Paragraph("Walton's (1962) well-condition classes from the well-loss "
                             "coefficient C (below 5, 5-10, 10-40, above 40 s²/ft⁵, set from "
                             "field experience) are taken from a published restatement that "
@@ -305,6 +329,8 @@ def quality_figures(a: Analysis, units: str) -> list[Figure]:
     extra = (f" Dashed: {s.interval:.0%} range of a compliance sample for the limits judged on "
              f"single samples ({', '.join(single)}), with the water's temporal variability and "
              "the lab's error." if single else "")
+    if a.window.empty:  # the chart's title stays short; the reason is given here
+        extra += f" No operating window: {a.window.reason_empty or 'no rate meets every criterion'}."
     return [
         chart_figure("Discharge quality against pumping rate: median and band of the mean "
                      "discharge concentration, limits, the step samples and the operating window."
@@ -318,6 +344,148 @@ def quality_figures(a: Analysis, units: str) -> list[Figure]:
         chart_figure("Zone estimates with intervals; unresolved zones as the range the data "
                      "allow.", zones_chart(a)),
     ]
+
+
+ADDED_REFERENCES = [
+    "Kruseman, G.P. and de Ridder, N.A. (1990) Analysis and Evaluation of Pumping Test Data, "
+    "2nd ed. ILRI Publication 47, Wageningen (step-drawdown tests; Hantush-Bierschenk method).",
+    "Day-Lewis, F.D. and others (2011) USGS Techniques and Methods 4-D2 (two-condition "
+    "flow-log analysis).",
+    "Halford, K.J. and Hanson, R.T. (2002) USGS Open-File Report 02-293 (multi-node wells).",
+    "Bureau International des Poids et Mesures (2019) The International System of Units (SI), "
+    "9th ed., section 5.4.4 (digits grouped in threes by a small space).",
+]
+
+
+def report_paper(a: Analysis) -> str:
+    """Paper of the PDF: the project's ``paper`` setting, else Letter for a US project and A4
+    for an SI one (the project's display units, not a one-off ``--units``)."""
+    s = a.project.settings
+    if s.paper:
+        return s.paper
+    return "letter" if s.display_units == "US" else "a4"
+
+
+def report_date(a: Analysis) -> str:
+    """Date of the report (ISO 8601): the project's ``report_date``, else the day given by
+    ``SOURCE_DATE_EPOCH`` (UTC) when that asks for a reproducible build, else today."""
+    import datetime as dt
+    import os
+
+    if a.project.settings.report_date:
+        return a.project.settings.report_date
+    epoch = os.environ.get("SOURCE_DATE_EPOCH", "").strip()
+    if epoch:
+        try:
+            return dt.datetime.fromtimestamp(int(epoch), dt.timezone.utc).date().isoformat()
+        except (ValueError, OverflowError, OSError):
+            pass  # not a whole number of seconds: ignore it, as ReportLab does not
+    return dt.date.today().isoformat()
+
+
+def report_identity_block(a: Analysis, created: str) -> KeyValues:
+    """Date, who prepared and who reviewed the report, and the program that wrote it."""
+    s = a.project.settings
+    return KeyValues([
+        ("Report date", report_date(a)),
+        ("Prepared by", s.prepared_by or "not stated (set prepared_by in project.toml)"),
+        ("Reviewed by", s.reviewed_by or "not yet reviewed: a licensed professional reviews "
+                                         "any operating change"),
+        ("Written by", created or f"blendq {__version__}"),
+    ])
+
+
+def _rounded_text(values, units: str, digits: int = 4) -> list[str]:
+    """Numbers as the report writes them (thousands grouped by the unit system's rule)."""
+    from blendq.units import significant
+
+    return ["" if not np.isfinite(v) else significant(float(v), digits, units)
+            for v in np.asarray(values, float)]
+
+
+def _clock(value) -> str:
+    """A date and time to the second (an end computed from a duration in days can miss the
+    minute by a rounding error), seconds shown only when not zero."""
+    if value is None or pd.isna(value):
+        return ""
+    t = pd.Timestamp(value).round("s")
+    return t.strftime("%Y-%m-%d %H:%M:%S" if t.second else "%Y-%m-%d %H:%M")
+
+
+def raw_data_appendix(a: Analysis, units: str) -> Section:
+    """Appendix: the data as given - steps, water levels and lab results with qualifiers."""
+    p = a.project
+    du = DISPLAY_UNITS[units]
+    rate_u, len_u = du["rate"], du["length"]
+    blocks: list = [Paragraph(
+        "The test data as read from the project's files, in the report's units (lab results "
+        "as the lab reported them). Row: the data row of the source file.")]
+    st = p.steps
+    if len(st):
+        def when(col):
+            return [_clock(v) for v in st[col]] if col in st else [""] * len(st)
+        steps = pd.DataFrame({
+            "Step": st["step"].astype(str),
+            f"Rate [{display_unit_label(rate_u)}]": _rounded_text(
+                from_base(st["rate"].to_numpy(float), "rate", rate_u), units),
+            "Start": when("start"), "End": when("end"),
+            "Duration [min]": _rounded_text(st["duration"].to_numpy(float) * 1440.0, units),
+            f"Pumping level [{display_unit_label(len_u)} depth]": _rounded_text(
+                from_base(st["pumping_level"].to_numpy(float), "length", len_u), units),
+            "Recovered before": ["yes" if bool(v) is True and not pd.isna(v) else "no"
+                                 for v in st["recovered_before"]],
+            "Row": st["source_row"].astype(str),
+        })
+        blocks.append(Table(steps, f"Steps ({p.files.get('steps', 'steps')})."))
+    lv = p.levels
+    if len(lv):
+        levels = pd.DataFrame({
+            "Time": [_clock(v) for v in lv["time"]],
+            f"Level [{display_unit_label(len_u)} depth]": _rounded_text(
+                from_base(lv["level"].to_numpy(float), "length", len_u), units),
+            "Row": lv["source_row"].astype(str),
+        })
+        blocks.append(Table(levels, f"Water levels ({p.files.get('levels', 'levels')})."))
+    else:
+        blocks.append(Paragraph("No water-level record was given (levels table)."))
+    sm = p.samples
+    if len(sm):
+        def text(col):
+            return ["" if col not in sm or pd.isna(v) else str(v) for v in
+                    (sm[col] if col in sm else [None] * len(sm))]
+
+        def reported(i):
+            r = sm.iloc[i]
+            if bool(r.get("nondetect", False)) and not pd.isna(r.get("detection_limit")):
+                an = get_analyte(r["analyte"])
+                dl = an.in_display_unit([r["detection_limit"]])[0]
+                return f"< {dl:.4g} {an.display_unit}"
+            val = r.get("reported_value")
+            if val is None or (isinstance(val, float) and np.isnan(val)):
+                an = get_analyte(r["analyte"])
+                return f"{an.in_display_unit([r['value']])[0]:.4g} {an.display_unit}"
+            unit = "" if pd.isna(r.get("reported_unit")) else str(r.get("reported_unit"))
+            basis = "" if pd.isna(r.get("reported_basis")) else str(r.get("reported_basis"))
+            num = f"{float(val):.4g}" if isinstance(val, (int, float)) else str(val)
+            return " ".join(x for x in (num, unit, basis) if x)
+
+        lab = pd.DataFrame({
+            "Sample": text("sample_id"), "Step": text("step"),
+            "Analyte": [get_analyte(x).label() for x in sm["analyte"]],
+            "Result as reported": [reported(i) for i in range(len(sm))],
+            "Qualifier": text("qualifier"),
+            "Sampled": [_clock(v) for v in sm["sampled_at"]],
+            "Duplicate of": text("duplicate_of"),
+            "Row": sm["source_row"].astype(str),
+        })
+        depth = pd.to_numeric(sm["depth"], errors="coerce").to_numpy(float) \
+            if "depth" in sm else np.full(len(sm), np.nan)
+        if np.isfinite(depth).any():  # samples taken inside the well
+            lab.insert(3, f"Depth [{display_unit_label(len_u)}]",
+                       _rounded_text(from_base(depth, "length", len_u), units))
+        blocks.append(Table(lab, f"Lab results ({p.files.get('samples', 'samples')}), with "
+                                 "the lab's qualifiers."))
+    return Section("Appendix: the data", tuple(blocks), "appendix-data")
 
 
 def build_document(a: Analysis, units: str = "US", created: str = "") -> Document:
@@ -435,12 +603,16 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
                       "exceeded margin x limit, whatever the model says; a fit that misses a "
                       "lab result by more than 3 standard deviations makes the decision "
                       "provisional."),
-            BulletList(REFERENCES),
+            BulletList(REFERENCES + ADDED_REFERENCES),
             Paragraph(f"blendq {__version__}."),
         ), "methods"),
     ]
+    sections.append(raw_data_appendix(a, units))
+    sections.insert(0, Section("About this report", (report_identity_block(a, created),),
+                               "about"))
+    stamp = f"{report_date(a)} · {created or f'blendq {__version__}'}"
     return Document(title=f"Discharge quality and operating window: {w.name}",
-                    subtitle=p.name, created=created, sections=tuple(sections))
+                    subtitle=p.name, created=stamp, sections=tuple(sections))
 
 
 def summary_json(a: Analysis, units: str = "US") -> dict:
@@ -470,6 +642,7 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
 
 def output_files(a: Analysis, units: str = "US", created: str = "") -> dict[str, bytes | str]:
     """All files of a report folder: report.html, report.pdf, CSV tables, summary.json, charts."""
+    from blendq.report.csv_tables import csv_tables
     from blendq.report.html import render_html
     from blendq.report.outputs import to_csv_safe, to_json_stable
     from blendq.report.pdf import render_pdf_bytes
@@ -477,14 +650,10 @@ def output_files(a: Analysis, units: str = "US", created: str = "") -> dict[str,
     doc = build_document(a, units, created)
     files: dict[str, bytes | str] = {
         "report.html": render_html(doc),
-        "report.pdf": render_pdf_bytes(doc),
+        "report.pdf": render_pdf_bytes(doc, report_paper(a)),
         "summary.json": to_json_stable(summary_json(a, units)),
-        "tables/zones.csv": to_csv_safe(a.zones),
-        "tables/sweep.csv": to_csv_safe(a.sweep_table),
-        "tables/residuals.csv": to_csv_safe(a.residuals),
-        "tables/hydraulics.csv": to_csv_safe(a.hydraulics),
-        "tables/qa_findings.csv": to_csv_safe(a.qa.findings),
     }
+    files.update({name: to_csv_safe(t) for name, t in csv_tables(a, units).items()})
     for k, block in enumerate(b for sec in doc.sections for b in sec.blocks if isinstance(b, Figure)):
         if block.png is not None:
             files[f"charts/chart_{k + 1}.png"] = block.png

@@ -27,6 +27,7 @@ from __future__ import annotations
 import importlib.util
 import io
 import os
+import re
 from dataclasses import dataclass, field
 from os import PathLike
 from typing import Any
@@ -62,6 +63,10 @@ PAPER_SIZES: dict[str, tuple[float, float]] = {"a4": (595.276, 841.89), "letter"
 #: Resolution [dots per inch] at which a figure that still holds a matplotlib figure is
 #: rasterised for the PDF (ready PNGs are placed at the resolution they were saved with).
 FIGURE_DPI = 200.0
+#: Smallest scale [-] to which a chart shrinks to end a page instead of moving to the next one
+#: (blendq's layout rule: a chart at 75 % of its size still reads; a page three-quarters blank
+#: does not).
+FIGURE_MIN_SCALE = 0.75
 
 FONT, FONT_BOLD = "blendq-sans", "blendq-sans-bold"
 MARGIN_X, MARGIN_TOP, MARGIN_BOTTOM = 58.0, 66.0, 62.0
@@ -136,7 +141,10 @@ def _style(name: str, size: float, lead: float, bold: bool = False, grey: str = 
 
 def _markup(text: str) -> str:
     """Plain text as ReportLab paragraph markup: escaped, newlines kept."""
-    return "<br/>".join(escape(" ".join(part.split())) for part in text.split("\n"))
+    # collapse ordinary white space only: the narrow no-break space that groups SI thousands
+    # ("1 000") must stay, or the line could break inside a number
+    return "<br/>".join(escape(" ".join(re.split(r"[ \t\r\f\v]+", part.strip(" \t\r\f\v"))))
+                        for part in text.split("\n"))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -285,6 +293,8 @@ def _flowable_classes() -> dict[str, type]:
                 need += f.getSpaceBefore()
                 if isinstance(f, KeepTogether):
                     part = sum(c.wrap(width, 1e6)[1] + c.getSpaceBefore() for c in f._content)
+                elif hasattr(f, "bq_min_height"):  # a chart: whole, at its smallest scale
+                    part = f.bq_min_height(width)
                 elif isinstance(f, TaggedTable):
                     f.wrap(width, 1e6)
                     part = sum(f._rowHeights[: f.bq_fixed + 2])
@@ -334,9 +344,43 @@ def _flowable_classes() -> dict[str, type]:
                 Canvas.showPage(self)
             Canvas.save(self)
 
+    class FigureBox(Flowable):
+        """A chart and its caption as one unit that may shrink (to :data:`FIGURE_MIN_SCALE` of
+        its height at least) to finish a page rather than leave most of it blank."""
+
+        bq_tag = ""
+
+        def __init__(self, png: bytes, width: float, height: float, caption: Any) -> None:
+            super().__init__()
+            self.png, self.full_w, self.full_h, self.caption = png, width, height, caption
+            self.spaceBefore = 10.0
+            self.scale = 1.0
+
+        def bq_min_height(self, avail_w: float) -> float:
+            return self.full_h * FIGURE_MIN_SCALE + self.caption.wrap(avail_w, 1e6)[1]
+
+        def wrap(self, avail_w: float, avail_h: float) -> tuple[float, float]:
+            _, cap_h = self.caption.wrap(avail_w, 1e6)
+            self.cap_h = cap_h
+            need = self.full_h + cap_h
+            room = (avail_h - cap_h) / self.full_h
+            self.scale = 1.0 if need <= avail_h else (
+                room if room >= FIGURE_MIN_SCALE else 1.0)
+            self.width = avail_w
+            self.height = self.full_h * self.scale + cap_h
+            return self.width, self.height
+
+        def draw(self) -> None:
+            from reportlab.lib.utils import ImageReader
+
+            w, h = self.full_w * self.scale, self.full_h * self.scale
+            self.canv.drawImage(ImageReader(io.BytesIO(self.png)), 0, self.cap_h, width=w,
+                                height=h, mask="auto")
+            self.caption.drawOn(self.canv, 0, 0)
+
     _CLASSES.update(TaggedParagraph=TaggedParagraph, TaggedTable=TaggedTable,
                     TwoRules=TwoRules, RoomAfterHeading=RoomAfterHeading, PageRef=PageRef,
-                    DeferredCanvas=DeferredCanvas)
+                    DeferredCanvas=DeferredCanvas, FigureBox=FigureBox)
     return _CLASSES
 
 
@@ -495,7 +539,7 @@ class _Builder:
 
     def figure(self, block: Figure) -> list[Any]:
         from PIL import Image as PILImage  # matplotlib's and ReportLab's image dependency
-        from reportlab.platypus import Image, KeepTogether
+        from reportlab.platypus import KeepTogether
         from reportlab.platypus import Table as RLTable
 
         tag = self._tag("figure")
@@ -521,9 +565,9 @@ class _Builder:
         h = w * px_h / px_w
         if h > self.height * 2.0 / 3.0:
             w, h = w * self.height * 2.0 / 3.0 / h, self.height * 2.0 / 3.0
-        image = Image(io.BytesIO(png), width=w, height=h)
-        image.spaceBefore, image.bq_tag = 10.0, tag
-        return [KeepTogether([image, caption])]
+        box = self.cls["FigureBox"](png, w, h, caption)
+        box.bq_tag = tag
+        return [box]
 
     def keyvalues(self, block: KeyValues) -> list[Any]:
         from reportlab.platypus import Table as RLTable
@@ -670,7 +714,10 @@ def _layout(doc: Document, paper: str, target: Any) -> Pagination:
     template = Template(
         target, pagesize=(page_w, page_h), leftMargin=MARGIN_X, rightMargin=MARGIN_X,
         topMargin=MARGIN_TOP, bottomMargin=MARGIN_BOTTOM, title=doc.title,
-        subject=doc.subtitle, creator=f"blendq {__version__}", author="", invariant=1,
+        subject=doc.subtitle, creator=f"blendq {__version__}", author="",
+        # the creation date is the real one; ReportLab uses SOURCE_DATE_EPOCH instead when it
+        # is set, for a reproducible (byte-identical) file
+        invariant=0,
     )
     frame = Frame(MARGIN_X, MARGIN_BOTTOM, width, height, leftPadding=0, rightPadding=0,
                   topPadding=0, bottomPadding=0, id="text")
@@ -739,5 +786,6 @@ def render_pdf(doc: Document, path: str | PathLike[str], paper: str = "a4") -> i
 
 
 def render_pdf_bytes(doc: Document, paper: str = "a4") -> bytes:
-    """Render a document to PDF bytes; the same document gives the same bytes."""
+    """Render a document to PDF bytes; the same document gives the same bytes when
+    ``SOURCE_DATE_EPOCH`` fixes the creation date (otherwise the date is the real one)."""
     return _write(doc, paper)[0]

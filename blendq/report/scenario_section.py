@@ -13,15 +13,12 @@ import pandas as pd
 from blendq.chemistry.analytes import get_analyte
 from blendq.decide.scenarios import BASE_NAME, Comparison
 from blendq.report.document import Figure, Paragraph, Section, Table
-from blendq.units import DISPLAY_UNITS, display_unit_label, from_base
+from blendq.units import format_quantity
 
 
 def _rate_text(value: float, units: str) -> str:
-    """A rate [m^3/d] in the display unit, whole numbers from 100 up."""
-    unit = DISPLAY_UNITS[units]["rate"]
-    x = float(from_base(value, "rate", unit))
-    return f"{x:,.0f} {display_unit_label(unit)}" if abs(x) >= 100 else \
-        f"{x:.3g} {display_unit_label(unit)}"
+    """A rate [m^3/d] in the display unit, three significant digits (as the CLI and charts)."""
+    return format_quantity(value, "rate", units)
 
 
 def _conc_text(analyte: str, values) -> tuple[str, str]:
@@ -138,7 +135,8 @@ def scenario_chart_figure(analysis, comparison: Comparison, units: str = "US") -
         "Median delivered quality against the well's pumping rate for each option, with the "
         "limit and the operating margin; beneath, each option's operating window (which "
         "also accounts for the prediction bands), recommended rate and pumping-level yield.",
-        scenario_chart(comparison, analysis.limits, units), svg=False,
+        scenario_chart(comparison, analysis.limits, units,
+                       interval=analysis.project.settings.interval), svg=False,
         alt="Operating windows: " + "; ".join(window_summary(comparison, units)))
 
 

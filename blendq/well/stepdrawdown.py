@@ -170,7 +170,8 @@ class StepFit:
     dof : int
         Degrees of freedom of the fit (points minus parameters).
     residual_std : float
-        Root-mean-square residual per degree of freedom [m] (NaN for dof = 0).
+        Root-mean-square residual per degree of freedom (NaN for dof = 0): of s_w [m] for
+        Rorabaugh, of the straight line s_w / Q [d/m^2] for Jacob.
     rate, drawdown : ndarray
         The fitted points [m^3/d], [m].
     reference_time : float
@@ -256,7 +257,7 @@ def _residual_std(resid, sigma, dof):
 
 
 def fit_jacob(rate, drawdown, sigma=None, reference_time: float = np.nan) -> StepFit:
-    """Fit Jacob's well-loss equation s_w = B Q + C Q^2 by least squares.
+    """Fit Jacob's well-loss equation as the Hantush-Bierschenk straight line s_w/Q = B + C Q.
 
     Parameters
     ----------
@@ -265,47 +266,59 @@ def fit_jacob(rate, drawdown, sigma=None, reference_time: float = np.nan) -> Ste
     drawdown : array_like, shape (n_steps,)
         Drawdowns s_w [m] (end of step, or Hantush-Bierschenk sums at equal elapsed time).
     sigma : float or array_like, optional
-        One standard deviation of each drawdown [m]; when given the covariance uses it as is,
-        otherwise it is scaled by the residual variance.
+        One standard deviation of each drawdown [m]; the line's points then carry sigma / Q and
+        the covariance uses them as is. Otherwise every point of the line has the same weight
+        and the covariance is scaled by the residual variance.
     reference_time : float, optional
         Elapsed time the drawdowns belong to [d] (stored for horizon predictions).
 
     Returns
     -------
     StepFit
+        ``residual_std`` is the root-mean-square residual of s_w / Q per degree of freedom
+        [d/m^2] (of (s_w / Q) / (sigma / Q) [-] when ``sigma`` is given).
 
     Notes
     -----
-    s_w = B Q + C Q^2 (Jacob 1947). The fit is done on x = Q / Q_max with parameters in metres
-    (b = B Q_max, c = C Q_max^2) by scipy.optimize.curve_fit and transformed back, covariance
-    included. The graphical form is s_w / Q = B + C Q (a straight line).
+    s_w = B Q + C Q^2 (Jacob 1947) divided by Q is the straight line s_w / Q = B + C Q with
+    intercept B and slope C; the Hantush-Bierschenk procedure plots s_w / Q against Q and draws
+    this line (Kruseman and de Ridder 1990, step-drawdown tests). blendq fits that line by
+    ordinary least squares, every step with the same weight. In terms of s_w this is a
+    least-squares fit weighted by 1 / Q^2: it takes the error of a drawdown to grow in
+    proportion to its rate. The fit is done on x = Q / Q_max with parameters in metres
+    (b = B Q_max, c = C Q_max^2) and transformed back, covariance included.
 
     References
     ----------
     Jacob, C.E. (1947) Trans. ASCE 112, 1047-1064.
+    Kruseman, G.P. and de Ridder, N.A. (1990) Analysis and Evaluation of Pumping Test Data,
+    2nd ed. ILRI Publication 47 (step-drawdown tests; Hantush-Bierschenk method).
     """
     q, s, sig = _check_points(rate, drawdown, sigma, 2, "Jacob")
     q_ref = q.max()
     x = q / q_ref
-    design = np.column_stack([x, x * x])
-    p0 = linalg.lstsq(design if sig is None else design / sig[:, None],
-                      s if sig is None else s / sig)[0]
-
-    def func(x_, b, c):
-        return b * x_ + c * x_ * x_
-
-    def jac(x_, b, c):
-        return np.column_stack([x_, x_ * x_])
-
-    popt, pcov = _curve_fit(func, x, s, p0, jac, sig, method="lm", xtol=1e-15, ftol=1e-15,
-                            gtol=1e-15)
-    scale = np.diag([1.0 / q_ref, 1.0 / q_ref**2])
+    y = s / x  # s_w / Q scaled to metres: b + c x
+    w = np.ones_like(y) if sig is None else x / sig  # 1 / sd of y
+    design = np.column_stack([np.ones_like(x), x])
+    coef, *_ = linalg.lstsq(design * w[:, None], y * w)
+    resid = (y - design @ coef) * w
     dof = q.size - 2
-    return StepFit(model="jacob", linear_loss=float(popt[0] / q_ref),
-                   well_loss=float(popt[1] / q_ref**2), exponent=2.0,
-                   covariance=scale @ pcov @ scale, dof=dof,
-                   residual_std=_residual_std(s - func(x, *popt), sig, dof), rate=q, drawdown=s,
-                   reference_time=float(reference_time), absolute_sigma=sig is not None)
+    unscaled = linalg.pinv((design * w[:, None]).T @ (design * w[:, None]))
+    if sig is not None:
+        pcov = unscaled
+    elif dof > 0:
+        pcov = unscaled * float(resid @ resid) / dof
+    else:
+        pcov = np.full((2, 2), np.nan)
+    scale = np.diag([1.0 / q_ref, 1.0 / q_ref**2])
+    rstd = float(np.sqrt(resid @ resid / dof)) if dof > 0 else np.nan
+    if sig is None:
+        rstd /= q_ref  # residuals of s_w / Q in d/m^2
+    return StepFit(model="jacob", linear_loss=float(coef[0] / q_ref),
+                   well_loss=float(coef[1] / q_ref**2), exponent=2.0,
+                   covariance=scale @ pcov @ scale, dof=dof, residual_std=rstd, rate=q,
+                   drawdown=s, reference_time=float(reference_time),
+                   absolute_sigma=sig is not None)
 
 
 def fit_rorabaugh(rate, drawdown, sigma=None, reference_time: float = np.nan,
@@ -561,6 +574,65 @@ def equal_time_drawdowns(time, drawdown, step_start, step_end, step_rate, sequen
     return EqualTimeDrawdowns(elapsed=float(elapsed), step_drawdown=at_dt,
                               extrapolated=extrapolated, increment=increment, drawdown=total,
                               log_slope=beta, intercept=alpha, sequence_start=first)
+
+
+# --------------------------------------------------------------------------------------------
+# apparent transmissivity from the linear loss
+# --------------------------------------------------------------------------------------------
+
+#: Storativity [-] assumed for the apparent transmissivity from B when the zones give none.
+#: Common practice for a confined aquifer; T from B depends on it only through a logarithm.
+ASSUMED_STORATIVITY = 1e-4
+
+
+def transmissivity_from_linear_loss(linear_loss: float, time: float, well_radius: float,
+                                    storativity: float = ASSUMED_STORATIVITY) -> float:
+    """Apparent transmissivity from Jacob's B read as a Cooper-Jacob drawdown per unit rate.
+
+    Parameters
+    ----------
+    linear_loss : float
+        B [d/m^2] at elapsed pumping time ``time``.
+    time : float
+        Elapsed pumping time B belongs to [d].
+    well_radius : float
+        r_w [m].
+    storativity : float, default :data:`ASSUMED_STORATIVITY`
+        S [-].
+
+    Returns
+    -------
+    float
+        T [m^2/d] solving B = ln(2.25 T t / (r_w^2 S)) / (4 pi T); NaN when B, t, r_w or S is
+        not positive and finite.
+
+    Notes
+    -----
+    Cooper and Jacob (1946) at the well face. B also holds any linear loss in the skin, gravel
+    pack and screen, so the T found this way is apparent: a lower bound of the aquifer's T for a
+    positive skin. The function ln(a T) / T falls for a T > e, so the root there is unique.
+
+    References
+    ----------
+    Cooper, H.H. and Jacob, C.E. (1946) Trans. AGU 27(4), 526-534.
+    """
+    b, t, r, st = (float(v) for v in (linear_loss, time, well_radius, storativity))
+    if not all(np.isfinite(v) and v > 0 for v in (b, t, r, st)):
+        return np.nan
+    a = 2.25 * t / (r * r * st)
+
+    def f(tt):
+        return math.log(a * tt) / (4.0 * math.pi * tt) - b
+
+    lo = math.e / a
+    if f(lo) <= 0:
+        return np.nan
+    hi = lo * 10.0
+    while f(hi) > 0:
+        hi *= 10.0
+        if hi > 1e12:
+            return np.nan
+    return float(optimize.brentq(f, lo, hi, xtol=1e-12 * hi, rtol=1e-12))
 
 
 # --------------------------------------------------------------------------------------------

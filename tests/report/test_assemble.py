@@ -172,3 +172,164 @@ def test_user_text_escaped_in_html(tmp_path):
     assert f"TH-2 {evil}" in " ".join(scan.text)
     assert json.loads((out / "summary.json").read_text(encoding="utf-8"))["well"] == f"TH-2 {evil}"
     assert (out / "report.pdf").read_bytes().startswith(b"%PDF")
+
+
+def _significant_digits(text: str) -> int:
+    mantissa = text.lower().split("e")[0].lstrip("-").replace(".", "").lstrip("0")
+    return len(mantissa.rstrip("0")) if mantissa else 0
+
+
+def test_csv_tables_have_units_in_every_numeric_column_and_rounded_values(demo_out):
+    # display units (the demo is a US project), the unit in each numeric column name, and at
+    # most 4 significant digits (no 0.0070999999999999995)
+    for path in sorted((demo_out / "tables").glob("*.csv")):
+        rows = list(csv.DictReader(io.StringIO(path.read_text(encoding="utf-8"))))
+        assert rows, path.name
+        for col in rows[0]:
+            cells = [r[col] for r in rows if r[col] != ""]
+            try:
+                [float(c) for c in cells]
+            except ValueError:
+                continue  # a text column
+            if not cells or col == "source_row" or set(cells) <= {"True", "False"}:
+                continue
+            assert col.endswith("]"), f"{path.name}: column {col!r} has no unit"
+            worst = max(cells, key=_significant_digits)
+            assert _significant_digits(worst) <= 4, f"{path.name} {col}: {worst}"
+    sweep = (demo_out / "tables" / "sweep.csv").read_text(encoding="utf-8").splitlines()[0]
+    assert sweep.startswith("rate [gpm],") and "Arsenic median [ug/L]" in sweep
+    assert "pumping level median [ft depth]" in sweep
+
+
+def test_round_significant():
+    from blendq.report.csv_tables import round_significant
+
+    got = round_significant([0.0070999999999999995, 12345.678, -0.000123456, 0.0, float("nan")])
+    assert [repr(float(v)) for v in got[:4]] == ["0.0071", "12350.0", "-0.0001235", "0.0"]
+    assert got[4] != got[4]
+
+
+# --- the report's identity, paper, dates and data appendix ------------------------------------
+
+def _media_box(pdf: bytes) -> tuple[float, float]:
+    # the page size of a PDF page: /MediaBox [0 0 width height] in points (ISO 32000-1, 7.7.3.3)
+    m = re.search(rb"/MediaBox\s*\[\s*0\s+0\s+([\d.]+)\s+([\d.]+)\s*\]", pdf)
+    return float(m.group(1)), float(m.group(2))
+
+
+def test_demo_report_has_date_reviewers_letter_paper_and_data_appendix(demo_out):
+    html = (demo_out / "report.html").read_text(encoding="utf-8")
+    text = " ".join(_scan(html).text)
+    assert "About this report" in text and "Report date" in text
+    assert "2026-05-27" in text  # SOURCE_DATE_EPOCH set by tests/conftest.py
+    assert "not yet reviewed" in text and "Prepared by" in text
+    assert "Appendix: the data" in text
+    assert "appendix-data" in _scan(html).ids
+    # the lab results as reported with the lab's qualifier (demo samples.csv row 3: "<0.05 mg/L
+    # as N", qualifier U); the steps with their rates and pumping levels
+    assert "< 0.05 mg/L" in text
+    assert "Lab results (samples.csv), with the lab's qualifiers." in text
+    assert "Steps (steps.csv)." in text
+    # a US project prints on Letter: 8.5 x 11 in = 612 x 792 pt
+    pdf = (demo_out / "report.pdf").read_bytes()
+    assert _media_box(pdf) == pytest.approx((612.0, 792.0))
+    assert b"/CreationDate (D:20260527000000" in pdf
+    # complete references: the step-drawdown method's source is listed
+    assert "Kruseman, G.P. and de Ridder, N.A. (1990)" in text
+
+
+def test_si_project_settings_prepared_reviewed_date_and_a4(tmp_path):
+    project = tmp_path / "proj"
+    shutil.copytree(DEMO, project)
+    toml = project / "project.toml"
+    text = toml.read_text(encoding="utf-8")
+    text = text.replace('display_units = "US"', 'display_units = "SI"\n'
+                        'prepared_by = "R. Quillfeather, hydrogeologist (invented)"\n'
+                        'reviewed_by = "M. Estragon, PE (invented)"\nreport_date = 2026-06-03', 1)
+    toml.write_text(text, encoding="utf-8")
+    out = tmp_path / "out"
+    # --units SI is given too: the paper follows the project's display_units either way
+    r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED, "--units", "SI")
+    assert r.exit_code == 0, r.output
+    page = " ".join(_scan((out / "report.html").read_text(encoding="utf-8")).text)
+    assert "R. Quillfeather, hydrogeologist (invented)" in page
+    assert "M. Estragon, PE (invented)" in page
+    assert "2026-06-03" in page and "not yet reviewed" not in page
+    pdf = (out / "report.pdf").read_bytes()
+    assert _media_box(pdf) == pytest.approx((595.276, 841.89), abs=1e-3)  # ISO 216 A4
+    sweep = (out / "tables" / "sweep.csv").read_text(encoding="utf-8").splitlines()[0]
+    assert sweep.startswith("rate [m³/d],")
+    # paper set explicitly
+    toml.write_text(text.replace('report_date = 2026-06-03', 'report_date = 2026-06-03\n'
+                                 'paper = "Letter"'), encoding="utf-8")
+    r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    assert _media_box((out / "report.pdf").read_bytes()) == pytest.approx((612.0, 792.0))
+
+
+@pytest.mark.parametrize("line, field", [('paper = "B5"', "project.paper"),
+                                         ('report_date = "03/06/2026"', "project.report_date"),
+                                         ("prepared_by = 3", "project.prepared_by")])
+def test_bad_report_settings_name_the_field(tmp_path, line, field):
+    project = tmp_path / "proj"
+    shutil.copytree(DEMO, project)
+    toml = project / "project.toml"
+    toml.write_text(toml.read_text(encoding="utf-8").replace(
+        'display_units = "US"', f'display_units = "US"\n{line}', 1), encoding="utf-8")
+    r = run("check", project)
+    assert r.exit_code == 2
+    assert field in r.output and "project.toml" in r.output
+
+
+def test_pdf_creation_date_is_real_unless_source_date_epoch(monkeypatch):
+    import datetime as dt
+
+    from blendq.report.document import Document, Paragraph, Section
+    from blendq.report.pdf import render_pdf_bytes
+
+    doc = Document("t", "s", "c", [Section("A", [Paragraph("hello")], key="a")])
+    monkeypatch.delenv("SOURCE_DATE_EPOCH", raising=False)
+    before = dt.datetime.now().strftime("%Y%m%d")
+    stamp = re.search(rb"/CreationDate \(D:(\d{8})", render_pdf_bytes(doc)).group(1).decode()
+    after = dt.datetime.now().strftime("%Y%m%d")
+    assert stamp in (before, after)
+    assert stamp != "20000101"  # not ReportLab's fixed "invariant" date
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1700000000")  # 2023-11-14 22:13:20 UTC
+    one, two = render_pdf_bytes(doc), render_pdf_bytes(doc)
+    assert one == two
+    assert b"/CreationDate (D:20231114221320" in one
+
+
+def test_si_report_with_a_level_record(tmp_path):
+    # the invented SI test well with a water-level record made from Cooper-Jacob superposition
+    # (Cooper and Jacob 1946): the equal-time analysis, both drawdowns per step, the apparent
+    # transmissivity from B, the levels in the appendix, SI thousands with a narrow space
+    import numpy as np
+    import pandas as pd
+
+    from blendq.well.stepdrawdown import cooper_jacob_step_drawdown
+
+    project = tmp_path / "si"
+    shutil.copytree(Path(__file__).parents[1] / "data" / "projects" / "quillmarsh_si", project)
+    rates = np.array([9.46353, 15.7725, 22.0816, 28.3906]) * 86.4  # L/s -> m^3/d
+    starts = np.array([0, 2, 4, 6]) / 24.0
+    t = np.concatenate([s + np.geomspace(1 / 1440, 2 / 24, 12) for s in starts])
+    s = cooper_jacob_step_drawdown(t, starts, rates, 420.0, 2e-4, 0.1524, 2.0, 1.8e-6)
+    origin = pd.Timestamp("2025-04-08 08:00")
+    pd.DataFrame({"time": [(origin + pd.Timedelta(days=float(x))).strftime("%Y-%m-%d %H:%M:%S")
+                           for x in t], "level [m]": np.round(30.6 + s, 3)}).to_csv(
+        project / "levels.csv", index=False)
+    toml = project / "project.toml"
+    toml.write_text(toml.read_text(encoding="utf-8").replace(
+        'flowlogs = "flowlogs.csv"', 'flowlogs = "flowlogs.csv"\nlevels = "levels.csv"', 1),
+        encoding="utf-8")
+    out = tmp_path / "out"
+    r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED, "--units", "SI")
+    assert r.exit_code == 0, r.output
+    text = " ".join(_scan((out / "report.html").read_text(encoding="utf-8")).text)
+    assert "Hantush-Bierschenk at 120 min" in text
+    assert "measured drawdown" in text and "equal-time drawdown" in text
+    assert "Apparent transmissivity from B" in text
+    assert "Water levels (levels.csv)." in text
+    assert "1\u202f363" in text  # step S2, 15.7725 L/s = 1 362.7 m^3/d, in the steps appendix
+    assert "Depth [m]" in text  # the sample taken inside the well

@@ -157,7 +157,7 @@ def test_two_interval_window_and_recommended(case):
         np.testing.assert_allclose(lows, [300.0, 1500.0], rtol=1e-12)
         rec = [line for line in ax.get_lines() if line.get_label() == "recommended rate"]
         np.testing.assert_allclose(rec[0].get_xdata(), [2000.0, 2000.0], rtol=1e-12)
-    assert "300 to 700 m³/d and 1,500 to 2,400 m³/d" in fig.get_suptitle()
+    assert "300 to 700 m³/d and 1\u202f500 to 2\u202f400 m³/d" in fig.get_suptitle()
     shares = cq.zone_shares(pred, case["project"].zone_names, w2, units="SI")
     bars = [line for line in shares.axes[0].get_lines() if line.get_label() == "operating window"]
     assert len(bars) == 2
@@ -167,7 +167,10 @@ def test_empty_window_is_stated(case, tmp_path):
     pred = case["pred"]
     fig = cq.quality_vs_rate(pred, empty_window(pred), case["limits"], 0.8, 0.9,
                              case["project"])
-    assert "No operating window: arsenic fails at every rate" in fig.get_suptitle()
+    # a short title; the reason belongs to the report's text, not the chart title
+    title = fig.get_suptitle()
+    assert title.splitlines() == ["Discharge quality against pumping rate", "No operating window"]
+    assert "arsenic fails" not in title and "P >" not in title
     assert all(not window_patches(ax) for ax in fig.axes)
     assert all(line.get_label() != "recommended rate" for ax in fig.axes for line in ax.get_lines())
     level = cq.pumping_level(pred, case["project"], empty_window(pred))
@@ -217,7 +220,7 @@ def test_pumping_level(case, tmp_path):
     np.testing.assert_allclose(deepest.get_ydata()[0] * M_PER_FT, 25.0, rtol=1e-9)
     screen = next(v for k, v in lines.items() if k.startswith("top of uppermost zone Z1"))
     np.testing.assert_allclose(screen.get_ydata()[0] * M_PER_FT, 20.0, rtol=1e-9)
-    measured = lines["measured at end of step"]
+    measured = lines["measured at end of step (hours of pumping)"]
     np.testing.assert_allclose(measured.get_ydata() * M_PER_FT, p.steps["pumping_level"],
                                rtol=1e-9)
     assert all(q.stat().st_size > 0 for q in cq.save_figure(fig, tmp_path / "level"))
@@ -302,3 +305,66 @@ def test_single_sample_range_drawn_where_the_basis_is_a_single_sample(case):
     np.testing.assert_allclose(upper[1].get_ydata()[1:], ref[1, 1:], rtol=1e-12)  # mg/L as N
     # the shaded band is the band of the mean, and says so
     assert any(c.get_label() == "90 % interval of the mean" for c in nitrate.collections)
+
+
+def test_chart_rates_round_as_the_text_and_the_command_line():
+    # the chart's rate labels and the report text / CLI (blendq.units.format_quantity) give the
+    # same figure: three significant digits (3,360, not 3,358); SI groups with a narrow space
+    from blendq.report.charts.quality import _fmt_rate
+    from blendq.units import format_quantity, to_base
+
+    for system, text in (("US", "3358 gpm"), ("SI", "3358 m**3/d")):
+        q = to_base(float(text.split()[0]), text.split()[1], "rate")
+        assert _fmt_rate(q, system) == format_quantity(q, "rate", system)
+    assert _fmt_rate(to_base(3358.0, "gpm", "rate"), "US") == "3,360 gpm"
+    assert _fmt_rate(3358.0, "SI") == "3\u202f360 m³/d"
+
+
+def test_untested_rates_faded_and_off_pump_rates_hatched_with_legend(case):
+    # steps at 300-2500 m^3/d (synthetic project); pump range 0-5000 set below: the rates
+    # below 300 and above 2500 are faded, those outside the pump's range hatched
+    p = dataclasses.replace(case["project"], well=dataclasses.replace(
+        case["project"].well, rate_min=500.0, rate_max=3500.0))
+    fig = cq.quality_vs_rate(case["pred"], case["window"], case["limits"], 0.8, 0.9, p,
+                             units="SI")
+    for ax in fig.axes:
+        faded = sorted((float(s.get_x()), float(s.get_x() + s.get_width()))
+                       for s in ax.patches if s.get_gid() == "not tested")
+        np.testing.assert_allclose(faded, [(0.0, 300.0), (2500.0, 4000.0)], rtol=1e-12)
+        off = sorted((float(s.get_x()), float(s.get_x() + s.get_width()))
+                     for s in ax.patches if s.get_gid() == "outside pump range")
+        np.testing.assert_allclose(off, [(0.0, 500.0), (3500.0, 4000.0)], rtol=1e-12)
+        # the fade lies over the model curves but under the limit lines and the samples
+        fade = next(s for s in ax.patches if s.get_gid() == "not tested")
+        curves = [c for c in ax.collections if c.get_label().endswith("interval of the mean")]
+        assert fade.get_zorder() > curves[0].get_zorder()
+        limit = next(line for line in ax.get_lines() if line.get_label() == "limit")
+        assert limit.get_zorder() > fade.get_zorder()
+    labels = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert "no step tested here (model extrapolated; faded)" in labels
+    assert "outside the pump's range" in labels
+
+
+def test_pumping_level_band_shown_horizon_labelled_off_the_hatching(case):
+    p = case["project"]
+    w = two_interval_window(case["pred"])
+    fig = cq.pumping_level(case["pred"], p, w, units="SI")
+    ax = fig.axes[0]
+    # the band's width is given in the legend and its edges are drawn
+    band = [c for c in ax.collections if "interval of prediction" in c.get_label()]
+    assert band and "±" in band[0].get_label() and "m at" in band[0].get_label()
+    # the axis spans the levels, not the datum: the band is not squeezed against 0
+    deep, shallow = ax.get_ylim()
+    assert shallow > 0
+    # the operating horizon is written on the chart, clear of the window's hatching
+    label = next(t for t in ax.texts if t.get_gid() == "horizon label")
+    assert label.get_text() == f"operating horizon: {p.settings.horizon:g} days of pumping"
+    fig.canvas.draw()
+    box = label.get_window_extent()
+    for lo, hi in ([300.0, 700.0], [1500.0, 2400.0]):
+        a = ax.transData.transform((lo, 0))[0]
+        b = ax.transData.transform((hi, 0))[0]
+        assert box.x1 < a or box.x0 > b, (box, a, b)
+    left, right = ax.transData.transform((0, 0))[0], ax.transData.transform((4000, 0))[0]
+    assert left <= box.x0 and box.x1 <= right  # inside the axes
+    assert "median prediction after" in " ".join(t.get_text() for t in fig.legends[0].get_texts())

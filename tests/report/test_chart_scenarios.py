@@ -128,3 +128,50 @@ def test_bad_units_and_empty_comparison(setup):
         scenario_chart(comp, a.limits, "imperial")
     with pytest.raises(InputError, match="no scenario"):
         scenario_chart(sc.Comparison(comp.table.iloc[:0], []), a.limits)
+
+
+def test_each_option_shows_its_band(setup):
+    # the band of the mean of each option (central 90 %), so that an option with better medians
+    # but a wider band can be seen to have the narrower window
+    a, comp = setup
+    fig = scenario_chart(comp, a.limits, "SI", interval=0.90)
+    for j, analyte in enumerate(comp.results[0].prediction.analytes):
+        ax = fig.axes[j]
+        for res in comp.results:
+            band = [c for c in ax.collections if c.get_gid() == f"band {res.scenario.name}"]
+            assert len(band) == 1, res.scenario.name
+            rates = res.prediction.rates
+            k = int(np.argmin(np.abs(rates - 2000.0)))
+            conc = res.prediction.concentration[:, k, j]
+            lo, hi = np.quantile(conc, [0.05, 0.95])
+            ys = band[0].get_paths()[0].vertices[:, 1]
+            from blendq.chemistry.analytes import get_analyte
+
+            lo, hi = get_analyte(analyte).in_display_unit([lo, hi])
+            assert ys.min() <= lo + 1e-9 and ys.max() >= hi - 1e-9
+    labels = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert any(lab.startswith("90 % band of the mean") for lab in labels)
+
+
+def test_window_edge_markers_do_not_overlap(setup):
+    # where the pumping-level marker falls on the recommended-rate marker (the window ending at
+    # the level limit, the recommended rate at that end), it moves above the bar; elsewhere it
+    # stays on the option's row
+    import dataclasses
+
+    from blendq.report.charts.scenarios import YIELD_OFFSET
+
+    a, comp = setup
+    res = next(r for r in comp.results if r.window.recommended is not None)
+    at_end = dataclasses.replace(res, yield_rate=res.window.recommended, yield_beyond_grid=False)
+    clash = dataclasses.replace(comp, results=[at_end])
+    strip = scenario_chart(clash, a.limits, "US").axes[-1]
+    (rec,), (yld,) = _lines(strip, "recommended"), _lines(strip, "yield")
+    assert rec.get_xdata()[0] == pytest.approx(yld.get_xdata()[0])
+    assert yld.get_ydata()[0] - rec.get_ydata()[0] == pytest.approx(YIELD_OFFSET)
+    assert YIELD_OFFSET > 0.32 + 0.05  # clear of the bar (half height 0.32)
+    far = dataclasses.replace(res, yield_rate=res.window.recommended * 3.0,
+                              yield_beyond_grid=False)
+    strip = scenario_chart(dataclasses.replace(comp, results=[far]), a.limits, "US").axes[-1]
+    (rec,), (yld,) = _lines(strip, "recommended"), _lines(strip, "yield")
+    assert yld.get_ydata()[0] == rec.get_ydata()[0]

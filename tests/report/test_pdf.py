@@ -421,3 +421,22 @@ def test_demo_renders_to_files_with_identical_bytes(tmp_path: Path, demo_pdf: by
 if __name__ == "__main__":
     for path in write_demo(Path(sys.argv[1] if len(sys.argv) > 1 else "blendq-demo")):
         print(path)
+
+
+def test_a_chart_shrinks_to_finish_a_page_instead_of_leaving_it_mostly_blank() -> None:
+    # text fills about 40 % of the first page; a chart two thirds of the text height tall fits
+    # the rest at 75 % of its size (FIGURE_MIN_SCALE), so it stays on page 1 and the page is not
+    # left mostly blank; a chart that would need more shrinking moves on whole
+    from blendq.report.pdf import FIGURE_MIN_SCALE
+
+    assert FIGURE_MIN_SCALE == 0.75
+    text = " ".join(["Words that fill the page before the chart."] * 25)
+    doc = Document("One chart", "", "2024-05-01",
+                   [Section("Part", [Paragraph(text), _tall_image()], key="part")])
+    layout = paginate(doc)
+    assert [p.page for p in layout.placed if p.tag.startswith("figure")] == [1]
+    assert layout.page_count == 1
+    longer = " ".join(["Words that fill the page before the chart."] * 60)
+    doc = Document("One chart", "", "2024-05-01",
+                   [Section("Part", [Paragraph(longer), _tall_image()], key="part")])
+    assert [p.page for p in paginate(doc).placed if p.tag.startswith("figure")] == [2]

@@ -54,11 +54,14 @@ def test_display_table_units(setup):
     si = comparison_display_table(comp, "SI")
     assert us["Recommended"].iloc[0].endswith("gpm")
     assert si["Recommended"].iloc[0].endswith("m³/d")
-    # 1 gpm = 5.450992969 m^3/d (NIST SP 811 gallon); both printed to 3-4 significant digits
-    gpm = float(us["Recommended"].iloc[0].split()[0].replace(",", ""))
-    m3d = float(si["Recommended"].iloc[0].split()[0].replace(",", ""))
-    assert m3d == pytest.approx(gpm * 5.450992969, rel=2e-3)
-    assert gpm == pytest.approx(comp.results[0].window.recommended / 5.450992969, rel=2e-3)
+    # 1 gpm = 5.450992969 m^3/d (NIST SP 811 gallon); both printed to 3 significant digits
+    # (as the CLI and the charts), SI thousands grouped by a narrow no-break space
+    gpm = float(us["Recommended"].iloc[0].rsplit(" ", 1)[0].replace(",", ""))
+    m3d_text = si["Recommended"].iloc[0].rsplit(" ", 1)[0]
+    assert "," not in m3d_text
+    m3d = float(m3d_text.replace("\u202f", ""))
+    assert m3d == pytest.approx(gpm * 5.450992969, rel=1e-2)
+    assert gpm == pytest.approx(comp.results[0].window.recommended / 5.450992969, rel=5e-3)
     assert us["Nitrate (as N) median"].iloc[0].endswith("mg/L")
     assert us["Arsenic median"].iloc[0].endswith("ug/L")
     # an empty window reads "none" when the data decide it, else "cannot tell"

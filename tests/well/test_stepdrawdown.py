@@ -109,7 +109,7 @@ def test_hantush_bierschenk_exact_on_cooper_jacob_data_with_a_recovered_step():
     # the recovery period is long enough only in the model's bookkeeping: remove the memory of
     # the first sequence by simulating the two sequences separately (full recovery)
     t = step_times(starts, ends - starts)
-    first = t < 0.3
+    first = t <= 0.3
     s = np.where(first,
                  sd.cooper_jacob_step_drawdown(t, sched_start[:3], sched_rate[:3], tr, sto, rw,
                                                skin, c),
@@ -134,20 +134,31 @@ def test_hantush_bierschenk_exact_on_cooper_jacob_data_with_a_recovered_step():
 
 def test_jacob_interval_coverage_on_noisy_data():
     # repeated synthetic experiments: a 90 % t-interval from the fit covariance must cover the
-    # true B and C in about 90 % of them (linear least squares with Gaussian errors is exact)
+    # true B and C in about 90 % of them (linear least squares with Gaussian errors is exact).
+    # The Hantush-Bierschenk line s/Q = B + C Q is fitted with equal weights, which is right when
+    # the error of s grows in proportion to Q; with a constant error in s given as sigma, the
+    # line's points carry sigma / Q and the intervals are exact again.
     rng = np.random.default_rng(20261202)
     q = np.array([300.0, 600.0, 900.0, 1200.0, 1500.0, 1800.0])
     b, c, noise = 3e-3, 5e-7, 0.05
     reps = 400
-    hits = np.zeros((reps, 3), bool)
+    hits = np.zeros((reps, 6), bool)
     tq = stats.t.ppf(0.95, q.size - 2)
+    zq = stats.norm.ppf(0.95)
+    true_1500 = b * 1500 + c * 1500**2
     for i in range(reps):
-        s = b * q + c * q**2 + rng.normal(0.0, noise, q.size)
+        s = b * q + c * q**2 + rng.normal(0.0, noise, q.size) * q / q.max()
         fit = sd.fit_jacob(q, s)
         hits[i, 0] = abs(fit.linear_loss - b) <= tq * math.sqrt(fit.covariance[0, 0])
         hits[i, 1] = abs(fit.well_loss - c) <= tq * fit.stderr[1]
         pred = sd.predict_drawdown(fit, 1500.0, interval=0.90)
-        hits[i, 2] = pred.drawdown_low <= b * 1500 + c * 1500**2 <= pred.drawdown_high
+        hits[i, 2] = pred.drawdown_low <= true_1500 <= pred.drawdown_high
+        s = b * q + c * q**2 + rng.normal(0.0, noise, q.size)
+        fit = sd.fit_jacob(q, s, sigma=noise)
+        hits[i, 3] = abs(fit.linear_loss - b) <= zq * fit.stderr[0]
+        hits[i, 4] = abs(fit.well_loss - c) <= zq * fit.stderr[1]
+        pred = sd.predict_drawdown(fit, 1500.0, interval=0.90)
+        hits[i, 5] = pred.drawdown_low <= true_1500 <= pred.drawdown_high
     coverage = hits.mean(axis=0)
     # binomial standard error sqrt(0.9 * 0.1 / 400) = 0.015; allow 3 of them
     np.testing.assert_allclose(coverage, 0.90, atol=0.045)
@@ -239,9 +250,14 @@ def test_hantush_bierschenk_recovers_ttim_linear_loss(ttim_step_test):
     b_ttim = -single.headinside(0.1)[0, 0] / 1000.0
     assert res.jacob.linear_loss == pytest.approx(b_ttim, rel=0.01)
     # nonlinear part below 1 % of the drawdown at the largest rate
-    assert abs(res.jacob.well_loss) * TT_RATES[-1] ** 2 < 0.01 * res.per_step["drawdown"].iloc[-1]
+    assert abs(res.jacob.well_loss) * TT_RATES[-1] ** 2 < \
+        0.01 * res.per_step["drawdown_equal_time"].iloc[-1]
     assert res.apparent_transmissivity == pytest.approx(TT["T"], rel=0.01)
-    np.testing.assert_allclose(res.per_step["efficiency"], 100.0, atol=1.0)
+    # efficiencies within 1 % of 100 %; those above 100 % are withheld (NaN)
+    eff = res.per_step["efficiency_equal_time"].to_numpy()
+    lin_share = 100.0 * res.per_step["linear_drawdown"] / res.per_step["drawdown_equal_time"]
+    np.testing.assert_allclose(lin_share, 100.0, atol=1.0)
+    np.testing.assert_array_equal(np.isnan(eff), lin_share > 100.0)
 
 
 def test_zone_model_comparison_against_ttim_without_resistance():
@@ -326,13 +342,14 @@ def test_end_of_step_from_pumping_levels_and_from_levels_agree():
     t = np.concatenate([[st + 0.05, en] for st, en in zip(starts, ends, strict=True)])
     lev = make_levels(t, 12.0 + np.repeat(s, 2) * np.tile([0.9, 1.0], 4))
     from_levels = steptest.analyse_step_test(steps, 12.0, lev, method="end of step")
-    np.testing.assert_allclose(from_levels.per_step["drawdown"], s, rtol=1e-12)
+    np.testing.assert_allclose(from_levels.per_step["drawdown_measured"], s, rtol=1e-12)
     ps = direct.per_step
-    assert list(ps.columns[:7]) == ["step", "rate", "drawdown", "specific_capacity",
-                                    "linear_drawdown", "nonlinear_drawdown", "efficiency"]
+    assert list(ps.columns) == ["step", "rate", "drawdown_measured",
+                                "specific_capacity_measured", "efficiency_measured",
+                                "linear_drawdown", "nonlinear_drawdown", "source_row"]
     np.testing.assert_allclose(ps["linear_drawdown"] + ps["nonlinear_drawdown"], s, rtol=1e-9)
-    np.testing.assert_allclose(ps["specific_capacity"], rates / s, rtol=1e-12)
-    np.testing.assert_allclose(ps["efficiency"], 100 * b * rates / s, rtol=1e-6)
+    np.testing.assert_allclose(ps["specific_capacity_measured"], rates / s, rtol=1e-12)
+    np.testing.assert_allclose(ps["efficiency_measured"], 100 * b * rates / s, rtol=1e-6)
     par = direct.parameters
     assert list(par.columns) == ["model", "name", "value", "stderr", "unit"]
     row = par[(par.model == "jacob") & (par.name == "C")].iloc[0]
@@ -512,3 +529,160 @@ def test_auto_falls_back_to_step_ends_when_the_record_is_too_sparse():
     res = steptest.analyse_step_test(steps, 12.0, sparse)
     assert res.method == "end of step"
     assert any("does not allow the equal-time" in w for w in res.warnings)
+
+
+# ---------------------------------------------------------------------------------------------
+# the Jacob line, measured against equal-time drawdowns, degenerate fits, the JSON result
+# ---------------------------------------------------------------------------------------------
+
+def test_jacob_fit_is_the_hantush_bierschenk_straight_line_worked_by_hand():
+    # Worked example of Jacob (1947) s = BQ + CQ^2 as the straight line s/Q = B + CQ
+    # (Hantush-Bierschenk plot, Kruseman and de Ridder 1990), solved by hand with the ordinary
+    # least-squares formulas for a straight line (slope Sxy/Sxx, intercept ybar - slope xbar):
+    #   Q   = 1000, 2000, 3000, 4000 m^3/d;  s = 2.10, 4.60, 7.35, 10.60 m
+    #   s/Q = 2.10, 2.30, 2.45, 2.65 e-3 d/m^2;  xbar = 2500, ybar = 2.375e-3
+    #   Sxx = 1500^2 + 500^2 + 500^2 + 1500^2 = 5.0e6
+    #   Sxy = (1500 x 0.275 x 2 + 500 x 0.075 x 2) e-3 = 0.9
+    #   C = 0.9 / 5e6 = 1.8e-7 d^2/m^5;  B = 2.375e-3 - 1.8e-7 x 2500 = 1.925e-3 d/m^2
+    #   residuals of s/Q: -0.005, +0.015, -0.015, +0.005 e-3; RSS = 5e-10; s^2 = RSS/2
+    #   sd(C) = sqrt(s^2 / Sxx) = 7.0711e-9;  sd(B) = sqrt(s^2 (1/4 + xbar^2/Sxx)) = 1.9365e-5
+    q = np.array([1000.0, 2000.0, 3000.0, 4000.0])
+    s = np.array([2.10, 4.60, 7.35, 10.60])
+    fit = sd.fit_jacob(q, s)
+    assert fit.linear_loss == pytest.approx(1.925e-3, rel=1e-9)
+    assert fit.well_loss == pytest.approx(1.8e-7, rel=1e-9)
+    np.testing.assert_allclose(fit.stderr, [math.sqrt(2.5e-10 * 1.5), math.sqrt(5e-17)],
+                               rtol=1e-6)
+    assert fit.residual_std == pytest.approx(math.sqrt(2.5e-10), rel=1e-6)
+    # an unweighted fit of s itself would give another line (this is what the method is not)
+    b_s, c_s = np.linalg.lstsq(np.column_stack([q, q * q]), s, rcond=None)[0]
+    assert abs(c_s - 1.8e-7) > 1e-9
+
+
+def _chained_record(rates, b=2.4e-3, c=3e-7, tr=600.0, sto=2e-4, rw=0.1):
+    starts = 0.125 * np.arange(len(rates))
+    t = step_times(starts, np.full(len(rates), 0.125), per_step=25)
+    s = sd.cooper_jacob_step_drawdown(t, starts, rates, tr, sto, rw, 1.0, c)
+    steps = make_steps(rates, starts, starts + 0.125)
+    return steps, make_levels(t, 10.0 + s)
+
+
+def test_measured_and_equal_time_drawdowns_are_both_labelled_and_printed():
+    rates = np.array([500.0, 1000.0, 1500.0, 2000.0])
+    steps, levels = _chained_record(rates)
+    res = steptest.analyse_step_test(steps, 10.0, levels)
+    ps = res.per_step
+    assert res.method == "equal time"
+    # chained steps: the measured end-of-step drawdown holds the growing response to earlier
+    # steps, so from step 2 on it exceeds the equal-time sum the fit uses
+    assert np.all(ps["drawdown_measured"].iloc[1:] > ps["drawdown_equal_time"].iloc[1:] + 0.01)
+    np.testing.assert_allclose(ps["specific_capacity_measured"], rates / ps["drawdown_measured"])
+    np.testing.assert_allclose(ps["specific_capacity_equal_time"],
+                               rates / ps["drawdown_equal_time"])
+    assert np.all(ps["efficiency_measured"].iloc[1:] < ps["efficiency_equal_time"].iloc[1:])
+    text = "\n".join(res.summary_lines("SI"))
+    last = [ln for ln in text.splitlines() if ln.strip().startswith("step 4")][0]
+    assert "measured drawdown" in last and "equal-time drawdown" in last
+    meas = f"{ps['drawdown_measured'].iloc[-1]:.3g}"
+    eq = f"{ps['drawdown_equal_time'].iloc[-1]:.3g}"
+    assert meas != eq and f"measured drawdown {meas} m" in last
+    assert f"equal-time drawdown {eq} m" in last
+
+
+def test_degenerate_rorabaugh_fits_are_withheld():
+    q = np.array([400.0, 800.0, 1200.0, 1600.0, 2000.0])
+    # all the drawdown in C Q^n (B = 0 at its bound)
+    steps = make_steps(q, 0.5 * np.arange(5), 0.5 * np.arange(5) + 0.125,
+                       recovered=[False] + [True] * 4, pumping_level=10.0 + 2e-4 * q**1.5)
+    res = steptest.analyse_step_test(steps, 10.0)
+    assert res.rorabaugh.linear_loss < 1e-12
+    assert "B went to its bound 0" in res.rorabaugh_withheld
+    assert res.rorabaugh_shown is None
+    assert "withheld (B went to its bound 0" in "\n".join(res.summary_lines("US"))
+    # the exponent stops at its upper bound 3.5
+    steps = make_steps(q, 0.5 * np.arange(5), 0.5 * np.arange(5) + 0.125,
+                       recovered=[False] + [True] * 4,
+                       pumping_level=10.0 + 2e-3 * q + 3e-15 * q**4.5)
+    res = steptest.analyse_step_test(steps, 10.0)
+    assert res.rorabaugh.exponent == pytest.approx(3.5)
+    out = res.to_json_dict()
+    assert out["rorabaugh"] == {"shown": False, "exponent_at_bound": True,
+                                "withheld_because": "n stopped at a bound of its range (n = 3.5)"}
+    assert any("n stopped at a bound" in w for w in out["warnings"])
+
+
+def test_efficiency_above_100_percent_is_withheld():
+    # losses that grow more slowly than the rate: Jacob's C < 0, B Q > s at the top steps
+    q = np.array([500.0, 1000.0, 1500.0, 2000.0])
+    s = 2.4e-3 * q - 2e-7 * q**2
+    steps = make_steps(q, [0, 1, 2, 3], [0.1, 1.1, 2.1, 3.1], recovered=[False] + [True] * 3,
+                       pumping_level=10.0 + s)
+    res = steptest.analyse_step_test(steps, 10.0)
+    assert res.jacob.well_loss < 0
+    assert res.per_step["efficiency_measured"].isna().all()
+    assert "linear share withheld" in "\n".join(res.summary_lines("US"))
+    # a positive C with one step below the line: only that step's share is withheld
+    s = 2.4e-3 * q + 2e-8 * q**2
+    s[1] -= 0.3
+    steps = make_steps(q, [0, 1, 2, 3], [0.1, 1.1, 2.1, 3.1], recovered=[False] + [True] * 3,
+                       pumping_level=10.0 + s)
+    res = steptest.analyse_step_test(steps, 10.0)
+    eff = res.per_step["efficiency_measured"].to_numpy()
+    share = 100 * res.per_step["linear_drawdown"].to_numpy() / s
+    np.testing.assert_array_equal(np.isnan(eff), share > 100)
+    assert np.isnan(eff).any() and not np.isnan(eff).all()
+    assert any("above 100 % withheld" in w for w in res.warnings)
+
+
+def test_transmissivity_from_b_inverts_cooper_jacob():
+    # Cooper and Jacob (1946) at the well face: B = ln(2.25 T t / (r_w^2 S)) / (4 pi T)
+    tr, sto, rw, t = 500.0, 1e-4, 0.1, 0.1
+    b = math.log(2.25 * tr * t / (rw**2 * sto)) / (4 * math.pi * tr)
+    assert sd.transmissivity_from_linear_loss(b, t, rw, sto) == pytest.approx(tr, rel=1e-9)
+    assert math.isnan(sd.transmissivity_from_linear_loss(b, t, 0.0, sto))
+    q = np.array([500.0, 1000.0, 1500.0])
+    steps = make_steps(q, [0, 1, 2], [0.1, 1.1, 2.1], recovered=[False, True, True],
+                       pumping_level=10.0 + b * q + 2e-7 * q**2)
+    res = steptest.analyse_step_test(steps, 10.0, well_radius=rw, storativity=sto)
+    assert res.transmissivity_from_b == pytest.approx(tr, rel=1e-6)
+    assert not res.storativity_assumed
+    assert "apparent transmissivity from B" in "\n".join(res.summary_lines("SI"))
+    # no reference time (chained steps read at their ends): no T from B
+    chained = make_steps(q, [0, 0.1, 0.2], [0.1, 0.2, 0.3],
+                         pumping_level=10.0 + b * q + 2e-7 * q**2)
+    assert steptest.analyse_step_test(chained, 10.0, well_radius=rw).transmissivity_from_b \
+        is None
+
+
+def test_drawdown_json_states_method_elapsed_time_and_transmissivity():
+    rates = np.array([500.0, 1000.0, 1500.0, 2000.0])
+    steps, levels = _chained_record(rates)
+    res = steptest.analyse_step_test(steps, 10.0, levels, well_radius=0.1)
+    out = res.to_json_dict()
+    assert out["method"]["method"] == "equal time"
+    assert out["method"]["elapsed_time_min"] == pytest.approx(0.125 * 1440)
+    assert "s/Q = B + C Q" in out["method"]["jacob_fit"]
+    t = out["apparent_transmissivity"]
+    assert t["from_log_time_slopes_m2_per_d"] == pytest.approx(600.0, rel=0.01)
+    assert t["from_B_m2_per_d"] > 0 and t["storativity_for_B"] == "assumed"
+    assert "apparent" in t["note"]
+    assert {"drawdown_measured_m", "drawdown_equal_time_m",
+            "efficiency_equal_time_percent"} <= set(out["steps"][0])
+
+
+def test_drawdown_command_json_and_chart(tmp_path):
+    import json
+
+    from typer.testing import CliRunner
+
+    from blendq.api import demo_path
+    from blendq.cli import app
+
+    png = tmp_path / "sq.png"
+    r = CliRunner().invoke(app, ["drawdown", str(demo_path()), "--json", "--chart", str(png)])
+    assert r.exit_code == 0, r.output
+    out = json.loads(r.stdout)
+    assert out["method"]["method"] == "end of step"
+    assert out["method"]["elapsed_time_min"] is None  # chained steps read at their ends
+    assert "apparent_transmissivity" in out and out["warnings"]
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"

@@ -23,7 +23,7 @@ import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
 from blendq.errors import InputError
-from blendq.units import DISPLAY_UNITS, display_unit_label, from_base
+from blendq.units import DISPLAY_UNITS, display_unit_label, from_base, significant
 
 if TYPE_CHECKING:
     from matplotlib.axes import Axes
@@ -96,7 +96,7 @@ def _limit_text(limit: Limit, analyte: str) -> str:
 
 def _fmt_rate(value: float, units: str) -> str:
     x, label = _rate(value, units)
-    return f"{float(x):,.0f} {label}"
+    return f"{significant(float(x), 3, units)} {label}"  # the rounding of the text and CLI
 
 
 def _window_intervals(window: Window | None, units: str) -> list[np.ndarray]:
@@ -125,11 +125,82 @@ def _recommended(ax: Axes, window: Window | None, units: str, annotate: bool):
     x = float(_rate(window.recommended, units)[0])
     line = ax.axvline(x, zorder=4, label="recommended rate", **RECOMMENDED_STYLE)
     if annotate:
+        # on the side of the line away from the window's hatching
+        right_in_window = any(lo <= x + 1e-9 < hi for lo, hi in _window_intervals(window, units))
         ax.annotate(f"recommended {_fmt_rate(window.recommended, units)}", (x, 1.0),
-                    xycoords=("data", "axes fraction"), xytext=(4, -2),
-                    textcoords="offset points", va="top", ha="left", fontsize=8, zorder=6,
+                    xycoords=("data", "axes fraction"),
+                    xytext=(-4, -2) if right_in_window else (4, -2),
+                    textcoords="offset points", va="top",
+                    ha="right" if right_in_window else "left", fontsize=8, zorder=6,
                     bbox=dict(boxstyle="round,pad=0.2", fc="white", ec="none", alpha=0.85))
     return line
+
+
+#: Fade of the rates no step tested (white over the model, so it reads as "less certain")
+UNTESTED_FADE = dict(facecolor=(1.0, 1.0, 1.0, 0.62), edgecolor="#8a8a8a", linestyle=":",
+                     linewidth=0.9, zorder=3.5)
+#: Rates the pump cannot deliver (grey cross-hatch, distinct from the window's green hatch)
+OFF_PUMP_STYLE = dict(facecolor=(0.45, 0.45, 0.45, 0.10), edgecolor=(0.35, 0.35, 0.35, 0.45),
+                      hatch="xx", linewidth=0, zorder=0.5)
+
+
+def _tested_and_pump_ranges(project: Project | None) -> tuple[tuple[float, float] | None,
+                                                               tuple[float, float] | None]:
+    """(lowest, highest) step rate and (rate_min, rate_max) of the pump [m^3/d]."""
+    if project is None:
+        return None, None
+    tested = None
+    if project.steps is not None and len(project.steps):
+        r = pd.to_numeric(project.steps["rate"], errors="coerce").to_numpy(float)
+        r = r[np.isfinite(r) & (r > 0)]
+        if r.size:
+            tested = (float(r.min()), float(r.max()))
+    w = project.well
+    return tested, (float(w.rate_min), float(w.rate_max))
+
+
+def _range_marks(ax: Axes, project: Project | None, units: str, x_max: float) -> None:
+    """Fade the rates outside the tested range and hatch those outside the pump's range."""
+    tested, pump = _tested_and_pump_ranges(project)
+    if tested is not None:
+        lo, hi = _rate(list(tested), units)[0]
+        spans = [(0.0, float(lo)), (float(hi), x_max)]
+        first = True
+        for a, b in spans:
+            if b > a:
+                ax.axvspan(a, b, **UNTESTED_FADE, gid="not tested",
+                           label="no step tested here (model extrapolated; faded)"
+                           if first else None)
+                first = False
+    if pump is not None:
+        lo, hi = (float(v) for v in _rate([pump[0], min(pump[1], 1e30)], units)[0])
+        first = True
+        for a, b in ((0.0, lo), (hi, x_max)):
+            if b > a:
+                ax.axvspan(a, b, **OFF_PUMP_STYLE, gid="outside pump range",
+                           label="outside the pump's range" if first else None)
+                first = False
+
+
+def _free_x(ax: Axes, window: Window | None, units: str, width: float) -> float | None:
+    """Data x of the centre of the first (lowest-rate) stretch of the rate axis clear of the
+    window's hatching and the recommended line that holds a label ``width`` (axes fraction)
+    wide; None when none does."""
+    x0, x1 = ax.get_xlim()
+    blocked = [tuple(v) for v in _window_intervals(window, units)]
+    if window is not None and window.recommended is not None:
+        xr = float(_rate(window.recommended, units)[0])
+        blocked.append((xr - 0.01 * (x1 - x0), xr + 0.01 * (x1 - x0)))
+    edges = sorted((max(a, x0), min(b, x1)) for a, b in blocked if b > x0 and a < x1)
+    gaps, start = [], x0
+    for a, b in edges:
+        if a > start:
+            gaps.append((start, a))
+        start = max(start, b)
+    if start < x1:
+        gaps.append((start, x1))
+    fits = [(a, b) for a, b in gaps if (b - a) >= width * (x1 - x0)]
+    return 0.5 * (fits[0][0] + fits[0][1]) if fits else None
 
 
 def _clear_side(x, lo, hi, sx, s_hi, s_lo, box: tuple[float, float], width: float) -> float:
@@ -148,11 +219,10 @@ def _clear_side(x, lo, hi, sx, s_hi, s_lo, box: tuple[float, float], width: floa
 def _title(fig: Figure, head: str, window: Window | None, units: str) -> None:
     """Title in plain words, with the window (or the reason there is none) beneath it."""
     if window is not None and window.empty:
-        reason = window.reason_empty or "no rate meets every criterion"
-        head += "\n" + textwrap.fill(f"No operating window: {reason}.", 88)
+        head += "\nNo operating window"
     elif window is not None:
         parts = [_fmt_rate(lo, units) if hi == lo else
-                 f"{_fmt_rate(lo, units).split()[0]} to {_fmt_rate(hi, units)}"
+                 f"{_fmt_rate(lo, units).rsplit(' ', 1)[0]} to {_fmt_rate(hi, units)}"
                  for lo, hi, _, _ in window.intervals]
         text = "Operating window " + " and ".join(parts)
         if window.recommended is not None:
@@ -266,6 +336,7 @@ def quality_vs_rate(pred: Prediction, window: Window | None, limits: dict[str, L
                    1.25 * v if lim is not None else 0.0,
                    float(np.nanmax(single[1])) * 1.02 if single is not None else 0.0, 1e-12)
         _window_spans(ax, window, units)
+        _range_marks(ax, project, units, float(x.max()))
         ax.fill_between(x, lo, hi, color=SKY, alpha=0.45, linewidth=0,
                         label=f"{interval * 100:g} % interval of the mean")
         if single is not None:
@@ -275,11 +346,11 @@ def quality_vs_rate(pred: Prediction, window: Window | None, limits: dict[str, L
                         if k == 0 else None)
         ax.plot(x, med, color=BLUE, linewidth=1.8, label="median prediction")
         if lim is not None:
-            ax.axhline(v, color=BLACK, linewidth=1.4, label="limit")
+            ax.axhline(v, color=BLACK, linewidth=1.4, label="limit", zorder=4)
             texts = [(_limit_text(lim, analyte), v, "bottom", BLACK)]
             if 0 < margin < 1:
                 ax.axhline(margin * v, color=VERMILLION, linewidth=1.4, linestyle="--",
-                           label=f"{margin * 100:g} % of limit (operating margin)")
+                           label=f"{margin * 100:g} % of limit (operating margin)", zorder=4)
                 texts.append((f"{margin * 100:g} % of limit", margin * v, "top", VERMILLION))
             for text, y, va, colour in texts:
                 box = (y, y + 0.09 * ytop) if va == "bottom" else (y - 0.09 * ytop, y)
@@ -287,8 +358,8 @@ def quality_vs_rate(pred: Prediction, window: Window | None, limits: dict[str, L
                 ax.annotate(text, (side, y), xycoords=("axes fraction", "data"),
                             xytext=(0, 2 if va == "bottom" else -2), textcoords="offset points",
                             ha="left" if side < 0.5 else "right", va=va, fontsize=8,
-                            color=colour, bbox=dict(boxstyle="square,pad=0.1", fc="white",
-                                                    ec="none", alpha=0.8))
+                            color=colour, zorder=6, bbox=dict(boxstyle="square,pad=0.1",
+                                                              fc="white", ec="none", alpha=0.8))
         det = ~s["nondetect"].to_numpy(bool)
         if det.any():
             ax.errorbar(sx[det], sv[det], yerr=sh[det], fmt="o", color=BLACK, markersize=5,
@@ -304,7 +375,7 @@ def quality_vs_rate(pred: Prediction, window: Window | None, limits: dict[str, L
     axes[-1, 0].set_xlabel(f"pumping rate [{rate_label}]")
     axes[-1, 0].set_xlim(float(x.min()), float(x.max()))
     _title(fig, title or "Discharge quality against pumping rate", window, units)
-    _figure_legend(fig, axes[:, 0], ncols=3)
+    _figure_legend(fig, axes[:, 0], ncols=2)
     return fig
 
 
@@ -353,7 +424,7 @@ def zone_shares(pred: Prediction, zone_names: list[str], window: Window | None =
             elif len(r) == 1 or _fmt_rate(r.min(), units) == _fmt_rate(r.max(), units):
                 label += f" (takes water from the well at {_fmt_rate(r[0], units)})"
             else:
-                label += (f" (takes water from the well from {_fmt_rate(r.min(), units).split()[0]}"
+                label += (f" (takes water from the well from {_fmt_rate(r.min(), units).rsplit(' ', 1)[0]}"
                           f" to {_fmt_rate(r.max(), units)})")
         h = ax.fill_between(x, 100 * base, 100 * (base + med[:, i]), facecolor=colour,
                             hatch=hatch, edgecolor="#333333", linewidth=0.7, label=label)
@@ -407,11 +478,24 @@ def pumping_level(pred: Prediction, project: Project, window: Window | None = No
     fig, axes = _figure(1, 1, (7.5, 4.8))
     ax = axes[0, 0]
     _window_spans(ax, window, units)
-    ax.fill_between(x, lo, hi, color=SKY, alpha=0.45, linewidth=0,
-                    label=f"{interval * 100:g} % interval of prediction")
-    ax.plot(x, med, color=BLUE, linewidth=1.8, label="median prediction")
+    # the band's width in words (it can be thinner than the line at this scale)
+    at = window.recommended if window is not None and window.recommended is not None else \
+        float(pred.rates[int(np.argmax(pred.rates))]) * 0.5
+    k_at = int(np.argmin(np.abs(pred.rates - at)))
+    half = 0.5 * float(hi[k_at] - lo[k_at])
+    thin = 2.0 * half < 0.01 * (float(np.nanmax(hi)) - float(np.nanmin(lo)) + 1e-12)
+    ax.fill_between(x, lo, hi, color=SKY, alpha=0.55, linewidth=0, zorder=2,
+                    label=f"{interval * 100:g} % interval of prediction: "
+                          f"± {half:.2g} {depth_label} at {_fmt_rate(at, units)}"
+                          + (" (thinner than the line here)" if thin else ""))
+    for edge in (lo, hi):
+        ax.plot(x, edge, color=BLUE, linewidth=0.8, linestyle=(0, (3, 1.5)), zorder=2.5)
+    horizon = project.settings.horizon
+    ax.plot(x, med, color=BLUE, linewidth=1.6, zorder=3,
+            label=f"median prediction after {horizon:g} days of pumping")
     well = project.well
     deepest = [float(np.nanmax(hi))]
+    shallowest = [float(np.nanmin(lo))]
 
     def level_line(depth_m: float, text: str, **style) -> None:
         d = float(_shown(depth_m, "length", units)[0])
@@ -428,17 +512,45 @@ def pumping_level(pred: Prediction, project: Project, window: Window | None = No
         level_line(float(project.zone_top[top]), f"top of uppermost zone {project.zones[top].name}",
                    color=PURPLE, linestyle=":")
     steps = project.steps
+    measured = None
     if steps is not None and len(steps):
         lvl = pd.to_numeric(steps["pumping_level"], errors="coerce").to_numpy(float)
         rate = pd.to_numeric(steps["rate"], errors="coerce").to_numpy(float)
         ok = np.isfinite(lvl) & np.isfinite(rate)
         if ok.any():
-            ax.plot(_rate(rate[ok], units)[0], _shown(lvl[ok], "length", units)[0], "s",
-                    mfc="white", mec=BLACK, mew=1.3, markersize=6, zorder=5,
-                    label="measured at end of step")
+            measured = (_rate(rate[ok], units)[0], _shown(lvl[ok], "length", units)[0])
+            shallowest.append(float(np.min(measured[1])))
+            ax.plot(*measured, "s", mfc="white", mec=BLACK, mew=1.3, markersize=6, zorder=5,
+                    label="measured at end of step (hours of pumping)")
     _recommended(ax, window, units, annotate=True)
     ax.set_xlim(float(x.min()), float(x.max()))
-    ax.set_ylim(1.08 * max(deepest), 0.0)  # depth increases downward
+    # depth increases downward; the axis spans the levels drawn, not the datum, so the band
+    # shows
+    span = max(deepest) - min(shallowest)
+    ax.set_ylim(max(deepest) + 0.08 * span, max(0.0, min(shallowest) - 0.12 * span))
+    # the horizon on the chart: a label on the median line, clear of the window's hatching
+    text = f"operating horizon: {horizon:g} days of pumping"
+    # width of the label [axes fraction]: about 0.051 in per character at 8 pt over an axes
+    # about 0.77 of the figure's width (this chart's layout)
+    where = _free_x(ax, window, units, len(text) * 0.051 / (0.77 * fig.get_figwidth()) + 0.02)
+    if where is not None:
+        # the label sits on the deeper side of the line (the measured test levels lie on the
+        # shallower side), below the deepest point of the line over its width and above the
+        # next limit line, with an arrow to the line
+        x0, x1 = ax.get_xlim()
+        half_w = 0.5 * len(text) * 0.051 / (0.77 * fig.get_figwidth()) * (x1 - x0)
+        over = (x >= where - half_w) & (x <= where + half_w)
+        line_deep = float(np.nanmax(hi[over])) if over.any() else float(np.interp(where, x, hi))
+        below = [d for d in deepest[1:] if d > line_deep]
+        floor = min(below) if below else max(deepest) + 0.08 * span
+        y_text = line_deep + 0.4 * (floor - line_deep)
+        ax.annotate(text,
+                    (where, float(np.interp(where, x, med))), xytext=(where, y_text),
+                    ha="center", va="center", fontsize=8, color=BLUE, zorder=6,
+                    gid="horizon label",
+                    arrowprops=dict(arrowstyle="-|>", color=BLUE, linewidth=0.9,
+                                    shrinkA=2, shrinkB=2),
+                    bbox=dict(boxstyle="square,pad=0.15", fc="white", ec="none", alpha=0.85))
     ax.set_xlabel(f"pumping rate [{rate_label}]")
     ax.set_ylabel(f"depth to water below {well.datum} [{depth_label}]")
     _title(fig, title or "Pumping level against pumping rate", window, units)

@@ -58,12 +58,19 @@ SCENARIO_STYLES = [
 ]
 
 
+#: Where the pumping-level marker would fall on the recommended-rate marker (both at the
+#: window's end, within :data:`MARKER_CLEARANCE` of the rate axis), it moves this far [rows]
+#: above its option's bar, so that neither hides the other.
+YIELD_OFFSET = 0.42
+MARKER_CLEARANCE = 0.03
+
+
 def _style(k: int):
     return SCENARIO_STYLES[k % len(SCENARIO_STYLES)]
 
 
 def scenario_chart(comparison: Comparison, limits: dict[str, Limit], units: str = "US",
-                   title: str | None = None) -> Figure:
+                   title: str | None = None, interval: float = 0.90) -> Figure:
     """Median delivered quality against the well's rate for each scenario, and their windows.
 
     Parameters
@@ -75,6 +82,10 @@ def scenario_chart(comparison: Comparison, limits: dict[str, Limit], units: str 
     units : {"US", "SI"}
         Rates in gpm or m^3/d.
     title : str, optional
+    interval : float, default 0.90
+        Central probability of each option's band of the mean (shaded in its colour, edged
+        in its line style), so that an option whose curves look better can be seen to overlap
+        the others.
 
     Returns
     -------
@@ -110,7 +121,16 @@ def scenario_chart(comparison: Comparison, limits: dict[str, Limit], units: str 
             med = np.full(len(rates), np.nan)
             med[pos] = np.median(res.prediction.concentration[:, pos, j], axis=0)
             y = _conc(med, analyte)
-            top = max(top, float(np.nanmax(y)))
+            band = np.full((2, len(rates)), np.nan)
+            band[:, pos] = np.quantile(res.prediction.concentration[:, pos, j],
+                                       [(1 - interval) / 2, (1 + interval) / 2], axis=0)
+            blo, bhi = _conc(band[0], analyte), _conc(band[1], analyte)
+            ax.fill_between(x, blo, bhi, facecolor=colour, alpha=0.10, linewidth=0, zorder=1,
+                            gid=f"band {res.scenario.name}")
+            for edge in (blo, bhi):
+                ax.plot(x, edge, color=colour, linestyle=dash, linewidth=0.6, alpha=0.7,
+                        zorder=1.5)
+            top = max(top, float(np.nanmax(y)), float(np.nanmax(bhi)))
             curves.append(y)
             ax.plot(x, y, color=colour, linestyle=dash, linewidth=2.0 if k == 0 else 1.6,
                     marker=marker, markevery=(k % every, every), markersize=4.5,
@@ -134,13 +154,18 @@ def scenario_chart(comparison: Comparison, limits: dict[str, Limit], units: str 
                             color=colour, zorder=6, bbox=dict(boxstyle="square,pad=0.1",
                                                               fc="white", ec="none", alpha=0.85))
         ax.set_ylim(0, top * 1.05 if top > 0 else 1.0)
-        ax.set_ylabel(f"median [{unit_label}]")
+        ax.set_ylabel(f"concentration [{unit_label}]")
         ax.set_title(get_analyte(analyte).label(), loc="left", fontsize=10, fontweight="bold")
     _window_strip(axes[n, 0], comparison, units)
     axes[n, 0].set_xlabel(f"well pumping rate [{rate_label}]")
     axes[n, 0].set_xlim(float(x.min()), float(x.max()))
     fig.suptitle(title or "Options compared: delivered quality and operating window", fontsize=10.5)
     handles, labels = axes[0, 0].get_legend_handles_labels()
+    from matplotlib.patches import Patch
+
+    handles.append(Patch(facecolor="#999999", alpha=0.25, edgecolor="#666666", linewidth=0.6))
+    labels.append(f"{interval * 100:g} % band of the mean (each option in its colour); "
+                  "lines: medians")
     extra = _strip_legend_handles()
     fig.legend(handles + [h for h, _ in extra], labels + [lab for _, lab in extra],
                loc="outside lower center", ncols=2, fontsize=8, frameon=False)
@@ -177,6 +202,7 @@ def _window_strip(ax, comparison: Comparison, units: str) -> None:
     results = comparison.results
     rates = results[0].prediction.rates
     half = 0.5 * float(np.min(np.diff(rates))) if len(rates) > 1 else 0.0
+    span = float(_rate(rates.max(), units)[0]) or 1.0
     ns = len(results)
     for k, res in enumerate(results):
         row = ns - 1 - k
@@ -196,14 +222,17 @@ def _window_strip(ax, comparison: Comparison, units: str) -> None:
             ax.broken_barh([(a, b - a)], (row - 0.32, 0.64), facecolors=colour, alpha=0.55,
                            edgecolor=BLACK, linewidth=0.6, hatch="////" if k % 2 else None,
                            gid=f"window {res.scenario.name}")
+        xr = None
         if w.recommended is not None:
             xr = float(_rate(w.recommended, units)[0])
             ax.plot([xr], [row], marker="D", markersize=6, markeredgewidth=1.4, color=BLACK,
                     markerfacecolor="white", linestyle="none", zorder=5, gid="recommended")
         if not res.yield_beyond_grid:
             xy = float(_rate(res.yield_rate, units)[0])
-            ax.plot([xy], [row], marker=">", markersize=5, color=BLACK, markerfacecolor="white",
-                    linestyle="none", zorder=5, gid="yield")
+            clash = xr is not None and abs(xy - xr) < MARKER_CLEARANCE * span
+            ax.plot([xy], [row + (YIELD_OFFSET if clash else 0.0)], marker=">", markersize=5,
+                    color=BLACK, markerfacecolor="white", linestyle="none", zorder=5,
+                    gid="yield")
         if w.empty:
             ax.annotate("no window", (0.01, row), xycoords=("axes fraction", "data"), ha="left",
                         va="center", fontsize=7.5, color=VERMILLION, style="italic")

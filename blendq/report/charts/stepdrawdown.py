@@ -26,7 +26,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from blendq.errors import InputError
-from blendq.units import DISPLAY_UNITS, Q_, display_unit_label, from_base
+from blendq.units import DISPLAY_UNITS, Q_, display_unit_label, from_base, significant
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -145,9 +145,9 @@ def specific_drawdown_chart(result: StepDrawdownResult, units: str = "US",
                     _specific(pred.drawdown_high / inner, units), **BAND_STYLE,
                     label=f"Jacob {interval:.0%} band")
     ax.plot(x, _specific(pred.drawdown / inner, units), **JACOB_STYLE,
-            label="Jacob  s/Q = B + CQ")
-    if result.rorabaugh is not None:
-        r = result.rorabaugh
+            label="Jacob: fitted straight line s/Q = B + CQ")
+    if result.rorabaugh_shown is not None:
+        r = result.rorabaugh_shown
         ax.plot(x, _specific(r.drawdown_at(inner) / inner, units), **RORABAUGH_STYLE,
                 label=f"Rorabaugh  s/Q = B + CQⁿ⁻¹ (n = {r.exponent:.2f})")
     b = float(_specific(result.jacob.linear_loss, units))
@@ -205,8 +205,8 @@ def drawdown_rate_chart(result: StepDrawdownResult, units: str = "US",
                     zorder=2, label="nonlinear loss CQ²")
     ax.plot(x, lin, **LINEAR_STYLE, label="linear part BQ")
     ax.plot(x, y, **JACOB_STYLE, label="Jacob  s = BQ + CQ²")
-    if result.rorabaugh is not None:
-        r = result.rorabaugh
+    if result.rorabaugh_shown is not None:
+        r = result.rorabaugh_shown
         ax.plot(x, _length(r.drawdown_at(grid), units)[0], **RORABAUGH_STYLE,
                 label=f"Rorabaugh  s = BQ + CQⁿ (n = {r.exponent:.2f})")
     ax.plot(_rate(q_pts, units)[0], _length(s_pts, units)[0], **POINT_STYLE, label="steps")
@@ -257,7 +257,7 @@ def step_record_chart(result: StepDrawdownResult, units: str = "US") -> Figure:
         ax.axvspan(row.start * hours, row.end * hours, color="#f1f1f1" if k % 2 else "#ffffff",
                    zorder=0, linewidth=0)
         rate, rate_label = _rate(row.rate, units)
-        ax.annotate(f"{row.step}: {float(rate):,.0f} {rate_label}",
+        ax.annotate(f"{row.step}: {significant(float(rate), 3, units)} {rate_label}",
                     (0.5 * (row.start + row.end) * hours, 1.0), xycoords=("data", "axes fraction"),
                     xytext=(0, 3), textcoords="offset points", ha="center", va="bottom",
                     fontsize=7.5)
