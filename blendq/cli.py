@@ -9,10 +9,26 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
+from typer.core import TyperGroup
 
 from blendq import CAUTIONS, __version__
 
+#: the commands in the order of the work: a new project, its checks, the analysis, the report
+WORKFLOW = ("new", "check", "inflow", "drawdown", "fit", "window", "compare", "report", "demo")
+
+
+class _WorkflowGroup(TyperGroup):
+    """Lists the commands in workflow order (:data:`WORKFLOW`) rather than by name."""
+
+    def list_commands(self, ctx):  # noqa: ARG002 - click's signature
+        return sorted(self.commands, key=lambda n: (WORKFLOW.index(n) if n in WORKFLOW
+                                                    else len(WORKFLOW), n))
+
+
 app = typer.Typer(
+    cls=_WorkflowGroup,
+    # plain help text: brackets such as [[scenarios]] print as written, flags show no type
+    rich_markup_mode=None,
     name="blendq",
     help="Discharge quality against pumping rate for a supply well screened across several "
          "zones: fit zone chemistry from step-test samples, find the rate window that meets "
@@ -23,10 +39,28 @@ app = typer.Typer(
 )
 
 ProjectArg = Annotated[Path, typer.Argument(help="Project file (project.toml) or its folder.")]
-UnitsOpt = Annotated[str, typer.Option("--units", "-u", help="Display units: US or SI.")]
+UnitsOpt = Annotated[str | None, typer.Option(
+    "--units", "-u", metavar="US|SI",
+    help="Display units (default: the project's display_units).")]
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print machine-readable JSON.")]
-DrawsOpt = Annotated[int | None, typer.Option("--draws", help="Monte Carlo draws (default: project setting).")]
-SeedOpt = Annotated[int | None, typer.Option("--seed", help="Random seed (default: project setting).")]
+DrawsOpt = Annotated[int | None, typer.Option("--draws", metavar="N", help="Monte Carlo draws (default: project setting).")]
+SeedOpt = Annotated[int | None, typer.Option("--seed", metavar="N", help="Random seed (default: project setting).")]
+SealOpt = Annotated[list[str] | None, typer.Option(
+    "--seal", metavar="ZONE", help="Option: seal this zone (repeatable; one option each).")]
+RedevelopOpt = Annotated[list[str] | None, typer.Option(
+    "--redevelop", metavar="ZONE:skin=S",
+    help='Option: a zone with a new skin or a conductance factor, e.g. "Lower gravel:skin=0" '
+         'or "Lower gravel:factor=2" (repeatable).')]
+IntakeOpt = Annotated[list[str] | None, typer.Option(
+    "--intake", metavar="DEPTH", help='Option: the pump intake moved to this depth below the '
+                                      'datum, e.g. "140 ft" (repeatable).')]
+LowerHeadsOpt = Annotated[list[str] | None, typer.Option(
+    "--lower-heads", metavar="LENGTH", help='Option: every static head lowered by this much '
+                                            '(a drought), e.g. "10 ft" (repeatable).')]
+BlendOpt = Annotated[list[str] | None, typer.Option(
+    "--blend", metavar="RATE;A=C",
+    help='Option: a second source, its rate then each concentration separated by semicolons, '
+         'e.g. "200 gpm; nitrate=2 mg/L as N; arsenic=1 ug/L" (repeatable).')]
 
 
 def _fail(message: str, code: int = 2) -> None:
@@ -38,7 +72,7 @@ def _fail(message: str, code: int = 2) -> None:
 
 def _guard(fn):
     """Run a command body; user and model errors become one line and exit code 2."""
-    from blendq.errors import BlendqError
+    from blendq.errors import BlendqError, InputError
 
     try:
         return fn()
@@ -46,6 +80,10 @@ def _guard(fn):
         raise
     except typer.BadParameter as exc:  # a bad option value found inside the body is user input
         _fail(exc.format_message(), 2)
+    except InputError as exc:
+        if exc.field and exc.field.startswith("--") and exc.row is None:
+            _fail(f"option {exc.field}: {exc.message}", 2)  # a command-line option, no file
+        _fail(str(exc), 2)
     except BlendqError as exc:
         _fail(str(exc), 2)
     except (OSError, UnicodeDecodeError) as exc:
@@ -54,15 +92,33 @@ def _guard(fn):
         _fail(f"internal error ({exc.__class__.__name__}: {exc}); please report it", 3)
 
 
-def _units(units: str) -> str:
+def _units(units: str | None, project=None) -> str:
+    """``--units`` when given, else the project's ``display_units`` (else US)."""
+    if units is None:
+        return project.settings.display_units if project is not None else "US"
     u = units.strip().upper()
     if u not in ("US", "SI"):
         raise typer.BadParameter(f'"{units}" is not US or SI', param_hint="--units")
     return u
 
 
-def _caution_line() -> str:
-    return "Caution: " + " ".join(CAUTIONS[:2])
+#: words of advice that change the well (sealing, casing off, redeveloping, moving the pump)
+_WELL_WORK = ("seal", "case off", "casing", "redevelop", "intake", "liner", "line or case")
+
+
+def cautions_for(*texts: str) -> list[str]:
+    """The cautions a command prints: always the first two (planning aid; the regulator's
+    sampling rules); the licensed-review and local-codes caution too when any of ``texts``
+    advises work on the well (sealing or casing off a zone, redevelopment, a pump change)."""
+    out = list(CAUTIONS[:2])
+    joined = " ".join(texts).lower()
+    if any(w in joined for w in _WELL_WORK):
+        out.append(CAUTIONS[3])
+    return out
+
+
+def _caution_line(*texts: str) -> str:
+    return "Caution: " + " ".join(cautions_for(*texts))
 
 
 def _progress():
