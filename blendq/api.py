@@ -702,6 +702,41 @@ class Result:
         decision sentence in display units)."""
         return _assemble.summary_json(self.analysis, self.units)
 
+    def leave_one_step_out(self, draws: int | None = None) -> pd.DataFrame:
+        """The window found again without each step's lab samples: which steps drive it.
+
+        Parameters
+        ----------
+        draws : int, optional
+            Monte Carlo draws of each rerun (default: this result's).
+
+        Returns
+        -------
+        DataFrame
+            One row per step with samples, the base case first (step ``"none"``): ``step``,
+            ``results left out``, ``window low``, ``window high``, ``recommended``, ``shift
+            low``, ``shift high`` (display rate unit in each name) and ``note``
+            (:func:`blendq.decide.analysis.leave_one_step_out`).
+        """
+        t = _pipeline.leave_one_step_out(self.analysis, draws)
+        du, ru = self._du["rate"], self.rate_unit
+        out = pd.DataFrame({"step": t["step"], "results left out": t["results_left_out"]})
+        for col in ("window_low", "window_high", "recommended", "shift_low", "shift_high"):
+            out[f"{col.replace('_', ' ')} [{ru}]"] = from_base(t[col].to_numpy(float), "rate", du)
+        out["note"] = t["note"]
+        return out
+
+    @property
+    def failure_drivers(self) -> list[str]:
+        """For each limit that fails at every rate or ends the window, the lab result that
+        drives it (:func:`blendq.decide.analysis.failure_drivers`)."""
+        return _pipeline.failure_drivers(self.analysis, self.units)
+
+    @property
+    def decisions(self) -> pd.DataFrame:
+        """The review decisions recorded in the project (``[[review]]``) as the fit used them."""
+        return self.analysis.decisions.copy()
+
     def text_table(self, name: str) -> pd.DataFrame:
         """A table as the report and the command line print it (text cells, display units).
 

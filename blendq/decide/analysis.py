@@ -219,9 +219,9 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
 
 
 def failure_drivers(a: Analysis, units: str = "US") -> list[str]:
-    """For each quality criterion that fails at every rate or ends the window, the lab result
-    that drives it: a result the review marks as an error (a gross outlier), else one the fit
-    does not reproduce, else the highest result relative to the limit.
+    """For each analyte whose limit fails at some rate, the lab result that drives the
+    failure: a result the review marks as an error (a gross outlier), else one the fit does not
+    reproduce; where the limit fails at every rate and neither exists, its highest result.
 
     Returns
     -------
@@ -230,13 +230,15 @@ def failure_drivers(a: Analysis, units: str = "US") -> list[str]:
     """
     w = a.window
     binding = [c for c in w.criteria if c.kind == "quality" and not np.all(c.ok[w.rates > 0])]
-    out = []
+    everywhere = {c.name.split(" ")[0] for c in binding if not np.any(c.ok[w.rates > 0])}
+    out, seen = [], set()
     samples = a.project.samples
     file = a.project.files.get("samples", "samples.csv")
     for crit in binding:
         analyte = crit.name.split(" ")[0]
-        if analyte not in a.limits:
+        if analyte not in a.limits or analyte in seen:
             continue
+        seen.add(analyte)
         rows = samples[(samples["analyte"] == analyte) & ~samples["nondetect"].astype(bool)]
         if rows.empty:
             continue
@@ -249,6 +251,8 @@ def failure_drivers(a: Analysis, units: str = "US") -> list[str]:
             sid, why = str(errors.iloc[0]["sample_id"]), f"the review's {errors.iloc[0]['rule']} error"
         elif len(missed):
             sid, why = str(missed.iloc[0]["sample_id"]).split("+")[0], "a result the fit does not reproduce"
+        elif analyte not in everywhere:
+            continue
         else:
             k = rows["value"].astype(float).idxmax()
             sid, why = str(rows.loc[k, "sample_id"]), "its highest result"
@@ -262,7 +266,7 @@ def failure_drivers(a: Analysis, units: str = "US") -> list[str]:
         value = float(an.in_display_unit(float(r["value"])))
         where = f"{file} row {int(r['source_row'])}" if pd.notna(r["source_row"]) else file
         out.append(f"The {analyte} failure is driven by sample {sid} (step {r['step']}, "
-                   f"{value:.3g} {an.display_unit}, {where}), {why}; if that result is wrong, "
+                   f"{value:.4g} {an.display_unit}, {where}), {why}; if that result is wrong, "
                    "record a [[review]] decision in project.toml.")
     return out
 
@@ -309,6 +313,9 @@ def leave_one_step_out(a: Analysis, draws: int | None = None) -> pd.DataFrame:
             rows.append(row(step, int((~keep).sum()), b.window))
         except BlendqError as exc:
             rows.append(row(step, int((~keep).sum()), None, f"no fit: {exc}"))
+            continue
+        if b.window.empty:
+            rows[-1]["note"] = f"no window: {b.window.reason_empty}"
     out = pd.DataFrame(rows)
     out["shift_low"] = out["window_low"] - out["window_low"].iloc[0]
     out["shift_high"] = out["window_high"] - out["window_high"].iloc[0]

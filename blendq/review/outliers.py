@@ -77,9 +77,9 @@ def check_gross_outliers(samples: pd.DataFrame, factor: float,
             reported = (f" (reported as {row['reported_value']} {row['reported_unit']})"
                         if str(row.get("reported_unit", "")) else "")
             out.add("error", RULE,
-                    f"{where}: {analyte} {v * scale:.3g} {unit}{reported} in sample "
+                    f"{where}: {analyte} {v * scale:.4g} {unit}{reported} in sample "
                     f"{row['sample_id']} (step {row['step']}) is {how} of the other steps' "
-                    f"results ({lo * scale:.3g} to {hi * scale:.3g} {unit}); no blend of the "
+                    f"results ({lo * scale:.4g} to {hi * scale:.4g} {unit}); no blend of the "
                     f"other steps gives it. Check the unit and the lab report; record the "
                     f"decision in a [[review]] entry of project.toml", SRC_COMMON, row)
     return out
