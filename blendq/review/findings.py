@@ -58,14 +58,16 @@ QA_DEFAULTS: dict[str, object] = {
     # this multiple of the detection limit compare the absolute difference with the limit
     "duplicate_rpd_limit": 20.0,
     "duplicate_near_limit_factor": 5.0,
-    # ion balance, Standard Methods 1030E (from memory): +-0.2 meq/L for an anion sum of
+    # ion balance acceptance tiers, common practice (not checked in a source; the formula of
+    # Standard Methods 1030E is restated in USGS review code): +-0.2 meq/L for an anion sum of
     # 0-3 meq/L, +-2 % for 3-10, +-5 % for 10-800
     "ion_balance_abs_meq": 0.2,
     "ion_balance_pct_mid": 2.0,
     "ion_balance_pct_high": 5.0,
     # holding times: analyte -> days, overriding blendq.review.holding.HOLDING_TIMES
     "holding_times": {},
-    # field stabilisation, USGS National Field Manual A6 table 6.0-1 (from memory)
+    # field stabilisation, common practice after the USGS National Field Manual chapter A6
+    # (not checked against its 2023 revision of the specific-conductance and pH criteria)
     "field_readings": 5,
     "stable_temperature": 0.2,  # [C]
     "stable_ph": 0.1,  # [-]
@@ -413,13 +415,16 @@ def review(project) -> QAResult:
       sampling plans, common practice).
     - ion balance: percent difference 100 (sum cations - sum anions) / (sum cations + sum
       anions) in meq/L outside +-0.2 meq/L (anion sum 0-3 meq/L), +-2 % (3-10), +-5 % (10-800)
-      (warning; Standard Methods 1030E, criteria from memory).
+      (warning; formula of Standard Methods 1030E as restated in USGS review code, a
+      secondary source; the tiers are settings, common practice).
     - holding times: nitrate and nitrite 48 h (nitrate 14 d if chlorinated), nitrate+nitrite
-      28 d with H2SO4, metals 6 months with HNO3 (warning; 40 CFR 136.3 Table II and
-      40 CFR 141.23(k)(2), from memory).
+      28 d with H2SO4, metals 6 months with HNO3 (warning; 40 CFR 136.3 Table II as restated
+      in laboratory and state tables, a secondary source, for nitrate, nitrite,
+      nitrate+nitrite and arsenic; the rest, and 14 d if chlorinated, common practice).
     - field stabilisation: last 5 readings within temperature +-0.2 C, pH +-0.1, specific
       conductance +-5 % (<= 100 uS/cm) or +-3 %, DO +-0.2 mg/L, turbidity +-0.5 FNU or +-10 %
-      (warning; USGS National Field Manual A6 table 6.0-1, from memory).
+      (warning; settings, common practice after the USGS National Field Manual chapter A6,
+      not checked against its 2023 revision).
     - purge volume: fewer than 3 casing volumes pumped before the sample (warning, or info when
       the field parameters were stable; common practice).
     - timing: a sample taken before half of its step had elapsed (warning; common practice).
