@@ -424,7 +424,6 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = No
             summary["failure_drivers"] = drivers
             if steps is not None:
                 summary["leave_one_step_out"] = steps.to_dict(orient="records")
-            summary["cautions"] = cautions_for(result.decision)
             typer.echo(to_json(summary))
             return
         typer.echo(result.decision)

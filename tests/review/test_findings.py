@@ -682,3 +682,18 @@ def test_project_without_samples():
     result = review(project)
     assert result.findings.empty and result.skipped == [("all", "no samples")]
     assert result.sample_weights().empty
+
+
+def test_no_unchecked_source_reaches_a_user():
+    # every fact a user receives is cited (the project's record of checked facts names a
+    # primary or a secondary source) or is a setting described as common practice
+    import blendq
+
+    root = Path(blendq.__file__).parent
+    for path in [*root.rglob("*.py"), *(root.parent / "docs").glob("*.md")]:
+        assert "from memory" not in path.read_text(encoding="utf-8").lower(), path
+    rows = [sample(f"S{k}", k, "nitrate", 5.0 + k, sampled_at=at(k), analyzed_at=at(k + 60))
+            for k in (1, 2, 3)]
+    text = review(make_project(rows)).to_json()
+    assert "memory" not in text
+    assert "secondary" in text  # the holding-time rule cites its restating source
