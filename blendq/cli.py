@@ -103,7 +103,8 @@ def _units(units: str | None, project=None) -> str:
 
 
 #: words of advice that change the well (sealing, casing off, redeveloping, moving the pump)
-_WELL_WORK = ("seal", "case off", "casing", "redevelop", "intake", "liner", "line or case")
+_WELL_WORK = ("seal", "case off", "redevelop", "lower the pump intake", "intake at",
+              "line or case")
 
 
 def cautions_for(*texts: str) -> list[str]:
@@ -186,10 +187,13 @@ def _step_table_lines(table, units: str) -> list[str]:
     lines = ["Window without each step's lab samples (which steps drive the result):"]
     for r in table.itertuples(index=False):
         what = "all steps" if r.step == "none" else f"without {r.step} ({r.results_left_out} results)"
-        ends = f"{rate(r.window_low)} to {rate(r.window_high)}"
-        moved = "" if r.step == "none" else f"; ends move {shift(r.shift_low)}, {shift(r.shift_high)}"
-        lines.append(f"  {what}: {ends}; recommended {rate(r.recommended)}{moved}"
-                     + (f"; {r.note}" if r.note else ""))
+        if r.window_low != r.window_low:  # NaN: no window
+            lines.append(f"  {what}: {r.note or 'no window'}")
+            continue
+        moved = ("" if r.step == "none"
+                 else f"; lower end moves {shift(r.shift_low)}, upper end {shift(r.shift_high)}")
+        lines.append(f"  {what}: {rate(r.window_low)} to {rate(r.window_high)}; recommended "
+                     f"{rate(r.recommended)}{moved}" + (f"; {r.note}" if r.note else ""))
     return lines
 
 

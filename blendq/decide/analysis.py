@@ -161,9 +161,10 @@ def demand_sentence(a: Analysis, units: str = "US") -> str:
     rec = format_quantity(w.recommended, "rate", units)
     if top < demand:
         return (f"The demand of {d} cannot be met from this well: the window ends at "
-                f"{format_quantity(top, 'rate', units)}, and {rec} keeps the headroom; the "
-                f"shortfall of {format_quantity(demand - w.recommended, 'rate', units)} needs "
-                "another source or an option that widens the window.")
+                f"{format_quantity(top, 'rate', units)} and the recommended {rec} keeps the "
+                f"headroom below that end; the shortfall of "
+                f"{format_quantity(demand - w.recommended, 'rate', units)} needs another source "
+                "or an option that widens the window.")
     return (f"The demand of {d} is not met at the recommended {rec}: rates up to the demand do "
             "not comply with the headroom kept.")
 
