@@ -538,3 +538,4 @@ def test_window_and_fit_show_the_window_without_each_step():
     assert table[0]["shift_high"] == 0
     f = json.loads(run("fit", DEMO, "--draws", DRAWS, "--json").stdout)
     assert len(f["leave_one_step_out"]) == 6
+    assert f["cautions"][:2] == list(blendq.CAUTIONS[:2])

@@ -308,7 +308,11 @@ def leave_one_step_out(a: Analysis, draws: int | None = None) -> pd.DataFrame:
     n_draws = a.draws.n_draws if draws is None else draws
     for step in dict.fromkeys(steps):
         keep = steps != step
-        sub = replace(p, samples=p.samples[keep.to_numpy()])
+        left = p.samples[keep.to_numpy()]
+        # decisions on the samples left out go with them
+        ids = set(left["sample_id"].astype(str))
+        kept = tuple(d for d in p.settings.review_decisions if d["sample"] in ids)
+        sub = replace(p, samples=left, settings=replace(p.settings, review_decisions=kept))
         try:
             b = _run(sub, draws=n_draws, seed=a.draws.seed, sample_mode=a.sample_mode)
             rows.append(row(step, int((~keep).sum()), b.window))
