@@ -800,6 +800,12 @@ class OperatingWindow:
         demand), None when there is no window.
     demand : float or None
         The well's demand in the display unit.
+    demand_met : bool or None
+        Whether the recommended rate reaches the demand (None when no demand is given).
+    headroom : float
+        Relative distance [-] the recommended rate keeps from every end of the window
+        (``settings.recommended_headroom``); ``headroom_kept`` is False when the window is too
+        narrow to keep it.
     decision : str
         The decision sentence.
     reason_empty : str
@@ -821,6 +827,8 @@ class OperatingWindow:
                             else float(from_base(w.recommended, "rate", du["rate"])))
         demand = analysis.project.well.demand
         self.demand = None if not demand else float(from_base(demand, "rate", du["rate"]))
+        self.demand_met = w.demand_met
+        self.headroom, self.headroom_kept = w.headroom, w.headroom_kept
         self.decision = _pipeline.decision_sentence(analysis, units)
         self.reason_empty = w.reason_empty
 

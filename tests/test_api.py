@@ -424,3 +424,11 @@ def test_option_entries_join_the_project_scenarios(result):
     entries = option_entries(result.project, seal="Upper sand", intake=118.0)
     assert entries == [("seal", {"name": "Seal Upper sand", "seal": ["Upper sand"]}),
                        ("intake", {"name": "Intake at 118 ft", "intake": "118 ft"})]
+
+
+def test_window_weighs_the_demand(result):
+    w = result.window
+    assert w.demand == pytest.approx(600.0, rel=1e-12)
+    assert w.demand_met is False and w.recommended < w.demand
+    assert w.headroom == pytest.approx(0.05, abs=0) and w.headroom_kept
+    assert w.recommended * 1.05 <= w.intervals["to [gpm]"].max() + 1e-9

@@ -58,7 +58,7 @@ class Window:
         Rates [m^3/d] of each compliant interval and the criterion that binds at each end.
     recommended : float or None
         The recommended rate (:func:`recommended_rate`): the largest rate not above the demand
-        whose neighbours within ``headroom`` x the rate all comply.
+        that stays ``headroom`` x the rate inside both ends of its interval.
     reason_empty : str
         Why there is no window (empty string when there is one).
     criteria : list of Criterion
@@ -404,12 +404,13 @@ def recommended_rate(rates, ok, demand: float | None = None,
                      headroom: float = 0.0) -> tuple[float | None, bool]:
     """The recommended rate of a window and whether it keeps the headroom.
 
-    A rate keeps the headroom when every grid rate within ``headroom`` x the rate of it
-    complies, so that the rate can drift by that fraction (meter error, pump wear, a falling
-    water table) without leaving the window. The recommended rate is the largest such rate not
-    above the demand (the smallest above the demand when none is below; the largest of all when
-    no demand is given). When no rate keeps the headroom, it is the middle of the compliant
-    interval nearest the demand (or of the widest) and the headroom is reported as not kept.
+    A rate r keeps the headroom when r (1 - headroom) and r (1 + headroom) both lie within its
+    compliant interval (between the interval's lowest and highest compliant grid rates), so
+    that the rate can drift by that fraction (meter error, pump wear, a falling water table)
+    without leaving the window. The recommended rate is the largest such rate not above the
+    demand (the smallest when none is below it; the largest of all when no demand is given).
+    When no rate keeps the headroom, it is the middle of the compliant interval nearest the
+    demand (or of the widest) and the headroom is reported as not kept.
 
     Parameters
     ----------
@@ -431,13 +432,14 @@ def recommended_rate(rates, ok, demand: float | None = None,
     ok = np.asarray(ok, bool) & (rates > 0)
     if not ok.any():
         return None, True
-    inside = ok.copy()
-    if headroom > 0:
-        for k in np.flatnonzero(ok):
-            near = np.abs(rates - rates[k]) <= headroom * rates[k] * (1 + 1e-12)
-            # a rate whose band reaches past the grid is not known to comply there
-            beyond = rates[k] * (1 + headroom) > rates[-1] * (1 + 1e-12)
-            inside[k] = bool(ok[near].all()) and not beyond
+    edges = np.flatnonzero(np.diff(np.r_[0, ok.astype(int), 0]))
+    spans = [(rates[a], rates[b - 1]) for a, b in zip(edges[::2], edges[1::2], strict=True)]
+    inside = np.zeros_like(ok)
+    tol = 1e-12
+    for lo, hi in spans:
+        inside |= (ok & (rates >= lo) & (rates <= hi)
+                   & (rates * (1 - headroom) >= lo * (1 - tol))
+                   & (rates * (1 + headroom) <= hi * (1 + tol)))
     if inside.any():
         good = rates[inside]
         if demand and np.any(good <= demand):
@@ -446,8 +448,6 @@ def recommended_rate(rates, ok, demand: float | None = None,
             return float(good.min()), True
         return float(good.max()), True
     # the window is narrower than the headroom: the middle of the interval nearest the demand
-    edges = np.flatnonzero(np.diff(np.r_[0, ok.astype(int), 0]))
-    spans = [(rates[a], rates[b - 1]) for a, b in zip(edges[::2], edges[1::2], strict=True)]
     if demand:
         lo, hi = min(spans, key=lambda s: 0.0 if s[0] <= demand <= s[1]
                      else min(abs(s[0] - demand), abs(s[1] - demand)))

@@ -410,9 +410,8 @@ def test_lab_error_of_a_compliance_result():
 
 # --- the recommended rate keeps a headroom inside the window; the demand is weighed ---------
 # Check values by hand on a grid of 0, 10, ..., 1000 with a window of 400-600 and a 5 % headroom
-# (a rate r holds it when every grid rate within 0.05 r complies): r = 580 reaches 551-609, grid
-# rates 560-600, all in the window; r = 590 reaches 560.5-619.5 and takes in 610: out. From
-# below: r = 420 reaches 399-441 (400-440, in); r = 410 reaches 389.5-430.5 and takes in 390.
+# (a rate r holds it when 0.95 r and 1.05 r both lie in the window): from the top, r <= 600 /
+# 1.05 = 571.4, so 570 on the grid; from below, r >= 400 / 0.95 = 421.05, so 430.
 
 def _grid_window(lo=400.0, hi=600.0):
     rates = np.arange(0.0, 1001.0, 10.0)
@@ -422,7 +421,7 @@ def _grid_window(lo=400.0, hi=600.0):
 def test_recommended_rate_keeps_the_headroom_from_the_top_end():
     rates, ok = _grid_window()
     rec, kept = sweep.recommended_rate(rates, ok, demand=800.0, headroom=0.05)
-    assert kept and rec == pytest.approx(580.0, abs=0)
+    assert kept and rec == pytest.approx(570.0, abs=0)
     # no headroom: the old rule, the top of the window
     assert sweep.recommended_rate(rates, ok, 800.0, 0.0) == (600.0, True)
     # a demand inside the window and far from its ends is recommended as it is
@@ -433,7 +432,7 @@ def test_recommended_rate_keeps_the_headroom_from_the_bottom_end():
     rates, ok = _grid_window()
     # demand below the window: the smallest rate whose band stays inside, 420
     rec, kept = sweep.recommended_rate(rates, ok, demand=100.0, headroom=0.05)
-    assert kept and rec == pytest.approx(420.0, abs=0)
+    assert kept and rec == pytest.approx(430.0, abs=0)
 
 
 def test_window_narrower_than_the_headroom_is_reported():
@@ -449,13 +448,13 @@ def test_recommended_rate_is_always_compliant(headroom, demand):
     rec, kept = sweep.recommended_rate(rates, ok, demand, headroom)
     assert ok[rates == rec].all()
     if kept:
-        near = np.abs(rates - rec) <= headroom * rec * (1 + 1e-12)
-        assert ok[near].all()
+        assert 400.0 * (1 - 1e-12) <= rec * (1 - headroom)
+        assert rec * (1 + headroom) <= 600.0 * (1 + 1e-12)
 
 
 def test_window_says_whether_the_demand_is_met():
     rates, ok = _grid_window()
-    w = sweep.Window(rates, ok, [(400.0, 600.0, "a", "b")], 580.0, "", [], demand=700.0,
+    w = sweep.Window(rates, ok, [(400.0, 600.0, "a", "b")], 570.0, "", [], demand=700.0,
                      headroom=0.05)
     assert w.demand_met is False
     w = replace(w, recommended=500.0, demand=500.0)
