@@ -226,8 +226,10 @@ def sample_use_blocks(a: Analysis, units: str | None = None) -> list:
         "Window": [f"{rate(lo)} to {rate(hi)}" if np.isfinite(lo) else "none"
                    for lo, hi in zip(loo["window_low"], loo["window_high"], strict=True)],
         "Recommended": [rate(v) for v in loo["recommended"]],
-        "Lower end moves": [shift(v) for v in loo["shift_low"]],
-        "Upper end moves": [shift(v) for v in loo["shift_high"]],
+        "Lower end moves": ["-" if s == "none" else shift(v)
+                            for s, v in zip(loo["step"], loo["shift_low"], strict=True)],
+        "Upper end moves": ["-" if s == "none" else shift(v)
+                            for s, v in zip(loo["step"], loo["shift_high"], strict=True)],
         "Note": loo["note"]})
     blocks.append(Table(table, "The operating window found again without each step's lab "
                                "samples (the step's levels stay): a step whose removal moves "

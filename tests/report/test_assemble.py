@@ -172,3 +172,26 @@ def test_user_text_escaped_in_html(tmp_path):
     assert f"TH-2 {evil}" in " ".join(scan.text)
     assert json.loads((out / "summary.json").read_text(encoding="utf-8"))["well"] == f"TH-2 {evil}"
     assert (out / "report.pdf").read_bytes().startswith(b"%PDF")
+
+
+def test_report_lists_review_decisions_and_the_window_without_each_step():
+    from dataclasses import replace
+
+    from blendq.decide.analysis import analyse
+    from blendq.inputs.loader import load_project
+    from blendq.report.assemble import sample_use_blocks
+
+    p = load_project(DEMO)
+    decision = {"sample": "TH2-4", "analyte": "", "action": "downweight", "factor": 2.0,
+                "reason": "turbid purge water", "entry": 1}
+    p = replace(p, settings=replace(p.settings, review_decisions=(decision,)))
+    a = analyse(p, draws=30, seed=2)
+    tables = {b.caption.split(" (")[0].split(":")[0]: b.data for b in sample_use_blocks(a, "SI")
+              if hasattr(b, "data")}
+    dec = tables["Review decisions recorded in the project"]
+    assert dec.iloc[0].tolist() == ["review[1]", "TH2-4", "all", "downweight", "2",
+                                    "turbid purge water", 3]
+    loo = next(v for k, v in tables.items() if k.startswith("The operating window found again"))
+    assert loo["Left out"].tolist() == ["nothing", "step S1", "step S2", "step S3", "step S4",
+                                        "step S5"]
+    assert "m³/d" in " ".join(loo["Window"]) or "m3/d" in " ".join(loo["Window"])
