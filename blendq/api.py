@@ -66,6 +66,7 @@ __all__ = [
     "check_report_folder",
     "demo_path",
     "load_project",
+    "option_entries",
     "parse_rates",
     "to_json",
 ]
@@ -269,6 +270,10 @@ def _raw_blend(item: Any, file: str, key: str) -> dict:
         return {"name": f"Blend {entry.get('rate')}", "blend": entry}
     text = str(item)
     parts = [p.strip() for p in text.split(";") if p.strip()]
+    if parts and "," in parts[0] and "=" in parts[0]:
+        raise InputError(f'"{text}" separates its parts with commas; separate the rate and each '
+                         'concentration with semicolons, e.g. "200 gpm; nitrate=2 mg/L as N; '
+                         'arsenic=1 ug/L"', file=file, field=key)
     if not parts or "=" in parts[0]:
         raise InputError(f'"{text}" does not start with the blend rate (expected e.g. '
                          '"200 gpm; nitrate=2 mg/L as N; arsenic=1 ug/L")', file=file, field=key)
@@ -291,8 +296,43 @@ def _raw_intake(item: Any, units: str) -> dict:
     return {"name": f"Intake at {text}", "intake": text}
 
 
+def _raw_lower_heads(item: Any, units: str) -> dict:
+    if _is_quantity(item):
+        text = _quantity_text(item)
+    elif isinstance(item, (int, float)) and not isinstance(item, bool):
+        text = f"{item:g} {_unit_label(DISPLAY_UNITS[units]['length'])}"
+    else:
+        text = item
+    return {"name": f"Static heads {text} lower", "lower_heads": text}
+
+
+def option_entries(project: Project, seal: Any = None, redevelop: Any = None,
+                   intake: Any = None, blend: Any = None, lower_heads: Any = None, *,
+                   units: str | None = None, file: str = "compare()",
+                   option_prefix: str = "") -> list[tuple[str, dict]]:
+    """One-change options as raw ``[[scenarios]]`` entries, each with the argument it came
+    from (``("--seal", {"name": "Seal Upper sand", "seal": ["Upper sand"]})``).
+
+    Adding the entries to ``project.scenarios`` makes the options part of the project, so that
+    the report compares them too (``blendq report --seal ...``). Arguments as in
+    :func:`build_scenarios`.
+    """
+    units = _unit_system(units or project.settings.display_units)
+    raws: list[tuple[str, Any]] = []
+    raws += [(option_prefix + "seal", {"name": f"Seal {zone}", "seal": [zone]})
+             for zone in _as_list(seal)]
+    key = option_prefix + "redevelop"
+    raws += [(key, _raw_redevelop(item, file, key)) for item in _as_list(redevelop)]
+    raws += [(option_prefix + "intake", _raw_intake(item, units)) for item in _as_list(intake)]
+    key = option_prefix + "lower-heads" if option_prefix else "lower_heads"
+    raws += [(key, _raw_lower_heads(item, units)) for item in _as_list(lower_heads)]
+    key = option_prefix + "blend"
+    raws += [(key, _raw_blend(item, file, key)) for item in _as_list(blend)]
+    return raws
+
+
 def build_scenarios(project: Project, seal: Any = None, redevelop: Any = None,
-                    intake: Any = None, blend: Any = None, *,
+                    intake: Any = None, blend: Any = None, *, lower_heads: Any = None,
                     scenarios: Sequence[dict | _scenarios.Scenario] | None = None,
                     include_project: bool = True, units: str | None = None,
                     file: str = "compare()", option_prefix: str = "",
@@ -318,6 +358,9 @@ def build_scenarios(project: Project, seal: Any = None, redevelop: Any = None,
         A second source: ``"200 gpm; nitrate=2 mg/L as N; arsenic=1 ug/L"`` or
         ``{"rate": "200 gpm", "nitrate": "2 mg/L as N", "arsenic": "1 ug/L"}``; every predicted
         analyte needs a concentration.
+    lower_heads : str, float, pint.Quantity or list of these, optional
+        Every static head lowered by this much (a drought): ``"10 ft"``, a Quantity, or a
+        number in the display length unit.
     scenarios : list of dict or Scenario, optional
         Further options as raw ``[[scenarios]]`` entries (or already resolved).
     include_project : bool
@@ -331,7 +374,8 @@ def build_scenarios(project: Project, seal: Any = None, redevelop: Any = None,
     Returns
     -------
     list of Scenario
-        In order: the project's, ``seal``, ``redevelop``, ``intake``, ``blend``, ``scenarios``.
+        In order: the project's, ``seal``, ``redevelop``, ``intake``, ``lower_heads``,
+        ``blend``, ``scenarios``.
 
     Raises
     ------
@@ -343,14 +387,9 @@ def build_scenarios(project: Project, seal: Any = None, redevelop: Any = None,
     units = _unit_system(units or project.settings.display_units)
     out = _scenarios.project_scenarios(project) if include_project else []
     names = {s.name for s in out}
-    raws: list[tuple[str, Any]] = []
-    raws += [(option_prefix + "seal", {"name": f"Seal {zone}", "seal": [zone]})
-             for zone in _as_list(seal)]
-    key = option_prefix + "redevelop"
-    raws += [(key, _raw_redevelop(item, file, key)) for item in _as_list(redevelop)]
-    raws += [(option_prefix + "intake", _raw_intake(item, units)) for item in _as_list(intake)]
-    key = option_prefix + "blend"
-    raws += [(key, _raw_blend(item, file, key)) for item in _as_list(blend)]
+    raws = option_entries(project, seal, redevelop, intake, blend, lower_heads, units=units,
+                          file=file, option_prefix=option_prefix)
+    predicted = _pipeline.fit_analytes(project)[0]
     # a one-change option is named by its argument alone; a [[scenarios]] entry keeps the key
     # inside it (scenarios[2].blend.rate) in messages
     entries = [(key, raw, True) for key, raw in raws]
@@ -366,6 +405,12 @@ def build_scenarios(project: Project, seal: Any = None, redevelop: Any = None,
                 if not by_argument:
                     raise
                 raise InputError(err.message, file=file, field=key) from None
+        missing = [a for a in predicted if sc.blend is not None
+                   and a not in sc.blend.concentration]
+        if missing:  # found now, not after the long run
+            raise InputError(f'the blend of "{sc.name}" needs a concentration of '
+                             f"{', '.join(missing)} (every analyte that is predicted)",
+                             file=file, field=key if by_argument else f"{key}.blend")
         if sc.name in names:
             raise InputError(f'"{sc.name}" is given twice', file=file, field=key)
         names.add(sc.name)
@@ -602,13 +647,14 @@ class Result:
 
     # -- options, report, charts -----------------------------------------------------------
     def compare(self, seal: Any = None, redevelop: Any = None, intake: Any = None,
-                blend: Any = None, *, scenarios: Sequence[dict] | None = None,
+                blend: Any = None, *, lower_heads: Any = None,
+                scenarios: Sequence[dict] | None = None,
                 include_project: bool = True) -> ComparisonResult:
         """Compare options with the base case, all with the same Monte Carlo draws.
 
         Parameters
         ----------
-        seal, redevelop, intake, blend, scenarios, include_project
+        seal, redevelop, intake, blend, lower_heads, scenarios, include_project
             See :func:`build_scenarios` (one option per item; the project's own
             ``[[scenarios]]`` first unless ``include_project`` is False).
 
@@ -617,7 +663,7 @@ class Result:
         ComparisonResult
         """
         built = build_scenarios(self.project, seal, redevelop, intake, blend,
-                                scenarios=scenarios, include_project=include_project,
+                                lower_heads=lower_heads, scenarios=scenarios, include_project=include_project,
                                 units=self.units)
         return ComparisonResult(_scenarios.compare(self.analysis, built), self.analysis,
                                 self.units)
@@ -655,6 +701,41 @@ class Result:
         """The machine-readable summary of the report's summary.json (base units, with the
         decision sentence in display units)."""
         return _assemble.summary_json(self.analysis, self.units)
+
+    def leave_one_step_out(self, draws: int | None = None) -> pd.DataFrame:
+        """The window found again without each step's lab samples: which steps drive it.
+
+        Parameters
+        ----------
+        draws : int, optional
+            Monte Carlo draws of each rerun (default: this result's).
+
+        Returns
+        -------
+        DataFrame
+            One row per step with samples, the base case first (step ``"none"``): ``step``,
+            ``results left out``, ``window low``, ``window high``, ``recommended``, ``shift
+            low``, ``shift high`` (display rate unit in each name) and ``note``
+            (:func:`blendq.decide.analysis.leave_one_step_out`).
+        """
+        t = _pipeline.leave_one_step_out(self.analysis, draws)
+        du, ru = self._du["rate"], self.rate_unit
+        out = pd.DataFrame({"step": t["step"], "results left out": t["results_left_out"]})
+        for col in ("window_low", "window_high", "recommended", "shift_low", "shift_high"):
+            out[f"{col.replace('_', ' ')} [{ru}]"] = from_base(t[col].to_numpy(float), "rate", du)
+        out["note"] = t["note"]
+        return out
+
+    @property
+    def failure_drivers(self) -> list[str]:
+        """For each limit that fails at every rate or ends the window, the lab result that
+        drives it (:func:`blendq.decide.analysis.failure_drivers`)."""
+        return _pipeline.failure_drivers(self.analysis, self.units)
+
+    @property
+    def decisions(self) -> pd.DataFrame:
+        """The review decisions recorded in the project (``[[review]]``) as the fit used them."""
+        return self.analysis.decisions.copy()
 
     def text_table(self, name: str) -> pd.DataFrame:
         """A table as the report and the command line print it (text cells, display units).
@@ -719,6 +800,12 @@ class OperatingWindow:
         demand), None when there is no window.
     demand : float or None
         The well's demand in the display unit.
+    demand_met : bool or None
+        Whether the recommended rate reaches the demand (None when no demand is given).
+    headroom : float
+        Relative distance [-] the recommended rate keeps from every end of the window
+        (``settings.recommended_headroom``); ``headroom_kept`` is False when the window is too
+        narrow to keep it.
     decision : str
         The decision sentence.
     reason_empty : str
@@ -740,6 +827,8 @@ class OperatingWindow:
                             else float(from_base(w.recommended, "rate", du["rate"])))
         demand = analysis.project.well.demand
         self.demand = None if not demand else float(from_base(demand, "rate", du["rate"]))
+        self.demand_met = w.demand_met
+        self.headroom, self.headroom_kept = w.headroom, w.headroom_kept
         self.decision = _pipeline.decision_sentence(analysis, units)
         self.reason_empty = w.reason_empty
 

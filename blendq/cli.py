@@ -9,10 +9,26 @@ from pathlib import Path
 from typing import Annotated
 
 import typer
+from typer.core import TyperGroup
 
 from blendq import CAUTIONS, __version__
 
+#: the commands in the order of the work: a new project, its checks, the analysis, the report
+WORKFLOW = ("new", "check", "inflow", "drawdown", "fit", "window", "compare", "report", "demo")
+
+
+class _WorkflowGroup(TyperGroup):
+    """Lists the commands in workflow order (:data:`WORKFLOW`) rather than by name."""
+
+    def list_commands(self, ctx):  # noqa: ARG002 - click's signature
+        return sorted(self.commands, key=lambda n: (WORKFLOW.index(n) if n in WORKFLOW
+                                                    else len(WORKFLOW), n))
+
+
 app = typer.Typer(
+    cls=_WorkflowGroup,
+    # plain help text: brackets such as [[scenarios]] print as written, flags show no type
+    rich_markup_mode=None,
     name="blendq",
     help="Discharge quality against pumping rate for a supply well screened across several "
          "zones: fit zone chemistry from step-test samples, find the rate window that meets "
@@ -22,11 +38,29 @@ app = typer.Typer(
     pretty_exceptions_enable=False,
 )
 
-ProjectArg = Annotated[Path, typer.Argument(help="Project file (project.toml) or its folder.")]
-UnitsOpt = Annotated[str, typer.Option("--units", "-u", help="Display units: US or SI.")]
+ProjectArg = Annotated[Path, typer.Argument(metavar="PROJECT", help="Project file (project.toml) or its folder.")]
+UnitsOpt = Annotated[str | None, typer.Option(
+    "--units", "-u", metavar="US|SI",
+    help="Display units (default: the project's display_units).")]
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print machine-readable JSON.")]
-DrawsOpt = Annotated[int | None, typer.Option("--draws", help="Monte Carlo draws (default: project setting).")]
-SeedOpt = Annotated[int | None, typer.Option("--seed", help="Random seed (default: project setting).")]
+DrawsOpt = Annotated[int | None, typer.Option("--draws", metavar="N", help="Monte Carlo draws (default: project setting).")]
+SeedOpt = Annotated[int | None, typer.Option("--seed", metavar="N", help="Random seed (default: project setting).")]
+SealOpt = Annotated[list[str] | None, typer.Option(
+    "--seal", metavar="ZONE", help="Option: seal this zone (repeatable; one option each).")]
+RedevelopOpt = Annotated[list[str] | None, typer.Option(
+    "--redevelop", metavar="ZONE:skin=S",
+    help='Option: a zone with a new skin or a conductance factor, e.g. "Lower gravel:skin=0" '
+         'or "Lower gravel:factor=2" (repeatable).')]
+IntakeOpt = Annotated[list[str] | None, typer.Option(
+    "--intake", metavar="DEPTH", help='Option: the pump intake moved to this depth below the '
+                                      'datum, e.g. "140 ft" (repeatable).')]
+LowerHeadsOpt = Annotated[list[str] | None, typer.Option(
+    "--lower-heads", metavar="LENGTH", help='Option: every static head lowered by this much '
+                                            '(a drought), e.g. "10 ft" (repeatable).')]
+BlendOpt = Annotated[list[str] | None, typer.Option(
+    "--blend", metavar="RATE;A=C",
+    help='Option: a second source, its rate then each concentration separated by semicolons, '
+         'e.g. "200 gpm; nitrate=2 mg/L as N; arsenic=1 ug/L" (repeatable).')]
 
 
 def _fail(message: str, code: int = 2) -> None:
@@ -38,7 +72,7 @@ def _fail(message: str, code: int = 2) -> None:
 
 def _guard(fn):
     """Run a command body; user and model errors become one line and exit code 2."""
-    from blendq.errors import BlendqError
+    from blendq.errors import BlendqError, InputError
 
     try:
         return fn()
@@ -46,6 +80,10 @@ def _guard(fn):
         raise
     except typer.BadParameter as exc:  # a bad option value found inside the body is user input
         _fail(exc.format_message(), 2)
+    except InputError as exc:
+        if exc.field and exc.field.startswith("--") and exc.row is None:
+            _fail(f"option {exc.field}: {exc.message}", 2)  # a command-line option, no file
+        _fail(str(exc), 2)
     except BlendqError as exc:
         _fail(str(exc), 2)
     except (OSError, UnicodeDecodeError) as exc:
@@ -54,15 +92,34 @@ def _guard(fn):
         _fail(f"internal error ({exc.__class__.__name__}: {exc}); please report it", 3)
 
 
-def _units(units: str) -> str:
+def _units(units: str | None, project=None) -> str:
+    """``--units`` when given, else the project's ``display_units`` (else US)."""
+    if units is None:
+        return project.settings.display_units if project is not None else "US"
     u = units.strip().upper()
     if u not in ("US", "SI"):
         raise typer.BadParameter(f'"{units}" is not US or SI', param_hint="--units")
     return u
 
 
-def _caution_line() -> str:
-    return "Caution: " + " ".join(CAUTIONS[:2])
+#: words of advice that change the well (sealing, casing off, redeveloping, moving the pump)
+_WELL_WORK = ("seal", "case off", "redevelop", "lower the pump intake", "intake at",
+              "line or case")
+
+
+def cautions_for(*texts: str) -> list[str]:
+    """The cautions a command prints: always the first two (planning aid; the regulator's
+    sampling rules); the licensed-review and local-codes caution too when any of ``texts``
+    advises work on the well (sealing or casing off a zone, redevelopment, a pump change)."""
+    out = list(CAUTIONS[:2])
+    joined = " ".join(texts).lower()
+    if any(w in joined for w in _WELL_WORK):
+        out.append(CAUTIONS[3])
+    return out
+
+
+def _caution_line(*texts: str) -> str:
+    return "Caution: " + " ".join(cautions_for(*texts))
 
 
 def _progress():
@@ -111,11 +168,94 @@ def main_options(
     """blendq command line."""
 
 
+def _echo_cautions(*texts: str) -> None:
+    typer.echo(_caution_line(*texts))
+
+
+def _step_table_lines(table, units: str) -> list[str]:
+    """The leave-one-step-out table as text lines (display rate unit)."""
+    from blendq.units import format_quantity
+
+    def rate(v):
+        return "-" if v != v else format_quantity(v, "rate", units)  # NaN: no window
+
+    def shift(v):
+        if v != v:
+            return "-"
+        return ("+" if v > 0 else "") + format_quantity(v, "rate", units)
+
+    lines = ["Window without each step's lab samples (which steps drive the result):"]
+    for r in table.itertuples(index=False):
+        what = "all steps" if r.step == "none" else f"without {r.step} ({r.results_left_out} results)"
+        if r.window_low != r.window_low:  # NaN: no window
+            lines.append(f"  {what}: {r.note or 'no window'}")
+            continue
+        moved = ("" if r.step == "none"
+                 else f"; lower end moves {shift(r.shift_low)}, upper end {shift(r.shift_high)}")
+        lines.append(f"  {what}: {rate(r.window_low)} to {rate(r.window_high)}; recommended "
+                     f"{rate(r.recommended)}{moved}" + (f"; {r.note}" if r.note else ""))
+    return lines
+
+
+@app.command("new")
+def new_cmd(folder: Annotated[Path, typer.Argument(help="Folder for the new project (must not hold project files yet).")]) -> None:
+    """Write a commented template project for a new well."""
+
+    def body():
+        from blendq.inputs.template import write_template
+
+        written = write_template(folder)
+        typer.echo(f"Template written: {', '.join(str(p) for p in written)}")
+        typer.echo("Edit the files, then run: blendq check " + str(folder))
+        _echo_cautions()
+
+    _guard(body)
+
+
+@app.command("check")
+def check_cmd(
+    project: ProjectArg,
+    fail_on: Annotated[str, typer.Option("--fail-on", metavar="SEVERITY", help="Exit 1 when a finding at or above this severity exists: error, warning or info.")] = "error",
+    as_json: JsonOpt = False,
+) -> None:
+    """Read a project, check every input and review the lab and field results."""
+
+    def body():
+        from blendq.review import findings as qa
+
+        if fail_on not in ("error", "warning", "info"):
+            raise typer.BadParameter(f'"{fail_on}" is not error, warning or info', param_hint="--fail-on")
+        proj = _load(project)
+        result = qa.review(proj)
+        if as_json:
+            payload = json.loads(result.to_json())
+            payload["cautions"] = cautions_for(*result.findings["message"].astype(str))
+            typer.echo(json.dumps(payload, indent=2))
+        else:
+            typer.echo(f"{proj.name}: {len(proj.zones)} zones, {len(proj.steps)} steps, "
+                       f"{len(proj.samples)} lab results, "
+                       f"{proj.flowlogs['log'].nunique() if len(proj.flowlogs) else 0} flow logs.")
+            for line in result.summary_lines():
+                typer.echo("  " + line)
+            for _, f in result.findings.iterrows():
+                if f["severity"] != "info":
+                    typer.echo(f"  [{f['severity']}] {f['rule']}: {f['message']}")
+            for rule, why in result.skipped:
+                typer.echo(f"  skipped {rule}: {why}")
+            for line in result.decision_lines():
+                typer.echo(f"  review decision: {line}")
+            _echo_cautions(*result.findings["message"].astype(str))
+        if qa.at_or_above(result.findings, fail_on):
+            raise typer.Exit(1)
+
+    _guard(body)
+
+
 @app.command("inflow")
 def inflow_cmd(
     project: ProjectArg,
-    rates: Annotated[str, typer.Option("--rates", help='Comma-separated rates with a unit, e.g. "100,300,500 gpm".')] = "",
-    units: UnitsOpt = "US",
+    rates: Annotated[str, typer.Option("--rates", metavar="RATES", help='Comma-separated rates with a unit, e.g. "100,300,500 gpm".')] = "",
+    units: UnitsOpt = None,
     as_json: JsonOpt = False,
 ) -> None:
     """Each zone's flow and share of the discharge, and the pumping level, at given rates,
@@ -126,8 +266,8 @@ def inflow_cmd(
         from blendq.units import DISPLAY_UNITS, from_base, parse_quantity
         from blendq.well.inflow import inflow_table
 
-        u = _units(units)
         proj = _load(project)
+        u = _units(units, proj)
         if rates.strip():
             text = rates.strip()
             parts = text.replace(";", ",").split(",")
@@ -148,7 +288,8 @@ def inflow_cmd(
         table["pumping_level"] = from_base(table["pumping_level"].to_numpy(), "length", du["length"])
         if as_json:
             typer.echo(json.dumps({"units": {"rate": du["rate"], "depth": du["length"]},
-                                   "rows": table.to_dict(orient="records")}, indent=2))
+                                   "rows": table.to_dict(orient="records"),
+                                   "cautions": cautions_for()}, indent=2))
             return
         from rich.console import Console
         from rich.markup import escape
@@ -169,66 +310,84 @@ def inflow_cmd(
             t.add_row(f"{r['rate']:.4g}", escape(str(r["zone"])), f"{r['zone_flow']:.3g}",
                       f"{r['share']:.1%}", f"{r['pumping_level']:.4g}", note)
         Console().print(t)
-        typer.echo(_caution_line())
+        _echo_cautions()
 
     _guard(body)
 
 
-@app.command("check")
-def check_cmd(
-    project: ProjectArg,
-    fail_on: Annotated[str, typer.Option("--fail-on", help="Exit 1 when a finding at or above this severity exists: error, warning or info.")] = "error",
-    as_json: JsonOpt = False,
-) -> None:
-    """Read a project, check every input and review the lab and field results."""
+@app.command("drawdown")
+def drawdown_cmd(project: ProjectArg, units: UnitsOpt = None, as_json: JsonOpt = False,
+                 chart: Annotated[Path | None, typer.Option(
+                     "--chart", help="Also write the chart of s/Q against Q with the fitted "
+                                     "line to this PNG file.")] = None) -> None:
+    """Step-drawdown analysis: well loss, specific capacity, efficiency and well condition."""
 
     def body():
-        from blendq.review import findings as qa
+        from blendq.decide.levelcheck import static_level_of
+        from blendq.errors import InputError
+        from blendq.well.steptest import analyse_step_test
 
-        if fail_on not in ("error", "warning", "info"):
-            raise typer.BadParameter(f'"{fail_on}" is not error, warning or info', param_hint="--fail-on")
         proj = _load(project)
-        result = qa.review(proj)
+        u = _units(units, proj)
+        static = static_level_of(proj)
+        if static is None:
+            raise InputError("the step-drawdown analysis needs the well's static level",
+                             file="project.toml", field="well.static_level")
+        zone_s = [z.storativity for z in proj.zones]
+        res = analyse_step_test(proj.steps, static,
+                                proj.levels if len(proj.levels) else None,
+                                steps_file=proj.files.get("steps", "steps.csv"),
+                                levels_file=proj.files.get("levels", "levels.csv"),
+                                well_radius=proj.well.well_radius,
+                                storativity=(sum(zone_s) if zone_s and None not in zone_s
+                                             else None))
+        if chart is not None:
+            from blendq.report.charts.stepdrawdown import specific_drawdown_chart
+
+            specific_drawdown_chart(res, u).savefig(chart, dpi=150)
+        lines = res.summary_lines(u)
         if as_json:
-            typer.echo(result.to_json())
-        else:
-            typer.echo(f"{proj.name}: {len(proj.zones)} zones, {len(proj.steps)} steps, "
-                       f"{len(proj.samples)} lab results, "
-                       f"{proj.flowlogs['log'].nunique() if len(proj.flowlogs) else 0} flow logs.")
-            for line in result.summary_lines():
-                typer.echo("  " + line)
-            for _, f in result.findings.iterrows():
-                if f["severity"] != "info":
-                    typer.echo(f"  [{f['severity']}] {f['rule']}: {f['message']}")
-            for rule, why in result.skipped:
-                typer.echo(f"  skipped {rule}: {why}")
-        if qa.at_or_above(result.findings, fail_on):
-            raise typer.Exit(1)
+            from blendq.report.outputs import to_json_stable
+
+            typer.echo(to_json_stable({**res.to_json_dict(), "cautions": cautions_for(*lines)}))
+            return
+        for line in lines:
+            typer.echo(line)
+        if chart is not None:
+            typer.echo(f"  chart of s/Q against Q: {chart}")
+        _echo_cautions(*lines)
 
     _guard(body)
 
 
 @app.command("fit")
-def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
+def fit_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = None,
             seed: SeedOpt = None, as_json: JsonOpt = False,
-            samples: Annotated[str, typer.Option("--flagged", help="Use of samples the review flags: keep, exclude or downweight.")] = "keep") -> None:
+            samples: Annotated[str, typer.Option("--flagged", metavar="MODE", help="Use of samples the review flags and no [[review]] decision covers: keep, exclude or downweight.")] = "keep",
+            by_step: Annotated[bool, typer.Option("--by-step/--no-by-step", help="Also find the window without each step's samples (one more analysis per step).")] = True,
+            ) -> None:
     """Fit each zone's water quality (and the zone hydraulics) and print the zone table."""
 
     def body():
         from blendq.api import load_project, to_json
+        from blendq.decide.analysis import leave_one_step_out
 
-        # concentrations print in each analyte's unit; the option is still checked
-        u = _units(units)
         proj = load_project(project)
+        u = _units(units, proj)  # concentrations print in each analyte's unit
         result = _analyse(proj, draws, seed, u, samples)
         a = result.analysis  # the JSON holds the pipeline's tables in base units
+        steps = leave_one_step_out(result.analysis) if by_step else None
         if as_json:
             typer.echo(to_json({"zones": a.zones.to_dict(orient="records"),
-                                       "sample_mode": a.sample_mode,
-                                       "sample_use": a.sample_use.to_dict(orient="records"),
-                                       "hydraulics": a.hydraulics.to_dict(orient="records"),
-                                       "diagnostics": a.analyte_diagnostics.to_dict(orient="records"),
-                                       "units": "mg/L canonical basis; m2/d; m"}))
+                                "sample_mode": a.sample_mode,
+                                "sample_use": a.sample_use.to_dict(orient="records"),
+                                "review_decisions": a.decisions.to_dict(orient="records"),
+                                "hydraulics": a.hydraulics.to_dict(orient="records"),
+                                "diagnostics": a.analyte_diagnostics.to_dict(orient="records"),
+                                **({"leave_one_step_out": steps.to_dict(orient="records")}
+                                   if steps is not None else {}),
+                                "units": "mg/L canonical basis; m2/d; m; m3/d",
+                                "cautions": cautions_for(*result.notes)}))
             return
         from rich.console import Console
         from rich.markup import escape
@@ -247,157 +406,115 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
                    f"{len(use)} used; {len(flagged)} flagged by the review"
                    + (f" ({', '.join(flagged['sample_id'].astype(str))})" if len(flagged) else "")
                    + ".")
+        for line in a.qa.decision_lines():
+            typer.echo(f"Review decision: {line}")
         for note in result.notes:
             typer.echo("Note: " + note)
-        typer.echo(_caution_line())
+        if steps is not None:
+            for line in _step_table_lines(steps, u):
+                typer.echo(line)
+        _echo_cautions(*result.notes)
 
     _guard(body)
 
 
 @app.command("window")
-def window_cmd(project: ProjectArg, units: UnitsOpt = "US", draws: DrawsOpt = None,
-               seed: SeedOpt = None, as_json: JsonOpt = False) -> None:
+def window_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = None,
+               seed: SeedOpt = None, as_json: JsonOpt = False,
+               by_step: Annotated[bool, typer.Option("--by-step/--no-by-step", help="Also find the window without each step's samples (one more analysis per step).")] = True,
+               ) -> None:
     """Find the rates at which the discharge meets every limit with the margin."""
 
     def body():
         from blendq.api import load_project, to_json
+        from blendq.decide.analysis import failure_drivers, leave_one_step_out
 
-        u = _units(units)
         proj = load_project(project)
+        u = _units(units, proj)
         result = _analyse(proj, draws, seed, u)
+        drivers = failure_drivers(result.analysis, u)
+        steps = leave_one_step_out(result.analysis) if by_step else None
         if as_json:
-            typer.echo(to_json(result.summary()))
+            summary = result.summary()
+            summary["failure_drivers"] = drivers
+            if steps is not None:
+                summary["leave_one_step_out"] = steps.to_dict(orient="records")
+            typer.echo(to_json(summary))
             return
         typer.echo(result.decision)
         df = result.text_table("window")
         for _, r in df.iterrows():
             typer.echo(f"  {r['From']} to {r['To']}: lower end set by {r['Lower end set by']}; "
                        f"upper end set by {r['Upper end set by']}")
+        if not result.analysis.window.empty:  # an empty window's sentence names them
+            for line in drivers:
+                typer.echo(f"  {line}")
         from blendq.decide.sweep import compliance_statistics
 
         for st in compliance_statistics(result.analysis.project, result.analysis.limits).values():
             typer.echo(f"  judged: {st.describe()}")
-        typer.echo(_caution_line())
+        for line in result.analysis.qa.decision_lines():
+            typer.echo(f"  review decision: {line}")
+        if steps is not None:
+            for line in _step_table_lines(steps, u):
+                typer.echo(line)
+        _echo_cautions(result.decision)
 
     _guard(body)
 
 
-def _write_report(project: Path, out: Path, units: str, draws, seed) -> None:
-    from blendq.api import check_report_folder, load_project
+def _with_options(proj, seal, redevelop, intake, lower_heads, blend, units):
+    """The project with the command line's options added to its [[scenarios]] (checked now,
+    before the long run, with messages naming the option)."""
+    from dataclasses import replace
 
-    proj = load_project(project)
+    from blendq.api import build_scenarios, option_entries
+
+    build_scenarios(proj, seal, redevelop, intake, blend, lower_heads=lower_heads, units=units,
+                    file="command line", option_prefix="--")
+    extra = [raw for _, raw in option_entries(proj, seal, redevelop, intake, blend, lower_heads,
+                                              units=units, file="command line",
+                                              option_prefix="--")]
+    return replace(proj, scenarios=[*proj.scenarios, *extra]) if extra else proj
+
+
+def _write_report(proj, out: Path, units: str, draws, seed) -> None:
+    from blendq.api import check_report_folder
+
     check_report_folder(out, proj)  # refuse a bad folder before the long run, not after
     result = _analyse(proj, draws, seed, units)
     folder = result.write_report(out)
     typer.echo(result.decision)
     typer.echo(f"Report written to {folder / 'report.html'} and {folder / 'report.pdf'}")
-    typer.echo(_caution_line())
-
-
-@app.command("report")
-def report_cmd(project: ProjectArg,
-               out: Annotated[Path, typer.Option("--out", "-o", help="Output folder (replaced as a whole).")] = Path("blendq-out"),
-               units: UnitsOpt = "US", draws: DrawsOpt = None, seed: SeedOpt = None) -> None:
-    """Run the whole analysis and write the report (HTML, PDF), tables (CSV) and a JSON summary."""
-    _guard(lambda: _write_report(project, out, _units(units), draws, seed))
-
-
-@app.command("demo")
-def demo_cmd(out: Annotated[Path, typer.Option("--out", "-o", help="Output folder.")] = Path("blendq-demo"),
-             units: UnitsOpt = "US", draws: DrawsOpt = None, seed: SeedOpt = None) -> None:
-    """Run the whole analysis on the invented demo well (TH-2) and write its report."""
-
-    def body():
-        from blendq.api import demo_path
-
-        _write_report(demo_path(), out, _units(units), draws, seed)
-
-    _guard(body)
-
-
-@app.command("new")
-def new_cmd(folder: Annotated[Path, typer.Argument(help="Folder for the new project (must not hold project files yet).")]) -> None:
-    """Write a commented template project for a new well."""
-
-    def body():
-        from blendq.inputs.template import write_template
-
-        written = write_template(folder)
-        typer.echo(f"Template written: {', '.join(str(p) for p in written)}")
-        typer.echo("Edit the files, then run: blendq check " + str(folder))
-
-    _guard(body)
-
-
-@app.command("drawdown")
-def drawdown_cmd(project: ProjectArg, units: UnitsOpt = "US", as_json: JsonOpt = False,
-                 chart: Annotated[Path | None, typer.Option(
-                     "--chart", help="Also write the chart of s/Q against Q with the fitted "
-                                     "line to this PNG file.")] = None) -> None:
-    """Step-drawdown analysis: well loss, specific capacity, efficiency and well condition."""
-
-    def body():
-        from blendq.decide.levelcheck import static_level_of
-        from blendq.errors import InputError
-        from blendq.well.steptest import analyse_step_test
-
-        u = _units(units)
-        proj = _load(project)
-        static = static_level_of(proj)
-        if static is None:
-            raise InputError("the step-drawdown analysis needs the well's static level",
-                             file="project.toml", field="well.static_level")
-        zone_s = [z.storativity for z in proj.zones]
-        res = analyse_step_test(proj.steps, static,
-                                proj.levels if len(proj.levels) else None,
-                                steps_file=proj.files.get("steps", "steps.csv"),
-                                levels_file=proj.files.get("levels", "levels.csv"),
-                                well_radius=proj.well.well_radius,
-                                storativity=(sum(zone_s) if zone_s and None not in zone_s
-                                             else None))
-        if chart is not None:
-            from blendq.report.charts.stepdrawdown import specific_drawdown_chart
-
-            specific_drawdown_chart(res, u).savefig(chart, dpi=150)
-        if as_json:
-            from blendq.report.outputs import to_json_stable
-
-            typer.echo(to_json_stable(res.to_json_dict()))
-            return
-        for line in res.summary_lines(u):
-            typer.echo(line)
-        if chart is not None:
-            typer.echo(f"  chart of s/Q against Q: {chart}")
-
-    _guard(body)
+    _echo_cautions(result.decision, *(str(s.get("name", "")) for s in proj.scenarios))
 
 
 @app.command("compare")
 def compare_cmd(
     project: ProjectArg,
-    seal: Annotated[list[str] | None, typer.Option("--seal", help="Zone to seal (repeatable; one option each).")] = None,
-    redevelop: Annotated[list[str] | None, typer.Option("--redevelop", help='Zone with a new skin or a conductance factor, e.g. "Lower gravel:skin=0" or "Lower gravel:factor=2".')] = None,
-    blend: Annotated[list[str] | None, typer.Option("--blend", help='Second source: rate, then concentrations, e.g. "200 gpm; nitrate=2 mg/L as N; arsenic=1 ug/L".')] = None,
-    units: UnitsOpt = "US", draws: DrawsOpt = None, seed: SeedOpt = None,
+    seal: SealOpt = None, redevelop: RedevelopOpt = None, intake: IntakeOpt = None,
+    lower_heads: LowerHeadsOpt = None, blend: BlendOpt = None,
+    units: UnitsOpt = None, draws: DrawsOpt = None, seed: SeedOpt = None,
     as_json: JsonOpt = False,
 ) -> None:
-    """Compare options (seal a zone, redevelop, move the intake, blend) with the base case:
-    the project's [[scenarios]] plus any given here, all with the same Monte Carlo draws."""
+    """Compare options (seal a zone, redevelop, move the intake, lower the heads, blend) with
+    the base case: the project's [[scenarios]] plus any given here, all with the same Monte
+    Carlo draws. The same options given to `blendq report` enter the report."""
 
     def body():
-        from blendq.api import build_scenarios, load_project, to_json
+        from blendq.api import load_project, to_json
 
-        u = _units(units)
         proj = load_project(project)
-        # the options are read before the long run, so a bad one stops the command at once
-        scenarios = build_scenarios(proj, seal, redevelop, blend=blend, units=u,
-                                    file="command line", option_prefix="--")
+        u = _units(units, proj)
+        proj = _with_options(proj, seal, redevelop, intake, lower_heads, blend, u)
         result = _analyse(proj, draws, seed, u)
-        comp = result.compare(scenarios=scenarios, include_project=False)
+        comp = result.compare()
+        names = [str(s.get("name", "")) for s in proj.scenarios]
         if as_json:
             typer.echo(to_json({
                 "units": {"rate": "m3/d", "concentration": "mg/L canonical basis"},
-                "comparison": comp.comparison.table.to_dict(orient="records")}))
+                "comparison": comp.comparison.table.to_dict(orient="records"),
+                "cautions": cautions_for(*names)}))
             return
         df = comp.text_table()
         band = f"{proj.settings.interval:.0%} band"
@@ -415,7 +532,41 @@ def compare_cmd(
             else:
                 typer.echo(f"  window limited by: {r['Window limited by']}")
         typer.echo(comp.widest)
-        typer.echo(_caution_line())
+        _echo_cautions(*names)
+
+    _guard(body)
+
+
+@app.command("report")
+def report_cmd(project: ProjectArg,
+               out: Annotated[Path, typer.Option("--out", "-o", metavar="FOLDER", help="Output folder (replaced as a whole).")] = Path("blendq-out"),
+               units: UnitsOpt = None, draws: DrawsOpt = None, seed: SeedOpt = None,
+               seal: SealOpt = None, redevelop: RedevelopOpt = None, intake: IntakeOpt = None,
+               lower_heads: LowerHeadsOpt = None, blend: BlendOpt = None) -> None:
+    """Run the whole analysis and write the report (HTML, PDF), tables (CSV) and a JSON
+    summary. Options given here (as to `blendq compare`) join the project's [[scenarios]]."""
+
+    def body():
+        from blendq.api import load_project
+
+        proj = load_project(project)
+        u = _units(units, proj)
+        proj = _with_options(proj, seal, redevelop, intake, lower_heads, blend, u)
+        _write_report(proj, out, u, draws, seed)
+
+    _guard(body)
+
+
+@app.command("demo")
+def demo_cmd(out: Annotated[Path, typer.Option("--out", "-o", metavar="FOLDER", help="Output folder.")] = Path("blendq-demo"),
+             units: UnitsOpt = None, draws: DrawsOpt = None, seed: SeedOpt = None) -> None:
+    """Run the whole analysis on the invented demo well (TH-2) and write its report."""
+
+    def body():
+        from blendq.api import demo_path, load_project
+
+        proj = load_project(demo_path())
+        _write_report(proj, out, _units(units, proj), draws, seed)
 
     _guard(body)
 

@@ -209,6 +209,9 @@ def test_result_equals_the_cli_json(result):
         ureg.Quantity(result.window.recommended, "gallon/minute").to("m**3/day").magnitude,
         cli["recommended_rate_m3_per_day"], rtol=1e-12)
     assert cli["decision"] == result.decision
+    # the command line adds the window without each step and the failure drivers
+    assert cli.pop("failure_drivers") == result.failure_drivers
+    assert len(cli.pop("leave_one_step_out")) == 6
     assert cli == json.loads(bq.to_json(result.summary()))
 
 
@@ -388,3 +391,44 @@ def test_write_report_writes_the_cli_report(result, tmp_path):
     with pytest.raises(InputError):
         bq.check_report_folder(tmp_path / "mine", result.project)
     assert (tmp_path / "mine" / "notes.txt").read_text() == "keep"
+
+
+# --- the window without each step; failure drivers; options of the command line --------------
+
+def test_leave_one_step_out_table_in_display_units(result, si):
+    t = result.leave_one_step_out()
+    assert list(t["step"]) == ["none", "S1", "S2", "S3", "S4", "S5"]
+    assert list(t.columns[:4]) == ["step", "results left out", "window low [gpm]",
+                                   "window high [gpm]"]
+    base = result.window.intervals
+    np.testing.assert_allclose(t["window low [gpm]"].iloc[0], base.iloc[0, 0], rtol=1e-12)
+    np.testing.assert_allclose(t["shift high [gpm]"].iloc[0], 0.0, atol=0)
+    # the same reruns in SI: the rate columns relate by pint's gallon and minute
+    s = si.leave_one_step_out()
+    factor = ureg.Quantity(1.0, "gallon/minute").to("m**3/day").magnitude
+    np.testing.assert_allclose(s["window high [m3/d]"].to_numpy(float),
+                               t["window high [gpm]"].to_numpy(float) * factor, rtol=1e-9)
+
+
+def test_lower_heads_option_and_blend_checked_before_the_run(result):
+    comp = result.compare(lower_heads="5 ft", include_project=False)
+    assert list(comp.table["option"]) == ["Base case", "Static heads 5 ft lower"]
+    with pytest.raises(InputError) as err:
+        result.compare(blend="200 gpm; nitrate=2 mg/L as N", include_project=False)
+    assert err.value.field == "blend" and "arsenic" in err.value.message
+
+
+def test_option_entries_join_the_project_scenarios(result):
+    from blendq.api import option_entries
+
+    entries = option_entries(result.project, seal="Upper sand", intake=118.0)
+    assert entries == [("seal", {"name": "Seal Upper sand", "seal": ["Upper sand"]}),
+                       ("intake", {"name": "Intake at 118 ft", "intake": "118 ft"})]
+
+
+def test_window_weighs_the_demand(result):
+    w = result.window
+    assert w.demand == pytest.approx(600.0, rel=1e-12)
+    assert w.demand_met is False and w.recommended < w.demand
+    assert w.headroom == pytest.approx(0.05, abs=0) and w.headroom_kept
+    assert w.recommended * 1.05 <= w.intervals["to [gpm]"].max() + 1e-9

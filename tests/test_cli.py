@@ -34,7 +34,12 @@ _cache: dict = {}
 
 
 def _cached_analyse(project, draws=None, seed=None, sample_mode="keep", progress=None):
-    key = (str(project.folder), project.well.name, draws, seed, sample_mode)
+    # the samples and options are part of the key: the window without each step reruns the
+    # analysis on fewer samples, and options given on the command line join the scenarios
+    key = (str(project.folder), project.well.name, draws, seed, sample_mode,
+           tuple(project.samples["sample_id"].astype(str) + project.samples["analyte"]),
+           tuple(str(s.get("name")) for s in project.scenarios),
+           str(project.settings.review_decisions))
     if key not in _cache:
         _cache[key] = _real_analyse(project, draws=draws, seed=seed, sample_mode=sample_mode,
                                     progress=progress)
@@ -44,6 +49,7 @@ def _cached_analyse(project, draws=None, seed=None, sample_mode="keep", progress
 @pytest.fixture(autouse=True)
 def _fast_analyse(monkeypatch):
     monkeypatch.setattr(blendq.decide.analysis, "analyse", _cached_analyse)
+    monkeypatch.setattr(blendq.decide.analysis, "_run", _cached_analyse)
 
 
 def run(*args: str):
@@ -391,3 +397,145 @@ def test_commands_in_a_fresh_process(command):
                        capture_output=True, text=True, timeout=120)
     assert r.returncode in (0, 1), r.stderr
     assert "Traceback" not in r.stderr and "internal error" not in r.stderr
+
+
+# --- issue: a report and a command line a utility's reviewer accepts -------------------------
+
+def _demo_copy(tmp_path: Path, name: str = "w") -> Path:
+    folder = tmp_path / name
+    shutil.copytree(DEMO, folder)
+    return folder
+
+
+def _edit(path: Path, old: str, new: str) -> None:
+    text = path.read_text(encoding="utf-8")
+    assert old in text
+    path.write_text(text.replace(old, new), encoding="utf-8")
+
+
+def test_project_display_units_are_the_default_and_units_overrides(tmp_path):
+    folder = _demo_copy(tmp_path)
+    _edit(folder / "project.toml", 'display_units = "US"', 'display_units = "SI"')
+    si = run("inflow", folder, "--rates", "300 gpm")
+    assert si.exit_code == 0, si.output
+    assert "m³/d" in si.stdout and "gpm" not in si.stdout
+    us = run("inflow", folder, "--rates", "300 gpm", "--units", "US")
+    assert "gpm" in us.stdout and "m³/d" not in us.stdout
+    dd = run("drawdown", folder)
+    assert dd.exit_code == 0, dd.output
+    assert " m" in dd.stdout and " ft" not in dd.stdout
+    w = run("window", folder, "--draws", DRAWS, "--no-by-step")
+    assert w.exit_code == 0, w.output
+    assert "m³/d" in w.stdout.splitlines()[0] and "gpm" not in w.stdout.splitlines()[0]
+
+
+def test_help_is_plain_text_in_workflow_order():
+    r = run("compare", "--help")
+    assert r.exit_code == 0
+    text = " ".join(r.stdout.split())
+    assert "the project's [[scenarios]] plus any given here" in text
+    assert "<bool>" not in r.stdout and "<list" not in r.stdout
+    for option in ("--intake", "--lower-heads", "--seal", "--blend", "--redevelop"):
+        assert option in r.stdout
+    for command in ("report", "fit", "window"):
+        assert "<bool>" not in run(command, "--help").stdout
+    top = run("--help").stdout
+    listed = [ln.split()[0] for ln in top.split("Commands:")[1].splitlines() if ln.strip()]
+    assert listed == ["new", "check", "inflow", "drawdown", "fit", "window", "compare",
+                      "report", "demo"]
+
+
+def test_compare_option_errors_name_the_option():
+    line = _one_error_line(run("compare", DEMO, "--seal", "Nope"), "option --seal:", "Nope")
+    assert "project.toml" not in line and "command line" not in line
+    line = _one_error_line(run("compare", DEMO, "--blend", "200 gpm, nitrate=2 mg/L as N"),
+                           "option --blend:", "semicolons")
+    # a missing concentration is found before the long run, and blames the option
+    line = _one_error_line(run("compare", DEMO, "--blend", "200 gpm; nitrate=2 mg/L as N"),
+                           "option --blend:", "arsenic")
+    assert "project.toml" not in line
+    _one_error_line(run("compare", DEMO, "--lower-heads", "ten feet"), "option --lower-heads")
+    _one_error_line(run("report", DEMO, "--intake", "-5 ft", "--out", "x"), "option --intake")
+
+
+def test_every_command_prints_the_cautions(tmp_path):
+    for args in (["check", DEMO], ["drawdown", DEMO], ["new", tmp_path / "n"],
+                 ["inflow", DEMO, "--rates", "300 gpm"]):
+        r = run(*args)
+        assert r.exit_code in (0, 1), r.output
+        assert "Caution: blendq is a planning aid" in r.stdout, args
+    for args in (["check", DEMO, "--json"], ["drawdown", DEMO, "--json"]):
+        data = json.loads(run(*args).stdout)
+        assert data["cautions"][0] == blendq.CAUTIONS[0], args
+
+
+def test_compare_and_report_take_options_and_the_well_work_caution(tmp_path):
+    r = run("compare", DEMO, "--seal", "Upper sand", "--intake", "118 ft", "--lower-heads",
+            "5 ft", "--draws", "100", "--seed", "3")
+    assert r.exit_code == 0, r.output
+    assert "Intake at 118 ft" in r.stdout and "Static heads 5 ft lower" in r.stdout
+    assert "licensed hydrogeologist" in r.stdout and "local codes" in r.stdout
+    j = json.loads(run("compare", DEMO, "--seal", "Upper sand", "--draws", "100", "--seed",
+                       "3", "--json").stdout)
+    assert any("licensed" in c for c in j["cautions"])
+    out = tmp_path / "rep"
+    r = run("report", DEMO, "--out", out, "--draws", "100", "--seed", "3", "--lower-heads",
+            "5 ft")
+    assert r.exit_code == 0, r.output
+    assert "Static heads 5 ft lower" in (out / "report.html").read_text(encoding="utf-8")
+
+
+def _typo_project(tmp_path: Path) -> Path:
+    """The demo with a unit slip: step S2's arsenic written as 8.0 mg/L (its neighbours are
+    5.5-7.6 ug/L; 8.0 mg/L is 1000 x 8.0 ug/L)."""
+    folder = _demo_copy(tmp_path, "typo")
+    _edit(folder / "samples.csv", "TH2-2,S2,arsenic,6.7,ug/L", "TH2-2,S2,arsenic,8.0,mg/L")
+    return folder
+
+
+def test_gross_outlier_is_a_check_error_and_window_names_it(tmp_path):
+    folder = _typo_project(tmp_path)
+    r = run("check", folder)
+    assert r.exit_code == 1
+    assert "[error] gross_outlier: samples.csv row 5: arsenic 8000 ug/L" in r.stdout
+    w = run("window", folder, "--draws", DRAWS, "--no-by-step")
+    assert w.exit_code == 0, w.output
+    assert "fails at every rate" in w.stdout
+    assert "driven by sample TH2-2 (step S2, 8000 ug/L, samples.csv row 5)" in w.stdout
+    # the reviewer records the decision once; check passes and every fit leaves it out
+    with (folder / "project.toml").open("a", encoding="utf-8") as fh:
+        fh.write('\n[[review]]\nsample = "TH2-2"\nanalyte = "arsenic"\naction = "exclude"\n'
+                 'reason = "lab confirmed 8.0 ug/L"\n')
+    assert run("check", folder).exit_code == 0
+    w = run("window", folder, "--draws", DRAWS, "--no-by-step")
+    assert w.stdout.startswith("Operate between"), w.stdout
+    assert "review decision: TH2-2 arsenic: excluded (review[1]: lab confirmed 8.0 ug/L)" \
+        in w.stdout
+    f = json.loads(run("fit", folder, "--draws", DRAWS, "--no-by-step", "--json").stdout)
+    assert f["review_decisions"][0]["sample_id"] == "TH2-2"
+
+
+def test_window_weighs_the_demand_and_keeps_a_headroom():
+    r = run("window", DEMO, "--draws", DRAWS, "--json", "--no-by-step")
+    data = json.loads(r.stdout)
+    lo, hi = data["window_m3_per_day"][0]
+    rec = data["recommended_rate_m3_per_day"]
+    # 5 % headroom (the default setting): the rate may drift by 5 % and stay in the window
+    assert lo <= rec * 0.95 and rec * 1.05 <= hi + 1e-9
+    assert "The demand of 600 gpm cannot be met" in data["decision"]
+    assert "headroom of 5%" in data["decision"]
+
+
+def test_window_and_fit_show_the_window_without_each_step():
+    r = run("window", DEMO, "--draws", DRAWS)
+    assert r.exit_code == 0, r.output
+    assert "Window without each step's lab samples" in r.stdout
+    for step in ("S1", "S2", "S3", "S4", "S5"):
+        assert f"without {step} (" in r.stdout
+    data = json.loads(run("window", DEMO, "--draws", DRAWS, "--json").stdout)
+    table = data["leave_one_step_out"]
+    assert [row["step"] for row in table] == ["none", "S1", "S2", "S3", "S4", "S5"]
+    assert table[0]["shift_high"] == 0
+    f = json.loads(run("fit", DEMO, "--draws", DRAWS, "--json").stdout)
+    assert len(f["leave_one_step_out"]) == 6
+    assert f["cautions"][:2] == list(blendq.CAUTIONS[:2])

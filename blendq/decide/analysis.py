@@ -46,6 +46,13 @@ class Analysis:
     not_fitted: dict[str, str] = field(default_factory=dict)
     step_drawdown: LevelCheck | None = None
     notes: list[str] = field(default_factory=list)
+    result_use: pd.DataFrame | None = None
+
+    @property
+    def decisions(self) -> pd.DataFrame:
+        """The project's review decisions as the fit used them
+        (:func:`blendq.review.decisions.decision_table`)."""
+        return self.qa.decisions
 
 
 def fit_analytes(project: Project) -> tuple[list[str], dict[str, str]]:
@@ -82,15 +89,25 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
         Use of samples that the lab review flags.
     progress : callable(done, total), optional
     """
+    from blendq.review import decisions as decisions_module
     from blendq.review import findings as qa_module
 
     review = qa_module.review(project)
     use = review.sample_weights(sample_mode).reset_index()
+    # the reviewer's decisions recorded in the project come after the mode: per result for the
+    # fit, per sample (whole-sample decisions) for the table of sample use
+    per_result = decisions_module.result_use(use, review.results, review.decisions)
+    for d in review.decisions.itertuples(index=False):
+        if d.analyte == "":
+            hit = use["sample_id"] == d.sample_id
+            use.loc[hit, "used"] = d.action != "exclude"
+            use.loc[hit, "sigma_factor"] = d.factor if d.action == "downweight" else 1.0
+            use.loc[hit, "reason"] = decisions_module.describe(d._asdict())
     analytes, skipped = fit_analytes(project)
     if not analytes:
         raise ModelError("no analyte with a limit has a detected result: nothing to fit")
     fit_project = replace(project, samples=project.samples[project.samples["analyte"].isin(analytes)])
-    fit = estimation.fit(fit_project, sample_use=use)
+    fit = estimation.fit(fit_project, sample_use=per_result)
     s = project.settings
     d = uncertainty.monte_carlo(fit, s.draws if draws is None else draws,
                                 s.seed if seed is None else seed, progress=progress)
@@ -132,11 +149,55 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     notes += [n + "." for n in sweep.applicable_ratio_rules(s.limit_sets, pred.analytes)[1]]
     return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
                     residuals, hyd, pred, window, limits, table, skipped,
-                    levels, notes)
+                    levels, notes, per_result)
+
+
+def demand_sentence(a: Analysis, units: str = "US") -> str:
+    """Whether the demand is met, in one sentence ("" when the project gives no demand)."""
+    from blendq.units import format_quantity
+
+    w = a.window
+    demand = a.project.well.demand
+    if not demand:
+        return "No demand is given in the project, so none is weighed."
+    d = format_quantity(demand, "rate", units)
+    if w.empty:
+        return f"The demand of {d} cannot be met from this well: no rate meets every limit."
+    if w.demand_met:
+        return f"The demand of {d} is met."
+    top = max(hi for _, hi, _, _ in w.intervals)
+    rec = format_quantity(w.recommended, "rate", units)
+    if top < demand:
+        return (f"The demand of {d} cannot be met from this well: the window ends at "
+                f"{format_quantity(top, 'rate', units)} and the recommended {rec} keeps the "
+                f"headroom below that end; the shortfall of "
+                f"{format_quantity(demand - w.recommended, 'rate', units)} needs another source "
+                "or an option that widens the window.")
+    return (f"The demand of {d} is not met at the recommended {rec}: rates up to the demand do "
+            "not comply with the headroom kept.")
+
+
+def headroom_sentence(a: Analysis, units: str = "US") -> str:
+    """How far the recommended rate stays inside the window ("" when there is no window)."""
+    from blendq.units import format_quantity
+
+    w = a.window
+    if w.empty or w.recommended is None:
+        return ""
+    if w.headroom <= 0:
+        return "The recommended rate may sit on an end of the window (no headroom set)."
+    if not w.headroom_kept:
+        return (f"The window is too narrow to keep the {w.headroom:.0%} headroom "
+                "(settings.recommended_headroom) from both ends; the recommended rate is the "
+                "middle of the window, with no room for the rate to drift.")
+    return (f"The recommended rate keeps a headroom of {w.headroom:.0%} of the rate "
+            f"({format_quantity(w.headroom * w.recommended, 'rate', units)}) from every end of "
+            "the window (settings.recommended_headroom; common practice).")
 
 
 def decision_sentence(a: Analysis, units: str = "US") -> str:
-    """The decision in one sentence."""
+    """The decision in a few sentences: the window and the recommended rate, whether the demand
+    is met, and the headroom kept inside every hard limit."""
     from blendq.units import format_quantity
 
     w = a.window
@@ -144,8 +205,14 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
     if w.empty:
         options = window_options(a, units)
         tail = f" Options that could open a window: {'; '.join(options)}." if options else ""
+        drivers = failure_drivers(a, units)
+        driven = f" {' '.join(drivers)}" if drivers else ""
+        demand = a.project.well.demand
+        dem = (f" The demand of {format_quantity(demand, 'rate', units)} cannot be met from "
+               "this well." if demand else "")
         return (f"No pumping rate meets every limit with the {s.margin:.0%} margin at "
-                f"{1 - s.exceedance_probability:.0%} confidence: {w.reason_empty}.{tail}")
+                f"{1 - s.exceedance_probability:.0%} confidence: {w.reason_empty}.{driven}"
+                f"{dem}{tail}")
     parts = [f"{format_quantity(lo, 'rate', units)} and {format_quantity(hi, 'rate', units)}"
              for lo, hi, _, _ in w.intervals]
     rec = format_quantity(w.recommended, "rate", units) if w.recommended is not None else "none"
@@ -157,7 +224,117 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
             f"(with {1 - s.exceedance_probability:.0%} confidence, each limit's judged "
             f"statistic stays below {s.margin:.0%} of the limit in at least "
             f"{1 - s.sample_exceedance_probability:.0%} of samples, and the pumping level "
-            f"above the intake plus submergence).{caveat}")
+            f"above the intake plus submergence). {demand_sentence(a, units)} "
+            f"{headroom_sentence(a, units)}{caveat}")
+
+
+def failure_drivers(a: Analysis, units: str = "US") -> list[str]:
+    """For each analyte whose limit fails at some rate, the lab result that drives the
+    failure: a result the review marks as an error (a gross outlier), else one the fit does not
+    reproduce; where the limit fails at every rate and neither exists, its highest result.
+
+    Returns
+    -------
+    list of str
+        One sentence per analyte, naming the sample, step, value and input row.
+    """
+    w = a.window
+    binding = [c for c in w.criteria if c.kind == "quality" and not np.all(c.ok[w.rates > 0])]
+    everywhere = {c.name.split(" ")[0] for c in binding if not np.any(c.ok[w.rates > 0])}
+    out, seen = [], set()
+    samples = a.project.samples
+    file = a.project.files.get("samples", "samples.csv")
+    for crit in binding:
+        analyte = crit.name.split(" ")[0]
+        if analyte not in a.limits or analyte in seen:
+            continue
+        seen.add(analyte)
+        rows = samples[(samples["analyte"] == analyte) & ~samples["nondetect"].astype(bool)]
+        if rows.empty:
+            continue
+        f = a.qa.findings
+        errors = f[(f["analyte"] == analyte) & (f["severity"] == "error")
+                   & (f["sample_id"] != "")] if len(f) else f
+        res = a.residuals
+        missed = res[res["outlier"] & (res["analyte"] == analyte)] if len(res) else res
+        if len(errors):
+            sid, why = str(errors.iloc[0]["sample_id"]), f"the review's {errors.iloc[0]['rule']} error"
+        elif len(missed):
+            sid, why = str(missed.iloc[0]["sample_id"]).split("+")[0], "a result the fit does not reproduce"
+        elif analyte not in everywhere:
+            continue
+        else:
+            k = rows["value"].astype(float).idxmax()
+            sid, why = str(rows.loc[k, "sample_id"]), "its highest result"
+        row = rows[rows["sample_id"].astype(str) == sid]
+        if row.empty:
+            continue
+        r = row.iloc[0]
+        from blendq.chemistry.analytes import get_analyte
+
+        an = get_analyte(analyte)
+        value = float(an.in_display_unit(float(r["value"])))
+        where = f"{file} row {int(r['source_row'])}" if pd.notna(r["source_row"]) else file
+        out.append(f"The {analyte} failure is driven by sample {sid} (step {r['step']}, "
+                   f"{value:.4g} {an.display_unit}, {where}), {why}; if that result is wrong, "
+                   "record a [[review]] decision in project.toml.")
+    return out
+
+
+def leave_one_step_out(a: Analysis, draws: int | None = None) -> pd.DataFrame:
+    """The window found again without each step's lab samples (the step's hydraulic data stay).
+
+    Shows which steps drive the result: a step whose removal moves an end of the window by much
+    carries that end alone.
+
+    Parameters
+    ----------
+    a : Analysis
+    draws : int, optional
+        Monte Carlo draws of each rerun (default: those of ``a``); the seed is ``a``'s.
+
+    Returns
+    -------
+    DataFrame
+        One row per step with lab samples, the base case first (step ``"none"``): ``step``,
+        ``results_left_out``, ``window_low``, ``window_high`` [m^3/d] (the lowest and highest
+        rates of the window; NaN when empty), ``recommended`` [m^3/d], ``shift_low``,
+        ``shift_high`` [m^3/d] (against the base case), ``note``.
+    """
+    from blendq.errors import BlendqError
+
+    def row(step, n, win, note=""):
+        lo = min((i[0] for i in win.intervals), default=np.nan) if win is not None else np.nan
+        hi = max((i[1] for i in win.intervals), default=np.nan) if win is not None else np.nan
+        rec = np.nan if win is None or win.recommended is None else win.recommended
+        return {"step": step, "results_left_out": n, "window_low": lo, "window_high": hi,
+                "recommended": rec, "note": note or ("" if win is None or not win.empty
+                                                     else "no window")}
+
+    p = a.project
+    rows = [row("none", 0, a.window)]
+    steps = p.samples["step"].astype(str)
+    n_draws = a.draws.n_draws if draws is None else draws
+    for step in dict.fromkeys(steps):
+        keep = steps != step
+        left = p.samples[keep.to_numpy()]
+        # decisions on the samples left out go with them
+        ids = set(left["sample_id"].astype(str))
+        kept = tuple(d for d in p.settings.review_decisions if d["sample"] in ids)
+        sub = replace(p, samples=left, settings=replace(p.settings, review_decisions=kept))
+        try:
+            b = _run(sub, draws=n_draws, seed=a.draws.seed, sample_mode=a.sample_mode)
+            rows.append(row(step, int((~keep).sum()), b.window))
+        except BlendqError as exc:
+            rows.append(row(step, int((~keep).sum()), None, f"no fit: {exc}"))
+            continue
+        if b.window.empty:
+            rows[-1]["note"] = f"no window: {b.window.reason_empty}"
+    out = pd.DataFrame(rows)
+    out["shift_low"] = out["window_low"] - out["window_low"].iloc[0]
+    out["shift_high"] = out["window_high"] - out["window_high"].iloc[0]
+    return out[["step", "results_left_out", "window_low", "window_high", "recommended",
+                "shift_low", "shift_high", "note"]]
 
 
 def richest_source(zones: pd.DataFrame, analyte: str) -> str | None:
@@ -220,3 +397,7 @@ def window_options(a: Analysis, units: str = "US") -> list[str]:
                 out.append(f"redevelop the {worst[1]} (skin {worst[0]:g} in the zone properties)")
             out.append("lower the pump intake if the screen and the pump allow")
     return list(dict.fromkeys(out))
+
+
+#: the pipeline itself, for reruns inside this module (unaffected by wrappers of ``analyse``)
+_run = analyse

@@ -638,7 +638,8 @@ def evaluate(analysis, scenario: Scenario) -> ScenarioResult:
                               w.rate_min, w.rate_max, w.demand, top, level_deep=level_deep,
                               ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
                               extra_criteria=extra,
-                              statistics=compliance_statistics(project, analysis.limits))
+                              statistics=compliance_statistics(project, analysis.limits),
+                              headroom=s.recommended_headroom)
     allowed = intake - w.submergence if top is None else min(intake - w.submergence, top)
     level = np.quantile(pred.pumping_level, 1 - alpha, axis=0)
     y, beyond = pumping_level_yield(rates, level, allowed)

@@ -67,10 +67,18 @@ class Window:
     intervals : list of (low, high, low_reason, high_reason)
         Rates [m^3/d] of each compliant interval and the criterion that binds at each end.
     recommended : float or None
-        Largest compliant rate not above the demand (or the compliant rate nearest the demand).
+        The recommended rate (:func:`recommended_rate`): the largest rate not above the demand
+        that stays ``headroom`` x the rate inside both ends of its interval.
     reason_empty : str
         Why there is no window (empty string when there is one).
     criteria : list of Criterion
+    demand : float or None
+        The well's demand [m^3/d].
+    headroom : float
+        Relative distance [-] kept between the recommended rate and every end of the window.
+    headroom_kept : bool
+        False when no rate of the window keeps the headroom (the window is too narrow); the
+        recommended rate is then the middle of the interval nearest the demand.
     """
 
     rates: np.ndarray
@@ -79,10 +87,24 @@ class Window:
     recommended: float | None
     reason_empty: str
     criteria: list[Criterion] = field(default_factory=list)
+    demand: float | None = None
+    headroom: float = 0.0
+    headroom_kept: bool = True
 
     @property
     def empty(self) -> bool:
         return not self.intervals
+
+    @property
+    def demand_met(self) -> bool | None:
+        """True when the recommended rate reaches the demand (to within half a grid step);
+        None when no demand is given."""
+        if not self.demand:
+            return None
+        if self.recommended is None:
+            return False
+        step = float(np.min(np.diff(self.rates))) if len(self.rates) > 1 else 0.0
+        return bool(self.recommended >= self.demand - 0.5 * step)
 
 
 def rate_grid(fit: FitResult, points: int | None = None, rate_max: float | None = None) -> np.ndarray:
@@ -327,7 +349,8 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
                      demand: float | None = None, top_of_screen: float | None = None,
                      level_quantile: float | None = None, level_deep=None,
                      ratio_rules=(), extra_criteria=(),
-                     statistics: dict[str, Statistic] | None = None) -> Window:
+                     statistics: dict[str, Statistic] | None = None,
+                     headroom: float = 0.0) -> Window:
     """Find the rates that meet every quality and hydraulic criterion.
 
     Parameters
@@ -361,6 +384,9 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
         against a rate when its statistic exceeds margin x limit in more than beta of samples
         (:func:`exceedance`). An analyte without one is judged on the mean (the share of draws
         whose mean exceeds).
+    headroom : float
+        Relative distance [-] the recommended rate keeps from every end of the window
+        (:func:`recommended_rate`).
     """
     rates = pred.rates
     statistics = statistics or {}
@@ -410,17 +436,68 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
         high_reason = _binding(crit, j + 1) if j + 1 < n else "highest rate of the sweep"
         intervals.append((float(rates[k]), float(rates[j]), low_reason or "zero rate", high_reason))
         k = j + 1
-    recommended = None
-    if intervals:
-        good = rates[ok]
-        if demand is not None and np.any(good <= demand):
-            recommended = float(good[good <= demand].max())
-        elif demand is not None:
-            recommended = float(good[np.argmin(np.abs(good - demand))])
-        else:
-            recommended = float(good.max())
+    recommended, kept = recommended_rate(rates, ok, demand, headroom)
     reason = "" if intervals else _why_empty(crit, rates)
-    return Window(rates, ok, intervals, recommended, reason, crit)
+    return Window(rates, ok, intervals, recommended, reason, crit, demand or None,
+                  float(headroom), kept)
+
+
+def recommended_rate(rates, ok, demand: float | None = None,
+                     headroom: float = 0.0) -> tuple[float | None, bool]:
+    """The recommended rate of a window and whether it keeps the headroom.
+
+    A rate r keeps the headroom when r (1 - headroom) and r (1 + headroom) both lie within its
+    compliant interval (between the interval's lowest and highest compliant grid rates), so
+    that the rate can drift by that fraction (meter error, pump wear, a falling water table)
+    without leaving the window. The recommended rate is the largest such rate not above the
+    demand (the smallest when none is below it; the largest of all when no demand is given).
+    When no rate keeps the headroom, it is the middle of the compliant interval nearest the
+    demand (or of the widest) and the headroom is reported as not kept.
+
+    Parameters
+    ----------
+    rates : ndarray (n_rates,) [m^3/d]
+        Rising rate grid.
+    ok : ndarray of bool (n_rates,)
+        Rates meeting every criterion.
+    demand : float, optional [m^3/d]
+    headroom : float
+        Relative distance [-] from every end of the window (``settings.recommended_headroom``;
+        common practice 0.05).
+
+    Returns
+    -------
+    (float or None, bool)
+        The rate [m^3/d] (None when nothing complies) and whether it keeps the headroom.
+    """
+    rates = np.asarray(rates, float)
+    ok = np.asarray(ok, bool) & (rates > 0)
+    if not ok.any():
+        return None, True
+    edges = np.flatnonzero(np.diff(np.r_[0, ok.astype(int), 0]))
+    spans = [(rates[a], rates[b - 1]) for a, b in zip(edges[::2], edges[1::2], strict=True)]
+    inside = np.zeros_like(ok)
+    tol = 1e-12
+    for lo, hi in spans:
+        inside |= (ok & (rates >= lo) & (rates <= hi)
+                   & (rates * (1 - headroom) >= lo * (1 - tol))
+                   & (rates * (1 + headroom) <= hi * (1 + tol)))
+    if inside.any():
+        good = rates[inside]
+        if demand and np.any(good <= demand):
+            return float(good[good <= demand].max()), True
+        if demand:
+            return float(good.min()), True
+        return float(good.max()), True
+    # the window is narrower than the headroom: the middle of the interval nearest the demand
+    if demand:
+        lo, hi = min(spans, key=lambda s: 0.0 if s[0] <= demand <= s[1]
+                     else min(abs(s[0] - demand), abs(s[1] - demand)))
+    else:
+        lo, hi = max(spans, key=lambda s: s[1] - s[0])
+    middle = 0.5 * (lo + hi)
+    compliant = rates[ok]
+    return float(compliant[np.argmin(np.abs(compliant - middle))]), False
 
 
 def _binding(crit: list[Criterion], k: int) -> str:
@@ -525,7 +602,7 @@ def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
         ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
         extra_criteria=measured_exceedances(fit, limits, s.margin if margin is None else margin,
                                             pred.rates),
-        statistics=statistics)
+        statistics=statistics, headroom=s.recommended_headroom)
 
 
 def sweep_table(pred: Prediction, limits: dict[str, Limit], margin: float, interval: float,

@@ -210,7 +210,8 @@ def quality_data(project: Project, sample_use: pd.DataFrame | None = None) -> di
     ----------
     project : Project
     sample_use : DataFrame, optional
-        From the lab review: columns sample_id, used (bool), sigma_factor (float). Samples not
+        From the lab review: columns sample_id (and optionally analyte, for one row per
+        result), used (bool), sigma_factor (float). Samples not
         used are dropped; the others' sigma is multiplied by their factor (before duplicates
         are combined).
     """
@@ -224,9 +225,16 @@ def quality_data(project: Project, sample_use: pd.DataFrame | None = None) -> di
     s = s[s["step"].isin(rate_of)]
     factor = pd.Series(1.0, index=s.index)
     if sample_use is not None and not sample_use.empty:
-        use = sample_use.set_index("sample_id")
-        keep = s["sample_id"].map(use["used"]).fillna(True).astype(bool)
-        factor = s["sample_id"].map(use["sigma_factor"]).fillna(1.0).astype(float)
+        if "analyte" in sample_use.columns:  # one row per result (review decisions)
+            use = sample_use.set_index(["sample_id", "analyte"])
+            pairs = pd.MultiIndex.from_arrays([s["sample_id"].astype(str), s["analyte"]])
+            keep = pd.Series(use["used"].reindex(pairs).to_numpy(), index=s.index)
+            factor = pd.Series(use["sigma_factor"].reindex(pairs).to_numpy(), index=s.index)
+            keep, factor = keep.fillna(True).astype(bool), factor.fillna(1.0).astype(float)
+        else:
+            use = sample_use.set_index("sample_id")
+            keep = s["sample_id"].map(use["used"]).fillna(True).astype(bool)
+            factor = s["sample_id"].map(use["sigma_factor"]).fillna(1.0).astype(float)
         s = s[keep]
         factor = factor[keep]
     out = {}

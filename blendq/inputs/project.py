@@ -236,6 +236,20 @@ class Settings:
     unseen_zone_factor : float
         A zone value the data put no upper limit on is drawn up to this multiple of the
         analyte's largest result or detection limit [-]. Common practice: 3.
+    recommended_headroom : float
+        Relative distance [-] the recommended rate keeps from every end of the operating
+        window, so that a drift of the rate by this fraction (meter error, pump wear, a falling
+        water table) stays inside every hard limit. Common practice: 0.05 (a pump's rate is
+        held and metered to within a few percent).
+    gross_outlier_factor : float
+        A discharge result more than this multiple of every other step's result of its analyte
+        (or less than its inverse), which no blend of the other steps can explain, is an error
+        of the review [-]. Common practice: 10 (an order of magnitude).
+    review_decisions : tuple of dict
+        The reviewer's decisions on samples (``[[review]]`` in project.toml): each has
+        ``sample`` (sample_id), ``analyte`` ("" for every analyte of the sample), ``action``
+        ("exclude", "downweight" or "keep"), ``factor`` (uncertainty multiple of a
+        down-weighted result [-]), ``reason`` and ``entry`` (its index in the file, from 1).
     temporal_cv : dict
         Coefficient of variation [-] of each analyte's concentration from sample to sample at
         a fixed rate, beyond lab error (analyte key -> value; the key "default" for analytes
@@ -272,6 +286,9 @@ class Settings:
     redevelopment_shortfall: float = 0.5
     unresolved_tolerance: float = 0.05
     unseen_zone_factor: float = 3.0
+    recommended_headroom: float = 0.05
+    gross_outlier_factor: float = 10.0
+    review_decisions: tuple = ()
     temporal_cv: dict = field(default_factory=dict)
     prepared_by: str = ""
     reviewed_by: str = ""

@@ -38,7 +38,10 @@ PROJECT_FILE = "project.toml"
 CONDUCTANCE_MODELS = ("auto", "steady", "transient", "given", "flowlog")
 
 #: top-level tables of the project file
-SECTIONS = ("project", "well", "zones", "tables", "settings", "limits", "scenarios")
+SECTIONS = ("project", "well", "zones", "tables", "settings", "limits", "scenarios", "review")
+
+#: what a ``[[review]]`` decision may do with a sample (see blendq.review.decisions)
+REVIEW_ACTIONS = ("exclude", "downweight", "keep")
 
 #: file suffixes a table may have
 TABLE_SUFFIXES = (".csv", ".txt", ".xlsx")
@@ -377,6 +380,10 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
                                             0.0, 1.0)),
         unseen_zone_factor=float(s.number("unseen_zone_factor", d.unseen_zone_factor, 1.0,
                                           None)),
+        recommended_headroom=float(s.number("recommended_headroom", d.recommended_headroom,
+                                            0.0, 0.5)),
+        gross_outlier_factor=float(s.number("gross_outlier_factor", d.gross_outlier_factor,
+                                            1.0, None, True)),
         temporal_cv=_temporal_cv(s),
     )
     s.done()
@@ -474,6 +481,35 @@ def _user_limits(doc: dict, label: str, limits: list[Limit]) -> list[Limit]:
     return limits
 
 
+def _review_decisions(doc: dict, label: str) -> tuple[dict, ...]:
+    """``[[review]]``: the reviewer's decisions on samples (sample, optional analyte, action,
+    factor for a down-weighted result, and the reason, which is required)."""
+    out = []
+    for i, entry in enumerate(_tables_list(doc, "review", label), start=1):
+        s = _Section(entry, f"review[{i}]", label)
+        sample = s.text("sample")
+        if not sample:
+            raise s.error("sample", "is empty; give the sample_id the decision is about")
+        analyte = s.text("analyte", "")
+        if analyte:
+            try:
+                analyte = get_analyte(analyte).key
+            except InputError as err:
+                raise located(err, label, None, f"review[{i}].analyte") from err
+        action = s.text("action")
+        if action not in REVIEW_ACTIONS:
+            raise s.error("action", f'"{action}" is not one of '
+                                    + ", ".join(f'"{a}"' for a in REVIEW_ACTIONS))
+        factor = float(s.number("factor", 3.0 if action == "downweight" else 1.0, 1.0, None))
+        reason = s.text("reason")
+        if not reason:
+            raise s.error("reason", "is empty; say why (a reviewer reads it in the report)")
+        s.done()
+        out.append({"sample": sample, "analyte": analyte, "action": action, "factor": factor,
+                    "reason": reason, "entry": i})
+    return tuple(out)
+
+
 def _scenarios(doc: dict, label: str) -> list[dict]:
     entries, seen = _tables_list(doc, "scenarios", label), {}
     for i, entry in enumerate(entries, start=1):
@@ -560,7 +596,8 @@ def read_project_file(path: str | Path) -> ProjectFile:
     report_fields = _report_fields(head)
     head.done()
     well, zones = _well(doc, label), _zones(doc, label)
-    settings = replace(_settings(doc, units, label), **report_fields)
+    settings = replace(_settings(doc, units, label), **report_fields,
+                       review_decisions=_review_decisions(doc, label))
     limits = _user_limits(doc, label, [lim for s in settings.limit_sets for lim in limit_set(s)])
     return ProjectFile(name, well, zones, settings, limits, _scenarios(doc, label),
                        _table_paths(doc, project_file.parent, label), project_file)

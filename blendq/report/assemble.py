@@ -182,8 +182,9 @@ def at_rate_table(a: Analysis, rate: float, units: str) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
-def sample_use_blocks(a: Analysis) -> list:
-    """What the fit did with the samples the review flagged."""
+def sample_use_blocks(a: Analysis, units: str | None = None) -> list:
+    """What the fit did with the samples the review flagged, the review decisions recorded in
+    the project, and the window without each step's samples (which steps drive the result)."""
     use = a.sample_use
     mode = a.sample_mode
     flagged = use[use["reason"].astype(str) != ""] if len(use) else use
@@ -201,6 +202,48 @@ def sample_use_blocks(a: Analysis) -> list:
                                               "sigma_factor": "Uncertainty x",
                                               "reason": "Flagged for"}),
                             "Use of the flagged samples in the fit."))
+    decisions = a.decisions
+    if len(decisions):
+        t = decisions[["entry", "sample_id", "analyte", "action", "factor", "reason",
+                       "results"]].copy()
+        t["entry"] = t["entry"].map(lambda i: f"review[{i}]")
+        t["analyte"] = t["analyte"].map(lambda v: v or "all")
+        t["factor"] = [f"{f:g}" if act == "downweight" else "-"
+                       for f, act in zip(t["factor"], t["action"], strict=True)]
+        blocks.append(Table(t.rename(columns={
+            "entry": "Decision", "sample_id": "Sample", "analyte": "Analyte",
+            "action": "Action", "factor": "Uncertainty x", "reason": "Reason",
+            "results": "Results"}), "Review decisions recorded in the project ([[review]] in "
+            "project.toml); every command that fits uses them."))
+    else:
+        blocks.append(Paragraph("Review decisions: none recorded in the project."))
+    # which steps drive the result: the window found again without each step's samples
+    from blendq.decide.analysis import leave_one_step_out
+
+    units = units or a.project.settings.display_units
+    loo = leave_one_step_out(a)
+
+    def rate(v):
+        return "-" if not np.isfinite(v) else format_quantity(v, "rate", units)
+
+    def shift(v):
+        return "-" if not np.isfinite(v) else ("+" if v > 0 else "") + format_quantity(
+            v, "rate", units)
+
+    table = pd.DataFrame({
+        "Left out": ["nothing" if s == "none" else f"step {s}" for s in loo["step"]],
+        "Results": loo["results_left_out"].astype(int).astype(str),
+        "Window": [f"{rate(lo)} to {rate(hi)}" if np.isfinite(lo) else "none"
+                   for lo, hi in zip(loo["window_low"], loo["window_high"], strict=True)],
+        "Recommended": [rate(v) for v in loo["recommended"]],
+        "Lower end moves": ["-" if s == "none" else shift(v)
+                            for s, v in zip(loo["step"], loo["shift_low"], strict=True)],
+        "Upper end moves": ["-" if s == "none" else shift(v)
+                            for s, v in zip(loo["step"], loo["shift_high"], strict=True)],
+        "Note": loo["note"]})
+    blocks.append(Table(table, "The operating window found again without each step's lab "
+                               "samples (the step's levels stay): a step whose removal moves "
+                               "an end by much carries that end alone."))
     return blocks
 
 
@@ -548,7 +591,7 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
             Paragraph("Lab and field review: " + "; ".join(qa_lines) + "."),
             Table(qa_table, "Findings of the lab and field review."),
             *( [BulletList(skipped)] if skipped else []),
-            *sample_use_blocks(a),
+            *sample_use_blocks(a, units),
             *( [Paragraph("Not fitted: " + "; ".join(not_fitted) + ".")] if not_fitted else []),
         ), "inputs"),
         Section("Zone estimates", (

@@ -7,7 +7,10 @@ was taken. Times are pandas Timestamps; durations [d]; rates [m^3/d]; volumes [m
 References
 ----------
 USGS National Field Manual for the Collection of Water-Quality Data, chapter A6 (field
-measurements), table 6.0-1 (stabilisation criteria), quoted from memory.
+measurements). The stabilisation criteria used here were not checked against the current
+edition (USGS revised the specific-conductance and pH criteria in 2023, chapters A6.3 and
+A6.4): they are settings (``qa.stable_*``, ``qa.field_readings``), described as common
+practice, that a project sets to its own sampling plan.
 """
 
 from __future__ import annotations
@@ -17,7 +20,8 @@ import pandas as pd
 
 from blendq.review.rules import SRC_COMMON, Outcome, exceeds, fmt, row_number, step_key, text
 
-SRC_NFM = "USGS National Field Manual, chapter A6, table 6.0-1 (from memory)"
+SRC_NFM = ("common practice (settings qa.stable_* and qa.field_readings; after the USGS "
+           "National Field Manual, chapter A6, not checked against its 2023 revision)")
 
 #: field parameters of the ``field`` table, with printable names and units
 FIELD_PARAMETERS: dict[str, tuple[str, str]] = {
@@ -132,7 +136,8 @@ def field_tolerance(parameter: str, median: float, opts: dict) -> float:
 
     References
     ----------
-    USGS National Field Manual, chapter A6, table 6.0-1 (from memory).
+    Common practice, after the USGS National Field Manual, chapter A6 (not checked against the
+    2023 revision of chapters A6.3 and A6.4); each tolerance is a setting.
     """
     if parameter == "temperature":
         return opts["stable_temperature"]

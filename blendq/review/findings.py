@@ -25,9 +25,11 @@ import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
 from blendq.errors import InputError
+from blendq.review import decisions as _decisions
 from blendq.review.field import check_field_stability, check_purge, check_timing, step_schedule
 from blendq.review.holding import check_holding_times
 from blendq.review.ionbalance import check_ion_balance, ion_balance_table
+from blendq.review.outliers import check_gross_outliers
 from blendq.review.rules import (
     FINDING_COLUMNS,
     SEVERITIES,
@@ -56,14 +58,16 @@ QA_DEFAULTS: dict[str, object] = {
     # this multiple of the detection limit compare the absolute difference with the limit
     "duplicate_rpd_limit": 20.0,
     "duplicate_near_limit_factor": 5.0,
-    # ion balance, Standard Methods 1030E (from memory): +-0.2 meq/L for an anion sum of
+    # ion balance acceptance tiers, common practice (not checked in a source; the formula of
+    # Standard Methods 1030E is restated in USGS review code): +-0.2 meq/L for an anion sum of
     # 0-3 meq/L, +-2 % for 3-10, +-5 % for 10-800
     "ion_balance_abs_meq": 0.2,
     "ion_balance_pct_mid": 2.0,
     "ion_balance_pct_high": 5.0,
     # holding times: analyte -> days, overriding blendq.review.holding.HOLDING_TIMES
     "holding_times": {},
-    # field stabilisation, USGS National Field Manual A6 table 6.0-1 (from memory)
+    # field stabilisation, common practice after the USGS National Field Manual chapter A6
+    # (not checked against its 2023 revision of the specific-conductance and pH criteria)
     "field_readings": 5,
     "stable_temperature": 0.2,  # [C]
     "stable_ph": 0.1,  # [-]
@@ -235,6 +239,9 @@ class QAResult:
         The (sample_id, analyte) pairs reviewed.
     ion_balance : DataFrame
         Per-sample cation and anion sums (:func:`~blendq.review.ionbalance.ion_balance_table`).
+    decisions : DataFrame
+        The project's review decisions (:func:`blendq.review.decisions.decision_table`); a
+        finding on a decided sample is an info line that names the decision.
     """
 
     findings: pd.DataFrame
@@ -243,6 +250,13 @@ class QAResult:
     results: pd.DataFrame = field(
         default_factory=lambda: pd.DataFrame(columns=["sample_id", "analyte"]))
     ion_balance: pd.DataFrame = field(default_factory=pd.DataFrame)
+    decisions: pd.DataFrame = field(
+        default_factory=lambda: pd.DataFrame(columns=_decisions.DECISION_COLUMNS))
+
+    def decision_lines(self) -> list[str]:
+        """One line per review decision: "TH2-3 arsenic: excluded (review[1]: why)"."""
+        return [f"{d.sample_id}{' ' + d.analyte if d.analyte else ''}: "
+                f"{_decisions.describe(d._asdict())}" for d in self.decisions.itertuples()]
 
     def worst(self) -> str | None:
         """Most severe finding's severity, or None."""
@@ -271,7 +285,9 @@ class QAResult:
         for rec in self.findings.astype(object).to_dict("records"):
             records.append({k: (None if _missing(v) else _plain_json(v)) for k, v in rec.items()})
         payload = {"counts": self.counts(), "findings": records,
-                   "skipped": [{"rule": r, "reason": why} for r, why in self.skipped]}
+                   "skipped": [{"rule": r, "reason": why} for r, why in self.skipped],
+                   "decisions": [{k: _plain_json(v) for k, v in d.items()}
+                                 for d in self.decisions.to_dict("records")]}
         return json.dumps(payload, indent=2)
 
     def to_csv(self, path: str | Path) -> Path:
@@ -334,6 +350,25 @@ class QAResult:
         return frame.astype({"used": bool, "sigma_factor": float}).set_index(index)
 
 
+def _resolve(findings: pd.DataFrame, table: pd.DataFrame) -> pd.DataFrame:
+    """Findings on a sample the reviewer decided on become info lines naming the decision."""
+    if table.empty or findings.empty:
+        return findings
+    findings = findings.copy()
+    for k, f in findings.iterrows():
+        d = decided(table, str(f["sample_id"]), str(f["analyte"])) if f["sample_id"] else None
+        if d is not None and f["severity"] != "info":
+            findings.at[k, "message"] = (f"{f['message']} (was {f['severity']}; resolved: "
+                                         f"{_decisions.describe(d)})")
+            findings.at[k, "severity"] = "info"
+    rank = [-SEVERITIES.index(s) for s in findings["severity"]]
+    order = np.argsort(np.array(rank, dtype=int), kind="stable")
+    return findings.iloc[order].reset_index(drop=True)
+
+
+decided = _decisions.decided
+
+
 def _missing(value) -> bool:
     try:
         return bool(pd.isna(value))
@@ -380,16 +415,26 @@ def review(project) -> QAResult:
       sampling plans, common practice).
     - ion balance: percent difference 100 (sum cations - sum anions) / (sum cations + sum
       anions) in meq/L outside +-0.2 meq/L (anion sum 0-3 meq/L), +-2 % (3-10), +-5 % (10-800)
-      (warning; Standard Methods 1030E, criteria from memory).
+      (warning; formula of Standard Methods 1030E as restated in USGS review code, a
+      secondary source; the tiers are settings, common practice).
     - holding times: nitrate and nitrite 48 h (nitrate 14 d if chlorinated), nitrate+nitrite
-      28 d with H2SO4, metals 6 months with HNO3 (warning; 40 CFR 136.3 Table II and
-      40 CFR 141.23(k)(2), from memory).
+      28 d with H2SO4, metals 6 months with HNO3 (warning; 40 CFR 136.3 Table II as restated
+      in laboratory and state tables, a secondary source, for nitrate, nitrite,
+      nitrate+nitrite and arsenic; the rest, and 14 d if chlorinated, common practice).
     - field stabilisation: last 5 readings within temperature +-0.2 C, pH +-0.1, specific
       conductance +-5 % (<= 100 uS/cm) or +-3 %, DO +-0.2 mg/L, turbidity +-0.5 FNU or +-10 %
-      (warning; USGS National Field Manual A6 table 6.0-1, from memory).
+      (warning; settings, common practice after the USGS National Field Manual chapter A6,
+      not checked against its 2023 revision).
     - purge volume: fewer than 3 casing volumes pumped before the sample (warning, or info when
       the field parameters were stable; common practice).
     - timing: a sample taken before half of its step had elapsed (warning; common practice).
+    - gross outliers: a discharge result more than ``settings.gross_outlier_factor`` (10)
+      times every other step's result, or below 1/10 of them, which no blend of the other
+      steps explains (error naming the file and row; common practice,
+      :mod:`blendq.review.outliers`).
+
+    A finding on a sample with a review decision (``[[review]]`` in project.toml,
+    :mod:`blendq.review.decisions`) becomes an info line naming the decision.
 
     Raises
     ------
@@ -410,8 +455,12 @@ def review(project) -> QAResult:
     out.extend(field_out)
     out.extend(check_purge(project, samples, schedule, stable, opts))
     out.extend(check_timing(samples, schedule, opts))
+    out.extend(check_gross_outliers(samples, project.settings.gross_outlier_factor,
+                                    project.files.get("samples", "samples.csv")))
+    table = _decisions.decision_table(project.settings.review_decisions, samples)
     return QAResult(
-        findings=findings_frame(out.findings, opts["severity"]),
+        findings=_resolve(findings_frame(out.findings, opts["severity"]), table),
+        decisions=table,
         skipped=out.skipped,
         options=opts,
         results=samples[["sample_id", "analyte"]].drop_duplicates().reset_index(drop=True),

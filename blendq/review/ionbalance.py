@@ -3,7 +3,11 @@
 References
 ----------
 Standard Methods for the Examination of Water and Wastewater, 1030E (checking analyses'
-correctness). Acceptance criteria quoted from memory.
+correctness). The percent difference 100 (sum cations - sum anions) / (sum cations + sum
+anions) is as restated in the USGS water-quality review code and other open code (a secondary
+source). The acceptance tiers (0.2 meq/L; 2 %; 5 %) were not checked in a source: they are
+settings (``qa.ion_balance_abs_meq``, ``qa.ion_balance_pct_mid``, ``qa.ion_balance_pct_high``)
+described as common practice.
 """
 
 from __future__ import annotations
@@ -14,7 +18,8 @@ import pandas as pd
 from blendq.chemistry.analytes import get_analyte
 from blendq.review.rules import Outcome, exceeds, plain_value, row_number
 
-SRC_SM1030E = "Standard Methods 1030E (acceptance criteria from memory)"
+SRC_SM1030E = ("formula: Standard Methods 1030E as restated in USGS water-quality review code "
+               "(secondary); acceptance tiers: common practice (settings qa.ion_balance_*)")
 
 # analytes of a complete major-ion analysis (nitrate, fluoride and nitrite join the sums when
 # present, but their presence alone does not make an ion balance)
@@ -83,7 +88,7 @@ def ion_balance_table(samples: pd.DataFrame) -> pd.DataFrame:
 
 
 def ion_balance_acceptable(cations: float, anions: float, opts: dict) -> tuple[bool, str]:
-    """Standard Methods 1030E acceptance of a cation-anion balance (criteria from memory).
+    """Acceptance of a cation-anion balance (tiers are settings, common practice).
 
     Parameters
     ----------

@@ -47,7 +47,8 @@ LN10 = math.log(10.0)
 #: bounds of Rorabaugh's exponent n
 RORABAUGH_EXPONENT_BOUNDS = (1.0, 3.5)
 
-# Walton (1962) well-condition criteria on Jacob's C, in s^2/ft^5. From memory (not checked
+# Walton (1962) well-condition criteria on Jacob's C, in s^2/ft^5, as a published restatement
+# attributes them to Walton (1962), "based on field experience" (a secondary source, not checked
 # against Bulletin 49 itself): below 5 properly designed and developed; 5 to 10 mild
 # deterioration or clogging; 10 to 40 severe deterioration or clogging; above 40 difficult to
 # restore the well to its original capacity.
@@ -660,7 +661,9 @@ def walton_class(well_loss):
 
     Notes
     -----
-    Thresholds 5, 10 and 40 s^2/ft^5 are from memory (see :data:`WALTON_THRESHOLDS_S2_FT5`);
+    Thresholds 5, 10 and 40 s^2/ft^5 as a published restatement attributes them to Walton
+    (1962), "based on field experience" (a secondary source; see
+    :data:`WALTON_THRESHOLDS_S2_FT5`);
     in SI about 0.53, 1.06 and 4.2 min^2/m^5 (1 s^2/ft^5 = 0.1056 min^2/m^5).
 
     References

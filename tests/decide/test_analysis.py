@@ -162,3 +162,23 @@ def test_missed_levels_are_widened_and_noted(project):
     a = analyse(p, draws=100, seed=3)
     assert any(n.startswith("Pumping levels: the best fit misses them by") for n in a.notes)
     assert not any("did not converge" in n for n in a.notes)
+
+
+def test_leave_one_step_out_keeps_the_decisions_of_the_samples_left():
+    # a [[review]] decision on a sample of the step left out goes with it (no error), the
+    # others stay; each rerun leaves out exactly that step's results
+    from blendq.decide.analysis import leave_one_step_out
+
+    p = load_project(Path(blendq.__file__).parent / "data" / "demo")
+    decision = {"sample": "TH2-2", "analyte": "arsenic", "action": "exclude", "factor": 1.0,
+                "reason": "test", "entry": 1}
+    p = replace(p, settings=replace(p.settings, review_decisions=(decision,)))
+    a = analyse(p, draws=50, seed=1)
+    t = leave_one_step_out(a)
+    assert list(t["step"]) == ["none", "S1", "S2", "S3", "S4", "S5"]
+    assert not t["note"].str.startswith("no fit").any(), t["note"].tolist()
+    counts = p.samples["step"].astype(str).value_counts()
+    assert t.set_index("step").loc["S3", "results_left_out"] == counts["S3"]
+    # the base row is the analysis itself
+    np.testing.assert_allclose(t.loc[0, "window_high"],
+                               max(i[1] for i in a.window.intervals), rtol=0)

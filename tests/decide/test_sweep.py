@@ -432,3 +432,57 @@ def test_lab_error_of_a_compliance_result():
         pytest.approx(0.075, rel=1e-12), "median stated by the lab")
     assert sweep.lab_relative_error(samples, "arsenic", 0.07) == (
         0.07, "default lab uncertainty setting")
+
+
+# --- the recommended rate keeps a headroom inside the window; the demand is weighed ---------
+# Check values by hand on a grid of 0, 10, ..., 1000 with a window of 400-600 and a 5 % headroom
+# (a rate r holds it when 0.95 r and 1.05 r both lie in the window): from the top, r <= 600 /
+# 1.05 = 571.4, so 570 on the grid; from below, r >= 400 / 0.95 = 421.05, so 430.
+
+def _grid_window(lo=400.0, hi=600.0):
+    rates = np.arange(0.0, 1001.0, 10.0)
+    return rates, (rates >= lo) & (rates <= hi)
+
+
+def test_recommended_rate_keeps_the_headroom_from_the_top_end():
+    rates, ok = _grid_window()
+    rec, kept = sweep.recommended_rate(rates, ok, demand=800.0, headroom=0.05)
+    assert kept and rec == pytest.approx(570.0, abs=0)
+    # no headroom: the old rule, the top of the window
+    assert sweep.recommended_rate(rates, ok, 800.0, 0.0) == (600.0, True)
+    # a demand inside the window and far from its ends is recommended as it is
+    assert sweep.recommended_rate(rates, ok, 500.0, 0.05) == (500.0, True)
+
+
+def test_recommended_rate_keeps_the_headroom_from_the_bottom_end():
+    rates, ok = _grid_window()
+    # demand below the window: the smallest rate whose band stays inside, 420
+    rec, kept = sweep.recommended_rate(rates, ok, demand=100.0, headroom=0.05)
+    assert kept and rec == pytest.approx(430.0, abs=0)
+
+
+def test_window_narrower_than_the_headroom_is_reported():
+    rates, ok = _grid_window(500.0, 520.0)
+    rec, kept = sweep.recommended_rate(rates, ok, demand=800.0, headroom=0.05)
+    assert not kept and rec == pytest.approx(510.0, abs=0)
+    assert sweep.recommended_rate(rates, np.zeros_like(ok), 800.0, 0.05) == (None, True)
+
+
+@given(st.floats(0.0, 0.3), st.floats(50.0, 1000.0))
+def test_recommended_rate_is_always_compliant(headroom, demand):
+    rates, ok = _grid_window()
+    rec, kept = sweep.recommended_rate(rates, ok, demand, headroom)
+    assert ok[rates == rec].all()
+    if kept:
+        assert 400.0 * (1 - 1e-12) <= rec * (1 - headroom)
+        assert rec * (1 + headroom) <= 600.0 * (1 + 1e-12)
+
+
+def test_window_says_whether_the_demand_is_met():
+    rates, ok = _grid_window()
+    w = sweep.Window(rates, ok, [(400.0, 600.0, "a", "b")], 570.0, "", [], demand=700.0,
+                     headroom=0.05)
+    assert w.demand_met is False
+    w = replace(w, recommended=500.0, demand=500.0)
+    assert w.demand_met is True
+    assert replace(w, demand=None).demand_met is None

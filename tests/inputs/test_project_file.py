@@ -210,3 +210,43 @@ def test_bad_basis_settings_name_their_key(tmp_path, rest, field, fragment):
     with pytest.raises(InputError, match=fragment) as info:
         read_project_file(_project(tmp_path, rest=rest))
     assert info.value.file == "project.toml" and info.value.field == field
+
+
+def test_review_decisions_and_new_settings(tmp_path):
+    rest = """
+[settings]
+recommended_headroom = 0.1
+gross_outlier_factor = 20
+[[review]]
+sample = "S2"
+analyte = "As"
+action = "exclude"
+reason = "unit error confirmed by the lab"
+[[review]]
+sample = "S3"
+action = "downweight"
+reason = "turbid"
+"""
+    pf = read_project_file(_project(tmp_path, rest=rest))
+    s = pf.settings
+    assert s.recommended_headroom == pytest.approx(0.1, rel=0, abs=0)
+    assert s.gross_outlier_factor == pytest.approx(20.0, rel=0, abs=0)
+    first, second = s.review_decisions
+    assert first == {"sample": "S2", "analyte": "arsenic", "action": "exclude", "factor": 1.0,
+                     "reason": "unit error confirmed by the lab", "entry": 1}
+    assert second["action"] == "downweight" and second["factor"] == pytest.approx(3.0, abs=0)
+    assert second["analyte"] == "" and second["entry"] == 2
+    assert Settings().recommended_headroom == pytest.approx(0.05, abs=0)  # common practice
+
+
+@pytest.mark.parametrize("entry, field, fragment", [
+    ('sample = "S2"\naction = "drop"\nreason = "x"', "review[1].action", '"drop"'),
+    ('sample = "S2"\naction = "exclude"\nreason = ""', "review[1].reason", "say why"),
+    ('sample = "S2"\naction = "exclude"', "review[1].reason", "missing"),
+    ('sample = "S2"\naction = "exclude"\nreason = "x"\nwhy = "y"', "review[1].why", "not a key"),
+])
+def test_bad_review_decisions_name_their_key(tmp_path, entry, field, fragment):
+    with pytest.raises(InputError) as err:
+        read_project_file(_project(tmp_path, rest=f"[[review]]\n{entry}\n"))
+    assert err.value.field == field and err.value.file == "project.toml"
+    assert fragment in err.value.message

@@ -333,3 +333,24 @@ def test_si_report_with_a_level_record(tmp_path):
     assert "Water levels (levels.csv)." in text
     assert "1\u202f363" in text  # step S2, 15.7725 L/s = 1 362.7 m^3/d, in the steps appendix
     assert "Depth [m]" in text  # the sample taken inside the well
+def test_report_lists_review_decisions_and_the_window_without_each_step():
+    from dataclasses import replace
+
+    from blendq.decide.analysis import analyse
+    from blendq.inputs.loader import load_project
+    from blendq.report.assemble import sample_use_blocks
+
+    p = load_project(DEMO)
+    decision = {"sample": "TH2-4", "analyte": "", "action": "downweight", "factor": 2.0,
+                "reason": "turbid purge water", "entry": 1}
+    p = replace(p, settings=replace(p.settings, review_decisions=(decision,)))
+    a = analyse(p, draws=30, seed=2)
+    tables = {b.caption.split(" (")[0].split(":")[0]: b.data for b in sample_use_blocks(a, "SI")
+              if hasattr(b, "data")}
+    dec = tables["Review decisions recorded in the project"]
+    assert dec.iloc[0].tolist() == ["review[1]", "TH2-4", "all", "downweight", "2",
+                                    "turbid purge water", 3]
+    loo = next(v for k, v in tables.items() if k.startswith("The operating window found again"))
+    assert loo["Left out"].tolist() == ["nothing", "step S1", "step S2", "step S3", "step S4",
+                                        "step S5"]
+    assert "m³/d" in " ".join(loo["Window"]) or "m3/d" in " ".join(loo["Window"])

