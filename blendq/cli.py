@@ -184,7 +184,8 @@ def _step_table_lines(table, units: str) -> list[str]:
             return "-"
         return ("+" if v > 0 else "") + format_quantity(v, "rate", units)
 
-    lines = ["Window without each step's lab samples (which steps drive the result):"]
+    lines = ["Window without each step's lab samples (which steps drive the result; each row "
+             f"a run with {table.attrs.get('draws', '')} posterior draws):"]
     for r in table.itertuples(index=False):
         what = "all steps" if r.step == "none" else f"without {r.step} ({r.results_left_out} results)"
         if r.window_low != r.window_low:  # NaN: no window

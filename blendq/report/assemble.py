@@ -243,7 +243,9 @@ def sample_use_blocks(a: Analysis, units: str | None = None) -> list:
         "Note": loo["note"]})
     blocks.append(Table(table, "The operating window found again without each step's lab "
                                "samples (the step's levels stay): a step whose removal moves "
-                               "an end by much carries that end alone."))
+                               "an end by much carries that end alone. Every row, the first "
+                               f"included, is a run with {loo.attrs.get('draws', '')} posterior "
+                               "draws, so the rows compare like with like."))
     return blocks
 
 

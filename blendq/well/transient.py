@@ -163,13 +163,18 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
                 shape = (len(increments),) + (1,) * (np.ndim(g))
                 w_old = unit_response(g, slope, tau[:-1].reshape(shape), t_ref)
                 heads = heads - (np.stack(increments) * w_old).sum(0)
-            st = hydraulics.solve_wellbore_head(np.array([grid_rate[m]]), 1.0 / w_new, heads,
-                                                d if has_d else None)
-            q = st.zone_flow[..., 0, :]
+            if has_d:
+                st = hydraulics.solve_wellbore_head(np.array([grid_rate[m]]), 1.0 / w_new,
+                                                    heads, d)
+                q, hw = st.zone_flow[..., 0, :], st.wellbore_head[..., 0]
+            else:  # linear zones: the closed form of section 2, h_w = (sum G h - Q) / sum G
+                ge = 1.0 / w_new
+                hw = ((ge * heads).sum(-1) - grid_rate[m]) / ge.sum(-1)
+                q = ge * (heads - hw[..., None])
             increments.append(q - last)
             last = q
             if m in read:
-                out_h[(s, read[m])] = st.wellbore_head[..., 0]
+                out_h[(s, read[m])] = hw
                 out_q[(s, read[m])] = q
     keys = list(schedule.level_step)
     return (np.stack([out_h[key] for key in keys], -1),
