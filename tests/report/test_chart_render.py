@@ -72,6 +72,9 @@ def zone_shares(*args, **kwargs):
 
 
 quality.zone_shares = zone_shares
+# a Ctrl-C from a terminal: Python's own handler (a process started in the background by a
+# non-interactive shell inherits SIGINT ignored, and Python then installs none)
+signal.signal(signal.SIGINT, signal.default_int_handler)
 from blendq.cli import main
 
 sys.argv = ["blendq", "report", "--out", out, "--draws", "50", sys.argv[3]]
