@@ -19,7 +19,6 @@ import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte, implied_basis, normalise_basis, to_canonical
 from blendq.errors import InputError
-from blendq.units import parse_unit
 from blendq.inputs.project import TABLE_COLUMNS, Project
 from blendq.inputs.project_file import read_project_file
 from blendq.inputs.tables import (
@@ -30,7 +29,7 @@ from blendq.inputs.tables import (
     read_table,
     split_unit_basis,
 )
-
+from blendq.units import parse_unit
 
 #: a flow log's stated rate may differ from the rate of the step it names by this fraction
 #: [-] (common practice: a step's rate is held and metered to within a few percent)
@@ -44,7 +43,7 @@ def _steps(t: Table) -> pd.DataFrame:
     """The steps in time order when every step has a start (file order otherwise); the
     ``recovered_before`` default (true for the first step, false after) follows that order."""
     out, seen = [], {}
-    for n, (row, get) in enumerate(t.records()):
+    for row, get in t.records():
         step = get("step")
         if step in seen:
             raise t.error(row, "step", f'"{step}" is already the id of row {seen[step]}')

@@ -14,11 +14,12 @@ Conductances from properties (docs/methods.md, section 1):
 
 from __future__ import annotations
 
+from contextlib import contextmanager
 from dataclasses import dataclass, replace
 
 import numpy as np
 
-from blendq.errors import InputError
+from blendq.errors import InputError, ModelError
 from blendq.inputs.project import Project
 from blendq.well import hydraulics, mixing
 
@@ -139,15 +140,29 @@ def property_conductance(project: Project, time: float | None, model: str | None
             if z.storativity is None:
                 raise InputError(f'zone "{z.name}" needs storativity for transient conductance',
                                  file=label, field=f"zones[{i + 1}].storativity")
-            out.append(float(hydraulics.cooper_jacob_conductance(t, z.storativity, time, rw, z.skin)))
+            with _zone_skin(label, i):
+                out.append(float(hydraulics.cooper_jacob_conductance(t, z.storativity, time, rw,
+                                                                     z.skin)))
         else:
             r = project.well.radius_of_influence
             if r is None:
                 raise InputError("steady conductances need well.radius_of_influence (or zone "
                                  "storativity for transient ones)", file=label,
                                  field="well.radius_of_influence")
-            out.append(float(hydraulics.thiem_conductance(t, r, rw, z.skin)))
+            with _zone_skin(label, i):
+                out.append(float(hydraulics.thiem_conductance(t, r, rw, z.skin)))
     return np.array(out)
+
+
+@contextmanager
+def _zone_skin(label: str, i: int):
+    """Turn a conductance made undefined by the zone's skin (a non-positive denominator) into
+    an InputError naming the zone's skin in the project file."""
+    try:
+        yield
+    except ModelError as err:
+        raise InputError(f"makes the conductance of the zone undefined: {err}", file=label,
+                         field=f"zones[{i + 1}].skin") from None
 
 
 def horizon_factor(project: Project, conductance_test_time: float, horizon: float) -> np.ndarray:
@@ -159,13 +174,15 @@ def horizon_factor(project: Project, conductance_test_time: float, horizon: floa
     """
     f = []
     rw = project.well.well_radius
-    for z in project.zones:
+    for i, z in enumerate(project.zones):
         t = z.zone_transmissivity
         if z.conductance is not None or t is None or z.storativity is None:
             f.append(1.0)
             continue
-        g1 = hydraulics.cooper_jacob_conductance(t, z.storativity, conductance_test_time, rw, z.skin)
-        g2 = hydraulics.cooper_jacob_conductance(t, z.storativity, horizon, rw, z.skin)
+        with _zone_skin(project_file_name(project), i):
+            g1 = hydraulics.cooper_jacob_conductance(t, z.storativity, conductance_test_time, rw,
+                                                     z.skin)
+            g2 = hydraulics.cooper_jacob_conductance(t, z.storativity, horizon, rw, z.skin)
         f.append(float(g2 / g1))
     return np.array(f)
 
