@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from blendq.review.rules import SRC_COMMON, Finding, Outcome, fmt, row_number, text
+from blendq.review.rules import SRC_COMMON, Finding, Outcome, fmt, row_number, rows_of, text
 
 #: rules of this module
 RULES = ("zero_rate_samples", "pumping_level_above_static", "sample_below_zones")
@@ -29,7 +29,7 @@ def check_zero_rate_samples(project) -> Outcome:
         return out
     zero = {text(s) for s, q in zip(steps["step"], steps["rate"], strict=True) if q == 0}
     seen = set()
-    for _, row in samples.iterrows():
+    for _, row in rows_of(samples):
         if text(row["step"]) in zero and row["sample_id"] not in seen:
             seen.add(row["sample_id"])
             out.add("error", "zero_rate_samples",
@@ -81,7 +81,7 @@ def check_sample_depths(project) -> Outcome:
         return out
     deepest = max(z.bottom for z in project.zones)
     seen = set()
-    for _, row in samples.iterrows():
+    for _, row in rows_of(samples):
         depth = row["depth"]
         if np.isfinite(depth) and depth > deepest and row["sample_id"] not in seen:
             seen.add(row["sample_id"])

@@ -108,6 +108,12 @@ def plain_value(value):
     return value.item() if isinstance(value, np.generic) else value
 
 
+def rows_of(frame: pd.DataFrame):
+    """(index, row as a dict) of each row of ``frame``: what ``iterrows`` gives for reading
+    cells by name, without building a Series per row (a long lab table has many)."""
+    return zip(frame.index, frame.to_dict("records"), strict=True)
+
+
 def row_number(value) -> int | None:
     try:
         number = float(value)
