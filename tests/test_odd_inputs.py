@@ -20,6 +20,7 @@ from blendq.cli import app
 from blendq.errors import InputError
 from blendq.inputs.loader import load_project
 from blendq.inputs.tables import parse_number
+from blendq.review.findings import review
 
 try:  # Python 3.11+
     import tomllib
@@ -78,6 +79,8 @@ def test_odd_but_valid_input_is_read(name, tmp_path, good):
         assert project.well.name == case["well_name"]
     if "zone_names" in case:
         assert project.zone_names == case["zone_names"]
+    if "note" in case:
+        assert any(case["note"] in note for note in project.notes), project.notes
     if "values" in case:
         spec = case["values"]
         table = getattr(project, spec["table"])
@@ -93,7 +96,9 @@ def test_odd_but_valid_input_is_read(name, tmp_path, good):
 def test_odd_and_invalid_input_is_located(name, tmp_path):
     case = ODD_CASES[name]
     with pytest.raises(InputError) as info:
-        load_project(_laid_over(ODD, name, case, tmp_path))
+        project = load_project(_laid_over(ODD, name, case, tmp_path))
+        assert case.get("stage") == "check", "the loader should have refused it"
+        review(project)
     err = info.value
     assert (err.file, err.row, err.field) == (case["file"], case.get("row"), case.get("field"))
     assert case["text"] in err.message
@@ -116,6 +121,8 @@ def test_check_command_on_corpus(corpus, name, tmp_path):
     if case.get("outcome") == "read":
         assert result.exit_code in (0, 1), result.output
         assert "blendq: error:" not in result.output
+        for rule in case.get("check_rules", []):
+            assert f"] {rule}:" in result.output, result.output
         return
     assert result.exit_code == 2, result.output
     lines = result.output.strip().splitlines()
