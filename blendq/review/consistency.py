@@ -13,7 +13,16 @@ from __future__ import annotations
 
 import numpy as np
 
-from blendq.review.rules import SRC_COMMON, Finding, Outcome, fmt, row_number, rows_of, text
+from blendq.review.rules import (
+    SRC_COMMON,
+    Finding,
+    Outcome,
+    fmt,
+    plain_value,
+    row_number,
+    rows_of,
+    text,
+)
 
 #: rules of this module
 RULES = ("zero_rate_samples", "pumping_level_above_static", "sample_below_zones")
@@ -68,7 +77,7 @@ def check_pumping_levels(project) -> Outcome:
                 severity, "pumping_level_above_static",
                 f"step {step}: pumping level {fmt(level)} m is at or above the static level "
                 f"{fmt(static)} m ({source}); while pumping the level must be deeper",
-                SRC_COMMON, step=text(step), source_row=row_number(row)))
+                SRC_COMMON, step=plain_value(step), source_row=row_number(row)))
     return out
 
 
