@@ -50,6 +50,10 @@ MAX_ZONES = 100
 MAX_DEPTH = 10
 #: most characters in a text value of the project file (names, location, citations)
 MAX_TEXT = 200
+#: most characters in a zone or scenario name (drawn in chart legends and on chart axes)
+MAX_NAME = 40
+#: most characters in the well's name (chart and report titles)
+MAX_WELL_NAME = 80
 #: largest whole number accepted anywhere in the project file (a seed is below 2**63)
 MAX_INTEGER = 2**63 - 1
 
@@ -224,11 +228,20 @@ def _tables_list(doc: dict, key: str, label: str) -> list[dict]:
     return value
 
 
+def _short(s: _Section, key: str, limit: int) -> str:
+    """Text of ``key`` of at most ``limit`` characters (a name drawn in charts)."""
+    text = s.text(key)
+    if len(text) > limit:
+        raise s.error(key, f'"{text[:20]}..." has {len(text)} characters; the limit for this '
+                           f"name is {limit} (it is drawn in chart legends and titles)")
+    return text
+
+
 def _well(doc: dict, label: str) -> Well:
     s = _Section(_table(doc, "well", label), "well", label)
     d = _WELL_DEFAULTS
     well = Well(
-        name=s.text("name"),
+        name=_short(s, "name", MAX_WELL_NAME),
         location=s.text("location", d.location),
         datum=s.text("datum", d.datum),
         well_radius=s.quantity("well_radius", "length"),
@@ -274,7 +287,7 @@ def _zones(doc: dict, label: str) -> list[Zone]:
     zones, where = [], {}
     for i, entry in enumerate(entries, start=1):
         s = _Section(entry, f"zones[{i}]", label)
-        name = s.text("name")
+        name = _short(s, "name", MAX_NAME)
         if not name:
             raise s.error("name", "is empty; give each zone a name")
         if name in where:
@@ -475,6 +488,10 @@ def _scenarios(doc: dict, label: str) -> list[dict]:
         if name in seen:
             raise InputError(f'"{name}" is already the name of scenarios[{seen[name]}]',
                              file=label, field=f"scenarios[{i}].name")
+        if len(name) > MAX_NAME:
+            raise InputError(f'"{name[:20]}..." has {len(name)} characters; the limit for a '
+                             f"scenario name is {MAX_NAME}", file=label,
+                             field=f"scenarios[{i}].name")
         seen[name] = i
     return [dict(e) for e in entries]
 
