@@ -123,6 +123,8 @@ def test_check_command_on_corpus(corpus, name, tmp_path):
         assert "blendq: error:" not in result.output
         for rule in case.get("check_rules", []):
             assert f"] {rule}:" in result.output, result.output
+        if "note" in case:
+            assert case["note"] in result.output, result.output
         return
     assert result.exit_code == 2, result.output
     lines = result.output.strip().splitlines()
