@@ -181,7 +181,7 @@ def check_basis(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
         out.skip("basis_suspect", "no nitrate or nitrite results")
         return out
     declared = {}
-    for i, row in needs.iterrows():
+    for i, row in rows_of(needs):
         analyte = get_analyte(row["analyte"])
         if row["reported_basis"] == "":
             out.add("error", "basis_missing",
@@ -204,14 +204,16 @@ def check_basis(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
         usable = group[(~group["nondetect"]) & (group["value"] > 0) & group["depth"].isna()
                        & group.index.isin(list(declared))]
         rate = np.array([rates.get(k, np.nan) for k in usable["step_key"]])
-        for pos, (i, row) in enumerate(usable.iterrows()):
-            pair = {row["sample_id"], row["duplicate_of"]} - {""}
-            other = ~(usable["sample_id"].isin(pair) | usable["duplicate_of"].isin(pair)).to_numpy()
+        ids, dups = usable["sample_id"].to_numpy(), usable["duplicate_of"].to_numpy()
+        values = usable["value"].to_numpy(float)
+        for pos, (i, row) in enumerate(rows_of(usable)):
+            pair = list({row["sample_id"], row["duplicate_of"]} - {""})
+            other = ~(np.isin(ids, pair) | np.isin(dups, pair))
             near = other & (np.abs(rate - rate[pos]) <= rate_tol * np.fmax(rate, rate[pos]))
             pick = near if near.sum() >= 2 else other
             if pick.sum() < 2:
                 continue
-            ratio = row["value"] / float(np.median(usable["value"].to_numpy()[pick]))
+            ratio = row["value"] / float(np.median(values[pick]))
             where = "at similar rates" if pick is near else "of this analyte"
             if declared[i] == "N" and abs(ratio / factor - 1.0) <= tol:
                 out.add("warning", "basis_suspect",
@@ -287,7 +289,7 @@ def check_qualifiers(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> 
     estimated = set(opts["estimated_flags"])
     nondetect = set(opts["nondetect_flags"])
     rejected = set(opts["rejected_flags"])
-    for _, row in samples.iterrows():
+    for _, row in rows_of(samples):
         flags = parse_flags(row["qualifier"])
         dl = row["detection_limit"]
         name = get_analyte(row["analyte"]).name
