@@ -100,7 +100,7 @@ def main() -> None:
         print("lab table of one well: every row read and reviewed")
         print(f"{'rows':>8} {'check [s]':>10} {'csv [s]':>9} {'ratio':>7}")
         sizes, times = [], []
-        for n in (300, 1_000, 3_000):
+        for n in (3_000, 10_000, 30_000):
             folder = project(tmp / f"own{n}", lab_rows(n, n))
             t, b = check_in_process(folder), baseline(folder)
             sizes.append(n)

@@ -204,11 +204,16 @@ def check_basis(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
         usable = group[(~group["nondetect"]) & (group["value"] > 0) & group["depth"].isna()
                        & group.index.isin(list(declared))]
         rate = np.array([rates.get(k, np.nan) for k in usable["step_key"]])
-        ids, dups = usable["sample_id"].to_numpy(), usable["duplicate_of"].to_numpy()
         values = usable["value"].to_numpy(float)
+        where_named: dict[str, list[int]] = {}  # a sample_id -> rows naming it (id or primary)
+        for pos, (sid, dup) in enumerate(zip(usable["sample_id"], usable["duplicate_of"],
+                                             strict=True)):
+            for name in {sid, dup} - {""}:
+                where_named.setdefault(name, []).append(pos)
         for pos, (i, row) in enumerate(rows_of(usable)):
-            pair = list({row["sample_id"], row["duplicate_of"]} - {""})
-            other = ~(np.isin(ids, pair) | np.isin(dups, pair))
+            other = np.ones(len(usable), bool)
+            for name in {row["sample_id"], row["duplicate_of"]} - {""}:
+                other[where_named.get(name, [])] = False
             near = other & (np.abs(rate - rate[pos]) <= rate_tol * np.fmax(rate, rate[pos]))
             pick = near if near.sum() >= 2 else other
             if pick.sum() < 2:
