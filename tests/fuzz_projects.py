@@ -13,6 +13,7 @@ import csv
 import io
 import json
 import os
+import re
 from pathlib import Path
 
 from hypothesis import strategies as st
@@ -179,7 +180,7 @@ def write_project(folder: Path, files: dict[str, bytes]) -> Path:
 # ("read", None, None) - the project loads like the good one. Used by
 # tests/test_fuzz_classes.py.
 
-_DECIMAL = __import__("re").compile(r"^\d+\.\d+$")
+_DECIMAL = re.compile(r"^\d+\.\d+$")
 
 
 @st.composite
@@ -197,15 +198,9 @@ def decimal_comma_rows(draw):
     rows, _ = _rows(files[rel])
     cells = rows[r]
     cells[c] = cells[c].replace(".", ",")
-    lines[_line_of(lines, rows, r)] = ",".join(cells)
+    lines[r] = ",".join(cells)  # the good tables hold no quoted line breaks: record r = line r
     files[rel] = "\n".join(lines).encode("utf-8")
     return files, ("rejected", rel, None)
-
-
-def _line_of(lines: list[str], rows: list[list[str]], r: int) -> int:
-    """Index in ``lines`` of the r-th CSV record (the good project has no quoted line breaks,
-    so records are lines)."""
-    return r
 
 
 @st.composite
