@@ -13,6 +13,7 @@ import csv
 import io
 import json
 import os
+import re
 from pathlib import Path
 
 from hypothesis import strategies as st
@@ -171,3 +172,133 @@ def write_project(folder: Path, files: dict[str, bytes]) -> Path:
         path.parent.mkdir(parents=True, exist_ok=True)
         path.write_bytes(data)
     return folder
+
+
+# ----------------------------------------------------------------------------- input classes
+# Each strategy below makes the good project odd in one way of a known class and says what
+# must come of it: ("rejected", file, field) - one InputError naming that file and field - or
+# ("read", None, None) - the project loads like the good one. Used by
+# tests/test_fuzz_classes.py.
+
+_DECIMAL = re.compile(r"^\d+\.\d+$")
+
+
+@st.composite
+def decimal_comma_rows(draw):
+    """A decimal point turned into a comma in a comma-separated table (the cell unquoted, so
+    the number splits in two cells and the rest of the row shifts)."""
+    files = dict(BASE)
+    choices = []
+    for rel in TABLES:
+        rows, _ = _rows(files[rel])
+        for r, row in enumerate(rows[1:], 1):
+            choices += [(rel, r, c) for c, cell in enumerate(row) if _DECIMAL.match(cell)]
+    rel, r, c = draw(st.sampled_from(choices))
+    lines = files[rel].decode("utf-8").split("\n")
+    rows, _ = _rows(files[rel])
+    cells = rows[r]
+    cells[c] = cells[c].replace(".", ",")
+    lines[r] = ",".join(cells)  # the good tables hold no quoted line breaks: record r = line r
+    files[rel] = "\n".join(lines).encode("utf-8")
+    return files, ("rejected", rel, None)
+
+
+@st.composite
+def repeated_level_times(draw):
+    """A level reading repeated at the same time: with the same level it is read once (the
+    project loads), with another level it is refused."""
+    files = dict(BASE)
+    lines = files["levels.csv"].decode("utf-8").rstrip("\n").split("\n")
+    r = draw(st.integers(1, len(lines) - 1))
+    time, level = lines[r].split(",")
+    other = draw(st.one_of(st.just(level), st.floats(50.0, 200.0).map(lambda x: f"{x:.2f}")))
+    lines.insert(r + 1, f"{time},{other}")
+    files["levels.csv"] = ("\n".join(lines) + "\n").encode("utf-8")
+    if float(other) == float(level):
+        return files, ("read", None, None)
+    return files, ("rejected", "levels.csv", "level")
+
+
+@st.composite
+def flow_log_rates(draw):
+    """A rate on the pumped flow log (step S3, 350 gpm): within 10 % of the step's rate it is
+    read, beyond it refused."""
+    files = dict(BASE)
+    factor = draw(st.floats(0.0, 3.0))
+    rate = 350.0 * factor
+    text = files["flowlogs.csv"].decode("utf-8").replace("pumped-S3,S3,,",
+                                                         f"pumped-S3,S3,{rate!r},")
+    files["flowlogs.csv"] = text.encode("utf-8")
+    if abs(rate - 350.0) <= 0.1 * 350.0 * (1 - 1e-9):
+        return files, ("read", None, None)
+    if abs(rate - 350.0) <= 0.1 * 350.0 * (1 + 1e-9):
+        return files, ("either", "flowlogs.csv", "rate")  # at the tolerance: rounding decides
+    return files, ("rejected", "flowlogs.csv", "rate")
+
+
+@st.composite
+def shuffled_steps(draw):
+    """The steps table in any row order: read, and sorted back into time order."""
+    files = dict(BASE)
+    lines = files["steps.csv"].decode("utf-8").rstrip("\n").split("\n")
+    body = draw(st.permutations(lines[1:]))
+    files["steps.csv"] = ("\n".join([lines[0], *body]) + "\n").encode("utf-8")
+    return files, ("read", None, None)
+
+
+@st.composite
+def oversized_toml(draw):
+    """A project file at or beyond a size limit: nesting depth, text length, whole-number
+    size, number of zones."""
+    files = dict(BASE)
+    text = files["project.toml"].decode("utf-8")
+    kind = draw(st.sampled_from(["nesting", "text", "integer", "zones"]))
+    if kind == "nesting":
+        depth = draw(st.one_of(st.integers(1, 12), st.integers(13, 5000)))
+        # key depth: scenarios (1) -> entry (2) -> seal (3) -> nested arrays below it
+        text += f'\n[[scenarios]]\nname = "n"\nseal = {"[" * depth}{"]" * depth}\n'
+        outcome = ("rejected", "project.toml", None) if depth + 2 > 10 else ("any", None, None)
+    elif kind == "text":
+        n = draw(st.integers(150, 400))
+        text = text.replace('location = "Quillmarsh well field (invented)"',
+                            f'location = "{"x" * n}"')
+        outcome = ("read", None, None) if n <= 200 else ("rejected", "project.toml",
+                                                         "well.location")
+    elif kind == "integer":
+        digits = draw(st.integers(1, 6000))
+        text = text.replace("seed = 7", f"seed = {'9' * digits}")
+        outcome = (("read", None, None) if int("9" * min(digits, 19)) <= 2**63 - 1 and
+                   digits <= 18 else ("rejected", "project.toml", None))
+    else:
+        n = draw(st.integers(95, 105))
+        zone = ('\n[[zones]]\nname = "Z{i}"\ntop = "{top} ft"\nbottom = "{bottom} ft"\n'
+                'transmissivity = "10 ft2/d"\n')
+        extra = "".join(zone.format(i=i, top=500 + 2 * i, bottom=501 + 2 * i)
+                        for i in range(n - 3))
+        text = text.replace("\n[tables]", extra + "\n[tables]")
+        outcome = ("read", None, None) if n <= 100 else ("rejected", "project.toml", "zones")
+    files["project.toml"] = text.encode("utf-8")
+    return files, outcome
+
+
+@st.composite
+def long_cells(draw):
+    """A header unit or a cell of a given length: refused beyond the stated limits."""
+    files = dict(BASE)
+    n = draw(st.one_of(st.integers(1, 60), st.integers(900, 1100), st.integers(10**4, 10**5)))
+    if draw(st.booleans()):
+        unit = ("m*" * n)[:n].rstrip("*")
+        text = files["levels.csv"].decode("utf-8").replace("level [ft]", f"level [{unit}]")
+        files["levels.csv"] = text.encode("utf-8")
+        return files, (("any", None, None) if len(unit) <= 40
+                       else ("rejected", "levels.csv", None))
+    note = "k" * n
+    text = files["lab/samples.csv"].decode("utf-8").replace("cooled 4 C", note, 1)
+    files["lab/samples.csv"] = text.encode("utf-8")
+    return files, (("read", None, None) if n <= 1000
+                   else ("rejected", "lab/samples.csv", "preservation"))
+
+
+#: every class strategy
+input_classes = st.one_of(decimal_comma_rows(), repeated_level_times(), flow_log_rates(),
+                          shuffled_steps(), oversized_toml(), long_cells())

@@ -20,6 +20,7 @@ from blendq.cli import app
 from blendq.errors import InputError
 from blendq.inputs.loader import load_project
 from blendq.inputs.tables import parse_number
+from blendq.review.findings import review
 
 try:  # Python 3.11+
     import tomllib
@@ -78,6 +79,8 @@ def test_odd_but_valid_input_is_read(name, tmp_path, good):
         assert project.well.name == case["well_name"]
     if "zone_names" in case:
         assert project.zone_names == case["zone_names"]
+    if "note" in case:
+        assert any(case["note"] in note for note in project.notes), project.notes
     if "values" in case:
         spec = case["values"]
         table = getattr(project, spec["table"])
@@ -93,7 +96,9 @@ def test_odd_but_valid_input_is_read(name, tmp_path, good):
 def test_odd_and_invalid_input_is_located(name, tmp_path):
     case = ODD_CASES[name]
     with pytest.raises(InputError) as info:
-        load_project(_laid_over(ODD, name, case, tmp_path))
+        project = load_project(_laid_over(ODD, name, case, tmp_path))
+        assert case.get("stage") == "check", "the loader should have refused it"
+        review(project)
     err = info.value
     assert (err.file, err.row, err.field) == (case["file"], case.get("row"), case.get("field"))
     assert case["text"] in err.message
@@ -116,6 +121,10 @@ def test_check_command_on_corpus(corpus, name, tmp_path):
     if case.get("outcome") == "read":
         assert result.exit_code in (0, 1), result.output
         assert "blendq: error:" not in result.output
+        for rule in case.get("check_rules", []):
+            assert f"] {rule}:" in result.output, result.output
+        if "note" in case:
+            assert case["note"] in result.output, result.output
         return
     assert result.exit_code == 2, result.output
     lines = result.output.strip().splitlines()
@@ -184,3 +193,62 @@ def test_multi_line_cell_gives_one_line_error(tmp_path):
     with pytest.raises(InputError) as info:
         load_project(target)
     assert "\n" not in str(info.value) and "150\\n160" in str(info.value)
+
+
+# ----------------------------------------------------------------------------- step order
+def test_steps_out_of_time_order_give_the_coefficients_of_the_sorted_file(tmp_path):
+    """Shuffled steps without recovered_before: the first step in time starts from rest, so
+    the step-drawdown fit matches the time-ordered file."""
+    from blendq.well.steptest import analyse_step_test
+
+    name = "ok_steps_out_of_time_order_default_recovery"
+    shuffled = load_project(_laid_over(ODD, name, ODD_CASES[name], tmp_path / "a"))
+    ordered_dir = tmp_path / "b"
+    shutil.copytree(US, ordered_dir)
+    lines = (ODD / name / "steps.csv").read_text(encoding="utf-8").splitlines()
+    rows = sorted(lines[1:], key=lambda r: r.split(",")[2])
+    (ordered_dir / "steps.csv").write_text("\n".join([lines[0]] + rows) + "\n", encoding="utf-8")
+    ordered = load_project(ordered_dir)
+    static = 99.0 * 0.3048  # [m], a level above every pumping level of the test
+    for method in ("end of step", "auto"):
+        a = analyse_step_test(shuffled.steps, static, shuffled.levels, method=method)
+        b = analyse_step_test(ordered.steps, static, ordered.levels, method=method)
+        np.testing.assert_allclose(a.jacob.values, b.jacob.values, rtol=1e-12, atol=0.0)
+    assert list(shuffled.steps["recovered_before"]) == [True, False, False, False]
+
+
+# ----------------------------------------------------------------------------- zone skin
+def test_skin_that_makes_a_conductance_undefined_names_the_zone(tmp_path):
+    from blendq.well.model import property_conductance
+
+    target = tmp_path / "p"
+    shutil.copytree(US, target)
+    toml = (target / "project.toml").read_text(encoding="utf-8")
+    # Cooper-Jacob: ln(2.25 T t / (r_w^2 S)) + 2 s <= 0 for s = -30 at any test time
+    (target / "project.toml").write_text(toml.replace("skin = 2.5", "skin = -30"),
+                                         encoding="utf-8")
+    project = load_project(target)
+    with pytest.raises(InputError, match="makes the conductance of the zone undefined") as info:
+        property_conductance(project, time=1.0, model="transient")
+    assert (info.value.file, info.value.field) == ("project.toml", "zones[2].skin")
+    result = runner.invoke(app, ["inflow", str(target)])
+    assert result.exit_code == 2 and "zones[2].skin" in result.output
+
+
+# ----------------------------------------------------------------------------- charts
+def test_names_with_dollars_and_emoji_report_without_warnings(tmp_path):
+    """Zone names with dollar signs are drawn as written (not as mathematics) and emoji that
+    the chart font lacks give no warning: the report run prints nothing on stderr."""
+    import subprocess
+    import sys
+
+    name = "ok_names_with_dollars_and_emoji"
+    folder = _laid_over(ODD, name, ODD_CASES[name], tmp_path)
+    toml = (folder / "project.toml").read_text(encoding="utf-8")
+    (folder / "project.toml").write_text(toml.replace("draws = 500", "draws = 20"),
+                                         encoding="utf-8")
+    run = subprocess.run([sys.executable, "-m", "blendq", "report", str(folder), "--out",
+                          str(tmp_path / "out")], capture_output=True, text=True, timeout=600)
+    assert run.returncode == 0, run.stderr
+    assert run.stderr.strip() == "", run.stderr
+    assert (tmp_path / "out" / "report.pdf").is_file()

@@ -21,12 +21,29 @@ from blendq.chemistry.analytes import get_analyte, implied_basis, normalise_basi
 from blendq.errors import InputError
 from blendq.inputs.project import TABLE_COLUMNS, Project
 from blendq.inputs.project_file import read_project_file
-from blendq.inputs.tables import Table, located, one_line, read_table, split_unit_basis
+from blendq.inputs.tables import (
+    MAX_UNIT,
+    Table,
+    located,
+    one_line,
+    read_table,
+    split_unit_basis,
+)
+from blendq.units import parse_unit
+
+#: a flow log's stated rate may differ from the rate of the step it names by this fraction
+#: [-] (common practice: a step's rate is held and metered to within a few percent)
+FLOWLOG_RATE_TOLERANCE = 0.10
+#: a sample depth more than this multiple of the deepest zone's bottom is refused as a typo
+#: [-] (a plausibility bound: a well's sump is far shorter than its screened depth)
+DEPTH_TYPO_FACTOR = 2.0
 
 
 def _steps(t: Table) -> pd.DataFrame:
+    """The steps in time order when every step has a start (file order otherwise); the
+    ``recovered_before`` default (true for the first step, false after) follows that order."""
     out, seen = [], {}
-    for n, (row, get) in enumerate(t.records()):
+    for row, get in t.records():
         step = get("step")
         if step in seen:
             raise t.error(row, "step", f'"{step}" is already the id of row {seen[step]}')
@@ -49,9 +66,17 @@ def _steps(t: Table) -> pd.DataFrame:
             end = _shifted(t, row, start, duration)
         elif end is not None and duration is not None:
             start = _shifted(t, row, end, -duration)
-        recovered = get("recovered_before")
         out.append([step, rate, start, end, duration, get("pumping_level"),
-                    (n == 0) if recovered is None else recovered, row])
+                    get("recovered_before"), row])
+    if all(r[2] is not None for r in out):
+        out.sort(key=lambda r: r[2])  # stable: equal starts keep the file's order
+        for a, b in zip(out, out[1:], strict=False):
+            if b[3] is not None and a[3] is not None and b[2] < a[3] - pd.Timedelta(seconds=1):
+                raise t.error(b[7], "start", f'"{t.raw(b[7], "start")}" is before the end of '
+                                             f'step "{a[0]}" (row {a[7]}, ends {a[3]}); steps '
+                                             "must not overlap")
+    for n, r in enumerate(out):
+        r[6] = (n == 0) if r[6] is None else r[6]
     return _frame("steps", out)
 
 
@@ -67,25 +92,50 @@ def _shifted(t: Table, row: int, stamp: pd.Timestamp, days: float) -> pd.Timesta
     return moved
 
 
-def _samples(t: Table, steps: dict[str, float]) -> pd.DataFrame:
+def _this_well(t: Table, well: str) -> int:
+    """Keep the rows whose ``well`` cell names ``well`` (case and outer spaces ignored), when
+    the table has a well column; return the number of rows dropped (other wells' rows are
+    counted, not read)."""
+    if "well" not in t.columns:
+        return 0
+    name = well.strip().casefold()
+    keep = {row for row, _ in t.rows if t.raw(row, "well").casefold() == name}
+    if not keep:
+        found = sorted({t.raw(row, "well") for row, _ in t.rows})
+        shown = ", ".join(f'"{w}"' for w in found[:5]) + (", ..." if len(found) > 5 else "")
+        raise t.error(None, "well", f'no row names the well "{well}" (found: {shown})')
+    dropped = len(t.rows) - len(keep)
+    t.keep(keep)
+    return dropped
+
+
+def _samples(t: Table, steps: dict[str, float], deepest: float) -> pd.DataFrame:
     if "unit" not in t.columns and t.unit("value") is None:
         raise t.error(0, "unit", "column is missing; add a unit column or a unit in the value "
                                  'header such as "value [mg/L]"')
-    out, seen = [], {}
+    out, seen, analytes, factors = [], {}, {}, {}
+    header_unit = t.unit("value")
     for row, get in t.records():
         sample_id, step = get("sample_id"), get("step")
         _known_step(t, row, step, steps)
+        name = get("analyte")
         try:
-            analyte = get_analyte(get("analyte"))
+            analyte = analytes[name] if name in analytes else get_analyte(name)
         except InputError as err:
             raise located(err, t.label, row, "analyte", t.raw(row, "analyte")) from err
+        analytes[name] = analyte
         if (sample_id, analyte.key) in seen:
             raise t.error(row, "analyte", f'sample "{sample_id}" already has a {analyte.key} '
                                           f"result in row {seen[sample_id, analyte.key]}")
         seen[sample_id, analyte.key] = row
-        unit_text = get("unit") or t.unit("value")
+        unit_text = get("unit") or header_unit
         if not unit_text:
             raise t.error(row, "unit", "is empty; give the unit of the value")
+        if len(unit_text) > MAX_UNIT:
+            raise t.error(row, "unit", f'"{unit_text[:20]}..." has {len(unit_text):,} '
+                                       f"characters; the limit is {MAX_UNIT}")
+        if header_unit and unit_text != header_unit:
+            _same_unit(t, row, unit_text, header_unit)
         _, unit, unit_basis = split_unit_basis(unit_text)
         basis_text = get("basis") or ""
         named = implied_basis(t.raw(row, "analyte"))
@@ -99,10 +149,7 @@ def _samples(t: Table, steps: dict[str, float]) -> pd.DataFrame:
         if unit_basis and basis_text and _row_basis(t, row, analyte, unit_basis) != basis:
             raise t.error(row, "basis", f'"{basis_text}" disagrees with the unit "{unit_text}"')
         basis_text = basis_text or unit_basis or ""
-        try:
-            factor = to_canonical(1.0, unit, analyte, basis or None)
-        except InputError as err:
-            raise located(err, t.label, row, "unit", unit_text) from err
+        factor = _factor(t, row, analyte, unit, basis, unit_text, factors)
         value, nondetect, dl, uncertainty, reported = _sample_value(t, row, get, factor)
         analyzed, sampled = get("analyzed_at"), get("sampled_at")
         if analyzed is not None and sampled is not None and analyzed < sampled:
@@ -111,6 +158,10 @@ def _samples(t: Table, steps: dict[str, float]) -> pd.DataFrame:
         depth = get("depth")
         if depth is not None and depth < 0:
             raise t.error(row, "depth", f'"{t.raw(row, "depth")}" is above the datum')
+        if depth is not None and depth > DEPTH_TYPO_FACTOR * deepest:
+            raise t.error(row, "depth", f'"{t.raw(row, "depth")}" is more than '
+                                        f"{DEPTH_TYPO_FACTOR:g} times the depth of the deepest "
+                                        f"zone's bottom ({deepest:.4g} m); a typing error?")
         out.append([sample_id, step, analyte.key, value, nondetect, dl, uncertainty,
                     get("qualifier") or "", sampled, analyzed, get("duplicate_of") or "",
                     math.nan if depth is None else depth, get("preservation") or "",
@@ -121,6 +172,34 @@ def _samples(t: Table, steps: dict[str, float]) -> pd.DataFrame:
             raise t.error(r[-1], "duplicate_of", f'"{r[10]}" is not the sample_id of another '
                                                  "sample in this file")
     return _frame("samples", out)
+
+
+def _factor(t: Table, row: int, analyte, unit: str, basis: str, unit_text: str,
+            cache: dict) -> float:
+    """Factor from ``unit`` (on ``basis``) to canonical mg/L, cached per (analyte, unit,
+    basis): a long table repeats a few units."""
+    key = (analyte.key, unit, basis)
+    if key not in cache:
+        try:
+            cache[key] = to_canonical(1.0, unit, analyte, basis or None)
+        except InputError as err:
+            raise located(err, t.label, row, "unit", unit_text) from err
+    return cache[key]
+
+
+def _same_unit(t: Table, row: int, unit_text: str, header_text: str) -> None:
+    """Refuse a row whose unit column names another unit than the value header (a basis
+    written in only one of them is allowed: the header then gives none)."""
+    unit, header = split_unit_basis(unit_text)[1], split_unit_basis(header_text)[1]
+    try:
+        same = unit == header or math.isclose(
+            (1.0 * parse_unit(unit)).to(parse_unit(header)).magnitude, 1.0, rel_tol=1e-9)
+    except Exception:  # noqa: BLE001 - pint: other dimension, or a unit it cannot read
+        same = False
+    if not same:
+        raise t.error(row, "unit", f'"{unit_text}" disagrees with the unit of the value header '
+                                   f'"[{header_text}]"; give the unit in one place or make '
+                                   "them agree")
 
 
 def _row_basis(t: Table, row: int, analyte, text: str | None) -> str:
@@ -192,6 +271,11 @@ def _flowlogs(t: Table, steps: dict[str, float]) -> pd.DataFrame:
                 raise t.error(row, "rate", "is empty and no step is given; give the pumping "
                                            "rate of the log (0 for ambient)")
             rate = steps[step]
+        elif step and abs(rate - steps[step]) > FLOWLOG_RATE_TOLERANCE * steps[step]:
+            raise t.error(row, "rate", f'"{t.raw(row, "rate")}" contradicts the rate of step '
+                                       f'"{step}" ({steps[step]:.6g} m3/d; more than '
+                                       f"{FLOWLOG_RATE_TOLERANCE:.0%} apart); correct the rate "
+                                       "or the step")
         if rate < 0:
             raise t.error(row, "rate", f'"{t.raw(row, "rate")}" is negative')
         first_row, first_rate, first_step = logs.setdefault(log, (row, rate, step))
@@ -209,7 +293,21 @@ def _flowlogs(t: Table, steps: dict[str, float]) -> pd.DataFrame:
 
 
 def _levels(t: Table) -> pd.DataFrame:
-    return _frame("levels", [[get("time"), get("level"), row] for row, get in t.records()])
+    """The level record; a reading repeated at the same time with the same level is read
+    once, with a different level it is refused."""
+    out, seen = [], {}
+    for row, get in t.records():
+        time, level = get("time"), get("level")
+        if time in seen:
+            first_row, first = seen[time]
+            if not math.isclose(level, first, rel_tol=1e-9, abs_tol=1e-9):
+                raise t.error(row, "level", f'"{t.raw(row, "level")}" differs from the reading '
+                                            f'at the same time in row {first_row} '
+                                            f'("{t.raw(first_row, "level")}"); keep one')
+            continue
+        seen[time] = (row, level)
+        out.append([time, level, row])
+    return _frame("levels", out)
 
 
 #: parameter columns of the field table
@@ -296,7 +394,12 @@ def _load(path: str | Path) -> Project:
                       limits=head.limits, steps=steps, scenarios=head.scenarios,
                       folder=head.path.parent, files=files)
     if "samples" in tables:
-        project.samples = _samples(tables["samples"], step_rates)
+        other = _this_well(tables["samples"], head.well.name)
+        if other:
+            project.notes.append(f"{files['samples']}: {other:,} rows of other wells (well "
+                                 "column) counted and not read")
+        deepest = max(z.bottom for z in head.zones)
+        project.samples = _samples(tables["samples"], step_rates, deepest)
     if "flowlogs" in tables:
         project.flowlogs = _flowlogs(tables["flowlogs"], step_rates)
     if "levels" in tables:

@@ -322,6 +322,8 @@ class Project:
     scenarios: list[dict] = field(default_factory=list)
     folder: Path | None = None
     files: dict[str, str] = field(default_factory=dict)
+    #: what reading the files noted (e.g. rows of other wells counted and not read)
+    notes: list[str] = field(default_factory=list)
 
     @property
     def zone_names(self) -> list[str]:

@@ -48,6 +48,19 @@ TABLE_SUFFIXES = (".csv", ".txt", ".xlsx")
 
 _MISSING = object()
 
+#: most zones a project may describe
+MAX_ZONES = 100
+#: deepest nesting of arrays and tables in the project file
+MAX_DEPTH = 10
+#: most characters in a text value of the project file (names, location, citations)
+MAX_TEXT = 200
+#: most characters in a zone or scenario name (drawn in chart legends and on chart axes)
+MAX_NAME = 40
+#: most characters in the well's name (chart and report titles)
+MAX_WELL_NAME = 80
+#: largest whole number accepted anywhere in the project file (a seed is below 2**63)
+MAX_INTEGER = 2**63 - 1
+
 
 @dataclass
 class ProjectFile:
@@ -176,9 +189,39 @@ def _read_toml(path: Path) -> dict:
         raise InputError(f"is not UTF-8 text (byte 0x{err.object[err.start]:02x} at offset "
                          f"{err.start}); save it as UTF-8", file=label) from err
     try:
-        return tomllib.loads(text)
+        doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as err:
         raise InputError(f"is not valid TOML: {err}", file=label) from err
+    except RecursionError:
+        raise InputError(f"is nested too deeply (the limit is {MAX_DEPTH} levels of arrays "
+                         "and tables)", file=label) from None
+    except ValueError:  # Python refuses to read a whole number of more than 4300 digits
+        raise InputError("holds a whole number thousands of digits long; the largest whole "
+                         f"number is {MAX_INTEGER}", file=label) from None
+    _check_sizes(doc, label)
+    return doc
+
+
+def _check_sizes(doc: dict, label: str) -> None:
+    """Refuse nesting deeper than :data:`MAX_DEPTH`, text longer than :data:`MAX_TEXT` and
+    whole numbers beyond :data:`MAX_INTEGER`, naming the key (walked without recursion)."""
+    stack = [(key, value, 1) for key, value in doc.items()]
+    while stack:
+        where, value, depth = stack.pop()
+        if depth > MAX_DEPTH:
+            raise InputError(f"is nested more than {MAX_DEPTH} levels deep", file=label,
+                             field=where)
+        if isinstance(value, dict):
+            stack.extend((f"{where}.{k}", v, depth + 1) for k, v in value.items())
+        elif isinstance(value, list):
+            stack.extend((f"{where}[{i}]", v, depth + 1) for i, v in enumerate(value, 1))
+        elif isinstance(value, str) and len(value) > MAX_TEXT:
+            raise InputError(f'"{value[:30]}..." has {len(value):,} characters; the limit is '
+                             f"{MAX_TEXT}", file=label, field=where)
+        elif isinstance(value, int) and not isinstance(value, bool) and abs(value) > MAX_INTEGER:
+            raise InputError(f"{str(value)[:20]}... ({len(str(abs(value)))} digits) is too large; "
+                             f"the largest whole number is {MAX_INTEGER}", file=label,
+                             field=where)
 
 
 def _tables_list(doc: dict, key: str, label: str) -> list[dict]:
@@ -189,11 +232,20 @@ def _tables_list(doc: dict, key: str, label: str) -> list[dict]:
     return value
 
 
+def _short(s: _Section, key: str, limit: int) -> str:
+    """Text of ``key`` of at most ``limit`` characters (a name drawn in charts)."""
+    text = s.text(key)
+    if len(text) > limit:
+        raise s.error(key, f'"{text[:20]}..." has {len(text)} characters; the limit for this '
+                           f"name is {limit} (it is drawn in chart legends and titles)")
+    return text
+
+
 def _well(doc: dict, label: str) -> Well:
     s = _Section(_table(doc, "well", label), "well", label)
     d = _WELL_DEFAULTS
     well = Well(
-        name=s.text("name"),
+        name=_short(s, "name", MAX_WELL_NAME),
         location=s.text("location", d.location),
         datum=s.text("datum", d.datum),
         well_radius=s.quantity("well_radius", "length"),
@@ -235,10 +287,13 @@ def _zones(doc: dict, label: str) -> list[Zone]:
     if not entries:
         raise InputError("no [[zones]] given; describe at least one screened zone", file=label,
                          field="zones")
+    if len(entries) > MAX_ZONES:
+        raise InputError(f"{len(entries)} [[zones]] given; the limit is {MAX_ZONES}",
+                         file=label, field="zones")
     zones, where = [], {}
     for i, entry in enumerate(entries, start=1):
         s = _Section(entry, f"zones[{i}]", label)
-        name = s.text("name")
+        name = _short(s, "name", MAX_NAME)
         if not name:
             raise s.error("name", "is empty; give each zone a name")
         if name in where:
@@ -466,8 +521,12 @@ def _user_limits(doc: dict, label: str, limits: list[Limit]) -> list[Limit]:
         basis = s.text("basis", basis_in_unit or "")
         try:
             basis = normalise_basis(analyte, basis or None)
+            stated = normalise_basis(analyte, basis_in_unit) if basis_in_unit else basis
         except InputError as err:
             raise located(err, label, None, f"limits[{i}].basis", basis) from err
+        if stated != basis:
+            raise s.error("basis", f'"{entry["basis"]}" disagrees with the basis of the value '
+                                   f'"{text}"; state the basis in one place or make them agree')
         authority = s.text("authority", s.text("name", "user"))
         limit = Limit(analyte.key, number, unit, basis, authority,
                       s.text("kind", "user limit"), s.text("citation", f"{label} [[limits]]"),
@@ -520,6 +579,10 @@ def _scenarios(doc: dict, label: str) -> list[dict]:
         if name in seen:
             raise InputError(f'"{name}" is already the name of scenarios[{seen[name]}]',
                              file=label, field=f"scenarios[{i}].name")
+        if len(name) > MAX_NAME:
+            raise InputError(f'"{name[:20]}..." has {len(name)} characters; the limit for a '
+                             f"scenario name is {MAX_NAME}", file=label,
+                             field=f"scenarios[{i}].name")
         seen[name] = i
     return [dict(e) for e in entries]
 

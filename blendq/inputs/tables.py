@@ -6,6 +6,10 @@ count, so row numbers match the line below the header in any editor). Blank line
 a UTF-8 byte-order mark is ignored, and the delimiter (comma, semicolon or tab) is taken from
 the header line; in a semicolon file a decimal comma (``12,5``) is read as a decimal point.
 Columns the table does not know are ignored. Files are opened for reading only.
+
+Size limits (stated in ``docs/input-files.md``): :data:`MAX_ROWS` data rows, :data:`MAX_CELL`
+characters in a cell, :data:`MAX_HEADER_CELL` in a header cell and :data:`MAX_UNIT` in a unit.
+A larger input is refused with one located line before any slow parsing starts.
 """
 
 from __future__ import annotations
@@ -23,6 +27,15 @@ import pandas as pd
 
 from blendq.errors import InputError
 from blendq.units import parse_unit, to_base
+
+#: most data rows (non-blank lines below the header) a table may hold
+MAX_ROWS = 1_000_000
+#: most characters in one cell of a data row
+MAX_CELL = 1_000
+#: most characters in one header cell ("depth [ft]")
+MAX_HEADER_CELL = 200
+#: most characters in a unit (header brackets or a unit column): units are short words
+MAX_UNIT = 40
 
 #: kinds of cell that carry a unit in the header (a kind of :data:`blendq.units.BASE_UNITS`)
 UNIT_KINDS = ("rate", "length", "time", "temperature", "specific_conductance", "concentration")
@@ -46,7 +59,7 @@ SPECS: dict[str, dict[str, tuple[str, bool, bool]]] = {
         "uncertainty": ("raw", False, False), "qualifier": ("text", False, False),
         "sampled_at": ("date", False, False), "analyzed_at": ("date", False, False),
         "duplicate_of": ("text", False, False), "depth": ("length", False, False),
-        "preservation": ("text", False, False),
+        "preservation": ("text", False, False), "well": ("text", False, False),
     },
     "flowlogs": {
         "log": ("text", True, True), "step": ("text", False, False),
@@ -198,6 +211,10 @@ class Table:
         text = text[1:].strip() if text.startswith("<") else text
         return math.nan if text.lower() in _NO_NUMBER else self.number_text(row, column, text)
 
+    def keep(self, rows: set[int]) -> None:
+        """Keep only the data rows numbered in ``rows`` (rows of other wells are dropped)."""
+        self.rows = [(row, cells) for row, cells in self.rows if row in rows]
+
     def records(self) -> Iterator[tuple[int, Callable[[str], object]]]:
         """Yield (row, get) where ``get(column)`` is the parsed cell or None when empty."""
         for row, _ in self.rows:
@@ -280,8 +297,13 @@ def _csv_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], str]
     return rows, delimiter
 
 
-def _xlsx_rows(path: Path, label: str) -> list[tuple[int, list[str]]]:
-    """(sheet row number, cells as text) of the first worksheet's non-blank rows."""
+def _xlsx_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], set]:
+    """(sheet row number, cells as text) of the first worksheet's non-blank rows, and the
+    (sheet row, column index) of formula cells the workbook holds no computed value for.
+
+    A workbook written by a program that does not calculate (a script, some converters) keeps
+    formulas without their results; such a cell would otherwise read as empty.
+    """
     try:
         import openpyxl
     except ModuleNotFoundError:
@@ -292,13 +314,31 @@ def _xlsx_rows(path: Path, label: str) -> list[tuple[int, list[str]]]:
     except Exception as err:  # openpyxl raises several types for a damaged file
         raise InputError(f"cannot be read as an .xlsx workbook: {err}", file=label) from None
     try:
-        rows = []
+        rows, empty = [], set()
         for number, values in enumerate(book.worksheets[0].iter_rows(values_only=True), 1):
+            if number - len(rows) > MAX_ROWS + 1000:  # blank rows count too
+                raise InputError(f"has more than {MAX_ROWS:,} rows (the limit)", file=label)
             cells = ["" if v is None else v.isoformat(sep=" ") if isinstance(v, datetime)
                      else str(v) for v in values]
+            empty.update((number, i) for i, v in enumerate(values) if v is None)
             if any(c.strip() for c in cells):
                 rows.append((number, cells))
-        return rows
+    finally:
+        book.close()
+    return rows, _uncached_formulas(path, empty) if empty else set()
+
+
+def _uncached_formulas(path: Path, empty: set) -> set:
+    """The cells of ``empty`` (sheet row, column index) that hold a formula."""
+    import openpyxl
+
+    book = openpyxl.load_workbook(path, read_only=True, data_only=False)
+    try:
+        found = set()
+        for number, values in enumerate(book.worksheets[0].iter_rows(values_only=True), 1):
+            found.update((number, i) for i, v in enumerate(values)
+                         if (number, i) in empty and isinstance(v, str) and v.startswith("="))
+        return found
     finally:
         book.close()
 
@@ -322,15 +362,22 @@ def read_table(path: Path, label: str, name: str) -> Table:
         missing, unknown or wrong-dimension unit, or a row with more cells than the header.
     """
     spec = SPECS[name]
+    formulas: set = set()
     if path.suffix.lower() == ".xlsx":
-        lines, delimiter = _xlsx_rows(path, label), ","
+        (lines, formulas), delimiter = _xlsx_rows(path, label), ","
     else:
         lines, delimiter = _csv_rows(path, label)
     if not lines:
         raise InputError("is empty; the first line must name the columns", file=label)
+    if len(lines) > MAX_ROWS + 1:
+        raise InputError(f"has {len(lines) - 1:,} data rows; the limit is {MAX_ROWS:,}",
+                         file=label)
     header_line, header = lines[0]
     columns: dict[str, tuple[int, str | None]] = {}
     for index, cell in enumerate(header):
+        if len(cell) > MAX_HEADER_CELL:
+            raise InputError(f'header cell {index + 1} ("{cell[:30]}...") has {len(cell):,} '
+                             f"characters; the limit is {MAX_HEADER_CELL}", file=label, row=0)
         m = _HEADER.match(cell.strip())
         column, unit = (m.group(1), m.group(2).strip()) if m else (cell.strip(), None)
         column = re.sub(r"[\s\-]+", "_", column.strip().lower())
@@ -350,16 +397,54 @@ def read_table(path: Path, label: str, name: str) -> Table:
             raise InputError(f'required column is missing (expected a header such as '
                              f'"{example}"; found: {found})', file=label, row=0, field=column)
     rows = []
+    names = {index: column for column, (index, _) in columns.items()}
+    widths = [len(cells) for _, cells in lines[1:]]
+    usual = max(set(widths), key=widths.count) if widths else len(header)
     for line, cells in lines[1:]:
         row = line - header_line
+        if max(map(len, cells)) > MAX_CELL:
+            index = next(i for i, c in enumerate(cells) if len(c) > MAX_CELL)
+            raise InputError(f'cell "{cells[index][:30]}..." has {len(cells[index]):,} '
+                             f"characters; the limit is {MAX_CELL:,}", file=label, row=row,
+                             field=names.get(index, f"#{index + 1}"))
+        if delimiter == "," and (len(cells) > len(header) or len(cells) == usual + 1):
+            _decimal_comma(label, row, cells, names, spec, len(header), usual)
         if len(cells) > len(header) and any(c.strip() for c in cells[len(header):]):
             raise InputError(f"has {len(cells)} cells but the header has {len(header)} "
                              "columns", file=label, row=row)
+        for index in names:
+            if (line, index) in formulas:
+                raise InputError("is a formula without a computed value in the workbook (it "
+                                 "was saved by a program that does not calculate); open and "
+                                 "save it in a spreadsheet program, or save the sheet as CSV",
+                                 file=label, row=row, field=names[index])
         rows.append((row, cells))
     if not rows:
         raise InputError("has no data rows (only a header); add rows or remove the table from "
                          "[tables]", file=label)
     return Table(label, columns, rows, spec, decimal_comma=delimiter == ";")
+
+
+_WHOLE = re.compile(r"^[-+]?\d+$")
+_DIGITS = re.compile(r"^\d+$")
+_NOT_NUMERIC = ("text", "date", "flag")
+
+
+def _decimal_comma(label: str, row: int, cells: list[str], names: dict, spec: dict,
+                   width: int, usual: int) -> None:
+    """Refuse a row of a comma-separated file that is wider than the header or than the other
+    rows and holds a whole number followed by a cell of digits in a numeric column: a decimal
+    comma ("14,6") that split one number into two cells and shifted the rest of the row."""
+    for i in range(len(cells) - 1):
+        a, b = cells[i].strip(), cells[i + 1].strip()
+        if i in names and spec[names[i]][0] not in _NOT_NUMERIC and _WHOLE.match(a) \
+                and _DIGITS.match(b):
+            others = f"the header has {width}" if len(cells) > width else f"most rows have {usual}"
+            raise InputError(f'"{a},{b}" looks like a number written with a decimal comma, which '
+                             f"splits the row in a comma-separated file (this row has "
+                             f'{len(cells)} cells, {others}); write "{a}.{b}", quote the cell, '
+                             "or save the file with semicolons", file=label, row=row,
+                             field=names[i])
 
 
 _EXAMPLE = {"rate": "gpm", "length": "ft", "time": "min", "temperature": "degC",
@@ -370,6 +455,8 @@ def _check_header_unit(label: str, column: str, kind: str, unit: str | None) -> 
     def fail(message: str) -> InputError:
         return InputError(message, file=label, row=0, field=column)
 
+    if unit and len(unit) > MAX_UNIT:
+        raise fail(f'unit "{unit[:20]}..." has {len(unit):,} characters; the limit is {MAX_UNIT}')
     if kind in UNIT_KINDS:
         if not unit:
             raise fail(f'needs its unit in brackets, e.g. "{column} [{_EXAMPLE[kind]}]"')

@@ -18,7 +18,16 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from blendq.review.rules import SRC_COMMON, Outcome, exceeds, fmt, row_number, step_key, text
+from blendq.review.rules import (
+    SRC_COMMON,
+    Outcome,
+    exceeds,
+    fmt,
+    row_number,
+    rows_of,
+    step_key,
+    text,
+)
 
 SRC_NFM = ("common practice (settings qa.stable_* and qa.field_readings; after the USGS "
            "National Field Manual, chapter A6, not checked against its 2023 revision)")
@@ -197,13 +206,20 @@ def check_field_stability(samples, field, schedule, opts) -> tuple[Outcome, dict
         out.skip("field_stability", "no field readings")
         return out, stable
     readings = readings_by_step(field, schedule)
+    by_step = {key: group for key, group in readings.groupby("step_key", sort=False)}
     need = opts["field_readings"]
-    for sid, s in sample_table(samples).iterrows():
-        row = pd.Series({"sample_id": sid, "step": s["step"], "source_row": s["source_row"]})
-        window = readings[readings["step_key"] == s["step_key"]]
-        if pd.notna(s["sampled_at"]):
-            window = window[~(window["time"] > s["sampled_at"])]
-        window = window.sort_values("time", kind="stable", na_position="first").tail(need)
+    windows: dict = {}  # samples of one step at one time share their readings (a long table)
+    for sid, s in rows_of(sample_table(samples)):
+        row = {"sample_id": sid, "step": s["step"], "source_row": s["source_row"]}
+        key = (s["step_key"], s["sampled_at"])
+        if key not in windows:
+            window = by_step.get(s["step_key"], readings.iloc[:0])
+            if pd.notna(s["sampled_at"]):
+                window = window[~(window["time"] > s["sampled_at"])]
+            window = window.sort_values("time", kind="stable", na_position="first").tail(need)
+            windows[key] = (window, assess_stability(window, opts) if len(window) >= need
+                            else None)
+        window, assessed = windows[key]
         if len(window) < need:
             stable[sid] = False
             out.add("warning", "field_readings_few",
@@ -211,7 +227,7 @@ def check_field_stability(samples, field, schedule, opts) -> tuple[Outcome, dict
                     f"sample in step {s['step_key']}; stabilisation needs {need} successive "
                     "readings", SRC_NFM, row, analyte="")
             continue
-        unstable, short = assess_stability(window, opts)
+        unstable, short = assessed
         stable[sid] = not unstable and not short
         last = row_number(window["source_row"].iloc[-1])
         row["source_row"] = last if last is not None else row["source_row"]
@@ -305,18 +321,21 @@ def check_purge(project, samples, schedule, stable: dict[str, bool], opts) -> Ou
         return out
     radius = opts["casing_radius"] or project.well.well_radius
     volume = float(casing_volume(radius, column))
-    no_times = []
-    for sid, s in sample_table(samples).iterrows():
+    no_times, volumes = [], {}
+    for sid, s in rows_of(sample_table(samples)):
         if s["step_key"] not in schedule.index:
             continue
-        pumped, timed = pumped_volume(schedule, s["step_key"], s["sampled_at"])
+        key = (s["step_key"], s["sampled_at"])
+        if key not in volumes:  # samples of one step at one time (a long table)
+            volumes[key] = pumped_volume(schedule, s["step_key"], s["sampled_at"])
+        pumped, timed = volumes[key]
         if not np.isfinite(pumped):
             no_times.append(sid)
             continue
         n = pumped / volume
         if not exceeds(opts["casing_volumes_min"], n):
             continue
-        row = pd.Series({"sample_id": sid, "step": s["step"], "source_row": s["source_row"]})
+        row = {"sample_id": sid, "step": s["step"], "source_row": s["source_row"]}
         basis = "" if timed else " (sample taken as at the end of its step)"
         msg = (f"{fmt(pumped)} m^3 pumped before the sample{basis} is {n:.2f} casing volumes "
                f"of {fmt(volume)} m^3 (radius {fmt(radius)} m, water column {fmt(column)} m "
@@ -344,8 +363,8 @@ def check_timing(samples, schedule, opts) -> Outcome:
         return out
     share_min = opts["early_sample_share"]
     untimed = 0
-    for sid, s in table.iterrows():
-        row = pd.Series({"sample_id": sid, "step": s["step"], "source_row": s["source_row"]})
+    for sid, s in rows_of(table):
+        row = {"sample_id": sid, "step": s["step"], "source_row": s["source_row"]}
         if s["step_key"] not in schedule.index:
             out.add("error", "step_unknown",
                     f'sample names step "{s["step_key"]}", which is not in the steps table '

@@ -25,6 +25,7 @@ import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
 from blendq.errors import InputError
+from blendq.review import consistency
 from blendq.review import decisions as _decisions
 from blendq.review.field import check_field_stability, check_purge, check_timing, step_schedule
 from blendq.review.holding import check_holding_times
@@ -92,6 +93,16 @@ QA_DEFAULTS: dict[str, object] = {
     "severity": {},
 }
 
+#: every rule the review can report (names for ``qa.severity`` overrides)
+RULES: tuple[str, ...] = (
+    "basis_missing", "basis_invalid", "basis_suspect", "units_mixed", "bases_mixed",
+    "nondetect_no_limit", "nondetect", "nondetect_flag_on_detect", "rejected_value",
+    "estimated_value", "below_limit_unflagged", "qualifier_unknown", "duplicate_unmatched",
+    "duplicate_step", "duplicate_rpd", "ion_balance", "ion_balance_incomplete", "holding_time",
+    "holding_time_order", "holding_time_unknown", "preservation", "field_readings_few",
+    "field_stability", "purge_volume", "step_unknown", "early_sample", "late_sample",
+) + consistency.RULES
+
 _FLAG_KEYS = ("estimated_flags", "nondetect_flags", "rejected_flags")
 _LENGTH_KEYS = ("casing_radius", "static_level")
 _POSITIVE_KEYS = ("basis_ratio_tolerance", "duplicate_rpd_limit", "duplicate_near_limit_factor",
@@ -142,6 +153,11 @@ def qa_options(qa: dict | None) -> dict:
             if not isinstance(value, dict) or any(v not in SEVERITIES for v in value.values()):
                 raise InputError(f"{value!r} is not a map of rule to severity (one of "
                                  f"{', '.join(SEVERITIES)})", field=where)
+            for rule in value:
+                if rule not in RULES:
+                    close = [r for r in RULES if r.startswith(rule[:4])] or list(RULES)
+                    raise InputError(f'"{rule}" is not a rule of the review (did you mean '
+                                     f'{", ".join(close[:5])}?)', field=f"{where}.{rule}")
             opts[key] = dict(value)
         elif key == "field_readings":
             if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 2:
@@ -435,18 +451,30 @@ def review(project) -> QAResult:
 
     A finding on a sample with a review decision (``[[review]]`` in project.toml,
     :mod:`blendq.review.decisions`) becomes an info line naming the decision.
+    - consistency (:mod:`blendq.review.consistency`): samples at a step of rate zero (error);
+      a pumping level at or above the static level (error against the well's static level,
+      warning against the mean of the zones'); a sample below the deepest zone (warning).
 
     Raises
     ------
     InputError
         For a bad QA option.
     """
-    opts = qa_options(project.settings.qa)
+    try:
+        opts = qa_options(project.settings.qa)
+    except InputError as err:  # the options come from the project file's [settings.qa]
+        label = project.files.get("project", "project.toml") if project.files else None
+        raise InputError(err.message, file=err.file or label,
+                         field=f"settings.{err.field}" if err.field else "settings.qa") from None
     samples = prepare_samples(project.samples)
     out = Outcome()
+    out.skipped.extend(("rows", note) for note in getattr(project, "notes", []))
+    for check in (consistency.check_zero_rate_samples, consistency.check_pumping_levels,
+                  consistency.check_sample_depths):
+        out.extend(check(project))
     if samples.empty:
         out.skip("all", "no samples")
-        return QAResult(findings_frame([]), out.skipped, opts)
+        return QAResult(findings_frame(out.findings, opts["severity"]), out.skipped, opts)
     schedule = step_schedule(project.steps)
     for rule in (check_basis, check_units, check_qualifiers, check_duplicates,
                  check_ion_balance, check_holding_times):

@@ -16,7 +16,7 @@ import re
 import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
-from blendq.review.rules import Outcome
+from blendq.review.rules import Outcome, rows_of
 
 SRC_HOLD = ("40 CFR 136.3 Table II as restated in laboratory and state tables (secondary) for "
             "nitrate, nitrite, nitrate+nitrite and arsenic; other entries common practice "
@@ -85,7 +85,7 @@ def check_holding_times(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) 
                 + ", ".join(dict.fromkeys(group["analyte"])), SRC_HOLD, group.iloc[0],
                 analyte="")
     no_acid: dict[tuple[str, str], list] = {}
-    for _, row in checkable[timed].iterrows():
+    for _, row in rows_of(checkable[timed]):
         days_allowed, what = holding_time(row["analyte"], row["preservation"], opts)
         elapsed = (row["analyzed_at"] - row["sampled_at"]) / pd.Timedelta(days=1)
         name = get_analyte(row["analyte"]).name

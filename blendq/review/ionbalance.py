@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
-from blendq.review.rules import Outcome, exceeds, plain_value, row_number
+from blendq.review.rules import Outcome, exceeds, plain_value, row_number, rows_of
 
 SRC_SM1030E = ("formula: Standard Methods 1030E as restated in USGS water-quality review code "
                "(secondary); acceptance tiers: common practice (settings qa.ion_balance_*)")
@@ -58,14 +58,18 @@ def ion_balance_table(samples: pd.DataFrame) -> pd.DataFrame:
     Standard Methods for the Examination of Water and Wastewater, 1030E.
     """
     majors = set(MAJOR_CATIONS) | set(MAJOR_ANIONS)
+    groups: dict = {}  # sample_id -> its results, in order of first appearance
+    for r in samples[["sample_id", "analyte", "nondetect", "value", "step",
+                      "source_row"]].to_dict("records"):
+        groups.setdefault(r["sample_id"], []).append(r)
     rows = []
-    for sid, group in samples.groupby("sample_id", sort=False):
-        present = set(group["analyte"])
+    for sid, group in groups.items():
+        present = {r["analyte"] for r in group}
         if not present & majors:
             continue
         skip_alk = bool(present & {"bicarbonate", "carbonate"})
         cat = an = 0.0
-        for _, r in group.iterrows():
+        for r in group:
             analyte = get_analyte(r["analyte"])
             if analyte.charge == 0 or (skip_alk and analyte.key == "alkalinity"):
                 continue
@@ -77,11 +81,12 @@ def ion_balance_table(samples: pd.DataFrame) -> pd.DataFrame:
                 an += meq
         missing = [" or ".join(need) for need in _REQUIRED_MAJORS if not present & set(need)]
         total = cat + an
-        rows.append({"sample_id": sid, "step": plain_value(group["step"].iloc[0]),
+        first_rows = [row_number(r["source_row"]) for r in group]
+        rows.append({"sample_id": sid, "step": plain_value(group[0]["step"]),
                      "cations": cat, "anions": an, "difference": cat - an,
                      "percent_difference": 100.0 * (cat - an) / total if total > 0 else np.nan,
                      "missing": ", ".join(missing),
-                     "source_row": row_number(group["source_row"].min())})
+                     "source_row": min((x for x in first_rows if x is not None), default=None)})
     cols = ["sample_id", "step", "cations", "anions", "difference", "percent_difference",
             "missing", "source_row"]
     return pd.DataFrame(rows, columns=cols).set_index("sample_id")
@@ -120,8 +125,8 @@ def check_ion_balance(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) ->
     if table.empty:
         out.skip("ion_balance", "major ions not analysed")
         return out
-    for sid, r in table.iterrows():
-        row = pd.Series({"sample_id": sid, "step": r["step"], "source_row": r["source_row"]})
+    for sid, r in rows_of(table):
+        row = {"sample_id": sid, "step": r["step"], "source_row": r["source_row"]}
         if r["missing"]:
             out.add("info", "ion_balance_incomplete",
                     f"no ion balance: major ions missing ({r['missing']})", SRC_SM1030E, row,

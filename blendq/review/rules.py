@@ -108,6 +108,12 @@ def plain_value(value):
     return value.item() if isinstance(value, np.generic) else value
 
 
+def rows_of(frame: pd.DataFrame):
+    """(index, row as a dict) of each row of ``frame``: what ``iterrows`` gives for reading
+    cells by name, without building a Series per row (a long lab table has many)."""
+    return zip(frame.index, frame.to_dict("records"), strict=True)
+
+
 def row_number(value) -> int | None:
     try:
         number = float(value)
@@ -175,7 +181,7 @@ def check_basis(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
         out.skip("basis_suspect", "no nitrate or nitrite results")
         return out
     declared = {}
-    for i, row in needs.iterrows():
+    for i, row in rows_of(needs):
         analyte = get_analyte(row["analyte"])
         if row["reported_basis"] == "":
             out.add("error", "basis_missing",
@@ -198,14 +204,21 @@ def check_basis(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
         usable = group[(~group["nondetect"]) & (group["value"] > 0) & group["depth"].isna()
                        & group.index.isin(list(declared))]
         rate = np.array([rates.get(k, np.nan) for k in usable["step_key"]])
-        for pos, (i, row) in enumerate(usable.iterrows()):
-            pair = {row["sample_id"], row["duplicate_of"]} - {""}
-            other = ~(usable["sample_id"].isin(pair) | usable["duplicate_of"].isin(pair)).to_numpy()
+        values = usable["value"].to_numpy(float)
+        where_named: dict[str, list[int]] = {}  # a sample_id -> rows naming it (id or primary)
+        for pos, (sid, dup) in enumerate(zip(usable["sample_id"], usable["duplicate_of"],
+                                             strict=True)):
+            for name in {sid, dup} - {""}:
+                where_named.setdefault(name, []).append(pos)
+        for pos, (i, row) in enumerate(rows_of(usable)):
+            other = np.ones(len(usable), bool)
+            for name in {row["sample_id"], row["duplicate_of"]} - {""}:
+                other[where_named.get(name, [])] = False
             near = other & (np.abs(rate - rate[pos]) <= rate_tol * np.fmax(rate, rate[pos]))
             pick = near if near.sum() >= 2 else other
             if pick.sum() < 2:
                 continue
-            ratio = row["value"] / float(np.median(usable["value"].to_numpy()[pick]))
+            ratio = row["value"] / float(np.median(values[pick]))
             where = "at similar rates" if pick is near else "of this analyte"
             if declared[i] == "N" and abs(ratio / factor - 1.0) <= tol:
                 out.add("warning", "basis_suspect",
@@ -281,7 +294,7 @@ def check_qualifiers(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> 
     estimated = set(opts["estimated_flags"])
     nondetect = set(opts["nondetect_flags"])
     rejected = set(opts["rejected_flags"])
-    for _, row in samples.iterrows():
+    for _, row in rows_of(samples):
         flags = parse_flags(row["qualifier"])
         dl = row["detection_limit"]
         name = get_analyte(row["analyte"]).name

@@ -14,6 +14,7 @@ Conductances from properties (docs/methods.md, section 1):
 
 from __future__ import annotations
 
+from contextlib import contextmanager
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -206,15 +207,29 @@ def property_conductance(project: Project, time: float | None, model: str | None
             if z.storativity is None:
                 raise InputError(f'zone "{z.name}" needs storativity for transient conductance',
                                  file=label, field=f"zones[{i + 1}].storativity")
-            out.append(float(hydraulics.cooper_jacob_conductance(t, z.storativity, time, rw, z.skin)))
+            with _zone_skin(label, i):
+                out.append(float(hydraulics.cooper_jacob_conductance(t, z.storativity, time, rw,
+                                                                     z.skin)))
         else:
             r = project.well.radius_of_influence
             if r is None:
                 raise InputError("steady conductances need well.radius_of_influence (or zone "
                                  "storativity for transient ones)", file=label,
                                  field="well.radius_of_influence")
-            out.append(float(hydraulics.thiem_conductance(t, r, rw, z.skin)))
+            with _zone_skin(label, i):
+                out.append(float(hydraulics.thiem_conductance(t, r, rw, z.skin)))
     return np.array(out)
+
+
+@contextmanager
+def _zone_skin(label: str, i: int):
+    """Turn a conductance made undefined by the zone's skin (a non-positive denominator) into
+    an InputError naming the zone's skin in the project file."""
+    try:
+        yield
+    except ModelError as err:
+        raise InputError(f"makes the conductance of the zone undefined: {err}", file=label,
+                         field=f"zones[{i + 1}].skin") from None
 
 
 def zone_conductance_models(project: Project, model: str | None = None) -> list[str]:
@@ -295,9 +310,10 @@ def horizon_scaling(project: Project, conductance_test_time: float,
                          "(assumed)")
             assumed.append(i)
         else:
-            g1 = hydraulics.cooper_jacob_conductance(t, z.storativity, conductance_test_time, rw,
-                                                     z.skin)
-            g2 = hydraulics.cooper_jacob_conductance(t, z.storativity, horizon, rw, z.skin)
+            with _zone_skin(project_file_name(project), i):
+                g1 = hydraulics.cooper_jacob_conductance(t, z.storativity,
+                                                         conductance_test_time, rw, z.skin)
+                g2 = hydraulics.cooper_jacob_conductance(t, z.storativity, horizon, rw, z.skin)
             f.append(float(g2 / g1))
             basis.append("transient (Cooper-Jacob ratio)")
     return HorizonScaling(np.array(f, float), basis, assumed)

@@ -324,11 +324,17 @@ def test_basis_in_unit_cell_and_value_header_unit(tmp_path):
         "a,S1,nitrate,8.0,mg/L as N,,x,y,,\n"
         "b,S1,nitrate,8.0,mg/L as N,NO3-N,,,,\n"  # same basis, other spelling
         "c,S1,arsenic,0.006,,,,,,\n"  # unit from the value header
-        "d,S1,chloride,2,meq/L,,,,,\n"))
-    np.testing.assert_allclose(samples["value"].iloc[:3], [8.0, 8.0, 0.006], rtol=1e-12)
-    # 2 meq/L of chloride x 35.45 mg/meq (IUPAC 2022 atomic weight of Cl, charge 1)
-    assert samples["value"].iloc[3] == pytest.approx(2 * 35.45, rel=1e-4)
+        "d,S1,chloride,2000,milligram / liter,,,,,\n"))  # the header's unit, other spelling
+    np.testing.assert_allclose(samples["value"], [8.0, 8.0, 0.006, 2000.0], rtol=1e-12)
     assert list(samples["reported_basis"].iloc[:2]) == ["N", "NO3-N"]
+
+
+@pytest.mark.parametrize("unit", ["meq/L", "ug/L", "mg/kg"])
+def test_unit_column_that_disagrees_with_value_header(tmp_path, unit):
+    with pytest.raises(InputError, match="disagrees with the unit of the value header") as info:
+        _with_samples(tmp_path, "sample_id,step,analyte,value [mg/L],unit\n"
+                                f"a,S1,chloride,2,mg/L\nb,S1,chloride,2,{unit}\n")
+    assert (info.value.file, info.value.row, info.value.field) == ("lab/samples.csv", 2, "unit")
 
 
 def test_basis_that_disagrees_with_unit_cell(tmp_path):

@@ -23,6 +23,7 @@ import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
 from blendq.errors import InputError
+from blendq.report.charts import plain_text
 from blendq.units import DISPLAY_UNITS, display_unit_label, from_base, significant
 
 if TYPE_CHECKING:
@@ -376,7 +377,7 @@ def quality_vs_rate(pred: Prediction, window: Window | None, limits: dict[str, L
     axes[-1, 0].set_xlim(float(x.min()), float(x.max()))
     _title(fig, title or "Discharge quality against pumping rate", window, units)
     _figure_legend(fig, axes[:, 0], ncols=2)
-    return fig
+    return plain_text(fig)
 
 
 def zone_shares(pred: Prediction, zone_names: list[str], window: Window | None = None,
@@ -448,7 +449,7 @@ def zone_shares(pred: Prediction, zone_names: list[str], window: Window | None =
                loc="outside lower center", ncols=1 if nz > 3 else 2, fontsize=8,
                frameon=False)
     _title(fig, title or "Share of each zone in the discharge", window, units)
-    return fig
+    return plain_text(fig)
 
 
 def pumping_level(pred: Prediction, project: Project, window: Window | None = None,
@@ -555,7 +556,7 @@ def pumping_level(pred: Prediction, project: Project, window: Window | None = No
     ax.set_ylabel(f"depth to water below {well.datum} [{depth_label}]")
     _title(fig, title or "Pumping level against pumping rate", window, units)
     _figure_legend(fig, axes, ncols=2)
-    return fig
+    return plain_text(fig)
 
 
 def zone_estimates(zone_table: pd.DataFrame, analytes: list[str] | None = None,
@@ -632,7 +633,7 @@ def zone_estimates(zone_table: pd.DataFrame, analytes: list[str] | None = None,
     axes[0, 0].set_ylabel("zone (top to bottom)")
     fig.suptitle(title or "Estimated water quality of each zone", fontsize=10.5)
     _figure_legend(fig, axes[0], ncols=2)
-    return fig
+    return plain_text(fig)
 
 
 def save_figure(fig: Figure, path_stem: str | Path, dpi: int = 150) -> list[Path]:

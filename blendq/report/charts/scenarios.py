@@ -20,6 +20,7 @@ import numpy as np
 
 from blendq.chemistry.analytes import get_analyte
 from blendq.errors import InputError
+from blendq.report.charts import plain_text
 from blendq.report.charts.quality import (
     BLACK,
     BLUE,
@@ -169,7 +170,7 @@ def scenario_chart(comparison: Comparison, limits: dict[str, Limit], units: str 
     extra = _strip_legend_handles()
     fig.legend(handles + [h for h, _ in extra], labels + [lab for _, lab in extra],
                loc="outside lower center", ncols=2, fontsize=8, frameon=False)
-    return fig
+    return plain_text(fig)
 
 
 def _free_side(curves, y: float, va: str, top: float, width: float) -> float:

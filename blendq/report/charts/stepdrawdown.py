@@ -26,6 +26,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from blendq.errors import InputError
+from blendq.report.charts import plain_text
 from blendq.units import DISPLAY_UNITS, Q_, display_unit_label, from_base, significant
 
 if TYPE_CHECKING:
@@ -164,7 +165,7 @@ def specific_drawdown_chart(result: StepDrawdownResult, units: str = "US",
     ax.set_ylabel(f"specific drawdown s/Q [{SPECIFIC_DRAWDOWN_LABEL[units]}]", fontsize=9)
     ax.legend(fontsize=8, frameon=False, loc="upper left")
     _titles(fig, ax, "Specific drawdown against rate", _caption(result, units))
-    return fig
+    return plain_text(fig)
 
 
 def drawdown_rate_chart(result: StepDrawdownResult, units: str = "US",
@@ -221,7 +222,7 @@ def drawdown_rate_chart(result: StepDrawdownResult, units: str = "US",
     ax.set_ylabel(f"drawdown s [{length_label}]", fontsize=9)
     ax.legend(fontsize=8, frameon=False, loc="lower left")
     _titles(fig, ax, "Drawdown against rate", _caption(result, units))
-    return fig
+    return plain_text(fig)
 
 
 def step_record_chart(result: StepDrawdownResult, units: str = "US") -> Figure:
@@ -293,4 +294,4 @@ def step_record_chart(result: StepDrawdownResult, units: str = "US") -> Figure:
     fig.suptitle("Step test record", x=0.01, ha="left", fontsize=10.5, fontweight="bold")
     ax.set_title(" ", fontsize=9)  # room for the step labels above the axes
     ax.legend(fontsize=8, frameon=False, loc="lower left")
-    return fig
+    return plain_text(fig)

@@ -1,0 +1,101 @@
+"""Links between the tables of a step test that the loader cannot judge alone: samples taken at
+a step of zero rate, pumping levels at or above the static level, and samples taken below the
+deepest zone.
+
+Each rule is ``check_<topic>(project) -> Outcome`` on a :class:`~blendq.inputs.project.Project`
+in base units (m, m^3/d). The hard contradictions (overlapping step times, a flow log's rate
+against its step, two levels at one time, a depth far below the well) are refused by the loader
+(:mod:`blendq.inputs.loader`); these rules report what the later stages would otherwise notice
+only when they fit or draw.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from blendq.review.rules import (
+    SRC_COMMON,
+    Finding,
+    Outcome,
+    fmt,
+    plain_value,
+    row_number,
+    rows_of,
+    text,
+)
+
+#: rules of this module
+RULES = ("zero_rate_samples", "pumping_level_above_static", "sample_below_zones")
+
+
+def check_zero_rate_samples(project) -> Outcome:
+    """Error for each step of rate zero that lab samples name: with no discharge, a sample is
+    not a blend of the zones' inflows (it is ambient or bailed water), yet the fit would place
+    it on the rate axis at zero."""
+    out = Outcome()
+    steps, samples = project.steps, project.samples
+    if steps.empty or samples.empty:
+        return out
+    zero = {text(s) for s, q in zip(steps["step"], steps["rate"], strict=True) if q == 0}
+    seen = set()
+    for _, row in rows_of(samples):
+        if text(row["step"]) in zero and row["sample_id"] not in seen:
+            seen.add(row["sample_id"])
+            out.add("error", "zero_rate_samples",
+                    f'sample {row["sample_id"]} is at step {row["step"]}, whose rate is 0: no '
+                    "discharge to sample; correct the step's rate or leave the sample out",
+                    SRC_COMMON, row, analyte="")
+    return out
+
+
+def static_level(project) -> tuple[float | None, str]:
+    """Static level in the well [m depth] and where it comes from: the well's
+    ``static_level``, else the mean of the zones' static levels, else None."""
+    if project.well.static_level is not None:
+        return float(project.well.static_level), "the well's static_level"
+    levels = [z.static_level for z in project.zones if z.static_level is not None]
+    if levels:
+        return float(np.mean(levels)), "the mean of the zones' static levels"
+    return None, ""
+
+
+def check_pumping_levels(project) -> Outcome:
+    """A pumping level of a pumped step at or above the static level: an error against the
+    well's stated static level (drawdown cannot be zero or negative while pumping), a warning
+    against the mean of the zones' static levels (the composite level of the well differs
+    from that mean)."""
+    out = Outcome()
+    static, source = static_level(project)
+    steps = project.steps
+    if static is None or steps.empty:
+        return out
+    severity = "error" if project.well.static_level is not None else "warning"
+    for step, rate, level, row in zip(steps["step"], steps["rate"], steps["pumping_level"],
+                                      steps["source_row"], strict=True):
+        if rate > 0 and np.isfinite(level) and level <= static:
+            out.findings.append(Finding(
+                severity, "pumping_level_above_static",
+                f"step {step}: pumping level {fmt(level)} m is at or above the static level "
+                f"{fmt(static)} m ({source}); while pumping the level must be deeper",
+                SRC_COMMON, step=plain_value(step), source_row=row_number(row)))
+    return out
+
+
+def check_sample_depths(project) -> Outcome:
+    """Warning for a sample taken below the bottom of the deepest zone: no zone's water enters
+    there, so the sample shows the water standing in the well's sump, not a zone."""
+    out = Outcome()
+    samples = project.samples
+    if samples.empty or not project.zones:
+        return out
+    deepest = max(z.bottom for z in project.zones)
+    seen = set()
+    for _, row in rows_of(samples):
+        depth = row["depth"]
+        if np.isfinite(depth) and depth > deepest and row["sample_id"] not in seen:
+            seen.add(row["sample_id"])
+            out.add("warning", "sample_below_zones",
+                    f'sample {row["sample_id"]} was taken at {fmt(depth)} m, below the bottom '
+                    f"of the deepest zone ({fmt(deepest)} m): no zone's inflow enters there",
+                    SRC_COMMON, row, analyte="")
+    return out
