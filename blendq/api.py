@@ -429,7 +429,7 @@ def analyse(project: Project | str | os.PathLike[str], draws: int | None = None,
     project : Project or path
         A loaded project (:func:`load_project`) or its folder / project.toml.
     draws : int, optional
-        Monte Carlo draws (default: the project's ``draws`` setting).
+        Posterior draws (default: the project's ``draws`` setting).
     seed : int, optional
         Random seed (default: the project's ``seed`` setting). The same seed gives the same
         numbers.
@@ -438,7 +438,7 @@ def analyse(project: Project | str | os.PathLike[str], draws: int | None = None,
     units : {"US", "SI"}, optional
         Display units of the result's tables (default: the project's ``display_units``).
     progress : callable(done, total), optional
-        Called as the Monte Carlo refit advances.
+        Called as the posterior draws advances.
 
     Returns
     -------
@@ -613,7 +613,7 @@ class Result:
             [-] of exceeding the margin x limit and the limit; the pumping level [depth in the
             display length unit] (median and deep side of the band); each zone's median share
             of the discharge [-]. Predictions are at the operating horizon, with the same
-            Monte Carlo draws as the window.
+            posterior draws as the window.
         """
         a = self.analysis
         s = self.project.settings
@@ -650,7 +650,7 @@ class Result:
                 blend: Any = None, *, lower_heads: Any = None,
                 scenarios: Sequence[dict] | None = None,
                 include_project: bool = True) -> ComparisonResult:
-        """Compare options with the base case, all with the same Monte Carlo draws.
+        """Compare options with the base case, all with the same posterior draws.
 
         Parameters
         ----------
@@ -708,7 +708,7 @@ class Result:
         Parameters
         ----------
         draws : int, optional
-            Monte Carlo draws of each rerun (default: this result's).
+            Posterior draws of each rerun (default: this result's).
 
         Returns
         -------
@@ -760,7 +760,7 @@ class Result:
             ("Fitted", ", ".join(a.prediction.analytes)
              + (f" ({len(a.not_fitted)} analytes reviewed only or not fitted)"
                 if a.not_fitted else "")),
-            ("Monte Carlo", f"{a.draws.n_draws} draws, seed {a.draws.seed}"),
+            ("Posterior draws", f"{a.draws.n_draws} draws, seed {a.draws.seed}"),
             ("Review", "; ".join(a.qa.summary_lines()) or "no findings"),
             ("Window", self.window.interval_text()),
             ("Display units", self.units),

@@ -43,7 +43,7 @@ UnitsOpt = Annotated[str | None, typer.Option(
     "--units", "-u", metavar="US|SI",
     help="Display units (default: the project's display_units).")]
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print machine-readable JSON.")]
-DrawsOpt = Annotated[int | None, typer.Option("--draws", metavar="N", help="Monte Carlo draws (default: project setting).")]
+DrawsOpt = Annotated[int | None, typer.Option("--draws", metavar="N", help="Posterior draws (default: project setting).")]
 SeedOpt = Annotated[int | None, typer.Option("--seed", metavar="N", help="Random seed (default: project setting).")]
 SealOpt = Annotated[list[str] | None, typer.Option(
     "--seal", metavar="ZONE", help="Option: seal this zone (repeatable; one option each).")]
@@ -123,11 +123,11 @@ def _caution_line(*texts: str) -> str:
 
 
 def _progress():
-    """A rich progress bar on stderr for the Monte Carlo refit; returns (callback, context)."""
+    """A rich progress bar on stderr for the posterior draws; returns (callback, context)."""
     from rich.console import Console
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
-    prog = Progress(TextColumn("Monte Carlo refit"), BarColumn(), TextColumn("{task.completed}/{task.total}"),
+    prog = Progress(TextColumn("posterior draws"), BarColumn(), TextColumn("{task.completed}/{task.total}"),
                     TimeElapsedColumn(), console=Console(stderr=True), transient=True,
                     disable=not sys.stderr.isatty())
     task = prog.add_task("mc", total=1)

@@ -429,6 +429,13 @@ def test_option_entries_join_the_project_scenarios(result):
 def test_window_weighs_the_demand(result):
     w = result.window
     assert w.demand == pytest.approx(600.0, rel=1e-12)
+    assert w.demand_met is True and w.recommended == pytest.approx(w.demand, rel=1e-9)
+    # a demand above the window's top end cannot be met: the rate stays below the end
+    p = result.project
+    big = dataclasses.replace(p, well=dataclasses.replace(
+        p.well, demand=float(bq.parse_rates("900 gpm")[0])))
+    w = bq.analyse(big, draws=DRAWS, seed=SEED).window
+    assert w.demand == pytest.approx(900.0, rel=1e-9)
     assert w.demand_met is False and w.recommended < w.demand
     assert w.headroom == pytest.approx(0.05, abs=0) and w.headroom_kept
     assert w.recommended * 1.05 <= w.intervals["to [gpm]"].max() + 1e-9

@@ -515,14 +515,23 @@ def test_gross_outlier_is_a_check_error_and_window_names_it(tmp_path):
     assert f["review_decisions"][0]["sample_id"] == "TH2-2"
 
 
-def test_window_weighs_the_demand_and_keeps_a_headroom():
+def test_window_weighs_the_demand_and_keeps_a_headroom(tmp_path):
     r = run("window", DEMO, "--draws", DRAWS, "--json", "--no-by-step")
     data = json.loads(r.stdout)
-    lo, hi = data["window_m3_per_day"][0]
+    assert "The demand of 600 gpm is met" in data["decision"]
+    # a demand above the window's top end (767 gpm on the demo)
+    project = tmp_path / "demo"
+    shutil.copytree(DEMO, project)
+    toml = project / "project.toml"
+    toml.write_text(toml.read_text(encoding="utf-8").replace('demand = "600 gpm"',
+                                                             'demand = "900 gpm"'),
+                    encoding="utf-8")
+    data = json.loads(run("window", project, "--draws", DRAWS, "--json", "--no-by-step").stdout)
+    lo, hi = data["window_m3_per_day"][-1]
     rec = data["recommended_rate_m3_per_day"]
     # 5 % headroom (the default setting): the rate may drift by 5 % and stay in the window
     assert lo <= rec * 0.95 and rec * 1.05 <= hi + 1e-9
-    assert "The demand of 600 gpm cannot be met" in data["decision"]
+    assert "The demand of 900 gpm cannot be met" in data["decision"]
     assert "headroom of 5%" in data["decision"]
 
 

@@ -82,7 +82,7 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     ----------
     project : Project
     draws : int, optional
-        Monte Carlo draws (default: the project's setting).
+        Posterior draws (default: the project's setting).
     seed : int, optional
         Random seed (default: the project's setting).
     sample_mode : {"keep", "exclude", "downweight"}

@@ -2,7 +2,7 @@
 
 A scenario changes the fitted well model (seal zones, redevelop a zone, move the pump intake,
 lower the static heads) and/or the water delivered (blend with a second source), and may set its
-own margin and exceedance probability. Every scenario is evaluated with the same Monte Carlo
+own margin and exceedance probability. Every scenario is evaluated with the same posterior
 draws and the same rate grid as the base case (common random numbers), so differences between
 scenarios are differences of the changes, not of sampling noise.
 

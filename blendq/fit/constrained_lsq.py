@@ -9,7 +9,7 @@ may not exceed the detection limit. Problems are tiny (a few zones), so:
 
 * :func:`solve_censored_lsq` solves one problem with scipy (``lsq_linear`` for the bounds, then
   ``minimize(method="SLSQP")`` if a censoring constraint is violated);
-* :func:`solve_censored_lsq_batch` solves thousands of them at once (one per Monte Carlo draw)
+* :func:`solve_censored_lsq_batch` solves thousands of them at once (one per posterior draw)
   by enumerating active sets: for each candidate set of active constraints the equality-
   constrained least-squares problem is solved for every draw with one batched linear solve, and
   each draw keeps its best feasible candidate. For a convex problem the optimum is the solution

@@ -510,7 +510,7 @@ def linearised_zone_sd(fit: FitResult) -> np.ndarray:
     Notes
     -----
     Var(c) = (A^T W^2 A)^+ + S Cov(theta) S^T with S = dc/dtheta by forward differences.
-    Bounds and censoring are ignored here (the Monte Carlo honours them).
+    Bounds and censoring are ignored here (the posterior draws honour them).
     """
     problem = fit.problem
     out = np.zeros((problem.n_zones, len(fit.analytes)))

@@ -6,7 +6,7 @@ lie in a plane and the rank is at most 2), some combinations of zone values leav
 blend unchanged: the null space of the weighted weight matrix W A. A least-squares solver
 returns one point of that set (often a corner with zeros), which is not a measurement.
 
-:func:`redraw_unresolved` moves every Monte Carlo draw along the null space of its own W A,
+:func:`redraw_unresolved` moves every posterior draw along the null space of its own W A,
 uniformly over the part of the null space that the bounds, the non-detects and a cap on zones
 with no upper limit allow (hit-and-run sampling: a seeded random direction, a uniform step
 along the feasible chord, repeated). A move along the null space leaves every fitted blend of

@@ -196,7 +196,7 @@ class Settings:
     rate_grid_max : float or None
         Largest rate of the sweep [m^3/d]; default 1.2 x the largest of pump range and steps.
     draws : int
-        Monte Carlo draws.
+        Posterior draws (randomised maximum likelihood).
     seed : int
     display_units : str
         "US" or "SI".

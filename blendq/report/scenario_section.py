@@ -159,7 +159,7 @@ def scenario_section(analysis, comparison: Comparison, units: str = "US") -> Sec
     blocks = [
         Paragraph(widest_sentence(comparison, units)),
         Paragraph("Each option is the calibrated well model with the changes listed, evaluated "
-                  "with the same Monte Carlo draws and rate grid as the base case, so that the "
+                  "with the same posterior draws and rate grid as the base case, so that the "
                   "differences come from the changes alone. Rates are the well's own pumping "
                   "rate; a blend adds its rate to what is delivered. The pumping-level yield is "
                   "the largest rate at which the pumping level stays above the intake plus the "
