@@ -3,7 +3,7 @@
 Every discharge sample of a step test is a blend of the same zones' water; the shares change
 with the rate, but a result an order of magnitude above every other step's result of its
 analyte (or below all of them), while those agree with one another, is far more often a unit or
-transcription error ("8.0 mg/L" written for 8.0 ug/L, a factor of 1000) than water. Such a
+copying error ("8.0 mg/L" written for 8.0 ug/L, a factor of 1000) than water. Such a
 result is an error of the review: it would otherwise decide the fit and the window alone.
 
 The factor is ``settings.gross_outlier_factor`` (common practice: 10, an order of magnitude;
