@@ -286,23 +286,22 @@ def _raw_blend(item: Any, file: str, key: str) -> dict:
     return {"name": f"Blend {parts[0]}", "blend": entry}
 
 
-def _raw_intake(item: Any, units: str) -> dict:
+def _length_text(item: Any, units: str) -> str:
+    """A length given as a Quantity, a number in display units or text, as text with a unit."""
     if _is_quantity(item):
-        text = _quantity_text(item)
-    elif isinstance(item, (int, float)) and not isinstance(item, bool):
-        text = f"{item:g} {_unit_label(DISPLAY_UNITS[units]['length'])}"
-    else:
-        text = item
+        return _quantity_text(item)
+    if isinstance(item, (int, float)) and not isinstance(item, bool):
+        return f"{item:g} {_unit_label(DISPLAY_UNITS[units]['length'])}"
+    return item
+
+
+def _raw_intake(item: Any, units: str) -> dict:
+    text = _length_text(item, units)
     return {"name": f"Intake at {text}", "intake": text}
 
 
 def _raw_lower_heads(item: Any, units: str) -> dict:
-    if _is_quantity(item):
-        text = _quantity_text(item)
-    elif isinstance(item, (int, float)) and not isinstance(item, bool):
-        text = f"{item:g} {_unit_label(DISPLAY_UNITS[units]['length'])}"
-    else:
-        text = item
+    text = _length_text(item, units)
     return {"name": f"Static heads {text} lower", "lower_heads": text}
 
 
