@@ -22,6 +22,22 @@ from blendq.fit.uncertainty import Draws, linearised_zone_sd
 NULL_TOL = 1e-6
 
 
+def null_space_zones(wa: np.ndarray, tol: float = NULL_TOL) -> list[int]:
+    """Zones the rows of a weighted weight matrix W A (m, n_zones) do not resolve.
+
+    A zone is not resolved when a direction of the (numerical) null space of W A has a
+    component above 0.1 on it, or when no row gives it weight: the rule of :func:`zone_table`.
+    """
+    n = wa.shape[1]
+    if not wa.size:
+        return list(range(n))
+    _, s, vt = np.linalg.svd(wa, full_matrices=True)
+    null = vt[int(np.sum(s > tol * (s[0] if len(s) else 1))):]
+    unseen = np.abs(wa).max(0) <= 1e-9 * max(float(np.abs(wa).max()), 1e-300)
+    return [i for i in range(n)
+            if (null.shape[0] > 0 and np.abs(null[:, i]).max() > 0.1) or unseen[i]]
+
+
 def data_allowed_range(a, y, sigma, lb, ub, a_cens=None, dl=None, z: float = 2.0):
     """Smallest and largest value of each zone consistent with the data.
 

@@ -1,0 +1,535 @@
+"""Plan a step test: what a design of test is expected to tell about the operating window.
+
+A *design* is the list of step rates with their durations, the flow logs (ambient or pumped, at
+which rate) and the depth samples (depth, during which step). A *basis* is what is known before
+the design is run: nominal hydraulics and zone chemistry (the priors of a project without test
+data, or the fit of a finished test) with their spreads, and, after a test, the information its
+data already hold.
+
+The expected uncertainty of a design is that of the linearised (Laplace) posterior: the Fisher
+information of the planned observations, J^T W J with W the inverse error variances and J their
+derivatives with respect to the parameters phi = (ln G_i, h0_i, C, zone values), plus the prior
+information (Bard 1974, ch. 7; Atkinson, Donev and Tobias 2007, ch. 9, D- and c-optimality):
+Cov(phi) ~ F^-1. Each end of the window is the rate q_e where a criterion's curve g(q, phi)
+crosses its threshold (a discharge concentration reaching the mean threshold m* of its limit, or
+the pumping level reaching the intake less the submergence); its spread follows by the delta
+method on g(q_e, phi) = 0: dq_e/dphi = -(dg/dphi) / (dg/dq) (implicit function theorem), and
+sd(q_e) = sqrt(dq_e/dphi^T Cov dq_e/dphi). The derivatives do not depend on the design, so
+comparing many designs costs one small linear solve each.
+
+Zones a design leaves unresolved are found as the diagnostics do after a fit
+(:func:`blendq.fit.diagnostics.null_space_zones` on the weighted weight matrix of each analyte's
+planned samples).
+
+References
+----------
+Bard, Y. (1974) Nonlinear Parameter Estimation. Academic Press, ch. 7 (covariance of estimates,
+design of experiments).
+Atkinson, A.C., Donev, A.N. and Tobias, R.D. (2007) Optimum Experimental Designs, with SAS.
+Oxford University Press, ch. 9 and 10 (information matrix; c-optimum designs for a linear
+function of the parameters).
+Izbicki, J.A. and others, USGS reports on depth-dependent sampling (zone values by mass balance
+from depth samples in the flowing well).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+from scipy import optimize
+
+from blendq.chemistry.limits import mean_threshold
+from blendq.decide.sweep import compliance_statistics, governing_limits, lab_relative_error
+from blendq.errors import ModelError
+from blendq.fit.diagnostics import null_space_zones
+from blendq.fit.estimation import FitResult, row_weights
+from blendq.fit.unresolved import value_cap
+from blendq.inputs.project import Project
+from blendq.well import mixing
+from blendq.well.flowlog import log_error
+from blendq.well.model import model_from_parameters
+
+#: finite-difference steps of ln G [-], h0 [m] and C [d^2/m^5] (the model is smooth in each)
+_STEP_LOG_G, _STEP_HEAD, _STEP_WELL_LOSS = 1e-5, 1e-4, 1e-9
+
+
+@dataclass(frozen=True)
+class Design:
+    """One design of step test.
+
+    Attributes
+    ----------
+    rates : tuple of float
+        Rate of each step, in the order they are run [m^3/d].
+    step_hours : tuple of float
+        Duration of each step [h] (one value per step).
+    log_rates : tuple of float
+        Rate [m^3/d] at which each flow log is run (0 for an ambient log).
+    depth_samples : tuple of (int, float)
+        Samples inside the well: (index of the step, depth [m]); all planned analytes.
+    """
+
+    rates: tuple
+    step_hours: tuple
+    log_rates: tuple = ()
+    depth_samples: tuple = ()
+
+    @property
+    def n_steps(self) -> int:
+        return len(self.rates)
+
+    def with_step(self, rate: float, hours: float) -> Design:
+        """The design with one more step, steps sorted by rate (a rising step test)."""
+        pairs = sorted([*zip(self.rates, self.step_hours, strict=True), (float(rate), hours)])
+        old = sorted(range(self.n_steps), key=lambda k: self.rates[k])
+        new_index = {k: [r for r, _ in pairs].index(self.rates[k]) for k in old}
+        samples = tuple((new_index[k], d) for k, d in self.depth_samples)
+        return replace(self, rates=tuple(r for r, _ in pairs),
+                       step_hours=tuple(h for _, h in pairs), depth_samples=samples)
+
+
+@dataclass(frozen=True)
+class Costs:
+    """Unit costs of a step test, in the user's currency (named settings).
+
+    The defaults are common-practice orders of magnitude for planning only; replace them with
+    the quotes of the job (``[plan]`` in the project file).
+
+    Attributes
+    ----------
+    lab_sample : float
+        One sample set sent to the lab (all planned analytes).
+    flowlog_run : float
+        Mobilising and running one flow log (tool and operator, beyond rig time).
+    rig_hour : float
+        One hour of rig, crew and pump on the well.
+    flowlog_hours : float
+        Rig hours one flow-log run takes [h].
+    depth_sample_hours : float
+        Rig hours one depth sample takes (lowering and retrieving the sampler) [h].
+    """
+
+    lab_sample: float = 250.0
+    flowlog_run: float = 1500.0
+    rig_hour: float = 200.0
+    flowlog_hours: float = 2.0
+    depth_sample_hours: float = 0.5
+
+    def of(self, design: Design) -> float:
+        """Cost of a design: its lab samples, log runs and rig hours."""
+        samples = design.n_steps + len(design.depth_samples)
+        hours = (sum(design.step_hours) + self.flowlog_hours * len(design.log_rates)
+                 + self.depth_sample_hours * len(design.depth_samples))
+        return (self.lab_sample * samples + self.flowlog_run * len(design.log_rates)
+                + self.rig_hour * hours)
+
+
+@dataclass
+class Basis:
+    """What is known before a design is run, in base units.
+
+    Attributes
+    ----------
+    project : Project
+        Geometry, well, limits and settings (its tables are not read here).
+    analytes : list of str
+    theta : ndarray (2 n + 1,)
+        Nominal ln G_i [ln(m^2/d)], h0_i [m] and C [d^2/m^5].
+    zone_values : ndarray (n, n_analytes)
+        Nominal zone concentrations [mg/L].
+    theta_sd : ndarray (2 n + 1,)
+        Prior sd of theta (inf: no prior information).
+    value_sd : ndarray (n, n_analytes)
+        Prior sd of the zone values [mg/L] (inf: none).
+    relative_error : float or dict
+        Relative one-sd error of a lab result [-] (or analyte -> error).
+    absolute_error : dict
+        Analyte -> absolute floor of the lab error [mg/L].
+    log_depths : ndarray
+        Depths of the readings of a flow log [m].
+    existing : Design or None
+        The test already run (its information is added to every design's).
+    """
+
+    project: Project
+    analytes: list
+    theta: np.ndarray
+    zone_values: np.ndarray
+    theta_sd: np.ndarray
+    value_sd: np.ndarray
+    relative_error: float | dict
+    absolute_error: dict = field(default_factory=dict)
+    log_depths: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    existing: Design | None = None
+    _existing: tuple | None = field(default=None, repr=False)
+
+    @property
+    def n_zones(self) -> int:
+        return len(self.project.zones)
+
+    @property
+    def n_params(self) -> int:
+        return len(self.theta) + self.zone_values.size
+
+    def model(self, theta):
+        n = self.n_zones
+        theta = np.asarray(theta, float)
+        return model_from_parameters(self.project, np.exp(theta[..., :n]), theta[..., n:2 * n],
+                                     theta[..., 2 * n])
+
+    def existing_jacobian(self):
+        """:func:`jacobian` of the test already run (computed once)."""
+        if self._existing is None:
+            self._existing = jacobian(self, self.existing)
+        return self._existing
+
+    def lab_error(self, analyte: str) -> float:
+        """Relative one-sd lab error of ``analyte`` [-]."""
+        if isinstance(self.relative_error, dict):
+            return float(self.relative_error[analyte])
+        return float(self.relative_error)
+
+    @property
+    def free(self) -> np.ndarray:
+        """Mask of the parameters not held fixed (a prior sd of 0 holds one fixed)."""
+        return np.concatenate([self.theta_sd, self.value_sd.T.ravel()]) != 0
+
+    def prior_information(self) -> np.ndarray:
+        """Diagonal prior information 1 / sd^2 of phi (0 where no prior, and for the fixed)."""
+        sd = np.concatenate([self.theta_sd, self.value_sd.T.ravel()])
+        with np.errstate(divide="ignore"):
+            return np.where(np.isfinite(sd) & (sd > 0), 1.0 / np.square(sd), 0.0)
+
+
+def planning_rate_max(project: Project) -> float:
+    """Largest rate a plan considers [m^3/d]: ``settings.rate_grid_max``, else 1.2 x the largest
+    of the pump's range, the demand and the steps run (the sweep's rule)."""
+    s, w = project.settings, project.well
+    if s.rate_grid_max is not None:
+        return float(s.rate_grid_max)
+    cands = [float(project.steps["rate"].max()) if len(project.steps) else 0.0]
+    if np.isfinite(w.rate_max):
+        cands.append(w.rate_max)
+    if w.demand:
+        cands.append(w.demand)
+    top = max(cands)
+    if top <= 0:
+        raise ModelError("no pump range, demand or step gives the rates to plan for: give "
+                         "well.rate_max or well.demand")
+    return 1.2 * top
+
+
+def default_log_depths(project: Project) -> np.ndarray:
+    """Reading depths of a planned flow log [m]: above the top zone, in the middle of every gap
+    between zones and below the bottom zone (one reading between each pair of neighbours is
+    what separates their flows; Paillet 1998)."""
+    top, bottom = project.zone_top, project.zone_bottom
+    gaps = 0.5 * (bottom[:-1] + top[1:])
+    above = max(top[0] - 1.0, 0.5 * top[0])
+    return np.concatenate([[above], gaps, [bottom[-1] + 1.0]])
+
+
+def _perturbed_theta(basis: Basis) -> tuple[np.ndarray, np.ndarray]:
+    """theta and its finite-difference perturbations: (p + 1, p), steps (p,)."""
+    n = basis.n_zones
+    steps = np.concatenate([np.full(n, _STEP_LOG_G), np.full(n, _STEP_HEAD), [_STEP_WELL_LOSS]])
+    th = np.repeat(basis.theta[None, :], len(steps) + 1, axis=0)
+    th[1:] += np.diag(steps)
+    return th, steps
+
+
+def jacobian(basis: Basis, design: Design) -> tuple[np.ndarray, dict]:
+    """Whitened Jacobian of a design's observations with respect to phi.
+
+    Rows: for each analyte the discharge sample of every step and the depth samples; the flow-log
+    readings; the pumping level of every step and the static level. Each row is divided by the
+    error of its observation at the nominal values (lab: relative error with its floor; logs:
+    ``settings.flowlog_*_error``; levels: ``settings.level_error``).
+
+    Returns
+    -------
+    J : ndarray (m, n_params)
+    quality : dict analyte -> ndarray (rows, n_zones)
+        Weighted weight matrix W A of each analyte's planned samples (for the resolution check).
+    """
+    n = basis.n_zones
+    p_theta = len(basis.theta)
+    s = basis.project.settings
+    th, steps = _perturbed_theta(basis)
+    model = basis.model(th)
+    rates = np.asarray(design.rates, float)
+    ds = list(design.depth_samples)
+    row_rate = np.concatenate([rates, [rates[k] for k, _ in ds]])
+    row_depth = np.concatenate([np.full(len(rates), np.nan), [d for _, d in ds]])
+    a = row_weights(model, row_rate, row_depth)  # (p + 1, m, n)
+    blocks, quality = [], {}
+    for j, analyte in enumerate(basis.analytes):
+        c = basis.zone_values[:, j]
+        y = a @ c  # (p + 1, m)
+        sig = np.hypot(basis.lab_error(analyte) * np.abs(y[0]), basis.absolute_error.get(analyte, 0.0))
+        sig = np.maximum(sig, 1e-12)
+        block = np.zeros((len(row_rate), basis.n_params))
+        block[:, :p_theta] = ((y[1:] - y[0]) / steps[:, None]).T
+        block[:, p_theta + j * n:p_theta + (j + 1) * n] = a[0]
+        blocks.append(block / sig[:, None])
+        quality[analyte] = a[0] / sig[:, None]
+    depths = basis.log_depths
+    for q in design.log_rates:
+        st = model.state(np.array([float(q)]))
+        f = mixing.wellbore_flow(st.zone_flow[:, 0], model.geometry, depths)  # (p + 1, L)
+        sig = log_error(f[0], s.flowlog_relative_error, s.flowlog_absolute_error)
+        block = np.zeros((len(depths), basis.n_params))
+        block[:, :p_theta] = ((f[1:] - f[0]) / steps[:, None]).T
+        blocks.append(block / np.maximum(sig, 1e-12)[:, None])
+    level_rates = np.concatenate([rates, [0.0]])
+    lv = model.pumping_level_depth(level_rates)
+    block = np.zeros((len(level_rates), basis.n_params))
+    block[:, :p_theta] = ((lv[1:] - lv[0]) / steps[:, None]).T
+    blocks.append(block / s.level_error)
+    return np.vstack(blocks), quality
+
+
+def information(basis: Basis, design: Design) -> np.ndarray:
+    """Fisher information of phi: the design's J^T J, the existing test's and the prior's."""
+    jac, _ = jacobian(basis, design)
+    info = jac.T @ jac
+    if basis.existing is not None:
+        jx, _ = basis.existing_jacobian()
+        info = info + jx.T @ jx
+    return info + np.diag(basis.prior_information())
+
+
+def covariance(info: np.ndarray, free: np.ndarray | None = None) -> np.ndarray:
+    """Inverse of an information matrix, its scales equilibrated first (parameters differ by
+    many orders of magnitude); a pseudo-inverse where a direction has no information at all.
+    Parameters not ``free`` get no variance."""
+    if free is not None and not np.all(free):
+        out = np.zeros_like(info)
+        idx = np.flatnonzero(free)
+        out[np.ix_(idx, idx)] = covariance(info[np.ix_(idx, idx)])
+        return out
+    d = np.sqrt(np.clip(np.diag(info), 0.0, None))
+    d = np.where(d > 0, d, 1.0)
+    scaled = info / d[:, None] / d[None, :]
+    return np.linalg.pinv(scaled, rcond=1e-12, hermitian=True) / d[:, None] / d[None, :]
+
+
+# ------------------------------------------------------------------ window ends
+@dataclass(frozen=True)
+class WindowEnd:
+    """One end of the window at the nominal values and what moves it.
+
+    Attributes
+    ----------
+    side : str
+        "low" or "high".
+    rate : float
+        q_e [m^3/d].
+    reason : str
+        The criterion that binds there.
+    gradient : ndarray (n_params,) or None
+        dq_e/dphi; None where the end is fixed (the pump's range, the sweep's edge).
+    """
+
+    side: str
+    rate: float
+    reason: str
+    gradient: np.ndarray | None
+
+
+def _criteria(basis: Basis):
+    """Criteria g(q, phi) <= 0 of the window: name, function of (rates, theta batch, values)."""
+    project = basis.project
+    s, w = project.settings, project.well
+    limits = governing_limits(project.limits, basis.analytes)
+    stats = compliance_statistics(project, limits)
+    out = []
+    for j, analyte in enumerate(basis.analytes):
+        if analyte not in limits:
+            continue
+        st = stats[analyte]
+        m_star = float(mean_threshold(s.margin * limits[analyte].canonical(), st.log_sd,
+                                      st.sample_probability))
+
+        def quality(q, theta, values, j=j, m_star=m_star):
+            wts = basis.model(theta).weights(np.atleast_1d(q))
+            return np.nan_to_num(wts @ values[..., j:j + 1], nan=0.0)[..., 0] - m_star
+
+        out.append((analyte, quality, j))
+    bottom = w.operating_intake - w.submergence
+
+    def level(q, theta, values):
+        return basis.model(theta).pumping_level_depth(np.atleast_1d(q)) - bottom
+
+    out.append(("pumping level above intake + submergence", level, None))
+    return out
+
+
+def window_ends(basis: Basis, rate_max: float | None = None, points: int | None = None) -> list[WindowEnd]:
+    """The ends of the window at the nominal values, with their sensitivities.
+
+    The window is the widest interval of rates in (0, rate_max] where every criterion holds at
+    the nominal values and within the pump's range. An end where a criterion crosses is refined
+    by Brent's method; its gradient follows from the implicit function theorem.
+    """
+    points = points or basis.project.settings.rate_grid_points
+    rate_max = planning_rate_max(basis.project) if rate_max is None else rate_max
+    w = basis.project.well
+    grid = np.linspace(0.0, rate_max, points)[1:]
+    crit = _criteria(basis)
+    theta0 = basis.theta[None, :]
+    values0 = basis.zone_values[None]
+    g = np.array([f(grid, theta0, values0)[0] for _, f, _ in crit])  # (k, rates)
+    ok = np.all(g <= 0, axis=0) & (grid >= w.rate_min) & (grid <= w.rate_max)
+    if not ok.any():
+        raise ModelError("no rate meets every criterion at the planning values: the plan "
+                         "measures the uncertainty of the window's ends, and there is none")
+    edges = np.flatnonzero(np.diff(np.r_[0, ok.astype(int), 0]))
+    spans = list(zip(edges[::2], edges[1::2] - 1, strict=True))
+    lo, hi = max(spans, key=lambda s: grid[s[1]] - grid[s[0]])
+    ends = []
+    for side, k_in, k_out in (("low", lo, lo - 1), ("high", hi, hi + 1)):
+        if k_out < 0 or k_out >= len(grid):
+            ends.append(WindowEnd(side, float(grid[k_in]), "edge of the planned rates", None))
+            continue
+        failing = [c for c in range(len(crit)) if g[c, k_out] > 0]
+        pump = grid[k_out] < w.rate_min or grid[k_out] > w.rate_max
+        if pump or not failing:
+            rate = w.rate_min if side == "low" else w.rate_max
+            ends.append(WindowEnd(side, float(rate), "pump rate range", None))
+            continue
+        c = failing[0]
+        name, fun, _ = crit[c]
+
+        def scalar(q, fun=fun):
+            return float(fun(np.array([q]), theta0, values0)[0, 0])
+
+        a, b = sorted((grid[k_in], grid[k_out]))
+        q_e = optimize.brentq(scalar, a, b, xtol=1e-9 * rate_max)
+        ends.append(WindowEnd(side, float(q_e), name, _end_gradient(basis, fun, q_e)))
+    return ends
+
+
+def _end_gradient(basis: Basis, fun, q_e: float) -> np.ndarray:
+    """dq_e/dphi = -(dg/dphi) / (dg/dq) at the crossing (implicit function theorem)."""
+    n, n_a = basis.n_zones, len(basis.analytes)
+    th, steps = _perturbed_theta(basis)
+    v = np.repeat(basis.zone_values[None], len(th), axis=0)
+    g = fun(np.array([q_e]), th, v)[:, 0]
+    grad = np.zeros(basis.n_params)
+    grad[:len(steps)] = (g[1:] - g[0]) / steps
+    dv = 1e-6 * max(float(np.abs(basis.zone_values).max()), 1e-9)
+    vb = np.repeat(basis.zone_values[None], n * n_a, axis=0)
+    for j in range(n_a):
+        for i in range(n):
+            vb[j * n + i, i, j] += dv
+    gv = fun(np.array([q_e]), np.repeat(basis.theta[None], n * n_a, axis=0), vb)[:, 0]
+    grad[len(steps):] = (gv - g[0]) / dv
+    h = 1e-6 * max(q_e, 1.0)
+    dq = (fun(np.array([q_e + h]), basis.theta[None], basis.zone_values[None])[0, 0]
+          - fun(np.array([q_e - h]), basis.theta[None], basis.zone_values[None])[0, 0]) / (2 * h)
+    if dq == 0 or not np.isfinite(dq):
+        raise ModelError(f"the criterion is flat at the window's end ({q_e:g} m3/d): its "
+                         "position is not defined by the data")
+    return -grad / dq
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """Expected outcome of one design.
+
+    Attributes
+    ----------
+    design : Design
+    cost : float
+    end_sd : dict side -> float
+        Expected sd of each window end [m^3/d] (0 for an end fixed by the pump's range).
+    unresolved : dict analyte -> list of str
+        Zones the design's samples would leave unresolved.
+    """
+
+    design: Design
+    cost: float
+    end_sd: dict
+    unresolved: dict
+
+    @property
+    def objective(self) -> float:
+        """The expected window uncertainty: the root sum of squares of the ends' sd [m^3/d]."""
+        return float(np.sqrt(sum(v * v for v in self.end_sd.values())))
+
+
+def evaluate(basis: Basis, design: Design, ends: list[WindowEnd], costs: Costs) -> Evaluation:
+    """Expected sd of the window's ends and the unresolved zones after a design."""
+    jac, quality = jacobian(basis, design)
+    info = jac.T @ jac + np.diag(basis.prior_information())
+    if basis.existing is not None:
+        jx, qx = basis.existing_jacobian()
+        info = info + jx.T @ jx
+        quality = {a: np.vstack([quality[a], qx[a]]) for a in quality}
+    cov = covariance(info, basis.free)
+    sd = {}
+    for e in ends:
+        sd[e.side] = 0.0 if e.gradient is None else float(np.sqrt(max(e.gradient @ cov
+                                                                       @ e.gradient, 0.0)))
+    names = basis.project.zone_names
+    unresolved = {a: [names[i] for i in null_space_zones(wa)] for a, wa in quality.items()}
+    return Evaluation(design, costs.of(design), sd, unresolved)
+
+
+# ------------------------------------------------------------------ bases
+def design_of(project: Project) -> Design:
+    """The design of a test already run: its steps, flow logs and depth samples."""
+    steps = project.steps
+    rates = tuple(float(r) for r in steps["rate"].astype(float)) if len(steps) else ()
+    hours = tuple(24.0 * float(d) if np.isfinite(d) else 0.0
+                  for d in steps["duration"].astype(float)) if len(steps) else ()
+    index = {str(s): k for k, s in enumerate(steps["step"].astype(str))} if len(steps) else {}
+    logs = project.flowlogs
+    log_rates = tuple(float(r) for r in logs.groupby("log")["rate"].first().astype(float)) \
+        if logs is not None and len(logs) else ()
+    samples = project.samples
+    depth = ()
+    if len(samples):
+        inside = samples[np.isfinite(samples["depth"].astype(float))
+                         & samples["step"].astype(str).isin(index)]
+        pairs = dict.fromkeys((index[str(s)], float(d))
+                              for s, d in zip(inside["step"], inside["depth"], strict=True))
+        depth = tuple(pairs)
+    return Design(rates, hours, log_rates, depth)
+
+
+def basis_from_fit(fit: FitResult, value_sd=None) -> Basis:
+    """The basis of a finished test: its fit as nominal values, its priors, its data.
+
+    Parameters
+    ----------
+    fit : blendq.fit.estimation.FitResult
+    value_sd : ndarray (n, n_analytes), optional
+        Prior sd of the zone values [mg/L]. Default: the sd of a uniform spread from 0 to the
+        value the draws of an unresolved zone are capped at (:func:`blendq.fit.unresolved.
+        value_cap`), cap / sqrt(12): what blendq assumes where the data say nothing.
+    """
+    problem = fit.problem
+    project = problem.project
+    n = problem.n_zones
+    theta = np.asarray(fit.theta, float)
+    if not problem.fit_c:
+        theta = np.concatenate([theta[:2 * n], [project.well.well_loss]])
+    prior = problem.prior
+    c_sd = np.inf if problem.fit_c else 0.0
+    theta_sd = np.concatenate([prior.log_conductance_sd, prior.static_head_sd, [c_sd]])
+    if not problem.options.fit_hydraulics:
+        theta_sd[:2 * n] = 0.0
+    values = fit.zone_values()
+    if value_sd is None:
+        caps = np.array([value_cap(fit, a) for a in fit.analytes])
+        value_sd = np.repeat(caps[None, :] / np.sqrt(12.0), n, axis=0)
+    s = project.settings
+    lab = {a: lab_relative_error(project.samples, a, s.default_relative_uncertainty)[0]
+           for a in fit.analytes}
+    return Basis(project, list(fit.analytes), theta, values, theta_sd,
+                 np.asarray(value_sd, float), lab,
+                 log_depths=default_log_depths(project), existing=design_of(project))
+
