@@ -239,6 +239,27 @@ def _perturbed_theta(basis: Basis) -> tuple[np.ndarray, np.ndarray]:
     return th, steps
 
 
+#: a depth sample is taken in flowing water only when the wellbore flow past its depth is at
+#: least this fraction of the step's rate (common practice: the sampler must see water renewed
+#: from the zones; near a zone's reversal the water there stands and its mix is ill-defined)
+STAGNANT_FRACTION = 0.02
+
+
+def stagnant(basis: Basis, design: Design) -> np.ndarray:
+    """For each depth sample of a design: True where the water at its depth barely flows
+    (:data:`STAGNANT_FRACTION`) at the nominal values; such a sample counts as no data."""
+    if not design.depth_samples:
+        return np.zeros(0, bool)
+    model = basis.model(basis.theta)
+    out = []
+    for k, depth in design.depth_samples:
+        q = float(design.rates[k])
+        st = model.state(np.array([q]))
+        up = mixing.wellbore_flow(st.zone_flow[0], model.geometry, np.array([depth]))[0]
+        out.append(not abs(up) >= STAGNANT_FRACTION * max(q, 1e-12))
+    return np.array(out, bool)
+
+
 def jacobian(basis: Basis, design: Design) -> tuple[np.ndarray, dict]:
     """Whitened Jacobian of a design's observations with respect to phi.
 
@@ -263,6 +284,8 @@ def jacobian(basis: Basis, design: Design) -> tuple[np.ndarray, dict]:
     row_rate = np.concatenate([rates, [rates[k] for k, _ in ds]])
     row_depth = np.concatenate([np.full(len(rates), np.nan), [d for _, d in ds]])
     a = row_weights(model, row_rate, row_depth)  # (p + 1, m, n)
+    still = stagnant(basis, design)
+    a[:, len(rates) + np.flatnonzero(still), :] = 0.0  # stagnant water tells nothing
     blocks, quality = [], {}
     for j, analyte in enumerate(basis.analytes):
         c = basis.zone_values[:, j]
@@ -290,29 +313,55 @@ def jacobian(basis: Basis, design: Design) -> tuple[np.ndarray, dict]:
     return np.vstack(blocks), quality
 
 
-def information(basis: Basis, design: Design) -> np.ndarray:
-    """Fisher information of phi: the design's J^T J, the existing test's and the prior's."""
-    jac, _ = jacobian(basis, design)
-    info = jac.T @ jac
+def information(basis: Basis, design: Design) -> tuple[np.ndarray, dict]:
+    """Fisher information of phi after a design: its J^T J, the existing test's and the
+    prior's; and the weighted weight matrices of each analyte's samples (both tests)."""
+    jac, quality = jacobian(basis, design)
+    info = jac.T @ jac + np.diag(basis.prior_information())
     if basis.existing is not None:
-        jx, _ = basis.existing_jacobian()
+        jx, qx = basis.existing_jacobian()
         info = info + jx.T @ jx
-    return info + np.diag(basis.prior_information())
+        quality = {a: np.vstack([quality[a], qx[a]]) for a in quality}
+    return info, quality
 
 
-def covariance(info: np.ndarray, free: np.ndarray | None = None) -> np.ndarray:
-    """Inverse of an information matrix, its scales equilibrated first (parameters differ by
-    many orders of magnitude); a pseudo-inverse where a direction has no information at all.
-    Parameters not ``free`` get no variance."""
+#: relative eigenvalue of the (equilibrated) information below which a direction counts as
+#: not informed at all by the data and the priors
+_NO_INFORMATION = 1e-10
+
+
+def linear_sd(info: np.ndarray, gradients: np.ndarray, free: np.ndarray | None = None):
+    """sd of linear functions g . phi under the covariance info^-1.
+
+    The information is equilibrated (its diagonal scaled to one: the parameters differ by many
+    orders of magnitude) and decomposed into eigenvectors; a function with weight on a
+    direction that nothing informs has an infinite sd (a pseudo-inverse would give it none).
+    Parameters not ``free`` are held fixed and carry no variance.
+
+    Parameters
+    ----------
+    info : ndarray (p, p)
+    gradients : ndarray (k, p)
+    free : ndarray of bool (p,), optional
+
+    Returns
+    -------
+    ndarray (k,)
+    """
+    g = np.atleast_2d(np.asarray(gradients, float))
     if free is not None and not np.all(free):
-        out = np.zeros_like(info)
         idx = np.flatnonzero(free)
-        out[np.ix_(idx, idx)] = covariance(info[np.ix_(idx, idx)])
-        return out
+        info, g = info[np.ix_(idx, idx)], g[:, idx]
+    if not g.size:
+        return np.zeros(len(g))
     d = np.sqrt(np.clip(np.diag(info), 0.0, None))
     d = np.where(d > 0, d, 1.0)
-    scaled = info / d[:, None] / d[None, :]
-    return np.linalg.pinv(scaled, rcond=1e-12, hermitian=True) / d[:, None] / d[None, :]
+    lam, vec = np.linalg.eigh(info / d[:, None] / d[None, :])
+    gs = (g / d[None, :]) @ vec  # gradient in the eigenbasis of the scaled information
+    none = lam <= _NO_INFORMATION * max(float(lam.max()), 1e-300)
+    var = np.sum(gs[:, ~none] ** 2 / lam[None, ~none], axis=1)
+    blind = np.sum(gs[:, none] ** 2, axis=1) > 1e-12 * np.maximum(np.sum(gs**2, axis=1), 1e-300)
+    return np.where(blind, np.inf, np.sqrt(var))
 
 
 # ------------------------------------------------------------------ window ends
@@ -462,17 +511,11 @@ class Evaluation:
 
 def evaluate(basis: Basis, design: Design, ends: list[WindowEnd], costs: Costs) -> Evaluation:
     """Expected sd of the window's ends and the unresolved zones after a design."""
-    jac, quality = jacobian(basis, design)
-    info = jac.T @ jac + np.diag(basis.prior_information())
-    if basis.existing is not None:
-        jx, qx = basis.existing_jacobian()
-        info = info + jx.T @ jx
-        quality = {a: np.vstack([quality[a], qx[a]]) for a in quality}
-    cov = covariance(info, basis.free)
-    sd = {}
-    for e in ends:
-        sd[e.side] = 0.0 if e.gradient is None else float(np.sqrt(max(e.gradient @ cov
-                                                                       @ e.gradient, 0.0)))
+    info, quality = information(basis, design)
+    moving = [e for e in ends if e.gradient is not None]
+    sds = linear_sd(info, np.array([e.gradient for e in moving]), basis.free) if moving else []
+    sd = {e.side: 0.0 for e in ends}
+    sd.update({e.side: float(v) for e, v in zip(moving, sds, strict=True)})
     names = basis.project.zone_names
     unresolved = {a: [names[i] for i in null_space_zones(wa)] for a, wa in quality.items()}
     return Evaluation(design, costs.of(design), sd, unresolved)
