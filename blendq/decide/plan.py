@@ -46,6 +46,7 @@ from blendq.fit.diagnostics import null_space_zones
 from blendq.fit.estimation import FitResult, row_weights
 from blendq.fit.unresolved import value_cap
 from blendq.inputs.project import Project
+from blendq.units import format_quantity
 from blendq.well import mixing
 from blendq.well.flowlog import log_error
 from blendq.well.model import model_from_parameters
@@ -163,6 +164,7 @@ class Basis:
     log_depths: np.ndarray = field(default_factory=lambda: np.zeros(0))
     existing: Design | None = None
     _existing: tuple | None = field(default=None, repr=False)
+    _rows: dict = field(default_factory=dict, repr=False)
 
     @property
     def n_zones(self) -> int:
@@ -260,13 +262,69 @@ def stagnant(basis: Basis, design: Design) -> np.ndarray:
     return np.array(out, bool)
 
 
+def _rows(basis: Basis, key: tuple) -> tuple[np.ndarray, dict]:
+    """Whitened Jacobian rows of one observation (computed once per basis): ("sample", rate,
+    depth) a lab sample of every analyte (depth NaN for the discharge), ("log", rate) a flow
+    log's readings, ("level", rate) a pumping level (rate 0: the static level)."""
+    if key in basis._rows:
+        return basis._rows[key]
+    n, p_theta = basis.n_zones, len(basis.theta)
+    s = basis.project.settings
+    th, steps = _perturbed_theta(basis)
+    model = basis.model(th)
+    kind, rate = key[0], float(key[1])
+    quality = {}
+    if kind == "sample":
+        depth = float(key[2])
+        a = row_weights(model, np.array([rate]), np.array([depth]))  # (p + 1, 1, n)
+        if np.isfinite(depth) and stagnant(basis, Design((rate,), (1.0,), (), ((0, depth),)))[0]:
+            a = np.zeros_like(a)  # standing water tells nothing
+        blocks = []
+        for j, analyte in enumerate(basis.analytes):
+            y = a @ basis.zone_values[:, j]  # (p + 1, 1)
+            sig = max(float(np.hypot(basis.lab_error(analyte) * abs(y[0, 0]),
+                                     basis.absolute_error.get(analyte, 0.0))), 1e-12)
+            block = np.zeros((1, basis.n_params))
+            block[:, :p_theta] = ((y[1:] - y[0]) / steps[:, None]).T
+            block[:, p_theta + j * n:p_theta + (j + 1) * n] = a[0]
+            blocks.append(block / sig)
+            quality[analyte] = a[0] / sig
+        rows = np.vstack(blocks)
+    elif kind == "log":
+        st = model.state(np.array([rate]))
+        f = mixing.wellbore_flow(st.zone_flow[:, 0], model.geometry, basis.log_depths)
+        sig = log_error(f[0], s.flowlog_relative_error, s.flowlog_absolute_error)
+        rows = np.zeros((len(basis.log_depths), basis.n_params))
+        rows[:, :p_theta] = ((f[1:] - f[0]) / steps[:, None]).T / np.maximum(sig, 1e-12)[:, None]
+    else:
+        lv = model.pumping_level_depth(np.array([rate]))[:, 0]
+        rows = np.zeros((1, basis.n_params))
+        rows[0, :p_theta] = (lv[1:] - lv[0]) / steps / s.level_error
+    basis._rows[key] = (rows, quality)
+    return rows, quality
+
+
+def observations(design: Design) -> list[tuple]:
+    """The observations of a design (keys of :func:`_rows`): a discharge sample and a pumping
+    level at every step, the static level read before the first, every depth sample and every
+    flow log."""
+    keys = [("sample", r, np.nan) for r in design.rates]
+    keys += [("sample", design.rates[k], d) for k, d in design.depth_samples]
+    keys += [("log", r) for r in design.log_rates]
+    keys += [("level", r) for r in design.rates]
+    if design.rates:
+        keys.append(("level", 0.0))
+    return keys
+
+
 def jacobian(basis: Basis, design: Design) -> tuple[np.ndarray, dict]:
     """Whitened Jacobian of a design's observations with respect to phi.
 
-    Rows: for each analyte the discharge sample of every step and the depth samples; the flow-log
-    readings; the pumping level of every step and the static level. Each row is divided by the
-    error of its observation at the nominal values (lab: relative error with its floor; logs:
-    ``settings.flowlog_*_error``; levels: ``settings.level_error``).
+    Rows: for each observation of :func:`observations`, its derivatives (forward differences in
+    theta, exact in the zone values, on which the samples are linear) divided by its error at
+    the nominal values (lab: relative error with its floor; logs: ``settings.flowlog_*_error``;
+    levels: ``settings.level_error``). A depth sample in standing water (:func:`stagnant`)
+    counts as no data.
 
     Returns
     -------
@@ -274,43 +332,11 @@ def jacobian(basis: Basis, design: Design) -> tuple[np.ndarray, dict]:
     quality : dict analyte -> ndarray (rows, n_zones)
         Weighted weight matrix W A of each analyte's planned samples (for the resolution check).
     """
-    n = basis.n_zones
-    p_theta = len(basis.theta)
-    s = basis.project.settings
-    th, steps = _perturbed_theta(basis)
-    model = basis.model(th)
-    rates = np.asarray(design.rates, float)
-    ds = list(design.depth_samples)
-    row_rate = np.concatenate([rates, [rates[k] for k, _ in ds]])
-    row_depth = np.concatenate([np.full(len(rates), np.nan), [d for _, d in ds]])
-    a = row_weights(model, row_rate, row_depth)  # (p + 1, m, n)
-    still = stagnant(basis, design)
-    a[:, len(rates) + np.flatnonzero(still), :] = 0.0  # stagnant water tells nothing
-    blocks, quality = [], {}
-    for j, analyte in enumerate(basis.analytes):
-        c = basis.zone_values[:, j]
-        y = a @ c  # (p + 1, m)
-        sig = np.hypot(basis.lab_error(analyte) * np.abs(y[0]), basis.absolute_error.get(analyte, 0.0))
-        sig = np.maximum(sig, 1e-12)
-        block = np.zeros((len(row_rate), basis.n_params))
-        block[:, :p_theta] = ((y[1:] - y[0]) / steps[:, None]).T
-        block[:, p_theta + j * n:p_theta + (j + 1) * n] = a[0]
-        blocks.append(block / sig[:, None])
-        quality[analyte] = a[0] / sig[:, None]
-    depths = basis.log_depths
-    for q in design.log_rates:
-        st = model.state(np.array([float(q)]))
-        f = mixing.wellbore_flow(st.zone_flow[:, 0], model.geometry, depths)  # (p + 1, L)
-        sig = log_error(f[0], s.flowlog_relative_error, s.flowlog_absolute_error)
-        block = np.zeros((len(depths), basis.n_params))
-        block[:, :p_theta] = ((f[1:] - f[0]) / steps[:, None]).T
-        blocks.append(block / np.maximum(sig, 1e-12)[:, None])
-    level_rates = np.concatenate([rates, [0.0]])
-    lv = model.pumping_level_depth(level_rates)
-    block = np.zeros((len(level_rates), basis.n_params))
-    block[:, :p_theta] = ((lv[1:] - lv[0]) / steps[:, None]).T
-    blocks.append(block / s.level_error)
-    return np.vstack(blocks), quality
+    parts = [_rows(basis, key) for key in observations(design)]
+    jac = np.vstack([r for r, _ in parts]) if parts else np.zeros((0, basis.n_params))
+    quality = {a: np.vstack([q[a] for _, q in parts if a in q] or
+                            [np.zeros((0, basis.n_zones))]) for a in basis.analytes}
+    return jac, quality
 
 
 def information(basis: Basis, design: Design) -> tuple[np.ndarray, dict]:
@@ -576,3 +602,379 @@ def basis_from_fit(fit: FitResult, value_sd=None) -> Basis:
                  np.asarray(value_sd, float), lab,
                  log_depths=default_log_depths(project), existing=design_of(project))
 
+
+
+# ------------------------------------------------------------------ step durations and purging
+#: shortest step a plan proposes [h]: long enough for the level to settle and the field
+#: readings to stabilise before sampling (common practice for step-rate tests: 1 to 4 h)
+MIN_STEP_HOURS = 2.0
+#: well volumes purged at a step's rate before its sample (common practice: three casing
+#: volumes). The crossflow-memory volume (water that crossed the well between zones before
+#: the step) is to replace this once that check is available: :func:`purge_volume` is the hook.
+PURGE_CASING_VOLUMES = 3.0
+
+
+def purge_volume(project: Project) -> float:
+    """Water to pump before a sample is taken [m^3]: :data:`PURGE_CASING_VOLUMES` times the
+    volume of water standing in the well, pi r_w^2 times the column from the static level (or
+    the shallowest zone static level, or the top zone) to the bottom of the deepest zone.
+
+    This is the hook for the crossflow-memory volume: today the casing volumes only.
+    """
+    w = project.well
+    levels = [z.static_level for z in project.zones if z.static_level is not None]
+    top = w.static_level if w.static_level is not None else (
+        min(levels) if levels else float(project.zone_top.min()))
+    column = max(float(project.zone_bottom.max()) - top, 0.0)
+    return PURGE_CASING_VOLUMES * np.pi * w.well_radius**2 * column
+
+
+def step_hours(project: Project, rate: float, minimum: float = MIN_STEP_HOURS) -> float:
+    """Planned duration of a step [h]: the purge at its rate, then the minimum step time (the
+    level settles and the readings stabilise while the purge water is pumped)."""
+    purge = purge_volume(project) / max(rate, 1e-12) * 24.0
+    return float(max(minimum, purge))
+
+
+# ------------------------------------------------------------------ candidates and the search
+def top_step_rate(basis: Basis, rate_max: float | None = None) -> float:
+    """Highest step rate a plan proposes [m^3/d]: the pump's largest rate, the planning rate
+    range, and 95 % of the rate at which the nominal pumping level reaches the intake less its
+    submergence, whichever is least."""
+    w = basis.project.well
+    top = planning_rate_max(basis.project) if rate_max is None else rate_max
+    if np.isfinite(w.rate_max):
+        top = min(top, w.rate_max)
+    grid = np.linspace(0.0, top, 401)[1:]
+    level = basis.model(basis.theta).pumping_level_depth(grid)
+    deep = level > w.pump_intake_depth - w.submergence
+    if deep.any():
+        top = min(top, 0.95 * float(grid[np.argmax(deep)]))
+    return float(top)
+
+
+def reversal_rates(basis: Basis) -> np.ndarray:
+    """Rate [m^3/d] below which each zone takes water from the well at the nominal values
+    (linear zones: Q = sum_k G_k (h0_k - h0_i); 0 for a zone that gives water at every rate)."""
+    n = basis.n_zones
+    g = np.exp(basis.theta[:n])
+    h0 = basis.theta[n:2 * n]
+    return np.maximum((g[None, :] * (h0[None, :] - h0[:, None])).sum(1), 0.0)
+
+
+def depth_sample_depths(project: Project) -> np.ndarray:
+    """Depths [m] where a planned depth sample may be taken: the middle of each gap between
+    zones (the water there is the mix of the zones on one side; Izbicki and co-workers)."""
+    top, bottom = project.zone_top, project.zone_bottom
+    return 0.5 * (bottom[:-1] + top[1:])
+
+
+def _low_rate(basis: Basis, top: float) -> float | None:
+    """A step rate below the largest reversal rate (where a thief zone takes water), above the
+    pump's least rate; None when there is no such rate."""
+    q_rev = float(reversal_rates(basis).max())
+    low = max(basis.project.well.rate_min, 0.05 * top)
+    return 0.5 * (low + q_rev) if q_rev > low * 1.05 and q_rev < top else None
+
+
+def candidate_designs(basis: Basis, rate_max: float | None = None) -> list[Design]:
+    """Candidate designs: 3 to 7 steps spaced evenly or geometrically up to
+    :func:`top_step_rate` (and an even set with a step below the largest reversal rate);
+    no flow log, an ambient log, ambient and pumped at the top step, ambient and pumped at the
+    middle step; no depth sample, or one in each gap between zones during the top step, the
+    middle step, or both."""
+    top = top_step_rate(basis, rate_max)
+    w = basis.project.well
+    low_rate = _low_rate(basis, top)
+    floor = max(w.rate_min, 0.05 * top)
+    patterns = []
+    for n in range(3, 8):
+        patterns.append(np.linspace(top / n, top, n))
+        patterns.append(np.geomspace(max(floor, top / 2 ** (n - 1)), top, n))
+        if low_rate is not None:
+            patterns.append(np.r_[low_rate, np.linspace(top / (n - 1), top, n - 1)])
+    gaps = depth_sample_depths(basis.project)
+    out = []
+    for rates in patterns:
+        rates = tuple(float(r) for r in np.maximum(rates, floor))
+        hours = tuple(step_hours(basis.project, r) for r in rates)
+        k_top, k_mid = len(rates) - 1, len(rates) // 2
+        logs_options = [(), (0.0,), (0.0, rates[k_top]), (0.0, rates[k_mid])]
+        depth_options = [(), tuple((k_top, d) for d in gaps), tuple((k_mid, d) for d in gaps),
+                         tuple((k, d) for k in (k_mid, k_top) for d in gaps)]
+        for logs in logs_options:
+            for depth in depth_options:
+                out.append(Design(rates, hours, logs, depth))
+    return out
+
+
+@dataclass(frozen=True)
+class Item:
+    """One measurement a plan may add.
+
+    Attributes
+    ----------
+    kind : str
+        "step", "flow log" or "depth sample".
+    rate : float
+        Step rate, or the rate of the log or of the step sampled [m^3/d].
+    depth : float
+        Depth of a depth sample [m] (NaN otherwise).
+    """
+
+    kind: str
+    rate: float
+    depth: float = float("nan")
+
+    def add_to(self, design: Design, project: Project) -> Design:
+        if self.kind == "step":
+            return design.with_step(self.rate, step_hours(project, self.rate))
+        if self.kind == "flow log":
+            return replace(design, log_rates=(*design.log_rates, self.rate))
+        k = int(np.argmin(np.abs(np.asarray(design.rates) - self.rate)))
+        return replace(design, depth_samples=(*design.depth_samples, (k, self.depth)))
+
+    def alone(self, project: Project) -> Design:
+        """The item as a test of its own, after a finished test: a step at its rate (with its
+        discharge sample and level), with the log or the depth sample taken during it; an
+        ambient log alone."""
+        if self.kind == "flow log" and self.rate == 0:
+            return Design((), (), (0.0,))
+        step = Design((self.rate,), (step_hours(project, self.rate),))
+        return step if self.kind == "step" else self.add_to(step, project)
+
+    def describe(self, units: str = "US") -> str:
+        if self.kind == "step":
+            return f"a step at {format_quantity(self.rate, 'rate', units)}"
+        if self.kind == "flow log":
+            return ("an ambient flow log" if self.rate == 0 else
+                    f"a flow log while pumping {format_quantity(self.rate, 'rate', units)}")
+        return (f"a depth sample at {format_quantity(self.depth, 'length', units)} during the "
+                f"step at {format_quantity(self.rate, 'rate', units)}")
+
+
+def candidate_items(basis: Basis, design: Design, rate_max: float | None = None) -> list[Item]:
+    """Items that may be added to a design: a step at one of ten rates up to the top step rate
+    (and below the largest reversal rate), an ambient log, a pumped log during any step, and a
+    depth sample in any gap between zones during any step (not in standing water)."""
+    top = top_step_rate(basis, rate_max)
+    have = set(design.rates) | (set(basis.existing.rates) if basis.existing else set())
+    rates = [float(r) for r in np.linspace(top / 10, top, 10)]
+    low = _low_rate(basis, top)
+    if low is not None:
+        rates.append(low)
+    rates = [r for r in rates if r >= basis.project.well.rate_min
+             and not any(abs(r - h) <= 0.02 * r for h in have)]
+    items = [Item("step", r) for r in sorted(rates)]
+    logs = set(design.log_rates) | (set(basis.existing.log_rates) if basis.existing else set())
+    if 0.0 not in logs:
+        items.append(Item("flow log", 0.0))
+    items += [Item("flow log", r) for r in dict.fromkeys(design.rates) if r not in logs]
+    taken = {(float(design.rates[k]), d) for k, d in design.depth_samples}
+    for r in dict.fromkeys(design.rates):
+        for d in depth_sample_depths(basis.project):
+            if (r, float(d)) in taken:
+                continue
+            probe = Design((r,), (1.0,), (), ((0, float(d)),))
+            if not stagnant(basis, probe)[0]:
+                items.append(Item("depth sample", r, float(d)))
+    return items
+
+
+@dataclass(frozen=True)
+class ItemValue:
+    """What one item is worth: the expected end spreads without and with it.
+
+    Attributes
+    ----------
+    item : Item
+    cost : float
+        Its cost (lab sample, log run, rig hours).
+    without, with_ : dict side -> float
+        Expected sd of each window end [m^3/d].
+    """
+
+    item: Item
+    cost: float
+    without: dict
+    with_: dict
+
+    @property
+    def gain(self) -> float:
+        """Drop of the expected window uncertainty (root sum of squares of the ends) [m^3/d]."""
+        return _rss(self.without) - _rss(self.with_)
+
+    def sentence(self, units: str = "US") -> str:
+        """E.g. "a depth sample at 164 ft during the step at 600 gpm narrows the window's high
+        end from +-60 to +-15 gpm"."""
+        parts = []
+        for side in ("low", "high"):
+            a, b = self.without.get(side, 0.0), self.with_.get(side, 0.0)
+            if a > 0 and (b < a * 0.98 or not np.isfinite(a)):
+                parts.append(f"the window's {side} end from {_pm(a, units)} to {_pm(b, units)}")
+        what = " and ".join(parts) if parts else "neither end of the window noticeably"
+        return f"{self.item.describe(units)} narrows {what}"
+
+
+def _pm(sd: float, units: str) -> str:
+    return "+-unbounded" if not np.isfinite(sd) else f"+-{format_quantity(sd, 'rate', units, 2)}"
+
+
+def _rss(sd: dict) -> float:
+    return float(np.sqrt(sum(v * v for v in sd.values())))
+
+
+def _better(gain: float, before: float, after: float) -> float:
+    """Gain used to rank items: a finite spread after an unbounded one ranks first."""
+    if not np.isfinite(before):
+        return np.inf if np.isfinite(after) else 0.0
+    return gain
+
+
+@dataclass
+class Plan:
+    """The outcome of :func:`choose_design`.
+
+    Attributes
+    ----------
+    design : Design
+        The chosen design.
+    evaluation : Evaluation
+    ends : list of WindowEnd
+        The window's ends at the planning values.
+    steps_taken : list of ItemValue
+        The items in the order the search added them, with the spreads before and after.
+    values : list of ItemValue
+        The value of every item of the chosen design: the spreads without it (the design less
+        that item) and with it.
+    candidates : list of Evaluation
+        The candidate designs evaluated, cheapest first.
+    budget : float or None
+    """
+
+    design: Design
+    evaluation: Evaluation
+    ends: list
+    steps_taken: list
+    values: list
+    candidates: list
+    budget: float | None
+
+
+def _items_of(design: Design) -> list[Item]:
+    items = [Item("step", r) for r in design.rates]
+    items += [Item("flow log", r) for r in design.log_rates]
+    items += [Item("depth sample", design.rates[k], d) for k, d in design.depth_samples]
+    return items
+
+
+def _without(design: Design, item: Item) -> Design:
+    if item.kind == "flow log":
+        logs = list(design.log_rates)
+        logs.remove(item.rate)
+        return replace(design, log_rates=tuple(logs))
+    if item.kind == "depth sample":
+        k = design.rates.index(item.rate)
+        samples = list(design.depth_samples)
+        samples.remove((k, item.depth))
+        return replace(design, depth_samples=tuple(samples))
+    k = design.rates.index(item.rate)
+    keep = [j for j in range(design.n_steps) if j != k]
+    index = {j: i for i, j in enumerate(keep)}
+    return Design(tuple(design.rates[j] for j in keep), tuple(design.step_hours[j] for j in keep),
+                  tuple(r for r in design.log_rates if r == 0 or r != item.rate),
+                  tuple((index[j], d) for j, d in design.depth_samples if j != k))
+
+
+def start_design(basis: Basis, rate_max: float | None = None) -> Design:
+    """The least test a plan starts from: three steps evenly up to :func:`top_step_rate` (a
+    curve of level against rate needs three)."""
+    top = top_step_rate(basis, rate_max)
+    rates = tuple(float(r) for r in np.linspace(top / 3, top, 3))
+    return Design(rates, tuple(step_hours(basis.project, r) for r in rates))
+
+
+def choose_design(basis: Basis, costs: Costs, budget: float | None = None,
+                  rate_max: float | None = None, max_items: int = 30,
+                  candidates: list[Design] | None = None) -> Plan:
+    """The design with the smallest expected window uncertainty for its cost, by a greedy
+    search.
+
+    From :func:`start_design`, the item (:func:`candidate_items`) with the largest drop of the
+    expected window uncertainty (root sum of squares of the ends' sd) per unit cost is added
+    while one fits the budget and lowers it by more than 0.1 % (Atkinson, Donev and Tobias
+    2007, ch. 12: sequential construction of a design). Without a budget the search stops when
+    no item is worth 0.1 %. The candidate designs (:func:`candidate_designs`, unless given) are
+    evaluated too and the best of them within the budget replaces the greedy result when it is
+    better.
+
+    Raises
+    ------
+    ModelError
+        When the budget does not pay for the start design.
+    """
+    ends = window_ends(basis, rate_max)
+    design = start_design(basis, rate_max)
+    if budget is not None and costs.of(design) > budget:
+        raise ModelError(f"the budget ({budget:g}) does not pay for three steps "
+                         f"({costs.of(design):g} with the unit costs given)")
+    current = evaluate(basis, design, ends, costs)
+    taken = []
+    for _ in range(max_items):
+        best, best_score = None, 0.0
+        for item in candidate_items(basis, design, rate_max):
+            trial = item.add_to(design, basis.project)
+            if budget is not None and costs.of(trial) > budget:
+                continue
+            ev = evaluate(basis, trial, ends, costs)
+            before, after = current.objective, ev.objective
+            gain = _better(before - after, before, after)
+            if not gain > 1e-3 * (after if np.isfinite(after) else 1.0):
+                continue
+            score = gain / max(ev.cost - current.cost, 1e-12)
+            if score > best_score:
+                best, best_score = (item, ev), score
+        if best is None:
+            break
+        item, ev = best
+        taken.append(ItemValue(item, ev.cost - current.cost, current.end_sd, ev.end_sd))
+        design, current = ev.design, ev
+    cands = [evaluate(basis, d, ends, costs)
+             for d in (candidate_designs(basis, rate_max) if candidates is None else candidates)]
+    affordable = [c for c in cands if budget is None or c.cost <= budget]
+    if affordable:
+        top = min(affordable, key=lambda c: (c.objective, c.cost))
+        if top.objective < current.objective * (1 - 1e-9):
+            design, current, taken = top.design, top, []
+    values = []
+    for item in _items_of(design):
+        less = _without(design, item)
+        if less.n_steps < 2:
+            continue
+        ev = evaluate(basis, less, ends, costs)
+        values.append(ItemValue(item, current.cost - ev.cost, ev.end_sd, current.end_sd))
+    return Plan(design, current, ends, taken, values,
+                sorted(cands, key=lambda c: (c.cost, c.objective)), budget)
+
+
+def what_next(basis: Basis, costs: Costs, rate_max: float | None = None) -> list[ItemValue]:
+    """After a finished test: every single extra measurement (a step at another rate, an
+    ambient or pumped flow log, a depth sample while pumping at a step's rate), each as a short
+    test of its own added to the data in hand, ranked by the drop of the expected window
+    uncertainty it brings (largest first)."""
+    if basis.existing is None:
+        raise ModelError("what to measure next needs a finished test")
+    ends = window_ends(basis, rate_max)
+    empty = Design((), ())
+    now = evaluate(basis, empty, ends, costs)
+    done = basis.existing
+    items = candidate_items(basis, Design(done.rates, done.step_hours, done.log_rates,
+                                          done.depth_samples), rate_max)
+    top = top_step_rate(basis, rate_max)
+    if not any(abs(top - r) <= 0.02 * top for r in done.log_rates):
+        items.append(Item("flow log", top))
+    out = []
+    for item in items:
+        ev = evaluate(basis, item.alone(basis.project), ends, costs)
+        out.append(ItemValue(item, ev.cost, now.end_sd, ev.end_sd))
+    return sorted(out, key=lambda v: -_better(v.gain, _rss(v.without), _rss(v.with_)))
