@@ -37,22 +37,29 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 
 import numpy as np
+import pandas as pd
 from scipy import optimize
 
 from blendq.chemistry.limits import mean_threshold
 from blendq.decide.sweep import compliance_statistics, governing_limits, lab_relative_error
-from blendq.errors import ModelError
+from blendq.errors import InputError, ModelError
 from blendq.fit.diagnostics import null_space_zones
 from blendq.fit.estimation import FitResult, row_weights
+from blendq.fit.estimation import fit as fit_project
 from blendq.fit.unresolved import value_cap
+from blendq.inputs.plan_file import PlanInputs
 from blendq.inputs.project import Project
 from blendq.units import format_quantity
 from blendq.well import mixing
 from blendq.well.flowlog import log_error
-from blendq.well.model import model_from_parameters
+from blendq.well.model import model_from_parameters, prior_hydraulics
 
 #: finite-difference steps of ln G [-], h0 [m] and C [d^2/m^5] (the model is smooth in each)
 _STEP_LOG_G, _STEP_HEAD, _STEP_WELL_LOSS = 1e-5, 1e-4, 1e-9
+
+#: shortest step a plan proposes [h]: long enough for the level to settle and the field
+#: readings to stabilise before sampling (common practice for step-rate tests: 1 to 4 h)
+MIN_STEP_HOURS = 2.0
 
 
 @dataclass(frozen=True)
@@ -151,6 +158,8 @@ class Basis:
         Depths of the readings of a flow log [m].
     existing : Design or None
         The test already run (its information is added to every design's).
+    min_step_hours : float
+        Shortest planned step [h] (:data:`MIN_STEP_HOURS` unless ``[plan]`` sets it).
     """
 
     project: Project
@@ -163,6 +172,7 @@ class Basis:
     absolute_error: dict = field(default_factory=dict)
     log_depths: np.ndarray = field(default_factory=lambda: np.zeros(0))
     existing: Design | None = None
+    min_step_hours: float = MIN_STEP_HOURS
     _existing: tuple | None = field(default=None, repr=False)
     _rows: dict = field(default_factory=dict, repr=False)
 
@@ -605,9 +615,6 @@ def basis_from_fit(fit: FitResult, value_sd=None) -> Basis:
 
 
 # ------------------------------------------------------------------ step durations and purging
-#: shortest step a plan proposes [h]: long enough for the level to settle and the field
-#: readings to stabilise before sampling (common practice for step-rate tests: 1 to 4 h)
-MIN_STEP_HOURS = 2.0
 #: well volumes purged at a step's rate before its sample (common practice: three casing
 #: volumes). The crossflow-memory volume (water that crossed the well between zones before
 #: the step) is to replace this once that check is available: :func:`purge_volume` is the hook.
@@ -629,11 +636,12 @@ def purge_volume(project: Project) -> float:
     return PURGE_CASING_VOLUMES * np.pi * w.well_radius**2 * column
 
 
-def step_hours(project: Project, rate: float, minimum: float = MIN_STEP_HOURS) -> float:
-    """Planned duration of a step [h]: the purge at its rate, then the minimum step time (the
-    level settles and the readings stabilise while the purge water is pumped)."""
-    purge = purge_volume(project) / max(rate, 1e-12) * 24.0
-    return float(max(minimum, purge))
+def step_hours(basis: Basis, rate: float) -> float:
+    """Planned duration of a step [h]: the longer of the time to pump the purge volume at its
+    rate and the minimum step time (the level settles and the readings stabilise while the
+    purge water is pumped)."""
+    purge = purge_volume(basis.project) / max(rate, 1e-12) * 24.0
+    return float(max(basis.min_step_hours, purge))
 
 
 # ------------------------------------------------------------------ candidates and the search
@@ -697,7 +705,7 @@ def candidate_designs(basis: Basis, rate_max: float | None = None) -> list[Desig
     out = []
     for rates in patterns:
         rates = tuple(float(r) for r in np.maximum(rates, floor))
-        hours = tuple(step_hours(basis.project, r) for r in rates)
+        hours = tuple(step_hours(basis, r) for r in rates)
         k_top, k_mid = len(rates) - 1, len(rates) // 2
         logs_options = [(), (0.0,), (0.0, rates[k_top]), (0.0, rates[k_mid])]
         depth_options = [(), tuple((k_top, d) for d in gaps), tuple((k_mid, d) for d in gaps),
@@ -726,22 +734,22 @@ class Item:
     rate: float
     depth: float = float("nan")
 
-    def add_to(self, design: Design, project: Project) -> Design:
+    def add_to(self, design: Design, basis: Basis) -> Design:
         if self.kind == "step":
-            return design.with_step(self.rate, step_hours(project, self.rate))
+            return design.with_step(self.rate, step_hours(basis, self.rate))
         if self.kind == "flow log":
             return replace(design, log_rates=(*design.log_rates, self.rate))
         k = int(np.argmin(np.abs(np.asarray(design.rates) - self.rate)))
         return replace(design, depth_samples=(*design.depth_samples, (k, self.depth)))
 
-    def alone(self, project: Project) -> Design:
+    def alone(self, basis: Basis) -> Design:
         """The item as a test of its own, after a finished test: a step at its rate (with its
         discharge sample and level), with the log or the depth sample taken during it; an
         ambient log alone."""
         if self.kind == "flow log" and self.rate == 0:
             return Design((), (), (0.0,))
-        step = Design((self.rate,), (step_hours(project, self.rate),))
-        return step if self.kind == "step" else self.add_to(step, project)
+        step = Design((self.rate,), (step_hours(basis, self.rate),))
+        return step if self.kind == "step" else self.add_to(step, basis)
 
     def describe(self, units: str = "US") -> str:
         if self.kind == "step":
@@ -817,7 +825,7 @@ class ItemValue:
 
 
 def _pm(sd: float, units: str) -> str:
-    return "+-unbounded" if not np.isfinite(sd) else f"+-{format_quantity(sd, 'rate', units, 2)}"
+    return "+-unbounded" if not np.isfinite(sd) else f"+-{format_quantity(sd, 'rate', units)}"
 
 
 def _rss(sd: dict) -> float:
@@ -891,7 +899,7 @@ def start_design(basis: Basis, rate_max: float | None = None) -> Design:
     curve of level against rate needs three)."""
     top = top_step_rate(basis, rate_max)
     rates = tuple(float(r) for r in np.linspace(top / 3, top, 3))
-    return Design(rates, tuple(step_hours(basis.project, r) for r in rates))
+    return Design(rates, tuple(step_hours(basis, r) for r in rates))
 
 
 def choose_design(basis: Basis, costs: Costs, budget: float | None = None,
@@ -902,9 +910,9 @@ def choose_design(basis: Basis, costs: Costs, budget: float | None = None,
 
     From :func:`start_design`, the item (:func:`candidate_items`) with the largest drop of the
     expected window uncertainty (root sum of squares of the ends' sd) per unit cost is added
-    while one fits the budget and lowers it by more than 0.1 % (Atkinson, Donev and Tobias
+    while one fits the budget and lowers it by more than 0.5 % (Atkinson, Donev and Tobias
     2007, ch. 12: sequential construction of a design). Without a budget the search stops when
-    no item is worth 0.1 %. The candidate designs (:func:`candidate_designs`, unless given) are
+    no item is worth 0.5 %. The candidate designs (:func:`candidate_designs`, unless given) are
     evaluated too and the best of them within the budget replaces the greedy result when it is
     better.
 
@@ -923,13 +931,13 @@ def choose_design(basis: Basis, costs: Costs, budget: float | None = None,
     for _ in range(max_items):
         best, best_score = None, 0.0
         for item in candidate_items(basis, design, rate_max):
-            trial = item.add_to(design, basis.project)
+            trial = item.add_to(design, basis)
             if budget is not None and costs.of(trial) > budget:
                 continue
             ev = evaluate(basis, trial, ends, costs)
             before, after = current.objective, ev.objective
             gain = _better(before - after, before, after)
-            if not gain > 1e-3 * (after if np.isfinite(after) else 1.0):
+            if not gain > 5e-3 * (after if np.isfinite(after) else 1.0):
                 continue
             score = gain / max(ev.cost - current.cost, 1e-12)
             if score > best_score:
@@ -975,6 +983,119 @@ def what_next(basis: Basis, costs: Costs, rate_max: float | None = None) -> list
         items.append(Item("flow log", top))
     out = []
     for item in items:
-        ev = evaluate(basis, item.alone(basis.project), ends, costs)
+        ev = evaluate(basis, item.alone(basis), ends, costs)
         out.append(ItemValue(item, ev.cost, now.end_sd, ev.end_sd))
     return sorted(out, key=lambda v: -_better(v.gain, _rss(v.without), _rss(v.with_)))
+
+
+def basis_from_priors(project: Project, inputs: PlanInputs) -> Basis:
+    """The basis of a project without test data: its zones' prior ranges (``[plan]``).
+
+    Each zone's conductance is the one its conductance model gives for the geometric middle of
+    its transmissivity range (or its ``[[zones]]`` transmissivity), with a spread of ln G of a
+    quarter of ln(high / low): the range read as +-2 sd (common practice for a range quoted from
+    logs or nearby tests); the zone static levels and their spreads as for a fit
+    (:func:`blendq.well.model.prior_hydraulics`); the well loss C from ``well.well_loss``, free.
+    Each zone value is the middle of its range with a quarter of its width as sd.
+
+    Raises
+    ------
+    InputError
+        When a zone has no transmissivity or lacks the range of a planned analyte.
+    """
+    analytes = inputs.analytes
+    if not analytes:
+        raise InputError("no prior range of any analyte: give each zone's ranges in "
+                         "[[plan.zones]] (e.g. nitrate = [\"2 mg/L\", \"8 mg/L\"])",
+                         file=inputs.file, field="plan.zones")
+    zones, log_sd = [], []
+    for z in project.zones:
+        if z.name in inputs.transmissivity:
+            low, high = inputs.transmissivity[z.name]
+            zones.append(replace(z, transmissivity=float(np.sqrt(low * high)), conductivity=None))
+            log_sd.append(np.log(high / low) / 4.0 if high > low else 0.0)
+        else:
+            zones.append(z)
+            log_sd.append(np.nan)
+        missing = [a for a in analytes if a not in inputs.chemistry.get(z.name, {})]
+        if missing:
+            raise InputError(f'zone "{z.name}" has no prior range of {", ".join(missing)}',
+                             file=inputs.file, field=f"plan.zones ({z.name})")
+    hours = inputs.min_step_hours or MIN_STEP_HOURS
+    steps = pd.DataFrame({"step": ["S1", "S2", "S3"], "rate": [1.0, 2.0, 3.0],
+                          "start": pd.NaT, "end": pd.NaT, "duration": hours / 24.0,
+                          "pumping_level": np.nan, "recovered_before": False,
+                          "source_row": [1, 2, 3]})
+    planned = replace(project, zones=zones, steps=steps)
+    prior = prior_hydraulics(planned, need_properties=True)
+    n = len(zones)
+    g_sd = np.where(np.isfinite(log_sd), log_sd, prior.log_conductance_sd)
+    theta = np.concatenate([prior.log_conductance, prior.static_head, [project.well.well_loss]])
+    theta_sd = np.concatenate([g_sd, prior.static_head_sd, [np.inf]])
+    values = np.zeros((n, len(analytes)))
+    value_sd = np.zeros_like(values)
+    for i, z in enumerate(zones):
+        for j, a in enumerate(analytes):
+            low, high = inputs.chemistry[z.name][a]
+            values[i, j], value_sd[i, j] = 0.5 * (low + high), (high - low) / 4.0
+    value_sd = np.maximum(value_sd, 1e-6 * np.maximum(values, 1e-12))
+    planned = replace(planned, steps=project.steps)
+    return Basis(planned, analytes, theta, values, theta_sd, value_sd,
+                 project.settings.default_relative_uncertainty,
+                 log_depths=default_log_depths(project), min_step_hours=hours)
+
+
+def costs_of(inputs: PlanInputs) -> Costs:
+    """The unit costs of ``[plan]`` over the defaults of :class:`Costs`."""
+    return replace(Costs(), **inputs.costs)
+
+
+@dataclass
+class PlanReport:
+    """What ``blendq plan`` reports.
+
+    Attributes
+    ----------
+    project : Project
+    basis : Basis
+    costs : Costs
+    plan : Plan or None
+        The chosen design (a project without test data).
+    current : Evaluation or None
+        The finished test's expected spreads (a project with a test).
+    next_items : list of ItemValue
+        After a test: the extra measurements, most valuable first.
+    """
+
+    project: Project
+    basis: Basis
+    costs: Costs
+    plan: Plan | None = None
+    current: Evaluation | None = None
+    next_items: list = field(default_factory=list)
+
+
+def plan_test(project: Project, inputs: PlanInputs, finished: bool,
+              budget: float | None = None) -> PlanReport:
+    """Plan a step test (no test yet) or the next measurement (after a test).
+
+    Parameters
+    ----------
+    project : Project
+    inputs : PlanInputs
+        The ``[plan]`` table (priors, unit costs, budget).
+    finished : bool
+        The project holds a test: fit it and rank the single extra measurements.
+    budget : float, optional
+        Overrides ``[plan] budget``.
+    """
+    costs = costs_of(inputs)
+    budget = inputs.budget if budget is None else budget
+    if finished:
+        basis = basis_from_fit(fit_project(project))
+        ends = window_ends(basis)
+        current = evaluate(basis, Design((), ()), ends, costs)
+        return PlanReport(project, basis, costs, current=current,
+                          next_items=what_next(basis, costs))
+    basis = basis_from_priors(project, inputs)
+    return PlanReport(project, basis, costs, plan=choose_design(basis, costs, budget))

@@ -38,7 +38,8 @@ PROJECT_FILE = "project.toml"
 CONDUCTANCE_MODELS = ("auto", "steady", "transient", "given", "flowlog")
 
 #: top-level tables of the project file
-SECTIONS = ("project", "well", "zones", "tables", "settings", "limits", "scenarios", "review")
+SECTIONS = ("project", "well", "zones", "tables", "settings", "limits", "scenarios", "review",
+            "plan")
 
 #: what a ``[[review]]`` decision may do with a sample (see blendq.review.decisions)
 REVIEW_ACTIONS = ("exclude", "downweight", "keep")
@@ -588,10 +589,14 @@ def _scenarios(doc: dict, label: str) -> list[dict]:
 
 
 def _table_paths(doc: dict, folder: Path, label: str) -> dict[str, tuple[Path, str]]:
+    # a project planning its test ([plan]) may have no tables yet
+    planning = "plan" in doc
+    if planning and "tables" not in doc:
+        return {}
     s = _Section(_table(doc, "tables", label), "tables", label)
     found = {}
     for name in TABLE_COLUMNS:
-        text = s.text(name) if name == "steps" else s.text(name, None)
+        text = s.text(name) if name == "steps" and not planning else s.text(name, None)
         if text is None:
             continue
         path = folder / text

@@ -1,0 +1,203 @@
+"""The field sheet of a planned step test (PDF and CSV) and the text of a plan.
+
+One row per action in the order the crew does them: the static level (and an ambient flow log
+when planned), then every step with its rate, start and duration, the water to purge before
+its sample, the discharge sample, the depth samples and the pumped flow log taken during it.
+
+The purge volume is today :func:`blendq.decide.plan.purge_volume` (casing volumes, common
+practice); when the crossflow-memory volume is available it replaces that function, and this
+sheet prints whatever it returns.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from blendq import CAUTIONS
+from blendq.decide.plan import Design, PlanReport, purge_volume, window_ends
+from blendq.errors import ModelError
+from blendq.report.document import BulletList, Callout, Document, KeyValues, Section, Table
+from blendq.units import BASE_UNITS, DISPLAY_UNITS, format_quantity, from_base
+
+#: columns of the field sheet (CSV in display units named in the header)
+COLUMNS = ("order", "action", "step", "rate", "start_hour", "duration_h", "purge_volume",
+           "purge_hours", "depth", "what")
+
+
+def _unit(kind: str, units: str) -> str:
+    return DISPLAY_UNITS[units].get(kind, BASE_UNITS[kind])
+
+
+def actions(report: PlanReport, design: Design, units: str = "US") -> list[dict]:
+    """The actions of a design in field order, in base units (rate m^3/d, volume m^3, depth
+    m, times h)."""
+    purge = purge_volume(report.project)
+    rows = []
+    t = 0.0
+
+    def add(action, step="", rate=np.nan, duration=np.nan, purge_v=np.nan, purge_h=np.nan,
+            depth=np.nan, what=""):
+        rows.append(dict(order=len(rows) + 1, action=action, step=step, rate=rate,
+                         start_hour=round(t, 2), duration_h=duration, purge_volume=purge_v,
+                         purge_hours=purge_h, depth=depth, what=what))
+
+    add("static level", what="read the static water level before pumping")
+    if 0.0 in design.log_rates:
+        add("flow log", rate=0.0, duration=report.costs.flowlog_hours,
+            what="run an ambient flow log (pump off) through every zone")
+        t += report.costs.flowlog_hours
+    for k, (q, hours) in enumerate(zip(design.rates, design.step_hours, strict=True)):
+        name = f"S{k + 1}"
+        purge_h = purge / max(q, 1e-12) * 24.0
+        add("step", name, q, hours,
+            what=f"pump at {format_quantity(q, 'rate', units)} for {hours:.1f} h; read the "
+                 "level at the end of the step")
+        add("discharge sample", name, q, purge_v=purge, purge_h=purge_h,
+            what=f"sample the discharge after at least {format_quantity(purge, 'volume', units)}"
+                 " pumped at this rate, near the end of the step with the level steady")
+        for j, d in design.depth_samples:
+            if j == k:
+                add("depth sample", name, q, depth=d,
+                    what=f"sample inside the well at {format_quantity(d, 'length', units)} "
+                         "while pumping, after the discharge sample")
+        if any(abs(r - q) <= 1e-9 * max(q, 1.0) for r in design.log_rates if r > 0):
+            add("flow log", name, q, duration=report.costs.flowlog_hours,
+                what="run a flow log while pumping at this rate (level steady)")
+        t += hours
+    return rows
+
+
+def field_sheet(report: PlanReport, design: Design, units: str = "US") -> pd.DataFrame:
+    """The actions of a design in field order, in display units.
+
+    Columns: order, action, step, rate, start_hour [h from the start], duration_h [h],
+    purge_volume (volume to pump before the step's sample), purge_hours [h at the step's rate],
+    depth (of a depth sample), what (the instruction). ``attrs["units"]`` names the units.
+    """
+    table = pd.DataFrame(actions(report, design, units), columns=list(COLUMNS))
+    u = {"rate": _unit("rate", units), "volume": _unit("volume", units),
+         "depth": _unit("length", units)}
+    for col, kind, unit in (("rate", "rate", u["rate"]), ("purge_volume", "volume", u["volume"]),
+                            ("depth", "length", u["depth"])):
+        table[col] = [float(from_base(v, kind, unit)) if np.isfinite(v) else np.nan
+                      for v in table[col].astype(float)]
+    table.attrs["units"] = u
+    return table
+
+
+def write_csv(table: pd.DataFrame, path):
+    """Write a field sheet as CSV (a path or a text buffer) with the units in the header."""
+    u = table.attrs.get("units", {})
+    names = {"rate": f"rate [{u.get('rate', '')}]", "purge_volume":
+             f"purge_volume [{u.get('volume', '')}]", "depth": f"depth [{u.get('depth', '')}]",
+             "start_hour": "start [h]", "duration_h": "duration [h]", "purge_hours": "purge [h]"}
+    table.rename(columns=names).to_csv(path, index=False, float_format="%.4g",
+                                       lineterminator="\n")
+    return path
+
+
+def plan_lines(report: PlanReport, units: str = "US") -> list[str]:
+    """The plan as text lines (what the command prints)."""
+    out = []
+    ends = report.plan.ends if report.plan else None
+    if report.plan is not None:
+        p = report.plan
+        ev = p.evaluation
+        d = p.design
+        out.append(f"Planned test: {d.n_steps} steps, {len(d.log_rates)} flow logs, "
+                   f"{len(d.depth_samples)} depth samples; cost {ev.cost:,.0f}"
+                   + (f" of a budget of {p.budget:,.0f}" if p.budget else ""))
+        out += _end_lines(ends, ev.end_sd, units)
+        out += _unresolved_lines(ev.unresolved)
+        out.append("Value of each item of the planned test (its spreads without and with it):")
+        out += [f"  {v.sentence(units)} (cost {v.cost:,.0f})" for v in p.values]
+    else:
+        out.append("The finished test leaves:")
+        out += _end_lines(window_ends(report.basis), report.current.end_sd, units)
+        out += _unresolved_lines(report.current.unresolved)
+        out.append("The single extra measurement with the most value first:")
+        out += [f"  {v.sentence(units)} (cost {v.cost:,.0f})" for v in report.next_items[:8]]
+    return out
+
+
+def _end_lines(ends, sd: dict, units: str) -> list[str]:
+    lines = []
+    for e in ends:
+        spread = sd.get(e.side, 0.0)
+        what = ("fixed" if e.gradient is None else
+                "+-unbounded" if not np.isfinite(spread)
+                else f"+-{format_quantity(spread, 'rate', units)} (1 sd expected)")
+        lines.append(f"  window {e.side} end near {format_quantity(e.rate, 'rate', units)}, "
+                     f"set by {e.reason}: {what}")
+    return lines
+
+
+def _unresolved_lines(unresolved: dict) -> list[str]:
+    zones = sorted({z for v in unresolved.values() for z in v})
+    if not zones:
+        return ["  every zone resolved by the planned samples"]
+    return [f"  zones the samples leave unresolved: {', '.join(zones)}"]
+
+
+def field_sheet_document(report: PlanReport, design: Design, units: str = "US",
+                         created: str = "") -> Document:
+    """The field sheet as a document for :func:`blendq.report.pdf.render_pdf`."""
+    rows = actions(report, design, units)
+
+    def fmt(v, kind):
+        return format_quantity(v, kind, units) if np.isfinite(v) else ""
+
+    shown = pd.DataFrame(rows, columns=list(COLUMNS))
+    shown["rate"] = [fmt(v, "rate") for v in shown["rate"].astype(float)]
+    shown["depth"] = [fmt(v, "length") for v in shown["depth"].astype(float)]
+    shown["purge_volume"] = [fmt(v, "volume") for v in shown["purge_volume"].astype(float)]
+    shown = shown[["order", "action", "step", "rate", "start_hour", "duration_h",
+                   "purge_volume", "depth", "what"]].rename(columns={
+                       "order": "#", "action": "Action", "step": "Step", "rate": "Rate",
+                       "start_hour": "Start [h]", "duration_h": "Hours",
+                       "purge_volume": "Purge first", "depth": "Depth", "what": "What to do"})
+    shown = shown.fillna("")
+    facts = KeyValues((("Well", report.project.well.name),
+                       ("Steps", str(design.n_steps)),
+                       ("Flow logs", str(len(design.log_rates))),
+                       ("Depth samples", str(len(design.depth_samples))),
+                       ("Planned cost", f"{report.costs.of(design):,.0f}")), "The planned test")
+    note = ("Purge volumes are casing volumes (common practice) until the crossflow-memory "
+            "volume is computed; pump at least that much at the step's rate before sampling.")
+    cautions = Callout(" ".join(CAUTIONS[:2] + CAUTIONS[3:4]))
+    sections = (
+        Section("Field sheet", (cautions, facts, Table(shown, "Actions in field order",
+                                                         note=note)), "field-sheet"),
+        Section("What the plan expects", (BulletList(tuple(plan_lines(report, units))),),
+                "expectations"),
+    )
+    return Document(f"Step-test field sheet: {report.project.well.name}", report.project.name,
+                    created, sections)
+
+
+
+def sheet_design(report: PlanReport) -> Design:
+    """The design the field sheet is for: the planned test, or after a finished test the
+    single extra measurement with the most value (as a short test of its own)."""
+    if report.plan is not None:
+        return report.plan.design
+    if not report.next_items:
+        raise ModelError("no extra measurement to plan: the finished test leaves nothing that "
+                         "one more step, log or depth sample would narrow")
+    return report.next_items[0].item.alone(report.basis)
+
+
+def field_sheet_files(report: PlanReport, units: str = "US", created: str = "") -> dict:
+    """The files of ``blendq plan --out``: fieldsheet.pdf, fieldsheet.csv and plan.txt."""
+    import io
+
+    from blendq.report.pdf import render_pdf_bytes
+
+    design = sheet_design(report)
+    buf = io.StringIO()
+    write_csv(field_sheet(report, design, units), buf)
+    text = "\n".join([*plan_lines(report, units), "", *CAUTIONS[:2], CAUTIONS[3]]) + "\n"
+    return {"fieldsheet.pdf": render_pdf_bytes(field_sheet_document(report, design, units,
+                                                                    created)),
+            "fieldsheet.csv": buf.getvalue(), "plan.txt": text}
