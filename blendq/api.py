@@ -61,6 +61,7 @@ __all__ = [
     "OperatingWindow",
     "Plots",
     "Result",
+    "TestPlan",
     "analyse",
     "build_scenarios",
     "check_report_folder",
@@ -68,6 +69,7 @@ __all__ = [
     "load_project",
     "option_entries",
     "parse_rates",
+    "plan_test",
     "to_json",
 ]
 
@@ -1045,3 +1047,70 @@ class Plots:
     def __repr__(self) -> str:
         return (f"charts of {self._analysis.project.well.name}: quality(), shares(), levels(), "
                 "zones(), step_drawdown(kind)")
+
+
+# ------------------------------------------------------------------------------ planning
+class TestPlan:
+    """A planned step test (or, after a test, the next measurement), in display units.
+
+    Made by :func:`plan_test`. ``report`` is the planner's plain result
+    (:class:`blendq.decide.plan.PlanReport`, base units).
+    """
+
+    def __init__(self, report, units: str = "US") -> None:
+        self.report = report
+        self.units = units
+
+    @property
+    def lines(self) -> list[str]:
+        """The plan as text: expected spread of the window's ends, unresolved zones, the value
+        of each item (or the ranked next measurements)."""
+        from blendq.report.fieldsheet import plan_lines
+
+        return plan_lines(self.report, self.units)
+
+    @property
+    def field_sheet(self) -> pd.DataFrame:
+        """The actions of the planned test in field order (display units in ``attrs``)."""
+        from blendq.report.fieldsheet import field_sheet, sheet_design
+
+        return field_sheet(self.report, sheet_design(self.report), self.units)
+
+    def write(self, folder: str | os.PathLike[str]) -> Path:
+        """Write fieldsheet.pdf, fieldsheet.csv and plan.txt to ``folder`` (replaced as a
+        whole, as the report folder is)."""
+        from blendq.report.fieldsheet import field_sheet_files
+
+        files = field_sheet_files(self.report, self.units, f"blendq {__version__}")
+        return _outputs.write_outputs(folder, files, _protected(self.report.project))
+
+    def __repr__(self) -> str:
+        return "\n".join(self.lines)
+
+
+def plan_test(project: Project | str | os.PathLike[str], budget: float | None = None,
+              units: str | None = None) -> TestPlan:
+    """Plan a step test before the field day, or the next measurement after one.
+
+    Parameters
+    ----------
+    project : Project or path
+        A project folder / project.toml (its ``[plan]`` table gives prior ranges, unit costs
+        and the budget), or a loaded project (a finished test; default unit costs).
+    budget : float, optional
+        Largest cost of the test (overrides ``[plan] budget``).
+    units : {"US", "SI"}, optional
+
+    Returns
+    -------
+    TestPlan
+    """
+    from blendq.decide import plan as _plan
+    from blendq.inputs.plan_file import PlanInputs, load_for_planning
+
+    if isinstance(project, Project):
+        proj, inputs, finished = project, PlanInputs(), len(project.steps) > 0
+    else:
+        proj, inputs, finished = load_for_planning(project)
+    units = _unit_system(units or proj.settings.display_units)
+    return TestPlan(_plan.plan_test(proj, inputs, finished, budget), units)

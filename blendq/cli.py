@@ -572,6 +572,36 @@ def demo_cmd(out: Annotated[Path, typer.Option("--out", "-o", metavar="FOLDER", 
     _guard(body)
 
 
+@app.command("plan")
+def plan_cmd(project: ProjectArg,
+             budget: Annotated[float | None, typer.Option("--budget", metavar="COST", help="Largest cost of the test, in the currency of the [plan] unit costs (default: [plan] budget).")] = None,
+             out: Annotated[Path | None, typer.Option("--out", "-o", metavar="FOLDER", help="Also write the field sheet (PDF, CSV) and the plan to this folder.")] = None,
+             units: UnitsOpt = None, as_json: JsonOpt = False) -> None:
+    """Plan the step test before the field day (a project with a [plan] table and no test
+    data), or the next measurement after a test: expected spread of the window's ends, zones
+    left unresolved, the value of each step, log and depth sample."""
+
+    def body():
+        from blendq.api import plan_test, to_json
+
+        result = plan_test(project, budget=budget, units=_units(units) if units else None)
+        folder = result.write(out) if out is not None else None
+        if as_json:
+            typer.echo(to_json({"plan": result.lines,
+                                "field_sheet": result.field_sheet.to_dict(orient="records"),
+                                "units": result.field_sheet.attrs["units"],
+                                "cautions": cautions_for()}))
+            return
+        for line in result.lines:
+            typer.echo(line)
+        if folder is not None:
+            typer.echo(f"Field sheet written to {folder / 'fieldsheet.pdf'} and "
+                       f"{folder / 'fieldsheet.csv'}")
+        _echo_cautions()
+
+    _guard(body)
+
+
 def main() -> None:
     """Console-script entry point."""
     import signal

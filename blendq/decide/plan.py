@@ -757,8 +757,8 @@ class Item:
         if self.kind == "flow log":
             return ("an ambient flow log" if self.rate == 0 else
                     f"a flow log while pumping {format_quantity(self.rate, 'rate', units)}")
-        return (f"a depth sample at {format_quantity(self.depth, 'length', units)} during the "
-                f"step at {format_quantity(self.rate, 'rate', units)}")
+        return (f"a depth sample at {format_quantity(self.depth, 'length', units)} while "
+                f"pumping {format_quantity(self.rate, 'rate', units)}")
 
 
 def candidate_items(basis: Basis, design: Design, rate_max: float | None = None) -> list[Item]:

@@ -157,7 +157,7 @@ def field_sheet_document(report: PlanReport, design: Design, units: str = "US",
                        "order": "#", "action": "Action", "step": "Step", "rate": "Rate",
                        "start_hour": "Start [h]", "duration_h": "Hours",
                        "purge_volume": "Purge first", "depth": "Depth", "what": "What to do"})
-    shown = shown.fillna("")
+    shown = shown.astype(object).where(shown.notna(), "")
     facts = KeyValues((("Well", report.project.well.name),
                        ("Steps", str(design.n_steps)),
                        ("Flow logs", str(len(design.log_rates))),

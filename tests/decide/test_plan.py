@@ -237,3 +237,93 @@ def test_cost_counts_each_item(field):
     more = dataclasses.replace(COSTS, **{field: getattr(COSTS, field) + 1.0}).of(d)
     count = {"lab_sample": 6, "flowlog_run": 1, "rig_hour": 20 + 2.0 + 0.5}[field]
     np.testing.assert_allclose(more - base, count, rtol=1e-12)
+
+
+# -- candidates and the search ------------------------------------------------------------------
+
+def test_candidates_number_over_two_hundred_and_stay_in_the_pump_range():
+    cands = plan.candidate_designs(BASIS, 2400.0)
+    assert len(cands) >= 200
+    top = plan.top_step_rate(BASIS, 2400.0)
+    for d in cands:
+        assert max(d.rates) <= top * (1 + 1e-12)
+        assert all(h >= plan.MIN_STEP_HOURS for h in d.step_hours)
+    # a low step below the thief zone's reversal (700 m3/d for Z4) is among them
+    np.testing.assert_allclose(plan.reversal_rates(BASIS)[3], 700.0, rtol=1e-9)
+    assert any(min(d.rates) < 700.0 and len(d.rates) >= 3 for d in cands)
+
+
+@pytest.mark.parametrize("budget", [6000.0, 9000.0])
+def test_greedy_search_keeps_the_budget_and_never_loses_ground(budget):
+    p = plan.choose_design(BASIS, COSTS, budget, rate_max=2400.0, candidates=[])
+    assert p.evaluation.cost <= budget
+    spread = [_rss(v.without) for v in p.steps_taken] + [p.evaluation.objective]
+    assert all(b <= a * (1 + 1e-9) for a, b in zip(spread, spread[1:], strict=False))
+    for v in p.values:  # an item of the chosen design never widens the window's ends
+        assert v.with_["low"] <= v.without["low"] * (1 + 1e-6)
+        assert v.with_["high"] <= v.without["high"] * (1 + 1e-6)
+
+
+def test_a_bigger_budget_buys_no_wider_spread():
+    small = plan.choose_design(BASIS, COSTS, 6000.0, rate_max=2400.0)
+    large = plan.choose_design(BASIS, COSTS, 12000.0, rate_max=2400.0)
+    assert large.evaluation.objective <= small.evaluation.objective
+
+
+def test_budget_below_three_steps_is_refused():
+    from blendq.errors import ModelError
+
+    with pytest.raises(ModelError, match="budget"):
+        plan.choose_design(BASIS, COSTS, 500.0, rate_max=2400.0)
+
+
+def _rss(sd):
+    return float(np.sqrt(sum(v * v for v in sd.values())))
+
+
+def test_item_sentence():
+    v = plan.ItemValue(plan.Item("depth sample", 600 * 5.45099296896, 164 * 0.3048), 350.0,
+                       {"low": 0.0, "high": 60 * 5.45099296896}, {"low": 0.0, "high": 15 * 5.45099296896})
+    assert v.sentence("US") == ("a depth sample at 164 ft while pumping 600 gpm narrows the "
+                                "window's high end from +-60 gpm to +-15 gpm")
+
+
+def test_what_next_after_a_finished_test_ranks_by_gain():
+    p = sw.project(seed=3, depth=False, logs=False,
+                   settings=Settings(conductance_model="given", margin=1.0,
+                                     temporal_cv={"default": 0.0}))
+    p.limits = list(LIMITS)
+    b = plan.basis_from_fit(fit(p))
+    items = plan.what_next(b, COSTS, rate_max=2400.0)
+    gains = [v.gain for v in items]
+    assert gains == sorted(gains, reverse=True)
+    assert {v.item.kind for v in items} == {"step", "flow log", "depth sample"}
+    assert gains[0] > 0
+    # the finished test's own spreads are the "without" of every item
+    now = plan.evaluate(b, plan.Design((), ()), plan.window_ends(b, 2400.0), COSTS)
+    assert items[0].without == now.end_sd
+
+
+def test_basis_from_priors_of_the_example():
+    from pathlib import Path
+
+    from blendq.inputs.plan_file import load_for_planning
+
+    project, inputs, finished = load_for_planning(
+        Path(plan.__file__).resolve().parents[1] / "data" / "plan")
+    b = plan.basis_from_priors(project, inputs)
+    # the middle of each range, a quarter of its width as sd
+    np.testing.assert_allclose(b.zone_values[0, 0], 11.0, rtol=1e-12)
+    np.testing.assert_allclose(b.value_sd[0, 0], 1.5, rtol=1e-12)
+    np.testing.assert_allclose(b.theta_sd[0], np.log(4000 / 1500) / 4, rtol=1e-12)
+    assert b.min_step_hours == pytest.approx(2.0)
+    r = plan.plan_test(project, inputs, finished)
+    assert r.plan.evaluation.cost <= inputs.budget
+
+
+def test_purge_volume_is_three_casing_volumes():
+    """V = 3 pi r^2 L (cylinder volume) for the water column from the static level down."""
+    p = sw.project()
+    p.well = dataclasses.replace(p.well, static_level=12.0)
+    np.testing.assert_allclose(plan.purge_volume(p), 3 * np.pi * 0.15**2 * (100.0 - 12.0),
+                               rtol=1e-12)

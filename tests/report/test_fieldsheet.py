@@ -1,0 +1,56 @@
+"""Tests of the field sheet of a planned test."""
+
+from __future__ import annotations
+
+import io
+from pathlib import Path
+
+import pandas as pd
+
+from blendq.decide import plan
+from blendq.inputs.plan_file import load_for_planning
+from blendq.report.fieldsheet import (
+    field_sheet,
+    field_sheet_document,
+    field_sheet_files,
+    sheet_design,
+)
+
+EXAMPLE = Path(plan.__file__).resolve().parents[1] / "data" / "plan"
+
+
+def _report():
+    project, inputs, finished = load_for_planning(EXAMPLE)
+    return plan.plan_test(project, inputs, finished, budget=6000.0)
+
+
+REPORT = _report()
+
+
+def test_field_sheet_follows_the_design_in_field_order():
+    design = sheet_design(REPORT)
+    table = field_sheet(REPORT, design, "US")
+    assert table["order"].tolist() == list(range(1, len(table) + 1))
+    steps = table[table["action"] == "step"]
+    assert len(steps) == design.n_steps
+    assert (table["action"] == "depth sample").sum() == len(design.depth_samples)
+    assert (table["action"] == "discharge sample").sum() == design.n_steps
+    assert steps["start_hour"].is_monotonic_increasing
+    # gpm shown: 1 gpm = 3.785411784 L x 1440 min/d = 5.45099296896 m3/d (NIST SP 811)
+    pd.testing.assert_series_equal(steps["rate"].reset_index(drop=True),
+                                   pd.Series([r / 5.45099296896 for r in design.rates], name="rate"),
+                                   rtol=1e-6)
+    assert table.attrs["units"] == {"rate": "gpm", "volume": "gallon", "depth": "ft"}
+
+
+def test_files_are_written_the_same_twice_and_carry_the_cautions(monkeypatch):
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1700000000")
+    a = field_sheet_files(REPORT, "SI", "test")
+    b = field_sheet_files(_report(), "SI", "test")
+    assert a == b
+    assert a["fieldsheet.pdf"].startswith(b"%PDF")
+    table = pd.read_csv(io.StringIO(a["fieldsheet.csv"]))
+    assert "rate [m**3/d]" in table.columns and "purge_volume [m**3]" in table.columns
+    assert "planning aid, not a compliance determination" in a["plan.txt"]
+    doc = field_sheet_document(REPORT, sheet_design(REPORT), "SI")
+    assert "compliance determination" in doc.sections[0].blocks[0].text
