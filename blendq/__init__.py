@@ -31,6 +31,8 @@ _API_NAMES = (
     "demo_path",
     "load_project",
     "parse_rates",
+    "plan_test",
+    "StepTestPlan",
     "to_json",
 )
 

@@ -61,7 +61,7 @@ __all__ = [
     "OperatingWindow",
     "Plots",
     "Result",
-    "TestPlan",
+    "StepTestPlan",
     "analyse",
     "build_scenarios",
     "check_report_folder",
@@ -1050,7 +1050,7 @@ class Plots:
 
 
 # ------------------------------------------------------------------------------ planning
-class TestPlan:
+class StepTestPlan:
     """A planned step test (or, after a test, the next measurement), in display units.
 
     Made by :func:`plan_test`. ``report`` is the planner's plain result
@@ -1089,7 +1089,7 @@ class TestPlan:
 
 
 def plan_test(project: Project | str | os.PathLike[str], budget: float | None = None,
-              units: str | None = None) -> TestPlan:
+              units: str | None = None) -> StepTestPlan:
     """Plan a step test before the field day, or the next measurement after one.
 
     Parameters
@@ -1103,7 +1103,7 @@ def plan_test(project: Project | str | os.PathLike[str], budget: float | None = 
 
     Returns
     -------
-    TestPlan
+    StepTestPlan
     """
     from blendq.decide import plan as _plan
     from blendq.inputs.plan_file import PlanInputs, load_for_planning
@@ -1113,4 +1113,4 @@ def plan_test(project: Project | str | os.PathLike[str], budget: float | None = 
     else:
         proj, inputs, finished = load_for_planning(project)
     units = _unit_system(units or proj.settings.display_units)
-    return TestPlan(_plan.plan_test(proj, inputs, finished, budget), units)
+    return StepTestPlan(_plan.plan_test(proj, inputs, finished, budget), units)
