@@ -15,7 +15,7 @@
    within 25 %. A replicate whose fitted values leave no window is counted and left out of the
    sd (it would have no ends).
 
-Run:  python benchmarks/bench_plan.py [--replicates 60] [--baseline 20]   (about 2 min)
+Run:  python benchmarks/bench_plan.py [--replicates 30] [--baseline 20]   (about 2 min)
 """
 
 from __future__ import annotations
@@ -92,7 +92,7 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--designs", type=int, default=200)
     ap.add_argument("--baseline", type=int, default=20)
-    ap.add_argument("--replicates", type=int, default=60)
+    ap.add_argument("--replicates", type=int, default=30)
     ap.add_argument("--skip-calibration", action="store_true")
     args = ap.parse_args()
     speed(args.designs, args.baseline)

@@ -112,6 +112,7 @@ def test_end_gradient_predicts_the_moved_end():
         np.testing.assert_allclose(e1.rate - e0.rate, e0.gradient @ dphi, rtol=0.02, atol=1e-3)
 
 
+@pytest.mark.slow
 def test_end_spread_agrees_with_fitted_replicates_of_the_package_generator():
     """Replicates of the planned test from blendq.well.synthetic, priors drawn off the truth by
     their stated spread as the plan assumes, fitted by blendq: the sample sd of the fitted
