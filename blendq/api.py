@@ -1076,9 +1076,17 @@ class StepTestPlan:
 
         return field_sheet(self.report, sheet_design(self.report), self.units)
 
+    @property
+    def candidates(self) -> pd.DataFrame:
+        """Every candidate design evaluated with its cost, expected end spreads and the zones
+        it leaves unresolved (empty after a finished test)."""
+        from blendq.report.fieldsheet import candidates_table
+
+        return candidates_table(self.report, self.units)
+
     def write(self, folder: str | os.PathLike[str]) -> Path:
-        """Write fieldsheet.pdf, fieldsheet.csv and plan.txt to ``folder`` (replaced as a
-        whole, as the report folder is)."""
+        """Write fieldsheet.pdf, fieldsheet.csv, plan.txt (and candidates.csv) to ``folder``
+        (replaced as a whole, as the report folder is)."""
         from blendq.report.fieldsheet import field_sheet_files
 
         files = field_sheet_files(self.report, self.units, f"blendq {__version__}")

@@ -590,6 +590,7 @@ def plan_cmd(project: ProjectArg,
         if as_json:
             typer.echo(to_json({"plan": result.lines,
                                 "field_sheet": result.field_sheet.to_dict(orient="records"),
+                                "candidates": result.candidates.to_dict(orient="records"),
                                 "units": result.field_sheet.attrs["units"],
                                 "cautions": cautions_for()}))
             return

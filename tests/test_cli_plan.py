@@ -22,7 +22,7 @@ def test_plan_a_new_test_writes_the_field_sheet(tmp_path):
     assert "window high end near" in r.output
     assert "planning aid, not a compliance determination" in r.output
     assert sorted(p.name for p in out.iterdir() if not p.name.startswith(".")) == [
-        "fieldsheet.csv", "fieldsheet.pdf", "plan.txt"]
+        "candidates.csv", "fieldsheet.csv", "fieldsheet.pdf", "plan.txt"]
 
 
 def test_plan_after_a_test_ranks_the_next_measurement():

@@ -89,12 +89,13 @@ class Design:
 
     def with_step(self, rate: float, hours: float) -> Design:
         """The design with one more step, steps sorted by rate (a rising step test)."""
-        pairs = sorted([*zip(self.rates, self.step_hours, strict=True), (float(rate), hours)])
-        old = sorted(range(self.n_steps), key=lambda k: self.rates[k])
-        new_index = {k: [r for r, _ in pairs].index(self.rates[k]) for k in old}
-        samples = tuple((new_index[k], d) for k, d in self.depth_samples)
-        return replace(self, rates=tuple(r for r, _ in pairs),
-                       step_hours=tuple(h for _, h in pairs), depth_samples=samples)
+        rates = (*self.rates, float(rate))
+        hrs = (*self.step_hours, float(hours))
+        order = sorted(range(len(rates)), key=lambda k: rates[k])  # stable: ties keep order
+        position = {k: i for i, k in enumerate(order)}
+        samples = tuple((position[k], d) for k, d in self.depth_samples)
+        return replace(self, rates=tuple(rates[k] for k in order),
+                       step_hours=tuple(hrs[k] for k in order), depth_samples=samples)
 
 
 @dataclass(frozen=True)

@@ -188,8 +188,36 @@ def sheet_design(report: PlanReport) -> Design:
     return report.next_items[0].item.alone(report.basis)
 
 
+def candidates_table(report: PlanReport, units: str = "US") -> pd.DataFrame:
+    """Every candidate design evaluated, cheapest first: steps and their rates, flow logs,
+    depth samples, cost, the expected sd of each window end and the zones left unresolved
+    (display units named in ``attrs["units"]``). Empty after a finished test."""
+    rate_unit, len_unit = _unit("rate", units), _unit("length", units)
+    rows = []
+    for ev in report.plan.candidates if report.plan is not None else []:
+        d = ev.design
+
+        def rate(q):
+            return f"{float(from_base(q, 'rate', rate_unit)):.4g}"
+
+        rows.append(dict(
+            steps=d.n_steps, rates=" ".join(rate(q) for q in d.rates),
+            flow_logs=" ".join(rate(q) for q in d.log_rates),
+            depth_samples=" ".join(f"S{k + 1}@{float(from_base(x, 'length', len_unit)):.4g}"
+                                   for k, x in d.depth_samples),
+            cost=ev.cost,
+            low_end_sd=float(from_base(ev.end_sd.get("low", 0.0), "rate", rate_unit)),
+            high_end_sd=float(from_base(ev.end_sd.get("high", 0.0), "rate", rate_unit)),
+            unresolved=" ".join(sorted({z for v in ev.unresolved.values() for z in v}))))
+    out = pd.DataFrame(rows, columns=["steps", "rates", "flow_logs", "depth_samples", "cost",
+                                      "low_end_sd", "high_end_sd", "unresolved"])
+    out.attrs["units"] = {"rate": rate_unit, "depth": len_unit}
+    return out
+
+
 def field_sheet_files(report: PlanReport, units: str = "US", created: str = "") -> dict:
-    """The files of ``blendq plan --out``: fieldsheet.pdf, fieldsheet.csv and plan.txt."""
+    """The files of ``blendq plan --out``: fieldsheet.pdf, fieldsheet.csv, plan.txt and, for a
+    new test, candidates.csv (every candidate design with its expected end spreads)."""
     import io
 
     from blendq.report.pdf import render_pdf_bytes
@@ -198,6 +226,16 @@ def field_sheet_files(report: PlanReport, units: str = "US", created: str = "") 
     buf = io.StringIO()
     write_csv(field_sheet(report, design, units), buf)
     text = "\n".join([*plan_lines(report, units), "", *CAUTIONS[:2], CAUTIONS[3]]) + "\n"
-    return {"fieldsheet.pdf": render_pdf_bytes(field_sheet_document(report, design, units,
-                                                                    created)),
-            "fieldsheet.csv": buf.getvalue(), "plan.txt": text}
+    files = {"fieldsheet.pdf": render_pdf_bytes(field_sheet_document(report, design, units,
+                                                                     created)),
+             "fieldsheet.csv": buf.getvalue(), "plan.txt": text}
+    if report.plan is not None:
+        table = candidates_table(report, units)
+        u = table.attrs["units"]
+        files["candidates.csv"] = table.rename(columns={
+            "rates": f"rates [{u['rate']}]", "flow_logs": f"flow_logs [{u['rate']}]",
+            "depth_samples": f"depth_samples [step@{u['depth']}]",
+            "low_end_sd": f"low_end_sd [{u['rate']}]",
+            "high_end_sd": f"high_end_sd [{u['rate']}]"}).to_csv(
+                index=False, float_format="%.4g", lineterminator="\n")
+    return files

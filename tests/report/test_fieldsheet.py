@@ -54,3 +54,14 @@ def test_files_are_written_the_same_twice_and_carry_the_cautions(monkeypatch):
     assert "planning aid, not a compliance determination" in a["plan.txt"]
     doc = field_sheet_document(REPORT, sheet_design(REPORT), "SI")
     assert "compliance determination" in doc.sections[0].blocks[0].text
+
+
+def test_candidates_table_lists_every_design_evaluated():
+    from blendq.report.fieldsheet import candidates_table
+
+    table = candidates_table(REPORT, "US")
+    assert len(table) == len(REPORT.plan.candidates) >= 200
+    assert table["cost"].is_monotonic_increasing
+    assert (table["low_end_sd"] >= 0).all() and (table["high_end_sd"] >= 0).all()
+    files = field_sheet_files(REPORT, "US", "test")
+    assert files["candidates.csv"].startswith("steps,rates [gpm],")
