@@ -689,8 +689,8 @@ def _low_rate(basis: Basis, top: float) -> float | None:
 def candidate_designs(basis: Basis, rate_max: float | None = None) -> list[Design]:
     """Candidate designs: 3 to 7 steps spaced evenly or geometrically up to
     :func:`top_step_rate` (and an even set with a step below the largest reversal rate);
-    no flow log, an ambient log, ambient and pumped at the top step, ambient and pumped at the
-    middle step; no depth sample, or one in each gap between zones during the top step, the
+    no flow log, an ambient log, ambient and pumped at the top, the middle or the lowest step;
+    no depth sample, or one in each gap between zones during the top step, the
     middle step, or both."""
     top = top_step_rate(basis, rate_max)
     w = basis.project.well
@@ -708,7 +708,7 @@ def candidate_designs(basis: Basis, rate_max: float | None = None) -> list[Desig
         rates = tuple(float(r) for r in np.maximum(rates, floor))
         hours = tuple(step_hours(basis, r) for r in rates)
         k_top, k_mid = len(rates) - 1, len(rates) // 2
-        logs_options = [(), (0.0,), (0.0, rates[k_top]), (0.0, rates[k_mid])]
+        logs_options = [(), (0.0,), (0.0, rates[k_top]), (0.0, rates[k_mid]), (0.0, rates[0])]
         depth_options = [(), tuple((k_top, d) for d in gaps), tuple((k_mid, d) for d in gaps),
                          tuple((k, d) for k in (k_mid, k_top) for d in gaps)]
         for logs in logs_options:
