@@ -174,8 +174,9 @@ class Basis:
     log_depths: np.ndarray = field(default_factory=lambda: np.zeros(0))
     existing: Design | None = None
     min_step_hours: float = MIN_STEP_HOURS
-    _existing: tuple | None = field(default=None, repr=False)
-    _rows: dict = field(default_factory=dict, repr=False)
+    # caches, never copied by dataclasses.replace (a changed basis computes its own)
+    _existing: tuple | None = field(default=None, repr=False, init=False)
+    _rows: dict = field(default_factory=dict, repr=False, init=False)
 
     @property
     def n_zones(self) -> int:
