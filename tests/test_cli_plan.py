@@ -45,3 +45,9 @@ def test_api_plan_in_si():
     assert p.units == "SI"
     assert p.field_sheet.attrs["units"]["rate"] == "m**3/d"
     assert "m³/d" in repr(p)
+
+
+def test_other_commands_refuse_a_project_that_only_plans():
+    r = runner.invoke(app, ["check", str(EXAMPLE)])
+    assert r.exit_code == 2
+    assert "tables.steps" in r.output and "blendq plan" in r.output

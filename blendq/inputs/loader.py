@@ -386,6 +386,10 @@ def load_project(path: str | Path) -> Project:
 
 def _load(path: str | Path) -> Project:
     head = read_project_file(path)
+    if "steps" not in head.tables:  # a project that only plans its test ([plan])
+        raise InputError("no steps table yet: this project plans its test; `blendq plan` "
+                         "reads it, the other commands need the test's steps",
+                         file=head.path.name, field="tables.steps")
     files = {"project": head.path.name} | {k: v[1] for k, v in head.tables.items()}
     tables = {k: read_table(p, lbl, k) for k, (p, lbl) in head.tables.items()}
     steps = _steps(tables["steps"])
