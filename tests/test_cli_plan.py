@@ -51,3 +51,14 @@ def test_other_commands_refuse_a_project_that_only_plans():
     r = runner.invoke(app, ["check", str(EXAMPLE)])
     assert r.exit_code == 2
     assert "tables.steps" in r.output and "blendq plan" in r.output
+
+
+def test_plan_in_a_fresh_process():
+    # a new interpreter imports the modules in the command's own order (hidden cycles show)
+    import subprocess
+    import sys
+
+    r = subprocess.run([sys.executable, "-m", "blendq", "plan", str(EXAMPLE), "--budget",
+                        "6000"], capture_output=True, text=True, timeout=300)
+    assert r.returncode == 0, r.stderr
+    assert "Traceback" not in r.stderr and "Planned test" in r.stdout
