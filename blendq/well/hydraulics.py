@@ -457,7 +457,6 @@ def solve_by_zone(rate, conductance, static_head, nonlinear_loss=None, exponent=
     if lossless and all(w and (t is None or hw.min() >= t) for w, t in zip(wet_above, et, strict=True)):
         return hw, flows
     done = ~feasible
-    scale = np.abs(q) + 1e-12 * g_sum * (max(np.max(np.abs(hi)) for hi in h0) + 1.0)
     for _ in range(NEWTON_ITERATIONS):
         num, den, parts = 0.0, 0.0, []
         for i in range(n):
