@@ -392,8 +392,11 @@ def solve_wellbore_head(
 #: Newton iterations of :func:`solve_wellbore_head` on all points at once before the points
 #: left over go to the bracketed solve
 NEWTON_ITERATIONS = 30
-#: relative size of a Newton step below which a point counts as converged
-NEWTON_TOL = 1e-11
+#: relative accuracy of the Newton iteration
+NEWTON_TOL = 1e-12
+#: relative size of the last Newton step (about sqrt(NEWTON_TOL) times a safety factor): the
+#: error after a step of that size is of order NEWTON_TOL (quadratic convergence)
+NEWTON_STOP = 1e-7
 
 
 def solve_by_zone(rate, conductance, static_head, nonlinear_loss=None, exponent=2.0,
@@ -456,50 +459,69 @@ def solve_by_zone(rate, conductance, static_head, nonlinear_loss=None, exponent=
     lossless = all(x is None for x in d) and all(x is None for x in bl)
     if lossless and all(w and (t is None or hw.min() >= t) for w, t in zip(wet_above, et, strict=True)):
         return hw, flows
-    done = ~feasible
+    all_feasible = bool(np.all(feasible))
+    pd = [None if d[i] is None else p[i] * d[i] for i in range(n)]
+    h0_max = max(float(np.max(np.abs(hi))) for hi in h0)
+    tol_q = NEWTON_TOL * (float(np.max(np.abs(q))) + 1e-3 * float(np.max(g_sum)) * (1 + h0_max))
+    bad = np.zeros(shape, bool)  # points the iteration cannot step (left to the bracketed solve)
+    converged = False
+    step = np.full(shape, np.inf)
     for _ in range(NEWTON_ITERATIONS):
         num, den, parts = 0.0, 0.0, []
         for i in range(n):
             qi = flows[i]
-            hf = hw
-            dl = 0.0
+            hf, dl = hw, 0.0
             if d[i] is not None or bl[i] is not None:
-                a = np.abs(qi)
-                ap = a if p[i] == 2.0 else np.where(a > 0, a ** (p[i] - 1.0),
-                                                     1.0 if p[i] == 1.0 else 0.0)
-                loss, dl = 0.0, 0.0
+                loss = 0.0
                 if d[i] is not None:
-                    loss, dl = d[i] * qi * ap, (p[i] * d[i]) * ap
+                    a = np.abs(qi)
+                    ap = a if p[i] == 2.0 else np.where(a > 0, a ** (p[i] - 1.0),
+                                                         1.0 if p[i] == 1.0 else 0.0)
+                    loss, dl = (d[i] * ap) * qi, pd[i] * ap
                 if bl[i] is not None:
                     loss, dl = loss + bl[i] * qi, dl + bl[i]
                 hf = hw + loss
             if et[i] is not None and not (wet_above[i] and hf.min() >= et[i]):
                 psi_f, wet = saturated_potential(hf, et[i], eb[i])
                 resid = psi0[i] - psi_f - qi * inv_g[i]
-            else:  # confined at every point: psi(h0) - psi(h_f) = h0 - h_f
-                wet = 1.0
+                ia = 1.0 / (wet * dl + inv_g[i] + closed[i] * (g[i] == 0))
+                wia = wet * ia
+            else:  # confined at every point: psi(h0) - psi(h_f) = h0 - h_f, wet = 1
                 resid = h0[i] - hf - qi * inv_g[i]
-            ia = 1.0 / (wet * dl + inv_g[i]) if not closed[i] else \
-                np.where(g[i] > 0, 1.0 / (wet * dl + inv_g[i] + (g[i] == 0)), 0.0)
+                ia = 1.0 / (dl + inv_g[i] + closed[i] * (g[i] == 0))
+                wia = ia
             if closed[i]:
                 resid = np.where(g[i] > 0, resid, 0.0)
+                ia = np.where(g[i] > 0, ia, 0.0)
+                wia = np.where(g[i] > 0, wia, 0.0)
             num = num + resid * ia
-            wia = wet * ia
             den = den + wia
             parts.append((resid, wia, ia))
         with np.errstate(divide="ignore", invalid="ignore"):
-            step = (num - (q - sum(flows))) / den
-        ok = np.isfinite(step) & ~done
-        step = np.where(ok, step, 0.0)
+            step = num / den
+        finite = np.isfinite(step)
+        if not (all_feasible and finite.all()):
+            finite &= feasible
+            bad |= ~finite
+            step = np.where(finite, step, 0.0)
         hw += step
+        dq_max = 0.0
         for i, (resid, wia, ia) in enumerate(parts):
-            flows[i] += np.where(ok, resid * ia - wia * step, 0.0)
-        small = np.abs(step) <= NEWTON_TOL * (1.0 + np.abs(hw))
-        for resid, _, _ in parts:
-            small &= np.abs(resid) <= NEWTON_TOL * (1.0 + np.abs(hw))
-        done |= ok & small
-        if np.all(done):
+            inc = resid * ia - wia * step
+            if not finite.all():
+                inc = np.where(finite, inc, 0.0)
+            flows[i] += inc
+            dq_max = max(dq_max, float(np.abs(inc).max()))
+        # quadratic convergence: once a step is below sqrt(tol), the error after it is ~tol
+        h_step = float(np.abs(step).max())
+        if h_step <= NEWTON_STOP * (1.0 + float(np.abs(hw).max())) and \
+                dq_max <= NEWTON_STOP / NEWTON_TOL * tol_q:
+            converged = True
             break
+    done = ~bad
+    if not converged:
+        done &= np.abs(step) <= NEWTON_STOP * (1.0 + np.abs(hw))
+    done |= ~feasible
     if not np.all(done):
         idx = np.nonzero(~done)
         m = len(idx[0])
