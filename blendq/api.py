@@ -618,7 +618,8 @@ class Result:
         s = self.project.settings
         pred = _sweep.sweep(a.fit, a.draws, parse_rates(rates, self.units))
         table = _sweep.sweep_table(pred, a.limits, s.margin, s.interval, self.project.zone_names,
-                                   _sweep.compliance_statistics(self.project, a.limits))
+                                   _sweep.compliance_statistics(self.project, a.limits),
+                                   self.project.zone_top)
         return self._sweep_frame(table)
 
     def _sweep_frame(self, table: pd.DataFrame) -> pd.DataFrame:
@@ -640,6 +641,9 @@ class Result:
                 table[f"pumping_level_{stat}"].to_numpy(float), "length", du["length"])
         for z in self.project.zone_names:
             out[f"share {z} [-]"] = table[f"share_{z}"].to_numpy(float)
+        for z in self.project.zone_names:
+            if f"cascading_{z}" in table:
+                out[f"P(water cascades from {z}) [-]"] = table[f"cascading_{z}"].to_numpy(float)
         frame = pd.DataFrame(out)
         frame.attrs.update(units=self.units, interval=s.interval)
         return frame

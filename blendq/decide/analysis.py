@@ -120,7 +120,7 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     window = sweep.window_for(fit, pred, level_deep=levels.level_deep)
     limits = sweep.governing_limits(project.limits, pred.analytes)
     table = sweep.sweep_table(pred, limits, s.margin, s.interval, project.zone_names,
-                              sweep.compliance_statistics(project, limits))
+                              sweep.compliance_statistics(project, limits), project.zone_top)
     notes = list(d.notes)
     hyd = diagnostics.hydraulics_table(fit)
     if (hyd["conductance_from"] == "prior").any():
@@ -225,7 +225,22 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
             f"statistic stays below {s.margin:.0%} of the limit in at least "
             f"{1 - s.sample_exceedance_probability:.0%} of samples, and the pumping level "
             f"above the intake plus submergence). {demand_sentence(a, units)} "
-            f"{headroom_sentence(a, units)}{caveat}")
+            f"{headroom_sentence(a, units)}{caveat}{cascade_sentence(a, units)}")
+
+
+def cascade_sentence(a: Analysis, units: str = "US") -> str:
+    """The zones water cascades from above the pumping level (" ..." or "")."""
+    from blendq.units import format_quantity
+
+    parts = [f"{name} from {format_quantity(rate, 'rate', units)}"
+             + (" (inside the window)" if inside else "")
+             for name, rate, inside in a.window.cascading]
+    if not parts:
+        return ""
+    return (f" Water cascades into the well above the pumping level (the level below a "
+            f"producing zone's top) from {'; '.join(parts)}: the zone is dewatered at the well "
+            "face, its inflow follows its saturated thickness, and the falling water entrains "
+            "air; set zones[i].keep_level_above to make its top a hard limit.")
 
 
 def failure_drivers(a: Analysis, units: str = "US") -> list[str]:

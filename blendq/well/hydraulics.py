@@ -513,8 +513,8 @@ def solve_by_zone(rate, conductance, static_head, nonlinear_loss=None, exponent=
             flows[i] += inc
             dq_max = max(dq_max, float(np.abs(inc).max()))
         # quadratic convergence: once a step is below sqrt(tol), the error after it is ~tol
-        h_step = float(np.abs(step).max())
-        if h_step <= NEWTON_STOP * (1.0 + float(np.abs(hw).max())) and \
+        h_step = float((np.abs(step) / (1.0 + np.abs(hw))).max())
+        if h_step <= NEWTON_STOP and \
                 dq_max <= NEWTON_STOP / NEWTON_TOL * tol_q:
             converged = True
             break
