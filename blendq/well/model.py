@@ -94,9 +94,13 @@ class WellModel:
         The ambient crossflow q0_i (at Q = 0, wellbore head h_w0) is a steady state that was
         there before the test; pumping superposes a response whose conductance falls with time
         (linear superposition; Cooper and Jacob 1946). With G'_i = f_i G_i the static heads are
-        moved to h0'_i = h_w0 + q0_i / G'_i + D_i q0_i |q0_i| so that the model at Q = 0 still
-        gives h_w0 and q0_i exactly, while q_i - q0_i follows G'_i. For linear zones this is
-        q_i(Q) = q0_i + G'_i (h_w0 - h_w(Q)) with sum_i q_i = Q.
+        moved to h0'_i = h_w0 + q0_i / G'_i + L_i(q0_i) (L_i the zone's entrance loss) so that
+        the model at Q = 0 still gives h_w0 and q0_i exactly, while q_i - q0_i follows G'_i.
+        For linear zones this is q_i(Q) = q0_i + G'_i (h_w0 - h_w(Q)) with sum_i q_i = Q. For a
+        zone dewatered at rest the same holds in its discharge potential:
+        psi(h0'_i) = psi(h_w0 + L_i(q0_i)) + q0_i / G'_i; where that would need a head below
+        the zone's bottom (a thief zone unconfined at rest) its static head is its bottom and
+        it takes less water at rest.
 
         Parameters
         ----------
