@@ -142,6 +142,7 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
                         f"analyte with a limit: {listed}. The model and these results disagree; "
                         "explain them (sampling, lab, or a zone the model lacks) before relying "
                         "on the window.")
+    notes += entrance_loss_notes(fit)
     horizon_note = horizon_scaling(project, elapsed_test_time(project), s.horizon).note(project)
     if horizon_note:
         notes.append(horizon_note)
@@ -150,6 +151,26 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
                     residuals, hyd, pred, window, limits, table, skipped,
                     levels, notes, per_result)
+
+
+def entrance_loss_notes(fit) -> list[str]:
+    """One sentence per zone whose nonlinear entrance loss was fitted: its value where the
+    data resolve it, else "not resolved" (no number)."""
+    table = fit.entrance_losses
+    if table is None:
+        return []
+    out = []
+    for r in table.itertuples(index=False):
+        if r.verdict == "resolved":
+            out.append(f"Entrance loss of {r.zone} fitted (C q^P with P = {r.exponent:g}): "
+                       f"C = {r.coefficient:.3g} d^{r.exponent:g}/m^{3 * r.exponent - 1:g}, a "
+                       f"head loss of {r.loss_at_reference:.2g} m +- "
+                       f"{r.loss_at_reference_sd:.2g} m at a zone inflow of "
+                       f"{r.reference_flow:.4g} m3/d.")
+        else:
+            out.append(f"Entrance loss of {r.zone}: not resolved by the data (its sd is not "
+                       "below half its value); held at the zone's given value.")
+    return out
 
 
 def demand_sentence(a: Analysis, units: str = "US") -> str:

@@ -404,7 +404,6 @@ def _refit_draws(fit: FitResult, data: _PerturbedData, idx: np.ndarray):
     """Refit of the draws ``idx`` from the best fit; returns theta (B, p), zone values
     (B, n, a) and a converged flag (B,)."""
     problem = fit.problem
-    n = problem.n_zones
     theta = np.repeat(fit.theta[None, :], len(idx), axis=0)
 
     def fun(th, rows, state, check):
@@ -413,9 +412,7 @@ def _refit_draws(fit: FitResult, data: _PerturbedData, idx: np.ndarray):
     if not problem.options.fit_hydraulics or fit.jacobian.size == 0:
         _, zv, _ = fun(theta, np.arange(len(idx)), None, True)
         return theta, zv, np.ones(len(idx), bool)
-    lower = np.full(theta.shape[1], -np.inf)
-    if problem.fit_c:
-        lower[2 * n] = 0.0
+    lower = problem.lower_bounds()
     sd = np.sqrt(np.clip(np.diag(fit.theta_cov), 0.0, None))
     steps = 1e-4 * np.where(sd > 0, sd, 1e-6 * np.maximum(1.0, np.abs(fit.theta)))
     return levenberg_marquardt_batch(fun, theta, lower, steps)

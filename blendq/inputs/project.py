@@ -270,6 +270,8 @@ class Settings:
         Date of the report, ISO 8601 (YYYY-MM-DD); "" for the date of the run.
     paper : str
         "a4" or "letter"; "" for Letter with US display units and A4 with SI.
+    fit_entrance_losses : bool
+        Fit each zone's nonlinear entrance loss (kept where the data resolve it).
     """
 
     limit_sets: tuple[str, ...] = ("US-EPA",)
@@ -304,6 +306,7 @@ class Settings:
     reviewed_by: str = ""
     report_date: str = ""
     paper: str = ""
+    fit_entrance_losses: bool = False
 
     def temporal_cv_for(self, analyte: str) -> tuple[float, str]:
         """Temporal coefficient of variation of ``analyte`` [-] and where it comes from

@@ -479,6 +479,7 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
         gross_outlier_factor=float(s.number("gross_outlier_factor", d.gross_outlier_factor,
                                             1.0, None, True)),
         temporal_cv=_temporal_cv(s),
+        fit_entrance_losses=s.flag("fit_entrance_losses", d.fit_entrance_losses),
     )
     s.done()
     return settings
