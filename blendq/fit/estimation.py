@@ -250,7 +250,7 @@ def level_depths(problem: Problem, model: WellModel) -> np.ndarray:
     if problem.schedule is None:
         return model.pumping_level_depth(problem.level_rate)
     hw, _ = step_levels(model.conductance, model.static_head, model.nonlinear_loss,
-                        problem.slope, problem.schedule)
+                        problem.slope, problem.schedule, model.loss_exponent, model.linear_loss)
     k = len(problem.level_step)
     rate = problem.level_rate[:k]
     c = np.asarray(model.well_loss, float)[..., None]
