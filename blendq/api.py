@@ -813,6 +813,9 @@ class OperatingWindow:
         The decision sentence.
     reason_empty : str
         Why there is no window ("" when there is one).
+    cascading : DataFrame
+        Zones water cascades from above the pumping level (in more than alpha of the draws):
+        ``zone``, ``from [<rate unit>]`` (the lowest such rate), ``inside window``.
     units : {"US", "SI"}
     """
 
@@ -832,6 +835,10 @@ class OperatingWindow:
         self.demand = None if not demand else float(from_base(demand, "rate", du["rate"]))
         self.demand_met = w.demand_met
         self.headroom, self.headroom_kept = w.headroom, w.headroom_kept
+        self.cascading = pd.DataFrame(
+            [(z, float(from_base(r, "rate", du["rate"])), inside)
+             for z, r, inside in w.cascading],
+            columns=["zone", f"from [{self.rate_unit}]", "inside window"])
         self.decision = _pipeline.decision_sentence(analysis, units)
         self.reason_empty = w.reason_empty
 

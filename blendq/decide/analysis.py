@@ -233,7 +233,7 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
                "this well." if demand else "")
         return (f"No pumping rate meets every limit with the {s.margin:.0%} margin at "
                 f"{1 - s.exceedance_probability:.0%} confidence: {w.reason_empty}.{driven}"
-                f"{dem}{tail}")
+                f"{dem}{tail}{cascade_sentence(a, units)}")
     parts = [f"{format_quantity(lo, 'rate', units)} and {format_quantity(hi, 'rate', units)}"
              for lo, hi, _, _ in w.intervals]
     rec = format_quantity(w.recommended, "rate", units) if w.recommended is not None else "none"
