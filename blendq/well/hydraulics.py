@@ -1,12 +1,16 @@
 """Zone hydraulics: zone conductances and the common-wellbore-head inflow model.
 
-Every zone i joins the well through a conductance G_i [m^2/d] and an optional nonlinear loss
-D_i [d^2/m^5]; all zones share one wellbore head h_w [m]:
+Every zone i joins the well through a conductance G_i [m^2/d] and optional entrance losses at
+its node (MNW2 form, B_i q + C_i q |q|^(P_i-1)); all zones share one wellbore head h_w [m]:
 
-    h0_i - h_w = q_i / G_i + D_i q_i |q_i|^(P-1),     sum_i q_i = Q
+    psi_i(h0_i) - psi_i(h_f,i) = q_i / G_i,   h_f,i - h_w = B_i q_i + C_i q_i |q_i|^(P_i-1),
+    sum_i q_i = Q
 
-with q_i > 0 inflow to the well. The sum of zone flows decreases strictly with h_w, so the root
-is unique. Heads are elevations relative to the depth datum (head = -depth to water).
+with q_i > 0 inflow to the well, h_f,i the head at the zone's well face and psi_i the zone's
+discharge potential (:func:`saturated_potential`: psi = h for a confined zone; its
+transmissivity follows the saturated thickness once the head falls into its open interval).
+The sum of zone flows decreases strictly with h_w while a zone face is wet, so the root is
+unique. Heads are elevations relative to the depth datum (head = -depth to water).
 
 All functions work on plain floats or numpy arrays in base units (m, m^3/d, d) and broadcast
 over leading batch dimensions.
@@ -19,6 +23,9 @@ constants and summarizing well-field history. Trans. AGU 27(4), 526-534.
 Hawkins, M.F. (1956) A note on the skin effect. J. Petroleum Technology 8(12), 65-66.
 Konikow, L.F., Hornberger, G.Z., Halford, K.J., Hanson, R.T. (2009) Revised multi-node well
 (MNW2) package for MODFLOW ground-water flow model. USGS Techniques and Methods 6-A30.
+Kruseman, G.P. and de Ridder, N.A. (1990) Analysis and Evaluation of Pumping Test Data, 2nd ed.
+ILRI Publication 47.
+Strack, O.D.L. (1989) Groundwater Mechanics. Prentice Hall.
 """
 
 from __future__ import annotations
@@ -292,10 +299,12 @@ def solve_wellbore_head(
         Exponent P_i >= 1 of the nonlinear entrance loss C_i q |q|^(P_i-1).
     linear_loss : array_like, shape (..., n_zones), optional
         Linear entrance loss coefficient B_i [d/m^2].
-    zone_top, zone_bottom : array_like, shape (..., n_zones), optional
+    zone_top, zone_bottom : array_like, shape (n_zones,), optional
         Depths of each zone's open interval [m]. Given, a zone's transmissivity follows its
         saturated thickness once the head at its well face falls into the interval
         (:func:`saturated_potential`); not given, every zone is confined.
+    rtol, max_iter : float, int
+        Tolerance and iterations of the bracketed solve (points the Newton iteration leaves).
 
     Returns
     -------
@@ -375,7 +384,8 @@ def solve_wellbore_head(
     hw, flows = solve_by_zone(q, zones(g), zones(h0), zones(d) if np.any(d > 0) else None,
                               list(pz) if np.ndim(pz) else pz,
                               zones(bl) if np.any(bl > 0) else None,
-                              zone_top if dewater else None, zone_bottom if dewater else None)
+                              zone_top if dewater else None, zone_bottom if dewater else None,
+                              rtol, max_iter)
     flow = np.stack(np.broadcast_arrays(*flows), -1)
     gb, db, blb = (np.broadcast_to(x, full) for x in (g, d, bl))
     loss, dloss = entrance_loss(flow, blb, db, pz)
@@ -400,7 +410,8 @@ NEWTON_STOP = 1e-7
 
 
 def solve_by_zone(rate, conductance, static_head, nonlinear_loss=None, exponent=2.0,
-                  linear_loss=None, zone_top=None, zone_bottom=None):
+                  linear_loss=None, zone_top=None, zone_bottom=None, rtol: float = 1e-12,
+                  max_iter: int = 100):
     """:func:`solve_wellbore_head` on zone-by-zone arrays: the fast layout of a sweep.
 
     Parameters
@@ -414,6 +425,9 @@ def solve_by_zone(rate, conductance, static_head, nonlinear_loss=None, exponent=
         Per zone C_i, P_i, B_i (as in :func:`solve_wellbore_head`).
     zone_top, zone_bottom : sequence of float, optional
         Per zone depths of the open interval [m] (dewatering).
+    rtol, max_iter : float, int
+        Tolerance and iterations of the bracketed solve of the points the Newton iteration
+        leaves.
 
     Returns
     -------
@@ -538,7 +552,7 @@ def solve_by_zone(rate, conductance, static_head, nonlinear_loss=None, exponent=
             np.broadcast_to(q, shape)[idx], gs, take(h0),
             take([x if x is not None else z for x, z in zip(d, zeros, strict=True)]),
             take([x if x is not None else z for x, z in zip(bl, zeros, strict=True)]),
-            take(psi0), take(inv_g) * (gs > 0), sub_p, sub_et, sub_eb, 1e-12, 100)
+            take(psi0), take(inv_g) * (gs > 0), sub_p, sub_et, sub_eb, rtol, max_iter)
         hw[idx] = h_sub
         for i in range(n):
             flows[i][idx] = q_sub[:, i]
