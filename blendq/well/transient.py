@@ -151,6 +151,7 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
     hw0 = amb.wellbore_head[..., 0]
     q0 = amb.zone_flow[..., 0, :]
     t_ref = schedule.reference_time
+    loss0 = hydraulics.entrance_loss(q0, bl, d, exponent)[0] if has_d else 0.0
     out_h, out_q = {}, {}
     for s, (start, end, rate) in enumerate(schedule.sequences):
         grid = np.concatenate([[0.0], (start[:, None] + (end - start)[:, None]
@@ -163,8 +164,7 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
         for m in range(1, len(grid)):
             tau = grid[m] - grid[:m]  # time since each earlier change
             w_new = unit_response(g, slope, tau[-1], t_ref)
-            heads = hw0[..., None] + last * w_new + hydraulics.entrance_loss(q0, bl, d,
-                                                                             exponent)[0]
+            heads = hw0[..., None] + last * w_new + loss0
             if increments:
                 shape = (len(increments),) + (1,) * (np.ndim(g))
                 w_old = unit_response(g, slope, tau[:-1].reshape(shape), t_ref)
