@@ -620,7 +620,8 @@ class Result:
         s = self.project.settings
         pred = _sweep.sweep(a.fit, a.draws, parse_rates(rates, self.units))
         table = _sweep.sweep_table(pred, a.limits, s.margin, s.interval, self.project.zone_names,
-                                   _sweep.compliance_statistics(self.project, a.limits))
+                                   _sweep.compliance_statistics(self.project, a.limits),
+                                   self.project.zone_top)
         return self._sweep_frame(table)
 
     def _sweep_frame(self, table: pd.DataFrame) -> pd.DataFrame:
@@ -642,6 +643,9 @@ class Result:
                 table[f"pumping_level_{stat}"].to_numpy(float), "length", du["length"])
         for z in self.project.zone_names:
             out[f"share {z} [-]"] = table[f"share_{z}"].to_numpy(float)
+        for z in self.project.zone_names:
+            if f"cascading_{z}" in table:
+                out[f"P(water cascades from {z}) [-]"] = table[f"cascading_{z}"].to_numpy(float)
         frame = pd.DataFrame(out)
         frame.attrs.update(units=self.units, interval=s.interval)
         return frame
@@ -811,6 +815,9 @@ class OperatingWindow:
         The decision sentence.
     reason_empty : str
         Why there is no window ("" when there is one).
+    cascading : DataFrame
+        Zones water cascades from above the pumping level (in more than alpha of the draws):
+        ``zone``, ``from [<rate unit>]`` (the lowest such rate), ``inside window``.
     units : {"US", "SI"}
     """
 
@@ -830,6 +837,10 @@ class OperatingWindow:
         self.demand = None if not demand else float(from_base(demand, "rate", du["rate"]))
         self.demand_met = w.demand_met
         self.headroom, self.headroom_kept = w.headroom, w.headroom_kept
+        self.cascading = pd.DataFrame(
+            [(z, float(from_base(r, "rate", du["rate"])), inside)
+             for z, r, inside in w.cascading],
+            columns=["zone", f"from [{self.rate_unit}]", "inside window"])
         self.decision = _pipeline.decision_sentence(analysis, units)
         self.reason_empty = w.reason_empty
 

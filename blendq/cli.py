@@ -308,7 +308,9 @@ def inflow_cmd(
         for _, r in table.iterrows():
             note = "takes water from the well" if r["zone_flow"] < 0 else ""
             if r["dewatered"]:
-                note = (note + "; " if note else "") + "pumping level below zone top"
+                note = (note + "; " if note else "") + (
+                    "water cascades: pumping level below zone top" if r["cascading"]
+                    else "pumping level below zone top")
             t.add_row(f"{r['rate']:.4g}", escape(str(r["zone"])), f"{r['zone_flow']:.3g}",
                       f"{r['share']:.1%}", f"{r['pumping_level']:.4g}", note)
         Console().print(t)

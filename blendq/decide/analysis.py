@@ -120,7 +120,7 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     window = sweep.window_for(fit, pred, level_deep=levels.level_deep)
     limits = sweep.governing_limits(project.limits, pred.analytes)
     table = sweep.sweep_table(pred, limits, s.margin, s.interval, project.zone_names,
-                              sweep.compliance_statistics(project, limits))
+                              sweep.compliance_statistics(project, limits), project.zone_top)
     notes = list(d.notes)
     hyd = diagnostics.hydraulics_table(fit)
     if (hyd["conductance_from"] == "prior").any():
@@ -142,6 +142,7 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
                         f"analyte with a limit: {listed}. The model and these results disagree; "
                         "explain them (sampling, lab, or a zone the model lacks) before relying "
                         "on the window.")
+    notes += entrance_loss_notes(fit)
     horizon_note = horizon_scaling(project, elapsed_test_time(project), s.horizon).note(project)
     if horizon_note:
         notes.append(horizon_note)
@@ -150,6 +151,26 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
                     residuals, hyd, pred, window, limits, table, skipped,
                     levels, notes, per_result)
+
+
+def entrance_loss_notes(fit) -> list[str]:
+    """One sentence per zone whose nonlinear entrance loss was fitted: its value where the
+    data resolve it, else "not resolved" (no number)."""
+    table = fit.entrance_losses
+    if table is None:
+        return []
+    out = []
+    for r in table.itertuples(index=False):
+        if r.verdict == "resolved":
+            out.append(f"Entrance loss of {r.zone} fitted (C q^P with P = {r.exponent:g}): "
+                       f"C = {r.coefficient:.3g} d^{r.exponent:g}/m^{3 * r.exponent - 1:g}, a "
+                       f"head loss of {r.loss_at_reference:.2g} m +- "
+                       f"{r.loss_at_reference_sd:.2g} m at a zone inflow of "
+                       f"{r.reference_flow:.4g} m3/d.")
+        else:
+            out.append(f"Entrance loss of {r.zone}: not resolved by the data (its sd is not "
+                       "below half its value); held at the zone's given value.")
+    return out
 
 
 def demand_sentence(a: Analysis, units: str = "US") -> str:
@@ -212,7 +233,7 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
                "this well." if demand else "")
         return (f"No pumping rate meets every limit with the {s.margin:.0%} margin at "
                 f"{1 - s.exceedance_probability:.0%} confidence: {w.reason_empty}.{driven}"
-                f"{dem}{tail}")
+                f"{dem}{tail}{cascade_sentence(a, units)}")
     parts = [f"{format_quantity(lo, 'rate', units)} and {format_quantity(hi, 'rate', units)}"
              for lo, hi, _, _ in w.intervals]
     rec = format_quantity(w.recommended, "rate", units) if w.recommended is not None else "none"
@@ -225,7 +246,22 @@ def decision_sentence(a: Analysis, units: str = "US") -> str:
             f"statistic stays below {s.margin:.0%} of the limit in at least "
             f"{1 - s.sample_exceedance_probability:.0%} of samples, and the pumping level "
             f"above the intake plus submergence). {demand_sentence(a, units)} "
-            f"{headroom_sentence(a, units)}{caveat}")
+            f"{headroom_sentence(a, units)}{caveat}{cascade_sentence(a, units)}")
+
+
+def cascade_sentence(a: Analysis, units: str = "US") -> str:
+    """The zones water cascades from above the pumping level (" ..." or "")."""
+    from blendq.units import format_quantity
+
+    parts = [f"{name} from {format_quantity(rate, 'rate', units)}"
+             + (" (inside the window)" if inside else "")
+             for name, rate, inside in a.window.cascading]
+    if not parts:
+        return ""
+    return (f" Water cascades into the well above the pumping level (the level below a "
+            f"producing zone's top) from {'; '.join(parts)}: the zone is dewatered at the well "
+            "face, its inflow follows its saturated thickness, and the falling water entrains "
+            "air; set zones[i].keep_level_above to make its top a hard limit.")
 
 
 def failure_drivers(a: Analysis, units: str = "US") -> list[str]:

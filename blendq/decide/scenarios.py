@@ -639,8 +639,12 @@ def evaluate(analysis, scenario: Scenario) -> ScenarioResult:
                               ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
                               extra_criteria=extra,
                               statistics=compliance_statistics(project, analysis.limits),
-                              headroom=s.recommended_headroom)
+                              headroom=s.recommended_headroom,
+                              keep_above=[(z.name, z.top) for z in project.zones
+                                          if z.keep_level_above],
+                              zone_top=project.zone_top, zone_names=project.zone_names)
     allowed = intake - w.submergence if top is None else min(intake - w.submergence, top)
+    allowed = min([allowed] + [z.top for z in project.zones if z.keep_level_above])
     level = np.quantile(pred.pumping_level, 1 - alpha, axis=0)
     y, beyond = pumping_level_yield(rates, level, allowed)
     undecided, tell = undecided_rates(analysis, scenario, window, margin)

@@ -79,6 +79,10 @@ class Window:
     headroom_kept : bool
         False when no rate of the window keeps the headroom (the window is too narrow); the
         recommended rate is then the middle of the interval nearest the demand.
+    cascading : list of (str, float, bool)
+        Per zone that water cascades from (the pumping level below its top while it gives
+        water, in more than alpha of the draws): its name, the lowest such rate [m^3/d], and
+        whether that happens at a rate inside the window.
     """
 
     rates: np.ndarray
@@ -90,6 +94,7 @@ class Window:
     demand: float | None = None
     headroom: float = 0.0
     headroom_kept: bool = True
+    cascading: list = field(default_factory=list)
 
     @property
     def empty(self) -> bool:
@@ -143,6 +148,31 @@ def sweep(fit: FitResult, draws: Draws, rates=None, horizon: float | None = None
         return model if changes is None else changes(model)
 
     return predict(fit, draws, rates, changes=operate)
+
+
+def cascade_probability(pred: Prediction, zone_top) -> np.ndarray:
+    """Share of draws in which water cascades from each zone at each rate [-], (n_rates,
+    n_zones): the pumping level [m depth] below the zone's top while the zone gives water, so
+    that the part of its open interval above the level spills into the well (air entrainment,
+    a zone dewatered at the well face; docs/methods.md, section 2)."""
+    top = np.asarray(zone_top, float)
+    with np.errstate(invalid="ignore"):
+        falls = (pred.pumping_level[..., None] > top) & (pred.zone_flow > 0)
+    return falls.mean(0)
+
+
+def cascading_zones(pred: Prediction, zone_top, zone_names, alpha: float,
+                    ok=None) -> list[tuple[str, float, bool]]:
+    """Zones water cascades from in more than ``alpha`` of the draws at some rate: (name,
+    lowest such rate [m^3/d], whether at a rate where ``ok``), in zone order."""
+    prob = cascade_probability(pred, zone_top)
+    out = []
+    for i, name in enumerate(zone_names):
+        hit = (prob[:, i] > alpha) & (pred.rates > 0)
+        if hit.any():
+            inside = bool(np.any(hit & ok)) if ok is not None else False
+            out.append((name, float(pred.rates[hit].min()), inside))
+    return out
 
 
 def governing_limits(limits: list[Limit], analytes: list[str]) -> dict[str, Limit]:
@@ -350,7 +380,8 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
                      level_quantile: float | None = None, level_deep=None,
                      ratio_rules=(), extra_criteria=(),
                      statistics: dict[str, Statistic] | None = None,
-                     headroom: float = 0.0) -> Window:
+                     headroom: float = 0.0, keep_above=(), zone_top=None,
+                     zone_names=None) -> Window:
     """Find the rates that meet every quality and hydraulic criterion.
 
     Parameters
@@ -387,6 +418,12 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
     headroom : float
         Relative distance [-] the recommended rate keeps from every end of the window
         (:func:`recommended_rate`).
+    keep_above : sequence of (str, float)
+        Zones the pumping level must stay above (``zones[i].keep_level_above``): name and top
+        depth [m]; each is a hard limit like the intake's.
+    zone_top, zone_names : array_like, list of str, optional
+        Zone tops [m depth] and names, to flag the zones water cascades from
+        (:func:`cascading_zones`).
     """
     rates = pred.rates
     statistics = statistics or {}
@@ -418,6 +455,8 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
     if top_of_screen is not None:
         crit.append(Criterion("pumping level above top of screen", level <= top_of_screen,
                               "hydraulic"))
+    for name, top in keep_above:
+        crit.append(Criterion(f"pumping level above top of {name}", level <= top, "hydraulic"))
     crit.append(Criterion("pump rate range", (rates >= rate_min) & (rates <= rate_max), "pump"))
     ok = np.logical_and.reduce([c.ok for c in crit]) & (rates > 0)
     intervals = []
@@ -438,8 +477,10 @@ def operating_window(pred: Prediction, limits: dict[str, Limit], margin: float, 
         k = j + 1
     recommended, kept = recommended_rate(rates, ok, demand, headroom)
     reason = "" if intervals else _why_empty(crit, rates)
+    cascading = [] if zone_top is None else cascading_zones(pred, zone_top, zone_names, alpha,
+                                                           ok)
     return Window(rates, ok, intervals, recommended, reason, crit, demand or None,
-                  float(headroom), kept)
+                  float(headroom), kept, cascading)
 
 
 def recommended_rate(rates, ok, demand: float | None = None,
@@ -602,12 +643,15 @@ def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
         ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
         extra_criteria=measured_exceedances(fit, limits, s.margin if margin is None else margin,
                                             pred.rates),
-        statistics=statistics, headroom=s.recommended_headroom)
+        statistics=statistics, headroom=s.recommended_headroom,
+        keep_above=[(z.name, z.top) for z in project.zones if z.keep_level_above],
+        zone_top=project.zone_top, zone_names=project.zone_names)
 
 
 def sweep_table(pred: Prediction, limits: dict[str, Limit], margin: float, interval: float,
                 zone_names: list[str],
-                statistics: dict[str, Statistic] | None = None) -> pd.DataFrame:
+                statistics: dict[str, Statistic] | None = None,
+                zone_top=None) -> pd.DataFrame:
     """A long-format table of the sweep: one row per rate (base units).
 
     Columns: per analyte the median and band of the mean concentration (``<a>_median``,
@@ -616,7 +660,8 @@ def sweep_table(pred: Prediction, limits: dict[str, Limit], margin: float, inter
     (:func:`exceedance`; ``<a>_p_exceed_margin``,
     ``<a>_p_exceed_limit``), and, when ``statistics`` are given, the band of the judged
     statistic (``<a>_statistic_lower``, ``<a>_statistic_upper``); the pumping level; the
-    median share of each zone.
+    median share of each zone; with ``zone_top`` [m depth], the share of draws in which water
+    cascades from each zone (``cascading_<zone>``, :func:`cascade_probability`).
     """
     q = [(1 - interval) / 2, 0.5, 1 - (1 - interval) / 2]
     cq = pred.quantiles(q)
@@ -644,4 +689,8 @@ def sweep_table(pred: Prediction, limits: dict[str, Limit], margin: float, inter
         share = np.nanmedian(pred.shares, axis=0)
     for i, z in enumerate(zone_names):
         data[f"share_{z}"] = share[:, i]
+    if zone_top is not None:
+        cascade = cascade_probability(pred, zone_top)
+        for i, z in enumerate(zone_names):
+            data[f"cascading_{z}"] = cascade[:, i]
     return pd.DataFrame(data)

@@ -86,6 +86,9 @@ class FitOptions:
         Per-analyte bounds on the zone values [mg/L]: {analyte: array (n_zones,)}.
     outlier_z : float
         |standardised residual| above which a result is flagged as an outlier.
+    fit_entrance_losses : bool or None
+        Fit each zone's nonlinear entrance loss C_i (exponent P_i as given), keeping those the
+        data resolve (:func:`fit`); None: the project's ``settings.fit_entrance_losses``.
     """
 
     fit_hydraulics: bool = True
@@ -93,6 +96,7 @@ class FitOptions:
     lower: dict = field(default_factory=dict)
     upper: dict = field(default_factory=dict)
     outlier_z: float = 3.0
+    fit_entrance_losses: bool | None = None
 
 
 @dataclass
@@ -116,6 +120,10 @@ class Problem:
     slope: np.ndarray | None = None
     #: index into the project's steps of each step level row (the static row is last)
     level_step: np.ndarray | None = None
+    #: zones whose nonlinear entrance loss is a parameter (after the well loss in theta)
+    loss_zones: np.ndarray = field(default_factory=lambda: np.zeros(0, int))
+    #: reference zone flow [m^3/d]: a loss parameter is C_i q_ref^P_i, the loss [m] at q_ref
+    loss_reference: float = 1.0
 
     def bounds(self, analyte: str):
         n = self.n_zones
@@ -130,14 +138,40 @@ class Problem:
         c = theta[..., 2 * n] if self.fit_c else self.project.well.well_loss
         return g, h0, c
 
+    @property
+    def n_theta(self) -> int:
+        """Length of theta."""
+        return 2 * self.n_zones + int(self.fit_c) + len(self.loss_zones)
+
+    def lower_bounds(self) -> np.ndarray:
+        """Lower bound of each entry of theta (0 for the well loss and the entrance losses)."""
+        lo = np.full(self.n_theta, -np.inf)
+        lo[2 * self.n_zones:] = 0.0
+        return lo
+
+    def entrance_losses(self, theta) -> np.ndarray:
+        """Nonlinear entrance loss C_i of each zone [d^P/m^(3P-1)], (..., n_zones): the
+        project's values, with the fitted ones from theta."""
+        theta = np.asarray(theta, float)
+        base = np.array([z.nonlinear_loss for z in self.project.zones], float)
+        out = np.broadcast_to(base, theta.shape[:-1] + base.shape).copy()
+        if len(self.loss_zones):
+            k = 2 * self.n_zones + int(self.fit_c)
+            expo = np.array([self.project.zones[i].loss_exponent for i in self.loss_zones])
+            out[..., self.loss_zones] = theta[..., k:] / self.loss_reference ** expo
+        return out
+
     def model(self, theta) -> WellModel:
-        g, h0, c = self.unpack(np.asarray(theta, float))
-        return model_from_parameters(self.project, g, h0, c)
+        theta = np.asarray(theta, float)
+        g, h0, c = self.unpack(theta)
+        loss = self.entrance_losses(theta) if len(self.loss_zones) else None
+        return model_from_parameters(self.project, g, h0, c, loss)
 
 
 def build_problem(project: Project, options: FitOptions | None = None,
-                  sample_use: pd.DataFrame | None = None) -> Problem:
-    """Collect the data of a project for :func:`fit`."""
+                  sample_use: pd.DataFrame | None = None, loss_zones=None) -> Problem:
+    """Collect the data of a project for :func:`fit` (``loss_zones``: the zones whose
+    nonlinear entrance loss is fitted, by default none)."""
     options = options or FitOptions()
     prior = prior_hydraulics(project)
     data = quality_data(project, sample_use)
@@ -161,9 +195,14 @@ def build_problem(project: Project, options: FitOptions | None = None,
         # transient zones: each step's level with the rate increments superposed in time
         schedule = step_schedule(project, elapsed_test_time(project))
         level_step = np.flatnonzero(np.isfinite(steps["pumping_level"].astype(float)))
+    loss_zones = np.asarray([] if loss_zones is None or not options.fit_hydraulics
+                            else loss_zones, int)
+    q_ref = float(np.nanmax(steps["rate"].astype(float))) / len(project.zones) \
+        if len(steps) else 1.0
     return Problem(project, prior, data, options, logs.reset_index(drop=True), np.asarray(log_sd),
                    np.array(rates, float), np.array(depths, float), s.level_error, fit_c,
-                   len(project.zones), schedule, slope, level_step)
+                   len(project.zones), schedule, slope, level_step, loss_zones,
+                   q_ref if np.isfinite(q_ref) and q_ref > 0 else 1.0)
 
 
 def solve_concentrations(problem: Problem, model: WellModel, analyte: str, values=None):
@@ -189,10 +228,11 @@ def _hydraulic_residuals(problem: Problem, theta, model: WellModel) -> list[np.n
     logs = problem.log_rows
     if len(logs):
         pred = np.empty(len(logs))
-        for rate, idx in logs.groupby("rate").groups.items():
-            st = model.state(np.array([float(rate)]))
+        groups = logs.groupby("rate").groups
+        flows = model.state(np.array([float(r) for r in groups], float)).zone_flow
+        for k, idx in enumerate(groups.values()):
             pred[np.asarray(idx)] = mixing.wellbore_flow(
-                st.zone_flow[0], model.geometry, logs.loc[idx, "depth"].to_numpy(float))
+                flows[k], model.geometry, logs.loc[idx, "depth"].to_numpy(float))
         res.append((pred - logs["upward_flow"].to_numpy(float)) / problem.log_sd)
     if len(problem.level_rate):
         res.append((level_depths(problem, model) - problem.level_depth) / problem.level_sd)
@@ -210,7 +250,7 @@ def level_depths(problem: Problem, model: WellModel) -> np.ndarray:
     if problem.schedule is None:
         return model.pumping_level_depth(problem.level_rate)
     hw, _ = step_levels(model.conductance, model.static_head, model.nonlinear_loss,
-                        problem.slope, problem.schedule)
+                        problem.slope, problem.schedule, model.loss_exponent, model.linear_loss)
     k = len(problem.level_step)
     rate = problem.level_rate[:k]
     c = np.asarray(model.well_loss, float)[..., None]
@@ -241,6 +281,9 @@ def initial_theta(problem: Problem) -> np.ndarray:
     parts = [p.log_conductance, h0]
     if problem.fit_c:
         parts.append([max(problem.project.well.well_loss, 0.0)])
+    zones = problem.project.zones
+    parts.append([zones[i].nonlinear_loss * problem.loss_reference ** zones[i].loss_exponent
+                  for i in problem.loss_zones])
     return np.concatenate(parts).astype(float)
 
 
@@ -353,6 +396,10 @@ class FitResult:
     success: bool
     message: str
     cost: float
+    #: per zone with a fitted entrance loss: zone, exponent, coefficient [d^P/m^(3P-1)] (NaN
+    #: when not resolved), loss_at_reference [m], its sd [m], verdict (:func:`fit`); None when
+    #: no entrance loss was fitted
+    entrance_losses: pd.DataFrame | None = None
 
     @property
     def zone_names(self) -> list[str]:
@@ -368,9 +415,24 @@ class FitResult:
         return w @ self.zone_values()
 
 
+#: a fitted entrance loss counts as resolved when its linearised sd is below this fraction of
+#: its value (two sd from zero; common practice for calling a parameter determined by the data)
+LOSS_RESOLVED_FRACTION = 0.5
+
+
 def fit(project: Project, options: FitOptions | None = None,
         sample_use: pd.DataFrame | None = None) -> FitResult:
     """Fit zone concentrations (and, by default, zone hydraulics) to a project's data.
+
+    With ``fit_entrance_losses`` (option or ``settings.fit_entrance_losses``) each open zone's
+    nonlinear entrance loss C_i (MNW2 form C_i q |q|^(P_i-1), P_i as given) is a parameter,
+    as the head loss C_i q_ref^P_i [m] at a reference zone flow q_ref (the largest step rate
+    over the number of zones), bounded below by zero. A loss is resolved when its linearised
+    sd, with every other parameter free (1 / ||(I - P_others) J_k||, so that a loss the
+    data cannot tell from the well loss or a conductance has an unbounded sd), is below
+    :data:`LOSS_RESOLVED_FRACTION` of its value; the fit is then repeated with the losses
+    not resolved held at the zones' given values, and :attr:`FitResult.entrance_losses`
+    reports each as resolved (with its value) or "not resolved" (without a number).
 
     Parameters
     ----------
@@ -388,7 +450,63 @@ def fit(project: Project, options: FitOptions | None = None,
     ModelError
         If the project has no quality data at a known step.
     """
-    problem = build_problem(project, options, sample_use)
+    options = options or FitOptions()
+    want = project.settings.fit_entrance_losses if options.fit_entrance_losses is None \
+        else options.fit_entrance_losses
+    if not (want and options.fit_hydraulics):
+        return _fit(project, options, sample_use)
+    trial = _fit(project, options, sample_use, np.arange(len(project.zones)))
+    problem = trial.problem
+    k0 = 2 * problem.n_zones + int(problem.fit_c)
+    rows, keep = [], []
+    for j, i in enumerate(problem.loss_zones):
+        value = float(trial.theta[k0 + j])
+        sd = _conditional_sd(trial.jacobian, k0 + j)
+        ok = bool(np.isfinite(sd) and value > 0 and sd <= LOSS_RESOLVED_FRACTION * value)
+        if ok:
+            keep.append(i)
+        z = project.zones[i]
+        rows.append(dict(zone=z.name, exponent=z.loss_exponent,
+                         coefficient=value / problem.loss_reference ** z.loss_exponent
+                         if ok else np.nan,
+                         loss_at_reference=value if ok else np.nan,
+                         loss_at_reference_sd=sd if ok else np.nan,
+                         reference_flow=problem.loss_reference,
+                         verdict="resolved" if ok else "not resolved"))
+    result = trial if len(keep) == len(problem.loss_zones) else \
+        _fit(project, options, sample_use, np.array(keep, int))
+    # the resolved losses as the final fit has them
+    k1 = 2 * result.problem.n_zones + int(result.problem.fit_c)
+    for j, i in enumerate(result.problem.loss_zones):
+        row = rows[list(problem.loss_zones).index(i)]
+        row["loss_at_reference"] = float(result.theta[k1 + j])
+        row["loss_at_reference_sd"] = _conditional_sd(result.jacobian, k1 + j)
+        row["coefficient"] = row["loss_at_reference"] / problem.loss_reference ** row["exponent"]
+    result.entrance_losses = pd.DataFrame(rows)
+    return result
+
+
+def _conditional_sd(jac: np.ndarray, k: int) -> float:
+    """Linearised sd of parameter k with all others free: 1 / ||(I - P_others) J_k|| (the
+    k-th diagonal of (J^T J)^-1 without a cut-off of small singular values); inf when column
+    k lies in the span of the others."""
+    if not jac.size:
+        return float("inf")
+    col = jac[:, k]
+    others = np.delete(jac, k, axis=1)
+    norms = np.linalg.norm(others, axis=0)
+    others = others / np.where(norms > 0, norms, 1.0)
+    coef, *_ = np.linalg.lstsq(others, col, rcond=None)
+    r = float(np.linalg.norm(col - others @ coef))
+    if r <= 1e-9 * max(float(np.linalg.norm(col)), 1e-300):
+        return float("inf")
+    return 1.0 / r
+
+
+def _fit(project: Project, options: FitOptions | None = None,
+         sample_use: pd.DataFrame | None = None, loss_zones=None) -> FitResult:
+    """One fit of :func:`fit` with the entrance losses of ``loss_zones`` as parameters."""
+    problem = build_problem(project, options, sample_use, loss_zones)
     if not problem.data:
         raise ModelError("no lab results at a known step: nothing to fit")
     if problem.options.fit_hydraulics:
@@ -415,13 +533,10 @@ def _fit_hydraulics(problem: Problem):
     95 % quantile of its chi-square (a local minimum is then suspected); the best converged fit
     is kept. The time budget (``settings.fit_time_budget``) covers every start.
     """
-    n = problem.n_zones
     budget = float(problem.project.settings.fit_time_budget)
     t_end = time.perf_counter() + budget
-    lo = np.full(2 * n + int(problem.fit_c), -np.inf)
+    lo = problem.lower_bounds()
     hi = np.full(lo.shape, np.inf)
-    if problem.fit_c:
-        lo[2 * n] = 0.0
 
     def fun(t):
         if time.perf_counter() > t_end:

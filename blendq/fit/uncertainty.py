@@ -34,6 +34,7 @@ from blendq.fit.estimation import (
     solve_concentrations,
 )
 from blendq.well import mixing
+from blendq.well.hydraulics import solve_by_zone
 from blendq.well.mixing import intake_weights, intake_weights_by_zone
 
 
@@ -403,7 +404,6 @@ def _refit_draws(fit: FitResult, data: _PerturbedData, idx: np.ndarray):
     """Refit of the draws ``idx`` from the best fit; returns theta (B, p), zone values
     (B, n, a) and a converged flag (B,)."""
     problem = fit.problem
-    n = problem.n_zones
     theta = np.repeat(fit.theta[None, :], len(idx), axis=0)
 
     def fun(th, rows, state, check):
@@ -412,9 +412,7 @@ def _refit_draws(fit: FitResult, data: _PerturbedData, idx: np.ndarray):
     if not problem.options.fit_hydraulics or fit.jacobian.size == 0:
         _, zv, _ = fun(theta, np.arange(len(idx)), None, True)
         return theta, zv, np.ones(len(idx), bool)
-    lower = np.full(theta.shape[1], -np.inf)
-    if problem.fit_c:
-        lower[2 * n] = 0.0
+    lower = problem.lower_bounds()
     sd = np.sqrt(np.clip(np.diag(fit.theta_cov), 0.0, None))
     steps = 1e-4 * np.where(sd > 0, sd, 1e-6 * np.maximum(1.0, np.abs(fit.theta)))
     return levenberg_marquardt_batch(fun, theta, lower, steps)
@@ -665,20 +663,31 @@ def predict_summary(fit: FitResult, draws: Draws, rates, probs=(0.05, 0.5, 0.95)
     level_q = np.empty((len(probs), n_r))
     share_med = np.empty((n_r, draws.zone_values.shape[1])) if shares else None
     step = max(1, int(chunk_points) // max(draws.n_draws, 1))
-    if not shares and not np.any(np.asarray(model.nonlinear_loss) > 0) \
-            and np.ndim(model.conductance) == 2:
-        # linear zones: closed-form wellbore head, rates by draws, one contiguous array a zone
+    if not shares and np.ndim(model.conductance) == 2:
+        # rates by draws, one contiguous array a zone: the closed-form wellbore head for
+        # confined linear zones, else the Newton iteration on all points from it
         g = np.asarray(model.conductance, float)
+        n_z = g.shape[1]
         h0 = np.broadcast_to(np.asarray(model.static_head, float), g.shape)
         c_well = np.broadcast_to(np.asarray(model.well_loss, float), g.shape[:1])
-        g_sum, gh_sum = g.sum(1), (g * h0).sum(1)
         zv = np.asarray(draws.zone_values, float)
-        if np.any(g_sum <= 0):
+        if np.any(g.sum(1) <= 0):
             raise ModelError("no open zone: the sum of zone conductances is zero")
+
+        def by_zone(x):
+            x = np.broadcast_to(np.asarray(x, float), g.shape)
+            return [np.ascontiguousarray(x[:, i]) for i in range(n_z)] if np.any(x > 0) \
+                else None
+
+        g_z, h0_z = by_zone(g), [np.ascontiguousarray(h0[:, i]) for i in range(n_z)]
+        d_z, b_z = by_zone(model.nonlinear_loss), by_zone(model.linear_loss)
+        expo = np.broadcast_to(np.asarray(model.loss_exponent, float), (n_z,))
+        if np.any(np.asarray(model.nonlinear_loss) < 0) or np.any(g < 0):
+            raise ModelError("zone conductances and losses must be >= 0")
         for lo in range(0, n_r, step):
             r = rates[lo:lo + step, None]
-            hw = (gh_sum - r) / g_sum  # (rates, draws)
-            flows = [g[:, i] * (h0[:, i] - hw) for i in range(g.shape[1])]
+            hw, flows = solve_by_zone(r, g_z, h0_z, d_z, list(expo), b_z,
+                                      model.geometry.zone_top, model.geometry.zone_bottom)
             w = intake_weights_by_zone(flows, model.geometry)
             for a in range(n_a):
                 conc = sum(w[i] * zv[:, i, a] for i in range(g.shape[1]))

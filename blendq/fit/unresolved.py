@@ -244,13 +244,17 @@ def reversal_rate(fit: FitResult, zone: int) -> float:
     """Largest pumping rate [m^3/d] at which a zone takes water from the well at the fitted
     hydraulics (as tested); 0 when it gives water at every rate above zero.
 
-    With linear zone losses h_w = (sum G h0 - Q) / sum G, so zone i reverses at
-    Q = sum_k G_k (h0_k - h0_i); with nonlinear losses the sign is checked on a rate grid.
+    With confined linear zones h_w = (sum G h0 - Q) / sum G, so zone i reverses at
+    Q = sum_k G_k (h0_k - h0_i); with entrance losses, or where a zone is dewatered at that
+    head (section 2 of docs/methods.md), the sign is checked on a rate grid.
     """
     m = fit.model
-    if not np.any(np.asarray(m.nonlinear_loss) > 0):
-        g = np.asarray(m.conductance, float)
-        h0 = np.asarray(m.static_head, float)
+    g = np.asarray(m.conductance, float)
+    h0 = np.asarray(m.static_head, float)
+    elev_top = -np.asarray(m.geometry.zone_top, float)
+    confined = bool(np.all((g == 0) | ((h0 >= elev_top) & (h0[zone] >= elev_top))))
+    if confined and not np.any(np.asarray(m.nonlinear_loss) > 0) \
+            and not np.any(np.asarray(m.linear_loss) > 0):
         return float(max(np.sum(g * (h0 - h0[zone])), 0.0))
     top = 2.0 * float(np.max(fit.problem.project.steps["rate"].to_numpy(float), initial=1.0))
     rates = np.linspace(0.0, top, 401)

@@ -130,7 +130,14 @@ class Zone:
     skin : float
         Skin factor s [-] (positive for a clogged interval).
     nonlinear_loss : float
-        D [d^2/m^5] in dh = q/G + D q|q|.
+        Nonlinear entrance loss coefficient C [d^P/m^(3P-1)] of the zone node (MNW2 form:
+        a loss C q |q|^(P-1) between the formation and the well; [d^2/m^5] for P = 2).
+    loss_exponent : float
+        Exponent P of the nonlinear entrance loss [-], from 1 to 3.5 (the range MNW2 takes).
+    linear_loss : float
+        Linear entrance loss coefficient B [d/m^2] of the zone node (loss B q).
+    keep_level_above : bool
+        Keep the pumping level above this zone's top: a hard limit on the operating window.
     conductance : float or None
         G [m^2/d], when known directly (overrides T, S, skin).
     sublayers : tuple of (top [m], bottom [m], conductivity [m/d])
@@ -149,6 +156,9 @@ class Zone:
     nonlinear_loss: float = 0.0
     conductance: float | None = None
     sublayers: tuple = ()
+    loss_exponent: float = 2.0
+    linear_loss: float = 0.0
+    keep_level_above: bool = False
 
     @property
     def thickness(self) -> float:
@@ -260,6 +270,8 @@ class Settings:
         Date of the report, ISO 8601 (YYYY-MM-DD); "" for the date of the run.
     paper : str
         "a4" or "letter"; "" for Letter with US display units and A4 with SI.
+    fit_entrance_losses : bool
+        Fit each zone's nonlinear entrance loss (kept where the data resolve it).
     """
 
     limit_sets: tuple[str, ...] = ("US-EPA",)
@@ -294,6 +306,7 @@ class Settings:
     reviewed_by: str = ""
     report_date: str = ""
     paper: str = ""
+    fit_entrance_losses: bool = False
 
     def temporal_cv_for(self, analyte: str) -> tuple[float, str]:
         """Temporal coefficient of variation of ``analyte`` [-] and where it comes from

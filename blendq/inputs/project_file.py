@@ -310,9 +310,10 @@ def _zones(doc: dict, label: str) -> list[Zone]:
             conductivity=s.quantity("conductivity", "conductivity", None),
             storativity=s.number("storativity", None, 0.0, 1.0, open_low=True, open_high=True),
             skin=float(s.number("skin", 0.0)),
-            nonlinear_loss=s.quantity("nonlinear_loss", "nonlinear_loss", 0.0, sign="nonnegative"),
             conductance=s.quantity("conductance", "conductance", None),
             sublayers=_sublayers(s, top, bottom, label),
+            **_entrance_losses(s),
+            keep_level_above=s.flag("keep_level_above", False),
         )
         if zone.transmissivity is not None and zone.conductivity is not None:
             raise s.error("conductivity", "give transmissivity or conductivity, not both "
@@ -330,6 +331,44 @@ def _zones(doc: dict, label: str) -> list[Zone]:
                 f'"{upper.name}" (bottom "{entries[where[upper.name] - 1]["bottom"]}")',
                 file=label, field=f"zones[{i}].top")
     return ordered
+
+
+def _entrance_losses(s: _Section) -> dict:
+    """A zone's entrance losses (MNW2 form B q + C q |q|^(P-1)): ``loss_exponent`` P (1 to
+    3.5), ``nonlinear_loss`` C in a unit of time^P / length^(3P-1) (e.g. "2 s2/ft5" for
+    P = 2, "1e-6 d**2.5/m**6.5" for P = 2.5) and ``linear_loss`` B (time / length^2, e.g.
+    "0.5 s/ft**2"), each converted to base units (d, m)."""
+    p = float(s.number("loss_exponent", 2.0, 1.0, 3.5))
+    if p == 2.0:
+        c = s.quantity("nonlinear_loss", "nonlinear_loss", 0.0, sign="nonnegative")
+    else:
+        c = _loss_coefficient(s, "nonlinear_loss", p)
+    return {"loss_exponent": p, "nonlinear_loss": c,
+            "linear_loss": _loss_coefficient(s, "linear_loss", 1.0)}
+
+
+def _loss_coefficient(s: _Section, key: str, p: float) -> float:
+    """A loss coefficient of exponent ``p`` [d^p / m^(3p-1)] from a quantity string."""
+    import pint
+
+    from blendq.units import Q_, parse_unit
+
+    raw = s.get(key, None)
+    if raw is None:
+        return 0.0
+    unit = f"d**{p:g}/m**{3 * p - 1:g}"
+    if not isinstance(raw, str):
+        raise s.error(key, f'expected a quantity such as "1e-6 {unit}", got {raw!r}')
+    number, _, text = raw.strip().partition(" ")
+    try:
+        value = float(Q_(float(number), parse_unit(text.strip())).to(unit).magnitude)
+    except (ValueError, InputError, pint.errors.PintError) as err:
+        raise s.error(key, f'"{raw}" is not a loss coefficient of exponent {p:g} (a unit of '
+                           f'time^{p:g} / length^{3 * p - 1:g}, e.g. "1e-6 {unit}"): {err}') \
+            from None
+    if not value >= 0 or value == float("inf"):
+        raise s.error(key, f'"{raw}" must be zero or more')
+    return value
 
 
 def _sublayers(s: _Section, top: float, bottom: float, label: str) -> tuple:
@@ -441,6 +480,7 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
         gross_outlier_factor=float(s.number("gross_outlier_factor", d.gross_outlier_factor,
                                             1.0, None, True)),
         temporal_cv=_temporal_cv(s),
+        fit_entrance_losses=s.flag("fit_entrance_losses", d.fit_entrance_losses),
     )
     s.done()
     return settings

@@ -38,7 +38,10 @@ radius_of_influence = "1000 ft"       # R for steady (Thiem) conductances (optio
 
 # One [[zones]] table per screened zone or open interval (any order; blendq sorts them).
 # Give transmissivity or conductivity (not both); storativity, skin, nonlinear_loss and
-# conductance are optional.
+# conductance are optional. Entrance losses at a zone (optional): linear_loss = "0.5 s/ft**2"
+# and nonlinear_loss = "2 s2/ft5" with loss_exponent = 2 (1 to 3.5; for another exponent P
+# give the coefficient in time^P/length^(3P-1), e.g. "1e-6 d**2.5/m**6.5").
+# keep_level_above = true makes the zone's top a hard limit on the pumping level.
 [[zones]]
 name = "Upper sand"
 top = "170 ft"

@@ -672,6 +672,8 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
         "window_limiting": [[lo_r, hi_r] for _, _, lo_r, hi_r in w.intervals],
         "recommended_rate_m3_per_day": w.recommended,
         "reason_empty": w.reason_empty,
+        "cascading_zones": [{"zone": z, "from_rate_m3_per_day": r, "inside_window": inside}
+                            for z, r, inside in w.cascading],
         "compliance_basis": {k: st.as_dict()
                              for k, st in compliance_statistics(a.project, a.limits).items()},
         "zones": a.zones.to_dict(orient="records"),

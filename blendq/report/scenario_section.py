@@ -66,6 +66,9 @@ def comparison_display_table(comparison: Comparison, units: str = "US",
             cannot_tell_text(r, units) if not told else
             f"low end: {r['lower_end_set_by']}; high end: {r['upper_end_set_by']}"
             if w.intervals else w.reason_empty or "no rate meets every criterion")
+        if w.cascading:
+            row["Window limited by"] += "; water cascades from " + ", ".join(
+                f"{z} from {_rate_text(q, units)}" for z, q, _ in w.cascading)
         row["What would tell"] = "; ".join(res.would_tell.get(units, [])) if not told else ""
         rows.append(row)
     return pd.DataFrame(rows)

@@ -49,5 +49,6 @@ def inflow_table(project: Project, rates, horizon: float | None = None) -> pd.Da
         for i, z in enumerate(project.zones):
             rows.append(dict(rate=q, zone=z.name, zone_flow=st.zone_flow[k, i],
                              share=share[k, i], pumping_level=level[k],
-                             dewatered=bool(level[k] > z.top)))
+                             dewatered=bool(level[k] > z.top),
+                             cascading=bool(level[k] > z.top and st.zone_flow[k, i] > 0)))
     return pd.DataFrame(rows)

@@ -49,9 +49,16 @@ class WellModel:
     static_head : ndarray (..., n_zones)
         h0_i [m] (elevation relative to the datum).
     nonlinear_loss : ndarray (..., n_zones)
-        D_i [d^2/m^5].
+        Nonlinear entrance loss C_i of each zone node [d^P/m^(3P-1)] (MNW2 form).
     well_loss : ndarray (...,) or float
         C [d^2/m^5] (pumping level = h_w - C Q^2).
+    loss_exponent : ndarray (n_zones,) or float
+        Exponent P_i of the nonlinear entrance loss C_i q |q|^(P_i-1) [-].
+    linear_loss : ndarray (..., n_zones) or float
+        Linear entrance loss B_i [d/m^2].
+
+    Each zone's transmissivity follows its saturated thickness once the head at its well face
+    falls into its open interval (``geometry`` depths; :func:`hydraulics.saturated_potential`).
     """
 
     geometry: mixing.WellGeometry
@@ -59,11 +66,16 @@ class WellModel:
     static_head: np.ndarray
     nonlinear_loss: np.ndarray
     well_loss: np.ndarray | float = 0.0
+    loss_exponent: np.ndarray | float = 2.0
+    linear_loss: np.ndarray | float = 0.0
 
     def state(self, rate) -> hydraulics.WellState:
         """Wellbore head and zone flows at each rate [m^3/d]; shapes (..., n_rates[, n_zones])."""
         d = self.nonlinear_loss if np.any(np.asarray(self.nonlinear_loss) > 0) else None
-        return hydraulics.solve_wellbore_head(rate, self.conductance, self.static_head, d)
+        b = self.linear_loss if np.any(np.asarray(self.linear_loss) > 0) else None
+        return hydraulics.solve_wellbore_head(
+            rate, self.conductance, self.static_head, d, self.loss_exponent, linear_loss=b,
+            zone_top=self.geometry.zone_top, zone_bottom=self.geometry.zone_bottom)
 
     def weights(self, rate) -> np.ndarray:
         """Discharge weights a_i(Q), shape (..., n_rates, n_zones)."""
@@ -82,9 +94,13 @@ class WellModel:
         The ambient crossflow q0_i (at Q = 0, wellbore head h_w0) is a steady state that was
         there before the test; pumping superposes a response whose conductance falls with time
         (linear superposition; Cooper and Jacob 1946). With G'_i = f_i G_i the static heads are
-        moved to h0'_i = h_w0 + q0_i / G'_i + D_i q0_i |q0_i| so that the model at Q = 0 still
-        gives h_w0 and q0_i exactly, while q_i - q0_i follows G'_i. For linear zones this is
-        q_i(Q) = q0_i + G'_i (h_w0 - h_w(Q)) with sum_i q_i = Q.
+        moved to h0'_i = h_w0 + q0_i / G'_i + L_i(q0_i) (L_i the zone's entrance loss) so that
+        the model at Q = 0 still gives h_w0 and q0_i exactly, while q_i - q0_i follows G'_i.
+        For linear zones this is q_i(Q) = q0_i + G'_i (h_w0 - h_w(Q)) with sum_i q_i = Q. For a
+        zone dewatered at rest the same holds in its discharge potential:
+        psi(h0'_i) = psi(h_w0 + L_i(q0_i)) + q0_i / G'_i; where that would need a head below
+        the zone's bottom (a thief zone unconfined at rest) its static head is its bottom and
+        it takes less water at rest.
 
         Parameters
         ----------
@@ -98,8 +114,12 @@ class WellModel:
         hw0 = amb.wellbore_head[..., 0]
         q0 = amb.zone_flow[..., 0, :]
         g = np.asarray(self.conductance, float) * f
-        d = np.asarray(self.nonlinear_loss, float)
-        h0 = hw0[..., None] + q0 / g + d * q0 * np.abs(q0)
+        loss, _ = hydraulics.entrance_loss(q0, self.linear_loss, self.nonlinear_loss,
+                                           self.loss_exponent)
+        # the static head whose potential lies q0 / G' above the face head's (dewatering law)
+        top, bottom = -self.geometry.zone_top, -self.geometry.zone_bottom
+        psi_face, _ = hydraulics.saturated_potential(hw0[..., None] + loss, top, bottom)
+        h0 = hydraulics.head_of_potential(psi_face + q0 / g, top, bottom)
         return replace(self, conductance=g, static_head=h0)
 
     def with_changes(self, **kw) -> WellModel:
@@ -442,13 +462,17 @@ def prior_hydraulics(project: Project, need_properties: bool = False) -> Hydraul
                           np.array(head_sd, float), src)
 
 
-def model_from_parameters(project: Project, conductance, static_head, well_loss=None) -> WellModel:
-    """A :class:`WellModel` of the project with the given conductances and heads."""
+def model_from_parameters(project: Project, conductance, static_head, well_loss=None,
+                          nonlinear_loss=None) -> WellModel:
+    """A :class:`WellModel` of the project with the given conductances and heads (and, when
+    given, nonlinear entrance losses C_i in place of the zones' own)."""
     nl = np.array([z.nonlinear_loss for z in project.zones], float)
     return WellModel(
         geometry=geometry_of(project),
         conductance=np.asarray(conductance, float),
         static_head=np.asarray(static_head, float),
-        nonlinear_loss=nl,
+        nonlinear_loss=nl if nonlinear_loss is None else np.asarray(nonlinear_loss, float),
         well_loss=project.well.well_loss if well_loss is None else well_loss,
+        loss_exponent=np.array([z.loss_exponent for z in project.zones], float),
+        linear_loss=np.array([z.linear_loss for z in project.zones], float),
     )

@@ -36,6 +36,7 @@ def synthetic_project(
     settings: Settings | None = None,
     zone_names=None,
     step_hours: float = 4.0,
+    entrance_loss=None,
 ) -> Project:
     """A project whose samples, logs and levels follow the blendq model exactly (plus noise).
 
@@ -63,6 +64,9 @@ def synthetic_project(
     depth_samples : list of (step, depth), optional
         Samples taken inside the well at a depth during a step (all analytes).
     seed : int, optional
+    entrance_loss : array_like (n_zones,), optional
+        True nonlinear entrance loss C_i [d^2/m^5] of each zone (P = 2) in the data; the
+        project's zones carry none (a fit has to find it).
     """
     rng = np.random.default_rng(seed)
     n = len(conductance)
@@ -72,7 +76,7 @@ def synthetic_project(
     well = Well("Synthetic well", 0.15, float(intake_depth), well_loss=well_loss,
                 static_level=None)
     project = Project("synthetic", well, zones, settings or Settings(conductance_model="given"))
-    model = model_from_parameters(project, conductance, static_head, well_loss)
+    model = model_from_parameters(project, conductance, static_head, well_loss, entrance_loss)
     rates = np.asarray(step_rates, float)
     start = pd.Timestamp("2026-03-02 08:00")
     steps = []

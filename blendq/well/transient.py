@@ -122,7 +122,8 @@ def unit_response(conductance, slope, tau, reference_time: float):
     return np.maximum(w, MIN_RESPONSE_FRACTION * w_ref)
 
 
-def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Schedule):
+def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Schedule,
+                exponent=2.0, linear_loss=0.0):
     """Wellbore head at the end of each step [m] and the zone flows there [m^3/d].
 
     Parameters
@@ -132,6 +133,8 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
     slope : ndarray (n_zones,)
         1 / (4 pi T_i) [d/m^2] for a transient zone, 0 for a steady or given one.
     schedule : Schedule
+    exponent, linear_loss : float or ndarray (n_zones,)
+        P_i [-] and B_i [d/m^2] of the zones' entrance losses B q + D q |q|^(P-1).
 
     Returns
     -------
@@ -141,11 +144,14 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
     g = np.asarray(conductance, float)
     h0 = np.asarray(static_head, float)
     d = np.broadcast_to(np.asarray(nonlinear_loss, float), np.broadcast_shapes(g.shape, h0.shape))
-    has_d = bool(np.any(d > 0))
-    amb = hydraulics.solve_wellbore_head(np.zeros(1), g, h0, d if has_d else None)
+    bl = np.broadcast_to(np.asarray(linear_loss, float), d.shape)
+    has_d = bool(np.any(d > 0) or np.any(bl > 0))
+    amb = hydraulics.solve_wellbore_head(np.zeros(1), g, h0, d if has_d else None, exponent,
+                                         linear_loss=bl if has_d else None)
     hw0 = amb.wellbore_head[..., 0]
     q0 = amb.zone_flow[..., 0, :]
     t_ref = schedule.reference_time
+    loss0 = hydraulics.entrance_loss(q0, bl, d, exponent)[0] if has_d else 0.0
     out_h, out_q = {}, {}
     for s, (start, end, rate) in enumerate(schedule.sequences):
         grid = np.concatenate([[0.0], (start[:, None] + (end - start)[:, None]
@@ -158,14 +164,14 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
         for m in range(1, len(grid)):
             tau = grid[m] - grid[:m]  # time since each earlier change
             w_new = unit_response(g, slope, tau[-1], t_ref)
-            heads = hw0[..., None] + last * w_new + d * q0 * np.abs(q0)
+            heads = hw0[..., None] + last * w_new + loss0
             if increments:
                 shape = (len(increments),) + (1,) * (np.ndim(g))
                 w_old = unit_response(g, slope, tau[:-1].reshape(shape), t_ref)
                 heads = heads - (np.stack(increments) * w_old).sum(0)
             if has_d:
                 st = hydraulics.solve_wellbore_head(np.array([grid_rate[m]]), 1.0 / w_new,
-                                                    heads, d)
+                                                    heads, d, exponent, linear_loss=bl)
                 q, hw = st.zone_flow[..., 0, :], st.wellbore_head[..., 0]
             else:  # linear zones: the closed form of section 2, h_w = (sum G h - Q) / sum G
                 ge = 1.0 / w_new

@@ -486,3 +486,34 @@ def test_window_says_whether_the_demand_is_met():
     w = replace(w, recommended=500.0, demand=500.0)
     assert w.demand_met is True
     assert replace(w, demand=None).demand_met is None
+
+
+def test_keep_level_above_a_zone_is_a_hard_limit():
+    # level 10 m + 0.04 m per m^3/d: 22 m at 300, 26 m at 400, 30 m at 500 m^3/d
+    pred = _prediction(np.full(len(RATES), 2.0), 10.0 + 0.04 * RATES)
+    free = _window(pred)
+    assert free.intervals[0][1] == 1000.0
+    kept = sweep.operating_window(pred, LIMITS, 0.8, 0.05, 60.0, 5.0, 0.0, np.inf,
+                                  keep_above=[("Upper sand", 27.0)])
+    # 26 m +- 0.2 at 400 stays above 27 m; 30 m at 500 does not
+    assert kept.intervals[0][1] == 400.0
+    assert kept.intervals[0][3] == "pumping level above top of Upper sand"
+    assert any(c.name == "pumping level above top of Upper sand" and c.kind == "hydraulic"
+               for c in kept.criteria)
+
+
+def test_cascading_water_is_flagged_per_zone():
+    # two zones with tops at 27 m and 80 m; the level passes 27 m between 400 and 500 m^3/d
+    pred = _prediction(np.full(len(RATES), 2.0), 10.0 + 0.04 * RATES)
+    prob = sweep.cascade_probability(pred, [27.0, 80.0])
+    np.testing.assert_array_equal(prob[:, 0], (RATES >= 500.0).astype(float))
+    np.testing.assert_array_equal(prob[:, 1], 0.0)
+    w = sweep.operating_window(pred, LIMITS, 0.8, 0.05, 60.0, 5.0, 0.0, np.inf,
+                               zone_top=[27.0, 80.0], zone_names=["Upper", "Lower"])
+    assert w.cascading == [("Upper", 500.0, True)]
+    # a zone that takes water from the well (a thief) does not cascade
+    thief = Prediction(pred.rates, pred.concentration, pred.pumping_level, pred.shares,
+                       -pred.zone_flow, pred.analytes)
+    assert sweep.cascading_zones(thief, [27.0, 80.0], ["Upper", "Lower"], 0.05) == []
+    table = sweep.sweep_table(pred, LIMITS, 0.8, 0.9, ["Upper", "Lower"], zone_top=[27.0, 80.0])
+    np.testing.assert_array_equal(table["cascading_Upper"], prob[:, 0])

@@ -402,3 +402,44 @@ def test_draws_see_the_levels_in_time():
     r = _hydraulic_residuals_batch(problem, np.stack([result.theta]), problem.model(
         np.stack([result.theta])))
     np.testing.assert_allclose(np.abs(r).max(), 0.0, atol=1e-4)
+
+
+def _lossy_well(flow_logs: bool):
+    """Three zones, the middle one with a nonlinear entrance loss C = 1e-5 d^2/m^5 (MNW2 form,
+    P = 2) that the project does not state; flow logs at four rates when asked."""
+    from blendq.inputs.project import Settings
+    from blendq.well.synthetic import synthetic_project
+
+    s = Settings(conductance_model="given", flowlog_relative_error=0.02, fit_entrance_losses=True)
+    return synthetic_project(
+        [150.0, 250.0, 220.0], [-8.0, -9.0, -10.5], [20.0, 40.0, 60.0], [30.0, 50.0, 70.0],
+        {"nitrate": np.array([12.0, 3.0, 6.0]), "arsenic": np.array([0.002, 0.02, 0.005])},
+        [400.0, 900.0, 1400.0, 1900.0, 2400.0], 15.0, relative_error=0.03, well_loss=1e-6,
+        flowlog_rates=[0.0, 800.0, 1600.0, 2400.0] if flow_logs else None,
+        flowlog_depths=[18.0, 32.0, 52.0, 72.0] if flow_logs else None, level_noise=0.02,
+        flowlog_noise=0.01, seed=3, entrance_loss=[0.0, 1e-5, 0.0], settings=s)
+
+
+def test_entrance_loss_fitted_where_flow_logs_resolve_it():
+    # flow logs at several pumped rates see the middle zone's share fall behind as its
+    # entrance loss C q^2 grows (Konikow and others 2009, MNW2): the loss is resolved, and
+    # the zones without one are reported as not resolved, without a number
+    result = fit(_lossy_well(True))
+    table = result.entrance_losses.set_index("zone")
+    assert list(table["verdict"]) == ["not resolved", "resolved", "not resolved"]
+    assert table.loc["Z2", "coefficient"] == pytest.approx(1e-5, rel=0.3)
+    assert table.loc["Z2", "loss_at_reference_sd"] < 0.5 * table.loc["Z2", "loss_at_reference"]
+    assert table.loc[["Z1", "Z3"], "coefficient"].isna().all()
+    # the model holds the resolved loss and the zones' given value (none) elsewhere
+    np.testing.assert_allclose(result.model.nonlinear_loss, [0.0, table.loc["Z2", "coefficient"],
+                                                             0.0], rtol=1e-12)
+
+
+def test_entrance_loss_not_resolved_from_levels_and_discharge_samples_alone():
+    # without flow logs the middle zone's loss trades off against the well loss and the
+    # conductances: reported as not resolved, no number, and the model carries no loss
+    result = fit(_lossy_well(False))
+    assert set(result.entrance_losses["verdict"]) == {"not resolved"}
+    assert result.entrance_losses["coefficient"].isna().all()
+    np.testing.assert_array_equal(result.model.nonlinear_loss, 0.0)
+    assert len(result.theta) == 7  # ln G, h0 of three zones and the well loss

@@ -250,3 +250,29 @@ def test_bad_review_decisions_name_their_key(tmp_path, entry, field, fragment):
         read_project_file(_project(tmp_path, rest=f"[[review]]\n{entry}\n"))
     assert err.value.field == field and err.value.file == "project.toml"
     assert fragment in err.value.message
+
+
+def test_zone_entrance_losses_and_keep_level_above(tmp_path):
+    zones = ('loss_exponent = 2.5\nnonlinear_loss = "1e-6 d**2.5/m**6.5"\n'
+             'linear_loss = "0.5 s/ft**2"\nkeep_level_above = true')
+    head = read_project_file(_project(tmp_path, zones=zones))
+    z = {z.name: z for z in head.zones}
+    assert z["deep"].loss_exponent == 2.0 and z["deep"].linear_loss == 0.0
+    assert not z["deep"].keep_level_above
+    assert z["shallow"].loss_exponent == 2.5 and z["shallow"].keep_level_above
+    assert z["shallow"].nonlinear_loss == pytest.approx(1e-6, rel=1e-12)
+    # 0.5 s/ft^2 = 0.5 / 86400 d / 0.09290304 m^2 = 6.2291148e-5 d/m^2
+    assert z["shallow"].linear_loss == pytest.approx(6.2291148e-5, rel=1e-7)
+
+
+@pytest.mark.parametrize(("zones", "field", "fragment"), [
+    ("loss_exponent = 4", "zones[2].loss_exponent", "out of range"),
+    ('loss_exponent = 2.5\nnonlinear_loss = "1 s2/ft5"', "zones[2].nonlinear_loss",
+     "exponent 2.5"),
+    ('linear_loss = "-1 s/ft**2"', "zones[2].linear_loss", "zero or more"),
+    ("keep_level_above = 1", "zones[2].keep_level_above", "true or false"),
+])
+def test_bad_entrance_losses_name_their_key(tmp_path, zones, field, fragment):
+    with pytest.raises(InputError, match=fragment) as info:
+        read_project_file(_project(tmp_path, zones=zones))
+    assert info.value.field == field

@@ -17,6 +17,8 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st_
 
 from blendq.errors import ModelError
 from blendq.well.hydraulics import (
@@ -295,3 +297,131 @@ def test_timml_low_rate_has_a_thief_layer(timml_reference):
     assert tm_flow[1] < 0
     assert flow[1] < 0
     assert np.all(np.delete(flow, 1) > 0)
+
+
+# --- dewatering and entrance losses -------------------------------------------------------
+
+def test_unconfined_zone_follows_the_dupuit_thiem_equation():
+    # Kruseman and de Ridder (1990), Thiem-Dupuit equation for an unconfined aquifer at steady
+    # state: Q = pi K (H^2 - h_w^2) / ln(R / r_w), heads above the aquifer base.
+    # A zone from 20 to 60 m depth (b = 40 m) with K = 10 m/d and its static level at 25 m
+    # depth (H = 35 m above its bottom, below its top: unconfined from the start).
+    k, r, rw = 10.0, 300.0, 0.15
+    g = thiem_conductance(k * 40.0, r, rw)
+    for rate in (100.0, 1000.0, 3000.0, 5000.0):
+        st = solve_wellbore_head([rate], [g], [-25.0], zone_top=[20.0], zone_bottom=[60.0])
+        hw = st.wellbore_head[0] + 60.0
+        assert np.pi * k * (35.0**2 - hw**2) / np.log(r / rw) == pytest.approx(rate, rel=1e-9)
+    # at Q = 1000 m^3/d by hand: h_w^2 = 35^2 - 1000 ln(2000) / (10 pi) = 1225 - 241.9448
+    #   h_w = 31.35372 m above the bottom
+    st = solve_wellbore_head([1000.0], [g], [-25.0], zone_top=[20.0], zone_bottom=[60.0])
+    assert st.wellbore_head[0] + 60.0 == pytest.approx(31.35372, abs=1e-5)
+    # the most it can give (h_w at its bottom): pi K H^2 / ln(R/r_w) = 5063.15 m^3/d
+    st = solve_wellbore_head([5100.0], [g], [-25.0], zone_top=[20.0], zone_bottom=[60.0])
+    assert np.isnan(st.wellbore_head[0]) and np.all(np.isnan(st.zone_flow))
+
+
+def test_confined_zone_turning_unconfined():
+    # Confined-unconfined flow (discharge potential of Strack 1989; the unconfined part is the
+    # Dupuit-Thiem law of Kruseman and de Ridder 1990): static head H above the top (b below
+    # it), well head h_w inside the zone: Q = pi K (2 b H - b^2 - h_w^2) / ln(R/r_w).
+    k, r, rw, b = 5.0, 500.0, 0.1, 20.0  # zone from 40 to 60 m depth
+    g = thiem_conductance(k * b, r, rw)
+    h_static = 30.0  # 30 m depth: 30 m above the zone bottom, 10 m above its top
+    for rate in (300.0, 800.0, 1200.0):  # it gives at most G (H - b/2) = 1475.6 m^3/d
+        st = solve_wellbore_head([rate], [g], [-h_static], zone_top=[40.0], zone_bottom=[60.0])
+        hw = st.wellbore_head[0] + 60.0
+        expect = np.pi * k * (2 * b * 30.0 - b**2 - min(hw, b) ** 2) / np.log(r / rw) \
+            if hw < b else g * (30.0 - hw)
+        assert expect == pytest.approx(rate, rel=1e-9)
+    # above the top the zone is the Thiem zone of before
+    lin = solve_wellbore_head([500.0], [g], [-h_static])
+    st = solve_wellbore_head([500.0], [g], [-h_static], zone_top=[40.0], zone_bottom=[60.0])
+    assert st.wellbore_head[0] == pytest.approx(lin.wellbore_head[0], abs=1e-10)
+
+
+def test_dewatered_upper_zone_stops_gaining_at_full_transmissivity():
+    # heads lowered 30 ft (9.144 m) below a well whose upper zone starts at 36.6 m depth
+    g = np.array([250.0, 100.0, 350.0, 200.0])
+    h0 = -np.array([17.7, 18.7, 19.2, 20.1]) - 9.144
+    top = np.array([36.6, 56.4, 73.2, 88.4])
+    bot = np.array([48.8, 65.5, 80.8, 100.6])
+    rates = np.linspace(4000.0, 12000.0, 41)
+    conf = solve_wellbore_head(rates, g, h0)
+    dew = solve_wellbore_head(rates, g, h0, zone_top=top, zone_bottom=bot)
+    np.testing.assert_allclose(dew.zone_flow.sum(-1), rates, rtol=1e-10)
+    below = -dew.wellbore_head > top[0]
+    assert below.any() and (~below).any()
+    # above the top both laws agree; below it the upper zone gains less than at full T
+    np.testing.assert_allclose(dew.zone_flow[~below], conf.zone_flow[~below], rtol=1e-9)
+    gain_conf = np.diff(conf.zone_flow[:, 0])[below[1:]]
+    gain_dew = np.diff(dew.zone_flow[:, 0])[below[1:]]
+    assert np.all(gain_dew < gain_conf)
+    # its slope dq/dh_w is G times the saturated fraction (h_w - bottom) / b
+    k = np.flatnonzero(below)[1]
+    sat = (dew.wellbore_head[k] + bot[0]) / (bot[0] - top[0])
+    step = 1e-3
+    q1 = solve_wellbore_head([rates[k] + step], g, h0, zone_top=top, zone_bottom=bot)
+    dq = (q1.zone_flow[0, 0] - dew.zone_flow[k, 0]) / (dew.wellbore_head[k]
+                                                       - q1.wellbore_head[0])
+    assert dq == pytest.approx(g[0] * sat, rel=1e-4)
+
+
+def test_entrance_losses_by_the_mnw2_equations():
+    # Konikow, Hornberger, Halford and Hanson (2009), USGS TM 6-A30: at each node
+    #   h_n - h_WELL = (A_n + B_n) Q_n + C_n Q_n^P,  A_n = ln(r0/r_w) / (2 pi T_n),
+    # and the node flows sum to the well's rate. Worked by hand, h_WELL = 0:
+    #   node 1: T = 100 m^2/d, r0 = 300 m, r_w = 0.15 m: A = ln(2000)/(2 pi 100) = 0.01209721
+    #           B = 0.002 d/m^2, C = 1e-5 d^2/m^5, P = 2, Q_1 = 400 m^3/d:
+    #           h_1 = 0.01409721 x 400 + 1e-5 x 400^2 = 5.638885 + 1.6 = 7.238885 m
+    #   node 2: T = 50 m^2/d: A = 0.02419442, B = 0, C = 1e-6 d^2.5/m^6.5, P = 2.5,
+    #           Q_2 = 200 m^3/d: 200^2.5 = 565685.42;
+    #           h_2 = 0.02419442 x 200 + 0.56568542 = 5.404570 m
+    a = np.log(2000.0) / (2 * np.pi * np.array([100.0, 50.0]))
+    np.testing.assert_allclose(a, [0.01209721, 0.02419442], rtol=1e-6)
+    h = np.array([(a[0] + 0.002) * 400.0 + 1e-5 * 400.0**2,
+                  a[1] * 200.0 + 1e-6 * 200.0**2.5])
+    np.testing.assert_allclose(h, [7.238885, 5.404570], rtol=1e-6)
+    st = solve_wellbore_head([600.0], 1.0 / a, h, nonlinear_loss=[1e-5, 1e-6],
+                             exponent=[2.0, 2.5], linear_loss=[0.002, 0.0])
+    assert st.wellbore_head[0] == pytest.approx(0.0, abs=1e-9)
+    np.testing.assert_allclose(st.zone_flow[0], [400.0, 200.0], rtol=1e-10)
+    # the cell-to-well conductance form: Q_n = CWC_n (h_n - h_WELL),
+    # CWC_n = 1 / (A_n + B_n + C_n Q_n^(P-1))
+    cwc = 1.0 / (a + [0.002, 0.0] + np.array([1e-5, 1e-6]) * st.zone_flow[0]
+                 ** (np.array([2.0, 2.5]) - 1))
+    np.testing.assert_allclose(st.zone_flow[0], cwc * (h - st.wellbore_head[0]), rtol=1e-10)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st_.integers(0, 2**32 - 1))
+def test_newton_on_all_points_agrees_with_the_bracketed_solve(seed):
+    # the vectorised Newton (started from the linear solution) and the bracketed
+    # Newton-bisection solve the same equations: their answers agree
+    import blendq.well.hydraulics as hyd
+
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(1, 5))
+    g = rng.uniform(5.0, 300.0, (3, n))
+    h0 = -rng.uniform(5.0, 25.0, (3, n))
+    d = np.where(rng.random((3, n)) < 0.7, rng.uniform(0.0, 5e-5, (3, n)), 0.0)
+    p = rng.choice([1.0, 1.5, 2.0, 2.5, 3.5], n)
+    bl = np.where(rng.random((3, n)) < 0.5, rng.uniform(0.0, 0.01, (3, n)), 0.0)
+    top = np.sort(rng.uniform(10.0, 60.0, n))
+    bot = top + rng.uniform(2.0, 15.0, n)
+    rates = rng.uniform(0.0, 4000.0, 6)
+    kw = dict(nonlinear_loss=d, exponent=p, linear_loss=bl, zone_top=top, zone_bottom=bot)
+    fast = solve_wellbore_head(rates, g, h0, **kw)
+    saved = hyd.NEWTON_ITERATIONS
+    hyd.NEWTON_ITERATIONS = 0
+    try:
+        slow = solve_wellbore_head(rates, g, h0, **kw)
+    finally:
+        hyd.NEWTON_ITERATIONS = saved
+    np.testing.assert_array_equal(np.isnan(fast.wellbore_head), np.isnan(slow.wellbore_head))
+    ok = np.isfinite(fast.wellbore_head)
+    np.testing.assert_allclose(fast.wellbore_head[ok], slow.wellbore_head[ok], rtol=1e-7,
+                               atol=1e-6)
+    np.testing.assert_allclose(fast.zone_flow[ok], slow.zone_flow[ok], rtol=1e-7, atol=1e-5)
+    np.testing.assert_allclose(fast.zone_flow[ok].sum(-1), np.broadcast_to(rates, ok.shape)[ok],
+                               rtol=1e-9, atol=1e-7)

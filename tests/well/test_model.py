@@ -248,3 +248,49 @@ def test_horizon_factor_of_a_fitted_conductance_keeps_its_skin(with_t):
     np.testing.assert_allclose(horizon_factor_of(g_fit, slope, t1, t2), g_h / g_fit, rtol=1e-12)
     # steady zones: no factor
     np.testing.assert_array_equal(horizon_factor_of(g_fit, np.zeros(3), t1, t2), 1.0)
+
+
+@pytest.mark.parametrize("d", [0.0, 2e-6])
+def test_at_horizon_holds_the_ambient_crossflow_of_a_water_table_zone(d):
+    # the upper zone's static level (21 m) lies inside its interval (20-30 m): unconfined;
+    # at rest the well's level lies in that interval too, so it flows in across a seepage face
+    from blendq.well.mixing import WellGeometry
+
+    geo = WellGeometry([20.0, 40.0, 60.0], [30.0, 50.0, 70.0], 15.0)
+    m = WellModel(geo, np.array([150.0, 60.0, 220.0]), np.array([-21.0, -24.0, -26.0]),
+                  np.full(3, d), 0.0, loss_exponent=np.array([2.0, 2.5, 2.0]))
+    h = m.at_horizon(np.array([0.73, 0.84, 0.6]))
+    a0, a1 = m.state(np.zeros(1)), h.state(np.zeros(1))
+    assert a0.zone_flow[0, 0] > 50.0 and -a0.wellbore_head[0] > 20.0
+    np.testing.assert_allclose(a1.zone_flow, a0.zone_flow, rtol=1e-9, atol=1e-8)
+    np.testing.assert_allclose(a1.wellbore_head, a0.wellbore_head, rtol=0, atol=1e-8)
+
+
+def test_demo_upper_sand_with_heads_lowered_30_ft_stops_gaining_at_full_transmissivity():
+    # the demo's zone properties (no fit), static heads 30 ft lower: once the wellbore head
+    # falls below the upper sand's top (120 ft), its inflow grows with its saturated thickness
+    # (Dupuit-Thiem; Kruseman and de Ridder 1990), less than the confined law would give
+    from blendq.well.model import model_from_parameters
+
+    demo = load_project(Path(__file__).parents[2] / "blendq" / "data" / "demo")
+    prior = prior_hydraulics(demo)
+    m = model_from_parameters(demo, np.exp(prior.log_conductance), prior.static_head - 9.144)
+    rates = np.linspace(0.0, 6000.0, 61)  # m^3/d, to 1100 gpm
+    st = m.state(rates)
+    top = demo.zones[0].top
+    below = -st.wellbore_head > top
+    assert below.any() and not below[0]
+    g = m.conductance
+    # confined law: each zone gains G_i / sum G of every increment of the rate
+    gain = np.diff(st.zone_flow[:, 0])
+    full = g[0] / g.sum() * np.diff(rates)
+    np.testing.assert_allclose(gain[~below[1:] & ~below[:-1]],
+                               full[~below[1:] & ~below[:-1]], rtol=1e-9)
+    dry = gain[below[:-1]]
+    assert np.all(dry < full[below[:-1]] * (1 - 1e-6)) and np.all(np.diff(dry) < 0)
+    assert dry[-1] < 0.8 * full[-1]
+    # the zone's slope dq/dh_w is G times its saturated fraction
+    k = np.flatnonzero(below)[-1]
+    z = demo.zones[0]
+    sat = (st.wellbore_head[k] + z.bottom) / (z.bottom - z.top)
+    assert 0.0 < sat < 1.0
