@@ -227,10 +227,17 @@ def check_cmd(
 
         if fail_on not in ("error", "warning", "info"):
             raise typer.BadParameter(f'"{fail_on}" is not error, warning or info', param_hint="--fail-on")
+        from blendq.well import memory as crossflow
+
         proj = _load(project)
-        result = qa.review(proj)
+        mem, stored = crossflow.review_memory(proj)
+        result = qa.review(proj, memory=mem)
+        memory_line = ("" if stored is None else "crossflow memory (zone properties): "
+                       + crossflow.stored_line(stored, None, _units(None, proj)))
         if as_json:
             payload = json.loads(result.to_json())
+            if memory_line:
+                payload["crossflow_memory"] = memory_line
             payload["cautions"] = cautions_for(*result.findings["message"].astype(str))
             typer.echo(json.dumps(payload, indent=2))
         else:
@@ -244,6 +251,8 @@ def check_cmd(
                     typer.echo(f"  [{f['severity']}] {f['rule']}: {f['message']}")
             for rule, why in result.skipped:
                 typer.echo(f"  skipped {rule}: {why}")
+            if memory_line:
+                typer.echo("  " + memory_line)
             for line in result.decision_lines():
                 typer.echo(f"  review decision: {line}")
             _echo_cautions(*result.findings["message"].astype(str))
@@ -390,6 +399,8 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = None,
                                 "diagnostics": a.analyte_diagnostics.to_dict(orient="records"),
                                 **({"leave_one_step_out": steps.to_dict(orient="records")}
                                    if steps is not None else {}),
+                                **({"crossflow_memory": _memory_lines(a, u)}
+                                   if a.memory is not None else {}),
                                 "units": "mg/L canonical basis; m2/d; m; m3/d",
                                 "cautions": cautions_for(*result.notes)}))
             return
@@ -414,12 +425,25 @@ def fit_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = None,
             typer.echo(f"Review decision: {line}")
         for note in result.notes:
             typer.echo("Note: " + note)
+        for line in _memory_lines(a, u):
+            typer.echo("Crossflow memory: " + line)
         if steps is not None:
             for line in _step_table_lines(steps, u):
                 typer.echo(line)
         _echo_cautions(*result.notes)
 
     _guard(body)
+
+
+def _memory_lines(a, units: str) -> list[str]:
+    """The crossflow-memory lines of an analysis (stored water, flagged step samples, the
+    first-flush advice); none without an idle time."""
+    from blendq.well.memory import memory_lines
+
+    if a.memory is None:
+        return []
+    return memory_lines(a.memory, float(a.qa.options["returned_water_flag"]), units,
+                        only_flagged=True)
 
 
 @app.command("window")

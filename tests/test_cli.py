@@ -130,6 +130,17 @@ def test_readme_check_demo():
     assert "[warning]" in r.stdout
 
 
+def test_check_shows_crossflow_memory():
+    # the demo's [test] idle_time_before: the first step's sample is flagged with its volumes
+    r = run("check", DEMO)
+    assert "[warning] returned_water: step S1:" in r.stdout
+    assert "crossflow memory (zone properties): Idle time before the test: 2 h" in r.stdout
+    assert "Caution:" in r.stdout
+    j = json.loads(run("check", DEMO, "--json").stdout)
+    assert j["crossflow_memory"].startswith("crossflow memory")
+    assert any(f["rule"] == "returned_water" for f in j["findings"])
+
+
 def test_check_fail_on():
     assert run("check", DEMO, "--fail-on", "warning").exit_code == 1  # the demo has warnings
     assert run("check", DEMO, "--fail-on", "error").exit_code == 0

@@ -15,13 +15,15 @@ from blendq.chemistry.limits import Limit
 from blendq.decide import sweep
 from blendq.decide.levelcheck import LevelCheck, check_levels
 from blendq.errors import ModelError
-from blendq.fit import diagnostics, estimation, uncertainty, unresolved
+from blendq.fit import diagnostics, estimation, observations, uncertainty, unresolved
 from blendq.inputs.project import Project
+from blendq.well import memory
 from blendq.well.model import (
     NO_PRIOR_SOURCE,
     START_CONDUCTANCE,
     elapsed_test_time,
     horizon_scaling,
+    operating_geometry,
 )
 
 
@@ -47,6 +49,8 @@ class Analysis:
     step_drawdown: LevelCheck | None = None
     notes: list[str] = field(default_factory=list)
     result_use: pd.DataFrame | None = None
+    #: crossflow memory (:class:`blendq.well.memory.MemorySummary`); None without idle times
+    memory: object | None = None
 
     @property
     def decisions(self) -> pd.DataFrame:
@@ -92,7 +96,10 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     from blendq.review import decisions as decisions_module
     from blendq.review import findings as qa_module
 
-    review = qa_module.review(project)
+    # crossflow memory: the review runs before the fit, so it sees the zone model of the
+    # zone properties; the fit's weighting below uses the fitted model
+    mem = memory.review_memory(project)[0]
+    review = qa_module.review(project, memory=mem)
     use = review.sample_weights(sample_mode).reset_index()
     # the reviewer's decisions recorded in the project come after the mode: per result for the
     # fit, per sample (whole-sample decisions) for the table of sample use
@@ -108,6 +115,15 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
         raise ModelError("no analyte with a limit has a detected result: nothing to fit")
     fit_project = replace(project, samples=project.samples[project.samples["analyte"].isin(analytes)])
     fit = estimation.fit(fit_project, sample_use=per_result)
+    flag = float(review.options["returned_water_flag"])
+    if mem is not None and len(mem) and (mem["returned_fraction"] > flag).any():
+        # widen (or drop) the step samples that may carry returned water by their error
+        # predicted with the first fit's zones, then fit once more
+        mem_fit = memory.sample_memory(project, fit.model)
+        bias = memory.sample_bias(fit.model, mem_fit, fit.concentrations[fit.analytes])
+        per_result = observations.returned_water_use(
+            per_result, mem_fit, bias, flag, float(review.options["returned_water_exclude"]))
+        fit = estimation.fit(fit_project, sample_use=per_result)
     s = project.settings
     d = uncertainty.monte_carlo(fit, s.draws if draws is None else draws,
                                 s.seed if seed is None else seed, progress=progress)
@@ -148,9 +164,13 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
         notes.append(horizon_note)
     notes.append(f"Pumping level in the window from the {levels.source}: {levels.reason}.")
     notes += [n + "." for n in sweep.applicable_ratio_rules(s.limit_sets, pred.analytes)[1]]
+    rate = window.recommended if window.recommended else project.well.demand
+    mem_summary = memory.summarise(
+        project, fit.model, fit.model.with_changes(geometry=operating_geometry(project)),
+        fit.concentrations[fit.analytes], rate)
     return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
                     residuals, hyd, pred, window, limits, table, skipped,
-                    levels, notes, per_result)
+                    levels, notes, per_result, mem_summary)
 
 
 def entrance_loss_notes(fit) -> list[str]:

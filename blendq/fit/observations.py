@@ -5,7 +5,9 @@ sample taken inside the well at a depth (wellbore composition at that depth). No
 censored rows (the fitted blend may not exceed the detection limit). A duplicate (a result whose
 ``duplicate_of`` names another sample of the same step, analyte and depth) is combined with its
 primary into one observation of the step (:func:`combine_duplicates`; docs/methods.md,
-section 6.1), so a step sampled twice does not weigh twice.
+section 6.1), so a step sampled twice does not weigh twice. A step sample that may carry water a
+thief zone stored while the well stood idle is widened by its predicted error, or left out
+(:func:`returned_water_use`; crossflow memory, docs/methods.md).
 """
 
 from __future__ import annotations
@@ -200,6 +202,81 @@ def combine_duplicates(value, sigma, nondetect, detection_limit) -> tuple[bool, 
     return False, mean, sd
 
 
+def returned_water_sigma(sigma, bias) -> np.ndarray:
+    """Uncertainty of a result widened by the predicted error of returned water [mg/L].
+
+    sigma' = sqrt(sigma^2 + bias^2): the predicted error (a share of stored water times its
+    difference from the thief zones' own water) is treated as one more independent error of
+    the result, so sigma' >= sigma and the weight 1/sigma'^2 never rises.
+
+    Parameters
+    ----------
+    sigma : array_like
+        Standard uncertainty of the result [mg/L].
+    bias : array_like
+        Predicted error from returned water [mg/L] (its sign does not matter).
+    """
+    return np.hypot(np.asarray(sigma, float), np.nan_to_num(np.asarray(bias, float)))
+
+
+def returned_water_use(sample_use: pd.DataFrame, memory: pd.DataFrame, bias: pd.DataFrame,
+                       flag_above: float, exclude_above: float) -> pd.DataFrame:
+    """Use of each result in the fit with crossflow memory: widened or left out.
+
+    The rule (docs/methods.md, crossflow memory), for a result whose sample is predicted to
+    hold a share f of returned water: f above ``exclude_above`` (``qa.returned_water_exclude``)
+    leaves it out; f above ``flag_above`` (``qa.returned_water_flag``, the review's flag) gets
+    ``added_sigma`` = |bias|, combined with its uncertainty by :func:`returned_water_sigma` in
+    :func:`quality_data`; a result at or below the flag is used as it is.
+
+    Parameters
+    ----------
+    sample_use : DataFrame
+        One row per result: sample_id, analyte, used, sigma_factor, reason.
+    memory : DataFrame
+        :func:`blendq.well.memory.sample_memory` (sample_id, returned_fraction).
+    bias : DataFrame
+        Predicted error [mg/L], index sample_id, one column per analyte
+        (:func:`blendq.well.memory.sample_bias`).
+    flag_above : float
+        Share of returned water [-] above which a result is widened.
+    exclude_above : float
+        Share of returned water [-] above which a result is left out.
+
+    Returns
+    -------
+    DataFrame
+        A copy of ``sample_use`` with an ``added_sigma`` column [mg/L]; ``used`` and
+        ``reason`` changed where the rule acts.
+    """
+    use = sample_use.copy()
+    use["added_sigma"] = 0.0
+    if memory is None or memory.empty:
+        return use
+    share = memory.set_index("sample_id")["returned_fraction"]
+    for k, row in use.iterrows():
+        f = float(share.get(row["sample_id"], np.nan))
+        if not (np.isfinite(f) and f > flag_above and bool(row["used"])):
+            continue
+        if f > exclude_above:
+            use.at[k, "used"] = False
+            use.at[k, "reason"] = _join(row["reason"], f"excluded: {100 * f:.1f} % returned "
+                                        f"water predicted (above {100 * exclude_above:g} %)")
+            continue
+        b = float(bias.at[row["sample_id"], row["analyte"]]) if (
+            row["sample_id"] in bias.index and row["analyte"] in bias.columns) else 0.0
+        if np.isfinite(b) and b != 0.0:
+            use.at[k, "added_sigma"] = abs(b)
+            use.at[k, "reason"] = _join(row["reason"], f"uncertainty widened by {abs(b):.3g} "
+                                        f"mg/L: {100 * f:.1f} % returned water predicted")
+    return use
+
+
+def _join(a, b: str) -> str:
+    a = "" if a is None or (isinstance(a, float) and np.isnan(a)) else str(a)
+    return f"{a}; {b}" if a else b
+
+
 def quality_data(project: Project, sample_use: pd.DataFrame | None = None) -> dict[str, AnalyteData]:
     """Quality observations per analyte (analytes with at least one result at a known rate).
 
@@ -224,6 +301,7 @@ def quality_data(project: Project, sample_use: pd.DataFrame | None = None) -> di
     s["step"] = s["step"].astype(str)
     s = s[s["step"].isin(rate_of)]
     factor = pd.Series(1.0, index=s.index)
+    added = pd.Series(0.0, index=s.index)
     if sample_use is not None and not sample_use.empty:
         if "analyte" in sample_use.columns:  # one row per result (review decisions)
             use = sample_use.set_index(["sample_id", "analyte"])
@@ -231,12 +309,15 @@ def quality_data(project: Project, sample_use: pd.DataFrame | None = None) -> di
             keep = pd.Series(use["used"].reindex(pairs).to_numpy(), index=s.index)
             factor = pd.Series(use["sigma_factor"].reindex(pairs).to_numpy(), index=s.index)
             keep, factor = keep.fillna(True).astype(bool), factor.fillna(1.0).astype(float)
+            if "added_sigma" in use.columns:
+                added = pd.Series(use["added_sigma"].reindex(pairs).to_numpy(),
+                                  index=s.index).fillna(0.0).astype(float)
         else:
             use = sample_use.set_index("sample_id")
             keep = s["sample_id"].map(use["used"]).fillna(True).astype(bool)
             factor = s["sample_id"].map(use["sigma_factor"]).fillna(1.0).astype(float)
         s = s[keep]
-        factor = factor[keep]
+        factor, added = factor[keep], added[keep]
     out = {}
     for analyte in dict.fromkeys(s["analyte"]):
         sub = s[s["analyte"] == analyte]
@@ -248,7 +329,8 @@ def quality_data(project: Project, sample_use: pd.DataFrame | None = None) -> di
             sig[~nd] = lab_sigma(value[~nd], sub["uncertainty"].astype(float).to_numpy()[~nd],
                                  limit[~nd], settings.default_relative_uncertainty,
                                  settings.detection_limit_sigma_fraction)
-        sig = sig * factor.loc[sub.index].to_numpy(float)
+        sig = returned_water_sigma(sig * factor.loc[sub.index].to_numpy(float),
+                                   added.loc[sub.index].to_numpy(float))
         group = duplicate_groups(sub)
         ids = sub["sample_id"].astype(str).to_numpy()
         steps = sub["step"].to_numpy(str)

@@ -272,6 +272,16 @@ class Settings:
         "a4" or "letter"; "" for Letter with US display units and A4 with SI.
     fit_entrance_losses : bool
         Fit each zone's nonlinear entrance loss (kept where the data resolve it).
+    idle_time_before_test : float or None
+        How long the well stood idle before the first step [d] (``[test] idle_time_before``):
+        the time the thief zones took in ambient crossflow (crossflow memory); None: unknown,
+        not assessed.
+    idle_time_before_sample : float or None
+        Idle time before a compliance sample in operation [d] (``[test]
+        idle_time_before_sample``), for the first-flush advice; None: not given.
+    first_flush_tolerance : float
+        Relative distance from the steady blend [-] within which the discharge counts as
+        steady after a pump start (first-flush advice). Common practice: 0.05 (lab precision).
     """
 
     limit_sets: tuple[str, ...] = ("US-EPA",)
@@ -307,6 +317,9 @@ class Settings:
     report_date: str = ""
     paper: str = ""
     fit_entrance_losses: bool = False
+    idle_time_before_test: float | None = None
+    idle_time_before_sample: float | None = None
+    first_flush_tolerance: float = 0.05
 
     def temporal_cv_for(self, analyte: str) -> tuple[float, str]:
         """Temporal coefficient of variation of ``analyte`` [-] and where it comes from

@@ -39,7 +39,7 @@ CONDUCTANCE_MODELS = ("auto", "steady", "transient", "given", "flowlog")
 
 #: top-level tables of the project file
 SECTIONS = ("project", "well", "zones", "tables", "settings", "limits", "scenarios", "review",
-            "plan")
+            "plan", "test")
 
 #: what a ``[[review]]`` decision may do with a sample (see blendq.review.decisions)
 REVIEW_ACTIONS = ("exclude", "downweight", "keep")
@@ -486,6 +486,20 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
     return settings
 
 
+def _test(doc: dict, label: str) -> dict:
+    """The ``[test]`` table: idle times for crossflow memory and the first-flush tolerance."""
+    t = _Section(_table(doc, "test", label) if "test" in doc else {}, "test", label)
+    d = Settings()
+    out = {"idle_time_before_test": t.quantity("idle_time_before", "time", None,
+                                               sign="nonnegative"),
+           "idle_time_before_sample": t.quantity("idle_time_before_sample", "time", None,
+                                                 sign="nonnegative"),
+           "first_flush_tolerance": float(t.number("first_flush_tolerance",
+                                                   d.first_flush_tolerance, 0.0, 1.0, True))}
+    t.done()
+    return out
+
+
 #: largest accepted temporal coefficient of variation [-]
 _CV_MAX = 5.0
 
@@ -704,7 +718,7 @@ def read_project_file(path: str | Path) -> ProjectFile:
     report_fields = _report_fields(head)
     head.done()
     well, zones = _well(doc, label), _zones(doc, label)
-    settings = replace(_settings(doc, units, label), **report_fields,
+    settings = replace(_settings(doc, units, label), **report_fields, **_test(doc, label),
                        review_decisions=_review_decisions(doc, label))
     limits = _user_limits(doc, label, [lim for s in settings.limit_sets for lim in limit_set(s)])
     return ProjectFile(name, well, zones, settings, limits, _scenarios(doc, label),

@@ -68,6 +68,12 @@ flowlogs = "flowlogs.csv"
 levels = "levels.csv"
 field = "field.csv"
 
+# How long the well stood idle before the first step, and before a compliance sample in
+# operation (crossflow memory: water a thief zone takes in at rest comes back first).
+# [test]
+# idle_time_before = "12 h"
+# idle_time_before_sample = "8 h"
+
 [settings]
 limit_sets = ["US-EPA"]               # any of "US-EPA", "WHO", "EU"
 margin = 0.8                          # stay under 80 % of each limit (a utility's policy)

@@ -533,6 +533,27 @@ def raw_data_appendix(a: Analysis, units: str) -> Section:
     return Section("Appendix: the data", tuple(blocks), "appendix-data")
 
 
+def memory_section(a: Analysis, units: str) -> Section:
+    """Crossflow memory: the water the thief zones stored while the well stood idle, the step
+    samples that may carry it, and how long to pump before a compliance sample."""
+    from blendq.well.memory import memory_lines
+
+    flag = float(a.qa.options["returned_water_flag"])
+    exclude = float(a.qa.options["returned_water_exclude"])
+    return Section("Crossflow memory and first flush", (
+        Paragraph("At rest, ambient crossflow carries water from the zones of high head into "
+                  "thief zones through the open well; when the pump starts, they return that "
+                  "water first. Volumes below are the fitted zone model's ambient crossflow "
+                  "times the idle time; the return is modelled as the washout of a well-mixed "
+                  "volume (docs/methods.md). A step sample predicted to hold more than "
+                  f"{flag:.0%} of returned water is flagged and its uncertainty widened by "
+                  f"its predicted error in the fit; above {exclude:.0%} it is left out. "
+                  "The advice is a planning figure: compliance samples follow the regulator's "
+                  "sampling rules."),
+        BulletList(memory_lines(a.memory, flag, units)),
+    ), "memory")
+
+
 def build_document(a: Analysis, units: str = "US", created: str = "") -> Document:
     """The report of an analysis as a renderer-neutral document (its charts drawn here)."""
     p = a.project
@@ -619,6 +640,7 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
             Table(at_rate_table(a, rec_rate, units),
                   f"Predicted discharge at {format_quantity(rec_rate, 'rate', units)}."),
         ), "window"),
+        *([memory_section(a, units)] if a.memory is not None else []),
         Section("Charts", tuple(quality_figures(a, units)), "charts"),
     ]
     if p.scenarios:
@@ -662,6 +684,8 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
 
 def summary_json(a: Analysis, units: str = "US") -> dict:
     """Machine-readable summary (base units, with the display strings beside them)."""
+    from blendq.well.memory import memory_lines
+
     w = a.window
     return {
         "blendq_version": __version__,
@@ -679,6 +703,9 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
         "zones": a.zones.to_dict(orient="records"),
         "not_fitted": a.not_fitted,
         "qa": a.qa.summary_lines(),
+        **({"crossflow_memory": memory_lines(
+            a.memory, float(a.qa.options["returned_water_flag"]), units)}
+           if a.memory is not None else {}),
         "draws": a.draws.n_draws,
         "seed": a.draws.seed,
         "cautions": list(CAUTIONS),

@@ -298,12 +298,16 @@ def pumped_volume(schedule: pd.DataFrame, step: str, sampled_at) -> tuple[float,
     return float(np.sum(span["rate"].to_numpy() * span["duration"].to_numpy())), False
 
 
-def check_purge(project, samples, schedule, stable: dict[str, bool], opts) -> Outcome:
+def check_purge(project, samples, schedule, stable: dict[str, bool], opts,
+                stored: dict[str, float] | None = None) -> Outcome:
     """Casing volumes pumped before each sample; fewer than ``casing_volumes_min`` (default 3)
     is a warning unless the field parameters were stable (common practice: three to five).
 
     Casing volume: radius ``qa.casing_radius`` (default the well radius), water column from the
-    static level to the well bottom (the deepest zone bottom).
+    static level to the well bottom (the deepest zone bottom). ``stored`` gives, per sample_id,
+    the volume [m^3] the thief zones stored during the idle time before the pump start the
+    sample follows (crossflow memory, :mod:`blendq.review.returned`): that water comes back
+    first, so the purge must also remove it, once (n casing volumes + the stored volume).
     """
     out = Outcome()
     if schedule.empty:
@@ -333,13 +337,22 @@ def check_purge(project, samples, schedule, stable: dict[str, bool], opts) -> Ou
             no_times.append(sid)
             continue
         n = pumped / volume
-        if not exceeds(opts["casing_volumes_min"], n):
+        extra = float((stored or {}).get(sid, 0.0))
+        extra = extra if np.isfinite(extra) and extra > 0 else 0.0
+        need = opts["casing_volumes_min"] * volume + extra
+        if not exceeds(need, pumped):
             continue
         row = {"sample_id": sid, "step": s["step"], "source_row": s["source_row"]}
         basis = "" if timed else " (sample taken as at the end of its step)"
         msg = (f"{fmt(pumped)} m^3 pumped before the sample{basis} is {n:.2f} casing volumes "
                f"of {fmt(volume)} m^3 (radius {fmt(radius)} m, water column {fmt(column)} m "
-               f"below a static level from {how}); fewer than {opts['casing_volumes_min']:g}")
+               f"below a static level from {how})")
+        if extra > 0:
+            msg += (f", less than {opts['casing_volumes_min']:g} casing volumes plus the "
+                    f"{fmt(extra)} m^3 the thief zones stored while the well stood idle "
+                    f"({fmt(need)} m^3)")
+        else:
+            msg += f"; fewer than {opts['casing_volumes_min']:g}"
         if stable.get(sid):
             out.add("info", "purge_volume", msg + ", but field parameters were stable",
                     SRC_COMMON, row, analyte="")

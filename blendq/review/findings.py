@@ -31,6 +31,7 @@ from blendq.review.field import check_field_stability, check_purge, check_timing
 from blendq.review.holding import check_holding_times
 from blendq.review.ionbalance import check_ion_balance, ion_balance_table
 from blendq.review.outliers import check_gross_outliers
+from blendq.review.returned import check_returned_water
 from blendq.review.rules import (
     FINDING_COLUMNS,
     SEVERITIES,
@@ -87,6 +88,12 @@ QA_DEFAULTS: dict[str, object] = {
     # the step before a sample is late
     "early_sample_share": 0.5,
     "late_sample_share": 0.02,
+    # crossflow memory: a step sample predicted to hold more than this share of water a thief
+    # zone stored during the idle time is a warning; the fit drops one above the second share
+    # and widens the others by the predicted error (common practice: about lab precision, and
+    # a quarter of the sample)
+    "returned_water_flag": 0.02,
+    "returned_water_exclude": 0.25,
     # sample_weights("downweight"): factor on the uncertainty of flagged samples
     "downweight_factor": 3.0,
     # rule -> severity overrides, e.g. {"estimated_value": "info"}
@@ -101,6 +108,7 @@ RULES: tuple[str, ...] = (
     "duplicate_step", "duplicate_rpd", "ion_balance", "ion_balance_incomplete", "holding_time",
     "holding_time_order", "holding_time_unknown", "preservation", "field_readings_few",
     "field_stability", "purge_volume", "step_unknown", "early_sample", "late_sample",
+    "returned_water",
 ) + consistency.RULES
 
 _FLAG_KEYS = ("estimated_flags", "nondetect_flags", "rejected_flags")
@@ -109,7 +117,8 @@ _POSITIVE_KEYS = ("basis_ratio_tolerance", "duplicate_rpd_limit", "duplicate_nea
                   "ion_balance_abs_meq", "ion_balance_pct_mid", "ion_balance_pct_high",
                   "stable_temperature", "stable_ph", "stable_sc_percent_low",
                   "stable_sc_percent_high", "stable_sc_break", "stable_do", "stable_turbidity",
-                  "stable_turbidity_percent", "downweight_factor")
+                  "stable_turbidity_percent", "downweight_factor", "returned_water_flag",
+                  "returned_water_exclude")
 WEIGHT_MODES = ("keep", "exclude", "downweight")
 
 
@@ -402,7 +411,7 @@ def _plain_json(value):
 
 # ------------------------------------------------------------------ review
 
-def review(project) -> QAResult:
+def review(project, memory: pd.DataFrame | None = None) -> QAResult:
     """Review the lab and field results of a step test.
 
     Parameters
@@ -411,6 +420,9 @@ def review(project) -> QAResult:
         Tables ``samples`` (values [mg/L] on the canonical basis), ``steps`` and
         ``field_readings``; options in ``project.settings.qa`` (defaults in
         :data:`QA_DEFAULTS`).
+    memory : DataFrame, optional
+        Crossflow memory of the step samples (:func:`blendq.well.memory.sample_memory`): the
+        returned-water rule and the purge volume use it; None: not assessed.
 
     Returns
     -------
@@ -441,8 +453,11 @@ def review(project) -> QAResult:
       conductance +-5 % (<= 100 uS/cm) or +-3 %, DO +-0.2 mg/L, turbidity +-0.5 FNU or +-10 %
       (warning; settings, common practice after the USGS National Field Manual chapter A6,
       not checked against its 2023 revision).
-    - purge volume: fewer than 3 casing volumes pumped before the sample (warning, or info when
-      the field parameters were stable; common practice).
+    - purge volume: fewer than 3 casing volumes, plus the volume the thief zones stored during
+      the idle time when it is known, pumped before the sample (warning, or info when the
+      field parameters were stable; common practice).
+    - returned water: a step sample predicted to hold more than 2 % of water a thief zone
+      stored while the well stood idle (warning; crossflow memory, docs/methods.md).
     - timing: a sample taken before half of its step had elapsed (warning; common practice).
     - gross outliers: a discharge result more than ``settings.gross_outlier_factor`` (10)
       times every other step's result, or below 1/10 of them, which no blend of the other
@@ -481,7 +496,10 @@ def review(project) -> QAResult:
         out.extend(rule(samples, project.steps, opts))
     field_out, stable = check_field_stability(samples, project.field_readings, schedule, opts)
     out.extend(field_out)
-    out.extend(check_purge(project, samples, schedule, stable, opts))
+    stored = (None if memory is None or memory.empty
+              else dict(zip(memory["sample_id"], memory["stored"], strict=True)))
+    out.extend(check_purge(project, samples, schedule, stable, opts, stored))
+    out.extend(check_returned_water(samples, memory, opts))
     out.extend(check_timing(samples, schedule, opts))
     out.extend(check_gross_outliers(samples, project.settings.gross_outlier_factor,
                                     project.files.get("samples", "samples.csv")))

@@ -182,3 +182,28 @@ def test_leave_one_step_out_keeps_the_decisions_of_the_samples_left():
     # the base row is the analysis itself
     np.testing.assert_allclose(t.loc[0, "window_high"],
                                max(i[1] for i in a.window.intervals), rtol=0)
+
+
+def test_crossflow_memory_widens_the_flagged_step_sample(analysis):
+    # the demo's 2 h idle before the test: the first step's sample may carry water the deep
+    # sand and the gravel stored (crossflow memory); the fit widens it by its predicted error
+    # and leaves the samples under the flag as they are
+    use = analysis.result_use.set_index(["sample_id", "analyte"])
+    assert use.loc[("TH2-1", "nitrate"), "added_sigma"] > 0
+    assert "returned water predicted" in use.loc[("TH2-1", "nitrate"), "reason"]
+    assert (use.drop(index="TH2-1", level=0)["added_sigma"] == 0).all()
+    mem = analysis.memory
+    assert mem.test.thieves == ["Gravel (clogged)", "Deep sand"]
+    np.testing.assert_allclose(mem.test.volume, np.clip(-mem.test.ambient_flow, 0, None)
+                               * 2 / 24, rtol=1e-12)
+    # the stored water is the donors' blend: between the smallest and largest zone value
+    c = analysis.fit.concentrations[mem.stored_concentration.index]
+    assert ((mem.stored_concentration >= c.min() - 1e-12)
+            & (mem.stored_concentration <= c.max() + 1e-12)).all()
+    assert mem.flush is not None and np.all(mem.flush.time_to_tolerance > 0)
+    # sigma of the S1 nitrate row in the fit: its lab sigma and the added error in quadrature
+    rows = analysis.fit.problem.data["nitrate"]
+    k = list(rows.sample_id).index("TH2-1")
+    np.testing.assert_allclose(rows.sigma[k], np.hypot(0.04 * 9.2,
+                                                       use.loc[("TH2-1", "nitrate"),
+                                                               "added_sigma"]), rtol=1e-9)

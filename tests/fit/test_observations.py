@@ -211,3 +211,72 @@ def test_no_usable_samples(table):
     else:
         p.samples = p.samples.assign(step="X")
     assert quality_data(p) == {}
+
+
+# ------------------------------------------------------------------ crossflow memory
+
+def test_returned_water_sigma_adds_in_quadrature():
+    from blendq.fit.observations import returned_water_sigma
+
+    # hand calculation: sqrt(0.3^2 + 0.4^2) = 0.5
+    np.testing.assert_allclose(returned_water_sigma([0.3, 0.3], [0.4, -0.4]), [0.5, 0.5],
+                               rtol=1e-12)
+    np.testing.assert_allclose(returned_water_sigma([0.3], [np.nan]), [0.3], rtol=1e-12)
+
+
+def _use_rows():
+    return pd.DataFrame({"sample_id": ["A", "A", "B", "C"],
+                         "analyte": ["nitrate", "arsenic", "nitrate", "nitrate"],
+                         "used": [True, True, True, True], "sigma_factor": 1.0,
+                         "reason": ["", "", "kept despite warning x", ""]})
+
+
+def test_returned_water_use_rule():
+    from blendq.fit.observations import returned_water_use
+
+    memory = pd.DataFrame({"sample_id": ["A", "B", "C"], "returned_fraction": [0.05, 0.3, 0.01]})
+    bias = pd.DataFrame({"nitrate": [0.6, 2.0, 0.1], "arsenic": [-0.001, 0.0, 0.0]},
+                        index=["A", "B", "C"])
+    out = returned_water_use(_use_rows(), memory, bias, flag_above=0.02, exclude_above=0.25)
+    a = out.set_index(["sample_id", "analyte"])
+    # A: flagged (5 % > 2 %), widened by |bias|; B: 30 % > 25 %, left out; C: under the flag
+    assert a.loc[("A", "nitrate"), "added_sigma"] == pytest.approx(0.6, rel=1e-12)
+    assert a.loc[("A", "arsenic"), "added_sigma"] == pytest.approx(0.001, rel=1e-12)
+    assert not a.loc[("B", "nitrate"), "used"]
+    assert "kept despite warning x; excluded: 30.0 % returned water" in a.loc[("B", "nitrate"),
+                                                                               "reason"]
+    assert a.loc[("C", "nitrate"), "added_sigma"] == 0.0 and a.loc[("C", "nitrate"), "used"]
+
+
+@settings(max_examples=80, deadline=None)
+@given(sigma=st.floats(1e-6, 1e3), b1=st.floats(-1e3, 1e3), b2=st.floats(-1e3, 1e3),
+       f=st.floats(0.0, 1.0))
+def test_a_flagged_samples_weight_never_rises(sigma, b1, b2, f):
+    from blendq.fit.observations import returned_water_sigma, returned_water_use
+
+    lo, hi = sorted((abs(b1), abs(b2)))
+    s_lo, s_hi = returned_water_sigma([sigma, sigma], [lo, hi])
+    assert s_lo >= sigma and s_hi >= s_lo  # weight 1/sigma^2 never rises, falls with the error
+    use = _use_rows()
+    memory = pd.DataFrame({"sample_id": ["A", "B", "C"], "returned_fraction": [f, f, f]})
+    bias = pd.DataFrame({"nitrate": [b1, b1, b1], "arsenic": [b2, b2, b2]},
+                        index=["A", "B", "C"])
+    out = returned_water_use(use, memory, bias, flag_above=0.02, exclude_above=0.25)
+    assert (out["added_sigma"] >= 0).all()
+    assert not (out["used"] & ~use["used"]).any()  # nothing left out comes back
+
+
+def test_quality_data_widens_by_added_sigma():
+    from pathlib import Path
+
+    import blendq
+
+    p = load_project(Path(blendq.__file__).parent / "data" / "demo")
+    base = quality_data(p)["nitrate"]
+    use = pd.DataFrame({"sample_id": ["TH2-1"], "analyte": ["nitrate"], "used": [True],
+                        "sigma_factor": [1.0], "added_sigma": [0.5]})
+    wide = quality_data(p, sample_use=use)["nitrate"]
+    k = list(base.sample_id).index("TH2-1")
+    np.testing.assert_allclose(wide.sigma[k], np.hypot(base.sigma[k], 0.5), rtol=1e-12)
+    others = [i for i in range(len(base.sigma)) if i != k]
+    np.testing.assert_allclose(wide.sigma[others], base.sigma[others], rtol=1e-12)

@@ -276,3 +276,27 @@ def test_bad_entrance_losses_name_their_key(tmp_path, zones, field, fragment):
     with pytest.raises(InputError, match=fragment) as info:
         read_project_file(_project(tmp_path, zones=zones))
     assert info.value.field == field
+
+
+def test_test_table_idle_times(tmp_path):
+    # crossflow memory: [test] idle times with units, the first-flush tolerance a plain share
+    rest = ('[test]\nidle_time_before = "2 h"\nidle_time_before_sample = "30 min"\n'
+            "first_flush_tolerance = 0.1\n")
+    s = read_project_file(_project(tmp_path, rest=rest)).settings
+    assert s.idle_time_before_test == pytest.approx(2 / 24, rel=1e-12)
+    assert s.idle_time_before_sample == pytest.approx(30 / 1440, rel=1e-12)
+    assert s.first_flush_tolerance == 0.1
+    plain = read_project_file(_project(tmp_path)).settings
+    assert plain.idle_time_before_test is None and plain.idle_time_before_sample is None
+
+
+@pytest.mark.parametrize(("rest", "field", "fragment"), [
+    ("[test]\nidle_time_before = 2", "test.idle_time_before", "has no unit"),
+    ('[test]\nidle_time_before = "-1 h"', "test.idle_time_before", "zero or more"),
+    ("[test]\nfirst_flush_tolerance = 0", "test.first_flush_tolerance", "out of range"),
+    ('[test]\nidle = "2 h"', "test.idle", "not a key blendq knows"),
+])
+def test_bad_test_table_names_its_key(tmp_path, rest, field, fragment):
+    with pytest.raises(InputError, match=fragment) as info:
+        read_project_file(_project(tmp_path, rest=rest))
+    assert info.value.field == field

@@ -354,3 +354,19 @@ def test_report_lists_review_decisions_and_the_window_without_each_step():
     assert loo["Left out"].tolist() == ["nothing", "step S1", "step S2", "step S3", "step S4",
                                         "step S5"]
     assert "m³/d" in " ".join(loo["Window"]) or "m3/d" in " ".join(loo["Window"])
+
+
+def test_crossflow_memory_in_report_and_summary(demo_out):
+    # the demo gives idle times ([test] in project.toml): the report says what the thief zones
+    # stored, flags the first step's sample and advises how long to pump before a sample
+    html = (demo_out / "report.html").read_text(encoding="utf-8")
+    scan = _scan(html)
+    assert "memory" in scan.ids
+    text = re.sub(r"\s+", " ", " ".join(scan.text))
+    assert "Crossflow memory and first flush" in text
+    assert "Step S1 sample TH2-1" in text and "flagged" in text
+    assert "before a compliance sample" in text
+    data = json.loads((demo_out / "summary.json").read_text(encoding="utf-8"))
+    lines = data["crossflow_memory"]
+    assert lines[0].startswith("Idle time before the test: 2 h")
+    assert lines[-1].startswith("After 6 h idle")
