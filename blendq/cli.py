@@ -332,8 +332,9 @@ def drawdown_cmd(project: ProjectArg, units: UnitsOpt = None, as_json: JsonOpt =
         u = _units(units, proj)
         static = static_level_of(proj)
         if static is None:
-            raise InputError("the step-drawdown analysis needs the well's static level",
-                             file="project.toml", field="well.static_level")
+            raise InputError("the step-drawdown analysis needs the well's static level (or "
+                             "every zone's static level with zone properties that give their "
+                             "conductances)", file="project.toml", field="well.static_level")
         zone_s = [z.storativity for z in proj.zones]
         res = analyse_step_test(proj.steps, static,
                                 proj.levels if len(proj.levels) else None,
