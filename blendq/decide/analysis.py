@@ -18,6 +18,7 @@ from blendq.errors import ModelError
 from blendq.fit import diagnostics, estimation, uncertainty, unresolved
 from blendq.inputs.project import Project
 from blendq.well.model import (
+    FLOWLOG_SOURCE,
     NO_PRIOR_SOURCE,
     START_CONDUCTANCE,
     elapsed_test_time,
@@ -130,6 +131,10 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
         notes.append(f"No zone transmissivity, conductivity or conductance is given: the zone "
                      f"conductances rest on the flow logs and levels alone (the fit starts from "
                      f"{START_CONDUCTANCE:g} m2/d per zone, a start value with no weight).")
+    if (hyd["prior_source"] == FLOWLOG_SOURCE).any():
+        notes.append('conductance_model = "flowlog": the zone conductances rest on the flow logs '
+                     "and levels, not on the zone properties (which only carry them to the "
+                     "operating horizon).")
     if project.flowlogs.empty:
         notes.append("No flow log: drawdown alone identifies only the total conductance and "
                      "the well loss; zone shares come from zone properties (priors).")

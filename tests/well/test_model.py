@@ -24,6 +24,7 @@ import pytest
 from blendq.errors import InputError
 from blendq.inputs.loader import load_project
 from blendq.well.model import (
+    FLOWLOG_SOURCE,
     NO_PRIOR_SOURCE,
     PRIOR_LOG_CONDUCTANCE_SD,
     START_CONDUCTANCE,
@@ -248,3 +249,28 @@ def test_horizon_factor_of_a_fitted_conductance_keeps_its_skin(with_t):
     np.testing.assert_allclose(horizon_factor_of(g_fit, slope, t1, t2), g_h / g_fit, rtol=1e-12)
     # steady zones: no factor
     np.testing.assert_array_equal(horizon_factor_of(g_fit, np.zeros(3), t1, t2), 1.0)
+
+
+def test_flowlog_conductance_model_takes_no_prior_from_the_properties(with_t):
+    # conductance_model = "flowlog": the zone conductances rest on the flow logs; the zone
+    # properties give only the start value and the horizon scaling (docs/methods.md, section 1)
+    auto = prior_hydraulics(with_t)
+    p = dataclasses.replace(with_t, settings=dataclasses.replace(with_t.settings,
+                                                                 conductance_model="flowlog"))
+    prior = prior_hydraulics(p)
+    assert np.isinf(prior.log_conductance_sd).all()
+    assert np.isfinite(auto.log_conductance_sd).all()
+    np.testing.assert_allclose(prior.log_conductance, auto.log_conductance, rtol=1e-12)
+    assert prior.source == [FLOWLOG_SOURCE] * 3
+    np.testing.assert_array_equal(prior.static_head, auto.static_head)
+    # blendq inflow, which rests on the properties alone, keeps them
+    assert prior_hydraulics(p, need_properties=True).source == ["zone properties"] * 3
+
+
+def test_flowlog_conductance_model_without_a_pumped_log_is_an_input_error(with_t):
+    p = dataclasses.replace(with_t, settings=dataclasses.replace(with_t.settings,
+                                                                 conductance_model="flowlog"))
+    p.flowlogs = p.flowlogs[p.flowlogs["rate"].astype(float) == 0.0]
+    with pytest.raises(InputError) as err:
+        prior_hydraulics(p)
+    assert err.value.field == "settings.conductance_model"
