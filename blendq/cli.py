@@ -226,10 +226,18 @@ def check_cmd(
 
         if fail_on not in ("error", "warning", "info"):
             raise typer.BadParameter(f'"{fail_on}" is not error, warning or info', param_hint="--fail-on")
+        from blendq.chemistry.limits import catalogue_gaps, limit_notes
+
         proj = _load(project)
         result = qa.review(proj)
+        sets = proj.settings.limit_sets
         if as_json:
             payload = json.loads(result.to_json())
+            payload["limits"] = [lim.as_dict() for lim in proj.limits]
+            payload["limits_not_in_catalogue"] = [
+                g.as_dict() for g in catalogue_gaps(sets, proj.analytes())
+                if not any(lim.authority == g.authority and lim.analyte == g.analyte
+                           for lim in proj.limits)]
             payload["cautions"] = cautions_for(*result.findings["message"].astype(str))
             typer.echo(json.dumps(payload, indent=2))
         else:
@@ -245,6 +253,8 @@ def check_cmd(
                 typer.echo(f"  skipped {rule}: {why}")
             for line in result.decision_lines():
                 typer.echo(f"  review decision: {line}")
+            for line in limit_notes(proj.limits, sets, proj.analytes()):
+                typer.echo(f"  {line}")
             _echo_cautions(*result.findings["message"].astype(str))
         if qa.at_or_above(result.findings, fail_on):
             raise typer.Exit(1)

@@ -11,7 +11,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
-from blendq.chemistry.limits import Limit
+from blendq.chemistry.limits import Limit, limit_notes
 from blendq.decide import sweep
 from blendq.decide.levelcheck import LevelCheck, check_levels
 from blendq.errors import ModelError
@@ -151,7 +151,9 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     if horizon_note:
         notes.append(horizon_note)
     notes.append(f"Pumping level in the window from the {levels.source}: {levels.reason}.")
-    notes += [n + "." for n in sweep.applicable_ratio_rules(s.limit_sets, pred.analytes)[1]]
+    notes += [n + "." for n in sweep.applicable_ratio_rules(s.limit_sets, pred.analytes,
+                                                            project.limits)[1]]
+    notes += limit_notes(project.limits, s.limit_sets, project.analytes())
     return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
                     residuals, hyd, pred, window, limits, table, skipped,
                     levels, notes, per_result)
