@@ -1,5 +1,14 @@
 """Drinking-water limits catalogue, each value with its basis, citation and compliance basis.
 
+The catalogue is data, ``blendq/data/limits.toml`` (read by :func:`load_catalogue`): each
+entry has its value as published, unit, reporting basis, compliance basis, source (document
+and section), date, status and how it was checked; an entry without a value records a set and
+analyte for which no value was checked (:class:`CatalogueGap`), so that nothing unchecked is
+tested as a regulatory value. A project adds or overrides entries with ``[[limits]]``
+(:mod:`blendq.inputs.project_file`); :func:`limit_notes` lists what it changed.
+:func:`species_sum_rules` applies a nitrate+nitrite limit to separate nitrate and nitrite
+results.
+
 Values are stored as published (value, unit, basis) and converted to the core's canonical
 mg/L on the analyte's canonical basis by :func:`Limit.canonical`. Each limit also says which
 statistic of the water it is judged on (:class:`ComplianceBasis`): a single sample (with or
@@ -11,7 +20,9 @@ References
 ----------
 - US EPA National Primary Drinking Water Regulations, 40 CFR 141.62(b) (inorganic MCLs) and
   40 CFR 141.66(e) (uranium).
-- WHO (2017/2022) Guidelines for Drinking-water Quality, 4th ed. incorporating the addenda.
+- US EPA (2003) arsenic rule clarification, 68 FR 14502.
+- WHO (2017/2022) Guidelines for Drinking-water Quality, 4th ed. incorporating the addenda
+  (manganese and arsenic provisional values of 2022; uranium and selenium of the 2011 edition).
 - Directive (EU) 2020/2184 of the European Parliament and of the Council on the quality of
   water intended for human consumption, Annex I, Part B.
 - US EPA 40 CFR 141.23 (nitrate confirmation sample within 24 h, compliance on the average of
