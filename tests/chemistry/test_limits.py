@@ -58,6 +58,12 @@ PUBLISHED = {
     ("US-EPA", "selenium"): (0.05, "mg/L", "Se", 0.05),
     # 40 CFR 141.66(e): uranium 30 ug/L
     ("US-EPA", "uranium"): (30.0, "ug/L", "U", 0.030),
+    # 89 FR 32532 (April 2024), PFAS rule: PFOA and PFOS 4.0 ng/L; PFHxS, PFNA, HFPO-DA 10 ng/L
+    ("US-EPA", "pfoa"): (4.0, "ng/L", "", 4.0e-6),
+    ("US-EPA", "pfos"): (4.0, "ng/L", "", 4.0e-6),
+    ("US-EPA", "pfhxs"): (10.0, "ng/L", "", 10.0e-6),
+    ("US-EPA", "pfna"): (10.0, "ng/L", "", 10.0e-6),
+    ("US-EPA", "hfpo_da"): (10.0, "ng/L", "", 10.0e-6),
     # WHO GDWQ 4th ed.: nitrate 50 mg/L as NO3- (= 11.29 mg/L as N by molar masses)
     ("WHO", "nitrate"): (50.0, "mg/L", "NO3", 50.0 * N_PER_NO3),
     # WHO GDWQ 4th ed.: nitrite 3 mg/L as NO2- (= 0.913 mg/L as N)
@@ -103,8 +109,10 @@ def test_catalogue_has_no_unchecked_entries():
 
 
 def test_us_citations_name_the_cfr_sections():
+    pfas = {"pfoa", "pfos", "pfhxs", "pfna", "hfpo_da"}
     for lim in CATALOGUE["US-EPA"]:
-        expected = "141.66(e)" if lim.analyte == "uranium" else "141.62(b)"
+        expected = ("141.66(e)" if lim.analyte == "uranium" else
+                    "89 FR 32532" if lim.analyte in pfas else "141.62(b)")
         assert expected in lim.citation
     assert all("2020/2184" in lim.citation for lim in CATALOGUE["EU"])
     assert all("4th ed" in lim.citation for lim in CATALOGUE["WHO"])
@@ -256,7 +264,8 @@ def test_every_entry_carries_value_basis_compliance_source_date_status():
     from blendq.chemistry.limits import CATALOGUE_FILE, COMPLIANCE_BASES
 
     assert CATALOGUE_FILE.name == "limits.toml" and CATALOGUE_FILE.parent.name == "data"
-    statuses = {"in force", "current guideline", "proposed", "proposed for rescission"}
+    statuses = {"in force", "current guideline", "proposed", "proposed for rescission",
+                "in force, proposed for rescission"}
     for authority, limits in CATALOGUE.items():
         for lim in limits:
             assert lim.value > 0 and lim.unit in ("mg/L", "ug/L", "ng/L")
@@ -284,6 +293,22 @@ def test_new_who_values_carry_their_dates():
     # arsenic: 68 FR 14502 (2003), the arsenic rule clarification (verified)
     us_as = next(lim for lim in CATALOGUE["US-EPA"] if lim.analyte == "arsenic")
     assert us_as.date == "2003" and "68 FR 14502" in us_as.citation
+
+
+def test_pfas_limits_carry_the_proposed_rescission():
+    # 89 FR 32532 (April 2024, verified): in 2025-26 the agency proposed to rescind the limits
+    # other than PFOA and PFOS, which a court kept in force in January 2026
+    us = {lim.analyte: lim for lim in CATALOGUE["US-EPA"]}
+    for analyte in ("pfoa", "pfos"):
+        assert (us[analyte].status, us[analyte].date) == ("in force", "2024-04")
+    for analyte in ("pfhxs", "pfna", "hfpo_da"):
+        assert us[analyte].status == "in force, proposed for rescission"
+        assert "January 2026" in us[analyte].checked
+    # judged on a running annual average
+    assert all(us[a].compliance.statistic == ANNUAL_MEAN for a in ("pfoa", "pfhxs"))
+    # the hazard index is not shipped (its PFBS term was not checked)
+    assert RATIO_RULES["US-EPA"] == []
+    assert get_analyte("GenX").key == "hfpo_da" and get_analyte("PFOA").display_unit == "ng/L"
 
 
 def test_values_not_checked_are_gaps_not_limits():
