@@ -182,3 +182,18 @@ def test_leave_one_step_out_keeps_the_decisions_of_the_samples_left():
     # the base row is the analysis itself
     np.testing.assert_allclose(t.loc[0, "window_high"],
                                max(i[1] for i in a.window.intervals), rtol=0)
+
+
+def test_limit_override_is_listed_in_the_notes(project):
+    # a project entry that overrides the US-EPA nitrate MCL (docs/methods.md, section 9): the
+    # report's notes name it as an override
+    from blendq.chemistry.limits import Limit
+
+    old = next(lim for lim in project.limits if lim.analyte == "nitrate")
+    new = Limit("nitrate", 9.5, "mg/L", "N", "US-EPA", "MCL", "an invented state rule",
+                old.compliance, origin="project.toml limits[1]", replaces=old.label())
+    p = replace(project, limits=[new if lim is old else lim for lim in project.limits])
+    a = analyse(p, draws=40, seed=7)
+    assert ("Limit override: US-EPA MCL 10 mg/L as N (nitrate) replaced by US-EPA MCL 9.5 mg/L "
+            "as N (project.toml limits[1]).") in a.notes
+    assert a.limits["nitrate"].canonical() == pytest.approx(9.5)
