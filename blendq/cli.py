@@ -227,6 +227,7 @@ def check_cmd(
 
         if fail_on not in ("error", "warning", "info"):
             raise typer.BadParameter(f'"{fail_on}" is not error, warning or info', param_hint="--fail-on")
+        from blendq.chemistry.limits import catalogue_gaps, limit_notes
         from blendq.well import memory as crossflow
 
         proj = _load(project)
@@ -234,10 +235,16 @@ def check_cmd(
         result = qa.review(proj, memory=mem)
         memory_line = ("" if stored is None else "crossflow memory (zone properties): "
                        + crossflow.stored_line(stored, None, _units(None, proj)))
+        sets = proj.settings.limit_sets
         if as_json:
             payload = json.loads(result.to_json())
             if memory_line:
                 payload["crossflow_memory"] = memory_line
+            payload["limits"] = [lim.as_dict() for lim in proj.limits]
+            payload["limits_not_in_catalogue"] = [
+                g.as_dict() for g in catalogue_gaps(sets, proj.analytes())
+                if not any(lim.authority == g.authority and lim.analyte == g.analyte
+                           for lim in proj.limits)]
             payload["cautions"] = cautions_for(*result.findings["message"].astype(str))
             typer.echo(json.dumps(payload, indent=2))
         else:
@@ -255,6 +262,8 @@ def check_cmd(
                 typer.echo("  " + memory_line)
             for line in result.decision_lines():
                 typer.echo(f"  review decision: {line}")
+            for line in limit_notes(proj.limits, sets, proj.analytes()):
+                typer.echo(f"  {line}")
             _echo_cautions(*result.findings["message"].astype(str))
         if qa.at_or_above(result.findings, fail_on):
             raise typer.Exit(1)
@@ -344,8 +353,9 @@ def drawdown_cmd(project: ProjectArg, units: UnitsOpt = None, as_json: JsonOpt =
         u = _units(units, proj)
         static = static_level_of(proj)
         if static is None:
-            raise InputError("the step-drawdown analysis needs the well's static level",
-                             file="project.toml", field="well.static_level")
+            raise InputError("the step-drawdown analysis needs the well's static level (or "
+                             "every zone's static level with zone properties that give their "
+                             "conductances)", file="project.toml", field="well.static_level")
         zone_s = [z.storativity for z in proj.zones]
         res = analyse_step_test(proj.steps, static,
                                 proj.levels if len(proj.levels) else None,

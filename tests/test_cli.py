@@ -151,7 +151,37 @@ def test_check_fail_on():
 def test_check_json():
     r = run("check", DEMO, "--json")
     assert r.exit_code == 0, r.output
-    json.loads(r.stdout)
+    data = json.loads(r.stdout)
+    # the demo's limits: the US-EPA set as catalogued, each with its source, date and status
+    assert {lim["analyte"] for lim in data["limits"]} >= {"nitrate", "arsenic"}
+    assert not any(lim["override"] for lim in data["limits"])
+    assert all(lim["source"] and lim["status"] and lim["date"] for lim in data["limits"])
+
+
+def test_check_lists_limit_overrides_and_gaps(tmp_path):
+    # a copy of the demo with its US-EPA nitrate MCL overridden and the WHO set added, which
+    # has no fluoride value in the catalogue (the demo has no fluoride: none is named)
+    folder = tmp_path / "demo"
+    shutil.copytree(DEMO, folder)
+    text = (folder / "project.toml").read_text(encoding="utf-8")
+    text = text.replace('limit_sets = ["US-EPA"]', 'limit_sets = ["US-EPA", "EU"]')
+    text += ('\n[[limits]]\nanalyte = "nitrate"\nauthority = "US-EPA"\nvalue = "9 mg/L as N"\n'
+             'citation = "an invented state rule"\n')
+    (folder / "project.toml").write_text(text, encoding="utf-8")
+    with open(folder / "samples.csv", "a", encoding="utf-8") as fh:
+        fh.write("TH2-F,S1,fluoride,0.9,mg/L,,,0.1,,,,,,,\n")
+    r = run("check", folder, "--json")
+    assert r.exit_code == 0, r.output
+    data = json.loads(r.stdout)
+    (over,) = [lim for lim in data["limits"] if lim["override"]]
+    assert (over["analyte"], over["value"], over["replaces"]) == (
+        "nitrate", 9.0, "US-EPA MCL 10 mg/L as N")
+    assert [(g["authority"], g["analyte"]) for g in data["limits_not_in_catalogue"]] == [
+        ("EU", "fluoride")]
+    r = run("check", folder)
+    assert ("Limit override: US-EPA MCL 10 mg/L as N (nitrate) replaced by US-EPA MCL 9 mg/L "
+            "as N") in r.stdout
+    assert "No EU limit of fluoride is tested" in r.stdout
 
 
 def test_readme_inflow():

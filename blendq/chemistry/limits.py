@@ -1,5 +1,14 @@
 """Drinking-water limits catalogue, each value with its basis, citation and compliance basis.
 
+The catalogue is data, ``blendq/data/limits.toml`` (read by :func:`load_catalogue`): each
+entry has its value as published, unit, reporting basis, compliance basis, source (document
+and section), date, status and how it was checked; an entry without a value records a set and
+analyte for which no value was checked (:class:`CatalogueGap`), so that nothing unchecked is
+tested as a regulatory value. A project adds or overrides entries with ``[[limits]]``
+(:mod:`blendq.inputs.project_file`); :func:`limit_notes` lists what it changed.
+:func:`species_sum_rules` applies a nitrate+nitrite limit to separate nitrate and nitrite
+results.
+
 Values are stored as published (value, unit, basis) and converted to the core's canonical
 mg/L on the analyte's canonical basis by :func:`Limit.canonical`. Each limit also says which
 statistic of the water it is judged on (:class:`ComplianceBasis`): a single sample (with or
@@ -11,7 +20,9 @@ References
 ----------
 - US EPA National Primary Drinking Water Regulations, 40 CFR 141.62(b) (inorganic MCLs) and
   40 CFR 141.66(e) (uranium).
-- WHO (2017/2022) Guidelines for Drinking-water Quality, 4th ed. incorporating the addenda.
+- US EPA (2003) arsenic rule clarification, 68 FR 14502.
+- WHO (2017/2022) Guidelines for Drinking-water Quality, 4th ed. incorporating the addenda
+  (manganese and arsenic provisional values of 2022; uranium and selenium of the 2011 edition).
 - Directive (EU) 2020/2184 of the European Parliament and of the Council on the quality of
   water intended for human consumption, Annex I, Part B.
 - US EPA 40 CFR 141.23 (nitrate confirmation sample within 24 h, compliance on the average of
@@ -23,13 +34,20 @@ References
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+import sys
+from dataclasses import dataclass, field, replace
+from pathlib import Path
 
 import numpy as np
 from scipy.special import erfc
 
 from blendq.chemistry.analytes import get_analyte, to_canonical
 from blendq.errors import InputError
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover - Python 3.10
+    import tomli as tomllib
 
 SINGLE_SAMPLE = "single sample"
 ANNUAL_MEAN = "annual mean"
@@ -210,24 +228,21 @@ def mean_threshold(threshold, log_sd: float, sample_probability: float):
     return np.asarray(threshold, float) * np.exp(0.5 * log_sd**2 - log_sd * z)
 
 
-_CONFIRMATION = ComplianceBasis(SINGLE_SAMPLE, 2, "40 CFR 141.23", "secondary")
-_CONFIRMATION_LIKE_NITRATE = ComplianceBasis(
-    SINGLE_SAMPLE, 2, "the nitrate rule of 40 CFR 141.23, taken for this analyte",
-    "common practice (setting)")
-_ANNUAL_MEAN = ComplianceBasis(ANNUAL_MEAN, 4, "40 CFR 141.23(i)", "secondary")
-_ANNUAL_MEAN_LIKE_INORGANICS = ComplianceBasis(
-    ANNUAL_MEAN, 4, "the inorganics rule of 40 CFR 141.23(i), taken for this analyte",
-    "common practice (setting)")
-_SINGLE_WHO = ComplianceBasis(
-    SINGLE_SAMPLE, 1, "WHO GDWQ: the text checked gives the value, not a sampling rule",
-    "common practice (setting)")
-_SINGLE_EU = ComplianceBasis(
-    SINGLE_SAMPLE, 1, "Directive (EU) 2020/2184 Annex I: the text checked gives the value, not "
-    "a sampling rule", "common practice (setting)")
 #: basis of a limit that states none (a user's limit without ``compliance``)
 DEFAULT_BASIS = ComplianceBasis(
     SINGLE_SAMPLE, 1, "no basis stated: each sample is compared with the limit",
     "common practice (setting)")
+
+#: the catalogue's data file (package data; docs/methods.md, section 9)
+CATALOGUE_FILE = Path(__file__).resolve().parents[1] / "data" / "limits.toml"
+
+#: values of a ``compliance`` key -> (statistic, samples averaged)
+COMPLIANCE_BASES = {"single sample": (SINGLE_SAMPLE, 1),
+                    "single sample with confirmation": (SINGLE_SAMPLE, 2),
+                    "annual mean": (ANNUAL_MEAN, 4)}
+
+#: where a limit comes from when it is the catalogue's own
+CATALOGUE_ORIGIN = "catalogue"
 
 
 @dataclass(frozen=True)
@@ -248,8 +263,19 @@ class Limit:
     kind : str
         "MCL", "guideline value", "parametric value", "trigger", or a user's word.
     citation : str
+        The source: document and section.
     compliance : ComplianceBasis
         The statistic the limit is judged on.
+    date : str
+        Date of the source as cited ("" when not stated).
+    status : str
+        "in force", "current guideline", "proposed", "proposed for rescission", "user setting".
+    checked : str
+        How the value was checked ("verified: ...", "secondary: ...", or the user's word).
+    origin : str
+        "catalogue", or the project file entry that added or changed the limit.
+    replaces : str
+        Label of the catalogue limit this one overrides ("" for none).
     """
 
     analyte: str
@@ -260,6 +286,11 @@ class Limit:
     kind: str
     citation: str
     compliance: ComplianceBasis = field(default=DEFAULT_BASIS)
+    date: str = ""
+    status: str = ""
+    checked: str = ""
+    origin: str = CATALOGUE_ORIGIN
+    replaces: str = ""
 
     def canonical(self) -> float:
         """Limit [mg/L] on the analyte's canonical basis."""
@@ -269,6 +300,27 @@ class Limit:
         """Short label such as ``"US-EPA MCL 10 mg/L as N"``."""
         basis = f" as {self.basis}" if self.basis and get_analyte(self.analyte).needs_basis else ""
         return f"{self.authority} {self.kind} {self.value:g} {self.unit}{basis}"
+
+    @property
+    def is_override(self) -> bool:
+        """True when a project file entry changed a catalogue limit."""
+        return bool(self.replaces)
+
+    def as_dict(self) -> dict:
+        """The entry as plain data (for JSON)."""
+        return {"analyte": self.analyte, "authority": self.authority, "kind": self.kind,
+                "value": self.value, "unit": self.unit, "basis": self.basis,
+                "limit_mg_per_l": self.canonical(), "source": self.citation, "date": self.date,
+                "status": self.status, "checked": self.checked,
+                "compliance": self.compliance.describe(),
+                "compliance_source": self.compliance.citation,
+                "compliance_checked": self.compliance.status, "origin": self.origin,
+                "override": self.is_override, "replaces": self.replaces}
+
+    def describe_override(self) -> str:
+        """One line naming what a project entry changed, e.g. ``"US-EPA MCL 10 mg/L as N
+        (nitrate) replaced by US-EPA MCL 8 mg/L as N (project.toml limits[1])"``."""
+        return f"{self.replaces} ({self.analyte}) replaced by {self.label()} ({self.origin})"
 
 
 @dataclass(frozen=True)
@@ -281,57 +333,141 @@ class RatioRule:
     citation: str
 
 
-_CFR_62 = "40 CFR 141.62(b), US EPA National Primary Drinking Water Regulations"
-_WHO = "WHO Guidelines for Drinking-water Quality, 4th ed. (2017, addenda 2022)"
-_EU = "Directive (EU) 2020/2184, Annex I, Part B"
+@dataclass(frozen=True)
+class CatalogueGap:
+    """A set and analyte for which the catalogue holds no value, and why.
 
-CATALOGUE: dict[str, list[Limit]] = {
-    "US-EPA": [
-        Limit("nitrate", 10.0, "mg/L", "N", "US-EPA", "MCL", _CFR_62, _CONFIRMATION),
-        Limit("nitrite", 1.0, "mg/L", "N", "US-EPA", "MCL", _CFR_62, _CONFIRMATION_LIKE_NITRATE),
-        Limit("nitrate_nitrite", 10.0, "mg/L", "N", "US-EPA", "MCL", _CFR_62,
-              _CONFIRMATION_LIKE_NITRATE),
-        Limit("arsenic", 0.010, "mg/L", "As", "US-EPA", "MCL", _CFR_62, _ANNUAL_MEAN),
-        Limit("fluoride", 4.0, "mg/L", "F", "US-EPA", "MCL", _CFR_62, _ANNUAL_MEAN),
-        Limit("selenium", 0.05, "mg/L", "Se", "US-EPA", "MCL", _CFR_62, _ANNUAL_MEAN),
-        Limit("uranium", 30.0, "ug/L", "U", "US-EPA", "MCL", "40 CFR 141.66(e)",
-              _ANNUAL_MEAN_LIKE_INORGANICS),
-    ],
-    "WHO": [
-        Limit("nitrate", 50.0, "mg/L", "NO3", "WHO", "guideline value", _WHO, _SINGLE_WHO),
-        Limit("nitrite", 3.0, "mg/L", "NO2", "WHO", "guideline value", _WHO, _SINGLE_WHO),
-        Limit("arsenic", 10.0, "ug/L", "As", "WHO", "guideline value (provisional)", _WHO,
-              _SINGLE_WHO),
-    ],
-    "EU": [
-        Limit("nitrate", 50.0, "mg/L", "NO3", "EU", "parametric value", _EU, _SINGLE_EU),
-        Limit("nitrite", 0.50, "mg/L", "NO2", "EU", "parametric value", _EU, _SINGLE_EU),
-        Limit("arsenic", 10.0, "ug/L", "As", "EU", "parametric value", _EU, _SINGLE_EU),
-    ],
-}
+    Attributes
+    ----------
+    authority, analyte : str
+    citation : str
+        The document where the value would be found.
+    checked : str
+        Why there is no value.
+    note : str
+        What the user can do.
+    """
 
-RATIO_RULES: dict[str, list[RatioRule]] = {
-    "WHO": [
-        RatioRule(
-            "nitrate/50 + nitrite/3 <= 1",
-            (CATALOGUE["WHO"][0], CATALOGUE["WHO"][1]),
-            "WHO",
-            _WHO,
-        )
-    ],
-    "EU": [
-        RatioRule(
-            "[nitrate]/50 + [nitrite]/3 <= 1",
-            (
-                CATALOGUE["EU"][0],
-                Limit("nitrite", 3.0, "mg/L", "NO2", "EU", "ratio term", _EU, _SINGLE_EU),
-            ),
-            "EU",
-            _EU,
-        )
-    ],
-    "US-EPA": [],
-}
+    authority: str
+    analyte: str
+    citation: str
+    checked: str
+    note: str
+
+    def as_dict(self) -> dict:
+        return {"authority": self.authority, "analyte": self.analyte, "source": self.citation,
+                "checked": self.checked, "note": self.note}
+
+
+_LIMIT_KEYS = {"set", "analyte", "value", "unit", "basis", "kind", "source", "section", "date",
+               "status", "checked", "compliance", "compliance_source", "compliance_checked",
+               "note"}
+_RULE_KEYS = {"set", "name", "source", "section", "date", "status", "checked", "terms"}
+
+
+def _required(entry: dict, key: str, file: str, where: str) -> str:
+    value = entry.get(key)
+    if not isinstance(value, str) or not value.strip():
+        raise InputError(f"needs a text {key}", file=file, field=f"{where}.{key}")
+    return value
+
+
+def _citation(entry: dict, file: str, where: str) -> str:
+    source = _required(entry, "source", file, where)
+    section = entry.get("section", "")
+    return f"{source}, {section}" if section else source
+
+
+def _catalogue_limit(entry: dict, file: str, where: str) -> Limit:
+    unknown = set(entry) - _LIMIT_KEYS
+    if unknown:
+        raise InputError(f'"{sorted(unknown)[0]}" is not a key of a catalogue entry', file=file,
+                         field=f"{where}.{sorted(unknown)[0]}")
+    value = entry["value"]
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not value > 0:
+        raise InputError(f"expected a positive number, got {value!r}", file=file,
+                         field=f"{where}.value")
+    text = _required(entry, "compliance", file, where)
+    if text not in COMPLIANCE_BASES:
+        raise InputError(f'"{text}" is not one of ' + ", ".join(COMPLIANCE_BASES), file=file,
+                         field=f"{where}.compliance")
+    statistic, samples = COMPLIANCE_BASES[text]
+    basis = ComplianceBasis(statistic, samples, _required(entry, "compliance_source", file, where),
+                            _required(entry, "compliance_checked", file, where))
+    analyte = get_analyte(_required(entry, "analyte", file, where)).key
+    limit = Limit(analyte, float(value), _required(entry, "unit", file, where),
+                  entry.get("basis", ""), _required(entry, "set", file, where),
+                  _required(entry, "kind", file, where), _citation(entry, file, where), basis,
+                  _required(entry, "date", file, where), _required(entry, "status", file, where),
+                  _required(entry, "checked", file, where))
+    try:
+        limit.canonical()
+    except InputError as err:
+        raise InputError(err.message, file=file, field=f"{where}.unit") from None
+    return limit
+
+
+def load_catalogue(path: str | Path = CATALOGUE_FILE) -> tuple[
+        dict[str, list[Limit]], dict[str, list[RatioRule]], list[CatalogueGap]]:
+    """Read a limit catalogue file.
+
+    Parameters
+    ----------
+    path : str or Path
+        A TOML file of ``[[limit]]`` and ``[[ratio_rule]]`` entries (default: the package's
+        ``data/limits.toml``, whose header describes the keys).
+
+    Returns
+    -------
+    (dict, dict, list)
+        The limits of each set, the ratio rules of each set, and the entries without a value
+        (:class:`CatalogueGap`).
+
+    Raises
+    ------
+    InputError
+        Naming the file and the entry of a malformed entry.
+    """
+    path = Path(path)
+    with open(path, "rb") as fh:
+        doc = tomllib.load(fh)
+    limits: dict[str, list[Limit]] = {}
+    gaps: list[CatalogueGap] = []
+    for i, entry in enumerate(doc.get("limit", []), start=1):
+        where = f"limit[{i}]"
+        name = _required(entry, "set", path.name, where)
+        limits.setdefault(name, [])
+        if "value" not in entry:
+            gaps.append(CatalogueGap(name, get_analyte(_required(entry, "analyte", path.name,
+                                                                 where)).key,
+                                     _citation(entry, path.name, where),
+                                     _required(entry, "checked", path.name, where),
+                                     _required(entry, "note", path.name, where)))
+            continue
+        limits[name].append(_catalogue_limit(entry, path.name, where))
+    rules: dict[str, list[RatioRule]] = {name: [] for name in limits}
+    for i, entry in enumerate(doc.get("ratio_rule", []), start=1):
+        where = f"ratio_rule[{i}]"
+        unknown = set(entry) - _RULE_KEYS
+        if unknown:
+            raise InputError(f'"{sorted(unknown)[0]}" is not a key of a ratio rule',
+                             file=path.name, field=f"{where}.{sorted(unknown)[0]}")
+        name = _required(entry, "set", path.name, where)
+        citation = _citation(entry, path.name, where)
+        terms = tuple(
+            Limit(get_analyte(t["analyte"]).key, float(t["value"]), t["unit"], t.get("basis", ""),
+                  name, "ratio term", citation, DEFAULT_BASIS, entry.get("date", ""),
+                  entry.get("status", ""), entry.get("checked", ""))
+            for t in entry.get("terms", []))
+        if len(terms) < 2:
+            raise InputError("a ratio rule needs at least two terms", file=path.name,
+                             field=f"{where}.terms")
+        rules.setdefault(name, []).append(
+            RatioRule(_required(entry, "name", path.name, where), terms, name, citation))
+    return limits, rules, gaps
+
+
+CATALOGUE, RATIO_RULES, GAPS = load_catalogue()
 
 
 def limit_set(name: str) -> list[Limit]:
@@ -350,6 +486,70 @@ def limit_set(name: str) -> list[Limit]:
         ) from None
 
 
+def catalogue_gaps(sets, analytes) -> list[CatalogueGap]:
+    """The entries of the named sets without a value for the given analytes (nothing of those
+    sets is tested for them)."""
+    keys = {get_analyte(a).key for a in analytes}
+    return [g for g in GAPS if g.authority in sets and g.analyte in keys]
+
+
+def limit_notes(limits, sets, analytes) -> list[str]:
+    """Sentences for the report and the command line: each limit a project file entry added or
+    overrode, and each analyte with results for which a named set has no value in the
+    catalogue (and the project gives none of that authority)."""
+    out = []
+    for lim in limits:
+        if lim.is_override:
+            out.append(f"Limit override: {lim.describe_override()}.")
+        elif lim.origin != CATALOGUE_ORIGIN:
+            out.append(f"Limit added: {lim.label()} ({lim.analyte}; {lim.origin}).")
+    for gap in catalogue_gaps(sets, analytes):
+        if not any(lim.authority == gap.authority and lim.analyte == gap.analyte
+                   for lim in limits):
+            out.append(f"No {gap.authority} limit of {gap.analyte} is tested: {gap.note}.")
+    return out
+
+
 def ratio_value(rule: RatioRule, concentrations: dict[str, float]) -> float:
     """Sum of concentration/limit over the rule's terms; concentrations in canonical mg/L."""
     return sum(concentrations.get(t.analyte, 0.0) / t.canonical() for t in rule.terms)
+
+
+def species_sum_rules(limits, analytes) -> list[RatioRule]:
+    """Nitrate+nitrite limits applied to separate nitrate and nitrite results.
+
+    A limit on nitrate+nitrite (stated as N) is a limit on the sum of the two species'
+    nitrogen: C_NO3-N + C_NO2-N <= L. With both species stored on their canonical basis as N
+    (mg/L N; a result reported as NO3 or NO2 was converted with the molar-mass ratio when it
+    was read), this is the ratio rule C_NO3-N / L + C_NO2-N / L <= 1. It is formed for each
+    nitrate+nitrite limit when nitrate and nitrite are both predicted and nitrate+nitrite is
+    not itself measured (then its own limit applies).
+
+    Parameters
+    ----------
+    limits : sequence of Limit
+        The project's limits.
+    analytes : sequence of str
+        The predicted analytes.
+
+    Returns
+    -------
+    list of RatioRule
+    """
+    analytes = set(analytes)
+    if "nitrate_nitrite" in analytes or not {"nitrate", "nitrite"} <= analytes:
+        return []
+    out = []
+    for lim in limits:
+        if lim.analyte != "nitrate_nitrite":
+            continue
+        if get_analyte("nitrate").canonical_basis != "N" or \
+                get_analyte("nitrite").canonical_basis != "N":
+            raise InputError("nitrate and nitrite must both be stored as N to add them")
+        value = to_canonical(lim.value, lim.unit, get_analyte("nitrate_nitrite"),
+                             lim.basis or None)  # mg/L as N, the unit and basis checked
+        terms = tuple(replace(lim, analyte=a, value=value, unit="mg/L", basis="N")
+                      for a in ("nitrate", "nitrite"))
+        out.append(RatioRule(f"nitrate + nitrite (as N) <= {lim.value:g} {lim.unit} as N",
+                             terms, lim.authority, lim.citation))
+    return out

@@ -11,7 +11,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
-from blendq.chemistry.limits import Limit
+from blendq.chemistry.limits import Limit, limit_notes
 from blendq.decide import sweep
 from blendq.decide.levelcheck import LevelCheck, check_levels
 from blendq.errors import ModelError
@@ -19,6 +19,7 @@ from blendq.fit import diagnostics, estimation, observations, uncertainty, unres
 from blendq.inputs.project import Project
 from blendq.well import memory
 from blendq.well.model import (
+    FLOWLOG_SOURCE,
     NO_PRIOR_SOURCE,
     START_CONDUCTANCE,
     elapsed_test_time,
@@ -146,6 +147,10 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
         notes.append(f"No zone transmissivity, conductivity or conductance is given: the zone "
                      f"conductances rest on the flow logs and levels alone (the fit starts from "
                      f"{START_CONDUCTANCE:g} m2/d per zone, a start value with no weight).")
+    if (hyd["prior_source"] == FLOWLOG_SOURCE).any():
+        notes.append('conductance_model = "flowlog": the zone conductances rest on the flow logs '
+                     "and levels, not on the zone properties (which only carry them to the "
+                     "operating horizon).")
     if project.flowlogs.empty:
         notes.append("No flow log: drawdown alone identifies only the total conductance and "
                      "the well loss; zone shares come from zone properties (priors).")
@@ -163,7 +168,9 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     if horizon_note:
         notes.append(horizon_note)
     notes.append(f"Pumping level in the window from the {levels.source}: {levels.reason}.")
-    notes += [n + "." for n in sweep.applicable_ratio_rules(s.limit_sets, pred.analytes)[1]]
+    notes += [n + "." for n in sweep.applicable_ratio_rules(s.limit_sets, pred.analytes,
+                                                            project.limits)[1]]
+    notes += limit_notes(project.limits, s.limit_sets, project.analytes())
     rate = window.recommended if window.recommended else project.well.demand
     mem_summary = memory.summarise(
         project, fit.model, fit.model.with_changes(geometry=operating_geometry(project)),

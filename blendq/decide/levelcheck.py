@@ -43,12 +43,56 @@ class LevelCheck:
     level_deep: np.ndarray | None = None
 
 
-def static_level_of(project) -> float | None:
-    """The well's static (ambient) level [m depth]: given, else the mean of the zones' levels."""
+def static_level_of(project, model=None) -> float | None:
+    """The well's static (ambient) level [m depth]: given, else the composite level of the zones.
+
+    With no pumping the zone flows balance, sum_i q_i = 0 with q_i = G_i (h0_i - h_w), so a
+    well open to several zones stands at the conductance-weighted mean of the zone heads,
+
+        h_w0 = sum_i G_i h0_i / sum_i G_i,
+
+    not at their arithmetic mean (the composite head of a multi-node well: Konikow, Hornberger,
+    Halford and Hanson 2009, USGS TM 6-A30; Sokol 1963). With nonlinear zone losses the same
+    balance is solved by :meth:`WellModel.state` at Q = 0.
+
+    Parameters
+    ----------
+    project : Project
+    model : WellModel, optional
+        The fitted well (its conductances and zone heads); default: the zones' property
+        conductances at the end of the step test with the zones' given static levels.
+
+    Returns
+    -------
+    float or None
+        Depth [m]; None when the well states no static level and the composite cannot be
+        formed (a zone without a static level, or zone properties that give no conductance,
+        and no fitted model).
+
+    References
+    ----------
+    Konikow, L.F., Hornberger, G.Z., Halford, K.J., Hanson, R.T. (2009) Revised multi-node well
+    (MNW2) package for MODFLOW ground-water flow model. USGS Techniques and Methods 6-A30.
+    Sokol, D. (1963) Position and fluctuations of water level in wells perforated in more than
+    one aquifer. J. Geophysical Research 68(4), 1079-1080.
+    """
     if project.well.static_level is not None:
         return project.well.static_level
-    levels = [z.static_level for z in project.zones if z.static_level is not None]
-    return float(np.mean(levels)) if levels else None
+    if model is None:
+        from blendq.well.model import (
+            elapsed_test_time,
+            model_from_parameters,
+            property_conductance,
+        )
+
+        if not project.zones or any(z.static_level is None for z in project.zones):
+            return None
+        try:
+            g = property_conductance(project, elapsed_test_time(project))
+        except BlendqError:
+            return None
+        model = model_from_parameters(project, g, [z.static_head for z in project.zones])
+    return float(np.asarray(model.pumping_level_depth(np.array([0.0])), float).reshape(-1)[0])
 
 
 def check_levels(fit: FitResult, draws: Draws, pred: Prediction, alpha: float,
@@ -58,7 +102,7 @@ def check_levels(fit: FitResult, draws: Draws, pred: Prediction, alpha: float,
     from blendq.well.steptest import analyse_step_test
 
     project = fit.problem.project
-    static = static_level_of(project)
+    static = static_level_of(project, fit.model)
     if static is None or len(project.steps) < 2:
         return LevelCheck(None, None, "zone model", "no static level or fewer than two steps: "
                           "no step-drawdown analysis")

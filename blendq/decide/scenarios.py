@@ -636,7 +636,8 @@ def evaluate(analysis, scenario: Scenario) -> ScenarioResult:
         if same_water else []
     window = operating_window(pred, analysis.limits, margin, alpha, intake, w.submergence,
                               w.rate_min, w.rate_max, w.demand, top, level_deep=level_deep,
-                              ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
+                              ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes,
+                                                                 project.limits)[0],
                               extra_criteria=extra,
                               statistics=compliance_statistics(project, analysis.limits),
                               headroom=s.recommended_headroom,

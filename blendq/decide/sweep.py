@@ -557,12 +557,18 @@ def _why_empty(crit: list[Criterion], rates) -> str:
     return "; ".join(parts)
 
 
-def applicable_ratio_rules(limit_sets, analytes) -> tuple[list, list[str]]:
+def applicable_ratio_rules(limit_sets, analytes, limits=()) -> tuple[list, list[str]]:
     """Ratio rules of the project's limit sets whose analytes are all predicted, and a note for
-    each rule left out."""
-    from blendq.chemistry.limits import RATIO_RULES
+    each rule left out; with the project's ``limits``, also each nitrate+nitrite limit applied
+    to the sum of separate nitrate and nitrite results
+    (:func:`blendq.chemistry.limits.species_sum_rules`), with a note saying so."""
+    from blendq.chemistry.limits import RATIO_RULES, species_sum_rules
 
     rules, notes = [], []
+    for rule in species_sum_rules(limits, analytes):
+        rules.append(rule)
+        notes.append(f"{rule.authority} nitrate+nitrite limit applied to the sum of the separate "
+                     f"nitrate and nitrite results as N: {rule.name}")
     for name in limit_sets:
         for rule in RATIO_RULES.get(name, []):
             missing = [t.analyte for t in rule.terms if t.analyte not in analytes]
@@ -640,7 +646,7 @@ def window_for(fit: FitResult, pred: Prediction, margin: float | None = None,
         s.exceedance_probability if alpha is None else alpha,
         w.operating_intake, w.submergence, w.rate_min, w.rate_max, w.demand,
         float(project.zone_top.min()) if w.keep_above_screen else None, level_deep=level_deep,
-        ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes)[0],
+        ratio_rules=applicable_ratio_rules(s.limit_sets, pred.analytes, project.limits)[0],
         extra_criteria=measured_exceedances(fit, limits, s.margin if margin is None else margin,
                                             pred.rates),
         statistics=statistics, headroom=s.recommended_headroom,

@@ -20,6 +20,34 @@ from blendq.fit.uncertainty import Draws, linearised_zone_sd
 
 #: relative singular-value threshold below which a direction counts as unseen by the data
 NULL_TOL = 1e-6
+#: a zone whose interval is wider than this share of its own value is weakly resolved (common
+#: practice: a 90 % interval half the value wide is a relative sd of about 15 %)
+WEAK_WIDTH_SHARE = 0.5
+#: for a zone near zero the width is compared with this share of the analyte's largest zone
+#: value instead (so the floor is a tenth of it at WEAK_WIDTH_SHARE = 0.5)
+NEAR_ZERO_SHARE = 0.2
+
+
+def weakly_resolved(width, estimate, largest) -> bool:
+    """Whether a zone value the data see is only *weakly resolved*.
+
+    The interval's width is judged against the zone's own value: wider than
+    ``WEAK_WIDTH_SHARE`` x max(|estimate|, ``NEAR_ZERO_SHARE`` x largest), i.e. wider than half
+    its value, or than a tenth of the analyte's largest zone value for a zone near zero (where
+    a share of its own value means nothing). A precision relative to the zone's own value is
+    what makes its number usable; judged against the largest zone alone, a zone at 1 mg/L with
+    an interval from 0.1 to 8 mg/L would pass as resolved beside a zone at 20 mg/L.
+
+    Parameters
+    ----------
+    width : float
+        Width of the zone's interval [mg/L].
+    estimate : float
+        The zone's estimate [mg/L].
+    largest : float
+        Largest absolute zone estimate of the analyte [mg/L].
+    """
+    return bool(width > WEAK_WIDTH_SHARE * max(abs(estimate), NEAR_ZERO_SHARE * largest))
 
 
 def null_space_zones(wa: np.ndarray, tol: float = NULL_TOL) -> list[int]:
@@ -75,7 +103,8 @@ def zone_table(fit: FitResult, draws: Draws, interval: float = 0.90) -> pd.DataF
     """One row per zone and analyte: estimate, sd, interval, verdict and data-allowed range.
 
     A zone is *weakly resolved* when its interval is wider than half its own value (or than a
-    tenth of the analyte's largest zone value, for zones near zero), *resolved* otherwise.
+    tenth of the analyte's largest zone value, for zones near zero; :func:`weakly_resolved`),
+    *resolved* otherwise.
     The data-allowed range is computed at the fitted hydraulics; the interval also carries the
     hydraulic uncertainty, so the two need not nest.
 
@@ -106,7 +135,7 @@ def zone_table(fit: FitResult, draws: Draws, interval: float = 0.90) -> pd.DataF
             unseen = (a[:, i].max() if a.size else 0.0) <= 1e-9
             if in_null or unseen or not np.isfinite(hi[i]):
                 verdict = "not resolved"
-            elif (upper[i] - lower[i]) > 0.5 * max(abs(c[i]), 0.2 * scale):
+            elif weakly_resolved(upper[i] - lower[i], c[i], scale):
                 verdict = "weakly resolved"
             else:
                 verdict = "resolved"

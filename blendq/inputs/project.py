@@ -211,7 +211,8 @@ class Settings:
     display_units : str
         "US" or "SI".
     conductance_model : str
-        "auto", "steady", "transient", "given" or "flowlog".
+        "auto", "steady", "transient", "given" or "flowlog" (the conductances from the flow
+        logs, with no prior from the zone properties).
     flowlog_relative_error : float
         Relative error of a logged flow [-] (1 sd).
     flowlog_absolute_error : float

@@ -16,8 +16,8 @@ from pathlib import Path
 
 from blendq.chemistry.analytes import get_analyte, normalise_basis
 from blendq.chemistry.limits import (
-    ANNUAL_MEAN,
-    SINGLE_SAMPLE,
+    COMPLIANCE_BASES,
+    DEFAULT_BASIS,
     ComplianceBasis,
     Limit,
     limit_set,
@@ -526,12 +526,6 @@ def _temporal_cv(s: _Section) -> dict[str, float]:
     return out
 
 
-#: values of a limit's ``compliance`` key -> (statistic, samples averaged)
-COMPLIANCE_BASES = {"single sample": (SINGLE_SAMPLE, 1),
-                    "single sample with confirmation": (SINGLE_SAMPLE, 2),
-                    "annual mean": (ANNUAL_MEAN, 4)}
-
-
 def _compliance(s: _Section, label: str) -> ComplianceBasis | None:
     text = s.text("compliance", None)
     if text is None:
@@ -545,12 +539,18 @@ def _compliance(s: _Section, label: str) -> ComplianceBasis | None:
 
 
 def _user_limits(doc: dict, label: str, limits: list[Limit]) -> list[Limit]:
-    """The limits of the named sets with the user's ``[[limits]]`` applied: an entry with a
-    ``value`` adds a limit; an entry with only ``compliance`` changes the compliance basis of
-    the limits of that analyte (of ``authority`` when given) already in the list."""
+    """The limits of the named sets with the user's ``[[limits]]`` applied.
+
+    An entry with a ``value`` overrides the limit of the same ``authority`` and analyte when
+    the named sets hold one (the entry replaces it and says which it replaced), else adds a
+    limit; an entry with only ``compliance`` changes the compliance basis of the limits of that
+    analyte (of ``authority`` when given) already in the list, which also counts as an
+    override. Each entry's ``citation``, ``date``, ``status`` and ``checked`` are kept with it.
+    """
     limits = list(limits)
     for i, entry in enumerate(_tables_list(doc, "limits", label), start=1):
         s = _Section(entry, f"limits[{i}]", label)
+        origin = f"{label} limits[{i}]"
         try:
             analyte = get_analyte(s.text("analyte"))
         except InputError as err:
@@ -565,7 +565,11 @@ def _user_limits(doc: dict, label: str, limits: list[Limit]) -> list[Limit]:
                 raise s.error("analyte", f"no {whose}limit of {analyte.key} to give a compliance "
                                          "basis to; add a value to make it a new limit")
             for k in hits:
-                limits[k] = replace(limits[k], compliance=compliance)
+                old = limits[k]
+                limits[k] = replace(old, compliance=compliance,
+                                    origin=f"{origin} (compliance basis)",
+                                    replaces=old.replaces or
+                                    f"{old.label()} judged on {old.compliance.describe()}")
             s.done()
             continue
         text = s.text("value")
@@ -583,15 +587,28 @@ def _user_limits(doc: dict, label: str, limits: list[Limit]) -> list[Limit]:
             raise s.error("basis", f'"{entry["basis"]}" disagrees with the basis of the value '
                                    f'"{text}"; state the basis in one place or make them agree')
         authority = s.text("authority", s.text("name", "user"))
-        limit = Limit(analyte.key, number, unit, basis, authority,
-                      s.text("kind", "user limit"), s.text("citation", f"{label} [[limits]]"),
-                      *([compliance] if compliance is not None else []))
+        same = [k for k, lim in enumerate(limits)
+                if lim.authority == authority and lim.analyte == analyte.key]
+        old = limits[same[0]] if same else None
+        kind = s.text("kind", old.kind if old is not None else "user limit")
+        limit = Limit(analyte.key, number, unit, basis, authority, kind,
+                      s.text("citation", f"{label} [[limits]]"),
+                      compliance if compliance is not None else
+                      (old.compliance if old is not None else DEFAULT_BASIS),
+                      s.text("date", ""), s.text("status", "user setting"),
+                      s.text("checked", "user setting"), origin,
+                      (old.replaces or old.label()) if old is not None else "")
         try:
             limit.canonical()
         except InputError as err:
             raise located(err, label, None, f"limits[{i}].value", text) from err
         s.done()
-        limits.append(limit)
+        if same:
+            limits[same[0]] = limit
+            for k in reversed(same[1:]):
+                del limits[k]
+        else:
+            limits.append(limit)
     return limits
 
 

@@ -48,22 +48,33 @@ def check_zero_rate_samples(project) -> Outcome:
     return out
 
 
+#: where a static level without the well's own comes from (see :func:`static_level`)
+SHALLOWEST_ZONE = ("the shallowest zone static level, which the well's composite level (a "
+                   "conductance-weighted mean of the zone levels) cannot be above")
+
+
 def static_level(project) -> tuple[float | None, str]:
-    """Static level in the well [m depth] and where it comes from: the well's
-    ``static_level``, else the mean of the zones' static levels, else None."""
+    """Static level in the well [m depth] and where it comes from: the well's ``static_level``,
+    else the shallowest of the zones' static levels, else None.
+
+    With no pumping the well stands at the conductance-weighted mean of the zone heads
+    (Konikow and others 2009, USGS TM 6-A30), so its level is at or below the shallowest zone
+    level whatever the conductances, which the review does not know (they come from the
+    hydraulic model). The shallowest zone level is therefore a bound, not an estimate: a
+    pumping level at or above it is above the composite level too.
+    """
     if project.well.static_level is not None:
         return float(project.well.static_level), "the well's static_level"
     levels = [z.static_level for z in project.zones if z.static_level is not None]
-    if levels:
-        return float(np.mean(levels)), "the mean of the zones' static levels"
+    if levels and len(levels) == len(project.zones):
+        return float(np.min(levels)), SHALLOWEST_ZONE
     return None, ""
 
 
 def check_pumping_levels(project) -> Outcome:
     """A pumping level of a pumped step at or above the static level: an error against the
     well's stated static level (drawdown cannot be zero or negative while pumping), a warning
-    against the mean of the zones' static levels (the composite level of the well differs
-    from that mean)."""
+    against the shallowest zone static level (:func:`static_level`)."""
     out = Outcome()
     static, source = static_level(project)
     steps = project.steps

@@ -256,10 +256,18 @@ def casing_volume(radius, water_column):
 
 def static_level(project, opts: dict) -> tuple[float | None, str]:
     """Depth to static water in the well before the test [m below datum], and where it came
-    from: ``qa.static_level``, the last level reading at or before the first step's start, or
-    the mean of the zones' static levels."""
+    from: ``qa.static_level``, the well's ``static_level``, the last level reading at or before
+    the first step's start, or the shallowest of the zones' static levels.
+
+    The well's composite level is the conductance-weighted mean of the zone levels (Konikow
+    and others 2009, USGS TM 6-A30), which lies at or below the shallowest zone level; the
+    review does not know the conductances, so it takes that bound: the longest water column,
+    the largest casing volume, and so the fewest casing volumes pumped (the check errs towards
+    a warning)."""
     if opts["static_level"] is not None:
         return float(opts["static_level"]), "qa.static_level"
+    if project.well.static_level is not None:
+        return float(project.well.static_level), "the well's static_level"
     levels = project.levels
     if not levels.empty:
         time = pd.to_datetime(levels["time"], errors="coerce")
@@ -269,10 +277,11 @@ def static_level(project, opts: dict) -> tuple[float | None, str]:
         if len(before):
             return float(before.iloc[-1]), "the level record before pumping"
     zone_levels = [z.static_level for z in project.zones if z.static_level is not None]
-    if zone_levels:
-        return float(np.mean(zone_levels)), "the mean of the zones' static levels"
-    return None, "no static water level (qa.static_level, a level before pumping, or zone " \
-                 "static levels)"
+    if zone_levels and len(zone_levels) == len(project.zones):
+        return float(np.min(zone_levels)), ("the shallowest zone static level (the well's "
+                                            "composite level is at or below it)")
+    return None, "no static water level (qa.static_level, well.static_level, a level before " \
+                 "pumping, or every zone's static level)"
 
 
 def pumped_volume(schedule: pd.DataFrame, step: str, sampled_at) -> tuple[float, bool]:

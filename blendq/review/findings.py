@@ -468,7 +468,8 @@ def review(project, memory: pd.DataFrame | None = None) -> QAResult:
     :mod:`blendq.review.decisions`) becomes an info line naming the decision.
     - consistency (:mod:`blendq.review.consistency`): samples at a step of rate zero (error);
       a pumping level at or above the static level (error against the well's static level,
-      warning against the mean of the zones'); a sample below the deepest zone (warning).
+      warning against the shallowest zone level, a bound of the composite level); a sample
+      below the deepest zone (warning).
 
     Raises
     ------

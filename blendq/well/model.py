@@ -35,6 +35,8 @@ PRIOR_HEAD_SD_ASSUMED = 3.0
 START_CONDUCTANCE = 100.0
 #: how the hydraulics table labels a zone whose conductance has no prior (flow logs decide)
 NO_PRIOR_SOURCE = "none: no zone properties; shares from the flow logs"
+#: how it labels every zone under ``conductance_model = "flowlog"`` (properties not used)
+FLOWLOG_SOURCE = 'none: conductance_model = "flowlog"; shares from the flow logs'
 
 
 @dataclass(frozen=True)
@@ -256,8 +258,10 @@ def zone_conductance_models(project: Project, model: str | None = None) -> list[
     """The conductance model of each zone: "given", "steady" or "transient".
 
     ``settings.conductance_model`` (or ``model``) "steady", "transient" and "given" apply to
-    every zone; "auto" and "flowlog" take a zone's given conductance, else Cooper-Jacob when its
-    storativity is known, else Thiem (docs/methods.md, section 1).
+    every zone; "auto" takes a zone's given conductance, else Cooper-Jacob when its
+    storativity is known, else Thiem (docs/methods.md, section 1). "flowlog" takes the same
+    models here, where they carry the conductances to the operating horizon and give the
+    fit's start values; the fit's conductances rest on the flow logs (:func:`prior_hydraulics`).
     """
     model = model or project.settings.conductance_model
     if model not in ("auto", "flowlog"):
@@ -407,6 +411,13 @@ def shares_from_flow_logs(project: Project) -> bool:
 def prior_hydraulics(project: Project, need_properties: bool = False) -> HydraulicPrior:
     """Prior zone conductances and static heads from the project's zone properties.
 
+    Under ``settings.conductance_model = "flowlog"`` the zone conductances rest on the flow logs
+    (fitted jointly with the levels and the chemistry) and not on the zone properties: every
+    conductance gets a flat prior (no weight), starting from the property conductance where the
+    properties give one, else from :data:`START_CONDUCTANCE`; ``source`` says so
+    (:data:`FLOWLOG_SOURCE`), and a project without a flow log at a pumped rate is an input
+    error. The properties still carry the conductances to the operating horizon.
+
     No command invents hydraulics. When a zone lacks the properties its conductance model needs
     (transmissivity or conductivity, storativity, radius of influence, a given conductance),
     this is an input error, except where flow logs at a pumped rate decide the zone shares and
@@ -427,6 +438,18 @@ def prior_hydraulics(project: Project, need_properties: bool = False) -> Hydraul
     """
     n = len(project.zones)
     t_test = elapsed_test_time(project)
+    if project.settings.conductance_model == "flowlog" and not need_properties:
+        if not shares_from_flow_logs(project):
+            raise InputError('conductance_model = "flowlog" takes the zone conductances from the '
+                             "flow logs, and the project has no flow log at a pumped rate",
+                             file=project_file_name(project), field="settings.conductance_model")
+        try:
+            logg = np.log(property_conductance(project, t_test))
+        except InputError:
+            logg = np.log(np.full(n, START_CONDUCTANCE))
+        logg_sd = np.full(n, np.inf)
+        src = [FLOWLOG_SOURCE] * n
+        return _with_heads(project, logg, logg_sd, src)
     try:
         g = property_conductance(project, t_test)
         logg = np.log(g)
@@ -445,6 +468,11 @@ def prior_hydraulics(project: Project, need_properties: bool = False) -> Hydraul
         logg = np.log(np.full(n, START_CONDUCTANCE))
         logg_sd = np.full(n, np.inf)
         src = [NO_PRIOR_SOURCE] * n
+    return _with_heads(project, logg, logg_sd, src)
+
+
+def _with_heads(project: Project, logg, logg_sd, src) -> HydraulicPrior:
+    """The prior with the zone heads: a zone's static level, else the well's, else none."""
     well_level = project.well.static_level
     heads = []
     head_sd = []

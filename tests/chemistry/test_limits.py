@@ -3,8 +3,10 @@
 Each expected value carries its source beside it:
 - 40 CFR 141.62(b): US EPA maximum contaminant levels for inorganic contaminants;
 - 40 CFR 141.66(e): US EPA MCL for uranium;
-- WHO Guidelines for Drinking-water Quality, 4th ed. (2017, addenda 2022), chapter 12 and the
-  chemical summary tables (annex 3, from memory);
+- WHO Guidelines for Drinking-water Quality, 4th ed. (2017, addenda 2022): nitrate and nitrite
+  (read in an earlier edition's table), arsenic and manganese (provisional, 2022; read in a
+  summary of the 2022 guidelines), uranium (2011 revision; read in a peer-reviewed paper on
+  it), selenium (2011 4th edition; secondary);
 - Directive (EU) 2020/2184, Annex I, Part B (chemical parameters) and its notes.
 The nitrate/nitrite conversions use molar masses from the ``molmass`` library and the National
 Research Council (1995) factor 1 mg/L NO3-N = 4.429 mg/L NO3.
@@ -56,12 +58,26 @@ PUBLISHED = {
     ("US-EPA", "selenium"): (0.05, "mg/L", "Se", 0.05),
     # 40 CFR 141.66(e): uranium 30 ug/L
     ("US-EPA", "uranium"): (30.0, "ug/L", "U", 0.030),
+    # 89 FR 32532 (April 2024), PFAS rule: PFOA and PFOS 4.0 ng/L; PFHxS, PFNA, HFPO-DA 10 ng/L
+    ("US-EPA", "pfoa"): (4.0, "ng/L", "", 4.0e-6),
+    ("US-EPA", "pfos"): (4.0, "ng/L", "", 4.0e-6),
+    ("US-EPA", "pfhxs"): (10.0, "ng/L", "", 10.0e-6),
+    ("US-EPA", "pfna"): (10.0, "ng/L", "", 10.0e-6),
+    ("US-EPA", "hfpo_da"): (10.0, "ng/L", "", 10.0e-6),
     # WHO GDWQ 4th ed.: nitrate 50 mg/L as NO3- (= 11.29 mg/L as N by molar masses)
     ("WHO", "nitrate"): (50.0, "mg/L", "NO3", 50.0 * N_PER_NO3),
     # WHO GDWQ 4th ed.: nitrite 3 mg/L as NO2- (= 0.913 mg/L as N)
     ("WHO", "nitrite"): (3.0, "mg/L", "NO2", 3.0 * N_PER_NO2),
-    # WHO GDWQ 4th ed.: arsenic 10 ug/L (provisional guideline value)
+    # WHO GDWQ 4th ed.: arsenic 10 ug/L (provisional guideline value; summary of the 2022
+    # guidelines, secondary)
     ("WHO", "arsenic"): (10.0, "ug/L", "As", 0.010),
+    # WHO GDWQ 2022: manganese 80 ug/L (provisional; summary of the 2022 guidelines, secondary)
+    ("WHO", "manganese"): (80.0, "ug/L", "Mn", 0.080),
+    # WHO GDWQ 4th ed. (2011): uranium 30 ug/L (peer-reviewed paper on the 2011 revision,
+    # secondary)
+    ("WHO", "uranium"): (30.0, "ug/L", "U", 0.030),
+    # WHO GDWQ 4th ed. (2011): selenium 40 ug/L (secondary)
+    ("WHO", "selenium"): (40.0, "ug/L", "Se", 0.040),
     # Directive (EU) 2020/2184 Annex I Part B: nitrate 50 mg/l (as the ion)
     ("EU", "nitrate"): (50.0, "mg/L", "NO3", 50.0 * N_PER_NO3),
     # Directive (EU) 2020/2184 Annex I Part B: nitrite 0,50 mg/l (as the ion)
@@ -93,8 +109,10 @@ def test_catalogue_has_no_unchecked_entries():
 
 
 def test_us_citations_name_the_cfr_sections():
+    pfas = {"pfoa", "pfos", "pfhxs", "pfna", "hfpo_da"}
     for lim in CATALOGUE["US-EPA"]:
-        expected = "141.66(e)" if lim.analyte == "uranium" else "141.62(b)"
+        expected = ("141.66(e)" if lim.analyte == "uranium" else
+                    "89 FR 32532" if lim.analyte in pfas else "141.62(b)")
         assert expected in lim.citation
     assert all("2020/2184" in lim.citation for lim in CATALOGUE["EU"])
     assert all("4th ed" in lim.citation for lim in CATALOGUE["WHO"])
@@ -152,7 +170,8 @@ def test_labels():
 
 
 def test_limit_set_lookup():
-    assert [lim.analyte for lim in limit_set("WHO")] == ["nitrate", "nitrite", "arsenic"]
+    assert [lim.analyte for lim in limit_set("WHO")] == ["nitrate", "nitrite", "arsenic",
+                                                          "manganese", "uranium", "selenium"]
     # a copy: changing it leaves the catalogue alone
     copy = limit_set("EU")
     copy.clear()
@@ -238,3 +257,139 @@ def test_tail_edges():
     m = np.array([np.nan, 0.0, 5.0, 9.0])
     np.testing.assert_array_equal(exceedance_given_mean(m, 8.0, 0.0), [0.0, 0.0, 0.0, 1.0])
     np.testing.assert_array_equal(exceedance_given_mean(m, 8.0, 0.1)[:2], [0.0, 0.0])
+
+
+# ------------------------------------------------------------------- the catalogue as data
+def test_every_entry_carries_value_basis_compliance_source_date_status():
+    from blendq.chemistry.limits import CATALOGUE_FILE, COMPLIANCE_BASES
+
+    assert CATALOGUE_FILE.name == "limits.toml" and CATALOGUE_FILE.parent.name == "data"
+    statuses = {"in force", "current guideline", "proposed", "proposed for rescission",
+                "in force, proposed for rescission"}
+    for authority, limits in CATALOGUE.items():
+        for lim in limits:
+            assert lim.value > 0 and lim.unit in ("mg/L", "ug/L", "ng/L")
+            assert lim.basis == get_analyte(lim.analyte).canonical_basis or \
+                lim.basis in get_analyte(lim.analyte).bases
+            assert lim.kind and lim.citation and lim.date and lim.checked
+            assert lim.status in statuses
+            assert lim.checked.startswith(("verified", "secondary")), lim
+            assert (lim.compliance.statistic, lim.compliance.samples) in COMPLIANCE_BASES.values()
+            assert lim.compliance.citation and lim.compliance.status
+            assert (lim.origin, lim.replaces, lim.is_override) == ("catalogue", "", False)
+            assert lim.authority == authority
+            text = " ".join(str(v) for v in lim.as_dict().values())
+            assert "memory" not in text
+
+
+def test_new_who_values_carry_their_dates():
+    who = {lim.analyte: lim for lim in CATALOGUE["WHO"]}
+    # summary of the 2022 WHO guidelines (secondary): manganese and arsenic provisional, 2022
+    for analyte in ("manganese", "arsenic"):
+        assert who[analyte].date == "2022" and "provisional" in who[analyte].kind
+        assert who[analyte].checked.startswith("secondary")
+    # uranium: the 2011 revision of the 4th ed.; selenium: the 2011 4th edition (secondary)
+    assert who["uranium"].date == "2011" and who["selenium"].date == "2011"
+    # arsenic: 68 FR 14502 (2003), the arsenic rule clarification (verified)
+    us_as = next(lim for lim in CATALOGUE["US-EPA"] if lim.analyte == "arsenic")
+    assert us_as.date == "2003" and "68 FR 14502" in us_as.citation
+
+
+def test_pfas_limits_carry_the_proposed_rescission():
+    # 89 FR 32532 (April 2024, verified): in 2025-26 the agency proposed to rescind the limits
+    # other than PFOA and PFOS, which a court kept in force in January 2026
+    us = {lim.analyte: lim for lim in CATALOGUE["US-EPA"]}
+    for analyte in ("pfoa", "pfos"):
+        assert (us[analyte].status, us[analyte].date) == ("in force", "2024-04")
+    for analyte in ("pfhxs", "pfna", "hfpo_da"):
+        assert us[analyte].status == "in force, proposed for rescission"
+        assert "January 2026" in us[analyte].checked
+    # judged on a running annual average
+    assert all(us[a].compliance.statistic == ANNUAL_MEAN for a in ("pfoa", "pfhxs"))
+    # the hazard index is not shipped (its PFBS term was not checked)
+    assert RATIO_RULES["US-EPA"] == []
+    assert get_analyte("GenX").key == "hfpo_da" and get_analyte("PFOA").display_unit == "ng/L"
+
+
+def test_values_not_checked_are_gaps_not_limits():
+    # EU 2020/2184 fluoride, selenium, uranium and manganese and the WHO fluoride value were
+    # not found in a source read: the catalogue says so and holds no number for them
+    from blendq.chemistry.limits import GAPS, catalogue_gaps
+
+    gaps = {(g.authority, g.analyte) for g in GAPS}
+    assert gaps == {("WHO", "fluoride"), ("EU", "fluoride"), ("EU", "selenium"),
+                    ("EU", "uranium"), ("EU", "manganese")}
+    listed = {(a, lim.analyte) for a, limits in CATALOGUE.items() for lim in limits}
+    assert not gaps & listed
+    for g in GAPS:
+        assert g.checked.startswith("not checked") and "[[limits]]" in g.note
+    assert [g.analyte for g in catalogue_gaps(("EU",), ["F", "nitrate"])] == ["fluoride"]
+    assert catalogue_gaps(("US-EPA",), ["fluoride"]) == []
+
+
+def test_a_malformed_catalogue_names_its_file_and_entry(tmp_path):
+    from blendq.chemistry.limits import load_catalogue
+
+    good = ('[[limit]]\nset = "X"\nanalyte = "arsenic"\nvalue = 5.0\nunit = "ug/L"\n'
+            'kind = "target"\nsource = "district policy"\ndate = "2026"\nstatus = "in force"\n'
+            'checked = "verified"\ncompliance = "annual mean"\ncompliance_source = "policy"\n'
+            'compliance_checked = "secondary"\n')
+    path = tmp_path / "limits.toml"
+    path.write_text(good, encoding="utf-8")
+    limits, rules, gaps = load_catalogue(path)
+    assert limits["X"][0].canonical() == pytest.approx(0.005, rel=1e-12)
+    assert (rules, gaps) == ({"X": []}, [])
+    path.write_text(good.replace('date = "2026"\n', ""), encoding="utf-8")
+    with pytest.raises(InputError) as err:
+        load_catalogue(path)
+    assert (err.value.file, err.value.field) == ("limits.toml", "limit[1].date")
+    path.write_text(good.replace('"annual mean"', '"weekly"'), encoding="utf-8")
+    with pytest.raises(InputError) as err:
+        load_catalogue(path)
+    assert err.value.field == "limit[1].compliance"
+
+
+def test_nitrate_plus_nitrite_limit_from_separate_results():
+    # 40 CFR 141.62(b): nitrate 10, nitrite 1 and nitrate+nitrite 10 mg/L, all as N. Nitrate
+    # 40.0 mg/L as NO3 (9.03 mg/L as N, by molar masses from molmass) and nitrite 3.0 mg/L as
+    # NO2 (0.913 mg/L as N) each pass their own MCL; the nitrogen sum 9.95 passes 10, and with
+    # nitrite 4.0 as NO2 (1.218 as N, above its own MCL too) the sum 10.25 fails
+    from blendq.chemistry.analytes import to_canonical
+    from blendq.chemistry.limits import species_sum_rules
+
+    us = limit_set("US-EPA")
+    (rule,) = species_sum_rules(us, ["nitrate", "nitrite", "arsenic"])
+    assert rule.authority == "US-EPA" and "141.62(b)" in rule.citation
+    assert [t.analyte for t in rule.terms] == ["nitrate", "nitrite"]
+    no3 = to_canonical(40.0, "mg/L", get_analyte("nitrate"), "NO3")
+    assert no3 == pytest.approx(40.0 * N_PER_NO3, rel=1e-4)
+    no2 = to_canonical(3.0, "mg/L", get_analyte("nitrite"), "NO2")
+    total = ratio_value(rule, {"nitrate": no3, "nitrite": no2})
+    assert total == pytest.approx((40.0 * N_PER_NO3 + 3.0 * N_PER_NO2) / 10.0, rel=1e-4)
+    assert total < 1.0
+    no2 = to_canonical(4.0, "mg/L", get_analyte("nitrite"), "NO2")
+    assert ratio_value(rule, {"nitrate": no3, "nitrite": no2}) > 1.0
+    # a limit stated in ug/L as N is checked and converted: 10000 ug/L as N is 10 mg/L
+    from dataclasses import replace
+
+    ug = [replace(lim, value=10000.0, unit="ug/L") if lim.analyte == "nitrate_nitrite" else lim
+          for lim in us]
+    (rule_ug,) = species_sum_rules(ug, ["nitrate", "nitrite"])
+    assert ratio_value(rule_ug, {"nitrate": 9.0, "nitrite": 0.5}) == pytest.approx(0.95)
+    # measured as a sum, its own limit applies; without nitrite there is nothing to add
+    assert species_sum_rules(us, ["nitrate", "nitrite", "nitrate_nitrite"]) == []
+    assert species_sum_rules(us, ["nitrate"]) == []
+    assert species_sum_rules(limit_set("WHO"), ["nitrate", "nitrite"]) == []
+
+
+def test_catalogue_file_is_package_data():
+    # pyproject.toml ships blendq's "data/**/*" in the wheel; the catalogue must match it
+    import re
+    from pathlib import Path
+
+    from blendq.chemistry.limits import CATALOGUE_FILE
+
+    root = Path(__file__).parents[2]
+    patterns = re.findall(r'blendq = \[([^\]]*)\]', (root / "pyproject.toml").read_text())
+    assert patterns and '"data/**/*"' in patterns[0]
+    assert CATALOGUE_FILE in set((root / "blendq").glob("data/**/*"))

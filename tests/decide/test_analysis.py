@@ -207,3 +207,16 @@ def test_crossflow_memory_widens_the_flagged_step_sample(analysis):
     np.testing.assert_allclose(rows.sigma[k], np.hypot(0.04 * 9.2,
                                                        use.loc[("TH2-1", "nitrate"),
                                                                "added_sigma"]), rtol=1e-9)
+def test_limit_override_is_listed_in_the_notes(project):
+    # a project entry that overrides the US-EPA nitrate MCL (docs/methods.md, section 9): the
+    # report's notes name it as an override
+    from blendq.chemistry.limits import Limit
+
+    old = next(lim for lim in project.limits if lim.analyte == "nitrate")
+    new = Limit("nitrate", 9.5, "mg/L", "N", "US-EPA", "MCL", "an invented state rule",
+                old.compliance, origin="project.toml limits[1]", replaces=old.label())
+    p = replace(project, limits=[new if lim is old else lim for lim in project.limits])
+    a = analyse(p, draws=40, seed=7)
+    assert ("Limit override: US-EPA MCL 10 mg/L as N (nitrate) replaced by US-EPA MCL 9.5 mg/L "
+            "as N (project.toml limits[1]).") in a.notes
+    assert a.limits["nitrate"].canonical() == pytest.approx(9.5)

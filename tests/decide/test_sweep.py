@@ -204,6 +204,31 @@ def test_who_nitrate_nitrite_ratio_rule_closes_the_window():
                                 ratio_rules=RATIO_RULES["WHO"]).empty
 
 
+def test_us_nitrate_plus_nitrite_mcl_from_separate_results_closes_the_window():
+    # 40 CFR 141.62(b): nitrate 10, nitrite 1 and nitrate+nitrite 10 mg/L, all as N. Nitrate
+    # 9.5 and nitrite 0.8 mg/L as N each pass their own MCL; their nitrogen sum 10.3 breaks
+    # the nitrate+nitrite MCL, which the window applies to the separate results
+    from blendq.chemistry.limits import limit_set
+
+    rates = np.linspace(0.0, 100.0, 11)
+    conc = np.zeros((20, 11, 2))
+    conc[:, :, 0] = 9.5
+    conc[:, :, 1] = 0.8
+    pred = Prediction(rates, conc, np.zeros((20, 11)), np.zeros((20, 11, 1)),
+                      np.zeros((20, 11, 1)), ["nitrate", "nitrite"])
+    us = limit_set("US-EPA")
+    limits = sweep.governing_limits(us, pred.analytes)
+    rules, notes = sweep.applicable_ratio_rules(("US-EPA",), pred.analytes, us)
+    assert len(rules) == 1 and "separate nitrate and nitrite" in notes[0]
+    args = (pred, limits, 1.0, 0.05, 100.0, 0.0, 0.0, 1e9)
+    assert not sweep.operating_window(*args).empty
+    closed = sweep.operating_window(*args, ratio_rules=rules)
+    assert closed.empty and "nitrate + nitrite (as N) <= 10 mg/L as N" in closed.reason_empty
+    # nitrite 0.4: the sum 9.9 passes
+    pred.concentration[:, :, 1] = 0.4
+    assert not sweep.operating_window(*args, ratio_rules=rules).empty
+
+
 def _two_zone_fit(nitrate, relative_error=0.05, s1_value=None):
     from blendq.inputs.project import Settings
     from blendq.well.synthetic import synthetic_project

@@ -181,3 +181,15 @@ def test_interval_z():
     # standard normal table: z(0.95) = 1.6449, z(0.975) = 1.9600
     assert diagnostics.interval_z(0.90) == pytest.approx(1.644854, abs=1e-6)
     assert diagnostics.interval_z(0.95) == pytest.approx(1.959964, abs=1e-6)
+
+
+def test_weakly_resolved_is_judged_against_the_zone_own_value():
+    from blendq.fit.diagnostics import weakly_resolved
+
+    # a zone at 5 mg/L beside one at 20 mg/L: an interval 3 mg/L wide is weak (wider than
+    # half of 5), though narrower than half the largest zone (10)
+    assert weakly_resolved(3.0, 5.0, 20.0)
+    assert not weakly_resolved(2.0, 5.0, 20.0)
+    # a zone near zero is judged against a tenth of the largest zone value (2 mg/L)
+    assert not weakly_resolved(1.5, 0.01, 20.0)
+    assert weakly_resolved(2.5, 0.01, 20.0)

@@ -300,3 +300,58 @@ def test_bad_test_table_names_its_key(tmp_path, rest, field, fragment):
     with pytest.raises(InputError, match=fragment) as info:
         read_project_file(_project(tmp_path, rest=rest))
     assert info.value.field == field
+def test_limit_override_and_addition_through_the_project_file(tmp_path):
+    from blendq.chemistry.limits import limit_notes
+
+    rest = """
+[settings]
+limit_sets = ["US-EPA", "WHO"]
+[[limits]]
+analyte = "nitrate"
+authority = "US-EPA"
+value = "8 mg/L as N"
+citation = "state primacy rule 12.3 (invented)"
+date = "2026-01"
+status = "in force"
+checked = "read in the state rule"
+[[limits]]
+analyte = "fluoride"
+authority = "WHO"
+value = "1.2 mg/L"
+kind = "guideline value"
+citation = "value read by the project's reviewer"
+"""
+    head = read_project_file(_project(tmp_path, rest=rest))
+    us = [lim for lim in head.limits if lim.authority == "US-EPA" and lim.analyte == "nitrate"]
+    assert len(us) == 1  # replaced, not added beside the catalogue's
+    (nitrate,) = us
+    assert nitrate.canonical() == pytest.approx(8.0, rel=1e-12)
+    assert nitrate.is_override and nitrate.replaces == "US-EPA MCL 10 mg/L as N"
+    assert (nitrate.kind, nitrate.date, nitrate.status) == ("MCL", "2026-01", "in force")
+    assert nitrate.origin == "project.toml limits[1]"
+    # the catalogue's compliance basis stays with the overridden value (40 CFR 141.23)
+    assert nitrate.compliance == CATALOGUE["US-EPA"][0].compliance
+    assert nitrate.as_dict()["override"] is True
+    # WHO has no fluoride value in the catalogue: the entry adds one, not an override
+    fluoride = next(lim for lim in head.limits if lim.analyte == "fluoride"
+                    and lim.authority == "WHO")
+    assert not fluoride.is_override and fluoride.status == "user setting"
+    assert len(head.limits) == len(CATALOGUE["US-EPA"]) + len(CATALOGUE["WHO"]) + 1
+    notes = limit_notes(head.limits, head.settings.limit_sets, ["nitrate", "fluoride"])
+    assert notes[0] == ("Limit override: US-EPA MCL 10 mg/L as N (nitrate) replaced by US-EPA "
+                        "MCL 8 mg/L as N (project.toml limits[1]).")
+    assert notes[1].startswith("Limit added: WHO guideline value 1.2 mg/L (fluoride;")
+    assert len(notes) == 2  # the WHO fluoride gap is filled by the project's entry
+    # without the entry the gap is named
+    head = read_project_file(_project(tmp_path, rest='[settings]\nlimit_sets = ["WHO"]\n'))
+    (gap,) = limit_notes(head.limits, ("WHO",), ["fluoride", "arsenic"])
+    assert gap.startswith("No WHO limit of fluoride is tested: blendq ships no WHO fluoride")
+
+
+def test_compliance_only_entry_is_listed_as_an_override(tmp_path):
+    rest = '[[limits]]\nanalyte = "arsenic"\ncompliance = "single sample"\n'
+    (arsenic,) = [lim for lim in read_project_file(_project(tmp_path, rest=rest)).limits
+                  if lim.analyte == "arsenic"]
+    assert arsenic.is_override
+    assert arsenic.replaces == ("US-EPA MCL 0.01 mg/L judged on annual mean of 4 quarterly "
+                                "samples")

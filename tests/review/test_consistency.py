@@ -86,3 +86,21 @@ def test_sample_below_the_deepest_zone_is_a_warning():
     hits = result.findings[result.findings["rule"] == "sample_below_zones"]
     assert list(hits["sample_id"]) == ["b"] and list(hits["severity"]) == ["warning"]
     assert not np.isnan(hits["source_row"].iloc[0])
+
+
+def test_pumping_level_against_zone_levels_uses_the_shallowest_as_a_bound():
+    # zones at 8 m and 14 m depth: the well's composite level, the conductance-weighted mean
+    # of the two (Konikow and others 2009, USGS TM 6-A30), can be anywhere from 8 to 14 m, so
+    # a pumping level of 10 m is possible (no finding, where the arithmetic mean 11 m would
+    # flag it) and only a level at or above 8 m is certainly above the composite level
+    from blendq.inputs.project import Zone
+
+    steps = steps_table()
+    steps["pumping_level"] = [15.0, 10.0, 7.9, 20.0]
+    zones = [Zone("upper", 20.0, 40.0, static_level=8.0),
+             Zone("lower", 50.0, 60.0, static_level=14.0)]
+    project = make_project([sample("a", 1, "chloride", 10.0)], steps=steps, zones=zones)
+    hits = review(project).findings
+    hits = hits[hits["rule"] == "pumping_level_above_static"]
+    assert list(hits["step"]) == [3] and set(hits["severity"]) == {"warning"}
+    assert "shallowest zone static level" in hits["message"].iloc[0]

@@ -8,6 +8,7 @@ starting 2026-03-02 08:00 with four-hour steps.
 from __future__ import annotations
 
 import json
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -573,6 +574,23 @@ def test_static_level_from_levels_and_settings():
     # qa.static_level (a length with a unit) overrides the record: 10 ft = 3.048 m
     result = review(make_project(purge_rows(0.5), levels=levels, qa={"static_level": "10 ft"}))
     assert rules_of(result, "S1")["purge_volume"] == "warning"
+
+
+def test_purge_column_from_the_shallowest_zone_level_without_a_well_level():
+    # zones at 4 m and 16 m (arithmetic mean 10 m): the well's composite level, a
+    # conductance-weighted mean of the two (Konikow and others 2009, USGS TM 6-A30), is not
+    # known to the review; the shallowest level 4 m bounds it, so the column is the longest
+    # possible, 60 - 4 = 56 m: casing pi 0.1^2 x 56 = 1.759 m^3, 2.083 m^3 = 1.18 volumes
+    zones = [Zone("upper", 20.0, 40.0, static_level=4.0),
+             Zone("lower", 50.0, 60.0, static_level=16.0)]
+    result = review(make_project(purge_rows(0.5), zones=zones))
+    message = result.findings.set_index("rule").loc["purge_volume", "message"]
+    assert "1.18 casing volumes" in message and "shallowest zone static level" in message
+    # the well's own static level comes first: 10 m, 1.33 volumes as above
+    project = make_project(purge_rows(0.5), zones=zones)
+    project.well = replace(project.well, static_level=10.0)
+    message = review(project).findings.set_index("rule").loc["purge_volume", "message"]
+    assert "1.33 casing volumes" in message
 
 
 def test_purge_skipped_without_static_level():

@@ -24,6 +24,7 @@ import pytest
 from blendq.errors import InputError
 from blendq.inputs.loader import load_project
 from blendq.well.model import (
+    FLOWLOG_SOURCE,
     NO_PRIOR_SOURCE,
     PRIOR_LOG_CONDUCTANCE_SD,
     START_CONDUCTANCE,
@@ -294,3 +295,26 @@ def test_demo_upper_sand_with_heads_lowered_30_ft_stops_gaining_at_full_transmis
     z = demo.zones[0]
     sat = (st.wellbore_head[k] + z.bottom) / (z.bottom - z.top)
     assert 0.0 < sat < 1.0
+def test_flowlog_conductance_model_takes_no_prior_from_the_properties(with_t):
+    # conductance_model = "flowlog": the zone conductances rest on the flow logs; the zone
+    # properties give only the start value and the horizon scaling (docs/methods.md, section 1)
+    auto = prior_hydraulics(with_t)
+    p = dataclasses.replace(with_t, settings=dataclasses.replace(with_t.settings,
+                                                                 conductance_model="flowlog"))
+    prior = prior_hydraulics(p)
+    assert np.isinf(prior.log_conductance_sd).all()
+    assert np.isfinite(auto.log_conductance_sd).all()
+    np.testing.assert_allclose(prior.log_conductance, auto.log_conductance, rtol=1e-12)
+    assert prior.source == [FLOWLOG_SOURCE] * 3
+    np.testing.assert_array_equal(prior.static_head, auto.static_head)
+    # blendq inflow, which rests on the properties alone, keeps them
+    assert prior_hydraulics(p, need_properties=True).source == ["zone properties"] * 3
+
+
+def test_flowlog_conductance_model_without_a_pumped_log_is_an_input_error(with_t):
+    p = dataclasses.replace(with_t, settings=dataclasses.replace(with_t.settings,
+                                                                 conductance_model="flowlog"))
+    p.flowlogs = p.flowlogs[p.flowlogs["rate"].astype(float) == 0.0]
+    with pytest.raises(InputError) as err:
+        prior_hydraulics(p)
+    assert err.value.field == "settings.conductance_model"
