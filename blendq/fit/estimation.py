@@ -531,7 +531,9 @@ def _fit_hydraulics(problem: Problem):
 
     The next start is tried only when the fit so far failed or misses the data by more than the
     95 % quantile of its chi-square (a local minimum is then suspected); the best converged fit
-    is kept. The time budget (``settings.fit_time_budget``) covers every start.
+    is kept. The time budget (``settings.fit_time_budget``) covers every start; running out of
+    it is always an error, never a result from fewer starts, so the result does not depend on
+    the machine's speed or load (same input, same seed: same output or a ModelError).
     """
     budget = float(problem.project.settings.fit_time_budget)
     t_end = time.perf_counter() + budget
@@ -560,11 +562,11 @@ def _fit_hydraulics(problem: Problem):
         m = len(sol.fun)
         if 2 * best.cost <= stats.chi2.ppf(0.95, max(m - len(theta0), 1)):
             break
+    if failures and failures[-1].endswith("ran out of time"):
+        raise ModelError(f"the hydraulic fit did not finish within fit_time_budget = "
+                         f"{budget:g} s ({'; '.join(failures)}); check the levels, flow "
+                         "logs and zone properties, or raise the setting")
     if best is None:
-        if failures and failures[-1].endswith("ran out of time"):
-            raise ModelError(f"the hydraulic fit did not finish within fit_time_budget = "
-                             f"{budget:g} s ({'; '.join(failures)}); check the levels, flow "
-                             "logs and zone properties, or raise the setting")
         raise ModelError("the hydraulic fit did not converge from any starting point ("
                          + "; ".join(failures) + "); check the levels, flow logs and zone "
                          "properties")

@@ -443,3 +443,31 @@ def test_entrance_loss_not_resolved_from_levels_and_discharge_samples_alone():
     assert result.entrance_losses["coefficient"].isna().all()
     np.testing.assert_array_equal(result.model.nonlinear_loss, 0.0)
     assert len(result.theta) == 7  # ln G, h0 of three zones and the well loss
+
+
+def test_running_out_of_time_after_a_first_start_is_an_error_not_a_result(monkeypatch):
+    # the budget must never change a result (same input and seed, same bytes, whatever the
+    # load): a start cut off by the clock ends the fit with a ModelError even when an earlier
+    # start converged (here: the first start is made to miss the data so a second one runs)
+    problem = build_problem(sw.without_priors(sw.project()))
+    assert len(starting_points(problem)) >= 2
+    calls = {"n": 0}
+    clock = {"t": 0.0}
+
+    def fake_clock():
+        return clock["t"]
+
+    real = estimation.optimize.least_squares
+
+    def first_then_slow(fun, x0, **kw):
+        calls["n"] += 1
+        sol = real(fun, x0, **kw)
+        if calls["n"] == 1:
+            sol.cost = 1e12  # seen as a local minimum: the next start is tried
+            clock["t"] = 1e9  # and the clock has run past the budget
+        return sol
+
+    monkeypatch.setattr(estimation.time, "perf_counter", fake_clock)
+    monkeypatch.setattr(estimation.optimize, "least_squares", first_then_slow)
+    with pytest.raises(ModelError, match="fit_time_budget"):
+        estimation._fit_hydraulics(problem)
