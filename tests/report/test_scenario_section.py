@@ -110,8 +110,12 @@ def test_cli_compare_bad_options(args, field):
 def test_limited_by_names_both_ends(setup):
     a, comp = setup
     us = comparison_display_table(comp, "US")
-    for res, text in zip(comp.results, us["Window limited by"], strict=True):
+    for res, full in zip(comp.results, us["Window limited by"], strict=True):
         w = res.window
+        # the zones water cascades from follow what limits the window
+        text, _, cascade = full.partition("; water cascades from ")
+        named = [part.split(" from ")[0] for part in cascade.split(", ")] if cascade else []
+        assert named == [z for z, _, _ in w.cascading]
         if res.cannot_tell:  # the data cannot decide the option: no ends to name
             assert text.startswith("cannot tell: ")
         elif w.intervals:  # what closes the lowest end and what closes the highest end
