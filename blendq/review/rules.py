@@ -210,16 +210,27 @@ def check_basis(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
                                              strict=True)):
             for name in {sid, dup} - {""}:
                 where_named.setdefault(name, []).append(pos)
+        # the median of the other samples (all, or those at similar rates) without building a
+        # mask per row: the rows at each distinct rate share one sorted set of values, from
+        # which a row's own sample (and its duplicates) are left out by rank
+        everyone = np.sort(values)
+        similar: dict[float, tuple[np.ndarray, np.ndarray]] = {}
+        for r in np.unique(rate[np.isfinite(rate)]):
+            mask = np.abs(rate - r) <= rate_tol * np.fmax(rate, r)
+            similar[float(r)] = (mask, np.sort(values[mask]))
         for pos, (i, row) in enumerate(rows_of(usable)):
-            other = np.ones(len(usable), bool)
-            for name in {row["sample_id"], row["duplicate_of"]} - {""}:
-                other[where_named.get(name, [])] = False
-            near = other & (np.abs(rate - rate[pos]) <= rate_tol * np.fmax(rate, rate[pos]))
-            pick = near if near.sum() >= 2 else other
-            if pick.sum() < 2:
+            left_out = sorted({p for name in {row["sample_id"], row["duplicate_of"]} - {""}
+                               for p in where_named.get(name, [])})
+            mask, near_values = similar.get(float(rate[pos]), (None, None))
+            near_out = [p for p in left_out if mask is not None and mask[p]]
+            if near_values is not None and len(near_values) - len(near_out) >= 2:
+                median, where = _median_without(near_values, values[near_out]), \
+                    "at similar rates"
+            elif len(everyone) - len(left_out) >= 2:
+                median, where = _median_without(everyone, values[left_out]), "of this analyte"
+            else:
                 continue
-            ratio = row["value"] / float(np.median(values[pick]))
-            where = "at similar rates" if pick is near else "of this analyte"
+            ratio = row["value"] / median
             if declared[i] == "N" and abs(ratio / factor - 1.0) <= tol:
                 out.add("warning", "basis_suspect",
                         f"{analyte.name} {fmt(row['value'])} mg/L as N is {ratio:.2f} x the "
@@ -231,6 +242,22 @@ def check_basis(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
                         f"of the other samples {where}; M({ion})/M(N) = {factor:.3f}: probably "
                         f"reported as N but declared as {ion}", SRC_NRC, row)
     return out
+
+
+def _median_without(ordered: np.ndarray, removed: np.ndarray) -> float:
+    """Median of the sorted array ``ordered`` with the values ``removed`` (each present in it)
+    taken out once each; O(k log n) for k removed values."""
+    at = np.searchsorted(ordered, np.sort(removed), side="left")
+    at = at + (np.arange(len(at)) - np.searchsorted(at, at, side="left"))  # equal values
+    size = len(ordered) - len(at)
+
+    def kth(k: int) -> float:  # the k-th smallest remaining value
+        for p in at:
+            if p <= k:
+                k += 1
+        return float(ordered[k])
+
+    return 0.5 * (kth((size - 1) // 2) + kth(size // 2))
 
 
 def _unit_name(unit: str) -> str:
