@@ -238,9 +238,10 @@ def check_cmd(
                        f"{proj.flowlogs['log'].nunique() if len(proj.flowlogs) else 0} flow logs.")
             for line in result.summary_lines():
                 typer.echo("  " + line)
-            for _, f in result.findings.iterrows():
-                if f["severity"] != "info":
-                    typer.echo(f"  [{f['severity']}] {f['rule']}: {f['message']}")
+            shown = result.findings[result.findings["severity"] != "info"]
+            for severity, rule, message in zip(shown["severity"], shown["rule"],
+                                               shown["message"], strict=True):
+                typer.echo(f"  [{severity}] {rule}: {message}")
             for rule, why in result.skipped:
                 typer.echo(f"  skipped {rule}: {why}")
             for line in result.decision_lines():

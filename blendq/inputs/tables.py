@@ -145,6 +145,9 @@ def parse_number(text: str, decimal_comma: bool = False) -> float:
     return number
 
 
+_EARLIEST, _LATEST = pd.Timestamp.min, pd.Timestamp.max
+
+
 def parse_time(text: str) -> pd.Timestamp:
     """An ISO 8601 date or date-time; a time with an offset is converted to UTC (naive)."""
     cell = text.strip()
@@ -156,7 +159,7 @@ def parse_time(text: str) -> pd.Timestamp:
     if stamp.tzinfo is not None:
         stamp = stamp.astimezone(timezone.utc).replace(tzinfo=None)
     stamp = pd.Timestamp(stamp)
-    if not pd.Timestamp.min <= stamp <= pd.Timestamp.max:  # tables hold nanosecond times
+    if not _EARLIEST <= stamp <= _LATEST:  # tables hold nanosecond times
         raise InputError(f'"{text}" is outside the dates blendq can hold (years 1678 to 2261)')
     return stamp
 
@@ -234,10 +237,13 @@ class Table:
                 raise self.error(row, column, f'"{text}" is not true or false')
             return _FLAGS[text.lower()]
         if kind == "date":
+            if text in self._times:  # a long table repeats its times
+                return self._times[text]
             try:
-                return parse_time(text)
+                stamp = self._times[text] = parse_time(text)
             except InputError as err:
                 raise located(err, self.label, row, column) from None
+            return stamp
         try:
             number = parse_number(text, self.decimal_comma)
         except InputError as err:
@@ -257,6 +263,7 @@ class Table:
 
     def __post_init__(self) -> None:
         self._cells = dict(self.rows)
+        self._times: dict[str, pd.Timestamp] = {}
         self._affine = {}
         for column, (_, unit) in self.columns.items():
             kind = self.spec[column][0]

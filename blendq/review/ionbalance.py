@@ -118,10 +118,12 @@ def ion_balance_acceptable(cations: float, anions: float, opts: dict) -> tuple[b
     return not exceeds(abs(pct), tol), f"+-{tol:g} % for an anion sum of {band} meq/L"
 
 
-def check_ion_balance(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outcome:
-    """Cation-anion balance of each sample with a complete major-ion analysis."""
+def check_ion_balance(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict,
+                      table: pd.DataFrame | None = None) -> Outcome:
+    """Cation-anion balance of each sample with a complete major-ion analysis (``table``: the
+    :func:`ion_balance_table` of ``samples`` when already computed)."""
     out = Outcome()
-    table = ion_balance_table(samples)
+    table = ion_balance_table(samples) if table is None else table
     if table.empty:
         out.skip("ion_balance", "major ions not analysed")
         return out

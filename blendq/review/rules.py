@@ -149,7 +149,7 @@ def prepare_samples(samples: pd.DataFrame) -> pd.DataFrame:
         s[col] = pd.to_numeric(s[col], errors="coerce").astype(float)
     for col in ("sample_id", "analyte", "qualifier", "duplicate_of", "preservation",
                 "reported_unit", "reported_basis"):
-        s[col] = [text(v) for v in s[col]]
+        s[col] = [v.strip() if type(v) is str else text(v) for v in s[col]]
     for col in ("sampled_at", "analyzed_at"):
         s[col] = pd.to_datetime(s[col], errors="coerce")
     s["nondetect"] = [bool(v) if text(v) != "" else False for v in s["nondetect"]]
@@ -218,8 +218,9 @@ def check_basis(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
         for r in np.unique(rate[np.isfinite(rate)]):
             mask = np.abs(rate - r) <= rate_tol * np.fmax(rate, r)
             similar[float(r)] = (mask, np.sort(values[mask]))
-        for pos, (i, row) in enumerate(rows_of(usable)):
-            left_out = sorted({p for name in {row["sample_id"], row["duplicate_of"]} - {""}
+        for pos, (i, sid, dup) in enumerate(zip(usable.index, usable["sample_id"],
+                                                usable["duplicate_of"], strict=True)):
+            left_out = sorted({p for name in {sid, dup} - {""}
                                for p in where_named.get(name, [])})
             mask, near_values = similar.get(float(rate[pos]), (None, None))
             near_out = [p for p in left_out if mask is not None and mask[p]]
@@ -230,13 +231,18 @@ def check_basis(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
                 median, where = _median_without(everyone, values[left_out]), "of this analyte"
             else:
                 continue
-            ratio = row["value"] / median
-            if declared[i] == "N" and abs(ratio / factor - 1.0) <= tol:
+            ratio = values[pos] / median
+            as_n = declared[i] == "N" and abs(ratio / factor - 1.0) <= tol
+            as_ion = declared[i] == ion and abs(ratio * factor - 1.0) <= tol
+            if not (as_n or as_ion):
+                continue
+            row = usable.loc[i].to_dict()  # read only for a row that is reported
+            if as_n:
                 out.add("warning", "basis_suspect",
                         f"{analyte.name} {fmt(row['value'])} mg/L as N is {ratio:.2f} x the "
                         f"median of the other samples {where}; M({ion})/M(N) = {factor:.3f}: "
                         f"probably reported as {ion} but declared as N", SRC_NRC, row)
-            elif declared[i] == ion and abs(ratio * factor - 1.0) <= tol:
+            else:
                 out.add("warning", "basis_suspect",
                         f"{analyte.name} declared as {ion} is 1/{1.0 / ratio:.2f} of the median "
                         f"of the other samples {where}; M({ion})/M(N) = {factor:.3f}: probably "
@@ -275,10 +281,10 @@ def check_units(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
         analyte = get_analyte(key)
         for column, what in (("reported_unit", "units"), ("reported_basis", "bases")):
             labels = group[column]
-            if column == "reported_unit":
-                labels = labels.map(lambda u: _unit_name(u) if u else "")
-            else:
-                labels = labels.map(lambda b, a=analyte: _basis_or_blank(a, b))
+            names = {u: _unit_name(u) if u else "" for u in labels.unique()} \
+                if column == "reported_unit" else \
+                {b: _basis_or_blank(analyte, b) for b in labels.unique()}
+            labels = labels.map(names)
             labels = labels[labels != ""]
             if labels.nunique() < 2:
                 continue
@@ -321,7 +327,10 @@ def check_qualifiers(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> 
     estimated = set(opts["estimated_flags"])
     nondetect = set(opts["nondetect_flags"])
     rejected = set(opts["rejected_flags"])
-    for _, row in rows_of(samples):
+    dls = samples["detection_limit"]
+    noted = samples["nondetect"] | (samples["qualifier"] != "") | ((dls > 0)
+                                                                    & (samples["value"] < dls))
+    for _, row in rows_of(samples[noted]):  # the other rows give no finding
         flags = parse_flags(row["qualifier"])
         dl = row["detection_limit"]
         name = get_analyte(row["analyte"]).name
