@@ -59,8 +59,8 @@ def ion_balance_table(samples: pd.DataFrame) -> pd.DataFrame:
     """
     majors = set(MAJOR_CATIONS) | set(MAJOR_ANIONS)
     groups: dict = {}  # sample_id -> its results, in order of first appearance
-    for r in samples[["sample_id", "analyte", "nondetect", "value", "step",
-                      "source_row"]].to_dict("records"):
+    for _, r in rows_of(samples[["sample_id", "analyte", "nondetect", "value", "step",
+                                 "source_row"]]):
         groups.setdefault(r["sample_id"], []).append(r)
     rows = []
     for sid, group in groups.items():

@@ -111,7 +111,10 @@ def plain_value(value):
 def rows_of(frame: pd.DataFrame):
     """(index, row as a dict) of each row of ``frame``: what ``iterrows`` gives for reading
     cells by name, without building a Series per row (a long lab table has many)."""
-    return zip(frame.index, frame.to_dict("records"), strict=True)
+    columns = list(frame.columns)
+    cells = [frame[c].to_numpy(object).tolist() for c in columns]  # plain values, by column
+    return zip(frame.index, (dict(zip(columns, row, strict=True)) for row in zip(*cells)),
+               strict=True)
 
 
 def row_number(value) -> int | None:
