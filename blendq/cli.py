@@ -573,10 +573,40 @@ def demo_cmd(out: Annotated[Path, typer.Option("--out", "-o", metavar="FOLDER", 
     _guard(body)
 
 
+class _Stopped(BaseException):
+    """Raised by the handler of SIGTERM or SIGHUP, so that every ``finally`` and the output
+    writer's clean-up run before the process ends (the default action ends it at once)."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum
+
+
+def _stop(signum: int, frame) -> None:
+    raise _Stopped(signum)
+
+
 def main() -> None:
-    """Console-script entry point."""
+    """Console-script entry point.
+
+    SIGTERM and SIGHUP end a command as an error would: nothing half-written is left (see
+    :func:`blendq.report.outputs.write_outputs`), one line on stderr, exit code 128 + the
+    signal number (the shell's convention).
+    """
     import signal
 
     if hasattr(signal, "SIGPIPE"):  # `blendq ... | head`: stop quietly when the reader goes
         signal.signal(signal.SIGPIPE, signal.SIG_DFL)
-    app()
+    from blendq.report.outputs import hold_aware
+
+    for name in ("SIGTERM", "SIGHUP"):
+        if hasattr(signal, name):
+            signal.signal(getattr(signal, name), hold_aware(_stop))
+    if signal.getsignal(signal.SIGINT) is signal.default_int_handler:  # Ctrl-C waits too
+        signal.signal(signal.SIGINT, hold_aware(signal.default_int_handler))
+    try:
+        app()
+    except _Stopped as stop:
+        name = signal.Signals(stop.signum).name
+        typer.echo(f"blendq: stopped by {name}; no partial output was left", err=True)
+        raise SystemExit(128 + stop.signum) from None
