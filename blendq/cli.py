@@ -483,7 +483,14 @@ def _with_options(proj, seal, redevelop, intake, lower_heads, blend, units):
 def _write_report(proj, out: Path, units: str, draws, seed) -> None:
     from blendq.api import check_report_folder
 
-    check_report_folder(out, proj)  # refuse a bad folder before the long run, not after
+    from blendq.errors import InputError
+
+    try:  # refuse a bad folder before the long run, not after
+        check_report_folder(out, proj)
+    except InputError as err:  # the option is at fault, not the input file it would replace
+        message = err.message.replace("this input file", f"the input file {err.file}") \
+            if err.file else err.message
+        raise InputError(message, field="--out") from None
     result = _analyse(proj, draws, seed, units)
     folder = result.write_report(out)
     typer.echo(result.decision)

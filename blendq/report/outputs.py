@@ -140,6 +140,28 @@ def check_output_folder(folder: str | os.PathLike[str],
     folder = Path(folder)
     _check_protected(folder, protect)
     _check_replaceable(folder)
+    _check_writable(Path(os.path.abspath(folder)))
+
+
+def _check_writable(folder: Path) -> None:
+    """Refuse an output folder that could not be created or replaced: its nearest existing
+    parent is not a folder, or a new folder cannot be made in it (read-only folder or file
+    system). Tried by creating and removing an empty hidden folder, so that it holds for
+    any user and any file system."""
+    parent = folder.parent
+    while not parent.exists() and parent != parent.parent:
+        parent = parent.parent
+    if not parent.is_dir():
+        raise InputError(f"cannot write the output folder {str(folder)!r}: {str(parent)!r} is "
+                         "a file, not a folder", field="output folder")
+    try:
+        with _signals_held():
+            probe = _fresh_sibling(parent / folder.name, "probe")
+            os.rmdir(probe)
+    except OSError as err:
+        raise InputError(f"cannot write the output folder {str(folder)!r}: a folder cannot be "
+                         f"created in {str(parent)!r} ({err.strerror or err}); choose a "
+                         "writable place", field="output folder") from None
 
 
 def _fresh_sibling(folder: Path, tag: str) -> Path:
