@@ -482,7 +482,6 @@ def _with_options(proj, seal, redevelop, intake, lower_heads, blend, units):
 
 def _write_report(proj, out: Path, units: str, draws, seed) -> None:
     from blendq.api import check_report_folder
-
     from blendq.errors import InputError
 
     try:  # refuse a bad folder before the long run, not after

@@ -30,8 +30,8 @@ import re
 import secrets
 import shutil
 import signal
-from contextlib import contextmanager
 from collections.abc import Iterable, Iterator, Mapping
+from contextlib import contextmanager
 from pathlib import Path, PurePath, PurePosixPath
 from typing import Any
 

@@ -113,8 +113,8 @@ def rows_of(frame: pd.DataFrame):
     cells by name, without building a Series per row (a long lab table has many)."""
     columns = list(frame.columns)
     cells = [frame[c].to_numpy(object).tolist() for c in columns]  # plain values, by column
-    return zip(frame.index, (dict(zip(columns, row, strict=True)) for row in zip(*cells)),
-               strict=True)
+    rows = (dict(zip(columns, row, strict=True)) for row in zip(*cells, strict=True))
+    return zip(frame.index, rows, strict=True)
 
 
 def row_number(value) -> int | None:
