@@ -178,6 +178,23 @@ def solve_concentrations(problem: Problem, model: WellModel, analyte: str, value
     return c, a, ac
 
 
+def _log_groups(logs: pd.DataFrame) -> list[tuple[float, np.ndarray, np.ndarray]]:
+    """(rate, row positions, depths [m]) of each rate of the flow-log rows, worked out once per
+    table (the residuals are evaluated many times: every step of the fit and its Jacobian)."""
+    key = id(logs)
+    if _LOG_GROUPS.get(key, (None,))[0] is not logs:
+        rates = logs["rate"].to_numpy(float)
+        depths = logs["depth"].to_numpy(float)
+        groups = [(float(r), np.flatnonzero(rates == r), depths[rates == r])
+                  for r in np.unique(rates)]
+        _LOG_GROUPS.clear()  # one table at a time: no growth
+        _LOG_GROUPS[key] = (logs, groups)
+    return _LOG_GROUPS[key][1]
+
+
+_LOG_GROUPS: dict[int, tuple[pd.DataFrame, list]] = {}
+
+
 def _hydraulic_residuals(problem: Problem, theta, model: WellModel) -> list[np.ndarray]:
     p = problem.prior
     n = problem.n_zones
@@ -189,10 +206,9 @@ def _hydraulic_residuals(problem: Problem, theta, model: WellModel) -> list[np.n
     logs = problem.log_rows
     if len(logs):
         pred = np.empty(len(logs))
-        for rate, idx in logs.groupby("rate").groups.items():
-            st = model.state(np.array([float(rate)]))
-            pred[np.asarray(idx)] = mixing.wellbore_flow(
-                st.zone_flow[0], model.geometry, logs.loc[idx, "depth"].to_numpy(float))
+        for rate, at, depths in _log_groups(logs):
+            st = model.state(np.array([rate]))
+            pred[at] = mixing.wellbore_flow(st.zone_flow[0], model.geometry, depths)
         res.append((pred - logs["upward_flow"].to_numpy(float)) / problem.log_sd)
     if len(problem.level_rate):
         res.append((level_depths(problem, model) - problem.level_depth) / problem.level_sd)
