@@ -405,6 +405,7 @@ def read_table(path: Path, label: str, name: str) -> Table:
                              f'"{example}"; found: {found})', file=label, row=0, field=column)
     rows = []
     names = {index: column for column, (index, _) in columns.items()}
+    columns_seen = _ColumnsSeen([cells for _, cells in lines[1:]])
     widths = [len(cells) for _, cells in lines[1:]]
     usual = max(set(widths), key=widths.count) if widths else len(header)
     for line, cells in lines[1:]:
@@ -416,6 +417,8 @@ def read_table(path: Path, label: str, name: str) -> Table:
                              field=names.get(index, f"#{index + 1}"))
         if delimiter == "," and (len(cells) > len(header) or len(cells) == usual + 1):
             _decimal_comma(label, row, cells, names, spec, len(header), usual)
+        elif delimiter == "," and len(cells) > 1:  # a row one cell short, split by "14,6"
+            _shifted_row(label, row, cells, names, spec, columns_seen)
         if len(cells) > len(header) and any(c.strip() for c in cells[len(header):]):
             raise InputError(f"has {len(cells)} cells but the header has {len(header)} "
                              "columns", file=label, row=row)
@@ -452,6 +455,97 @@ def _decimal_comma(label: str, row: int, cells: list[str], names: dict, spec: di
                              f'{len(cells)} cells, {others}); write "{a}.{b}", quote the cell, '
                              "or save the file with semicolons", file=label, row=row,
                              field=names[i])
+
+
+_DATE_LIKE = re.compile(r"^\d{4}-\d{2}-\d{2}")
+
+
+def _shape(cell: str) -> str:
+    """What a cell holds, roughly: "empty", "number", "date" or "text"."""
+    text = cell.strip()
+    if not text:
+        return "empty"
+    if _NUMBER.match(text.lstrip("<").strip()):
+        return "number"
+    return "date" if _DATE_LIKE.match(text) else "text"
+
+
+class _ColumnsSeen:
+    """What each column holds in the rows of a table (worked out for a column when first
+    asked): the shapes of its cells and the sizes of its numbers."""
+
+    def __init__(self, rows: list[list[str]]) -> None:
+        self.rows = rows
+        self.known: dict[int, tuple[dict[str, int], list[float]]] = {}
+
+    def column(self, index: int) -> tuple[dict[str, int], list[float]]:
+        if index not in self.known:
+            shapes: dict[str, int] = {}
+            sizes = []
+            for cells in self.rows:
+                cell = cells[index] if index < len(cells) else ""
+                shape = _shape(cell)
+                shapes[shape] = shapes.get(shape, 0) + 1
+                if shape == "number":
+                    sizes.append(abs(float(cell.strip().lstrip("<").strip())))
+            self.known[index] = (shapes, sorted(sizes))
+        return self.known[index]
+
+    def fits(self, index: int, cell: str, own: str, kind: str) -> bool:
+        """Whether ``cell`` fits column ``index`` (of kind ``kind``) as its other rows fill it;
+        ``own`` is what this row holds there as read (left out of the comparison)."""
+        shape = _shape(cell)
+        text = cell.strip()
+        numeric = kind not in _NOT_NUMERIC
+        if numeric and shape in ("date", "text") and text.lower() not in _NO_NUMBER:
+            return False
+        if kind == "date" and shape not in ("date", "empty"):
+            return False
+        if kind == "flag" and shape != "empty" and text.lower() not in _FLAGS:
+            return False
+        shapes, sizes = self.column(index)
+        others = dict(shapes)
+        others[_shape(own)] = others.get(_shape(own), 0) - 1
+        if sum(others.values()) < 3:  # too few other rows to know the column
+            return True
+        if others.get(shape, 0) <= 0:
+            return False
+        if not numeric or shape != "number":
+            return True
+        value = abs(float(text.lstrip("<").strip()))
+        rest = list(sizes)
+        if _shape(own) == "number":
+            rest.remove(abs(float(own.strip().lstrip("<").strip())))
+        low, high = (rest[0], rest[-1]) if rest else (0.0, math.inf)
+        # an order of magnitude beyond every other row of the column (common practice)
+        return low <= 0 or value == 0 or low / 10 <= value <= 10 * high
+
+
+def _shifted_row(label: str, row: int, cells: list[str], names: dict, spec: dict,
+                 seen: _ColumnsSeen) -> None:
+    """Refuse a row of a comma-separated file in which a decimal comma ("14,6") split a
+    number into two cells while the row was one cell short, so that its length looks right
+    (or one short) but every later cell sits one column to the right: the cells after the
+    split do not fit their columns as the other rows fill them, and read as one number
+    they all do."""
+    for i in range(len(cells) - 1):
+        a, b = cells[i].strip(), cells[i + 1].strip()
+        if not (i in names and spec[names[i]][0] not in _NOT_NUMERIC and _WHOLE.match(a)
+                and _DIGITS.match(b)):
+            continue
+        merged = cells[:i] + [f"{a}.{b}"] + cells[i + 2:]
+        misfit = next((j for j in range(i + 1, len(cells)) if j in names
+                       and not seen.fits(j, cells[j], cells[j], spec[names[j]][0])), None)
+        if misfit is None:
+            continue
+        if all(seen.fits(j, merged[j], cells[j] if j < len(cells) else "",
+                         spec[names[j]][0]) for j in range(i, len(merged)) if j in names):
+            raise InputError(f'"{a},{b}" looks like a number written with a decimal comma, '
+                             "which shifts the rest of the row one column to the right in a "
+                             f'comma-separated file ("{cells[misfit].strip()}" does not fit '
+                             f"column {names[misfit]}; read as {a}.{b} the row fits its "
+                             f'columns); write "{a}.{b}", quote the cell, or save the file '
+                             "with semicolons", file=label, row=row, field=names[i])
 
 
 _EXAMPLE = {"rate": "gpm", "length": "ft", "time": "min", "temperature": "degC",
