@@ -7,7 +7,8 @@ a UTF-8 byte-order mark is ignored, and the delimiter (comma, semicolon or tab) 
 the header line; in a semicolon file a decimal comma (``12,5``) is read as a decimal point.
 Columns the table does not know are ignored. Files are opened for reading only.
 
-Size limits (stated in ``docs/input-files.md``): :data:`MAX_ROWS` data rows, :data:`MAX_CELL`
+Size limits (stated in ``docs/input-files.md``): :data:`MAX_FILE_BYTES` bytes in a file,
+:data:`MAX_ROWS` data rows, :data:`MAX_CELL`
 characters in a cell, :data:`MAX_HEADER_CELL` in a header cell and :data:`MAX_UNIT` in a unit.
 A larger input is refused with one located line before any slow parsing starts.
 """
@@ -36,6 +37,8 @@ MAX_CELL = 1_000
 MAX_HEADER_CELL = 200
 #: most characters in a unit (header brackets or a unit column): units are short words
 MAX_UNIT = 40
+#: largest table file [bytes] (1,000,000 rows of a wide lab export fit in it)
+MAX_FILE_BYTES = 500_000_000
 
 #: kinds of cell that carry a unit in the header (a kind of :data:`blendq.units.BASE_UNITS`)
 UNIT_KINDS = ("rate", "length", "time", "temperature", "specific_conductance", "concentration")
@@ -273,6 +276,7 @@ class Table:
 
 
 def _decode(path: Path, label: str) -> str:
+    _check_file_size(path, label)
     try:
         data = path.read_bytes()
     except OSError as err:
@@ -282,6 +286,17 @@ def _decode(path: Path, label: str) -> str:
     except UnicodeDecodeError as err:
         raise InputError(f"is not UTF-8 text (byte 0x{data[err.start]:02x} at offset "
                          f"{err.start}); save it as CSV UTF-8", file=label) from None
+
+
+def _check_file_size(path: Path, label: str) -> None:
+    """Refuse a file larger than :data:`MAX_FILE_BYTES` before reading it."""
+    try:
+        size = path.stat().st_size
+    except OSError:
+        return  # an unreadable file is reported by the read
+    if size > MAX_FILE_BYTES:
+        raise InputError(f"is {size:,} bytes; the limit for a table file is "
+                         f"{MAX_FILE_BYTES:,} bytes", file=label)
 
 
 def _csv_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], str]:
@@ -316,6 +331,7 @@ def _xlsx_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], set
     except ModuleNotFoundError:
         raise InputError("reading .xlsx files needs the openpyxl package; install it or save "
                          "the sheet as CSV", file=label) from None
+    _check_file_size(path, label)
     try:
         book = openpyxl.load_workbook(path, read_only=True, data_only=True)
     except Exception as err:  # openpyxl raises several types for a damaged file
