@@ -421,7 +421,8 @@ def read_table(path: Path, label: str, name: str) -> Table:
                              f'"{example}"; found: {found})', file=label, row=0, field=column)
     rows = []
     names = {index: column for column, (index, _) in columns.items()}
-    columns_seen = _ColumnsSeen([cells for _, cells in lines[1:]])
+    columns_seen = _ColumnsSeen([cells for _, cells in lines[1:]],
+                                sorted(i for i, c in names.items() if spec[c][0] not in _NOT_NUMERIC))
     widths = [len(cells) for _, cells in lines[1:]]
     usual = max(set(widths), key=widths.count) if widths else len(header)
     for line, cells in lines[1:]:
@@ -490,8 +491,9 @@ class _ColumnsSeen:
     """What each column holds in the rows of a table (worked out for a column when first
     asked): the shapes of its cells and the sizes of its numbers."""
 
-    def __init__(self, rows: list[list[str]]) -> None:
+    def __init__(self, rows: list[list[str]], numeric: list[int]) -> None:
         self.rows = rows
+        self.numeric = numeric  # indices of the numeric columns, in order
         self.known: dict[int, tuple[dict[str, int], list[float]]] = {}
 
     def column(self, index: int) -> tuple[dict[str, int], list[float]]:
@@ -544,10 +546,11 @@ def _shifted_row(label: str, row: int, cells: list[str], names: dict, spec: dict
     (or one short) but every later cell sits one column to the right: the cells after the
     split do not fit their columns as the other rows fill them, and read as one number
     they all do."""
-    for i in range(len(cells) - 1):
+    for i in seen.numeric:
+        if i + 1 >= len(cells):
+            continue
         a, b = cells[i].strip(), cells[i + 1].strip()
-        if not (i in names and spec[names[i]][0] not in _NOT_NUMERIC and _WHOLE.match(a)
-                and _DIGITS.match(b)):
+        if not (_WHOLE.match(a) and _DIGITS.match(b)):
             continue
         merged = cells[:i] + [f"{a}.{b}"] + cells[i + 2:]
         misfit = next((j for j in range(i + 1, len(cells)) if j in names

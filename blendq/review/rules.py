@@ -84,6 +84,8 @@ class Outcome:
 
 def text(value) -> str:
     """``value`` as stripped text; "" for None and NaN."""
+    if type(value) is str:  # the common case first (a long table calls this often)
+        return value.strip()
     if value is None or (isinstance(value, float) and np.isnan(value)) or value is pd.NaT:
         return ""
     try:
@@ -118,6 +120,8 @@ def rows_of(frame: pd.DataFrame):
 
 
 def row_number(value) -> int | None:
+    if type(value) is float and value.is_integer():  # the common case first
+        return int(value)
     try:
         number = float(value)
     except (TypeError, ValueError):
