@@ -253,9 +253,10 @@ def check_cmd(
                        f"{proj.flowlogs['log'].nunique() if len(proj.flowlogs) else 0} flow logs.")
             for line in result.summary_lines():
                 typer.echo("  " + line)
-            for _, f in result.findings.iterrows():
-                if f["severity"] != "info":
-                    typer.echo(f"  [{f['severity']}] {f['rule']}: {f['message']}")
+            shown = result.findings[result.findings["severity"] != "info"]
+            for severity, rule, message in zip(shown["severity"], shown["rule"],
+                                               shown["message"], strict=True):
+                typer.echo(f"  [{severity}] {rule}: {message}")
             for rule, why in result.skipped:
                 typer.echo(f"  skipped {rule}: {why}")
             if memory_line:
@@ -518,8 +519,14 @@ def _with_options(proj, seal, redevelop, intake, lower_heads, blend, units):
 
 def _write_report(proj, out: Path, units: str, draws, seed) -> None:
     from blendq.api import check_report_folder
+    from blendq.errors import InputError
 
-    check_report_folder(out, proj)  # refuse a bad folder before the long run, not after
+    try:  # refuse a bad folder before the long run, not after
+        check_report_folder(out, proj)
+    except InputError as err:  # the option is at fault, not the input file it would replace
+        message = err.message.replace("this input file", f"the input file {err.file}") \
+            if err.file else err.message
+        raise InputError(message, field="--out") from None
     result = _analyse(proj, draws, seed, units)
     folder = result.write_report(out)
     typer.echo(result.decision)
@@ -638,12 +645,40 @@ def plan_cmd(project: ProjectArg,
         _echo_cautions()
 
     _guard(body)
+class _Stopped(BaseException):
+    """Raised by the handler of SIGTERM or SIGHUP, so that every ``finally`` and the output
+    writer's clean-up run before the process ends (the default action ends it at once)."""
+
+    def __init__(self, signum: int) -> None:
+        super().__init__(signum)
+        self.signum = signum
+
+
+def _stop(signum: int, frame) -> None:
+    raise _Stopped(signum)
 
 
 def main() -> None:
-    """Console-script entry point."""
+    """Console-script entry point.
+
+    SIGTERM and SIGHUP end a command as an error would: nothing half-written is left (see
+    :func:`blendq.report.outputs.write_outputs`), one line on stderr, exit code 128 + the
+    signal number (the shell's convention).
+    """
     import signal
 
     if hasattr(signal, "SIGPIPE"):  # `blendq ... | head`: stop quietly when the reader goes
         signal.signal(signal.SIGPIPE, signal.SIG_DFL)
-    app()
+    from blendq.report.outputs import hold_aware
+
+    for name in ("SIGTERM", "SIGHUP"):
+        if hasattr(signal, name):
+            signal.signal(getattr(signal, name), hold_aware(_stop))
+    if signal.getsignal(signal.SIGINT) is signal.default_int_handler:  # Ctrl-C waits too
+        signal.signal(signal.SIGINT, hold_aware(signal.default_int_handler))
+    try:
+        app()
+    except _Stopped as stop:
+        name = signal.Signals(stop.signum).name
+        typer.echo(f"blendq: stopped by {name}; no partial output was left", err=True)
+        raise SystemExit(128 + stop.signum) from None

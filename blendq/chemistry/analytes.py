@@ -236,7 +236,22 @@ def get_analyte(name: str) -> Analyte:
     """Look up an analyte by key or common spelling; an unknown name gives a plain analyte.
 
     Unknown names are allowed (a user may track any constituent) but must be simple words.
+    Looked-up names are remembered (a long lab table names a few analytes many times).
     """
+    try:
+        return _LOOKED_UP[name]
+    except (KeyError, TypeError):
+        pass
+    found = _get_analyte(name)
+    if len(_LOOKED_UP) < 10_000 and isinstance(name, str):
+        _LOOKED_UP[name] = found
+    return found
+
+
+_LOOKED_UP: dict[str, Analyte] = {}
+
+
+def _get_analyte(name: str) -> Analyte:
     raw = str(name).strip()
     stated = _NAME_BASIS.match(raw)
     if stated:  # "Nitrate-N", "nitrate (as N)": the species, whatever the basis

@@ -218,7 +218,7 @@ def active_constraints(c, g, h, rtol=1e-9):
     return gc >= h - rtol * scale
 
 
-def solve_on_active_set(a, y, sigma, g, h, active, rtol=1e-9):
+def solve_on_active_set(a, y, sigma, g, h, active, rtol=1e-9, with_changes: bool = False):
     """Solve the weighted least-squares problems with a given set of active constraints, and
     tell which solutions are the constrained optimum.
 
@@ -239,6 +239,9 @@ def solve_on_active_set(a, y, sigma, g, h, active, rtol=1e-9):
     -------
     c : ndarray (B, n)
     optimal : ndarray (B,) of bool
+    violated, released : ndarray (B, K) of bool
+        With ``with_changes`` only: the constraints each solution violates, and the active
+        constraints whose multiplier is negative.
 
     References
     ----------
@@ -274,8 +277,62 @@ def solve_on_active_set(a, y, sigma, g, h, active, rtol=1e-9):
     c, lam = sol[:, :n], sol[:, n:]
     gc = np.einsum("bkn,bn->bk", g, c)
     scale = 1.0 + np.abs(h)[None, :] + np.abs(c).max(1, keepdims=True)
-    feasible = np.all(gc <= h + rtol * scale, axis=1)
+    violated = gc > h + rtol * scale
     on_set = np.all(np.where(act > 0, np.abs(gc - h) <= rtol * scale, True), axis=1)
     lam_tol = rtol * (1.0 + np.abs(grad).max(1, keepdims=True))
-    dual = np.all(np.where(act > 0, lam >= -lam_tol, True), axis=1)
-    return c, feasible & on_set & dual
+    released = (act > 0) & (lam < -lam_tol)
+    optimal = ~violated.any(axis=1) & on_set & ~released.any(axis=1)
+    if with_changes:
+        return c, optimal, violated, released
+    return c, optimal
+
+
+def solve_by_active_sets(a, y, sigma, g, h, active, max_iter: int = 60, rtol=1e-9):
+    """Solve the problems of :func:`solve_on_active_set` from a starting active set by moving
+    constraints in and out of it until the Karush-Kuhn-Tucker conditions hold.
+
+    At each pass every problem that is not yet optimal adds the constraints its solution
+    violates and releases the active constraints whose multiplier is negative (a primal-dual
+    active-set step, Hintermueller, Ito and Kunisch 2002), all problems at once. The work
+    grows with the number of passes, not with the number of possible active sets (which grows
+    as 2^n with the zones); problems still not optimal after ``max_iter`` passes are returned
+    flagged.
+
+    Returns
+    -------
+    c : ndarray (B, n)
+    optimal : ndarray (B,) of bool
+    active : ndarray (B, K) of bool
+
+    References
+    ----------
+    Hintermueller, M., Ito, K. and Kunisch, K. (2002) The primal-dual active set strategy as a
+    semismooth Newton method. SIAM Journal on Optimization 13(3), 865-888.
+    Nocedal, J. and Wright, S.J. (2006) Numerical Optimization, 2nd ed. Springer, ch. 16.
+    """
+    a = np.asarray(a, float)
+    bsz = a.shape[0]
+    g = np.broadcast_to(g, (bsz,) + np.shape(g)[1:])
+    sigma = np.broadcast_to(np.asarray(sigma, float), (bsz, a.shape[1]))
+    act = np.array(active, bool, copy=True)
+    c = np.zeros((bsz, a.shape[2]))
+    optimal = np.zeros(bsz, bool)
+    todo = np.arange(bsz)
+    seen: list[set] = [set() for _ in range(bsz)]  # active sets tried: a cycle stops a problem
+    for _ in range(max_iter):
+        if not len(todo):
+            break
+        ct, ok, violated, released = solve_on_active_set(
+            a[todo], y[todo], sigma[todo], g[todo], h, act[todo], rtol, with_changes=True)
+        c[todo] = ct
+        optimal[todo] = ok
+        keep = []
+        for pos, b in enumerate(todo):
+            if ok[pos]:
+                continue
+            seen[b].add(act[b].tobytes())
+            act[b] = (act[b] & ~released[pos]) | violated[pos]
+            if act[b].tobytes() not in seen[b]:
+                keep.append(b)
+        todo = np.array(keep, int)
+    return c, optimal, act

@@ -217,6 +217,23 @@ def solve_concentrations(problem: Problem, model: WellModel, analyte: str, value
     return c, a, ac
 
 
+def _log_groups(logs: pd.DataFrame) -> list[tuple[float, np.ndarray, np.ndarray]]:
+    """(rate, row positions, depths [m]) of each rate of the flow-log rows, worked out once per
+    table (the residuals are evaluated many times: every step of the fit and its Jacobian)."""
+    key = id(logs)
+    if _LOG_GROUPS.get(key, (None,))[0] is not logs:
+        rates = logs["rate"].to_numpy(float)
+        depths = logs["depth"].to_numpy(float)
+        groups = [(float(r), np.flatnonzero(rates == r), depths[rates == r])
+                  for r in np.unique(rates)]
+        _LOG_GROUPS.clear()  # one table at a time: no growth
+        _LOG_GROUPS[key] = (logs, groups)
+    return _LOG_GROUPS[key][1]
+
+
+_LOG_GROUPS: dict[int, tuple[pd.DataFrame, list]] = {}
+
+
 def _hydraulic_residuals(problem: Problem, theta, model: WellModel) -> list[np.ndarray]:
     p = problem.prior
     n = problem.n_zones
@@ -228,11 +245,10 @@ def _hydraulic_residuals(problem: Problem, theta, model: WellModel) -> list[np.n
     logs = problem.log_rows
     if len(logs):
         pred = np.empty(len(logs))
-        groups = logs.groupby("rate").groups
-        flows = model.state(np.array([float(r) for r in groups], float)).zone_flow
-        for k, idx in enumerate(groups.values()):
-            pred[np.asarray(idx)] = mixing.wellbore_flow(
-                flows[k], model.geometry, logs.loc[idx, "depth"].to_numpy(float))
+        groups = _log_groups(logs)
+        flows = model.state(np.array([g[0] for g in groups], float)).zone_flow
+        for k, (_, at, depths) in enumerate(groups):
+            pred[at] = mixing.wellbore_flow(flows[k], model.geometry, depths)
         res.append((pred - logs["upward_flow"].to_numpy(float)) / problem.log_sd)
     if len(problem.level_rate):
         res.append((level_depths(problem, model) - problem.level_depth) / problem.level_sd)

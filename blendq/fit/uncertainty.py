@@ -282,12 +282,19 @@ class _PerturbedData:
             c, optimal = qp.solve_on_active_set(a, y, sig, g, h, act)
             if check and not np.all(optimal):
                 bad = np.flatnonzero(~optimal)
-                c[bad] = qp.solve_censored_lsq_batch(
-                    a[bad], y[bad], sig, lb, ub, ac[bad] if ac is not None else None,
-                    d.cens_limit if ac is not None else None)
                 gb = g if g.shape[0] == 1 else g[bad]
                 act = act.copy()
-                act[bad] = qp.active_constraints(c[bad], gb, h)
+                # move constraints in and out of the active sets (cost grows with the passes,
+                # not with the 2^zones possible active sets); enumerate only what is left
+                c[bad], solved, act[bad] = qp.solve_by_active_sets(a[bad], y[bad], sig, gb, h,
+                                                                   act[bad])
+                rest = bad[~solved]
+                if len(rest):
+                    c[rest] = qp.solve_censored_lsq_batch(
+                        a[rest], y[rest], sig, lb, ub, ac[rest] if ac is not None else None,
+                        d.cens_limit if ac is not None else None)
+                    act[rest] = qp.active_constraints(c[rest], g if g.shape[0] == 1
+                                                      else g[rest], h)
             new_active[analyte] = act
             zv[:, :, j] = c
             parts.append((np.einsum("bmn,bn->bm", a, c) - y) / sig)

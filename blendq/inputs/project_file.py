@@ -61,6 +61,8 @@ MAX_NAME = 40
 MAX_WELL_NAME = 80
 #: largest whole number accepted anywhere in the project file (a seed is below 2**63)
 MAX_INTEGER = 2**63 - 1
+#: largest project file [bytes]: a hand-written project file is a few kilobytes
+MAX_PROJECT_BYTES = 1_000_000
 
 
 @dataclass
@@ -184,6 +186,13 @@ _EXAMPLE_UNIT = {"length": "ft", "rate": "gpm", "time": "d", "transmissivity": "
 
 def _read_toml(path: Path) -> dict:
     label = path.name
+    try:
+        size = path.stat().st_size
+    except OSError:
+        size = 0  # an unreadable file is reported by the read below
+    if size > MAX_PROJECT_BYTES:
+        raise InputError(f"is {size:,} bytes; the limit for a project file is "
+                         f"{MAX_PROJECT_BYTES:,} bytes", file=label)
     try:
         text = path.read_bytes().decode("utf-8-sig")
     except UnicodeDecodeError as err:

@@ -7,7 +7,8 @@ a UTF-8 byte-order mark is ignored, and the delimiter (comma, semicolon or tab) 
 the header line; in a semicolon file a decimal comma (``12,5``) is read as a decimal point.
 Columns the table does not know are ignored. Files are opened for reading only.
 
-Size limits (stated in ``docs/input-files.md``): :data:`MAX_ROWS` data rows, :data:`MAX_CELL`
+Size limits (stated in ``docs/input-files.md``): :data:`MAX_FILE_BYTES` bytes in a file,
+:data:`MAX_ROWS` data rows, :data:`MAX_CELL`
 characters in a cell, :data:`MAX_HEADER_CELL` in a header cell and :data:`MAX_UNIT` in a unit.
 A larger input is refused with one located line before any slow parsing starts.
 """
@@ -36,6 +37,8 @@ MAX_CELL = 1_000
 MAX_HEADER_CELL = 200
 #: most characters in a unit (header brackets or a unit column): units are short words
 MAX_UNIT = 40
+#: largest table file [bytes] (1,000,000 rows of a wide lab export fit in it)
+MAX_FILE_BYTES = 500_000_000
 
 #: kinds of cell that carry a unit in the header (a kind of :data:`blendq.units.BASE_UNITS`)
 UNIT_KINDS = ("rate", "length", "time", "temperature", "specific_conductance", "concentration")
@@ -145,6 +148,9 @@ def parse_number(text: str, decimal_comma: bool = False) -> float:
     return number
 
 
+_EARLIEST, _LATEST = pd.Timestamp.min, pd.Timestamp.max
+
+
 def parse_time(text: str) -> pd.Timestamp:
     """An ISO 8601 date or date-time; a time with an offset is converted to UTC (naive)."""
     cell = text.strip()
@@ -156,7 +162,7 @@ def parse_time(text: str) -> pd.Timestamp:
     if stamp.tzinfo is not None:
         stamp = stamp.astimezone(timezone.utc).replace(tzinfo=None)
     stamp = pd.Timestamp(stamp)
-    if not pd.Timestamp.min <= stamp <= pd.Timestamp.max:  # tables hold nanosecond times
+    if not _EARLIEST <= stamp <= _LATEST:  # tables hold nanosecond times
         raise InputError(f'"{text}" is outside the dates blendq can hold (years 1678 to 2261)')
     return stamp
 
@@ -234,10 +240,13 @@ class Table:
                 raise self.error(row, column, f'"{text}" is not true or false')
             return _FLAGS[text.lower()]
         if kind == "date":
+            if text in self._times:  # a long table repeats its times
+                return self._times[text]
             try:
-                return parse_time(text)
+                stamp = self._times[text] = parse_time(text)
             except InputError as err:
                 raise located(err, self.label, row, column) from None
+            return stamp
         try:
             number = parse_number(text, self.decimal_comma)
         except InputError as err:
@@ -257,6 +266,7 @@ class Table:
 
     def __post_init__(self) -> None:
         self._cells = dict(self.rows)
+        self._times: dict[str, pd.Timestamp] = {}
         self._affine = {}
         for column, (_, unit) in self.columns.items():
             kind = self.spec[column][0]
@@ -266,6 +276,7 @@ class Table:
 
 
 def _decode(path: Path, label: str) -> str:
+    _check_file_size(path, label)
     try:
         data = path.read_bytes()
     except OSError as err:
@@ -275,6 +286,17 @@ def _decode(path: Path, label: str) -> str:
     except UnicodeDecodeError as err:
         raise InputError(f"is not UTF-8 text (byte 0x{data[err.start]:02x} at offset "
                          f"{err.start}); save it as CSV UTF-8", file=label) from None
+
+
+def _check_file_size(path: Path, label: str) -> None:
+    """Refuse a file larger than :data:`MAX_FILE_BYTES` before reading it."""
+    try:
+        size = path.stat().st_size
+    except OSError:
+        return  # an unreadable file is reported by the read
+    if size > MAX_FILE_BYTES:
+        raise InputError(f"is {size:,} bytes; the limit for a table file is "
+                         f"{MAX_FILE_BYTES:,} bytes", file=label)
 
 
 def _csv_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], str]:
@@ -309,6 +331,7 @@ def _xlsx_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], set
     except ModuleNotFoundError:
         raise InputError("reading .xlsx files needs the openpyxl package; install it or save "
                          "the sheet as CSV", file=label) from None
+    _check_file_size(path, label)
     try:
         book = openpyxl.load_workbook(path, read_only=True, data_only=True)
     except Exception as err:  # openpyxl raises several types for a damaged file
@@ -398,6 +421,8 @@ def read_table(path: Path, label: str, name: str) -> Table:
                              f'"{example}"; found: {found})', file=label, row=0, field=column)
     rows = []
     names = {index: column for column, (index, _) in columns.items()}
+    columns_seen = _ColumnsSeen([cells for _, cells in lines[1:]],
+                                sorted(i for i, c in names.items() if spec[c][0] not in _NOT_NUMERIC))
     widths = [len(cells) for _, cells in lines[1:]]
     usual = max(set(widths), key=widths.count) if widths else len(header)
     for line, cells in lines[1:]:
@@ -409,6 +434,8 @@ def read_table(path: Path, label: str, name: str) -> Table:
                              field=names.get(index, f"#{index + 1}"))
         if delimiter == "," and (len(cells) > len(header) or len(cells) == usual + 1):
             _decimal_comma(label, row, cells, names, spec, len(header), usual)
+        elif delimiter == "," and len(cells) > 1:  # a row one cell short, split by "14,6"
+            _shifted_row(label, row, cells, names, spec, columns_seen)
         if len(cells) > len(header) and any(c.strip() for c in cells[len(header):]):
             raise InputError(f"has {len(cells)} cells but the header has {len(header)} "
                              "columns", file=label, row=row)
@@ -445,6 +472,99 @@ def _decimal_comma(label: str, row: int, cells: list[str], names: dict, spec: di
                              f'{len(cells)} cells, {others}); write "{a}.{b}", quote the cell, '
                              "or save the file with semicolons", file=label, row=row,
                              field=names[i])
+
+
+_DATE_LIKE = re.compile(r"^\d{4}-\d{2}-\d{2}")
+
+
+def _shape(cell: str) -> str:
+    """What a cell holds, roughly: "empty", "number", "date" or "text"."""
+    text = cell.strip()
+    if not text:
+        return "empty"
+    if _NUMBER.match(text.lstrip("<").strip()):
+        return "number"
+    return "date" if _DATE_LIKE.match(text) else "text"
+
+
+class _ColumnsSeen:
+    """What each column holds in the rows of a table (worked out for a column when first
+    asked): the shapes of its cells and the sizes of its numbers."""
+
+    def __init__(self, rows: list[list[str]], numeric: list[int]) -> None:
+        self.rows = rows
+        self.numeric = numeric  # indices of the numeric columns, in order
+        self.known: dict[int, tuple[dict[str, int], list[float]]] = {}
+
+    def column(self, index: int) -> tuple[dict[str, int], list[float]]:
+        if index not in self.known:
+            shapes: dict[str, int] = {}
+            sizes = []
+            for cells in self.rows:
+                cell = cells[index] if index < len(cells) else ""
+                shape = _shape(cell)
+                shapes[shape] = shapes.get(shape, 0) + 1
+                if shape == "number":
+                    sizes.append(abs(float(cell.strip().lstrip("<").strip())))
+            self.known[index] = (shapes, sorted(sizes))
+        return self.known[index]
+
+    def fits(self, index: int, cell: str, own: str, kind: str) -> bool:
+        """Whether ``cell`` fits column ``index`` (of kind ``kind``) as its other rows fill it;
+        ``own`` is what this row holds there as read (left out of the comparison)."""
+        shape = _shape(cell)
+        text = cell.strip()
+        numeric = kind not in _NOT_NUMERIC
+        if numeric and shape in ("date", "text") and text.lower() not in _NO_NUMBER:
+            return False
+        if kind == "date" and shape not in ("date", "empty"):
+            return False
+        if kind == "flag" and shape != "empty" and text.lower() not in _FLAGS:
+            return False
+        shapes, sizes = self.column(index)
+        others = dict(shapes)
+        others[_shape(own)] = others.get(_shape(own), 0) - 1
+        if sum(others.values()) < 3:  # too few other rows to know the column
+            return True
+        if others.get(shape, 0) <= 0:
+            return False
+        if not numeric or shape != "number":
+            return True
+        value = abs(float(text.lstrip("<").strip()))
+        rest = list(sizes)
+        if _shape(own) == "number":
+            rest.remove(abs(float(own.strip().lstrip("<").strip())))
+        low, high = (rest[0], rest[-1]) if rest else (0.0, math.inf)
+        # an order of magnitude beyond every other row of the column (common practice)
+        return low <= 0 or value == 0 or low / 10 <= value <= 10 * high
+
+
+def _shifted_row(label: str, row: int, cells: list[str], names: dict, spec: dict,
+                 seen: _ColumnsSeen) -> None:
+    """Refuse a row of a comma-separated file in which a decimal comma ("14,6") split a
+    number into two cells while the row was one cell short, so that its length looks right
+    (or one short) but every later cell sits one column to the right: the cells after the
+    split do not fit their columns as the other rows fill them, and read as one number
+    they all do."""
+    for i in seen.numeric:
+        if i + 1 >= len(cells):
+            continue
+        a, b = cells[i].strip(), cells[i + 1].strip()
+        if not (_WHOLE.match(a) and _DIGITS.match(b)):
+            continue
+        merged = cells[:i] + [f"{a}.{b}"] + cells[i + 2:]
+        misfit = next((j for j in range(i + 1, len(cells)) if j in names
+                       and not seen.fits(j, cells[j], cells[j], spec[names[j]][0])), None)
+        if misfit is None:
+            continue
+        if all(seen.fits(j, merged[j], cells[j] if j < len(cells) else "",
+                         spec[names[j]][0]) for j in range(i, len(merged)) if j in names):
+            raise InputError(f'"{a},{b}" looks like a number written with a decimal comma, '
+                             "which shifts the rest of the row one column to the right in a "
+                             f'comma-separated file ("{cells[misfit].strip()}" does not fit '
+                             f"column {names[misfit]}; read as {a}.{b} the row fits its "
+                             f'columns); write "{a}.{b}", quote the cell, or save the file '
+                             "with semicolons", file=label, row=row, field=names[i])
 
 
 _EXAMPLE = {"rate": "gpm", "length": "ft", "time": "min", "temperature": "degC",

@@ -29,7 +29,9 @@ import os
 import re
 import secrets
 import shutil
-from collections.abc import Iterable, Mapping
+import signal
+from collections.abc import Iterable, Iterator, Mapping
+from contextlib import contextmanager
 from pathlib import Path, PurePath, PurePosixPath
 from typing import Any
 
@@ -38,7 +40,8 @@ import pandas as pd
 
 from blendq.errors import InputError
 
-__all__ = ["MARKER_NAME", "check_output_folder", "to_csv_safe", "to_json_stable", "write_outputs"]
+__all__ = ["MARKER_NAME", "check_output_folder", "hold_aware", "to_csv_safe", "to_json_stable",
+           "write_outputs"]
 
 #: Name of the file that marks a folder as written by blendq (and so replaceable by it).
 MARKER_NAME = ".blendq-output"
@@ -137,6 +140,28 @@ def check_output_folder(folder: str | os.PathLike[str],
     folder = Path(folder)
     _check_protected(folder, protect)
     _check_replaceable(folder)
+    _check_writable(Path(os.path.abspath(folder)))
+
+
+def _check_writable(folder: Path) -> None:
+    """Refuse an output folder that could not be created or replaced: its nearest existing
+    parent is not a folder, or a new folder cannot be made in it (read-only folder or file
+    system). Tried by creating and removing an empty hidden folder, so that it holds for
+    any user and any file system."""
+    parent = folder.parent
+    while not parent.exists() and parent != parent.parent:
+        parent = parent.parent
+    if not parent.is_dir():
+        raise InputError(f"cannot write the output folder {str(folder)!r}: {str(parent)!r} is "
+                         "a file, not a folder", field="output folder")
+    try:
+        with _signals_held():
+            probe = _fresh_sibling(parent / folder.name, "probe")
+            os.rmdir(probe)
+    except OSError as err:
+        raise InputError(f"cannot write the output folder {str(folder)!r}: a folder cannot be "
+                         f"created in {str(parent)!r} ({err.strerror or err}); choose a "
+                         "writable place", field="output folder") from None
 
 
 def _fresh_sibling(folder: Path, tag: str) -> Path:
@@ -167,8 +192,52 @@ def _unused_sibling_name(folder: Path, tag: str) -> Path:
     raise OSError(f"could not find a free name beside {folder}")
 
 
+# Signals that arrive while output folders are created, swapped or removed wait until that is
+# done: the command line installs its handlers through :func:`hold_aware` (a handler runs in
+# the main thread, between two steps of Python, so a flag is enough; blocking the signal in
+# the main thread is not, since the kernel may hand it to another thread).
+_held = 0
+_pending: list[int] = []
+
+
+def hold_aware(handler):
+    """``handler`` for :func:`signal.signal`, made to wait while an output folder is being
+    created, swapped or removed (the signal is re-raised as soon as that is done)."""
+
+    def wrapped(signum, frame):
+        if _held:
+            _pending.append(signum)
+            return None
+        return handler(signum, frame)
+
+    return wrapped
+
+
+@contextmanager
+def _signals_held() -> Iterator[None]:
+    """Hold back signals handled through :func:`hold_aware` for the duration, so that a folder
+    being created, swapped or removed is never left half done."""
+    global _held
+    _held += 1
+    try:
+        yield
+    finally:
+        _held -= 1
+        if not _held and _pending:
+            signum = _pending[0]
+            _pending.clear()
+            signal.raise_signal(signum)
+
+
 def _move_into_place(staged: Path, folder: Path) -> None:
-    """Replace ``folder`` by ``staged``; on failure the old folder is put back."""
+    """Replace ``folder`` by ``staged``; on failure the old folder is put back. Signals are
+    held meanwhile: a stop during the swap or the removal of the old folder takes effect
+    after the old folder is gone."""
+    with _signals_held():
+        _swap(staged, folder)
+
+
+def _swap(staged: Path, folder: Path) -> None:
     if not folder.exists():
         os.rename(staged, folder)
         return
@@ -225,7 +294,8 @@ def write_outputs(
     _check_protected(target, protect)
     _check_replaceable(target)
     target.parent.mkdir(parents=True, exist_ok=True)
-    staged = _fresh_sibling(target, "partial")
+    with _signals_held():  # a stop between creating the folder and the try below
+        staged = _fresh_sibling(target, "partial")
     try:
         for relative, data in entries:
             path = staged.joinpath(*relative.parts)
@@ -233,8 +303,9 @@ def write_outputs(
             _write_file(path, data)
         _write_file(staged / MARKER_NAME, _MARKER_TEXT.encode("utf-8"))
         _move_into_place(staged, target)
-    except BaseException:
-        shutil.rmtree(staged, ignore_errors=True)
+    except BaseException:  # an error, or a stop (SIGINT, SIGTERM, SIGHUP) while writing
+        with _signals_held():
+            shutil.rmtree(staged, ignore_errors=True)
         raise
     return target
 

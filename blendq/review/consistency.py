@@ -38,8 +38,10 @@ def check_zero_rate_samples(project) -> Outcome:
         return out
     zero = {text(s) for s, q in zip(steps["step"], steps["rate"], strict=True) if q == 0}
     seen = set()
-    for _, row in rows_of(samples):
-        if text(row["step"]) in zero and row["sample_id"] not in seen:
+    if not zero:
+        return out
+    for _, row in rows_of(samples[[text(s) in zero for s in samples["step"]]]):
+        if row["sample_id"] not in seen:
             seen.add(row["sample_id"])
             out.add("error", "zero_rate_samples",
                     f'sample {row["sample_id"]} is at step {row["step"]}, whose rate is 0: no '
@@ -101,9 +103,10 @@ def check_sample_depths(project) -> Outcome:
         return out
     deepest = max(z.bottom for z in project.zones)
     seen = set()
-    for _, row in rows_of(samples):
+    below = np.isfinite(samples["depth"].to_numpy(float)) & (samples["depth"] > deepest)
+    for _, row in rows_of(samples[below]):
         depth = row["depth"]
-        if np.isfinite(depth) and depth > deepest and row["sample_id"] not in seen:
+        if row["sample_id"] not in seen:
             seen.add(row["sample_id"])
             out.add("warning", "sample_below_zones",
                     f'sample {row["sample_id"]} was taken at {fmt(depth)} m, below the bottom '

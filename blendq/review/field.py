@@ -384,28 +384,34 @@ def check_timing(samples, schedule, opts) -> Outcome:
         out.skip("early_sample", "no steps table")
         return out
     share_min = opts["early_sample_share"]
-    untimed = 0
-    for sid, s in rows_of(table):
+    known = table["step_key"].isin(schedule.index).to_numpy()
+    start = table["step_key"].map(schedule["start"])
+    duration = table["step_key"].map(schedule["duration"]).to_numpy(float)
+    timed = known & table["sampled_at"].notna().to_numpy() & start.notna().to_numpy() \
+        & (duration > 0)
+    untimed = int((known & ~timed).sum())
+    with np.errstate(invalid="ignore"):
+        shares = ((table["sampled_at"] - start) / pd.Timedelta(days=1)).to_numpy(float) / duration
+    early = timed & (shares < share_min)
+    late = timed & (shares > 1.0 + opts["late_sample_share"])
+    noted = ~known | early | late  # only these rows are read
+    for (sid, s), is_known, share, days in zip(rows_of(table[noted]), known[noted],
+                                               shares[noted], duration[noted], strict=True):
         row = {"sample_id": sid, "step": s["step"], "source_row": s["source_row"]}
-        if s["step_key"] not in schedule.index:
+        if not is_known:
             out.add("error", "step_unknown",
                     f'sample names step "{s["step_key"]}", which is not in the steps table '
                     f"(steps: {', '.join(schedule.index)})", SRC_COMMON, row, analyte="")
             continue
-        step = schedule.loc[s["step_key"]]
-        if pd.isna(s["sampled_at"]) or pd.isna(step["start"]) or not step["duration"] > 0:
-            untimed += 1
-            continue
-        share = (s["sampled_at"] - step["start"]) / pd.Timedelta(days=1) / step["duration"]
-        elapsed = _hours(share * step["duration"])
+        elapsed = _hours(share * days)
         if share < share_min:
             out.add("warning", "early_sample",
-                    f"sampled {elapsed} into a {_hours(step['duration'])} step "
+                    f"sampled {elapsed} into a {_hours(days)} step "
                     f"({100 * share:.0f} % of it, less than {100 * share_min:.0f} %): the blend "
                     "may not have settled", SRC_COMMON, row, analyte="")
-        elif share > 1.0 + opts["late_sample_share"]:
+        else:
             out.add("warning", "late_sample",
-                    f"sampled {elapsed} after the start of a {_hours(step['duration'])} step, "
+                    f"sampled {elapsed} after the start of a {_hours(days)} step, "
                     "after it ended: check the step the sample belongs to", SRC_COMMON, row,
                     analyte="")
     if untimed:

@@ -18,6 +18,7 @@ from __future__ import annotations
 import json
 from collections.abc import Iterable
 from dataclasses import dataclass, field
+from functools import partial
 from pathlib import Path
 
 import numpy as np
@@ -492,8 +493,9 @@ def review(project, memory: pd.DataFrame | None = None) -> QAResult:
         out.skip("all", "no samples")
         return QAResult(findings_frame(out.findings, opts["severity"]), out.skipped, opts)
     schedule = step_schedule(project.steps)
+    balance = ion_balance_table(samples)
     for rule in (check_basis, check_units, check_qualifiers, check_duplicates,
-                 check_ion_balance, check_holding_times):
+                 partial(check_ion_balance, table=balance), check_holding_times):
         out.extend(rule(samples, project.steps, opts))
     field_out, stable = check_field_stability(samples, project.field_readings, schedule, opts)
     out.extend(field_out)
@@ -511,5 +513,5 @@ def review(project, memory: pd.DataFrame | None = None) -> QAResult:
         skipped=out.skipped,
         options=opts,
         results=samples[["sample_id", "analyte"]].drop_duplicates().reset_index(drop=True),
-        ion_balance=ion_balance_table(samples),
+        ion_balance=balance,
     )

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import re
 
+import numpy as np
 import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
@@ -85,9 +86,25 @@ def check_holding_times(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) 
                 + ", ".join(dict.fromkeys(group["analyte"])), SRC_HOLD, group.iloc[0],
                 analyte="")
     no_acid: dict[tuple[str, str], list] = {}
-    for _, row in rows_of(checkable[timed]):
-        days_allowed, what = holding_time(row["analyte"], row["preservation"], opts)
-        elapsed = (row["analyzed_at"] - row["sampled_at"]) / pd.Timedelta(days=1)
+    rows = checkable[timed]
+    elapsed_days = ((rows["analyzed_at"] - rows["sampled_at"]) / pd.Timedelta(days=1)).to_numpy(
+        float)
+    rules: dict[tuple[str, str], tuple[float, str, bool]] = {}  # per analyte and preservation
+    for pair in zip(rows["analyte"], rows["preservation"], strict=True):
+        if pair not in rules:
+            analyte, preservation = pair
+            days_allowed, what = holding_time(analyte, preservation, opts)
+            acid = HOLDING_TIMES.get(analyte, (0, "", ""))[1]
+            lacks_acid = bool(acid and analyte not in opts["holding_times"]
+                              and not re.search(_ACID_WORDS[acid], preservation, re.IGNORECASE))
+            rules[pair] = (days_allowed, what, lacks_acid)
+    rule_of = [rules[pair] for pair in zip(rows["analyte"], rows["preservation"], strict=True)]
+    allowed = np.array([r[0] for r in rule_of], float)
+    lacking = np.array([r[2] for r in rule_of], bool)
+    noted = (elapsed_days < 0) | (elapsed_days > allowed) | lacking  # only these are read
+    for (_, row), elapsed, (days_allowed, what, lacks_acid) in zip(
+            rows_of(rows[noted]), elapsed_days[noted],
+            [r for r, n in zip(rule_of, noted, strict=True) if n], strict=True):
         name = get_analyte(row["analyte"]).name
         if elapsed < 0:
             out.add("error", "holding_time_order",
@@ -98,9 +115,8 @@ def check_holding_times(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) 
             out.add("warning", "holding_time",
                     f"{name} analysed {_span(elapsed)} after sampling; holding time {what}",
                     SRC_HOLD, row)
-        acid = HOLDING_TIMES.get(row["analyte"], (0, "", ""))[1]
-        if (acid and row["analyte"] not in opts["holding_times"]
-                and not re.search(_ACID_WORDS[acid], row["preservation"], re.IGNORECASE)):
+        if lacks_acid:
+            acid = HOLDING_TIMES[row["analyte"]][1]
             no_acid.setdefault((row["sample_id"], acid), []).append(row)
     for (_, acid), rows in no_acid.items():
         said = f'"{rows[0]["preservation"]}"' if rows[0]["preservation"] else "not recorded"

@@ -59,8 +59,8 @@ def ion_balance_table(samples: pd.DataFrame) -> pd.DataFrame:
     """
     majors = set(MAJOR_CATIONS) | set(MAJOR_ANIONS)
     groups: dict = {}  # sample_id -> its results, in order of first appearance
-    for r in samples[["sample_id", "analyte", "nondetect", "value", "step",
-                      "source_row"]].to_dict("records"):
+    for _, r in rows_of(samples[["sample_id", "analyte", "nondetect", "value", "step",
+                                 "source_row"]]):
         groups.setdefault(r["sample_id"], []).append(r)
     rows = []
     for sid, group in groups.items():
@@ -118,10 +118,12 @@ def ion_balance_acceptable(cations: float, anions: float, opts: dict) -> tuple[b
     return not exceeds(abs(pct), tol), f"+-{tol:g} % for an anion sum of {band} meq/L"
 
 
-def check_ion_balance(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outcome:
-    """Cation-anion balance of each sample with a complete major-ion analysis."""
+def check_ion_balance(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict,
+                      table: pd.DataFrame | None = None) -> Outcome:
+    """Cation-anion balance of each sample with a complete major-ion analysis (``table``: the
+    :func:`ion_balance_table` of ``samples`` when already computed)."""
     out = Outcome()
-    table = ion_balance_table(samples)
+    table = ion_balance_table(samples) if table is None else table
     if table.empty:
         out.skip("ion_balance", "major ions not analysed")
         return out

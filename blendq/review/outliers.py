@@ -16,7 +16,7 @@ import numpy as np
 import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
-from blendq.review.rules import SRC_COMMON, Outcome
+from blendq.review.rules import SRC_COMMON, Outcome, rows_of
 
 RULE = "gross_outlier"
 
@@ -61,17 +61,21 @@ def check_gross_outliers(samples: pd.DataFrame, factor: float,
             unit, scale = an.display_unit, float(an.in_display_unit(1.0))
         except Exception:  # noqa: BLE001 - an analyte blendq does not know: mg/L
             unit, scale = "mg/L", 1.0
-        for _, row in rows.iterrows():
-            others = rows[rows["step_key"] != row["step_key"]]["value"].to_numpy(float)
-            if len(np.unique(rows.loc[rows["step_key"] != row["step_key"], "step_key"])) < 2:
-                continue
-            v, hi, lo = float(row["value"]), float(others.max()), float(others.min())
+        # the largest and smallest result of the other steps, from per-step extremes (the
+        # rows of an analyte may be many: a lab's long table)
+        per_step = rows.groupby("step_key", sort=False)["value"].agg(["max", "min"])
+        hi_of = {k: float(per_step["max"].drop(k).max()) for k in per_step.index}
+        lo_of = {k: float(per_step["min"].drop(k).min()) for k in per_step.index}
+        his = rows["step_key"].map(hi_of).to_numpy(float)
+        los = rows["step_key"].map(lo_of).to_numpy(float)
+        values = rows["value"].to_numpy(float)
+        odd = (values > factor * his) | (values < los / factor)
+        for (_, row), hi, lo in zip(rows_of(rows[odd]), his[odd], los[odd], strict=True):
+            v = float(row["value"])
             if v > factor * hi:
                 how = f"{v / hi:.3g} times the largest"
-            elif v < lo / factor:
-                how = f"1/{lo / v:.3g} of the smallest"
             else:
-                continue
+                how = f"1/{lo / v:.3g} of the smallest"
             where = f"{file} row {int(row['source_row'])}" if np.isfinite(row["source_row"]) \
                 else file
             reported = (f" (reported as {row['reported_value']} {row['reported_unit']})"

@@ -84,6 +84,8 @@ class Outcome:
 
 def text(value) -> str:
     """``value`` as stripped text; "" for None and NaN."""
+    if type(value) is str:  # the common case first (a long table calls this often)
+        return value.strip()
     if value is None or (isinstance(value, float) and np.isnan(value)) or value is pd.NaT:
         return ""
     try:
@@ -111,10 +113,15 @@ def plain_value(value):
 def rows_of(frame: pd.DataFrame):
     """(index, row as a dict) of each row of ``frame``: what ``iterrows`` gives for reading
     cells by name, without building a Series per row (a long lab table has many)."""
-    return zip(frame.index, frame.to_dict("records"), strict=True)
+    columns = list(frame.columns)
+    cells = [frame[c].to_numpy(object).tolist() for c in columns]  # plain values, by column
+    rows = (dict(zip(columns, row, strict=True)) for row in zip(*cells, strict=True))
+    return zip(frame.index, rows, strict=True)
 
 
 def row_number(value) -> int | None:
+    if type(value) is float and value.is_integer():  # the common case first
+        return int(value)
     try:
         number = float(value)
     except (TypeError, ValueError):
@@ -149,7 +156,7 @@ def prepare_samples(samples: pd.DataFrame) -> pd.DataFrame:
         s[col] = pd.to_numeric(s[col], errors="coerce").astype(float)
     for col in ("sample_id", "analyte", "qualifier", "duplicate_of", "preservation",
                 "reported_unit", "reported_basis"):
-        s[col] = [text(v) for v in s[col]]
+        s[col] = [v.strip() if type(v) is str else text(v) for v in s[col]]
     for col in ("sampled_at", "analyzed_at"):
         s[col] = pd.to_datetime(s[col], errors="coerce")
     s["nondetect"] = [bool(v) if text(v) != "" else False for v in s["nondetect"]]
@@ -210,27 +217,60 @@ def check_basis(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
                                              strict=True)):
             for name in {sid, dup} - {""}:
                 where_named.setdefault(name, []).append(pos)
-        for pos, (i, row) in enumerate(rows_of(usable)):
-            other = np.ones(len(usable), bool)
-            for name in {row["sample_id"], row["duplicate_of"]} - {""}:
-                other[where_named.get(name, [])] = False
-            near = other & (np.abs(rate - rate[pos]) <= rate_tol * np.fmax(rate, rate[pos]))
-            pick = near if near.sum() >= 2 else other
-            if pick.sum() < 2:
+        # the median of the other samples (all, or those at similar rates) without building a
+        # mask per row: the rows at each distinct rate share one sorted set of values, from
+        # which a row's own sample (and its duplicates) are left out by rank
+        everyone = np.sort(values)
+        similar: dict[float, tuple[np.ndarray, np.ndarray]] = {}
+        for r in np.unique(rate[np.isfinite(rate)]):
+            mask = np.abs(rate - r) <= rate_tol * np.fmax(rate, r)
+            similar[float(r)] = (mask, np.sort(values[mask]))
+        for pos, (i, sid, dup) in enumerate(zip(usable.index, usable["sample_id"],
+                                                usable["duplicate_of"], strict=True)):
+            left_out = sorted({p for name in {sid, dup} - {""}
+                               for p in where_named.get(name, [])})
+            mask, near_values = similar.get(float(rate[pos]), (None, None))
+            near_out = [p for p in left_out if mask is not None and mask[p]]
+            if near_values is not None and len(near_values) - len(near_out) >= 2:
+                median, where = _median_without(near_values, values[near_out]), \
+                    "at similar rates"
+            elif len(everyone) - len(left_out) >= 2:
+                median, where = _median_without(everyone, values[left_out]), "of this analyte"
+            else:
                 continue
-            ratio = row["value"] / float(np.median(values[pick]))
-            where = "at similar rates" if pick is near else "of this analyte"
-            if declared[i] == "N" and abs(ratio / factor - 1.0) <= tol:
+            ratio = values[pos] / median
+            as_n = declared[i] == "N" and abs(ratio / factor - 1.0) <= tol
+            as_ion = declared[i] == ion and abs(ratio * factor - 1.0) <= tol
+            if not (as_n or as_ion):
+                continue
+            row = usable.loc[i].to_dict()  # read only for a row that is reported
+            if as_n:
                 out.add("warning", "basis_suspect",
                         f"{analyte.name} {fmt(row['value'])} mg/L as N is {ratio:.2f} x the "
                         f"median of the other samples {where}; M({ion})/M(N) = {factor:.3f}: "
                         f"probably reported as {ion} but declared as N", SRC_NRC, row)
-            elif declared[i] == ion and abs(ratio * factor - 1.0) <= tol:
+            else:
                 out.add("warning", "basis_suspect",
                         f"{analyte.name} declared as {ion} is 1/{1.0 / ratio:.2f} of the median "
                         f"of the other samples {where}; M({ion})/M(N) = {factor:.3f}: probably "
                         f"reported as N but declared as {ion}", SRC_NRC, row)
     return out
+
+
+def _median_without(ordered: np.ndarray, removed: np.ndarray) -> float:
+    """Median of the sorted array ``ordered`` with the values ``removed`` (each present in it)
+    taken out once each; O(k log n) for k removed values."""
+    at = np.searchsorted(ordered, np.sort(removed), side="left")
+    at = at + (np.arange(len(at)) - np.searchsorted(at, at, side="left"))  # equal values
+    size = len(ordered) - len(at)
+
+    def kth(k: int) -> float:  # the k-th smallest remaining value
+        for p in at:
+            if p <= k:
+                k += 1
+        return float(ordered[k])
+
+    return 0.5 * (kth((size - 1) // 2) + kth(size // 2))
 
 
 def _unit_name(unit: str) -> str:
@@ -248,10 +288,10 @@ def check_units(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> Outco
         analyte = get_analyte(key)
         for column, what in (("reported_unit", "units"), ("reported_basis", "bases")):
             labels = group[column]
-            if column == "reported_unit":
-                labels = labels.map(lambda u: _unit_name(u) if u else "")
-            else:
-                labels = labels.map(lambda b, a=analyte: _basis_or_blank(a, b))
+            names = {u: _unit_name(u) if u else "" for u in labels.unique()} \
+                if column == "reported_unit" else \
+                {b: _basis_or_blank(analyte, b) for b in labels.unique()}
+            labels = labels.map(names)
             labels = labels[labels != ""]
             if labels.nunique() < 2:
                 continue
@@ -294,7 +334,10 @@ def check_qualifiers(samples: pd.DataFrame, steps: pd.DataFrame, opts: dict) -> 
     estimated = set(opts["estimated_flags"])
     nondetect = set(opts["nondetect_flags"])
     rejected = set(opts["rejected_flags"])
-    for _, row in rows_of(samples):
+    dls = samples["detection_limit"]
+    noted = samples["nondetect"] | (samples["qualifier"] != "") | ((dls > 0)
+                                                                    & (samples["value"] < dls))
+    for _, row in rows_of(samples[noted]):  # the other rows give no finding
         flags = parse_flags(row["qualifier"])
         dl = row["detection_limit"]
         name = get_analyte(row["analyte"]).name
