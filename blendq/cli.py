@@ -40,8 +40,9 @@ app = typer.Typer(
 
 ProjectArg = Annotated[Path, typer.Argument(metavar="PROJECT", help="Project file (project.toml) or its folder.")]
 UnitsOpt = Annotated[str | None, typer.Option(
-    "--units", "-u", metavar="US|SI",
-    help="Display units (default: the project's display_units).")]
+    "--units", "-u", metavar="US|SI|SI-L/s",
+    help="Display units: US (gpm, ft), SI (m3/d, m) or SI-L/s (L/s, m) (default: the "
+         "project's display_units).")]
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print machine-readable JSON.")]
 DrawsOpt = Annotated[int | None, typer.Option("--draws", metavar="N", help="Posterior draws (default: project setting).")]
 SeedOpt = Annotated[int | None, typer.Option("--seed", metavar="N", help="Random seed (default: project setting).")]
@@ -96,10 +97,14 @@ def _units(units: str | None, project=None) -> str:
     """``--units`` when given, else the project's ``display_units`` (else US)."""
     if units is None:
         return project.settings.display_units if project is not None else "US"
-    u = units.strip().upper()
-    if u not in ("US", "SI"):
-        raise typer.BadParameter(f'"{units}" is not US or SI', param_hint="--units")
-    return u
+    from blendq.errors import InputError
+    from blendq.units import UNIT_SYSTEMS, unit_system
+
+    try:
+        return unit_system(units)
+    except InputError:
+        raise typer.BadParameter(f'"{units}" is not ' + ", ".join(UNIT_SYSTEMS[:-1]) +
+                                 f" or {UNIT_SYSTEMS[-1]}", param_hint="--units") from None
 
 
 #: words of advice that change the well (sealing, casing off, redeveloping, moving the pump)

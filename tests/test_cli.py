@@ -429,6 +429,30 @@ def test_project_display_units_are_the_default_and_units_overrides(tmp_path):
     assert "m³/d" in w.stdout.splitlines()[0] and "gpm" not in w.stdout.splitlines()[0]
 
 
+def test_litres_per_second_from_the_project_or_the_option(tmp_path):
+    folder = _demo_copy(tmp_path)
+    _edit(folder / "project.toml", 'display_units = "US"', 'display_units = "SI-L/s"')
+    # 300 gpm = 300 x 3.785411784 L / 60 s = 18.927 L/s (NIST SP 811 gallon)
+    ls = run("inflow", folder, "--rates", "300 gpm")
+    assert ls.exit_code == 0, ls.output
+    assert "18.9" in ls.stdout and "[L/s]" in ls.stdout
+    assert "gpm" not in ls.stdout and "m³/d" not in ls.stdout
+    dd = run("drawdown", folder)
+    assert dd.exit_code == 0, dd.output
+    assert "L/s/m" in dd.stdout and "m/(L/s)" in dd.stdout and "gpm" not in dd.stdout
+    w = run("window", folder, "--draws", DRAWS, "--no-by-step")
+    assert w.exit_code == 0, w.output
+    assert " L/s" in w.stdout.splitlines()[0] and "m³/d" not in w.stdout.splitlines()[0]
+    # the option in any capitalisation, over a US project
+    us = run("inflow", DEMO, "--rates", "300 gpm", "--units", "si-l/s")
+    assert us.exit_code == 0 and "[L/s]" in us.stdout
+    bad = run("inflow", DEMO, "--rates", "300 gpm", "--units", "L/s")
+    assert bad.exit_code == 2 and "SI-L/s" in bad.output
+    _edit(folder / "project.toml", 'display_units = "SI-L/s"', 'display_units = "lps"')
+    r = run("check", folder)
+    assert r.exit_code == 2 and "display_units" in r.output and "SI-L/s" in r.output
+
+
 def test_help_is_plain_text_in_workflow_order():
     r = run("compare", "--help")
     assert r.exit_code == 0

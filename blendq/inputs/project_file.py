@@ -25,7 +25,7 @@ from blendq.chemistry.limits import (
 from blendq.errors import InputError
 from blendq.inputs.project import TABLE_COLUMNS, Settings, Well, Zone
 from blendq.inputs.tables import located, split_unit_basis
-from blendq.units import parse_quantity
+from blendq.units import UNIT_SYSTEMS, parse_quantity, unit_system
 
 try:  # Python 3.11+
     import tomllib
@@ -654,8 +654,10 @@ def read_project_file(path: str | Path) -> ProjectFile:
     head = _Section(_table(doc, "project", label), "project", label)
     name = head.text("name")
     units = head.text("display_units", Settings().display_units)
-    if units not in ("US", "SI"):
-        raise head.error("display_units", f'"{units}" is not "US" or "SI"')
+    if units.strip().upper() not in {u.upper() for u in UNIT_SYSTEMS}:
+        raise head.error("display_units", f'"{units}" is not ' +
+                         ", ".join(f'"{u}"' for u in UNIT_SYSTEMS))
+    units = unit_system(units)
     report_fields = _report_fields(head)
     head.done()
     well, zones = _well(doc, label), _zones(doc, label)

@@ -19,7 +19,7 @@ PROJECT_TOML = """\
 
 [project]
 name = "Example well, step test"      # title used in the report
-display_units = "US"                  # "US" (ft, gpm) or "SI" (m, m3/d) for output
+display_units = "US"                  # "US" (ft, gpm), "SI" (m, m3/d) or "SI-L/s" (m, L/s)
 
 [well]
 name = "Example well 1"

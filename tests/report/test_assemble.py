@@ -267,6 +267,28 @@ def test_si_project_settings_prepared_reviewed_date_and_a4(tmp_path):
     assert _media_box((out / "report.pdf").read_bytes()) == pytest.approx((612.0, 792.0))
 
 
+def test_litres_per_second_report(tmp_path):
+    project = tmp_path / "proj"
+    shutil.copytree(DEMO, project)
+    toml = project / "project.toml"
+    toml.write_text(toml.read_text(encoding="utf-8").replace(
+        'display_units = "US"', 'display_units = "SI-L/s"', 1), encoding="utf-8")
+    out = tmp_path / "out"
+    r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    sweep = list(csv.DictReader(io.StringIO(
+        (out / "tables" / "sweep.csv").read_text(encoding="utf-8"))))
+    assert "rate [L/s]" in sweep[0] and "pumping level median [m depth]" in sweep[0]
+    summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    # the window's ends in L/s are the base-unit ends / 86.4 (1 L/s = 86.4 m^3/d, exact)
+    lo, hi = summary["window_m3_per_day"][0]
+    assert f"Operate between {lo / 86.4:.3g} L/s and {hi / 86.4:.3g} L/s" in summary["decision"]
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert "L/s" in html and "m³/d" not in html and " gpm<" not in html
+    assert _media_box((out / "report.pdf").read_bytes()) == pytest.approx((595.276, 841.89),
+                                                                          abs=1e-3)
+
+
 @pytest.mark.parametrize("line, field", [('paper = "B5"', "project.paper"),
                                          ('report_date = "03/06/2026"', "project.report_date"),
                                          ("prepared_by = 3", "project.prepared_by")])
