@@ -125,7 +125,14 @@ def test_summary_json(demo_out):
     assert data["cautions"] == list(CAUTIONS)
     assert data["decision"].startswith("Operate between")
     lo, hi = data["window_m3_per_day"][0]
-    assert lo <= data["recommended_rate_m3_per_day"] <= hi
+    rec = data["recommended_rate_m3_per_day"]
+    assert lo <= rec <= hi
+    # the demo asks 600 gpm = 600 x 5.45099296896 m^3/d (NIST SP 811 gallon) and gets it, with
+    # its 5 % headroom kept inside both ends of the window
+    assert data["demand_m3_per_day"] == pytest.approx(600 * 5.45099296896, rel=1e-9)
+    assert data["demand_met"] is True
+    assert data["headroom"] == pytest.approx(0.05) and data["headroom_kept"] is True
+    assert lo <= rec * (1 - data["headroom"]) and rec * (1 + data["headroom"]) <= hi
     basis = data["compliance_basis"]
     assert set(basis) == {"nitrate", "arsenic"}
     # 40 CFR 141.23: nitrate confirmation sample, compliance on the average of the two
@@ -138,6 +145,31 @@ def test_summary_json(demo_out):
         ("annual mean", 4)
     assert basis["arsenic"]["temporal_cv"] == 0.05
     assert basis["arsenic"]["temporal_cv_source"] == "setting"
+
+
+def test_summary_json_says_when_the_demand_is_not_met(tmp_path):
+    project = tmp_path / "proj"
+    shutil.copytree(DEMO, project)
+    toml = project / "project.toml"
+    text = toml.read_text(encoding="utf-8")
+    assert re.search(r'^demand = "[^"]*"', text, re.M)
+    # 5000 gpm is far above the demo's window (about 300-770 gpm)
+    toml.write_text(re.sub(r'^demand = "[^"]*"', 'demand = "5000 gpm"', text, count=1,
+                           flags=re.M), encoding="utf-8")
+    out = tmp_path / "out"
+    r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    data = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    assert data["demand_met"] is False
+    assert data["demand_m3_per_day"] == pytest.approx(5000 * 5.45099296896, rel=1e-9)
+    assert data["recommended_rate_m3_per_day"] < data["demand_m3_per_day"]
+    # without a demand the field is null
+    toml.write_text(re.sub(r'^demand = "[^"]*"\n', "", text, count=1, flags=re.M),
+                    encoding="utf-8")
+    r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    data = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    assert data["demand_met"] is None and data["demand_m3_per_day"] is None
 
 
 def test_same_seed_same_summary(demo_out, tmp_path):
