@@ -233,6 +233,65 @@ def test_csv_tables_have_units_in_every_numeric_column_and_rounded_values(demo_o
     assert "pumping level median [ft depth]" in sweep
 
 
+class _Tables(HTMLParser):
+    """Each table of a page: its box's classes and, per column, the longest piece of text that
+    cannot wrap (a word, or a whole number cell, which does not wrap)."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.tables: list[tuple[list[str], list[int]]] = []
+        self._box: list[str] = []
+        self._cell: list[str] | None = None
+        self._nowrap = False
+        self._col = 0
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        if tag == "div" and "tablewrap" in (a.get("class") or ""):
+            self._box = a["class"].split()
+        elif tag == "table":
+            self.tables.append((self._box, []))
+        elif tag == "tr":
+            self._col = 0
+        elif tag in ("td", "th") and self.tables:
+            self._cell, self._nowrap = [], tag == "td" and a.get("class") == "num"
+
+    def handle_endtag(self, tag):
+        if tag in ("td", "th") and self._cell is not None:
+            text = "".join(self._cell)
+            pieces = [text] if self._nowrap else re.split(r"[ \t\n]+", text)
+            longest = max(len(p) for p in pieces)
+            widths = self.tables[-1][1]
+            if self._col < len(widths):
+                widths[self._col] = max(widths[self._col], longest)
+            else:
+                widths.append(longest)
+            self._col, self._cell = self._col + 1, None
+
+    def handle_data(self, data):
+        if self._cell is not None:
+            self._cell.append(data)
+
+
+def test_every_report_table_fits_its_box_on_a_laptop_screen(demo_out):
+    # Reasoned from the style sheet (no browser): a table's narrowest layout puts each column
+    # at its longest unbreakable text. At 0.6 em per character of the 0.88 rem sans-serif table
+    # font (wider than the average letter of common sans-serif faces) and 2 x 0.65 rem padding
+    # per cell, that width must fit the text column (760 px) or, for a wide table, the wide box
+    # of a 1366 px window (1312 px); then nothing scrolls sideways.
+    from test_html import REM_PX, text_column_px, wide_box_px
+
+    char, pad = 0.6 * 0.88 * REM_PX, 2 * 0.65 * REM_PX
+    parsed = _Tables()
+    parsed.feed((demo_out / "report.html").read_text(encoding="utf-8"))
+    assert len(parsed.tables) >= 10
+    assert any("wide" in box for box, _ in parsed.tables)
+    for k, (box, widths) in enumerate(parsed.tables, start=1):
+        narrowest = sum(w * char + pad for w in widths)
+        room = wide_box_px() if "wide" in box else text_column_px()
+        assert narrowest <= room, f"table {k}: {narrowest:.0f} px in {room:.0f} px"
+
+
 def test_round_significant():
     from blendq.report.csv_tables import round_significant
 
