@@ -387,7 +387,7 @@ def load_project(path: str | Path) -> Project:
 def _load(path: str | Path) -> Project:
     head = read_project_file(path)
     files = {"project": head.path.name} | {k: v[1] for k, v in head.tables.items()}
-    tables = {k: read_table(p, lbl, k) for k, (p, lbl) in head.tables.items()}
+    tables = {k: read_table(p, lbl, k, head.sheets.get(k)) for k, (p, lbl) in head.tables.items()}
     steps = _steps(tables["steps"])
     step_rates = dict(zip(steps["step"], steps["rate"], strict=True))
     project = Project(name=head.name, well=head.well, zones=head.zones, settings=head.settings,

@@ -24,7 +24,7 @@ from blendq.chemistry.limits import (
 )
 from blendq.errors import InputError
 from blendq.inputs.project import TABLE_COLUMNS, Settings, Well, Zone
-from blendq.inputs.tables import located, split_unit_basis
+from blendq.inputs.tables import located, sheet_label, split_unit_basis
 from blendq.units import UNIT_SYSTEMS, parse_quantity, unit_system
 
 try:  # Python 3.11+
@@ -78,9 +78,12 @@ class ProjectFile:
     scenarios : list of dict
         ``[[scenarios]]`` as written (each has a unique ``name``).
     tables : dict
-        Table name -> (path, label as written in ``[tables]``).
+        Table name -> (path, label as written in ``[tables]``; with the worksheet when one
+        is named, :func:`blendq.inputs.tables.sheet_label`).
     path : Path
         The project file.
+    sheets : dict
+        Table name -> worksheet named in ``[tables]`` for an .xlsx file (absent: the first).
     """
 
     name: str
@@ -91,6 +94,7 @@ class ProjectFile:
     scenarios: list[dict]
     tables: dict[str, tuple[Path, str]] = field(default_factory=dict)
     path: Path = Path(PROJECT_FILE)
+    sheets: dict[str, str] = field(default_factory=dict)
 
 
 class _Section:
@@ -587,11 +591,24 @@ def _scenarios(doc: dict, label: str) -> list[dict]:
     return [dict(e) for e in entries]
 
 
-def _table_paths(doc: dict, folder: Path, label: str) -> dict[str, tuple[Path, str]]:
+def _table_paths(doc: dict, folder: Path, label: str
+                 ) -> tuple[dict[str, tuple[Path, str]], dict[str, str]]:
+    """Each table's (path, label) and the worksheets named for .xlsx files. A table is a path
+    (``samples = "lab.csv"``) or a file and a worksheet (``samples = { file = "lab.xlsx",
+    sheet = "Results" }``)."""
     s = _Section(_table(doc, "tables", label), "tables", label)
-    found = {}
+    found, sheets = {}, {}
     for name in TABLE_COLUMNS:
-        text = s.text(name) if name == "steps" else s.text(name, None)
+        sheet = None
+        if isinstance(s.data.get(name), dict):
+            entry = _Section(s.get(name), f"tables.{name}", label)
+            text, sheet = entry.text("file"), entry.text("sheet", None)
+            entry.done()
+            if sheet is not None and not sheet:
+                raise entry.error("sheet", "is empty (name a worksheet, or leave the key out "
+                                           "to read the first)")
+        else:
+            text = s.text(name) if name == "steps" else s.text(name, None)
         if text is None:
             continue
         path = folder / text
@@ -604,9 +621,15 @@ def _table_paths(doc: dict, folder: Path, label: str) -> dict[str, tuple[Path, s
             raise s.error(name, f'file "{text}" {what} in {folder}')
         if path.suffix.lower() not in (".csv", ".txt", ".xlsx"):
             raise s.error(name, f'"{text}" is not a .csv or .xlsx file')
-        found[name] = (path, Path(text).as_posix())
+        if sheet is not None and path.suffix.lower() != ".xlsx":
+            raise s.error(name, f'"{text}" is not an .xlsx workbook; only a workbook has '
+                                "worksheets (leave out sheet)")
+        found[name] = (path, Path(text).as_posix() if sheet is None
+                       else sheet_label(Path(text).as_posix(), sheet))
+        if sheet is not None:
+            sheets[name] = sheet
     s.done()
-    return found
+    return found, sheets
 
 
 
@@ -656,7 +679,8 @@ def read_project_file(path: str | Path) -> ProjectFile:
     units = head.text("display_units", Settings().display_units)
     if units.strip().upper() not in {u.upper() for u in UNIT_SYSTEMS}:
         raise head.error("display_units", f'"{units}" is not ' +
-                         ", ".join(f'"{u}"' for u in UNIT_SYSTEMS))
+                         ", ".join(f'"{u}"' for u in UNIT_SYSTEMS[:-1]) +
+                         f' or "{UNIT_SYSTEMS[-1]}"')
     units = unit_system(units)
     report_fields = _report_fields(head)
     head.done()
@@ -664,5 +688,6 @@ def read_project_file(path: str | Path) -> ProjectFile:
     settings = replace(_settings(doc, units, label), **report_fields,
                        review_decisions=_review_decisions(doc, label))
     limits = _user_limits(doc, label, [lim for s in settings.limit_sets for lim in limit_set(s)])
-    return ProjectFile(name, well, zones, settings, limits, _scenarios(doc, label),
-                       _table_paths(doc, project_file.parent, label), project_file)
+    tables, sheets = _table_paths(doc, project_file.parent, label)
+    return ProjectFile(name, well, zones, settings, limits, _scenarios(doc, label), tables,
+                       project_file, sheets)
