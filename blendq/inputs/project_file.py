@@ -443,6 +443,8 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
                                             0.0, 0.5)),
         gross_outlier_factor=float(s.number("gross_outlier_factor", d.gross_outlier_factor,
                                             1.0, None, True)),
+        min_window_steps=s.number("min_window_steps", d.min_window_steps, 2, 1000,
+                                  integer=True),
         temporal_cv=_temporal_cv(s),
     )
     s.done()
