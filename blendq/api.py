@@ -50,7 +50,14 @@ from blendq.inputs.project import Project
 from blendq.report import assemble as _assemble
 from blendq.report import outputs as _outputs
 from blendq.report import scenario_section as _scenario_section
-from blendq.units import DISPLAY_UNITS, format_quantity, from_base, parse_quantity, to_base
+from blendq.units import (
+    DISPLAY_UNITS,
+    format_quantity,
+    from_base,
+    parse_quantity,
+    to_base,
+    unit_system,
+)
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -79,12 +86,8 @@ _WIDTH = 96
 
 # ------------------------------------------------------------------------------ helpers
 def _unit_system(units: str) -> str:
-    """``"US"`` or ``"SI"`` from any capitalisation; InputError otherwise."""
-    text = str(units).strip().upper()
-    if text not in DISPLAY_UNITS:
-        raise InputError(f'"{units}" is not a unit system (expected "US" or "SI")',
-                         field="units")
-    return text
+    """``"US"``, ``"SI"`` or ``"SI-L/s"`` from any capitalisation; InputError otherwise."""
+    return unit_system(units)
 
 
 def _unit_label(unit: str) -> str:
@@ -496,7 +499,7 @@ class Result:
 
     @property
     def rate_unit(self) -> str:
-        """Display unit of rates ("gpm" or "m3/d")."""
+        """Display unit of rates ("gpm", "m3/d" or "L/s")."""
         return _unit_label(self._du["rate"])
 
     @property

@@ -41,8 +41,9 @@ app = typer.Typer(
 
 ProjectArg = Annotated[Path, typer.Argument(metavar="PROJECT", help="Project file (project.toml) or its folder.")]
 UnitsOpt = Annotated[str | None, typer.Option(
-    "--units", "-u", metavar="US|SI",
-    help="Display units (default: the project's display_units).")]
+    "--units", "-u", metavar="US|SI|SI-L/s",
+    help="Display units: US (gpm, ft), SI (m3/d, m) or SI-L/s (L/s, m) (default: the "
+         "project's display_units).")]
 JsonOpt = Annotated[bool, typer.Option("--json", help="Print machine-readable JSON.")]
 DrawsOpt = Annotated[int | None, typer.Option("--draws", metavar="N", help="Posterior draws (default: project setting).")]
 SeedOpt = Annotated[int | None, typer.Option("--seed", metavar="N", help="Random seed (default: project setting).")]
@@ -97,10 +98,14 @@ def _units(units: str | None, project=None) -> str:
     """``--units`` when given, else the project's ``display_units`` (else US)."""
     if units is None:
         return project.settings.display_units if project is not None else "US"
-    u = units.strip().upper()
-    if u not in ("US", "SI"):
-        raise typer.BadParameter(f'"{units}" is not US or SI', param_hint="--units")
-    return u
+    from blendq.errors import InputError
+    from blendq.units import UNIT_SYSTEMS, unit_system
+
+    try:
+        return unit_system(units)
+    except InputError:
+        raise typer.BadParameter(f'"{units}" is not ' + ", ".join(UNIT_SYSTEMS[:-1]) +
+                                 f" or {UNIT_SYSTEMS[-1]}", param_hint="--units") from None
 
 
 #: words of advice that change the well (sealing, casing off, redeveloping, moving the pump)
@@ -199,6 +204,38 @@ def _step_table_lines(table, units: str) -> list[str]:
     return lines
 
 
+def data_notes(proj) -> list[str]:
+    """Lines ``check`` and ``window`` print about how the project's data and limits shape the
+    window: a user's own limit that the operating margin lowers, and a window resting on fewer
+    sampled steps than ``settings.min_window_steps``."""
+    from blendq.chemistry.analytes import get_analyte
+    from blendq.chemistry.limits import limit_set
+
+    s, lines = proj.settings, []
+    named = {(lim.analyte, lim.authority, lim.value, lim.unit, lim.basis)
+             for name in s.limit_sets for lim in limit_set(name)}
+    for lim in proj.limits:
+        if (lim.analyte, lim.authority, lim.value, lim.unit, lim.basis) in named or s.margin >= 1:
+            continue
+        unit = lim.unit + (f" as {lim.basis}" if lim.basis else "")
+        lines.append(
+            f"note: the operating margin (settings.margin = {s.margin:g}) applies to your own "
+            f"limit too: {get_analyte(lim.analyte).label()} is held below "
+            f"{lim.value * s.margin:.3g} {unit}, {s.margin:.0%} of {lim.label()}; if "
+            f"{lim.value:g} {unit} is already the level to operate below, enter the value it was "
+            f"derived from ({lim.value:g} / {s.margin:g} = {lim.value / s.margin:.3g} {unit}) "
+            "or raise the margin, which applies to every limit")
+    sampled = proj.samples["step"].nunique() if len(proj.samples) else 0
+    if 0 < sampled < s.min_window_steps:
+        lines.append(
+            f"warning: thin data: the window rests on {sampled} step"
+            f"{'' if sampled == 1 else 's'} with lab results (fewer than "
+            f"settings.min_window_steps = {s.min_window_steps}, common practice); quality "
+            "between and beyond so few rates is a model's guess, so treat the window as "
+            "provisional and add steps")
+    return lines
+
+
 @app.command("new")
 def new_cmd(folder: Annotated[Path, typer.Argument(help="Folder for the new project (must not hold project files yet).")]) -> None:
     """Write a commented template project for a new well."""
@@ -246,6 +283,7 @@ def check_cmd(
                 if not any(lim.authority == g.authority and lim.analyte == g.analyte
                            for lim in proj.limits)]
             payload["cautions"] = cautions_for(*result.findings["message"].astype(str))
+            payload["notes"] = data_notes(proj)
             typer.echo(json.dumps(payload, indent=2))
         else:
             typer.echo(f"{proj.name}: {len(proj.zones)} zones, {len(proj.steps)} steps, "
@@ -263,7 +301,7 @@ def check_cmd(
                 typer.echo("  " + memory_line)
             for line in result.decision_lines():
                 typer.echo(f"  review decision: {line}")
-            for line in limit_notes(proj.limits, sets, proj.analytes()):
+            for line in [*limit_notes(proj.limits, sets, proj.analytes()), *data_notes(proj)]:
                 typer.echo(f"  {line}")
             _echo_cautions(*result.findings["message"].astype(str))
         if qa.at_or_above(result.findings, fail_on):
@@ -476,6 +514,7 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = No
         if as_json:
             summary = result.summary()
             summary["failure_drivers"] = drivers
+            summary["notes"] = data_notes(proj)
             if steps is not None:
                 summary["leave_one_step_out"] = steps.to_dict(orient="records")
             typer.echo(to_json(summary))
@@ -494,6 +533,8 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = No
             typer.echo(f"  judged: {st.describe()}")
         for line in result.analysis.qa.decision_lines():
             typer.echo(f"  review decision: {line}")
+        for line in data_notes(proj):
+            typer.echo(f"  {line}")
         if steps is not None:
             for line in _step_table_lines(steps, u):
                 typer.echo(line)
@@ -645,6 +686,8 @@ def plan_cmd(project: ProjectArg,
         _echo_cautions()
 
     _guard(body)
+
+
 class _Stopped(BaseException):
     """Raised by the handler of SIGTERM or SIGHUP, so that every ``finally`` and the output
     writer's clean-up run before the process ends (the default action ends it at once)."""
@@ -656,6 +699,38 @@ class _Stopped(BaseException):
 
 def _stop(signum: int, frame) -> None:
     raise _Stopped(signum)
+
+
+#: reference pages installed with the package (copies of docs/<topic>.md; a test keeps them equal)
+DOCS_FOLDER = ("data", "docs")
+
+
+def doc_topics() -> dict[str, object]:
+    """Topic -> installed reference page (an importlib.resources Traversable)."""
+    from importlib import resources
+
+    folder = resources.files("blendq").joinpath(*DOCS_FOLDER)
+    return {p.name[:-3]: p for p in sorted(folder.iterdir(), key=lambda p: p.name)
+            if p.name.endswith(".md")}
+
+
+@app.command("docs")
+def docs_cmd(topic: Annotated[str | None, typer.Argument(
+        metavar="TOPIC", help="A reference page; leave out to list them.")] = None) -> None:
+    """Print a reference page installed with blendq (the project file's format, the options)."""
+
+    def body():
+        topics = doc_topics()
+        if topic is None:
+            typer.echo("Reference pages (blendq docs TOPIC): " + ", ".join(topics))
+        elif topic not in topics:
+            raise typer.BadParameter(f'"{topic}" is not a reference page (pages: '
+                                     f'{", ".join(topics)})', param_hint="TOPIC")
+        else:
+            typer.echo(topics[topic].read_text(encoding="utf-8").rstrip("\n"))
+        _echo_cautions()
+
+    _guard(body)
 
 
 def main() -> None:

@@ -92,6 +92,32 @@ DISPLAY_UNITS: dict[str, dict[str, str]] = {
         "volume": "m**3",
     },
 }
+#: SI with rates in litres per second, the rate unit many well operators read from a meter
+DISPLAY_UNITS["SI-L/s"] = {**DISPLAY_UNITS["SI"], "rate": "L/s"}
+
+#: the display unit systems, as a project's ``display_units`` and ``--units`` name them
+UNIT_SYSTEMS: tuple[str, ...] = tuple(DISPLAY_UNITS)
+
+
+def unit_system(text: str) -> str:
+    """The unit system named by ``text`` in any capitalisation: "US", "SI" or "SI-L/s".
+
+    Raises
+    ------
+    InputError
+        If the text names none of :data:`UNIT_SYSTEMS` (the message lists them).
+    """
+    key = str(text).strip().upper()
+    for name in UNIT_SYSTEMS:
+        if name.upper() == key:
+            return name
+    raise InputError(f'"{text}" is not a unit system (expected ' +
+                     ", ".join(f'"{n}"' for n in UNIT_SYSTEMS) + ")", field="units")
+
+
+def is_metric(system: str) -> bool:
+    """True for the SI systems (metric paper, thousands grouped by a narrow space)."""
+    return system != "US"
 
 # spellings seen in spreadsheets and lab files, mapped to pint expressions
 _ALIASES = {
@@ -251,7 +277,7 @@ SI_THOUSANDS_SEPARATOR = "\u202f"
 
 
 def format_quantity(value: float, kind: str, system: str = "US", digits: int = 3) -> str:
-    """Format a base-unit magnitude in the display unit of ``system`` ("US" or "SI")."""
+    """Format a base-unit magnitude in the display unit of ``system`` (:data:`UNIT_SYSTEMS`)."""
     unit = DISPLAY_UNITS[system].get(kind, BASE_UNITS[kind])
     mag = from_base(value, kind, unit)
     return f"{significant(mag, digits, system)} {display_unit_label(unit)}"
@@ -264,7 +290,7 @@ def significant(value: float, digits: int = 3, system: str = "US") -> str:
     form."""
     if math.isfinite(value) and 1e3 <= abs(value) < 1e9:
         text = f"{float(f'{value:.{digits}g}'):,.0f}"
-        return text.replace(",", SI_THOUSANDS_SEPARATOR) if system == "SI" else text
+        return text.replace(",", SI_THOUSANDS_SEPARATOR) if is_metric(system) else text
     return f"{value:.{digits}g}"
 
 

@@ -470,6 +470,78 @@ def test_project_display_units_are_the_default_and_units_overrides(tmp_path):
     assert "m³/d" in w.stdout.splitlines()[0] and "gpm" not in w.stdout.splitlines()[0]
 
 
+def test_litres_per_second_from_the_project_or_the_option(tmp_path):
+    folder = _demo_copy(tmp_path)
+    _edit(folder / "project.toml", 'display_units = "US"', 'display_units = "SI-L/s"')
+    # 300 gpm = 300 x 3.785411784 L / 60 s = 18.927 L/s (NIST SP 811 gallon)
+    ls = run("inflow", folder, "--rates", "300 gpm")
+    assert ls.exit_code == 0, ls.output
+    assert "18.9" in ls.stdout and "[L/s]" in ls.stdout
+    assert "gpm" not in ls.stdout and "m³/d" not in ls.stdout
+    dd = run("drawdown", folder)
+    assert dd.exit_code == 0, dd.output
+    assert "L/s/m" in dd.stdout and "m/(L/s)" in dd.stdout and "gpm" not in dd.stdout
+    w = run("window", folder, "--draws", DRAWS, "--no-by-step")
+    assert w.exit_code == 0, w.output
+    assert " L/s" in w.stdout.splitlines()[0] and "m³/d" not in w.stdout.splitlines()[0]
+    # the option in any capitalisation, over a US project
+    us = run("inflow", DEMO, "--rates", "300 gpm", "--units", "si-l/s")
+    assert us.exit_code == 0 and "[L/s]" in us.stdout
+    bad = run("inflow", DEMO, "--rates", "300 gpm", "--units", "L/s")
+    assert bad.exit_code == 2 and "SI-L/s" in bad.output
+    _edit(folder / "project.toml", 'display_units = "SI-L/s"', 'display_units = "lps"')
+    r = run("check", folder)
+    assert r.exit_code == 2 and "display_units" in r.output and "SI-L/s" in r.output
+
+
+def test_template_check_and_window_say_margin_and_thin_data(tmp_path):
+    folder = tmp_path / "new"
+    assert run("new", folder).exit_code == 0
+    margin = "the operating margin (settings.margin = 0.8) applies to your own limit too"
+    held = "Nitrate (as N) is held below 6.4 mg/L as N"  # 0.8 x 8 mg/L as N
+    thin = "thin data: the window rests on 2 steps with lab results"
+    c = run("check", folder)
+    assert c.exit_code == 0, c.output
+    assert margin in c.stdout and held in c.stdout and thin in c.stdout
+    assert "settings.min_window_steps = 3, common practice" in c.stdout
+    cj = json.loads(run("check", folder, "--json").stdout)
+    assert any(held in n for n in cj["notes"]) and any(thin in n for n in cj["notes"])
+    w = run("window", folder, "--draws", "40", "--no-by-step")
+    assert w.exit_code == 0, w.output
+    assert margin in w.stdout and held in w.stdout and thin in w.stdout
+    # a minimum of two sampled steps and a margin of 1 silence both
+    _edit(folder / "project.toml", "min_window_steps = 3", "min_window_steps = 2")
+    _edit(folder / "project.toml", "margin = 0.8 ", "margin = 1.0 ")
+    c = run("check", folder)
+    assert c.exit_code == 0, c.output
+    assert margin not in c.stdout and "thin data" not in c.stdout
+
+
+def test_demo_has_no_thin_data_warning():
+    c = run("check", DEMO)
+    assert c.exit_code == 0 and "thin data" not in c.stdout
+
+
+def test_docs_pages_are_installed_and_match_the_source_docs():
+    from blendq.cli import DOCS_FOLDER, doc_topics
+
+    r = run("docs")
+    assert r.exit_code == 0 and "input-files, scenarios" in r.stdout
+    assert "Caution:" in r.stdout
+    source = Path(blendq.__file__).parent.parent / "docs"
+    for topic, page in doc_topics().items():
+        # the installed copy is docs/<topic>.md as it stands (copy it again after an edit)
+        assert page.read_text(encoding="utf-8") == \
+            (source / f"{topic}.md").read_text(encoding="utf-8"), topic
+        out = run("docs", topic)
+        assert out.exit_code == 0 and out.stdout.startswith("# ")
+    # pip installs blendq/data/** with the package (pyproject package data)
+    pyproject = (source.parent / "pyproject.toml").read_text(encoding="utf-8")
+    assert 'blendq = ["data/**/*"]' in pyproject and DOCS_FOLDER[0] == "data"
+    bad = run("docs", "nope")
+    assert bad.exit_code == 2 and "input-files, scenarios" in bad.output
+
+
 def test_help_is_plain_text_in_workflow_order():
     r = run("compare", "--help")
     assert r.exit_code == 0
@@ -483,7 +555,7 @@ def test_help_is_plain_text_in_workflow_order():
     top = run("--help").stdout
     listed = [ln.split()[0] for ln in top.split("Commands:")[1].splitlines() if ln.strip()]
     assert listed == ["new", "plan", "check", "inflow", "drawdown", "fit", "window", "compare",
-                      "report", "demo"]
+                      "report", "demo", "docs"]
 
 
 def test_compare_option_errors_name_the_option():

@@ -23,7 +23,9 @@ from blendq.units import (
     from_base,
     parse_quantity,
     parse_unit,
+    significant,
     to_base,
+    unit_system,
 )
 
 # NIST SP 811: 1 US gallon = 231 in^3, 1 in = 0.0254 m (exact)
@@ -266,3 +268,29 @@ def test_temperature_difference_is_not_a_reading():
         to_base(14.6, "delta_degC", "temperature")
     # a Fahrenheit reading converts: (60 - 32) x 5/9 = 15.556 C (NIST SP 811)
     assert to_base(60.0, "degF", "temperature") == pytest.approx(15.5556, rel=1e-4)
+
+
+def test_litres_per_second_display():
+    # 1 L/s = 1e-3 m^3 x 86400 s/d = 86.4 m^3/d (exact)
+    assert format_quantity(86.4, "rate", "SI-L/s") == "1 L/s"
+    assert from_base(86.4, "rate", "L/s") == pytest.approx(1.0, rel=1e-12)
+    # 1 gpm = 3.785411784 L / 60 s = 0.0630901964 L/s (NIST SP 811: 1 US gal = 3.785411784 L)
+    assert from_base(to_base(1.0, "gpm", "rate"), "rate", "L/s") == \
+        pytest.approx(3.785411784 / 60.0, rel=1e-12)
+    # 500 gpm = 31.5450982 L/s; lengths stay in metres, thousands grouped as in SI
+    assert format_quantity(to_base(500.0, "gpm", "rate"), "rate", "SI-L/s") == "31.5 L/s"
+    assert format_quantity(30.48, "length", "SI-L/s") == "30.5 m"
+    assert format_quantity(86.4 * 1234.0, "rate", "SI-L/s") == "1\u202f230 L/s"
+    assert significant(1234.0, 3, "SI-L/s") == "1\u202f230"
+
+
+@pytest.mark.parametrize(("text", "name"), [("US", "US"), ("us", "US"), (" si ", "SI"),
+                                            ("SI-L/s", "SI-L/s"), ("si-l/s", "SI-L/s")])
+def test_unit_system_names(text, name):
+    assert unit_system(text) == name
+
+
+@pytest.mark.parametrize("text", ["L/s", "metric", "", "SI L/s"])
+def test_unknown_unit_system_names_the_choices(text):
+    with pytest.raises(InputError, match='"US", "SI", "SI-L/s"'):
+        unit_system(text)

@@ -35,7 +35,7 @@ from blendq.decide.sweep import Window, operating_window, sweep
 from blendq.errors import InputError, ModelError
 from blendq.fit.uncertainty import Prediction
 from blendq.inputs.project import Project
-from blendq.units import parse_quantity
+from blendq.units import UNIT_SYSTEMS, parse_quantity
 from blendq.well.model import WellModel
 
 #: keys a scenario entry may have
@@ -537,7 +537,7 @@ class ScenarioResult:
     tell_zones : list of int
         Unresolved zones that matter most where compliance is undecided.
     would_tell : dict units -> list of str
-        Measurements that would decide a "cannot tell" option, in "US" and "SI" units.
+        Measurements that would decide a "cannot tell" option, in each display unit system.
     """
 
     scenario: Scenario
@@ -650,7 +650,7 @@ def evaluate(analysis, scenario: Scenario) -> ScenarioResult:
     y, beyond = pumping_level_yield(rates, level, allowed)
     undecided, tell = undecided_rates(analysis, scenario, window, margin)
     res = ScenarioResult(scenario, pred, window, y, beyond, margin, alpha, undecided, tell)
-    res.would_tell = {u: would_tell(analysis, res, u) for u in ("US", "SI")}
+    res.would_tell = {u: would_tell(analysis, res, u) for u in UNIT_SYSTEMS}
     return res
 
 

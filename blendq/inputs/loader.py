@@ -391,7 +391,7 @@ def _load(path: str | Path) -> Project:
                          "reads it, the other commands need the test's steps",
                          file=head.path.name, field="tables.steps")
     files = {"project": head.path.name} | {k: v[1] for k, v in head.tables.items()}
-    tables = {k: read_table(p, lbl, k) for k, (p, lbl) in head.tables.items()}
+    tables = {k: read_table(p, lbl, k, head.sheets.get(k)) for k, (p, lbl) in head.tables.items()}
     steps = _steps(tables["steps"])
     step_rates = dict(zip(steps["step"], steps["rate"], strict=True))
     project = Project(name=head.name, well=head.well, zones=head.zones, settings=head.settings,

@@ -209,7 +209,7 @@ class Settings:
         Posterior draws (randomised maximum likelihood).
     seed : int
     display_units : str
-        "US" or "SI".
+        "US", "SI" or "SI-L/s" (SI with rates in litres per second).
     conductance_model : str
         "auto", "steady", "transient", "given" or "flowlog" (the conductances from the flow
         logs, with no prior from the zone properties).
@@ -252,6 +252,11 @@ class Settings:
         window, so that a drift of the rate by this fraction (meter error, pump wear, a falling
         water table) stays inside every hard limit. Common practice: 0.05 (a pump's rate is
         held and metered to within a few percent).
+    min_window_steps : int
+        Fewest steps with lab results an operating window should rest on; with fewer,
+        ``check`` and ``window`` warn that the window rests on thin data. Common practice: 3
+        (a curve of quality against rate needs three rates to show its shape, and a step-rate
+        test usually has three to five steps).
     gross_outlier_factor : float
         A discharge result more than this multiple of every other step's result of its analyte
         (or less than its inverse), which no blend of the other steps can explain, is an error
@@ -311,6 +316,7 @@ class Settings:
     unseen_zone_factor: float = 3.0
     recommended_headroom: float = 0.05
     gross_outlier_factor: float = 10.0
+    min_window_steps: int = 3
     review_decisions: tuple = ()
     temporal_cv: dict = field(default_factory=dict)
     prepared_by: str = ""

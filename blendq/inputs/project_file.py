@@ -24,8 +24,8 @@ from blendq.chemistry.limits import (
 )
 from blendq.errors import InputError
 from blendq.inputs.project import TABLE_COLUMNS, Settings, Well, Zone
-from blendq.inputs.tables import located, split_unit_basis
-from blendq.units import parse_quantity
+from blendq.inputs.tables import located, sheet_label, split_unit_basis
+from blendq.units import UNIT_SYSTEMS, parse_quantity, unit_system
 
 try:  # Python 3.11+
     import tomllib
@@ -81,9 +81,12 @@ class ProjectFile:
     scenarios : list of dict
         ``[[scenarios]]`` as written (each has a unique ``name``).
     tables : dict
-        Table name -> (path, label as written in ``[tables]``).
+        Table name -> (path, label as written in ``[tables]``; with the worksheet when one
+        is named, :func:`blendq.inputs.tables.sheet_label`).
     path : Path
         The project file.
+    sheets : dict
+        Table name -> worksheet named in ``[tables]`` for an .xlsx file (absent: the first).
     """
 
     name: str
@@ -94,6 +97,7 @@ class ProjectFile:
     scenarios: list[dict]
     tables: dict[str, tuple[Path, str]] = field(default_factory=dict)
     path: Path = Path(PROJECT_FILE)
+    sheets: dict[str, str] = field(default_factory=dict)
 
 
 class _Section:
@@ -488,6 +492,8 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
                                             0.0, 0.5)),
         gross_outlier_factor=float(s.number("gross_outlier_factor", d.gross_outlier_factor,
                                             1.0, None, True)),
+        min_window_steps=s.number("min_window_steps", d.min_window_steps, 2, 1000,
+                                  integer=True),
         temporal_cv=_temporal_cv(s),
         fit_entrance_losses=s.flag("fit_entrance_losses", d.fit_entrance_losses),
     )
@@ -668,15 +674,28 @@ def _scenarios(doc: dict, label: str) -> list[dict]:
     return [dict(e) for e in entries]
 
 
-def _table_paths(doc: dict, folder: Path, label: str) -> dict[str, tuple[Path, str]]:
+def _table_paths(doc: dict, folder: Path, label: str
+                 ) -> tuple[dict[str, tuple[Path, str]], dict[str, str]]:
+    """Each table's (path, label) and the worksheets named for .xlsx files. A table is a path
+    (``samples = "lab.csv"``) or a file and a worksheet (``samples = { file = "lab.xlsx",
+    sheet = "Results" }``)."""
     # a project planning its test ([plan]) may have no tables yet
     planning = "plan" in doc
     if planning and "tables" not in doc:
-        return {}
+        return {}, {}
     s = _Section(_table(doc, "tables", label), "tables", label)
-    found = {}
+    found, sheets = {}, {}
     for name in TABLE_COLUMNS:
-        text = s.text(name) if name == "steps" and not planning else s.text(name, None)
+        sheet = None
+        if isinstance(s.data.get(name), dict):
+            entry = _Section(s.get(name), f"tables.{name}", label)
+            text, sheet = entry.text("file"), entry.text("sheet", None)
+            entry.done()
+            if sheet is not None and not sheet:
+                raise entry.error("sheet", "is empty (name a worksheet, or leave the key out "
+                                           "to read the first)")
+        else:
+            text = s.text(name) if name == "steps" and not planning else s.text(name, None)
         if text is None:
             continue
         path = folder / text
@@ -689,9 +708,15 @@ def _table_paths(doc: dict, folder: Path, label: str) -> dict[str, tuple[Path, s
             raise s.error(name, f'file "{text}" {what} in {folder}')
         if path.suffix.lower() not in (".csv", ".txt", ".xlsx"):
             raise s.error(name, f'"{text}" is not a .csv or .xlsx file')
-        found[name] = (path, Path(text).as_posix())
+        if sheet is not None and path.suffix.lower() != ".xlsx":
+            raise s.error(name, f'"{text}" is not an .xlsx workbook; only a workbook has '
+                                "worksheets (leave out sheet)")
+        found[name] = (path, Path(text).as_posix() if sheet is None
+                       else sheet_label(Path(text).as_posix(), sheet))
+        if sheet is not None:
+            sheets[name] = sheet
     s.done()
-    return found
+    return found, sheets
 
 
 
@@ -739,13 +764,17 @@ def read_project_file(path: str | Path) -> ProjectFile:
     head = _Section(_table(doc, "project", label), "project", label)
     name = head.text("name")
     units = head.text("display_units", Settings().display_units)
-    if units not in ("US", "SI"):
-        raise head.error("display_units", f'"{units}" is not "US" or "SI"')
+    if units.strip().upper() not in {u.upper() for u in UNIT_SYSTEMS}:
+        raise head.error("display_units", f'"{units}" is not ' +
+                         ", ".join(f'"{u}"' for u in UNIT_SYSTEMS[:-1]) +
+                         f' or "{UNIT_SYSTEMS[-1]}"')
+    units = unit_system(units)
     report_fields = _report_fields(head)
     head.done()
     well, zones = _well(doc, label), _zones(doc, label)
     settings = replace(_settings(doc, units, label), **report_fields, **_test(doc, label),
                        review_decisions=_review_decisions(doc, label))
     limits = _user_limits(doc, label, [lim for s in settings.limit_sets for lim in limit_set(s)])
-    return ProjectFile(name, well, zones, settings, limits, _scenarios(doc, label),
-                       _table_paths(doc, project_file.parent, label), project_file)
+    tables, sheets = _table_paths(doc, project_file.parent, label)
+    return ProjectFile(name, well, zones, settings, limits, _scenarios(doc, label), tables,
+                       project_file, sheets)

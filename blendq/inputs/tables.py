@@ -1,8 +1,10 @@
 """Read one input table (CSV or .xlsx) into checked cells, with units taken from the header.
 
-A header cell names a column and, in brackets, its unit: ``rate [gpm]``, ``depth [m]``. Rows are
-numbered from the header: the header is row 0 and the first line below it is row 1 (blank lines
-count, so row numbers match the line below the header in any editor). Blank lines are skipped,
+A header cell names a column and, in brackets, its unit: ``rate [gpm]``, ``depth [m]``. Rows of
+a CSV file are numbered from the header: the header is row 0 and the first line below it is row
+1 (blank lines count, so row numbers match the line below the header in any editor). Rows of an
+.xlsx worksheet keep the spreadsheet's own numbers (header on row 1, first data row 2), as the
+spreadsheet program shows them; a table may name its worksheet, else the first one is read. Blank lines are skipped,
 a UTF-8 byte-order mark is ignored, and the delimiter (comma, semicolon or tab) is taken from
 the header line; in a semicolon file a decimal comma (``12,5``) is read as a decimal point.
 Columns the table does not know are ignored. Files are opened for reading only.
@@ -319,13 +321,12 @@ def _csv_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], str]
     return rows, delimiter
 
 
-def _xlsx_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], set]:
-    """(sheet row number, cells as text) of the first worksheet's non-blank rows, and the
-    (sheet row, column index) of formula cells the workbook holds no computed value for.
+def sheet_label(file: str, sheet: str) -> str:
+    """How messages name a worksheet of a workbook: ``lab.xlsx (sheet Results)``."""
+    return f"{file} (sheet {sheet})"
 
-    A workbook written by a program that does not calculate (a script, some converters) keeps
-    formulas without their results; such a cell would otherwise read as empty.
-    """
+
+def _open_book(path: Path, label: str, data_only: bool = True):
     try:
         import openpyxl
     except ModuleNotFoundError:
@@ -333,12 +334,33 @@ def _xlsx_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], set
                          "the sheet as CSV", file=label) from None
     _check_file_size(path, label)
     try:
-        book = openpyxl.load_workbook(path, read_only=True, data_only=True)
+        return openpyxl.load_workbook(path, read_only=True, data_only=data_only)
     except Exception as err:  # openpyxl raises several types for a damaged file
         raise InputError(f"cannot be read as an .xlsx workbook: {err}", file=label) from None
+
+
+def _sheet_names(names: list[str]) -> str:
+    return ", ".join(f'"{n}"' for n in names)
+
+
+def _xlsx_rows(path: Path, label: str, sheet: str | None = None
+               ) -> tuple[list[tuple[int, list[str]]], set, list[str]]:
+    """(sheet row number, cells as text) of the non-blank rows of worksheet ``sheet`` (the first
+    when None), the (sheet row, column index) of formula cells the workbook holds no computed
+    value for, and the names of the workbook's worksheets.
+
+    A workbook written by a program that does not calculate (a script, some converters) keeps
+    formulas without their results; such a cell would otherwise read as empty.
+    """
+    book = _open_book(path, label)
     try:
+        names = list(book.sheetnames)
+        if sheet is not None and sheet not in names:
+            raise InputError(f'has no worksheet "{sheet}" (its worksheets: '
+                             f"{_sheet_names(names)})", file=label)
         rows, empty = [], set()
-        for number, values in enumerate(book.worksheets[0].iter_rows(values_only=True), 1):
+        ws = book[sheet] if sheet is not None else book.worksheets[0]
+        for number, values in enumerate(ws.iter_rows(values_only=True), 1):
             if number - len(rows) > MAX_ROWS + 1000:  # blank rows count too
                 raise InputError(f"has more than {MAX_ROWS:,} rows (the limit)", file=label)
             cells = ["" if v is None else v.isoformat(sep=" ") if isinstance(v, datetime)
@@ -348,17 +370,19 @@ def _xlsx_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], set
                 rows.append((number, cells))
     finally:
         book.close()
-    return rows, _uncached_formulas(path, empty) if empty else set()
+    title = sheet if sheet is not None else names[0]
+    return rows, _uncached_formulas(path, empty, title) if empty else set(), names
 
 
-def _uncached_formulas(path: Path, empty: set) -> set:
-    """The cells of ``empty`` (sheet row, column index) that hold a formula."""
+def _uncached_formulas(path: Path, empty: set, sheet: str) -> set:
+    """The cells of ``empty`` (sheet row, column index) of worksheet ``sheet`` that hold a
+    formula."""
     import openpyxl
 
     book = openpyxl.load_workbook(path, read_only=True, data_only=False)
     try:
         found = set()
-        for number, values in enumerate(book.worksheets[0].iter_rows(values_only=True), 1):
+        for number, values in enumerate(book[sheet].iter_rows(values_only=True), 1):
             found.update((number, i) for i, v in enumerate(values)
                          if (number, i) in empty and isinstance(v, str) and v.startswith("="))
         return found
@@ -366,17 +390,62 @@ def _uncached_formulas(path: Path, empty: set) -> set:
         book.close()
 
 
-def read_table(path: Path, label: str, name: str) -> Table:
+#: rows of a worksheet searched for a header when suggesting the sheet that holds a table
+_HEADER_SEARCH_ROWS = 20
+
+
+def _column_name(cell: object) -> str:
+    m = _HEADER.match(str(cell).strip())
+    return re.sub(r"[\s\-]+", "_", (m.group(1) if m else str(cell)).strip().lower())
+
+
+def _sheet_hint(path: Path, label: str, names: list[str], read: str, name: str) -> str:
+    """Words for a message about a worksheet that is not table ``name``: the workbook's
+    worksheets, the ones whose first non-blank row holds the table's required columns, and how
+    to name one in ``[tables]``."""
+    required = {c for c, (_, needed, _) in SPECS[name].items() if needed}
+    fits = []
+    book = _open_book(path, label)
+    try:
+        for title in names:
+            if title == read:
+                continue
+            for number, values in enumerate(book[title].iter_rows(values_only=True), 1):
+                if number > _HEADER_SEARCH_ROWS:
+                    break
+                cells = {_column_name(v) for v in values if v is not None and str(v).strip()}
+                if cells:
+                    if required <= cells:
+                        fits.append(title)
+                    break
+    finally:
+        book.close()
+    file = label.rsplit(" (sheet ", 1)[0]
+    text = f'; worksheet "{read}" was read; the workbook\'s worksheets: {_sheet_names(names)}'
+    if fits:
+        text += (f" ({_sheet_names(fits)} {'has' if len(fits) == 1 else 'have'} the columns of "
+                 f"this table); name the worksheet in [tables], e.g. {name} = {{ file = "
+                 f'"{file}", sheet = "{fits[0]}" }}')
+    else:
+        text += (f"; name the worksheet that holds the table in [tables], e.g. {name} = "
+                 f'{{ file = "{file}", sheet = "..." }}')
+    return text
+
+
+def read_table(path: Path, label: str, name: str, sheet: str | None = None) -> Table:
     """Read table ``name`` ("steps", "samples", ...) from ``path`` and check its header.
 
     Parameters
     ----------
     path : Path
-        CSV (comma, semicolon or tab) or .xlsx (first worksheet) file.
+        CSV (comma, semicolon or tab) or .xlsx file.
     label : str
-        File name used in messages.
+        File name used in messages (:func:`sheet_label` when a worksheet is named).
     name : str
         Key of :data:`SPECS`.
+    sheet : str, optional
+        Worksheet of an .xlsx file (default: the first); rows of a worksheet are numbered as
+        the spreadsheet shows them.
 
     Raises
     ------
@@ -386,31 +455,39 @@ def read_table(path: Path, label: str, name: str) -> Table:
     """
     spec = SPECS[name]
     formulas: set = set()
-    if path.suffix.lower() == ".xlsx":
-        (lines, formulas), delimiter = _xlsx_rows(path, label), ","
+    xlsx = path.suffix.lower() == ".xlsx"
+    if xlsx:
+        (lines, formulas, sheets), delimiter = _xlsx_rows(path, label, sheet), ","
     else:
         lines, delimiter = _csv_rows(path, label)
+
+    def hint() -> str:  # which worksheet holds the table, when one was not
+        if not xlsx or len(sheets) < 2:
+            return ""
+        return _sheet_hint(path, label, sheets, sheet if sheet is not None else sheets[0], name)
+
     if not lines:
-        raise InputError("is empty; the first line must name the columns", file=label)
+        raise InputError("is empty; the first line must name the columns" + hint(), file=label)
     if len(lines) > MAX_ROWS + 1:
         raise InputError(f"has {len(lines) - 1:,} data rows; the limit is {MAX_ROWS:,}",
                          file=label)
     header_line, header = lines[0]
+    top = header_line if xlsx else 0  # the header's row number in messages
     columns: dict[str, tuple[int, str | None]] = {}
     for index, cell in enumerate(header):
         if len(cell) > MAX_HEADER_CELL:
             raise InputError(f'header cell {index + 1} ("{cell[:30]}...") has {len(cell):,} '
-                             f"characters; the limit is {MAX_HEADER_CELL}", file=label, row=0)
+                             f"characters; the limit is {MAX_HEADER_CELL}", file=label, row=top)
         m = _HEADER.match(cell.strip())
         column, unit = (m.group(1), m.group(2).strip()) if m else (cell.strip(), None)
         column = re.sub(r"[\s\-]+", "_", column.strip().lower())
         if column not in spec:
             continue  # unknown or blank header cells are ignored
         if column in columns:
-            raise InputError(f'column "{cell.strip()}" appears twice', file=label, row=0,
+            raise InputError(f'column "{cell.strip()}" appears twice', file=label, row=top,
                              field=column)
         if column in spec:
-            _check_header_unit(label, column, spec[column][0], unit)
+            _check_header_unit(label, column, spec[column][0], unit, top)
             columns[column] = (index, unit or None)
     for column, (_, required, _) in spec.items():
         if required and column not in columns:
@@ -418,7 +495,8 @@ def read_table(path: Path, label: str, name: str) -> Table:
             example = f"{column} [{_EXAMPLE[kind]}]" if kind in UNIT_KINDS else column
             found = ", ".join(c.strip() for c in header if c.strip())
             raise InputError(f'required column is missing (expected a header such as '
-                             f'"{example}"; found: {found})', file=label, row=0, field=column)
+                             f'"{example}"; found: {found}){hint()}', file=label, row=top,
+                             field=column)
     rows = []
     names = {index: column for column, (index, _) in columns.items()}
     columns_seen = _ColumnsSeen([cells for _, cells in lines[1:]],
@@ -426,7 +504,7 @@ def read_table(path: Path, label: str, name: str) -> Table:
     widths = [len(cells) for _, cells in lines[1:]]
     usual = max(set(widths), key=widths.count) if widths else len(header)
     for line, cells in lines[1:]:
-        row = line - header_line
+        row = line if xlsx else line - header_line
         if max(map(len, cells)) > MAX_CELL:
             index = next(i for i, c in enumerate(cells) if len(c) > MAX_CELL)
             raise InputError(f'cell "{cells[index][:30]}..." has {len(cells[index]):,} '
@@ -571,9 +649,10 @@ _EXAMPLE = {"rate": "gpm", "length": "ft", "time": "min", "temperature": "degC",
             "specific_conductance": "uS/cm", "concentration": "mg/L"}
 
 
-def _check_header_unit(label: str, column: str, kind: str, unit: str | None) -> None:
+def _check_header_unit(label: str, column: str, kind: str, unit: str | None,
+                       row: int = 0) -> None:
     def fail(message: str) -> InputError:
-        return InputError(message, file=label, row=0, field=column)
+        return InputError(message, file=label, row=row, field=column)
 
     if unit and len(unit) > MAX_UNIT:
         raise fail(f'unit "{unit[:20]}..." has {len(unit):,} characters; the limit is {MAX_UNIT}')
@@ -583,12 +662,12 @@ def _check_header_unit(label: str, column: str, kind: str, unit: str | None) -> 
         try:
             to_base(1.0, unit, kind)
         except InputError as err:
-            raise located(err, label, 0, column, unit) from None
+            raise located(err, label, row, column, unit) from None
     elif kind == "result" and unit:  # a default unit for the value column of samples
         try:
             parse_unit(split_unit_basis(unit)[1])
         except InputError as err:
-            raise located(err, label, 0, column, unit) from None
+            raise located(err, label, row, column, unit) from None
     elif kind == "number" and unit not in (None, "", "-"):
         raise fail(f'"[{unit}]" is not allowed; {column} has no unit (write "{column}")')
     elif kind == "turbidity" and unit not in (None, "", "FNU", "NTU"):

@@ -14,12 +14,12 @@ from blendq.errors import InputError
 PROJECT_TOML = """\
 # blendq project file. Every physical quantity is a string with its unit ("185 ft", "350 gpm",
 # "1500 ft2/d"); plain numbers are only for dimensionless values (skin, storativity, margin).
-# Depths are measured downward from the datum. The full format is in docs/input-files.md.
-# All values below are invented examples: replace them with your own.
+# Depths are measured downward from the datum. `blendq docs input-files` prints the full
+# format. All values below are invented examples: replace them with your own.
 
 [project]
 name = "Example well, step test"      # title used in the report
-display_units = "US"                  # "US" (ft, gpm) or "SI" (m, m3/d) for output
+display_units = "US"                  # "US" (ft, gpm), "SI" (m, m3/d) or "SI-L/s" (m, L/s)
 
 [well]
 name = "Example well 1"
@@ -60,7 +60,10 @@ conductivity = "25 ft/d"
 storativity = 2e-4
 skin = 1.5
 
-# Tables (paths relative to this file). Only steps is required.
+# Tables (paths relative to this file). Only steps is required. An .xlsx workbook may name
+# its worksheet: samples = { file = "lab.xlsx", sheet = "Results" }.
+# The example steps.csv has only two steps: `blendq check` and `blendq window` warn that a
+# window resting on fewer sampled steps than settings.min_window_steps is thin data.
 [tables]
 steps = "steps.csv"
 samples = "samples.csv"
@@ -76,7 +79,8 @@ field = "field.csv"
 
 [settings]
 limit_sets = ["US-EPA"]               # any of "US-EPA", "WHO", "EU"
-margin = 0.8                          # stay under 80 % of each limit (a utility's policy)
+margin = 0.8                          # stay under 80 % of each limit, your own limits below
+                                      # included (a utility's policy)
 exceedance_probability = 0.05         # largest acceptable chance of exceeding margin x limit
 interval = 0.9                        # central probability of reported intervals
 horizon = "365 d"                     # operating time for transient conductances
@@ -86,10 +90,14 @@ conductance_model = "auto"            # "auto", "steady", "transient", "given" o
 temporal_cv = 0.10                    # sample-to-sample variation of the water at a fixed
                                       # rate (common practice); estimate it from the well's
                                       # monitoring history, per analyte in [settings.temporal_cv]
+min_window_steps = 3                  # fewest steps with lab results before check and window
+                                      # warn of thin data (common practice)
 
 [settings.qa]                         # options of the lab and field review (free table)
 
-# Your own limits, in addition to the named sets (optional):
+# Your own limits, in addition to the named sets (optional). The margin applies to them too:
+# this 8 mg/L target is held below 0.8 x 8 = 6.4 mg/L as N (check and window say so). If 8 mg/L
+# is already the level to operate below, give the value it was derived from (8 / 0.8 = 10).
 [[limits]]
 analyte = "nitrate"
 value = "8 mg/L"
@@ -104,7 +112,8 @@ compliance = "single sample"          # or "single sample with confirmation", "a
 # authority = "US-EPA"
 # compliance = "single sample"
 
-# Options to compare (optional; see docs/scenarios.md); each needs a unique name:
+# Options to compare (optional; `blendq docs scenarios` describes them); each needs a unique
+# name:
 # [[scenarios]]
 # name = "Seal the lower gravel"
 # seal = ["Lower gravel"]

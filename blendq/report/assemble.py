@@ -698,6 +698,10 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
         "reason_empty": w.reason_empty,
         "cascading_zones": [{"zone": z, "from_rate_m3_per_day": r, "inside_window": inside}
                             for z, r, inside in w.cascading],
+        "demand_m3_per_day": w.demand if w.demand else None,
+        "demand_met": w.demand_met,
+        "headroom": w.headroom,
+        "headroom_kept": w.headroom_kept,
         "compliance_basis": {k: st.as_dict()
                              for k, st in compliance_statistics(a.project, a.limits).items()},
         "zones": a.zones.to_dict(orient="records"),
@@ -710,7 +714,9 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
         "seed": a.draws.seed,
         "cautions": list(CAUTIONS),
         "units_note": "concentrations in mg/L on each analyte's canonical basis (nitrate as N); "
-                      "rates in m3/d; depths in m below the datum",
+                      "rates in m3/d; depths in m below the datum; headroom as a share of the "
+                      "recommended rate kept from every end of the window; demand_met null "
+                      "when no demand is given",
     }
 
 

@@ -28,7 +28,7 @@ from blendq.report.document import (
     Table,
 )
 
-__all__ = ["render_html", "STYLE_SHEET"]
+__all__ = ["render_html", "STYLE_SHEET", "WIDE_TABLE_CHARACTERS", "table_characters"]
 
 #: Inline style sheet of the page (blendq's own design).
 STYLE_SHEET = """
@@ -67,12 +67,18 @@ li { margin-bottom: 0.2rem; }
 .callout-caution { border-left: 6px solid var(--ink); background: #fff;
   border-top: 1px solid var(--faint); border-bottom: 1px solid var(--faint); }
 .callout-note { border: 1px dashed var(--rule); }
-.tablewrap { overflow-x: auto; margin: 0 0 1.2rem 0; }
+.tablewrap { max-width: 100%; overflow-x: auto; margin: 0 0 1.2rem 0; }
+.tablewrap.wide { max-width: none; width: min(100vw - 2.5rem, 82rem);
+  margin-left: calc((100% - min(100vw - 2.5rem, 82rem)) / 2); }
+.tablewrap.wide table { margin: 0 auto; }
 table { border-collapse: collapse; font-size: 0.88rem; min-width: 50%;
   font-variant-numeric: tabular-nums; }
 caption { caption-side: top; text-align: left; font-size: 0.9rem; padding-bottom: 0.35rem; }
 caption .label, figcaption .label { font-weight: 700; }
-th, td { padding: 0.25rem 0.65rem; vertical-align: top; text-align: left; }
+th, td { padding: 0.25rem 0.65rem; vertical-align: top; text-align: left;
+  overflow-wrap: break-word; }
+th { hyphens: auto; }
+td.num { white-space: nowrap; }
 thead th { border-top: 2px solid var(--ink); border-bottom: 1px solid var(--ink);
   font-weight: 700; }
 tbody tr:nth-child(even) td { background: var(--wash); }
@@ -87,7 +93,8 @@ figcaption { font-size: 0.9rem; margin-top: 0.4rem; }
 dl.keyvalues { display: grid; grid-template-columns: minmax(10rem, max-content) 1fr;
   gap: 0.15rem 1.2rem; margin: 0 0 1rem 0; font-size: 0.92rem; }
 dl.keyvalues dt { font-weight: 700; }
-dl.keyvalues dd { margin: 0; font-variant-numeric: tabular-nums; }
+dl.keyvalues dd { margin: 0; min-width: 0; overflow-wrap: anywhere;
+  font-variant-numeric: tabular-nums; }
 p.kvcaption { font-weight: 700; margin-bottom: 0.3rem; }
 footer.colophon { margin-top: 3rem; padding-top: 0.6rem; padding-bottom: 2rem;
   border-top: 1px solid var(--rule); font-size: 0.8rem; color: var(--muted); }
@@ -100,9 +107,17 @@ footer.colophon { margin-top: 3rem; padding-top: 0.6rem; padding-bottom: 2rem;
   h2 { break-after: avoid; }
   figure, .callout, tr, dl.keyvalues { break-inside: avoid; }
   thead { display: table-header-group; }
-  .tablewrap { overflow: visible; }
+  .tablewrap, .tablewrap.wide { overflow: visible; width: auto; margin-left: 0; }
 }
 """.strip()
+
+#: Characters of a table's widest row (each column at its longest cell, plus three for the
+#: padding) beyond which the table leaves the 50 rem text column for a wider box: at most
+#: 82 rem and never closer than 1.25 rem to either side of the window, so that on a laptop
+#: screen (about 1366 px) a table with long text has room and fewer wrapped lines, and on a
+#: narrow window it scrolls inside its box. About 100 characters of the 0.88 rem table font fit
+#: the text column; blendq's setting.
+WIDE_TABLE_CHARACTERS = 100
 
 _CSP = "default-src 'none'; img-src data:; style-src 'unsafe-inline'"
 
@@ -128,6 +143,13 @@ def _callout(block: Callout) -> str:
     )
 
 
+def table_characters(header: list[str], rows: list[list[str]]) -> int:
+    """Characters of a table's widest row: each column at its longest cell or label, plus three
+    for the cell padding (compared with :data:`WIDE_TABLE_CHARACTERS`)."""
+    return sum(max(len(text) for text in [label, *(row[i] for row in rows)]) + 3
+               for i, label in enumerate(header))
+
+
 def _table(block: Table, number: int) -> str:
     numeric = block.numeric_columns()
     classes = [' class="num"' if is_number else "" for is_number in numeric]
@@ -135,16 +157,18 @@ def _table(block: Table, number: int) -> str:
         f'<th scope="col"{cls}>{_e(label)}</th>'
         for label, cls in zip(block.header_text(), classes, strict=True)
     )
-    rows = []
-    if not block.cell_text():
+    rows, cells_text = [], block.cell_text()
+    if not cells_text:
         span = max(1, len(classes))
         rows.append(f'<tr><td colspan="{span}" class="empty">(no rows)</td></tr>')
-    for row in block.cell_text():
+    for row in cells_text:
         cells = "".join(f"<td{cls}>{_e(cell)}</td>" for cell, cls in zip(row, classes, strict=True))
         rows.append(f"<tr>{cells}</tr>")
     note = f'<p class="tablenote">{_e(block.note)}</p>' if block.note else ""
+    wide = table_characters(block.header_text(), cells_text) > WIDE_TABLE_CHARACTERS
+    wrap = "tablewrap wide" if wide else "tablewrap"
     return (
-        f'<div class="tablewrap" id="table-{number}"><table>'
+        f'<div class="{wrap}" id="table-{number}"><table>'
         f'<caption><span class="label">Table {number}.</span> {_e(block.caption)}</caption>'
         f"<thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>{note}</div>"
     )

@@ -535,10 +535,13 @@ _SUMMARY_UNITS = {
            "capacity": "gpm/ft", "T": "ft**2/d", "time": "min"},
     "SI": {"rate": "m**3/d", "length": "m", "B": "d/m**2", "C": "min**2/m**5",
            "capacity": "m**2/d", "T": "m**2/d", "time": "min"},
+    "SI-L/s": {"rate": "L/s", "length": "m", "B": "m*s/L", "C": "min**2/m**5",
+               "capacity": "L/s/m", "T": "m**2/d", "time": "min"},
 }
 _LABELS = {"gpm": "gpm", "ft": "ft", "ft/gpm": "ft/gpm", "s**2/ft**5": "s²/ft⁵",
            "gpm/ft": "gpm/ft", "ft**2/d": "ft²/d", "min": "min", "m**3/d": "m³/d", "m": "m",
-           "d/m**2": "m/(m³/d)", "min**2/m**5": "min²/m⁵", "m**2/d": "m²/d"}
+           "d/m**2": "m/(m³/d)", "min**2/m**5": "min²/m⁵", "m**2/d": "m²/d", "L/s": "L/s",
+           "m*s/L": "m/(L/s)", "L/s/m": "L/s/m"}
 
 
 def _fmt(value, unit_from: str, unit_to: str, digits: int = 3, system: str = "US") -> str:
@@ -564,7 +567,7 @@ def _percent(value: float) -> str:
 
 def _summary_lines(res: StepDrawdownResult, system: str) -> list[str]:
     if system not in _SUMMARY_UNITS:
-        raise InputError(f'display units "{system}" are not known (expected "US" or "SI")')
+        raise InputError(f'display units "{system}" are not known (expected "US", "SI" or "SI-L/s")')
     u = _SUMMARY_UNITS[system]
 
     def fmt(value, unit_from, unit_to, digits=3):

@@ -253,7 +253,73 @@ def test_xlsx_table_reads_like_csv(tmp_path, us):
     (target / "project.toml").write_text(toml.replace('"steps.csv"', '"steps.xlsx"'),
                                          encoding="utf-8")
     project = load_project(target)
-    pd.testing.assert_frame_equal(project.steps, us.steps)
+    # the same steps; rows keep the spreadsheet's numbers (header on row 1: one more than CSV)
+    pd.testing.assert_frame_equal(project.steps.drop(columns="source_row"),
+                                  us.steps.drop(columns="source_row"))
+    np.testing.assert_array_equal(project.steps["source_row"], us.steps["source_row"] + 1)
+
+
+def _lab_workbook(target: Path, bad_row: int | None = None) -> None:
+    """lab/samples.csv copied into lab/lab.xlsx behind a cover sheet (worksheet "Results")."""
+    import csv
+
+    openpyxl = pytest.importorskip("openpyxl")
+    with open(target / "lab" / "samples.csv", encoding="utf-8", newline="") as f:
+        lines = list(csv.reader(f))
+    book = openpyxl.Workbook()
+    cover = book.active
+    cover.title = "Cover"
+    cover.append(["Laboratory report for the Quillmarsh test well (invented)"])
+    results = book.create_sheet("Results")
+    for i, cells in enumerate(lines, start=1):
+        if i == bad_row:
+            cells = [*cells[:3], "six", *cells[4:]]
+        results.append(cells)
+    book.save(target / "lab" / "lab.xlsx")
+
+
+def test_xlsx_worksheet_named_in_tables(tmp_path, us):
+    target = tmp_path / "p"
+    shutil.copytree(US, target)
+    _lab_workbook(target)
+    toml = (target / "project.toml").read_text(encoding="utf-8")
+    named = toml.replace('samples = "lab/samples.csv"',
+                         'samples = { file = "lab/lab.xlsx", sheet = "Results" }')
+    (target / "project.toml").write_text(named, encoding="utf-8")
+    project = load_project(target)
+    # the same results; rows numbered as the spreadsheet shows them (one more than in CSV)
+    pd.testing.assert_frame_equal(project.samples.drop(columns="source_row"),
+                                  us.samples.drop(columns="source_row"))
+    np.testing.assert_array_equal(project.samples["source_row"], us.samples["source_row"] + 1)
+    assert project.files["samples"] == "lab/lab.xlsx (sheet Results)"
+    # a bad cell on sheet row 5 is reported on row 5 of that worksheet
+    _lab_workbook(target, bad_row=5)
+    with pytest.raises(InputError) as info:
+        load_project(target)
+    assert str(info.value).startswith("lab/lab.xlsx (sheet Results) row 5, column value:")
+    # without the worksheet the cover sheet is read, and the message says which sheet to name
+    (target / "project.toml").write_text(
+        toml.replace('samples = "lab/samples.csv"', 'samples = "lab/lab.xlsx"'), encoding="utf-8")
+    with pytest.raises(InputError, match='samples = { file = "lab/lab.xlsx", sheet = "Results" }'):
+        load_project(target)
+
+
+@pytest.mark.parametrize(("entry", "field", "fragment"), [
+    ('{ file = "lab/samples.csv", sheet = "Results" }', "tables.samples", "not an .xlsx"),
+    ('{ file = "lab/lab.xlsx", tab = "Results" }', "tables.samples.tab", "not a key"),
+    ('{ sheet = "Results" }', "tables.samples.file", "missing"),
+    ('{ file = "lab/lab.xlsx", sheet = "" }', "tables.samples.sheet", "is empty"),
+])
+def test_bad_worksheet_entries_name_the_key(tmp_path, entry, field, fragment):
+    target = tmp_path / "p"
+    shutil.copytree(US, target)
+    _lab_workbook(target)
+    toml = (target / "project.toml").read_text(encoding="utf-8")
+    (target / "project.toml").write_text(
+        toml.replace('samples = "lab/samples.csv"', f"samples = {entry}"), encoding="utf-8")
+    with pytest.raises(InputError, match=fragment) as info:
+        load_project(target)
+    assert info.value.field == field
 
 
 # ----------------------------------------------------------------------------- malformed corpus

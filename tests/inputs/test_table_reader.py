@@ -142,7 +142,7 @@ def test_xlsx_rows_and_numbers(tmp_path):
     book.save(tmp_path / "levels.xlsx")
     table = read_table(tmp_path / "levels.xlsx", "levels.xlsx", "levels")
     (row, values), = _rows(table)
-    assert row == 2  # the empty sheet row counts
+    assert row == 3  # the spreadsheet's own row number (header on row 1, a blank row 2)
     assert values == {"time": pd.Timestamp("2025-04-08 07:50"), "level": 29.5}
 
 
@@ -160,3 +160,77 @@ def test_specs_cover_project_tables():
         derived = {"end", "reported_value", "reported_unit", "reported_basis", "nondetect",
                    "source_row"}
         assert set(TABLE_COLUMNS[name]) - derived <= set(columns) | derived
+
+
+# ----------------------------------------------------------------------------- .xlsx worksheets
+def _book(tmp_path: Path, sheets: dict[str, list[list]], name: str = "lab.xlsx") -> Path:
+    """A workbook written with openpyxl, one worksheet per entry, in order."""
+    openpyxl = pytest.importorskip("openpyxl")
+    book = openpyxl.Workbook()
+    book.remove(book.active)
+    for title, rows in sheets.items():
+        sheet = book.create_sheet(title)
+        for row in rows:
+            sheet.append(row)
+    book.save(tmp_path / name)
+    return tmp_path / name
+
+
+LAB_HEADER = ["sample_id", "step", "analyte", "value", "unit"]
+LAB_ROWS = [["a", "S1", "arsenic", 6.1, "ug/L"], ["b", "S2", "arsenic", "six", "ug/L"]]
+COVER = [["Laboratory report (invented)"], [], ["Client", "Town of Quillmarsh (invented)"]]
+
+
+def test_xlsx_bad_cell_is_named_by_its_spreadsheet_row(tmp_path):
+    # header on sheet row 1, rows 2 and 3: the bad value is on row 3 as the spreadsheet shows it
+    path = _book(tmp_path, {"Results": [LAB_HEADER, *LAB_ROWS]})
+    table = read_table(path, "lab.xlsx", "samples")
+    with pytest.raises(InputError) as info:
+        table.number_in(3, "value")
+    assert (info.value.row, info.value.field) == (3, "value")
+    assert str(info.value).startswith("lab.xlsx row 3, column value:")
+    # a header error names the header's sheet row (row 1 here, row 2 below a title row)
+    path = _book(tmp_path, {"S": [["step", "rate [furlongs]"], ["S1", 3]]}, "steps.xlsx")
+    with pytest.raises(InputError) as info:
+        read_table(path, "steps.xlsx", "steps")
+    assert (info.value.row, info.value.field) == (1, "rate")
+    path = _book(tmp_path, {"S": [[], ["step", "rate [gpm]"], ["S1", "x"]]}, "steps2.xlsx")
+    table = read_table(path, "steps2.xlsx", "steps")
+    with pytest.raises(InputError) as info:
+        list(get("rate") for _, get in table.records())
+    assert info.value.row == 3
+
+
+def test_xlsx_named_worksheet(tmp_path):
+    path = _book(tmp_path, {"Cover": COVER, "Results": [LAB_HEADER, *LAB_ROWS[:1]]})
+    table = read_table(path, "lab.xlsx (sheet Results)", "samples", sheet="Results")
+    (row, values), = [(r, {c: get(c) for c in ("sample_id", "value")})
+                      for r, get in table.records()]
+    assert (row, values) == (2, {"sample_id": "a", "value": "6.1"})
+
+
+def test_xlsx_cover_sheet_first_lists_the_worksheets(tmp_path):
+    path = _book(tmp_path, {"Cover": COVER, "Notes": [["free text"]],
+                            "Results": [LAB_HEADER, *LAB_ROWS]})
+    with pytest.raises(InputError) as info:
+        read_table(path, "lab.xlsx", "samples")
+    text = str(info.value)
+    assert 'worksheet "Cover" was read' in text
+    assert '"Cover", "Notes", "Results"' in text
+    assert '"Results" has the columns of this table' in text
+    assert 'samples = { file = "lab.xlsx", sheet = "Results" }' in text
+    assert "\n" not in text
+    # a named worksheet that is not the table gets the same help
+    with pytest.raises(InputError, match='worksheet "Notes" was read.*"Results" has the'):
+        read_table(path, "lab.xlsx (sheet Notes)", "samples", sheet="Notes")
+    # an empty first worksheet too
+    path = _book(tmp_path, {"Blank": [], "Results": [LAB_HEADER, *LAB_ROWS]}, "lab2.xlsx")
+    with pytest.raises(InputError, match='is empty.*"Results" has the columns'):
+        read_table(path, "lab2.xlsx", "samples")
+
+
+def test_xlsx_unknown_worksheet_names_the_worksheets(tmp_path):
+    path = _book(tmp_path, {"Cover": COVER, "Results": [LAB_HEADER, *LAB_ROWS]})
+    with pytest.raises(InputError, match='has no worksheet "results" \\(its worksheets: '
+                                         '"Cover", "Results"\\)'):
+        read_table(path, "lab.xlsx", "samples", sheet="results")

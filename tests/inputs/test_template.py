@@ -6,7 +6,7 @@ import pytest
 
 from blendq.errors import InputError
 from blendq.inputs.loader import load_project
-from blendq.inputs.template import TABLES, write_template
+from blendq.inputs.template import PROJECT_TOML, TABLES, write_template
 
 FT = 0.3048  # m, exact (NIST SP 811 appendix B)
 GPM = 231 * 0.0254**3 * 1440  # m^3/d per gpm; US gallon = 231 in^3 exactly (NIST SP 811)
@@ -49,3 +49,30 @@ def test_folder_that_is_a_file(tmp_path):
     target.write_text("", encoding="utf-8")
     with pytest.raises(InputError, match="is a file"):
         write_template(target)
+
+
+def test_template_says_the_margin_applies_to_the_users_limit(tmp_path):
+    write_template(tmp_path)
+    project = load_project(tmp_path)
+    target = project.limits[-1]
+    assert (target.value, target.unit, project.settings.margin) == (8.0, "mg/L", 0.8)
+    # the figures the template's comment states are the ones the settings give
+    held = target.value * project.settings.margin
+    assert held == pytest.approx(6.4, rel=1e-12)
+    assert "0.8 x 8 = 6.4 mg/L as N" in PROJECT_TOML and "8 / 0.8 = 10" in PROJECT_TOML
+
+
+def test_template_has_thin_data_and_names_its_setting(tmp_path):
+    write_template(tmp_path)
+    project = load_project(tmp_path)
+    assert project.settings.min_window_steps == 3
+    assert project.samples["step"].nunique() == 2 < project.settings.min_window_steps
+    assert "min_window_steps" in PROJECT_TOML and "common practice" in PROJECT_TOML
+
+
+def test_template_points_to_no_file_that_pip_does_not_install():
+    # the package installs blendq/ only (pyproject: packages blendq*, package data data/**);
+    # a pointer to docs/ would name a file a user does not have
+    assert "docs/" not in PROJECT_TOML and ".md" not in PROJECT_TOML
+    assert "`blendq docs input-files`" in PROJECT_TOML
+    assert "`blendq docs scenarios`" in PROJECT_TOML

@@ -125,7 +125,14 @@ def test_summary_json(demo_out):
     assert data["cautions"] == list(CAUTIONS)
     assert data["decision"].startswith("Operate between")
     lo, hi = data["window_m3_per_day"][0]
-    assert lo <= data["recommended_rate_m3_per_day"] <= hi
+    rec = data["recommended_rate_m3_per_day"]
+    assert lo <= rec <= hi
+    # the demo asks 600 gpm = 600 x 5.45099296896 m^3/d (NIST SP 811 gallon) and gets it, with
+    # its 5 % headroom kept inside both ends of the window
+    assert data["demand_m3_per_day"] == pytest.approx(600 * 5.45099296896, rel=1e-9)
+    assert data["demand_met"] is True
+    assert data["headroom"] == pytest.approx(0.05) and data["headroom_kept"] is True
+    assert lo <= rec * (1 - data["headroom"]) and rec * (1 + data["headroom"]) <= hi
     basis = data["compliance_basis"]
     assert set(basis) == {"nitrate", "arsenic"}
     # 40 CFR 141.23: nitrate confirmation sample, compliance on the average of the two
@@ -138,6 +145,31 @@ def test_summary_json(demo_out):
         ("annual mean", 4)
     assert basis["arsenic"]["temporal_cv"] == 0.05
     assert basis["arsenic"]["temporal_cv_source"] == "setting"
+
+
+def test_summary_json_says_when_the_demand_is_not_met(tmp_path):
+    project = tmp_path / "proj"
+    shutil.copytree(DEMO, project)
+    toml = project / "project.toml"
+    text = toml.read_text(encoding="utf-8")
+    assert re.search(r'^demand = "[^"]*"', text, re.M)
+    # 5000 gpm is far above the demo's window (about 300-770 gpm)
+    toml.write_text(re.sub(r'^demand = "[^"]*"', 'demand = "5000 gpm"', text, count=1,
+                           flags=re.M), encoding="utf-8")
+    out = tmp_path / "out"
+    r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    data = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    assert data["demand_met"] is False
+    assert data["demand_m3_per_day"] == pytest.approx(5000 * 5.45099296896, rel=1e-9)
+    assert data["recommended_rate_m3_per_day"] < data["demand_m3_per_day"]
+    # without a demand the field is null
+    toml.write_text(re.sub(r'^demand = "[^"]*"\n', "", text, count=1, flags=re.M),
+                    encoding="utf-8")
+    r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    data = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    assert data["demand_met"] is None and data["demand_m3_per_day"] is None
 
 
 def test_same_seed_same_summary(demo_out, tmp_path):
@@ -199,6 +231,65 @@ def test_csv_tables_have_units_in_every_numeric_column_and_rounded_values(demo_o
     sweep = (demo_out / "tables" / "sweep.csv").read_text(encoding="utf-8").splitlines()[0]
     assert sweep.startswith("rate [gpm],") and "Arsenic median [ug/L]" in sweep
     assert "pumping level median [ft depth]" in sweep
+
+
+class _Tables(HTMLParser):
+    """Each table of a page: its box's classes and, per column, the longest piece of text that
+    cannot wrap (a word, or a whole number cell, which does not wrap)."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.tables: list[tuple[list[str], list[int]]] = []
+        self._box: list[str] = []
+        self._cell: list[str] | None = None
+        self._nowrap = False
+        self._col = 0
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        if tag == "div" and "tablewrap" in (a.get("class") or ""):
+            self._box = a["class"].split()
+        elif tag == "table":
+            self.tables.append((self._box, []))
+        elif tag == "tr":
+            self._col = 0
+        elif tag in ("td", "th") and self.tables:
+            self._cell, self._nowrap = [], tag == "td" and a.get("class") == "num"
+
+    def handle_endtag(self, tag):
+        if tag in ("td", "th") and self._cell is not None:
+            text = "".join(self._cell)
+            pieces = [text] if self._nowrap else re.split(r"[ \t\n]+", text)
+            longest = max(len(p) for p in pieces)
+            widths = self.tables[-1][1]
+            if self._col < len(widths):
+                widths[self._col] = max(widths[self._col], longest)
+            else:
+                widths.append(longest)
+            self._col, self._cell = self._col + 1, None
+
+    def handle_data(self, data):
+        if self._cell is not None:
+            self._cell.append(data)
+
+
+def test_every_report_table_fits_its_box_on_a_laptop_screen(demo_out):
+    # Reasoned from the style sheet (no browser): a table's narrowest layout puts each column
+    # at its longest unbreakable text. At 0.6 em per character of the 0.88 rem sans-serif table
+    # font (wider than the average letter of common sans-serif faces) and 2 x 0.65 rem padding
+    # per cell, that width must fit the text column (760 px) or, for a wide table, the wide box
+    # of a 1366 px window (1312 px); then nothing scrolls sideways.
+    from test_html import REM_PX, text_column_px, wide_box_px
+
+    char, pad = 0.6 * 0.88 * REM_PX, 2 * 0.65 * REM_PX
+    parsed = _Tables()
+    parsed.feed((demo_out / "report.html").read_text(encoding="utf-8"))
+    assert len(parsed.tables) >= 10
+    assert any("wide" in box for box, _ in parsed.tables)
+    for k, (box, widths) in enumerate(parsed.tables, start=1):
+        narrowest = sum(w * char + pad for w in widths)
+        room = wide_box_px() if "wide" in box else text_column_px()
+        assert narrowest <= room, f"table {k}: {narrowest:.0f} px in {room:.0f} px"
 
 
 def test_round_significant():
@@ -265,6 +356,28 @@ def test_si_project_settings_prepared_reviewed_date_and_a4(tmp_path):
     r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED)
     assert r.exit_code == 0, r.output
     assert _media_box((out / "report.pdf").read_bytes()) == pytest.approx((612.0, 792.0))
+
+
+def test_litres_per_second_report(tmp_path):
+    project = tmp_path / "proj"
+    shutil.copytree(DEMO, project)
+    toml = project / "project.toml"
+    toml.write_text(toml.read_text(encoding="utf-8").replace(
+        'display_units = "US"', 'display_units = "SI-L/s"', 1), encoding="utf-8")
+    out = tmp_path / "out"
+    r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    sweep = list(csv.DictReader(io.StringIO(
+        (out / "tables" / "sweep.csv").read_text(encoding="utf-8"))))
+    assert "rate [L/s]" in sweep[0] and "pumping level median [m depth]" in sweep[0]
+    summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    # the window's ends in L/s are the base-unit ends / 86.4 (1 L/s = 86.4 m^3/d, exact)
+    lo, hi = summary["window_m3_per_day"][0]
+    assert f"Operate between {lo / 86.4:.3g} L/s and {hi / 86.4:.3g} L/s" in summary["decision"]
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert "L/s" in html and "m³/d" not in html and " gpm<" not in html
+    assert _media_box((out / "report.pdf").read_bytes()) == pytest.approx((595.276, 841.89),
+                                                                          abs=1e-3)
 
 
 @pytest.mark.parametrize("line, field", [('paper = "B5"', "project.paper"),

@@ -19,7 +19,7 @@ from blendq.report.document import (
     Section,
     Table,
 )
-from blendq.report.html import render_html
+from blendq.report.html import STYLE_SHEET, render_html
 
 HOSTILE = "<script>alert(1)</script>"
 PNG_1PX = base64.b64decode(
@@ -209,3 +209,104 @@ def test_same_document_gives_same_page() -> None:
 def test_empty_table_says_so() -> None:
     doc = Document("t", "", "", [Section("S", [Table(pd.DataFrame({"a": []}), "none")], key="s")])
     assert "(no rows)" in render_html(doc)
+
+
+# ------------------------------------------------------------------ tables on a laptop screen
+#: a common laptop window [px] and the browsers' default root font size [px] (CSS Fonts 3:
+#: "medium"; 1 rem = 16 px unless the reader changes it)
+LAPTOP_PX, REM_PX, SCROLLBAR_PX = 1366, 16.0, 17
+
+
+def _rule(selector: str) -> str:
+    """The declarations of the first rule of the style sheet with exactly this selector."""
+    import re
+
+    match = re.search(r"(?:^|\})\s*" + re.escape(selector) + r"\s*\{([^}]*)\}", STYLE_SHEET)
+    assert match, selector
+    return match.group(1)
+
+
+def text_column_px() -> float:
+    """Width of the text column's content [px]: main's max-width less its side padding."""
+    import re
+
+    decl = _rule("main, header.titleblock, nav.contents, footer.colophon")
+    width = float(re.search(r"max-width:\s*([\d.]+)rem", decl).group(1))
+    pad = float(re.search(r"padding:\s*0\s+([\d.]+)rem", decl).group(1))
+    return (width - 2 * pad) * REM_PX
+
+
+def wide_box_px(window: float = LAPTOP_PX) -> float:
+    """Width of a wide table's box [px] in a window of ``window`` px, from the style sheet."""
+    import re
+
+    decl = _rule(".tablewrap.wide")
+    gap, cap = map(float, re.search(r"width:\s*min\(100vw - ([\d.]+)rem, ([\d.]+)rem\)",
+                                    decl).groups())
+    return min(window - gap * REM_PX, cap * REM_PX)
+
+
+class _TableParents(HTMLParser):
+    """The class attribute of the element around each <table>."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.open: list[dict[str, str | None]] = []
+        self.parents: list[str | None] = []
+
+    def handle_starttag(self, tag, attrs):
+        if tag == "table":
+            self.parents.append(self.open[-1].get("class") if self.open else None)
+        if tag not in {"meta", "img", "br", "link", "input"}:
+            self.open.append(dict(attrs))
+
+    def handle_endtag(self, tag):
+        self.open.pop()
+
+
+def test_every_table_scrolls_inside_its_own_box(page: str) -> None:
+    parsed = _TableParents()
+    parsed.feed(page)
+    assert parsed.parents
+    assert all(p is not None and "tablewrap" in p.split() for p in parsed.parents)
+    box = _rule(".tablewrap")
+    assert "overflow-x: auto" in box and "max-width: 100%" in box
+    # long headers and text cells wrap (no nowrap on headers); numbers stay on one line
+    cells = _rule("th, td")
+    assert "overflow-wrap: break-word" in cells and "nowrap" not in cells
+    assert "nowrap" not in _rule("th") and "white-space: nowrap" in _rule("td.num")
+    # on paper the boxes neither scroll nor leave the text column
+    assert ".tablewrap, .tablewrap.wide { overflow: visible; width: auto; margin-left: 0; }" \
+        in STYLE_SHEET
+
+
+def test_wide_box_stays_inside_a_laptop_window() -> None:
+    # the box is centred on the text column: its left edge is at (body - box) / 2 in a body
+    # that is the window less a scroll bar
+    for window in (LAPTOP_PX, 1024, 800, 390):
+        body = window - SCROLLBAR_PX
+        box = wide_box_px(window)
+        text = min(text_column_px(), body - 2 * 1.25 * REM_PX)
+        left = (body - text) / 2 + (text - box) / 2
+        assert left >= 0 and left + box <= body, window
+    # on a laptop the wide box is much wider than the text column: 82 rem = 1312 px
+    assert wide_box_px() == pytest.approx(1312.0)
+    assert text_column_px() == pytest.approx(760.0)
+
+
+def test_long_tables_get_the_wide_box_short_ones_the_text_column() -> None:
+    from blendq.report.html import WIDE_TABLE_CHARACTERS, table_characters
+
+    long_text = "lower end set by nitrate (P > 0.9 x limit above 0.05)"
+    wide = pd.DataFrame({f"column {k} [gpm]": [long_text] for k in range(6)})
+    narrow = pd.DataFrame({"zone": ["Upper sand"], "top [ft]": [120.0]})
+    # 6 columns of 53 characters plus 3 each: 336 > 100; 2 columns: 10 + 3 + 8 + 3 = 24
+    assert table_characters(list(wide.columns), [[long_text] * 6]) == 336
+    assert table_characters(["zone", "top [ft]"], [["Upper sand", "120"]]) == 24
+    assert WIDE_TABLE_CHARACTERS == 100
+    doc = Document("t", "", "", [Section("S", [Table(wide, "wide"), Table(narrow, "narrow")],
+                                         key="s")])
+    parsed = _parse(render_html(doc))
+    boxes = [attrs["class"] for tag, attrs in parsed.tags
+             if tag == "div" and "tablewrap" in (attrs.get("class") or "")]
+    assert boxes == ["tablewrap wide", "tablewrap"]

@@ -61,7 +61,7 @@ def _figure(nrows: int, ncols: int, size: tuple[float, float], **kw):
 
 def _system(units: str) -> dict[str, str]:
     if units not in DISPLAY_UNITS:
-        raise InputError(f'unit system "{units}" is not known (expected "US" or "SI")',
+        raise InputError(f'unit system "{units}" is not known (expected "US", "SI" or "SI-L/s")',
                          field="units")
     return DISPLAY_UNITS[units]
 

@@ -42,13 +42,13 @@ JACOB_STYLE = dict(color=BLUE, linestyle="-", linewidth=1.8, zorder=4)
 RORABAUGH_STYLE = dict(color=VERMILLION, linestyle=(0, (5, 2.5)), linewidth=1.6, zorder=4)
 LINEAR_STYLE = dict(color=BLACK, linestyle=(0, (1, 2)), linewidth=1.2, zorder=3)
 BAND_STYLE = dict(color="#c8c8c8", alpha=0.7, linewidth=0, zorder=1)
-SPECIFIC_DRAWDOWN_UNIT = {"US": "ft/gpm", "SI": "d/m**2"}
-SPECIFIC_DRAWDOWN_LABEL = {"US": "ft/gpm", "SI": "m/(m³/d)"}
+SPECIFIC_DRAWDOWN_UNIT = {"US": "ft/gpm", "SI": "d/m**2", "SI-L/s": "m*s/L"}
+SPECIFIC_DRAWDOWN_LABEL = {"US": "ft/gpm", "SI": "m/(m³/d)", "SI-L/s": "m/(L/s)"}
 
 
 def _system(units: str) -> dict[str, str]:
     if units not in DISPLAY_UNITS:
-        raise InputError(f'unit system "{units}" is not known (expected "US" or "SI")',
+        raise InputError(f'unit system "{units}" is not known (expected "US", "SI" or "SI-L/s")',
                          field="units")
     return DISPLAY_UNITS[units]
 
