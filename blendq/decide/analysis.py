@@ -15,7 +15,7 @@ from blendq.chemistry.limits import Limit
 from blendq.decide import sweep
 from blendq.decide.levelcheck import LevelCheck, check_levels
 from blendq.errors import ModelError
-from blendq.fit import diagnostics, estimation, uncertainty, unresolved
+from blendq.fit import diagnostics, estimation, history, uncertainty, unresolved
 from blendq.inputs.project import Project
 from blendq.well.model import (
     NO_PRIOR_SOURCE,
@@ -47,6 +47,8 @@ class Analysis:
     step_drawdown: LevelCheck | None = None
     notes: list[str] = field(default_factory=list)
     result_use: pd.DataFrame | None = None
+    #: analyte -> time model fitted to the monitoring history (blendq.fit.history)
+    history: dict = field(default_factory=dict)
 
     @property
     def decisions(self) -> pd.DataFrame:
@@ -115,6 +117,13 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     # reproduces the samples); the table's intervals then come from those draws
     d = unresolved.redraw_unresolved(fit, d, diagnostics.zone_table(fit, d, s.interval))
     zones = diagnostics.zone_table(fit, d, s.interval)
+    time_fits = history.history_time_fits(project, fit, d)
+    if time_fits:  # the history's scatter replaces the temporal_cv setting
+        s = replace(s, temporal_cv={**s.temporal_cv, **{k: f.temporal_cv
+                                                         for k, f in time_fits.items()}},
+                    temporal_cv_history=tuple(time_fits))
+        project = replace(project, settings=s)
+        fit.problem.project = replace(fit.problem.project, settings=s)
     pred = sweep.sweep(fit, d)
     levels = check_levels(fit, d, pred, s.exceedance_probability, s.horizon)
     window = sweep.window_for(fit, pred, level_deep=levels.level_deep)
@@ -147,9 +156,13 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
         notes.append(horizon_note)
     notes.append(f"Pumping level in the window from the {levels.source}: {levels.reason}.")
     notes += [n + "." for n in sweep.applicable_ratio_rules(s.limit_sets, pred.analytes)[1]]
+    for k, f in time_fits.items():
+        notes.append(f"Temporal variability of {k} estimated from the monitoring history "
+                     f"({f.n} results; CV {f.temporal_cv:.0%} about a {f.model} time model): it "
+                     "replaces the temporal_cv setting.")
     return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
                     residuals, hyd, pred, window, limits, table, skipped,
-                    levels, notes, per_result)
+                    levels, notes, per_result, time_fits)
 
 
 def demand_sentence(a: Analysis, units: str = "US") -> str:

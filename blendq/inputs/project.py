@@ -319,6 +319,8 @@ class Settings:
     quarterly_trigger_fraction: float = 0.5
     history_condition_limit: float = 30.0
     pump_nominal_rate: float | None = None
+    #: analytes whose ``temporal_cv`` was estimated from the monitoring history
+    temporal_cv_history: tuple = ()
     prepared_by: str = ""
     reviewed_by: str = ""
     report_date: str = ""
@@ -326,7 +328,9 @@ class Settings:
 
     def temporal_cv_for(self, analyte: str) -> tuple[float, str]:
         """Temporal coefficient of variation of ``analyte`` [-] and where it comes from
-        ("setting" or "default setting, common practice")."""
+        ("monitoring history", "setting" or "default setting, common practice")."""
+        if analyte in self.temporal_cv_history and analyte in self.temporal_cv:
+            return float(self.temporal_cv[analyte]), "monitoring history"
         if analyte in self.temporal_cv:
             return float(self.temporal_cv[analyte]), "setting"
         if "default" in self.temporal_cv:
