@@ -129,7 +129,12 @@ class TimeFit:
     sigma_temporal : float
         sd of the water's concentration from sample to sample about the model [mg/L].
     temporal_cv : float
-        sigma_temporal over the mean of the history results [-].
+        The water's variability at a fixed rate over the mean of the history results [-]:
+        the scatter about the model and the fitted season (a sample may fall anywhere in it),
+        what the step test's window takes as ``temporal_cv``.
+    residual_cv : float
+        sigma_temporal over the mean of the history results [-]: the spread about the time
+        model, season included in the model (the forecast's).
     aicc : dict
         AICc of each model tried.
     conditions : dict
@@ -156,6 +161,7 @@ class TimeFit:
     cov: np.ndarray
     sigma_temporal: float
     temporal_cv: float
+    residual_cv: float
     aicc: dict
     conditions: dict
     t0: pd.Timestamp
@@ -367,11 +373,18 @@ def history_time_fits(project, fit, draws=None) -> dict[str, TimeFit]:
                              f"zone it belongs to (condition number "
                              f"{res['conditions'][term]:.3g} > {s.history_condition_limit:g})")
         used = usable.assign(tau=tau)
+        # the fitted season's variance at the history's rates and dates: mean square of the
+        # seasonal part (a sinusoid of amplitude A has variance A^2 / 2)
+        x_all = res["layout"].rows(shares, tau)
+        x_trend = res["layout"].rows(shares, tau, terms=("trend",))
+        season_var = float(np.mean(((x_all - x_trend) @ res["coef"]) ** 2))
+        mean = float(np.mean(values))
         for i, z in enumerate(project.zone_names):
             used[f"share_{z}"] = shares[:, i]
         out[analyte] = TimeFit(
             analyte, res["model"], res["layout"], res["coef"], res["cov"],
-            res["sigma_temporal"], res["sigma_temporal"] / float(np.mean(values)), res["aicc"],
+            res["sigma_temporal"], float(np.sqrt(res["sigma_temporal"] ** 2 + season_var)) / mean,
+            res["sigma_temporal"] / mean, res["aicc"],
             res["conditions"], t0, len(usable), res["residuals"], res["leverage"], res["sigma"],
             used, notes)
     return out
