@@ -211,7 +211,7 @@ def predictive_check(a: Analysis) -> pd.DataFrame:
                                      "suggests"])
     out = pd.concat(frames, ignore_index=True)
     out["suggests"] = ""
-    for analyte, idx in out.groupby("analyte").groups.items():
+    for _, idx in out.groupby("analyte").groups.items():
         sub = out.loc[idx]
         sign = np.sign(sub["z"].to_numpy()) * sub["outside"].to_numpy()
         for k, i in enumerate(idx):
