@@ -236,14 +236,15 @@ def test_readme_window():
     r = run("window", DEMO, "--draws", DRAWS)
     assert r.exit_code == 0, r.output
     lines = r.stdout.splitlines()
-    # the demo's temporal CV (5 %, from its monitoring record) leaves a window; at the default
-    # 10 % it has none (tests/decide/test_analysis.py)
+    # the demo's temporal CV (estimated from its monitoring history) leaves a window; at the
+    # default 10 % it has none (tests/decide/test_analysis.py)
     assert lines[0].startswith("Operate between")
     assert "recommended rate" in lines[0] and "gpm" in lines[0]
     assert any("lower end set by" in ln for ln in lines)
     # each limit's judged statistic, its rule's source and the temporal CV
     assert any(ln.startswith("  judged: nitrate: single sample with confirmation (40 CFR 141.23; "
-                             "secondary), temporal CV 5% (setting), lab error ") for ln in lines)
+                             "secondary), temporal CV ") and "(monitoring history), lab error "
+               in ln for ln in lines)
     assert any(ln.startswith("  judged: arsenic: annual mean of 4 quarterly samples "
                              "(40 CFR 141.23(i); secondary)") for ln in lines)
     assert lines[-1].startswith("Caution: blendq is a planning aid")
