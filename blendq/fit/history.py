@@ -362,13 +362,17 @@ def history_time_fits(project, fit, draws=None) -> dict[str, TimeFit]:
         res = fit_time_model(tau, shares, values, lab, anchor, anchor_sd, model,
                              s.history_condition_limit)
         notes = []
-        skipped = len(rows) - len(usable)
-        if skipped:
-            notes.append(f"{skipped} history result(s) of {analyte} not used (non-detect, or no "
-                         "pumping rate known at the sample's time)")
+        nondetect = int(rows["nondetect"].astype(bool).sum())
+        no_rate = len(rows) - len(usable) - nondetect
+        if nondetect:
+            notes.append(f"{nondetect} non-detect history result(s) of {analyte} not used")
+        if no_rate:
+            notes.append(f"{no_rate} history result(s) of {analyte} not used: no pumping rate "
+                         "known at the sample's time, or the pump was off")
         for term, res_kind in res["layout"].terms:
+            word = "season" if term == "seasonal" else term
             if res_kind == "blend":
-                notes.append(f"the {term} of {analyte} is fitted as a {term} of the blend: the "
+                notes.append(f"the {word} of {analyte} is fitted as a {word} of the blend: the "
                              "history's rates move the zone shares too little to tell which "
                              f"zone it belongs to (condition number "
                              f"{res['conditions'][term]:.3g} > {s.history_condition_limit:g})")

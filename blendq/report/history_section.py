@@ -48,11 +48,11 @@ def model_table(a: Analysis, fc: Forecast) -> pd.DataFrame:
         rows.append({
             "Analyte": get_analyte(analyte).label(), "Results used": tf.n,
             "Time model (AICc)": tf.model,
-            f"Trend [{unit} per year] ± sd": shown,
-            f"Seasonal amplitude [{unit}]": season,
+            "Trend per year ± sd": shown if shown == "-" else f"{shown} {unit}",
+            "Seasonal amplitude": season if season == "-" else f"{season} {unit}",
             "Temporal CV (replaces the setting)": f"{tf.temporal_cv:.1%}",
             "Mann-Kendall S, p": f"{t['S']:.0f}, {t['p']:.2g} ({t['trend']})",
-            f"Sen's slope [{unit} per year]": _conc(analyte, t["sen_slope_per_year"]),
+            "Sen's slope per year": f"{_conc(analyte, t['sen_slope_per_year'])} {unit}",
         })
     return pd.DataFrame(rows)
 
@@ -126,7 +126,7 @@ def history_section(a: Analysis, units: str = "US", fc: Forecast | None = None) 
         *([Table(outside_table(a, fc, units), "History results outside their band.")]
           if n_out else []),
         chart_figure("History results against date with their leave-one-out bands.",
-                     history_chart(fc.check, a.limits, s.margin, s.interval)),
+                     history_chart(fc.check, a.limits, s.margin, s.interval), svg=False),
         *([BulletList(fc.triggers)] if fc.triggers else []),
         Callout("The forecast assumes each time model holds over the horizon (a trend goes on "
                 "as fitted); it is a planning aid, not a compliance determination. New "
