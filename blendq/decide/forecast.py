@@ -317,13 +317,17 @@ def forecast(a: Analysis, units: str = "US") -> Forecast | None:
 
 
 def _focus_rates(a: Analysis, best: float | None) -> list[float]:
+    """The rates the sentences speak of: the recommended rate (else the demand), the rate
+    that stays compliant longest, and the ends of the step test's window."""
     rates = []
     if a.window.recommended is not None:
         rates.append(float(a.window.recommended))
     elif a.project.well.demand:
         rates.append(float(a.project.well.demand))
-    if best is not None and all(abs(best - r) > 1e-9 for r in rates):
-        rates.append(best)
+    ends = [float(x) for lo, hi, _, _ in a.window.intervals for x in (lo, hi)]
+    for q in ([best] if best is not None else []) + ends:
+        if all(abs(q - r) > 1e-9 for r in rates):
+            rates.append(q)
     return rates
 
 
@@ -356,13 +360,20 @@ def forecast_sentences(a: Analysis, fc: Forecast, units: str = "US") -> list[str
     s = a.project.settings
     last_year = int(fc.years[-1])
     out = []
+    below: dict[str, list[str]] = {}
+    for c in fc.crossings.itertuples(index=False):
+        if not np.isfinite(c.low):
+            below.setdefault(c.analyte, []).append(format_quantity(c.rate, "rate", units))
+    for analyte, rates in below.items():
+        out.append(f"The annual mean {get_analyte(analyte).label()} stays below "
+                   f"{s.margin:.0%} of the limit through {last_year} in more than "
+                   f"{1 - (1 - s.interval) / 2:.0%} of the draws at "
+                   + (", ".join(rates[:-1]) + " and " + rates[-1] if len(rates) > 1
+                      else rates[0]) + ".")
     for c in fc.crossings.itertuples(index=False):
         label = get_analyte(c.analyte).label()
         rate = format_quantity(c.rate, "rate", units)
         if not np.isfinite(c.low):
-            out.append(f"At {rate} the annual mean {label} stays below {s.margin:.0%} of the "
-                       f"limit through {last_year} in more than {1 - (1 - s.interval) / 2:.0%} "
-                       "of the draws.")
             continue
         band = f"({s.interval:.0%}: {_year(c.low, last_year)} to {_year(c.high, last_year)})"
         if c.beyond:
