@@ -442,8 +442,8 @@ def test_help_is_plain_text_in_workflow_order():
         assert "<bool>" not in run(command, "--help").stdout
     top = run("--help").stdout
     listed = [ln.split()[0] for ln in top.split("Commands:")[1].splitlines() if ln.strip()]
-    assert listed == ["new", "check", "inflow", "drawdown", "fit", "window", "compare",
-                      "report", "demo"]
+    assert listed == ["new", "check", "inflow", "drawdown", "fit", "window", "history",
+                      "compare", "report", "demo"]
 
 
 def test_compare_option_errors_name_the_option():
