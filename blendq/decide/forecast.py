@@ -280,6 +280,12 @@ def forecast(a: Analysis, units: str = "US") -> Forecast | None:
         m_star = float(mean_threshold(threshold, log_sd, s.sample_exceedance_probability))
         if st.limit.compliance.statistic == ANNUAL_MEAN:
             judged = mean
+        elif all(res == "blend" for _, res in tf.layout.terms):
+            # time terms of the blend alone: the same at every rate, so the year's highest
+            # month is the zone constants' blend plus the highest month of the blend's terms
+            _, blend = zone_paths(tf, coef, taus.reshape(-1))
+            peak = blend.reshape(n, len(years), MONTHS).max(axis=2)
+            judged = np.einsum("drz,dz->dr", shares, anchor)[:, :, None] + peak[:, None, :]
         elif tf.resolution("seasonal") is None:  # no season: the year's end or start
             judged = np.maximum(*(discharge(tf, coef, shares, taus[:, m], anchor)
                                   for m in (0, MONTHS - 1)))

@@ -121,3 +121,22 @@ def test_forecast_is_seeded(demo):
     again = forecast(a)
     assert np.array_equal(again.ok, fc.ok)
     assert again.sentences == fc.sentences
+
+
+def test_blend_terms_peak_shortcut_equals_the_monthly_maximum(demo):
+    # with time terms of the blend alone, the forecast takes the year's highest month without
+    # evaluating every rate at every month; the full evaluation gives the same numbers
+    from blendq.decide import forecast as f
+
+    a, _ = demo
+    tf = a.history["nitrate"]
+    n = 50
+    coef = tf.draws(n, np.random.default_rng(0))
+    taus = f._year_times(tf.t0, np.arange(2026, 2036))
+    shares, anchor = a.prediction.shares[:n], f._anchor(a, "nitrate", n)
+    full = f.discharge(tf, coef, shares, taus.reshape(-1), anchor)
+    full = full.reshape(n, shares.shape[1], 10, f.MONTHS).max(axis=3)
+    _, blend = f.zone_paths(tf, coef, taus.reshape(-1))
+    fast = (np.einsum("drz,dz->dr", shares, anchor)[:, :, None]
+            + blend.reshape(n, 10, f.MONTHS).max(axis=2)[:, None, :])
+    assert np.allclose(full, fast, rtol=1e-12, atol=1e-12, equal_nan=True)
