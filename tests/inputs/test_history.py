@@ -8,6 +8,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from blendq.errors import InputError
 from blendq.inputs.history import rate_at
@@ -116,3 +118,28 @@ def test_history_settings(tmp_path):
     bad = _project(tmp_path / "b", HISTORY, settings='time_model = "wiggly"\n')
     with pytest.raises(InputError, match="time_model"):
         load_project(bad)
+
+
+@settings(max_examples=50, deadline=None)
+@given(st.lists(st.tuples(st.integers(1, 500), st.sampled_from([0.0, 50.0, 100.0, 300.0])),
+                min_size=1, max_size=12),
+       st.lists(st.integers(0, 6000), min_size=1, max_size=8))
+def test_rate_at_invariants(steps, probes):
+    # times in hours after a start; the volume since the last start is never negative, never
+    # more than the whole log's volume, zero while off, and the rate is the last logged one
+    hours = np.cumsum([h for h, _ in steps])
+    log = pd.DataFrame({"time": pd.Timestamp("2020-01-01") + pd.to_timedelta(hours, unit="h"),
+                        "rate": [q for _, q in steps], "source_row": range(1, len(steps) + 1)})
+    times = pd.Timestamp("2020-01-01") + pd.to_timedelta(probes, unit="h")
+    rate, volume = rate_at(log, times)
+    for k, t in enumerate(times):
+        before = log[log["time"] <= t]
+        if before.empty:
+            assert np.isnan(rate[k]) and np.isnan(volume[k])
+            continue
+        assert rate[k] == before["rate"].iloc[-1]
+        assert volume[k] >= -1e-9
+        if rate[k] == 0:
+            assert volume[k] == 0
+        whole = 300.0 * (t - log["time"].iloc[0]) / pd.Timedelta(days=1)
+        assert volume[k] <= whole + 1e-9
