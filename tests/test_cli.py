@@ -271,6 +271,9 @@ def _demo_with(tmp_path, settings: str, limits: str) -> Path:
     start = text.index("[settings.temporal_cv]")  # the demo's own table; the test sets its own
     end = text.index("\n\n", start)
     text = (text[:start] + text[end + 2:]).replace("[settings]\n", "[settings]\n" + settings, 1)
+    # without the monitoring history, whose scatter would replace the temporal_cv setting
+    text = "\n".join(ln for ln in text.splitlines()
+                     if not ln.startswith(("history =", "pumplog =")))
     toml.write_text(text + "\n" + limits, encoding="utf-8")
     return project
 

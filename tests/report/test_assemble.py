@@ -107,7 +107,8 @@ def test_html_sections_and_no_external_resource(demo_out):
     # the report names the statistic each limit is judged on, with its rule's source
     assert "single sample with confirmation" in text and "40 CFR 141.23" in text
     assert "annual mean of 4 quarterly samples" in text and "40 CFR 141.23(i)" in text
-    assert "5% (setting)" in text
+    # the demo's monitoring history gives the temporal CV, replacing the setting
+    assert "(monitoring history)" in text and "Monitoring history and the years ahead" in text
 
 
 def test_pdf_has_pages(demo_out):
