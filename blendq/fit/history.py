@@ -317,7 +317,7 @@ def history_time_fits(project, fit, draws=None) -> dict[str, TimeFit]:
     Parameters
     ----------
     project : blendq.inputs.project.Project
-        With ``history`` (:mod:`blendq.inputs.history`).
+        With ``history`` (:mod:`blendq.inputs.monitoring`).
     fit : blendq.fit.estimation.FitResult
         The step fit: the hydraulic model gives each history sample's shares; its zone values
         anchor c_i(t0).

@@ -407,7 +407,7 @@ def _load(path: str | Path) -> Project:
     if "field" in tables:
         project.field_readings = _field(tables["field"], step_rates)
     if "pumplog" in tables or "history" in tables:
-        from blendq.inputs.history import read_history, read_pumplog
+        from blendq.inputs.monitoring import read_history, read_pumplog
 
         if "pumplog" in tables:
             project.pumplog = read_pumplog(tables["pumplog"], head.settings.pump_nominal_rate)

@@ -74,7 +74,7 @@ SPECS: dict[str, dict[str, tuple[str, bool, bool]]] = {
         "dissolved_oxygen": ("concentration", False, False),
         "turbidity": ("turbidity", False, False),
     },
-    # routine monitoring samples over the years (blendq.inputs.history)
+    # routine monitoring samples over the years (blendq.inputs.monitoring)
     "history": {
         "sampled_at": ("date", True, True), "sample_point": ("text", False, False),
         "analyte": ("text", True, True), "value": ("result", True, False),

@@ -1,4 +1,4 @@
-"""Tests of blendq.inputs.history: the monitoring history and the pump log."""
+"""Tests of blendq.inputs.monitoring: the monitoring history and the pump log."""
 
 from __future__ import annotations
 
@@ -12,8 +12,8 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from blendq.errors import InputError
-from blendq.inputs.history import rate_at
 from blendq.inputs.loader import load_project
+from blendq.inputs.monitoring import rate_at
 
 US = Path(__file__).parents[1] / "data" / "projects" / "quillmarsh_us"
 # 1 US gallon = 231 in^3 exactly (NIST SP 811, appendix B)
