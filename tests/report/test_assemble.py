@@ -137,8 +137,10 @@ def test_summary_json(demo_out):
     # 40 CFR 141.23(i): running annual average of quarterly samples
     assert (basis["arsenic"]["statistic"], basis["arsenic"]["samples_averaged"]) == \
         ("annual mean", 4)
-    assert basis["arsenic"]["temporal_cv"] == 0.05
-    assert basis["arsenic"]["temporal_cv_source"] == "setting"
+    # the demo's monitoring history estimates the temporal CV (the invented history's arsenic
+    # scatter: 0.4 ug/L on about 7 ug/L), replacing the 5 % setting
+    assert 0.03 < basis["arsenic"]["temporal_cv"] < 0.08
+    assert basis["arsenic"]["temporal_cv_source"] == "monitoring history"
 
 
 def test_same_seed_same_summary(demo_out, tmp_path):
