@@ -653,6 +653,29 @@ class Result:
         frame.attrs.update(units=self.units, interval=s.interval)
         return frame
 
+    # -- monitoring history -----------------------------------------------------------------
+    @cached_property
+    def _forecast(self):
+        from blendq.decide.forecast import forecast
+
+        return forecast(self.analysis, self.units)
+
+    def forecast(self):
+        """The years ahead from the monitoring history: the operating window year by year,
+        the latest year each rate stays compliant, the predictive check, the triggers and the
+        Mann-Kendall test (:class:`blendq.decide.forecast.Forecast`, rates in m^3/d and
+        concentrations in mg/L; its sentences in this result's units). None when the project
+        has no usable history."""
+        return self._forecast
+
+    def history_models(self) -> pd.DataFrame:
+        """The time model of each analyte beside the Mann-Kendall test and Sen's slope, in
+        display units (empty when the project has no usable history)."""
+        from blendq.report.history_section import model_table
+
+        fc = self.forecast()
+        return pd.DataFrame() if fc is None else model_table(self.analysis, fc)
+
     # -- options, report, charts -----------------------------------------------------------
     def compare(self, seal: Any = None, redevelop: Any = None, intake: Any = None,
                 blend: Any = None, *, lower_heads: Any = None,

@@ -14,8 +14,8 @@ from typer.core import TyperGroup
 from blendq import CAUTIONS, __version__
 
 #: the commands in the order of the work: a new project, its checks, the analysis, the report
-WORKFLOW = ("new", "plan", "check", "inflow", "drawdown", "fit", "window", "compare", "report",
-            "demo")
+WORKFLOW = ("new", "plan", "check", "inflow", "drawdown", "fit", "window", "history", "compare",
+            "report", "demo")
 
 
 class _WorkflowGroup(TyperGroup):
@@ -539,6 +539,62 @@ def window_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = No
             for line in _step_table_lines(steps, u):
                 typer.echo(line)
         _echo_cautions(result.decision)
+
+    _guard(body)
+
+
+@app.command("history")
+def history_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = None,
+                seed: SeedOpt = None, as_json: JsonOpt = False) -> None:
+    """The monitoring history: each analyte's time model beside the Mann-Kendall test, the
+    operating window year by year, results outside their bands, monitoring triggers."""
+
+    def body():
+        from blendq.api import load_project, to_json
+
+        proj = load_project(project)
+        u = _units(units, proj)
+        if proj.history.empty:
+            _fail("the project has no monitoring history (add a history table to [tables])")
+        result = _analyse(proj, draws, seed, u)
+        fc = result.forecast()
+        if fc is None:
+            _fail("no analyte with a limit has enough usable history results for a time model")
+        if as_json:
+            typer.echo(to_json({
+                "units": {"rate": "m3/d", "concentration": "mg/L canonical basis"},
+                "models": result.history_models().to_dict(orient="records"),
+                "years": [int(y) for y in fc.years],
+                "rates_m3_per_day": fc.rates.tolist(),
+                "compliant": fc.ok.tolist(),
+                "last_compliant_year": [None if not v == v else int(v) for v in fc.last_year],
+                "rate_compliant_longest_m3_per_day": fc.best_rate,
+                "sentences": fc.sentences, "triggers": fc.triggers, "notes": fc.notes,
+                "outside_band": fc.check[fc.check["outside"]].assign(
+                    sampled_at=lambda d: d["sampled_at"].astype(str)).to_dict(orient="records"),
+                "trend_tests": fc.trend_tests.to_dict(orient="records"),
+                "cautions": cautions_for()}))
+            return
+        for _, r in result.history_models().iterrows():
+            cells = "; ".join(f"{k}: {v}" for k, v in r.items() if k != "Analyte")
+            typer.echo(f"{r['Analyte']}: {cells}")
+        for tf in result.analysis.history.values():
+            for note in tf.notes:
+                typer.echo(f"  note: {note}")
+        for line in fc.sentences + fc.notes:
+            typer.echo(line)
+        out = fc.check[fc.check["outside"]]
+        interval = proj.settings.interval
+        typer.echo(f"Predictive check: {len(out)} of {len(fc.check)} results outside their "
+                   f"{interval:.0%} band (about {1 - interval:.0%} expected by chance).")
+        for (analyte, why), rows in out.groupby(["analyte", "suggests"], sort=False):
+            dates = ", ".join(f"{t:%Y-%m-%d} (row {n})"
+                              for t, n in zip(rows["sampled_at"], rows["source_row"],
+                                              strict=True))
+            typer.echo(f"  {analyte}, {why}: {dates}")
+        for line in fc.triggers:
+            typer.echo(line)
+        _echo_cautions()
 
     _guard(body)
 

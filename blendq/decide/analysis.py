@@ -15,7 +15,7 @@ from blendq.chemistry.limits import Limit, limit_notes
 from blendq.decide import sweep
 from blendq.decide.levelcheck import LevelCheck, check_levels
 from blendq.errors import ModelError
-from blendq.fit import diagnostics, estimation, observations, uncertainty, unresolved
+from blendq.fit import diagnostics, estimation, history, observations, uncertainty, unresolved
 from blendq.inputs.project import Project
 from blendq.well import memory
 from blendq.well.model import (
@@ -52,6 +52,8 @@ class Analysis:
     result_use: pd.DataFrame | None = None
     #: crossflow memory (:class:`blendq.well.memory.MemorySummary`); None without idle times
     memory: object | None = None
+    #: analyte -> time model fitted to the monitoring history (blendq.fit.history)
+    history: dict = field(default_factory=dict)
 
     @property
     def decisions(self) -> pd.DataFrame:
@@ -132,6 +134,13 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     # reproduces the samples); the table's intervals then come from those draws
     d = unresolved.redraw_unresolved(fit, d, diagnostics.zone_table(fit, d, s.interval))
     zones = diagnostics.zone_table(fit, d, s.interval)
+    time_fits = history.history_time_fits(project, fit, d)
+    if time_fits:  # the history's scatter replaces the temporal_cv setting
+        s = replace(s, temporal_cv={**s.temporal_cv, **{k: f.temporal_cv
+                                                         for k, f in time_fits.items()}},
+                    temporal_cv_history=tuple(time_fits))
+        project = replace(project, settings=s)
+        fit.problem.project = replace(fit.problem.project, settings=s)
     pred = sweep.sweep(fit, d)
     levels = check_levels(fit, d, pred, s.exceedance_probability, s.horizon)
     window = sweep.window_for(fit, pred, level_deep=levels.level_deep)
@@ -175,9 +184,13 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     mem_summary = memory.summarise(
         project, fit.model, fit.model.with_changes(geometry=operating_geometry(project)),
         fit.concentrations[fit.analytes], rate)
+    for k, f in time_fits.items():
+        notes.append(f"Temporal variability of {k} estimated from the monitoring history "
+                     f"({f.n} results; CV {f.temporal_cv:.0%} about a {f.model} time model): it "
+                     "replaces the temporal_cv setting.")
     return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
                     residuals, hyd, pred, window, limits, table, skipped,
-                    levels, notes, per_result, mem_summary)
+                    levels, notes, per_result, mem_summary, time_fits)
 
 
 def entrance_loss_notes(fit) -> list[str]:

@@ -410,5 +410,13 @@ def _load(path: str | Path) -> Project:
         project.levels = _levels(tables["levels"])
     if "field" in tables:
         project.field_readings = _field(tables["field"], step_rates)
+    if "pumplog" in tables or "history" in tables:
+        from blendq.inputs.monitoring import read_history, read_pumplog
+
+        if "pumplog" in tables:
+            project.pumplog = read_pumplog(tables["pumplog"], head.settings.pump_nominal_rate)
+        if "history" in tables:
+            _this_well(tables["history"], head.well.name)
+            project.history = read_history(tables["history"], project.pumplog)
     return project
 

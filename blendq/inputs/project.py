@@ -44,6 +44,15 @@ TABLE_COLUMNS: dict[str, list[str]] = {
     # specific_conductance [uS/cm], dissolved_oxygen [mg/L], turbidity [FNU]
     "field": ["step", "time", "temperature", "ph", "specific_conductance", "dissolved_oxygen",
               "turbidity", "source_row"],
+    # monitoring history (optional): value etc. as in samples; rate [m^3/d] at the sample's
+    # time (from the pump log, else the table's rate column; NaN if neither); rate_from says
+    # which ("pump log", "history table", ""); volume_since_start [m^3] pumped since the pump
+    # last started (NaN without a pump log)
+    "history": ["sampled_at", "sample_point", "analyte", "value", "nondetect",
+                "detection_limit", "uncertainty", "qualifier", "rate", "rate_from",
+                "volume_since_start", "source_row"],
+    # pump log (optional): the rate [m^3/d] from each time on (0 while the pump is off)
+    "pumplog": ["time", "rate", "source_row"],
 }
 
 
@@ -270,6 +279,21 @@ class Settings:
         Coefficient of variation [-] of each analyte's concentration from sample to sample at
         a fixed rate, beyond lab error (analyte key -> value; the key "default" for analytes
         not named). Analytes without a value take ``DEFAULT_TEMPORAL_CV`` (common practice).
+    forecast_years : int
+        Horizon of the forecast from the monitoring history [years] (a planning choice).
+    time_model : dict
+        Analyte -> time model of its zone concentrations ("constant", "trend", "seasonal",
+        "trend+seasonal" or "auto": the smallest AICc); the key "default" for the others.
+    quarterly_trigger_fraction : float
+        A result at or above this fraction of the MCL moves nitrate to quarterly monitoring
+        [-]. Common practice (setting), read in a state rule restating 40 CFR 141.23(d)(2)
+        (a secondary source): 0.5.
+    history_condition_limit : float
+        A time term (trend, season) is resolved per zone only when the column-scaled condition
+        number of its part of the design is at most this [-]; otherwise it is fitted and
+        reported as a term of the blend. Common practice (setting): 30.
+    pump_nominal_rate : float or None
+        Rate of a pump-log row that says "on" without a rate [m^3/d].
     prepared_by, reviewed_by : str
         Who prepared and who reviewed the report ("" when not given; [project] table).
     report_date : str
@@ -319,6 +343,13 @@ class Settings:
     min_window_steps: int = 3
     review_decisions: tuple = ()
     temporal_cv: dict = field(default_factory=dict)
+    forecast_years: int = 10
+    time_model: dict = field(default_factory=dict)
+    quarterly_trigger_fraction: float = 0.5
+    history_condition_limit: float = 30.0
+    pump_nominal_rate: float | None = None
+    #: analytes whose ``temporal_cv`` was estimated from the monitoring history
+    temporal_cv_history: tuple = ()
     prepared_by: str = ""
     reviewed_by: str = ""
     report_date: str = ""
@@ -330,7 +361,9 @@ class Settings:
 
     def temporal_cv_for(self, analyte: str) -> tuple[float, str]:
         """Temporal coefficient of variation of ``analyte`` [-] and where it comes from
-        ("setting" or "default setting, common practice")."""
+        ("monitoring history", "setting" or "default setting, common practice")."""
+        if analyte in self.temporal_cv_history and analyte in self.temporal_cv:
+            return float(self.temporal_cv[analyte]), "monitoring history"
         if analyte in self.temporal_cv:
             return float(self.temporal_cv[analyte]), "setting"
         if "default" in self.temporal_cv:
@@ -352,6 +385,8 @@ class Project:
     flowlogs: pd.DataFrame = field(default_factory=lambda: empty_table("flowlogs"))
     levels: pd.DataFrame = field(default_factory=lambda: empty_table("levels"))
     field_readings: pd.DataFrame = field(default_factory=lambda: empty_table("field"))
+    history: pd.DataFrame = field(default_factory=lambda: empty_table("history"))
+    pumplog: pd.DataFrame = field(default_factory=lambda: empty_table("pumplog"))
     scenarios: list[dict] = field(default_factory=list)
     folder: Path | None = None
     files: dict[str, str] = field(default_factory=dict)

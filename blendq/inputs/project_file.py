@@ -496,9 +496,41 @@ def _settings(doc: dict, display_units: str, label: str) -> Settings:
                                   integer=True),
         temporal_cv=_temporal_cv(s),
         fit_entrance_losses=s.flag("fit_entrance_losses", d.fit_entrance_losses),
+        forecast_years=s.number("forecast_years", d.forecast_years, 1, 100, integer=True),
+        time_model=_time_model(s),
+        quarterly_trigger_fraction=float(s.number("quarterly_trigger_fraction",
+                                                  d.quarterly_trigger_fraction, 0.0, 1.0, True)),
+        history_condition_limit=float(s.number("history_condition_limit",
+                                               d.history_condition_limit, 1.0, None)),
+        pump_nominal_rate=s.quantity("pump_nominal_rate", "rate", d.pump_nominal_rate),
     )
     s.done()
     return settings
+
+
+#: the time models of a zone concentration (blendq.fit.history)
+TIME_MODELS = ("auto", "constant", "trend", "seasonal", "trend+seasonal")
+
+
+def _time_model(s: _Section) -> dict[str, str]:
+    """``time_model``: one name for every analyte, or a table analyte -> name."""
+    value = s.get("time_model", None)
+    if value is None:
+        return {}
+    if not isinstance(value, dict):
+        value = {"default": value}
+    out = {}
+    for key, name in value.items():
+        if name not in TIME_MODELS:
+            raise s.error("time_model", f'"{name}" is not one of {", ".join(TIME_MODELS)}')
+        if key == "default":
+            out["default"] = name
+            continue
+        try:
+            out[get_analyte(key).key] = name
+        except InputError as err:
+            raise located(err, s.file, None, f"{s.where}.time_model.{key}") from err
+    return out
 
 
 def _test(doc: dict, label: str) -> dict:

@@ -79,6 +79,20 @@ SPECS: dict[str, dict[str, tuple[str, bool, bool]]] = {
         "dissolved_oxygen": ("concentration", False, False),
         "turbidity": ("turbidity", False, False),
     },
+    # routine monitoring samples over the years (blendq.inputs.monitoring)
+    "history": {
+        "sampled_at": ("date", True, True), "sample_point": ("text", False, False),
+        "analyte": ("text", True, True), "value": ("result", True, False),
+        "unit": ("text", False, False), "basis": ("text", False, False),
+        "nondetect": ("flag", False, False), "detection_limit": ("raw", False, False),
+        "uncertainty": ("raw", False, False), "qualifier": ("text", False, False),
+        "rate": ("rate", False, False), "well": ("text", False, False),
+    },
+    # pump-rate log: a rate from each time on, or the pump switched on (nominal rate) or off
+    "pumplog": {
+        "time": ("date", True, True), "rate": ("rate", False, False),
+        "pump": ("text", False, False),
+    },
 }
 
 _NUMBER = re.compile(r"^[-+]?(?:\d+(?:\.\d*)?|\.\d+)(?:[eE][-+]?\d+)?$")

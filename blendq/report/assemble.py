@@ -643,6 +643,11 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
         *([memory_section(a, units)] if a.memory is not None else []),
         Section("Charts", tuple(quality_figures(a, units)), "charts"),
     ]
+    if a.history:  # the monitoring history's time models and the years ahead
+        from blendq.report.history_section import history_section
+
+        history = history_section(a, units)
+        sections += [history] if history is not None else []
     if p.scenarios:
         from blendq.decide.scenarios import compare
 

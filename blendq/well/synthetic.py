@@ -10,7 +10,7 @@ import numpy as np
 import pandas as pd
 
 from blendq.errors import ModelError
-from blendq.inputs.project import Project, Settings, Well, Zone, empty_table
+from blendq.inputs.project import TABLE_COLUMNS, Project, Settings, Well, Zone, empty_table
 from blendq.well import mixing
 from blendq.well.model import model_from_parameters
 
@@ -131,3 +131,63 @@ def synthetic_project(
                                  source_row=len(logs) + 1))
         project.flowlogs = pd.DataFrame(logs)
     return project
+
+
+def synthetic_history(model, t0, dates, rates, zones: dict[str, dict],
+                      relative_error: float = 0.0, temporal_sd: dict[str, float] | None = None,
+                      seed: int | None = None) -> pd.DataFrame:
+    """A monitoring history whose results follow known zone time models (plus noise).
+
+    Zone i's concentration is c_i(t) = c0_i + trend_i tau + amplitude_i sin(2 pi tau +
+    phase_i) with tau = (t - t0) / 365.25 d; a result at rate Q is the blend
+    sum_i a_i(Q) c_i(t), plus the water's variability (normal, sd ``temporal_sd``) and lab
+    error (normal, sd ``relative_error`` times the blend, stated as the uncertainty).
+
+    Parameters
+    ----------
+    model : WellModel
+        The true well (its discharge weights give the blend).
+    t0 : Timestamp
+        tau = 0 (the step test).
+    dates : sequence of Timestamp
+    rates : array_like (n,)
+        Rate at each date [m^3/d].
+    zones : dict
+        Analyte -> {"c0": (n_zones,) [mg/L], "trend": (n_zones,) [mg/L/a], "amplitude":
+        (n_zones,) [mg/L], "phase": (n_zones,) [rad]}; absent keys are zero.
+    relative_error : float
+    temporal_sd : dict, optional
+        Analyte -> sd of the water's variability [mg/L].
+    seed : int, optional
+
+    Returns
+    -------
+    DataFrame
+        Columns of the ``history`` table (:data:`blendq.inputs.project.TABLE_COLUMNS`).
+    """
+    rng = np.random.default_rng(seed)
+    dates = pd.to_datetime(pd.Series(list(dates)))
+    rates = np.asarray(rates, float)
+    tau = ((dates - pd.Timestamp(t0)) / pd.Timedelta(days=1)).to_numpy(float) / 365.25
+    weights = model.weights(rates)
+    temporal_sd = temporal_sd or {}
+    rows = []
+    for analyte, spec in zones.items():
+        c0 = np.asarray(spec["c0"], float)
+        zero = np.zeros_like(c0)
+        trend = np.asarray(spec.get("trend", zero), float)
+        amp = np.asarray(spec.get("amplitude", zero), float)
+        phase = np.asarray(spec.get("phase", zero), float)
+        conc = (c0[None, :] + trend[None, :] * tau[:, None]
+                + amp[None, :] * np.sin(2 * np.pi * tau[:, None] + phase[None, :]))
+        blend = np.sum(weights * conc, axis=1)
+        sd_lab = relative_error * np.abs(blend)
+        obs = (blend + temporal_sd.get(analyte, 0.0) * rng.standard_normal(len(blend))
+               + sd_lab * rng.standard_normal(len(blend)))
+        for j in range(len(blend)):
+            rows.append([dates[j], "discharge", analyte, max(float(obs[j]), 0.0), False,
+                         np.nan, float(sd_lab[j]) if relative_error > 0 else np.nan, "",
+                         float(rates[j]), "history table", np.nan, len(rows) + 1])
+    frame = pd.DataFrame(rows, columns=TABLE_COLUMNS["history"])
+    frame["sampled_at"] = pd.to_datetime(frame["sampled_at"]).astype("datetime64[ns]")
+    return frame.sort_values("sampled_at", kind="stable").reset_index(drop=True)
