@@ -145,7 +145,8 @@ def test_walton_well_loss_criteria_in_si():
     assert from_base(c_base, "well_loss", "min2/m5") == pytest.approx(by_hand, rel=1e-12)
     assert from_base(c_base, "well_loss", "min2/m5") == pytest.approx(0.1056, rel=1e-3)
     # the criteria 5, 10 and 40 s^2/ft^5 become about 0.53, 1.06 and 4.2 min^2/m^5, the
-    # rounded 0.5, 1 and 4 min^2/m^5 quoted in SI (Walton 1962, from memory)
+    # rounded 0.5, 1 and 4 min^2/m^5 quoted in SI (Walton 1962, by a published
+    # restatement)
     si = [from_base(to_base(c, "s2/ft5", "well_loss"), "well_loss", "min2/m5")
           for c in (5.0, 10.0, 40.0)]
     np.testing.assert_allclose(si, [0.528, 1.056, 4.224], rtol=1e-3)

@@ -7,8 +7,8 @@ References used below:
 - National Research Council (1995) Nitrate and Nitrite in Drinking Water, National Academy
   Press: 1 mg/L NO3-N = 4.429 mg/L NO3.
 - Standard Methods for the Examination of Water and Wastewater, 1030E (ion balance in meq/L),
-  equivalent weights Ca 20.04 mg/meq and alkalinity 50.04 mg CaCO3/meq (from memory; checked
-  here against molar masses from molmass).
+  equivalent weights Ca 20.04 mg/meq and alkalinity 50.04 mg CaCO3/meq (values not verified in
+  the standard here; checked against molar masses from molmass).
 """
 
 from __future__ import annotations
@@ -91,7 +91,7 @@ def test_nitrite_factor_against_molmass():
     factor = nitrite_n_to_no2()
     # M(NO2)/M(N) from molmass: 46.0055/14.0067 = 3.2845
     assert factor == pytest.approx(_molmass("NO2") / _molmass("N"), rel=1e-4)
-    # about 3.29 (a factor attributed to NRC 1995: from memory, not verified here)
+    # about 3.29 (a rounded factor attributed to NRC 1995, not verified in a source here)
     assert factor == pytest.approx(3.29, rel=2e-3)
 
 
@@ -187,7 +187,7 @@ def test_unknown_analyte_names():
 @pytest.mark.parametrize(
     ("key", "formula", "charge", "standard_methods"),
     [
-        # Standard Methods 1030E equivalent weights [mg/meq] (from memory), checked against
+        # Standard Methods 1030E equivalent weights [mg/meq] (not verified in the standard here), checked against
         # molmass molar mass / |charge|
         ("calcium", "Ca", 2, 20.04),
         ("magnesium", "Mg", 2, 12.15),

@@ -313,7 +313,8 @@ def test_walton_unit_conversion_by_pint():
     (120.0, 4),
 ])
 def test_walton_class_boundaries(c_s2ft5, klass):
-    # Walton (1962) criteria on C in s^2/ft^5, thresholds 5, 10, 40 (from memory)
+    # Walton (1962) criteria on C in s^2/ft^5, thresholds 5, 10, 40 (a secondary source:
+    # a published restatement attributing them to Walton 1962)
     c = Q_(c_s2ft5, "s**2/ft**5").to("d**2/m**5").magnitude
     assert sd.walton_class(c) == klass
     assert sd.WALTON_LABELS[klass]
