@@ -549,15 +549,17 @@ def _fit_hydraulics(problem: Problem):
     95 % quantile of its chi-square (a local minimum is then suspected); the best converged fit
     is kept. The time budget (``settings.fit_time_budget``) covers every start; running out of
     it is always an error, never a result from fewer starts, so the result does not depend on
-    the machine's speed or load (same input, same seed: same output or a ModelError).
+    the machine's speed or load (same input, same seed: same output or a ModelError). The
+    budget counts this process's CPU time, not the wall clock, so that other work on a busy
+    machine does not use it up.
     """
     budget = float(problem.project.settings.fit_time_budget)
-    t_end = time.perf_counter() + budget
+    t_end = time.process_time() + budget
     lo = problem.lower_bounds()
     hi = np.full(lo.shape, np.inf)
 
     def fun(t):
-        if time.perf_counter() > t_end:
+        if time.process_time() > t_end:
             raise _OutOfTime
         return residuals(problem, t)
 

@@ -240,7 +240,7 @@ class Settings:
         closes, whatever the model says (common practice: a step's rate is held and metered
         to within a few percent).
     fit_time_budget : float
-        Longest time the hydraulic fit may take [s]; a fit still running then stops with an
+        Longest CPU time of this process the hydraulic fit may take [s]; a fit still running then stops with an
         error (common practice for an interactive tool, not a published value).
     qa : dict
         Options of the lab and field review.
