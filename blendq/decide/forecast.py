@@ -398,6 +398,9 @@ def forecast_sentences(a: Analysis, fc: Forecast, units: str = "US") -> list[str
                        + (" (the whole horizon)." if fc.last_year[r] == last_year else "."))
         else:
             out.append(f"At {where} some criterion fails already in {int(fc.years[0])}.")
+    first_year_note = _first_year_note(a, fc)
+    if first_year_note:
+        out.append(first_year_note)
     if fc.best_rate is None:
         out.append(f"No rate is compliant in {int(fc.years[0])} on the forecast.")
     else:
@@ -411,6 +414,23 @@ def forecast_sentences(a: Analysis, fc: Forecast, units: str = "US") -> list[str
         out.append(f"Rates that stay compliant longest: {span}, {through}; the largest is "
                    f"{format_quantity(fc.best_rate, 'rate', units)}.")
     return out
+
+
+def _first_year_note(a: Analysis, fc: Forecast) -> str:
+    """Why the forecast's first year can close rates the operating window keeps ("" when it
+    closes none): the two judge the season differently."""
+    inside = np.zeros(len(fc.rates), bool)
+    for interval in a.window.intervals:
+        lo, hi = interval[0], interval[1]
+        inside |= (fc.rates >= lo - 1e-9) & (fc.rates <= hi + 1e-9)
+    closed = inside & ~fc.ok[0]
+    if not closed.any():
+        return ""
+    return (f"In {int(fc.years[0])} the forecast keeps fewer rates than the operating window "
+            f"({int(closed.sum())} of {int(inside.sum())} rates of the window close): the "
+            "window counts the season as part of the water's temporal variability, while the "
+            "forecast follows the fitted season and trend, judging a limit on single samples "
+            "at the year's highest month and an annual-mean limit at the year's mean.")
 
 
 def trigger_sentences(a: Analysis, fc: Forecast, annual_means: dict,

@@ -140,3 +140,19 @@ def test_blend_terms_peak_shortcut_equals_the_monthly_maximum(demo):
     fast = (np.einsum("drz,dz->dr", shares, anchor)[:, :, None]
             + blend.reshape(n, 10, f.MONTHS).max(axis=2)[:, None, :])
     assert np.allclose(full, fast, rtol=1e-12, atol=1e-12, equal_nan=True)
+
+
+def test_first_year_narrower_than_the_window_is_explained(demo):
+    # the demo's forecast follows the fitted season (nitrate judged at the year's highest
+    # month) while the window counts the season as temporal variability: where the first year
+    # closes rates of the window, the sentences say why; where it closes none, they do not
+    a, fc = demo
+    inside = np.zeros(len(fc.rates), bool)
+    for interval in a.window.intervals:
+        inside |= (fc.rates >= interval[0] - 1e-9) & (fc.rates <= interval[1] + 1e-9)
+    closed = int((inside & ~fc.ok[0]).sum())
+    assert closed > 0  # the demo's low end (nitrate's seasonal peak)
+    notes = [s for s in fc.sentences if "keeps fewer rates than the operating window" in s]
+    assert len(notes) == (1 if closed else 0)
+    if closed:
+        assert f"({closed} of {int(inside.sum())} rates of the window close)" in notes[0]
