@@ -68,8 +68,15 @@ ASSUMPTIONS = [
     "zone's response to pumping is scaled by the Cooper-Jacob ratio G(horizon)/G(test) (steady "
     "and given zones are not scaled) and the ambient crossflow is held.",
     "Complete mixing where streams meet in the well; steady flow; no reaction.",
-    "Zone water quality does not change with rate or time (no induced inflow from elsewhere, no "
-    "trend).",
+    "Zone water quality does not change with rate (no induced inflow from elsewhere); it "
+    "changes with time only as the monitoring history's time model says (a trend and a season "
+    "where a history is given and the model is chosen; otherwise constant).",
+    "A zone whose top the pumping level passes gives water in proportion to its saturated "
+    "thickness (Dupuit-Thiem); the seepage face is neglected and water cascading from it is "
+    "flagged, not modelled.",
+    "Water that thief zones take in during an idle time returns first after a pump start, "
+    "washed out of a well-mixed volume (crossflow memory); the stored volume is the ambient "
+    "crossflow held steady over the idle time, an upper bound.",
     "Bands describe the uncertainty of the mean discharge concentration from lab error, "
     "flow-log and level error and the priors; they are not the spread of single future samples.",
     "The window judges each limit on the statistic its rule judges (a single sample with its "
@@ -399,6 +406,15 @@ ADDED_REFERENCES = [
     "Halford, K.J. and Hanson, R.T. (2002) USGS Open-File Report 02-293 (multi-node wells).",
     "Bureau International des Poids et Mesures (2019) The International System of Units (SI), "
     "9th ed., section 5.4.4 (digits grouped in threes by a small space).",
+    "Strack, O.D.L. (1989) Groundwater Mechanics. Prentice Hall (discharge potential of "
+    "confined-unconfined flow).",
+    "Levenspiel, O. (1999) Chemical Reaction Engineering, 3rd ed. Wiley (washout of an ideal "
+    "mixed vessel).",
+    "Mann, H.B. (1945) Nonparametric tests against trend. Econometrica 13(3), 245-259.",
+    "Sen, P.K. (1968) Estimates of the regression coefficient based on Kendall's tau. J. Am. "
+    "Stat. Assoc. 63(324), 1379-1389.",
+    "Hurvich, C.M. and Tsai, C.-L. (1989) Regression and time series model selection in small "
+    "samples. Biometrika 76(2), 297-307.",
 ]
 
 
@@ -657,7 +673,10 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
         Section("Assumptions", (BulletList(ASSUMPTIONS),), "assumptions"),
         Section("Methods and references", (
             Paragraph("Zone inflow: common wellbore head, q_i = G_i (h0_i - h_w) with optional "
-                      "nonlinear loss; conductances from Thiem or Cooper-Jacob with skin. "
+                      "nonlinear loss; conductances from Thiem or Cooper-Jacob with skin; "
+                      "a zone's saturated thickness once the level falls into it "
+                      "(Dupuit-Thiem, by its discharge potential); optional entrance losses per "
+                      "zone B q + C q^P (MNW2). "
                       "Wellbore mixing: upwind mass balance along the well. Zone "
                       "concentrations: weighted, bounded and censored least squares; hydraulics "
                       "by variable projection with scipy least_squares on flow-log, level, "
@@ -674,7 +693,15 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
                       "range; the rates a step's sample speaks for are left out when it "
                       "exceeded margin x limit, whatever the model says; a fit that misses a "
                       "lab result by more than 3 standard deviations makes the decision "
-                      "provisional."),
+                      "provisional. Crossflow memory: the volume thief zones store during an "
+                      "idle time, washed out of a well-mixed volume after a start; step "
+                      "samples likely to carry returned water are flagged and widened by their "
+                      "predicted error. Monitoring history (where given): each zone's "
+                      "concentration a constant, trend and annual season (chosen by AICc), "
+                      "fitted by weighted least squares on the history's results at their "
+                      "rates with the step test as the anchor; a trend the rates cannot place "
+                      "in a zone is one of the blend; Mann-Kendall test and Sen's slope on the "
+                      "blended history beside it."),
             BulletList(REFERENCES + ADDED_REFERENCES),
             Paragraph(f"blendq {__version__}."),
         ), "methods"),
