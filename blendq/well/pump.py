@@ -254,7 +254,8 @@ def operating_point(pump: PumpCurve, system: SystemCurve, speed_ratio: float,
     r = float(speed_ratio)
     if not r > 0:
         raise ModelError(f"speed ratio {r!r} must be greater than zero")
-    lo, hi = float(pump.rate[0]) * r, pump.max_rate * r
+    # the ends of the scaled curve, pulled in by a rounding step so that Q / r stays on it
+    lo, hi = float(pump.rate[0]) * r * (1 + 1e-12), pump.max_rate * r * (1 - 1e-12)
     if max_rate is not None:
         hi = min(hi, max_rate)
     lo = max(lo, 1e-9 * hi)
@@ -269,7 +270,8 @@ def operating_point(pump: PumpCurve, system: SystemCurve, speed_ratio: float,
             f"gives {float(pump.head_at(lo, r)):.1f} m of head but the system needs "
             f"{float(system.head(lo)):.1f} m (lift, friction and discharge head)")
     if at_hi > 0:
-        where = "the end of its curve" if hi >= pump.max_rate * r else "the rates modelled"
+        where = "the end of its curve" if max_rate is None or hi < max_rate \
+            else "the rates modelled"
         raise ModelError(
             f"at {r:.0%} of rated speed the pump still has {at_hi:.1f} m of head to spare at "
             f"{hi:.0f} m3/d, {where}: the operating point lies off the curve")
