@@ -527,6 +527,34 @@ def _write_report(proj, out: Path, units: str, draws, seed) -> None:
     _echo_cautions(result.decision, *(str(s.get("name", "")) for s in proj.scenarios))
 
 
+@app.command("pump")
+def pump_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = None,
+             seed: SeedOpt = None, as_json: JsonOpt = False) -> None:
+    """Turn the operating window into drive settings: rate, frequency, power and energy."""
+
+    def body():
+        from blendq.api import load_project, pump_settings, to_json
+
+        proj = load_project(project)
+        u = _units(units, proj)
+        plan = pump_settings(_analyse(proj, draws, seed, u), units=u)
+        lines = plan.lines()
+        if as_json:
+            typer.echo(to_json({"lines": lines,
+                                "seasons": plan.season_table().to_dict(orient="records"),
+                                "energy": plan.energy_table().to_dict(orient="records"),
+                                "cautions": cautions_for(*lines)}))
+            return
+        for line in lines:
+            typer.echo(line)
+        for table in (plan.season_table(), plan.energy_table()):
+            if not table.empty:
+                typer.echo(table.to_string(index=False))
+        _echo_cautions(*lines)
+
+    _guard(body)
+
+
 @app.command("compare")
 def compare_cmd(
     project: ProjectArg,

@@ -59,6 +59,8 @@ class PumpSettings:
     cheapest : float
         Frequency [Hz] of the cheapest compliant setting (NaN when unknown).
     notes : list of str
+    test_static_level : float
+        The test's static level [m depth] the seasonal levels are measured against.
     """
 
     window: tuple[float, float]
@@ -71,6 +73,7 @@ class PumpSettings:
     cheapest_energy: float = float("nan")
     cheapest: float = float("nan")
     notes: list[str] = field(default_factory=list)
+    test_static_level: float = float("nan")
 
 
 def level_band(a: Analysis) -> tuple[np.ndarray, np.ndarray]:
@@ -184,9 +187,7 @@ def pump_settings(a: Analysis, spec: PumpSpec) -> PumpSettings:
         test_static = float(band[1][0])
     curve, max_rate = curve_of(spec), float(rates[-1])
     seasons = spec.static_levels
-    notes = [f"Seasonal static levels shift the pumping-level curve by their difference from "
-             f"the test's static level ({test_static:.2f} m); the drawdown is taken as the "
-             "same in every season."]
+    notes = []
     systems = {name: [_system(spec, rates, lv, s - test_static) for lv in band]
                for name, s in seasons.items()}
     every = [sys for group in systems.values() for sys in group]
@@ -217,7 +218,7 @@ def pump_settings(a: Analysis, spec: PumpSpec) -> PumpSettings:
                            for f in np.linspace(*scan_span, ENERGY_POINTS)]) \
         if scan_span else pd.DataFrame()
     out = PumpSettings((float(low), float(high)), float(target), span, recommended, table,
-                       energy, notes=notes)
+                       energy, notes=notes, test_static_level=float(test_static))
     if spec.curve_efficiency is None:
         notes.append("The pump curve gives no efficiency: power and energy are not computed.")
     elif not energy.empty:
