@@ -1198,13 +1198,21 @@ def pump_settings(project: Result | Project | str | os.PathLike[str], draws: int
     ModelError
         When there is no window, or the pump cannot lift the water.
     """
+    from blendq.inputs.pump_file import read_pump
     from blendq.report.pump_section import settings_for
 
-    result = project if isinstance(project, Result) else analyse(project, draws, seed,
-                                                                  units=units)
+    if not isinstance(project, Result):
+        proj = project if isinstance(project, Project) else load_project(project)
+        # a missing or bad [pump] fails before the fit
+        if proj.folder is None or read_pump(proj.folder / proj.files["project"]) is None:
+            raise _no_pump(proj)
+    result = project if isinstance(project, Result) else analyse(proj, draws, seed, units=units)
     ps = settings_for(result.analysis)
     if ps is None:
-        raise InputError("has no [pump] table; add one to set the pump (docs/input-files.md)",
-                         file=result.analysis.project.files.get("project", "project.toml"),
-                         field="pump")
+        raise _no_pump(result.analysis.project)
     return PumpPlan(ps, _unit_system(units or result.units))
+
+
+def _no_pump(project: Project) -> InputError:
+    return InputError("has no [pump] table; add one to set the pump (docs/input-files.md)",
+                      file=project.files.get("project", "project.toml"), field="pump")
