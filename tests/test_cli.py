@@ -482,7 +482,7 @@ def test_help_is_plain_text_in_workflow_order():
         assert "<bool>" not in run(command, "--help").stdout
     top = run("--help").stdout
     listed = [ln.split()[0] for ln in top.split("Commands:")[1].splitlines() if ln.strip()]
-    assert listed == ["new", "plan", "check", "inflow", "drawdown", "fit", "window", "compare",
+    assert listed == ["new", "plan", "check", "inflow", "drawdown", "fit", "window", "pump", "compare",
                       "report", "demo"]
 
 
