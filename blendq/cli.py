@@ -14,8 +14,8 @@ from typer.core import TyperGroup
 from blendq import CAUTIONS, __version__
 
 #: the commands in the order of the work: a new project, its checks, the analysis, the report
-WORKFLOW = ("new", "plan", "check", "inflow", "drawdown", "fit", "window", "compare", "report",
-            "demo")
+WORKFLOW = ("new", "plan", "check", "inflow", "drawdown", "fit", "window", "pump", "compare",
+            "report", "demo")
 
 
 class _WorkflowGroup(TyperGroup):

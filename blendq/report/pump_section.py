@@ -102,6 +102,16 @@ def settings_for(a: Analysis) -> PumpSettings | None:
     return None if spec is None else pump_settings(a, spec)
 
 
+def _energy_figure(ps: PumpSettings, units: str):
+    from blendq.report.charts.pump import energy_chart
+    from blendq.report.charts.render import chart_figure
+
+    return chart_figure("Energy per volume against the delivered rate across the compliant drive "
+                        "frequencies (mean seasonal static level, median pumping level).",
+                        energy_chart(ps, units), svg=False,
+                        alt="; ".join(pump_lines(ps, units)[:3]))
+
+
 def pump_section(ps: PumpSettings, units: str = "US") -> Section:
     """The report section for the pump settings (key ``"pump"``)."""
     blocks = [
@@ -121,6 +131,7 @@ def pump_section(ps: PumpSettings, units: str = "US") -> Section:
                                     "frequencies (middle static level, median pumping level).",
                             note="Motor and drive efficiencies are named settings (common "
                                  "practice values)."))
+        blocks.append(_energy_figure(ps, units))
     return Section("Pump settings and energy", tuple(blocks), "pump")
 
 

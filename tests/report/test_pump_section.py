@@ -74,3 +74,11 @@ def test_cli_bad_pump_is_one_line(folder, tmp_path):
 def test_cli_without_pump_fails_before_the_fit():
     out = runner.invoke(app, ["pump", str(demo_path())])
     assert out.exit_code == 2 and "field pump" in out.output
+
+
+def test_section_has_the_energy_chart(result):
+    from blendq.report.document import Figure
+
+    section = pump_section_for(result.analysis, "SI")
+    figures = [b for b in section.blocks if isinstance(b, Figure)]
+    assert len(figures) == 1 and figures[0].png.startswith(b"\x89PNG")
