@@ -85,7 +85,7 @@ def pump_lines(ps: PumpSettings, units: str = "US") -> list[str]:
         lines.append(f"Energy at the recommended setting: "
                      f"{ps.recommended_energy * factor:.3f} {label}; the cheapest compliant "
                      f"setting ({ps.cheapest:.1f} Hz) uses {ps.cheapest_energy * factor:.3f} "
-                     f"{label} ({extra:.1%} less per volume).")
+                     f"{label}: the recommended setting uses {extra:.1%} more per volume.")
     lines.append("Each seasonal static level shifts the pumping-level curve by its difference "
                  f"from the test's static level "
                  f"({format_quantity(ps.test_static_level, 'length', units)}); the drawdown is "

@@ -59,11 +59,11 @@ def test_affinity_laws_closed_form(q, r):
     qs, hs, ps = pump.affinity(q, 80.0, 5000.0, r)
     assert (qs, hs, ps) == (pytest.approx(q * r, rel=1e-12), pytest.approx(80 * r**2, rel=1e-12),
                             pytest.approx(5000 * r**3, rel=1e-12))
-    if q * r <= 2000.0 * r:  # on the scaled curve
-        assert float(LINE.head_at(q * r, r)) == pytest.approx(r**2 * float(LINE.head_at(q)),
-                                                              rel=1e-9, abs=1e-9)
-        assert float(LINE.efficiency_at(q * r, r)) == pytest.approx(
-            float(LINE.efficiency_at(q)), rel=1e-12)
+    # the point (q, H1(q)) of the rated curve moves to (r q, r^2 H1(q)) on the scaled curve
+    assert float(LINE.head_at(q * r, r)) == pytest.approx(r**2 * float(LINE.head_at(q)),
+                                                          rel=1e-9, abs=1e-9)
+    assert float(LINE.efficiency_at(q * r, r)) == pytest.approx(float(LINE.efficiency_at(q)),
+                                                                rel=1e-12)
 
 
 def test_operating_point_hand_worked():
