@@ -173,7 +173,8 @@ def pump_settings(a: Analysis, spec: PumpSpec) -> PumpSettings:
     Raises
     ------
     ModelError
-        When there is no operating window to keep the rate in.
+        When there is no operating window to keep the rate in, or the pump cannot lift the
+        water at its highest frequency at some seasonal static level.
     """
     w = a.window
     if w.empty:
@@ -190,6 +191,15 @@ def pump_settings(a: Analysis, spec: PumpSpec) -> PumpSettings:
     notes = []
     systems = {name: [_system(spec, rates, lv, s - test_static) for lv in band]
                for name, s in seasons.items()}
+    top = spec.max_frequency / spec.rated_frequency
+    for name, group in systems.items():  # a pump that cannot lift the water at full speed
+        for system in group:
+            if delivered(curve, system, spec, spec.max_frequency, max_rate) == 0.0:
+                try:
+                    pumpmod.operating_point(curve, system, top, max_rate=max_rate)
+                except ModelError as err:
+                    raise ModelError(f"at the {name} static level and {spec.max_frequency:g} "
+                                     f"Hz, {err}") from None
     every = [sys for group in systems.values() for sys in group]
     span = _range(curve, every, spec, low, high, max_rate)
     middle = float(np.mean(list(seasons.values())))

@@ -101,3 +101,11 @@ def test_no_window_is_a_model_error(setup):
                                       ok=np.zeros_like(a.window.ok), reason_empty="closed"))
     with pytest.raises(ModelError, match="no operating window"):
         pump_settings(empty, spec)
+
+
+def test_pump_that_cannot_lift_is_a_model_error(setup):
+    a, spec = setup
+    # 400 ft of static level + 115 ft of discharge head is above the pump's 298 ft at 60 Hz
+    deep = replace(spec, static_levels={"drought": 400 * FT})
+    with pytest.raises(ModelError, match="drought static level and 60 Hz, the pump cannot lift"):
+        pump_settings(a, deep)
