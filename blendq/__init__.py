@@ -32,6 +32,8 @@ _API_NAMES = (
     "load_project",
     "parse_rates",
     "plan_test",
+    "pump_settings",
+    "PumpPlan",
     "StepTestPlan",
     "to_json",
 )

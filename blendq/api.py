@@ -67,6 +67,7 @@ __all__ = [
     "ComparisonResult",
     "OperatingWindow",
     "Plots",
+    "PumpPlan",
     "Result",
     "StepTestPlan",
     "analyse",
@@ -77,6 +78,7 @@ __all__ = [
     "option_entries",
     "parse_rates",
     "plan_test",
+    "pump_settings",
     "to_json",
 ]
 
@@ -1159,3 +1161,84 @@ def plan_test(project: Project | str | os.PathLike[str], budget: float | None = 
         proj, inputs, finished = load_for_planning(project)
     units = _unit_system(units or proj.settings.display_units)
     return StepTestPlan(_plan.plan_test(proj, inputs, finished, budget), units)
+
+
+# ------------------------------------------------------------------------------ pump settings
+class PumpPlan:
+    """Drive settings for the operating window, made by :func:`pump_settings`.
+
+    Attributes
+    ----------
+    settings : blendq.decide.pumpset.PumpSettings
+        Frequencies [Hz], rates [m^3/d], power [W] and energy [kWh/m^3] in base units.
+    units : {"US", "SI"}
+    """
+
+    def __init__(self, settings, units: str = "US") -> None:
+        self.settings = settings
+        self.units = units
+
+    def season_table(self) -> pd.DataFrame:
+        """Per season: static level, compliant frequencies, setting and delivered rate."""
+        from blendq.report.pump_section import season_table
+
+        return season_table(self.settings, self.units)
+
+    def energy_table(self, rows: int = 5) -> pd.DataFrame:
+        """Rate, frequency, power and energy per volume across the compliant frequencies."""
+        from blendq.report.pump_section import energy_table
+
+        return energy_table(self.settings, self.units, rows)
+
+    def lines(self) -> list[str]:
+        """The settings and their energy in a few sentences."""
+        from blendq.report.pump_section import pump_lines
+
+        return pump_lines(self.settings, self.units)
+
+    def __str__(self) -> str:
+        return "\n".join([*self.lines(), _short_caution()])
+
+
+def pump_settings(project: Result | Project | str | os.PathLike[str], draws: int | None = None,
+                  seed: int | None = None, *, units: str | None = None) -> PumpPlan:
+    """The drive frequencies that keep the pump's delivered rate in the operating window.
+
+    Parameters
+    ----------
+    project : Result, Project or path
+        An analysis (:func:`analyse`), or a project to analyse; its project file needs a
+        ``[pump]`` table (docs/input-files.md).
+    draws, seed : int, optional
+        Posterior draws and seed of the analysis when ``project`` is not a Result.
+    units : {"US", "SI"}, optional
+
+    Returns
+    -------
+    PumpPlan
+
+    Raises
+    ------
+    InputError
+        When the project has no ``[pump]`` table or it is not valid.
+    ModelError
+        When there is no window, or the pump cannot lift the water.
+    """
+    from blendq.inputs.pump_file import read_pump
+    from blendq.report.pump_section import settings_for
+
+    if not isinstance(project, Result):
+        proj = project if isinstance(project, Project) else load_project(project)
+        # a missing or bad [pump] fails before the fit
+        if proj.folder is None or read_pump(proj.folder / proj.files["project"]) is None:
+            raise _no_pump(proj)
+    result = project if isinstance(project, Result) else analyse(proj, draws, seed, units=units)
+    ps = settings_for(result.analysis)
+    if ps is None:
+        raise _no_pump(result.analysis.project)
+    return PumpPlan(ps, _unit_system(units or result.units))
+
+
+def _no_pump(project: Project) -> InputError:
+    return InputError("has no [pump] table; add one to set the pump (docs/input-files.md)",
+                      file=project.files.get("project", "project.toml"), field="pump")

@@ -14,8 +14,8 @@ from typer.core import TyperGroup
 from blendq import CAUTIONS, __version__
 
 #: the commands in the order of the work: a new project, its checks, the analysis, the report
-WORKFLOW = ("new", "plan", "check", "inflow", "drawdown", "fit", "window", "history", "compare",
-            "report", "demo")
+WORKFLOW = ("new", "plan", "check", "inflow", "drawdown", "fit", "window", "history", "pump",
+            "compare", "report", "demo")
 
 
 class _WorkflowGroup(TyperGroup):
@@ -629,6 +629,39 @@ def _write_report(proj, out: Path, units: str, draws, seed) -> None:
     typer.echo(result.decision)
     typer.echo(f"Report written to {folder / 'report.html'} and {folder / 'report.pdf'}")
     _echo_cautions(result.decision, *(str(s.get("name", "")) for s in proj.scenarios))
+
+
+@app.command("pump")
+def pump_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = None,
+             seed: SeedOpt = None, as_json: JsonOpt = False) -> None:
+    """Turn the operating window into drive settings: rate, frequency, power and energy."""
+
+    def body():
+        from blendq.api import load_project, pump_settings, to_json
+        from blendq.errors import InputError
+        from blendq.inputs.pump_file import read_pump
+
+        proj = load_project(project)
+        if read_pump(project) is None:  # a missing or bad [pump] fails before the fit
+            raise InputError("has no [pump] table; add one to set the pump "
+                             "(docs/input-files.md)", file="project.toml", field="pump")
+        u = _units(units, proj)
+        plan = pump_settings(_analyse(proj, draws, seed, u), units=u)
+        lines = plan.lines()
+        if as_json:
+            typer.echo(to_json({"lines": lines,
+                                "seasons": plan.season_table().to_dict(orient="records"),
+                                "energy": plan.energy_table().to_dict(orient="records"),
+                                "cautions": cautions_for(*lines)}))
+            return
+        for line in lines:
+            typer.echo(line)
+        for table in (plan.season_table(), plan.energy_table()):
+            if not table.empty:
+                typer.echo(table.to_string(index=False))
+        _echo_cautions(*lines)
+
+    _guard(body)
 
 
 @app.command("compare")

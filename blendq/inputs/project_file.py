@@ -39,7 +39,7 @@ CONDUCTANCE_MODELS = ("auto", "steady", "transient", "given", "flowlog")
 
 #: top-level tables of the project file
 SECTIONS = ("project", "well", "zones", "tables", "settings", "limits", "scenarios", "review",
-            "plan", "test")
+            "plan", "test", "pump")
 
 #: what a ``[[review]]`` decision may do with a sample (see blendq.review.decisions)
 REVIEW_ACTIONS = ("exclude", "downweight", "keep")

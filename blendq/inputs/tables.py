@@ -72,6 +72,11 @@ SPECS: dict[str, dict[str, tuple[str, bool, bool]]] = {
         "upward_flow": ("rate", True, True),
     },
     "levels": {"time": ("date", True, True), "level": ("length", True, True)},
+    # the pump's head-capacity curve ([pump] curve); efficiency in percent, as on makers' sheets
+    "pump_curve": {
+        "rate": ("rate", True, True), "head": ("length", True, True),
+        "efficiency": ("number", False, False),
+    },
     "field": {
         "step": ("text", True, True), "time": ("date", False, False),
         "temperature": ("temperature", False, False), "ph": ("number", False, False),

@@ -24,6 +24,7 @@ from blendq.report.document import (
     Section,
     Table,
 )
+from blendq.report.pump_section import pump_section_for
 from blendq.report.scenario_section import scenario_section
 from blendq.units import DISPLAY_UNITS, display_unit_label, format_quantity, from_base
 
@@ -657,6 +658,7 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
                   f"Predicted discharge at {format_quantity(rec_rate, 'rate', units)}."),
         ), "window"),
         *([memory_section(a, units)] if a.memory is not None else []),
+        *filter(None, [pump_section_for(a, units)]),
         Section("Charts", tuple(quality_figures(a, units)), "charts"),
     ]
     if a.history:  # the monitoring history's time models and the years ahead

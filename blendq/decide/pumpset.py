@@ -1,0 +1,240 @@
+"""The operating window as drive settings: the frequencies that keep the delivered rate inside
+the window at every static level of the season, the recommended setting, and the energy.
+
+The pump delivers the rate where its curve, scaled to the drive frequency by the affinity laws,
+meets the system curve (:mod:`blendq.well.pump`). The lift comes from the zone model's pumping
+level at each rate: its median and its band (the alpha and 1 - alpha quantiles of the
+posterior draws, the deep side no shallower than the step test's where that is used). A
+seasonal static level shifts the whole pumping-level curve by its difference from the test's
+static level (drawdown taken as independent of the static level, as in a confined aquifer).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy.optimize import brentq
+
+from blendq.decide.analysis import Analysis
+from blendq.decide.levelcheck import static_level_of
+from blendq.errors import ModelError
+from blendq.inputs.pump_file import PumpSpec
+from blendq.well import pump as pumpmod
+
+#: points of the frequency scan for the energy across the window (common practice: 0.1 to
+#: 0.5 Hz steps match what drive keypads set)
+ENERGY_POINTS = 41
+#: m^3 in 1,000 US gallons
+M3_PER_KGAL = 3.785411784
+
+
+@dataclass
+class PumpSettings:
+    """Drive settings for the operating window (frequencies [Hz], rates [m^3/d], power [W]).
+
+    Attributes
+    ----------
+    window : tuple of float
+        The window's interval (low, high) the settings keep the rate in [m^3/d].
+    target : float
+        The window's recommended rate [m^3/d].
+    frequency_range : tuple of float or None
+        Frequencies that keep the delivered rate inside the window at every seasonal static
+        level and both ends of the level band; None when no single range works all year.
+    recommended : float or None
+        Recommended frequency (all-year), or None.
+    seasons : DataFrame
+        Per season: ``season``, ``static_level`` [m], ``low``, ``high`` (its own compliant
+        frequencies, NaN when none), ``recommended`` [Hz], ``rate`` delivered at the
+        recommended setting (median level) [m^3/d].
+    energy : DataFrame
+        Across the compliant frequencies at the middle static level (median band):
+        ``frequency``, ``rate``, ``head`` [m], ``efficiency`` [-], ``power`` [W],
+        ``kwh_per_m3``, ``kwh_per_kgal``.
+    recommended_energy, cheapest_energy : float
+        kWh/m^3 at the recommended and at the cheapest compliant setting (NaN without
+        efficiencies).
+    cheapest : float
+        Frequency [Hz] of the cheapest compliant setting (NaN when unknown).
+    notes : list of str
+    test_static_level : float
+        The test's static level [m depth] the seasonal levels are measured against.
+    """
+
+    window: tuple[float, float]
+    target: float
+    frequency_range: tuple[float, float] | None
+    recommended: float | None
+    seasons: pd.DataFrame
+    energy: pd.DataFrame
+    recommended_energy: float = float("nan")
+    cheapest_energy: float = float("nan")
+    cheapest: float = float("nan")
+    notes: list[str] = field(default_factory=list)
+    test_static_level: float = float("nan")
+
+
+def level_band(a: Analysis) -> tuple[np.ndarray, np.ndarray]:
+    """Sweep rates [m^3/d] and the pumping level [m depth] at each: rows shallow side, median,
+    deep side (quantiles alpha, 0.5, 1 - alpha of the draws)."""
+    alpha = a.project.settings.exceedance_probability
+    pl = a.prediction.pumping_level
+    band = np.quantile(pl, [alpha, 0.5, 1 - alpha], axis=0)
+    deep = getattr(a.step_drawdown, "level_deep", None) if a.step_drawdown else None
+    if deep is not None and np.shape(deep) == band[2].shape:
+        band[2] = np.fmax(band[2], np.asarray(deep, float))
+    return np.asarray(a.prediction.rates, float), band
+
+
+def _system(spec: PumpSpec, rates, levels, shift: float) -> pumpmod.SystemCurve:
+    return pumpmod.SystemCurve(
+        level=lambda q: np.interp(q, rates, levels) + shift, length=spec.column_length,
+        diameter=spec.column_diameter, roughness=spec.roughness,
+        hazen_williams_c=spec.hazen_williams_c, discharge_head=spec.discharge_head)
+
+
+def curve_of(spec: PumpSpec) -> pumpmod.PumpCurve:
+    return pumpmod.PumpCurve(spec.curve_rate, spec.curve_head, spec.curve_efficiency)
+
+
+def delivered(curve: pumpmod.PumpCurve, system: pumpmod.SystemCurve, spec: PumpSpec,
+              frequency: float, max_rate: float) -> float:
+    """Rate [m^3/d] at ``frequency`` [Hz]: 0 when the pump cannot lift the water, inf when it
+    meets the system beyond the rates modelled or off its curve."""
+    try:
+        return pumpmod.operating_point(curve, system, frequency / spec.rated_frequency,
+                                       max_rate=max_rate)
+    except ModelError as err:
+        return 0.0 if "cannot lift" in str(err) else float("inf")
+
+
+def _frequency_for(rate_of, target: float, f_lo: float, f_hi: float) -> float:
+    """Frequency where the delivered rate (rising with frequency) reaches ``target``;
+    -inf when it is above the target already at f_lo, inf when below at f_hi."""
+    lo, hi = rate_of(f_lo) - target, rate_of(f_hi) - target
+    if lo >= 0:
+        return -np.inf
+    if hi < 0:
+        return np.inf
+    def short(f):  # inf (off the curve) capped so that the root solve can bracket
+        return min(rate_of(f), 1e12) - target
+
+    return float(brentq(short, f_lo, f_hi, xtol=1e-6))
+
+
+def _range(curve, systems, spec, low, high, max_rate):
+    """Frequencies [Hz] keeping every system's delivered rate in [low, high], or None."""
+    f_lo, f_hi = spec.min_frequency, spec.max_frequency
+    for system in systems:
+        def rate_of(f, system=system):
+            return delivered(curve, system, spec, f, max_rate)
+        a = _frequency_for(rate_of, low, spec.min_frequency, spec.max_frequency)
+        b = _frequency_for(rate_of, high, spec.min_frequency, spec.max_frequency)
+        f_lo, f_hi = max(f_lo, a), min(f_hi, b)
+    return (float(f_lo), float(f_hi)) if f_lo <= f_hi else None
+
+
+def _setting(curve, system, spec, target, span, max_rate) -> float:
+    def rate_of(f):
+        return delivered(curve, system, spec, f, max_rate)
+    f = _frequency_for(rate_of, target, span[0], span[1])
+    return float(np.clip(f, span[0], span[1]))
+
+
+def energy_at(curve, system, spec, frequency, max_rate) -> dict:
+    """Rate, head, efficiency, wire-to-water power and energy per volume at ``frequency``."""
+    r = frequency / spec.rated_frequency
+    q = delivered(curve, system, spec, frequency, max_rate)
+    head = float(curve.head_at(q, r)) if 0 < q < np.inf else np.nan
+    eff = float(curve.efficiency_at(q, r)) if 0 < q < np.inf else np.nan
+    power = float(pumpmod.wire_to_water(q, head, eff, spec.motor_efficiency,
+                                        spec.drive_efficiency))
+    kwh = float(pumpmod.energy_per_volume(power, q))
+    return {"frequency": frequency, "rate": q, "head": head, "efficiency": eff, "power": power,
+            "kwh_per_m3": kwh, "kwh_per_kgal": kwh * M3_PER_KGAL}
+
+
+def pump_settings(a: Analysis, spec: PumpSpec) -> PumpSettings:
+    """Drive settings that keep the delivered rate in the operating window all year.
+
+    Parameters
+    ----------
+    a : Analysis
+        The project's analysis (its window, pumping-level draws and static level).
+    spec : PumpSpec
+        The installed pump (:func:`blendq.inputs.pump_file.read_pump`).
+
+    Returns
+    -------
+    PumpSettings
+
+    Raises
+    ------
+    ModelError
+        When there is no operating window to keep the rate in, or the pump cannot lift the
+        water at its highest frequency at some seasonal static level.
+    """
+    w = a.window
+    if w.empty:
+        raise ModelError(f"there is no operating window to set the pump for: {w.reason_empty}")
+    target = w.recommended if w.recommended is not None else w.intervals[0][0]
+    low, high = next(((lo, hi) for lo, hi, *_ in w.intervals if lo <= target <= hi),
+                     w.intervals[0][:2])
+    rates, band = level_band(a)
+    test_static = static_level_of(a.project)
+    if test_static is None:
+        test_static = float(band[1][0])
+    curve, max_rate = curve_of(spec), float(rates[-1])
+    seasons = spec.static_levels
+    notes = []
+    systems = {name: [_system(spec, rates, lv, s - test_static) for lv in band]
+               for name, s in seasons.items()}
+    top = spec.max_frequency / spec.rated_frequency
+    for name, group in systems.items():  # a pump that cannot lift the water at full speed
+        for system in group:
+            if delivered(curve, system, spec, spec.max_frequency, max_rate) == 0.0:
+                try:
+                    pumpmod.operating_point(curve, system, top, max_rate=max_rate)
+                except ModelError as err:
+                    raise ModelError(f"at the {name} static level and {spec.max_frequency:g} "
+                                     f"Hz, {err}") from None
+    every = [sys for group in systems.values() for sys in group]
+    span = _range(curve, every, spec, low, high, max_rate)
+    middle = float(np.mean(list(seasons.values())))
+    mid_system = _system(spec, rates, band[1], middle - test_static)
+    rows = []
+    for name, s in seasons.items():
+        own = _range(curve, systems[name], spec, low, high, max_rate)
+        use = span or own
+        rec = _setting(curve, systems[name][1], spec, target, use, max_rate) if use else np.nan
+        q = delivered(curve, systems[name][1], spec, rec, max_rate) if use else np.nan
+        rows.append({"season": name, "static_level": s, "low": own[0] if own else np.nan,
+                     "high": own[1] if own else np.nan, "recommended": rec, "rate": q})
+    table = pd.DataFrame(rows)
+    recommended = None
+    if span:
+        recommended = _setting(curve, mid_system, spec, target, span, max_rate)
+        table["recommended"] = recommended
+        table["rate"] = [delivered(curve, systems[n][1], spec, recommended, max_rate)
+                         for n in seasons]
+    else:
+        notes.append("No single drive frequency keeps the rate inside the window at every "
+                      "static level of the season: set the drive per season.")
+    scan_span = span or next(((r.low, r.high) for r in table.itertuples()
+                              if np.isfinite(r.low)), None)
+    energy = pd.DataFrame([energy_at(curve, mid_system, spec, f, max_rate)
+                           for f in np.linspace(*scan_span, ENERGY_POINTS)]) \
+        if scan_span else pd.DataFrame()
+    out = PumpSettings((float(low), float(high)), float(target), span, recommended, table,
+                       energy, notes=notes, test_static_level=float(test_static))
+    if spec.curve_efficiency is None:
+        notes.append("The pump curve gives no efficiency: power and energy are not computed.")
+    elif not energy.empty:
+        best = int(np.nanargmin(energy["kwh_per_m3"].to_numpy()))
+        out.cheapest = float(energy["frequency"].iloc[best])
+        out.cheapest_energy = float(energy["kwh_per_m3"].iloc[best])
+        f_rec = recommended if recommended is not None else float(table["recommended"].iloc[0])
+        out.recommended_energy = energy_at(curve, mid_system, spec, f_rec, max_rate)["kwh_per_m3"]
+    return out
