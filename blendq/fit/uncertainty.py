@@ -349,22 +349,36 @@ def levenberg_marquardt_batch(fun, theta, lower, steps, max_iter: int = MAX_DRAW
     nu = np.full(bsz, 2.0)
     done = np.zeros(bsz, bool)
     eye = np.eye(p)[None]
+    # the Jacobian of each problem at its current point, kept until a step is accepted (a
+    # rejected step leaves theta and the state as they were, so it would come out the same)
+    jtj_all = np.zeros((bsz, p, p))
+    grad_all = np.zeros((bsz, p))
+    fresh = np.zeros(bsz, bool)
     for _ in range(max_iter):
         todo = np.flatnonzero(~done)
         if not todo.size:
             break
         st = _take(state, todo)
         th = theta[todo]
-        # forward differences, every parameter of every problem in one call, state held fixed
-        pert = np.repeat(th[None], p, axis=0)
-        for k in range(p):
-            pert[k, :, k] += steps[k]
-        rk, _, _ = fun(pert.reshape(p * len(todo), p), np.tile(todo, p),
-                       {k: np.tile(v, (p,) + (1,) * (v.ndim - 1)) for k, v in st.items()}, False)
-        r0, _, _ = fun(th, todo, st, False)
-        jac = np.moveaxis((rk.reshape(p, len(todo), -1) - r0[None]) / steps[:, None, None], 0, -1)
-        jtj = np.einsum("bmi,bmj->bij", jac, jac)
-        grad = np.einsum("bmi,bm->bi", jac, r0)
+        new_j = todo[~fresh[todo]]
+        if new_j.size:
+            # forward differences, every parameter of every problem in one call, state fixed;
+            # the unperturbed point in the same call
+            sj = _take(state, new_j)
+            nj = len(new_j)
+            pert = np.repeat(theta[new_j][None], p + 1, axis=0)
+            for k in range(p):
+                pert[k + 1, :, k] += steps[k]
+            rk, _, _ = fun(pert.reshape((p + 1) * nj, p), np.tile(new_j, p + 1),
+                           {k: np.tile(v, (p + 1,) + (1,) * (v.ndim - 1)) for k, v in sj.items()},
+                           False)
+            rk = rk.reshape(p + 1, nj, -1)
+            jac = np.moveaxis((rk[1:] - rk[0][None]) / steps[:, None, None], 0, -1)
+            jtj_all[new_j] = np.einsum("bmi,bmj->bij", jac, jac)
+            grad_all[new_j] = np.einsum("bmi,bm->bi", jac, rk[0])
+            fresh[new_j] = True
+        jtj = jtj_all[todo]
+        grad = grad_all[todo]
         # a parameter resting on its bound with the gradient pushing out of it stays there
         pinned = (th <= lower[None, :]) & (grad > 0)
         dg = np.sqrt(np.einsum("bii->bi", jtj))
@@ -387,6 +401,7 @@ def levenberg_marquardt_batch(fun, theta, lower, steps, max_iter: int = MAX_DRAW
         pred = -(2.0 * np.einsum("bi,bi->b", h, grad) + np.einsum("bi,bij,bj->b", h, jtj, h))
         rho = np.clip(np.where(ok, gain / np.maximum(pred, 1e-300), 0.0), 0.0, 1.0)
         acc = todo[ok]
+        fresh[acc] = False
         theta[acc] = new[ok]
         r[acc] = r_new[ok]
         extra[acc] = x_new[ok]
