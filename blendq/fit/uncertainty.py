@@ -28,12 +28,11 @@ from blendq.fit import constrained_lsq as qp
 from blendq.fit.estimation import (
     FitResult,
     Problem,
-    level_depths,
+    hydraulic_residuals_batch,
     row_weights,
     scaled_pinv,
     solve_concentrations,
 )
-from blendq.well import mixing
 from blendq.well.hydraulics import solve_by_zone
 from blendq.well.mixing import intake_weights, intake_weights_by_zone
 
@@ -200,29 +199,8 @@ def draw_misfit(fit: FitResult, draws: Draws) -> dict[str, np.ndarray]:
     return out
 
 
-def _hydraulic_residuals_batch(problem: Problem, theta, model) -> np.ndarray:
-    """Prior, flow-log and level residuals (stated errors) of a batch of theta, (B, rows)."""
-    p = problem.prior
-    n = problem.n_zones
-    bsz = theta.shape[0]
-    parts = []
-    fg = np.isfinite(p.log_conductance_sd)
-    parts.append((theta[:, :n][:, fg] - p.log_conductance[fg]) / p.log_conductance_sd[fg])
-    fh = np.isfinite(p.static_head_sd)
-    parts.append((theta[:, n:2 * n][:, fh] - p.static_head[fh]) / p.static_head_sd[fh])
-    logs = problem.log_rows
-    if len(logs):
-        pred = np.empty((bsz, len(logs)))
-        for rate, idx in logs.groupby("rate").groups.items():
-            st = model.state(np.array([float(rate)]))
-            pred[:, np.asarray(idx)] = mixing.wellbore_flow(
-                st.zone_flow[:, 0], model.geometry, logs.loc[idx, "depth"].to_numpy(float))
-        parts.append((pred - logs["upward_flow"].to_numpy(float)) / problem.log_sd)
-    if len(problem.level_rate):
-        # the same level model as the fit (superposed in time where a zone is transient)
-        depth = level_depths(problem, model)
-        parts.append((depth - problem.level_depth) / problem.level_sd)
-    return np.concatenate(parts, axis=1) if parts else np.zeros((bsz, 0))
+#: the prior, flow-log and level residuals of a batch (shared with the fit's Jacobian)
+_hydraulic_residuals_batch = hydraulic_residuals_batch
 
 
 class _PerturbedData:
