@@ -7,11 +7,13 @@ and static heads varying smoothly with depth, two analytes, a flow log at rest a
 process, which prints the time of the joint fit, of the 1,000 posterior draws
 (:func:`blendq.fit.uncertainty.monte_carlo`) and of the zone table, and its peak memory
 (maximum resident set size). Baseline, measured in the same run: the 4-zone, 5-step case.
-Then the fitted exponents b of time = a n^b over zones (10 steps) and over steps (10 zones);
+Then the fitted exponents b of time = a n^b over zones (10 steps) and over steps (at each of
+``--step-zones``);
 a case whose fit runs out of its time budget (``fit_time_budget``) is printed as such.
 Target: 30 zones, 10 steps, 1,000 draws in under 30 s on 2 cores; peak memory under 2 GB.
 
-    python benchmarks/bench_zones.py             # all cases, a few minutes
+    python benchmarks/bench_zones.py             # zones 4 10 20 30, steps 5 10 20 at 4, 10 zones
+    python benchmarks/bench_zones.py --zones 4 10 --steps 5 10 --step-zones 4   # a subset
     python benchmarks/bench_zones.py --one 30 10 # one case
 """
 
@@ -49,10 +51,9 @@ def well(n_zones: int, n_steps: int):
 
 
 def one(n_zones: int, n_steps: int, draws: int) -> dict:
+    from blendq.errors import ModelError
     from blendq.fit import diagnostics, uncertainty
     from blendq.fit.estimation import fit
-
-    from blendq.errors import ModelError
 
     p = well(n_zones, n_steps)
     t0 = time.perf_counter()
@@ -91,25 +92,41 @@ def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--one", nargs=2, type=int, metavar=("ZONES", "STEPS"))
     ap.add_argument("--draws", type=int, default=1000)
+    ap.add_argument("--zones", type=int, nargs="+", default=[4, 10, 20, 30],
+                    help="zone counts at 10 steps")
+    ap.add_argument("--steps", type=int, nargs="+", default=[5, 10, 20],
+                    help="step counts at each of --step-zones")
+    ap.add_argument("--step-zones", type=int, nargs="+", default=[4, 10])
     args = ap.parse_args()
     if args.one:
         print(json.dumps(one(*args.one, args.draws)))
         return
     print(f"{'zones':>6} {'steps':>6} {'fit [s]':>8} {'draws [s]':>9} {'table':>8} {'total':>8}"
           f" {'peak [MB]':>9}")
-    base = case(4, 5, args.draws)
-    zones = [5, 10, 20, 30]
-    by_zone = [case(n, 10, args.draws) for n in zones]
-    steps = [4, 6, 10]
-    by_step = [case(10, m, args.draws) if m != 10 else by_zone[1] for m in steps]
-    target = by_zone[-1]
-    print(f"baseline 4 zones, 5 steps: {base['total']:.2f} s; 30 zones, 10 steps: "
-          f"{target['total']:.2f} s ({target['total'] / base['total']:.1f} x the baseline; "
-          f"target < 30 s), peak {target['peak_mb']:.0f} MB (target < 2,048 MB)")
-    done = [(n, c["total"]) for n, c in zip(zones, by_zone, strict=True) if np.isfinite(c["total"])]
-    print(f"fitted exponent over zones (10 steps, finished cases {[n for n, _ in done]}): "
-          f"{exponent(*zip(*done)):.2f}; over steps (10 zones): "
-          f"{exponent(steps, [c['total'] for c in by_step]):.2f}")
+    done: dict[tuple[int, int], dict] = {}
+
+    def run(n, m):
+        if (n, m) not in done:
+            done[(n, m)] = case(n, m, args.draws)
+        return done[(n, m)]
+
+    base = run(4, 5)
+    by_zone = [run(n, 10) for n in args.zones]
+    by_step = {z: [run(z, m) for m in args.steps] for z in args.step_zones}
+    big = by_zone[-1]
+    print(f"baseline 4 zones, 5 steps: {base['total']:.2f} s; {args.zones[-1]} zones, 10 steps: "
+          f"{big['total']:.2f} s ({big['total'] / base['total']:.1f} x the baseline; "
+          f"target at 30 zones < 30 s), peak {big['peak_mb']:.0f} MB (target < 2,048 MB)")
+    ok = [(n, c["total"]) for n, c in zip(args.zones, by_zone, strict=True)
+          if np.isfinite(c["total"])]
+    if len(ok) >= 2:
+        sizes, times = zip(*ok, strict=True)
+        print(f"fitted exponent of time over zones (10 steps, zones {list(sizes)}): "
+              f"{exponent(sizes, times):.2f}")
+    for z, cases in by_step.items():
+        if len(cases) >= 2:
+            print(f"fitted exponent of time over steps ({z} zones, steps {args.steps}): "
+                  f"{exponent(args.steps, [c['total'] for c in cases]):.2f}")
 
 
 if __name__ == "__main__":

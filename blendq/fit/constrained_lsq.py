@@ -249,6 +249,7 @@ def solve_on_active_set(a, y, sigma, g, h, active, rtol=1e-9, with_changes: bool
     """
     a = np.asarray(a, float)
     bsz, m, n = a.shape
+    shared = np.asarray(g, float)
     g = np.broadcast_to(g, (bsz,) + g.shape[1:])
     k = g.shape[1]
     w = 1.0 / np.broadcast_to(np.asarray(sigma, float), (bsz, m))
@@ -260,6 +261,10 @@ def solve_on_active_set(a, y, sigma, g, h, active, rtol=1e-9, with_changes: bool
     hess = hess / s[:, None, None]
     grad = grad / s[:, None]
     act = np.asarray(active, float)
+    fast = _solve_bounds_only(hess, grad, shared, h, act)
+    if fast is not None:
+        c, lam = fast
+        return _optimality(c, lam, g, h, act, grad, rtol, with_changes)
     kkt = np.zeros((bsz, n + k, n + k))
     kkt[:, :n, :n] = hess
     kkt[:, :n, n:] = np.swapaxes(g, 1, 2) * act[:, None, :]
@@ -274,7 +279,11 @@ def solve_on_active_set(a, y, sigma, g, h, active, rtol=1e-9, with_changes: bool
         sol = np.linalg.solve(kkt, rhs[..., None])[..., 0]
     except np.linalg.LinAlgError:  # dependent active constraints: least squares
         sol = np.einsum("bij,bj->bi", np.linalg.pinv(kkt, rcond=1e-12), rhs)
-    c, lam = sol[:, :n], sol[:, n:]
+    return _optimality(sol[:, :n], sol[:, n:], g, h, act, grad, rtol, with_changes)
+
+
+def _optimality(c, lam, g, h, act, grad, rtol, with_changes):
+    """The Karush-Kuhn-Tucker checks of :func:`solve_on_active_set`."""
     gc = np.einsum("bkn,bn->bk", g, c)
     scale = 1.0 + np.abs(h)[None, :] + np.abs(c).max(1, keepdims=True)
     violated = gc > h + rtol * scale
@@ -285,6 +294,39 @@ def solve_on_active_set(a, y, sigma, g, h, active, rtol=1e-9, with_changes: bool
     if with_changes:
         return c, optimal, violated, released
     return c, optimal
+
+
+def _solve_bounds_only(hess, grad, g, h, act):
+    """The system of :func:`solve_on_active_set` when every constraint is a bound shared by
+    the batch (no censored rows) and no zone has two active bounds: the zones on an active
+    bound are fixed at it and the free zones solve an n x n system instead of the (n + K)
+    square KKT system (the same solution; the multiplier of an active bound is the gradient
+    left in its zone's row). None when the constraints are not of that form."""
+    if g.shape[0] != 1:
+        return None
+    rows = g[0]
+    nz = rows != 0
+    if rows.shape[0] and not (np.all(nz.sum(1) == 1) and np.all(np.abs(rows[nz]) == 1.0)):
+        return None
+    bsz, n = grad.shape
+    onehot = nz.astype(float)  # (K, n): the zone of each bound
+    sgn = rows.sum(1)  # +1 upper, -1 lower: sgn c_i <= h at equality c_i = sgn h
+    if np.any(act @ onehot > 1):
+        return None
+    fixed = (act @ onehot) > 0
+    value = (act * (sgn * h)[None, :]) @ onehot
+    free = ~fixed
+    mat = hess + 1e-10 * np.eye(n)[None]
+    rhs = np.where(free, grad - np.einsum("bij,bj->bi", mat, value), value)
+    red = np.where(free[:, :, None] & free[:, None, :], mat, 0.0)
+    red[:, np.arange(n), np.arange(n)] += fixed
+    try:
+        c = np.linalg.solve(red, rhs[..., None])[..., 0]
+    except np.linalg.LinAlgError:
+        c = np.einsum("bij,bj->bi", np.linalg.pinv(red, rcond=1e-12), rhs)
+    left = grad - np.einsum("bij,bj->bi", mat, c)  # G^T lam on the fixed zones
+    lam = act * sgn[None, :] * (left @ onehot.T)
+    return c, lam
 
 
 def solve_by_active_sets(a, y, sigma, g, h, active, max_iter: int = 60, rtol=1e-9):

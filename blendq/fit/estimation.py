@@ -290,6 +290,72 @@ def residuals(problem: Problem, theta) -> np.ndarray:
     return np.concatenate(res) if res else np.zeros(0)
 
 
+def hydraulic_residuals_batch(problem: Problem, theta, model: WellModel) -> np.ndarray:
+    """Prior, flow-log and level residuals (stated errors) of a batch of theta (B, n_theta)
+    with its batched ``model``: shape (B, rows), rows as in :func:`residuals`."""
+    p = problem.prior
+    n = problem.n_zones
+    theta = np.asarray(theta, float)
+    bsz = theta.shape[0]
+    parts = []
+    fg = np.isfinite(p.log_conductance_sd)
+    parts.append((theta[:, :n][:, fg] - p.log_conductance[fg]) / p.log_conductance_sd[fg])
+    fh = np.isfinite(p.static_head_sd)
+    parts.append((theta[:, n:2 * n][:, fh] - p.static_head[fh]) / p.static_head_sd[fh])
+    logs = problem.log_rows
+    if len(logs):
+        pred = np.empty((bsz, len(logs)))
+        groups = _log_groups(logs)
+        flows = model.state(np.array([g[0] for g in groups], float)).zone_flow
+        for k, (_, at, depths) in enumerate(groups):
+            pred[:, at] = mixing.wellbore_flow(flows[:, k], model.geometry, depths)
+        parts.append((pred - logs["upward_flow"].to_numpy(float)) / problem.log_sd)
+    if len(problem.level_rate):
+        # the same level model as the fit (superposed in time where a zone is transient)
+        parts.append((level_depths(problem, model) - problem.level_depth) / problem.level_sd)
+    return np.concatenate(parts, axis=1) if parts else np.zeros((bsz, 0))
+
+
+def residuals_batch(problem: Problem, theta) -> np.ndarray:
+    """Whitened residuals of :func:`residuals` at a batch of theta (B, n_theta), (B, rows).
+
+    The zone values of each analyte are solved for the whole batch at once: the constrained
+    solve of the first row (:func:`solve_concentrations`) gives the starting active set, the
+    equality-constrained problem on it is solved for every row, and a row whose solution
+    breaks the Karush-Kuhn-Tucker conditions moves constraints in and out of its active set
+    (:func:`blendq.fit.constrained_lsq.solve_by_active_sets`); only a row left unsolved falls
+    back to the one-problem solver. Meant for nearby theta (a finite-difference Jacobian).
+    """
+    theta = np.asarray(theta, float)
+    model = problem.model(theta)
+    parts = [hydraulic_residuals_batch(problem, theta, model)]
+    for analyte, d in problem.data.items():
+        a = row_weights(model, d.rate, d.depth)
+        cens = len(d.cens_limit) > 0
+        ac = row_weights(model, d.cens_rate, d.cens_depth) if cens else None
+        lb, ub = problem.bounds(analyte)
+        g, h = qp.constraint_rows(lb, ub, ac, d.cens_limit if cens else None)
+        c0 = qp.solve_censored_lsq(a[0], d.value, d.sigma, lb, ub, ac[0] if cens else None,
+                                   d.cens_limit if cens else None)
+        start = qp.active_constraints(c0[None], g[:1], h)[0]
+        y = np.broadcast_to(d.value, a.shape[:2])
+        act = np.broadcast_to(start, (len(theta), len(h))).copy()
+        c, optimal = qp.solve_on_active_set(a, y, d.sigma, g, h, act)
+        if not np.all(optimal):
+            bad = np.flatnonzero(~optimal)
+            c[bad], solved, _ = qp.solve_by_active_sets(
+                a[bad], y[bad], d.sigma, g if g.shape[0] == 1 else g[bad], h, act[bad])
+            for b in bad[~solved]:
+                c[b] = qp.solve_censored_lsq(a[b], d.value, d.sigma, lb, ub,
+                                             ac[b] if cens else None,
+                                             d.cens_limit if cens else None)
+        parts.append((np.einsum("bmn,bn->bm", a, c) - d.value) / d.sigma)
+        if cens:
+            parts.append(np.maximum(np.einsum("bpn,bn->bp", ac, c) - d.cens_limit, 0.0)
+                         / np.maximum(d.cens_limit, 1e-12))
+    return np.concatenate(parts, axis=1)
+
+
 def initial_theta(problem: Problem) -> np.ndarray:
     """The prior values of theta (flat priors: G = 100 m^2/d per zone, h0 = 0)."""
     p = problem.prior
@@ -563,11 +629,17 @@ def _fit_hydraulics(problem: Problem):
             raise _OutOfTime
         return residuals(problem, t)
 
+    def jac(t):
+        # scipy's 2-point differences, all columns in one batched residual call
+        if time.process_time() > t_end:
+            raise _OutOfTime
+        return jacobian_batch(problem, t, difference_steps(t))
+
     best, failures = None, []
     for k, theta0 in enumerate(starting_points(problem)):
         try:
-            sol = optimize.least_squares(fun, np.clip(theta0, lo, hi), bounds=(lo, hi),
-                                         method="trf", x_scale="jac", xtol=1e-12, ftol=1e-12,
+            sol = optimize.least_squares(fun, np.clip(theta0, lo, hi), jac=jac,
+                                         bounds=(lo, hi), method="trf", x_scale="jac", xtol=1e-12, ftol=1e-12,
                                          gtol=1e-12, max_nfev=400 * (len(theta0) + 1))
         except _OutOfTime:
             failures.append(f"start {k + 1} ran out of time")
@@ -603,12 +675,34 @@ def scaled_pinv(jac: np.ndarray, rcond: float = 1e-10) -> np.ndarray:
 
 
 def _jacobian(problem: Problem, theta) -> np.ndarray:
-    """Forward-difference Jacobian of the whitened residuals."""
-    r0 = residuals(problem, theta)
-    jac = np.empty((len(r0), len(theta)))
-    for k in range(len(theta)):
-        step = 1e-6 * max(1.0, abs(theta[k]))
-        t = theta.copy()
-        t[k] += step
-        jac[:, k] = (residuals(problem, t) - r0) / step
-    return jac
+    """Forward-difference Jacobian of the whitened residuals (:func:`jacobian_batch` with the
+    steps 1e-6 max(1, |theta_k|))."""
+    theta = np.asarray(theta, float)
+    return jacobian_batch(problem, theta, 1e-6 * np.maximum(1.0, np.abs(theta)))
+
+
+def difference_steps(theta) -> np.ndarray:
+    """The forward-difference steps of scipy's ``2-point`` scheme: sqrt(eps) sign(theta)
+    max(1, |theta|), sign(0) = +1, rounded to representable increments (theta lies inside its
+    bounds, which are lower bounds at zero on entries that are >= 0, so no step leaves them)."""
+    theta = np.asarray(theta, float)
+    sign = np.where(theta >= 0, 1.0, -1.0)
+    h = np.sqrt(np.finfo(float).eps) * sign * np.maximum(1.0, np.abs(theta))
+    return (theta + h) - theta
+
+
+def jacobian_batch(problem: Problem, theta, steps) -> np.ndarray:
+    """Forward-difference Jacobian of the whitened residuals at ``theta`` with ``steps``,
+    every perturbed parameter set evaluated in one batched residual call (:func:`residuals_batch`,
+    the unperturbed point in the same batch so that its zone values come from the same solver).
+
+    Equals the column-by-column difference of :func:`residuals` up to the rounding of the zone
+    solve (the tests check rtol 1e-8).
+    """
+    theta = np.asarray(theta, float)
+    steps = np.asarray(steps, float)
+    p = len(theta)
+    pert = np.repeat(theta[None], p + 1, axis=0)
+    pert[np.arange(1, p + 1), np.arange(p)] += steps
+    r = residuals_batch(problem, pert)
+    return ((r[1:] - r[0]) / steps[:, None]).T

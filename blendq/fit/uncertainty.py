@@ -28,12 +28,11 @@ from blendq.fit import constrained_lsq as qp
 from blendq.fit.estimation import (
     FitResult,
     Problem,
-    level_depths,
+    hydraulic_residuals_batch,
     row_weights,
     scaled_pinv,
     solve_concentrations,
 )
-from blendq.well import mixing
 from blendq.well.hydraulics import solve_by_zone
 from blendq.well.mixing import intake_weights, intake_weights_by_zone
 
@@ -200,29 +199,8 @@ def draw_misfit(fit: FitResult, draws: Draws) -> dict[str, np.ndarray]:
     return out
 
 
-def _hydraulic_residuals_batch(problem: Problem, theta, model) -> np.ndarray:
-    """Prior, flow-log and level residuals (stated errors) of a batch of theta, (B, rows)."""
-    p = problem.prior
-    n = problem.n_zones
-    bsz = theta.shape[0]
-    parts = []
-    fg = np.isfinite(p.log_conductance_sd)
-    parts.append((theta[:, :n][:, fg] - p.log_conductance[fg]) / p.log_conductance_sd[fg])
-    fh = np.isfinite(p.static_head_sd)
-    parts.append((theta[:, n:2 * n][:, fh] - p.static_head[fh]) / p.static_head_sd[fh])
-    logs = problem.log_rows
-    if len(logs):
-        pred = np.empty((bsz, len(logs)))
-        for rate, idx in logs.groupby("rate").groups.items():
-            st = model.state(np.array([float(rate)]))
-            pred[:, np.asarray(idx)] = mixing.wellbore_flow(
-                st.zone_flow[:, 0], model.geometry, logs.loc[idx, "depth"].to_numpy(float))
-        parts.append((pred - logs["upward_flow"].to_numpy(float)) / problem.log_sd)
-    if len(problem.level_rate):
-        # the same level model as the fit (superposed in time where a zone is transient)
-        depth = level_depths(problem, model)
-        parts.append((depth - problem.level_depth) / problem.level_sd)
-    return np.concatenate(parts, axis=1) if parts else np.zeros((bsz, 0))
+#: the prior, flow-log and level residuals of a batch (shared with the fit's Jacobian)
+_hydraulic_residuals_batch = hydraulic_residuals_batch
 
 
 class _PerturbedData:
@@ -301,12 +279,73 @@ class _PerturbedData:
         return np.concatenate(parts, axis=1), zv, new_active
 
 
+    def jacobian(self, theta, idx, active, steps):
+        """Residuals (B, rows) and their Jacobian (B, rows, p) at ``theta`` (B, p) with the
+        active sets held fixed, or None where a non-detect or a zone with two active bounds
+        needs the general solve (the caller then differences :meth:`residuals`).
+
+        The weights and the hydraulic residuals are differenced forward with ``steps``; the
+        zone values are differentiated exactly on their active set (variable projection,
+        Golub and Pereyra 1973): with the zones on a bound fixed, the free zones solve
+        H c = A^T W^2 y, so dc = H_free^-1 (-dA^T W^2 (A c - y) - A^T W^2 dA c) and
+        dr = W (dA c + A dc). One factorisation per draw instead of one solve per parameter.
+        """
+        problem = self.problem
+        bsz, p = theta.shape
+        bounds = {}
+        for analyte in self.analytes:
+            if len(problem.data[analyte].cens_limit):
+                return None
+            lb, ub = problem.bounds(analyte)
+            g, h = qp.constraint_rows(lb, ub)
+            onehot = (g[0] != 0).astype(float)
+            if np.any(active[analyte].astype(float) @ onehot > 1):
+                return None
+            bounds[analyte] = (g, h, onehot)
+        pert = np.repeat(theta[None], p + 1, axis=0)
+        pert[np.arange(1, p + 1), :, np.arange(p)] += steps[:, None]
+        flat = pert.reshape((p + 1) * bsz, p)
+        model = problem.model(flat)
+        rh = (_hydraulic_residuals_batch(problem, flat, model) / self.hyd_scale).reshape(
+            p + 1, bsz, -1)
+        res = [rh[0] - self.eps[idx, :self.n_hyd]]
+        jac = [(rh[1:] - rh[0][None]) / steps[:, None, None]]
+        n = problem.n_zones
+        for analyte in self.analytes:
+            d = problem.data[analyte]
+            g, h, onehot = bounds[analyte]
+            aa = row_weights(model, d.rate, d.depth).reshape(p + 1, bsz, len(d.value), n)
+            a = aa[0]
+            da = (aa[1:] - a[None]) / steps[:, None, None, None]  # (p, B, m, n)
+            y = self.y[analyte][idx]
+            sig = self.sigma[analyte]
+            act = active[analyte]
+            c, _ = qp.solve_on_active_set(a, y, sig, g, h, act)
+            w2 = 1.0 / sig**2
+            wa = a * w2[None, :, None]
+            hess = np.einsum("bmi,bmj->bij", wa, a)
+            # the ridge of the active-set solve (1e-10 of the largest curvature)
+            ridge = 1e-10 * np.maximum(np.einsum("bii->bi", hess).max(1), 1e-300)
+            fixed = (act.astype(float) @ onehot) > 0
+            free = ~fixed
+            red = np.where(free[:, :, None] & free[:, None, :], hess, 0.0)
+            red[:, np.arange(n), np.arange(n)] += np.where(fixed, 1.0, ridge[:, None])
+            raw = np.einsum("bmn,bn->bm", a, c) - y
+            dac = np.einsum("kbmn,bn->kbm", da, c)  # dA c
+            rhs = -(np.einsum("kbmn,bm->kbn", da, raw * w2) + np.einsum("bmn,kbm->kbn", wa, dac))
+            rhs = np.where(free[None], rhs, 0.0)
+            dc = np.linalg.solve(red, np.moveaxis(rhs, 0, -1))  # (B, n, p)
+            res.append(raw / sig)
+            jac.append((dac + np.einsum("bmn,bnk->kbm", a, dc)) / sig)
+        return np.concatenate(res, axis=1), np.moveaxis(np.concatenate(jac, axis=2), 0, -1)
+
+
 def _take(state, rows):
     return {k: v[rows] for k, v in state.items()}
 
 
 def levenberg_marquardt_batch(fun, theta, lower, steps, max_iter: int = MAX_DRAW_ITERATIONS,
-                              tol: float = DRAW_CHI2_TOL):
+                              tol: float = DRAW_CHI2_TOL, jac_fun=None):
     """Minimise many sums of squares at once by Levenberg-Marquardt.
 
     Parameters
@@ -323,6 +362,9 @@ def levenberg_marquardt_batch(fun, theta, lower, steps, max_iter: int = MAX_DRAW
         Forward-difference steps.
     max_iter : int
     tol : float
+    jac_fun : callable(theta (B, p), rows (B,), state) -> (r (B, m), J (B, m, p)) or None
+        Residuals and Jacobian of the problems ``rows`` with ``state`` held fixed; when absent
+        or returning None the Jacobian is differenced forward from ``fun``.
         A problem has converged when an accepted step, or the full Gauss-Newton step, lowers its
         sum of squares by less than ``tol`` (1 + sum of squares).
 
@@ -349,22 +391,43 @@ def levenberg_marquardt_batch(fun, theta, lower, steps, max_iter: int = MAX_DRAW
     nu = np.full(bsz, 2.0)
     done = np.zeros(bsz, bool)
     eye = np.eye(p)[None]
+    # the Jacobian of each problem at its current point, kept until a step is accepted (a
+    # rejected step leaves theta and the state as they were, so it would come out the same)
+    jtj_all = np.zeros((bsz, p, p))
+    grad_all = np.zeros((bsz, p))
+    fresh = np.zeros(bsz, bool)
     for _ in range(max_iter):
         todo = np.flatnonzero(~done)
         if not todo.size:
             break
         st = _take(state, todo)
         th = theta[todo]
-        # forward differences, every parameter of every problem in one call, state held fixed
-        pert = np.repeat(th[None], p, axis=0)
-        for k in range(p):
-            pert[k, :, k] += steps[k]
-        rk, _, _ = fun(pert.reshape(p * len(todo), p), np.tile(todo, p),
-                       {k: np.tile(v, (p,) + (1,) * (v.ndim - 1)) for k, v in st.items()}, False)
-        r0, _, _ = fun(th, todo, st, False)
-        jac = np.moveaxis((rk.reshape(p, len(todo), -1) - r0[None]) / steps[:, None, None], 0, -1)
-        jtj = np.einsum("bmi,bmj->bij", jac, jac)
-        grad = np.einsum("bmi,bm->bi", jac, r0)
+        new_j = todo[~fresh[todo]]
+        exact = jac_fun(theta[new_j], new_j, _take(state, new_j)) \
+            if jac_fun is not None and new_j.size else None
+        if exact is not None:
+            r0, jac = exact
+            jtj_all[new_j] = np.einsum("bmi,bmj->bij", jac, jac)
+            grad_all[new_j] = np.einsum("bmi,bm->bi", jac, r0)
+            fresh[new_j] = True
+        elif new_j.size:
+            # forward differences, every parameter of every problem in one call, state fixed;
+            # the unperturbed point in the same call
+            sj = _take(state, new_j)
+            nj = len(new_j)
+            pert = np.repeat(theta[new_j][None], p + 1, axis=0)
+            for k in range(p):
+                pert[k + 1, :, k] += steps[k]
+            rk, _, _ = fun(pert.reshape((p + 1) * nj, p), np.tile(new_j, p + 1),
+                           {k: np.tile(v, (p + 1,) + (1,) * (v.ndim - 1)) for k, v in sj.items()},
+                           False)
+            rk = rk.reshape(p + 1, nj, -1)
+            jac = np.moveaxis((rk[1:] - rk[0][None]) / steps[:, None, None], 0, -1)
+            jtj_all[new_j] = np.einsum("bmi,bmj->bij", jac, jac)
+            grad_all[new_j] = np.einsum("bmi,bm->bi", jac, rk[0])
+            fresh[new_j] = True
+        jtj = jtj_all[todo]
+        grad = grad_all[todo]
         # a parameter resting on its bound with the gradient pushing out of it stays there
         pinned = (th <= lower[None, :]) & (grad > 0)
         dg = np.sqrt(np.einsum("bii->bi", jtj))
@@ -387,6 +450,7 @@ def levenberg_marquardt_batch(fun, theta, lower, steps, max_iter: int = MAX_DRAW
         pred = -(2.0 * np.einsum("bi,bi->b", h, grad) + np.einsum("bi,bij,bj->b", h, jtj, h))
         rho = np.clip(np.where(ok, gain / np.maximum(pred, 1e-300), 0.0), 0.0, 1.0)
         acc = todo[ok]
+        fresh[acc] = False
         theta[acc] = new[ok]
         r[acc] = r_new[ok]
         extra[acc] = x_new[ok]
@@ -422,7 +486,10 @@ def _refit_draws(fit: FitResult, data: _PerturbedData, idx: np.ndarray):
     lower = problem.lower_bounds()
     sd = np.sqrt(np.clip(np.diag(fit.theta_cov), 0.0, None))
     steps = 1e-4 * np.where(sd > 0, sd, 1e-6 * np.maximum(1.0, np.abs(fit.theta)))
-    return levenberg_marquardt_batch(fun, theta, lower, steps)
+    def jac_fun(th, rows, state):
+        return data.jacobian(th, idx[rows], state, steps)
+
+    return levenberg_marquardt_batch(fun, theta, lower, steps, jac_fun=jac_fun)
 
 
 @dataclass(frozen=True)

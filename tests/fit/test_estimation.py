@@ -471,3 +471,36 @@ def test_running_out_of_time_after_a_first_start_is_an_error_not_a_result(monkey
     monkeypatch.setattr(estimation.optimize, "least_squares", first_then_slow)
     with pytest.raises(ModelError, match="fit_time_budget"):
         estimation._fit_hydraulics(problem)
+
+
+def _many_zone_well(n_zones: int = 12):
+    from blendq.well.synthetic import synthetic_project
+
+    k = np.arange(n_zones)
+    top = 30.0 + 5.0 * k
+    bottom = top + 4.0
+    conc = {"nitrate": 2.0 + 10.0 * np.sin(0.3 * k) ** 2,
+            "arsenic": 0.002 + 0.02 * np.cos(0.4 * k) ** 2}
+    return synthetic_project(60.0 + 40.0 * np.sin(0.7 * k) ** 2, -10.0 - 3.0 * np.cos(0.5 * k),
+                             top, bottom, conc, np.linspace(300.0, 3000.0, 6), 25.0,
+                             relative_error=0.05, well_loss=2e-7, flowlog_rates=[0.0, 1500.0],
+                             flowlog_depths=[27.0, *(top[1:] - 0.5), float(bottom[-1]) + 2.0],
+                             level_noise=0.05, seed=5)
+
+
+@pytest.mark.parametrize("which", [0, 1])
+def test_batched_jacobian_equals_column_by_column_differences(which):
+    # the batched Jacobian of the hydraulic fit against the plain forward difference of
+    # residuals(), one parameter at a time (the definition of a forward difference)
+    problem = estimation.build_problem(_many_zone_well())
+    theta = estimation.starting_points(problem)[which]
+    steps = estimation.difference_steps(theta)
+    batched = estimation.jacobian_batch(problem, theta, steps)
+    r0 = estimation.residuals(problem, theta)
+    one = np.empty_like(batched)
+    for k in range(len(theta)):
+        t = theta.copy()
+        t[k] += steps[k]
+        one[:, k] = (estimation.residuals(problem, t) - r0) / steps[k]
+    assert batched.shape == (len(r0), len(theta))
+    np.testing.assert_allclose(batched, one, rtol=1e-8, atol=1e-8 * np.abs(one).max())

@@ -406,3 +406,31 @@ def test_discrepancy_widens_a_missed_group_and_says_so():
     sd_wide = uncertainty.predict(result, wide, rates).pumping_level.std(0)
     sd_narrow = uncertainty.predict(result, narrow, rates).pumping_level.std(0)
     assert np.all(sd_wide > 2 * sd_narrow)
+
+
+def test_draw_jacobian_matches_differences_of_the_residuals(joint):
+    # variable projection (Golub and Pereyra 1973): on a fixed active set the Jacobian of the
+    # projected residuals equals their forward difference up to its truncation error
+    result, _ = joint
+    problem = result.problem
+    rng = np.random.default_rng(3)
+    layout = uncertainty.draw_layout(problem)
+    eps = rng.standard_normal((6, max(sl.stop for sl in layout.values())))
+    data = uncertainty._PerturbedData(problem, eps, {}, list(result.analytes), result.model)
+    sd = np.sqrt(np.diag(result.theta_cov))
+    idx = np.arange(6)
+    theta = result.theta[None] + 0.3 * sd * rng.standard_normal((6, len(sd)))
+    theta = np.maximum(theta, problem.lower_bounds())
+    r, _, state = data.residuals(theta, idx, None, True)
+    steps = 1e-5 * sd
+    out = data.jacobian(theta, idx, state, steps)
+    assert out is not None
+    r0, jac = out
+    np.testing.assert_allclose(r0, r, rtol=1e-9, atol=1e-9)
+    diff = np.empty_like(jac)
+    for k in range(len(sd)):
+        t = theta.copy()
+        t[:, k] += steps[k]
+        rk, _, _ = data.residuals(t, idx, state, False)
+        diff[..., k] = (rk - r0) / steps[k]
+    np.testing.assert_allclose(jac, diff, rtol=1e-3, atol=1e-4 * np.abs(diff).max())
