@@ -215,11 +215,11 @@ class Table:
 
     def raw(self, row: int, column: str) -> str:
         """Stripped text of a cell ("" when the column or the cell is absent)."""
-        if column not in self.columns:
+        index = self._index.get(column)
+        if index is None:
             return ""
-        cells = self._cells[row]
-        index = self.columns[column][0]
-        return cells[index].strip() if index < len(cells) else ""
+        cells = self._stripped[row]
+        return cells[index] if index < len(cells) else ""
 
     def number_text(self, row: int, column: str, text: str) -> float:
         try:
@@ -243,8 +243,17 @@ class Table:
             yield row, (lambda column, row=row: self._value(row, column))
 
     def _value(self, row: int, column: str):
-        kind, _, needed = self.spec[column]
         text = self.raw(row, column)
+        key = (column, text)
+        if key in self._parsed:  # a long table repeats its cells: each text is parsed once
+            return self._parsed[key]
+        value = self._parsed[key] = self._parse(row, column, text)
+        return value
+
+    def _parse(self, row: int, column: str, text: str):
+        """The value of ``text`` in ``column`` (errors name ``row``); a function of the column
+        and the text alone, so that :meth:`_value` may keep it."""
+        kind, _, needed = self.spec[column]
         if not text:
             if needed:
                 raise self.error(row, column, "is empty (a value is required)")
@@ -256,13 +265,10 @@ class Table:
                 raise self.error(row, column, f'"{text}" is not true or false')
             return _FLAGS[text.lower()]
         if kind == "date":
-            if text in self._times:  # a long table repeats its times
-                return self._times[text]
             try:
-                stamp = self._times[text] = parse_time(text)
+                return parse_time(text)
             except InputError as err:
                 raise located(err, self.label, row, column) from None
-            return stamp
         try:
             number = parse_number(text, self.decimal_comma)
         except InputError as err:
@@ -281,8 +287,9 @@ class Table:
         return number
 
     def __post_init__(self) -> None:
-        self._cells = dict(self.rows)
-        self._times: dict[str, pd.Timestamp] = {}
+        self._stripped = {row: [c.strip() for c in cells] for row, cells in self.rows}
+        self._index = {column: index for column, (index, _) in self.columns.items()}
+        self._parsed: dict[tuple[str, str], object] = {}
         self._affine = {}
         for column, (_, unit) in self.columns.items():
             kind = self.spec[column][0]
