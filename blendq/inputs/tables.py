@@ -229,9 +229,14 @@ class Table:
 
     def number_in(self, row: int, column: str) -> float:
         """Number of a "raw" cell, NaN when empty or "ND"; a leading "<" is dropped."""
-        text = self.raw(row, column)
-        text = text[1:].strip() if text.startswith("<") else text
-        return math.nan if text.lower() in _NO_NUMBER else self.number_text(row, column, text)
+        cell = self.raw(row, column)
+        key = ("<number>", column, cell)
+        if key in self._parsed:  # each text of a column is read once
+            return self._parsed[key]
+        text = cell[1:].strip() if cell.startswith("<") else cell
+        number = math.nan if text.lower() in _NO_NUMBER else self.number_text(row, column, text)
+        self._parsed[key] = number
+        return number
 
     def keep(self, rows: set[int]) -> None:
         """Keep only the data rows numbered in ``rows`` (rows of other wells are dropped)."""
@@ -289,7 +294,7 @@ class Table:
     def __post_init__(self) -> None:
         self._stripped = {row: [c.strip() for c in cells] for row, cells in self.rows}
         self._index = {column: index for column, (index, _) in self.columns.items()}
-        self._parsed: dict[tuple[str, str], object] = {}
+        self._parsed: dict[tuple, object] = {}
         self._affine = {}
         for column, (_, unit) in self.columns.items():
             kind = self.spec[column][0]
