@@ -354,6 +354,8 @@ def _known_step(t: Table, row: int, step: str, steps: dict[str, float]) -> None:
 
 def _frame(name: str, rows: list[list]) -> pd.DataFrame:
     frame = pd.DataFrame(rows, columns=TABLE_COLUMNS[name])
+    rows_by_column = dict(zip(TABLE_COLUMNS[name], zip(*rows, strict=True), strict=True)) \
+        if rows else dict.fromkeys(TABLE_COLUMNS[name], ())
     for col in frame.columns:
         if col in ("start", "end", "time", "sampled_at", "analyzed_at"):
             frame[col] = pd.to_datetime(frame[col]).astype("datetime64[ns]")
@@ -361,7 +363,8 @@ def _frame(name: str, rows: list[list]) -> pd.DataFrame:
             frame[col] = frame[col].astype(bool)
         elif col == "source_row":
             frame[col] = frame[col].astype(int)
-        elif frame[col].map(lambda v: v is None or isinstance(v, float)).all():
+        elif all(k is type(None) or issubclass(k, float)
+                 for k in {type(v) for v in rows_by_column[col]}):
             frame[col] = frame[col].astype(float)
     return frame
 

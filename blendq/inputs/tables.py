@@ -337,7 +337,7 @@ def _csv_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], str]
     rows = []
     try:
         for cells in reader:
-            if any(c.strip() for c in cells):
+            if "".join(cells).strip():  # a line of blank cells is skipped
                 rows.append((reader.line_num, cells))
     except csv.Error as err:
         row = reader.line_num - rows[0][0] if rows else 0
@@ -392,7 +392,7 @@ def _xlsx_rows(path: Path, label: str, sheet: str | None = None
             cells = ["" if v is None else v.isoformat(sep=" ") if isinstance(v, datetime)
                      else str(v) for v in values]
             empty.update((number, i) for i, v in enumerate(values) if v is None)
-            if any(c.strip() for c in cells):
+            if "".join(cells).strip():  # a line of blank cells is skipped
                 rows.append((number, cells))
     finally:
         book.close()
