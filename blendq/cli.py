@@ -251,6 +251,11 @@ def new_cmd(folder: Annotated[Path, typer.Argument(help="Folder for the new proj
     _guard(body)
 
 
+#: `blendq check` in text mode prints at most this many findings of each rule, then the count
+#: of the rest (--json lists every finding); a readable screen, common practice
+CHECK_SHOWN_PER_RULE = 20
+
+
 @app.command("check")
 def check_cmd(
     project: ProjectArg,
@@ -292,9 +297,16 @@ def check_cmd(
             for line in result.summary_lines():
                 typer.echo("  " + line)
             shown = result.findings[result.findings["severity"] != "info"]
+            per_rule: dict[str, int] = {}
             for severity, rule, message in zip(shown["severity"], shown["rule"],
                                                shown["message"], strict=True):
-                typer.echo(f"  [{severity}] {rule}: {message}")
+                per_rule[rule] = per_rule.get(rule, 0) + 1
+                if per_rule[rule] <= CHECK_SHOWN_PER_RULE:
+                    typer.echo(f"  [{severity}] {rule}: {message}")
+            for rule, n in per_rule.items():
+                if n > CHECK_SHOWN_PER_RULE:
+                    typer.echo(f"  ... {rule}: {n - CHECK_SHOWN_PER_RULE:,} more not shown "
+                               f"(first {CHECK_SHOWN_PER_RULE} of {n:,}; --json lists all)")
             for rule, why in result.skipped:
                 typer.echo(f"  skipped {rule}: {why}")
             if memory_line:

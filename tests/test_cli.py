@@ -665,3 +665,16 @@ def test_window_and_fit_show_the_window_without_each_step():
     f = json.loads(run("fit", DEMO, "--draws", DRAWS, "--json").stdout)
     assert len(f["leave_one_step_out"]) == 6
     assert f["cautions"][:2] == list(blendq.CAUTIONS[:2])
+
+
+def test_check_text_shows_the_first_findings_of_each_rule(monkeypatch):
+    # the test project has five field_readings_few warnings and one field_stability warning
+    us = Path(__file__).parent / "data" / "projects" / "quillmarsh_us"
+    monkeypatch.setattr("blendq.cli.CHECK_SHOWN_PER_RULE", 2)
+    r = run("check", us)
+    assert r.stdout.count("[warning] field_readings_few:") == 2
+    assert r.stdout.count("[warning] field_stability:") == 1
+    assert "... field_readings_few: 3 more not shown (first 2 of 5; --json lists all)" in r.stdout
+    assert "field_stability: 0 more" not in r.stdout
+    j = json.loads(run("check", us, "--json").stdout)
+    assert sum(f["rule"] == "field_readings_few" for f in j["findings"]) == 5

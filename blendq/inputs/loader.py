@@ -113,7 +113,7 @@ def _samples(t: Table, steps: dict[str, float], deepest: float) -> pd.DataFrame:
     if "unit" not in t.columns and t.unit("value") is None:
         raise t.error(0, "unit", "column is missing; add a unit column or a unit in the value "
                                  'header such as "value [mg/L]"')
-    out, seen, analytes, factors = [], {}, {}, {}
+    out, seen, analytes, factors, units = [], {}, {}, {}, {}
     header_unit = t.unit("value")
     for row, get in t.records():
         sample_id, step = get("sample_id"), get("step")
@@ -128,28 +128,10 @@ def _samples(t: Table, steps: dict[str, float], deepest: float) -> pd.DataFrame:
             raise t.error(row, "analyte", f'sample "{sample_id}" already has a {analyte.key} '
                                           f"result in row {seen[sample_id, analyte.key]}")
         seen[sample_id, analyte.key] = row
-        unit_text = get("unit") or header_unit
-        if not unit_text:
-            raise t.error(row, "unit", "is empty; give the unit of the value")
-        if len(unit_text) > MAX_UNIT:
-            raise t.error(row, "unit", f'"{unit_text[:20]}..." has {len(unit_text):,} '
-                                       f"characters; the limit is {MAX_UNIT}")
-        if header_unit and unit_text != header_unit:
-            _same_unit(t, row, unit_text, header_unit)
-        _, unit, unit_basis = split_unit_basis(unit_text)
-        basis_text = get("basis") or ""
-        named = implied_basis(t.raw(row, "analyte"))
-        if named and not (basis_text or unit_basis):
-            basis_text = named  # "Nitrate-N", "NO3-N", "nitrate as N": the name states it
-        elif named and _row_basis(t, row, analyte, basis_text or unit_basis) != \
-                _row_basis(t, row, analyte, named):
-            raise t.error(row, "basis", f'"{basis_text or unit_basis}" disagrees with the '
-                                        f'analyte name "{t.raw(row, "analyte")}"')
-        basis = _row_basis(t, row, analyte, basis_text or unit_basis)
-        if unit_basis and basis_text and _row_basis(t, row, analyte, unit_basis) != basis:
-            raise t.error(row, "basis", f'"{basis_text}" disagrees with the unit "{unit_text}"')
-        basis_text = basis_text or unit_basis or ""
-        factor = _factor(t, row, analyte, unit, basis, unit_text, factors)
+        combination = (name, t.raw(row, "unit"), t.raw(row, "basis"))
+        if combination not in units:  # a long table repeats a few of them: each checked once
+            units[combination] = _sample_unit(t, row, get, analyte, header_unit, factors)
+        unit, basis_text, factor = units[combination]
         value, nondetect, dl, uncertainty, reported = _sample_value(t, row, get, factor)
         analyzed, sampled = get("analyzed_at"), get("sampled_at")
         if analyzed is not None and sampled is not None and analyzed < sampled:
@@ -172,6 +154,36 @@ def _samples(t: Table, steps: dict[str, float], deepest: float) -> pd.DataFrame:
             raise t.error(r[-1], "duplicate_of", f'"{r[10]}" is not the sample_id of another '
                                                  "sample in this file")
     return _frame("samples", out)
+
+
+def _sample_unit(t: Table, row: int, get, analyte, header_unit: str | None,
+                 factors: dict) -> tuple[str, str, float]:
+    """(unit, basis as written, factor to canonical mg/L) of a result row, checked; a
+    function of the row's analyte, unit and basis cells (and the value header), so that
+    :func:`_samples` checks each combination once."""
+    unit_text = get("unit") or header_unit
+    if not unit_text:
+        raise t.error(row, "unit", "is empty; give the unit of the value")
+    if len(unit_text) > MAX_UNIT:
+        raise t.error(row, "unit", f'"{unit_text[:20]}..." has {len(unit_text):,} '
+                                   f"characters; the limit is {MAX_UNIT}")
+    if header_unit and unit_text != header_unit:
+        _same_unit(t, row, unit_text, header_unit)
+    _, unit, unit_basis = split_unit_basis(unit_text)
+    basis_text = get("basis") or ""
+    named = implied_basis(t.raw(row, "analyte"))
+    if named and not (basis_text or unit_basis):
+        basis_text = named  # "Nitrate-N", "NO3-N", "nitrate as N": the name states it
+    elif named and _row_basis(t, row, analyte, basis_text or unit_basis) != \
+            _row_basis(t, row, analyte, named):
+        raise t.error(row, "basis", f'"{basis_text or unit_basis}" disagrees with the '
+                                    f'analyte name "{t.raw(row, "analyte")}"')
+    basis = _row_basis(t, row, analyte, basis_text or unit_basis)
+    if unit_basis and basis_text and _row_basis(t, row, analyte, unit_basis) != basis:
+        raise t.error(row, "basis", f'"{basis_text}" disagrees with the unit "{unit_text}"')
+    basis_text = basis_text or unit_basis or ""
+    factor = _factor(t, row, analyte, unit, basis, unit_text, factors)
+    return unit, basis_text, factor
 
 
 def _factor(t: Table, row: int, analyte, unit: str, basis: str, unit_text: str,
@@ -342,6 +354,8 @@ def _known_step(t: Table, row: int, step: str, steps: dict[str, float]) -> None:
 
 def _frame(name: str, rows: list[list]) -> pd.DataFrame:
     frame = pd.DataFrame(rows, columns=TABLE_COLUMNS[name])
+    rows_by_column = dict(zip(TABLE_COLUMNS[name], zip(*rows, strict=True), strict=True)) \
+        if rows else dict.fromkeys(TABLE_COLUMNS[name], ())
     for col in frame.columns:
         if col in ("start", "end", "time", "sampled_at", "analyzed_at"):
             frame[col] = pd.to_datetime(frame[col]).astype("datetime64[ns]")
@@ -349,7 +363,8 @@ def _frame(name: str, rows: list[list]) -> pd.DataFrame:
             frame[col] = frame[col].astype(bool)
         elif col == "source_row":
             frame[col] = frame[col].astype(int)
-        elif frame[col].map(lambda v: v is None or isinstance(v, float)).all():
+        elif all(k is type(None) or issubclass(k, float)
+                 for k in {type(v) for v in rows_by_column[col]}):
             frame[col] = frame[col].astype(float)
     return frame
 

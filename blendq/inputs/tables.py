@@ -220,11 +220,11 @@ class Table:
 
     def raw(self, row: int, column: str) -> str:
         """Stripped text of a cell ("" when the column or the cell is absent)."""
-        if column not in self.columns:
+        index = self._index.get(column)
+        if index is None:
             return ""
-        cells = self._cells[row]
-        index = self.columns[column][0]
-        return cells[index].strip() if index < len(cells) else ""
+        cells = self._stripped[row]
+        return cells[index] if index < len(cells) else ""
 
     def number_text(self, row: int, column: str, text: str) -> float:
         try:
@@ -234,9 +234,14 @@ class Table:
 
     def number_in(self, row: int, column: str) -> float:
         """Number of a "raw" cell, NaN when empty or "ND"; a leading "<" is dropped."""
-        text = self.raw(row, column)
-        text = text[1:].strip() if text.startswith("<") else text
-        return math.nan if text.lower() in _NO_NUMBER else self.number_text(row, column, text)
+        cell = self.raw(row, column)
+        key = ("<number>", column, cell)
+        if key in self._parsed:  # each text of a column is read once
+            return self._parsed[key]
+        text = cell[1:].strip() if cell.startswith("<") else cell
+        number = math.nan if text.lower() in _NO_NUMBER else self.number_text(row, column, text)
+        self._parsed[key] = number
+        return number
 
     def keep(self, rows: set[int]) -> None:
         """Keep only the data rows numbered in ``rows`` (rows of other wells are dropped)."""
@@ -248,8 +253,17 @@ class Table:
             yield row, (lambda column, row=row: self._value(row, column))
 
     def _value(self, row: int, column: str):
-        kind, _, needed = self.spec[column]
         text = self.raw(row, column)
+        key = (column, text)
+        if key in self._parsed:  # a long table repeats its cells: each text is parsed once
+            return self._parsed[key]
+        value = self._parsed[key] = self._parse(row, column, text)
+        return value
+
+    def _parse(self, row: int, column: str, text: str):
+        """The value of ``text`` in ``column`` (errors name ``row``); a function of the column
+        and the text alone, so that :meth:`_value` may keep it."""
+        kind, _, needed = self.spec[column]
         if not text:
             if needed:
                 raise self.error(row, column, "is empty (a value is required)")
@@ -261,13 +275,10 @@ class Table:
                 raise self.error(row, column, f'"{text}" is not true or false')
             return _FLAGS[text.lower()]
         if kind == "date":
-            if text in self._times:  # a long table repeats its times
-                return self._times[text]
             try:
-                stamp = self._times[text] = parse_time(text)
+                return parse_time(text)
             except InputError as err:
                 raise located(err, self.label, row, column) from None
-            return stamp
         try:
             number = parse_number(text, self.decimal_comma)
         except InputError as err:
@@ -286,8 +297,9 @@ class Table:
         return number
 
     def __post_init__(self) -> None:
-        self._cells = dict(self.rows)
-        self._times: dict[str, pd.Timestamp] = {}
+        self._stripped = {row: [c.strip() for c in cells] for row, cells in self.rows}
+        self._index = {column: index for column, (index, _) in self.columns.items()}
+        self._parsed: dict[tuple, object] = {}
         self._affine = {}
         for column, (_, unit) in self.columns.items():
             kind = self.spec[column][0]
@@ -330,7 +342,7 @@ def _csv_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], str]
     rows = []
     try:
         for cells in reader:
-            if any(c.strip() for c in cells):
+            if "".join(cells).strip():  # a line of blank cells is skipped
                 rows.append((reader.line_num, cells))
     except csv.Error as err:
         row = reader.line_num - rows[0][0] if rows else 0
@@ -385,7 +397,7 @@ def _xlsx_rows(path: Path, label: str, sheet: str | None = None
             cells = ["" if v is None else v.isoformat(sep=" ") if isinstance(v, datetime)
                      else str(v) for v in values]
             empty.update((number, i) for i, v in enumerate(values) if v is None)
-            if any(c.strip() for c in cells):
+            if "".join(cells).strip():  # a line of blank cells is skipped
                 rows.append((number, cells))
     finally:
         book.close()

@@ -232,8 +232,9 @@ def at_or_above(findings: pd.DataFrame, threshold: str) -> bool:
 def findings_frame(findings: Iterable[Finding], overrides: dict | None = None) -> pd.DataFrame:
     """Findings as a DataFrame with :data:`FINDING_COLUMNS`, most severe first (stable order
     within a severity); ``overrides`` maps rule -> severity."""
-    rows = [{c: getattr(f, c) for c in FINDING_COLUMNS} for f in findings]
-    frame = pd.DataFrame(rows, columns=FINDING_COLUMNS).astype(
+    findings = list(findings)
+    columns = {c: [getattr(f, c) for f in findings] for c in FINDING_COLUMNS}  # column-wise
+    frame = pd.DataFrame(columns, columns=FINDING_COLUMNS, dtype=object).astype(
         {"severity": object, "rule": object, "sample_id": object, "step": object,
          "analyte": object, "message": object, "source": object})
     if overrides:

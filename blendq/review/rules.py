@@ -156,7 +156,9 @@ def prepare_samples(samples: pd.DataFrame) -> pd.DataFrame:
         s[col] = pd.to_numeric(s[col], errors="coerce").astype(float)
     for col in ("sample_id", "analyte", "qualifier", "duplicate_of", "preservation",
                 "reported_unit", "reported_basis"):
-        s[col] = [v.strip() if type(v) is str else text(v) for v in s[col]]
+        # plain objects: a long table's rules read these cells one by one
+        s[col] = pd.Series([v.strip() if type(v) is str else text(v) for v in s[col].tolist()],
+                           index=s.index, dtype=object)
     for col in ("sampled_at", "analyzed_at"):
         s[col] = pd.to_datetime(s[col], errors="coerce")
     s["nondetect"] = [bool(v) if text(v) != "" else False for v in s["nondetect"]]
