@@ -689,9 +689,11 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
 
 def summary_json(a: Analysis, units: str = "US") -> dict:
     """Machine-readable summary (base units, with the display strings beside them)."""
+    from blendq.report.history_section import history_json
     from blendq.well.memory import memory_lines
 
     w = a.window
+    history = history_json(a) if a.history else None
     return {
         "blendq_version": __version__,
         "project": a.project.name,
@@ -715,13 +717,15 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
         **({"crossflow_memory": memory_lines(
             a.memory, float(a.qa.options["returned_water_flag"]), units)}
            if a.memory is not None else {}),
+        **({"monitoring_history": history} if history is not None else {}),
         "draws": a.draws.n_draws,
         "seed": a.draws.seed,
         "cautions": list(CAUTIONS),
         "units_note": "concentrations in mg/L on each analyte's canonical basis (nitrate as N); "
                       "rates in m3/d; depths in m below the datum; headroom as a share of the "
                       "recommended rate kept from every end of the window; demand_met null "
-                      "when no demand is given",
+                      "when no demand is given; monitoring_history trends in mg/L per year "
+                      "with their interval at its interval, years as calendar years",
     }
 
 
