@@ -527,3 +527,34 @@ def test_crossflow_memory_in_report_and_summary(demo_out):
     lines = data["crossflow_memory"]
     assert lines[0].startswith("Idle time before the test: 2 h")
     assert lines[-1].startswith("After 6 h idle")
+
+
+def test_thin_data_warning_in_the_report_and_summary(tmp_path):
+    """The template has two sampled steps, fewer than settings.min_window_steps = 3."""
+    from blendq.decide.analysis import analyse
+    from blendq.inputs.loader import load_project
+    from blendq.inputs.template import write_template
+    from blendq.report.assemble import build_document
+    from blendq.report.document import Callout
+
+    write_template(tmp_path / "proj")
+    out = tmp_path / "out"
+    r = run("report", tmp_path / "proj", "--out", out, "--draws", "60", "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert "Thin data: the window rests on 2 steps with lab results" in html
+    assert "settings.min_window_steps = 3" in html
+    data = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    assert any(n.startswith("warning: thin data: the window rests on 2 steps")
+               for n in data["notes"])
+    # the PDF is drawn from the same document: the warning is a caution of the decision
+    doc = build_document(analyse(load_project(tmp_path / "proj"), draws=60, seed=1))
+    decision = next(s for s in doc.sections if s.key == "decision")
+    assert any(isinstance(b, Callout) and b.level == "caution" and b.text.startswith("Thin data")
+               for b in decision.blocks)
+
+
+def test_no_thin_data_warning_on_the_demo(demo_out):
+    data = json.loads((demo_out / "summary.json").read_text(encoding="utf-8"))
+    assert not any("thin data" in n for n in data["notes"])
+    assert "Thin data" not in (demo_out / "report.html").read_text(encoding="utf-8")
