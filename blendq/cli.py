@@ -206,34 +206,10 @@ def _step_table_lines(table, units: str) -> list[str]:
 
 def data_notes(proj) -> list[str]:
     """Lines ``check`` and ``window`` print about how the project's data and limits shape the
-    window: a user's own limit that the operating margin lowers, and a window resting on fewer
-    sampled steps than ``settings.min_window_steps``."""
-    from blendq.chemistry.analytes import get_analyte
-    from blendq.chemistry.limits import limit_set
+    window (:func:`blendq.decide.analysis.data_notes`)."""
+    from blendq.decide.analysis import data_notes as notes
 
-    s, lines = proj.settings, []
-    named = {(lim.analyte, lim.authority, lim.value, lim.unit, lim.basis)
-             for name in s.limit_sets for lim in limit_set(name)}
-    for lim in proj.limits:
-        if (lim.analyte, lim.authority, lim.value, lim.unit, lim.basis) in named or s.margin >= 1:
-            continue
-        unit = lim.unit + (f" as {lim.basis}" if lim.basis else "")
-        lines.append(
-            f"note: the operating margin (settings.margin = {s.margin:g}) applies to your own "
-            f"limit too: {get_analyte(lim.analyte).label()} is held below "
-            f"{lim.value * s.margin:.3g} {unit}, {s.margin:.0%} of {lim.label()}; if "
-            f"{lim.value:g} {unit} is already the level to operate below, enter the value it was "
-            f"derived from ({lim.value:g} / {s.margin:g} = {lim.value / s.margin:.3g} {unit}) "
-            "or raise the margin, which applies to every limit")
-    sampled = proj.samples["step"].nunique() if len(proj.samples) else 0
-    if 0 < sampled < s.min_window_steps:
-        lines.append(
-            f"warning: thin data: the window rests on {sampled} step"
-            f"{'' if sampled == 1 else 's'} with lab results (fewer than "
-            f"settings.min_window_steps = {s.min_window_steps}, common practice); quality "
-            "between and beyond so few rates is a model's guess, so treat the window as "
-            "provisional and add steps")
-    return lines
+    return notes(proj)
 
 
 @app.command("new")

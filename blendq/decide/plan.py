@@ -52,6 +52,7 @@ from blendq.inputs.project import Project
 from blendq.units import format_quantity
 from blendq.well import mixing
 from blendq.well.flowlog import log_error
+from blendq.well.memory import StoredWater, stored_water
 from blendq.well.model import model_from_parameters, prior_hydraulics
 
 #: finite-difference steps of ln G [-], h0 [m] and C [d^2/m^5] (the model is smooth in each)
@@ -617,19 +618,18 @@ def basis_from_fit(fit: FitResult, value_sd=None) -> Basis:
 
 
 # ------------------------------------------------------------------ step durations and purging
-#: well volumes purged at a step's rate before its sample (common practice: three casing
-#: volumes). The crossflow-memory volume (water that crossed the well between zones before
-#: the step) is to replace this once that check is available: :func:`purge_volume` is the hook.
+#: casing volumes purged before a sample (common practice: three casing volumes)
 PURGE_CASING_VOLUMES = 3.0
 
+#: idle time before the test when the project gives no ``[test] idle_time_before`` [h]
+#: (common practice: the well rests overnight before a step test so the levels recover)
+DEFAULT_IDLE_HOURS = 12.0
 
-def purge_volume(project: Project) -> float:
-    """Water to pump before a sample is taken [m^3]: :data:`PURGE_CASING_VOLUMES` times the
-    volume of water standing in the well, pi r_w^2 times the column from the static level (or
-    the shallowest zone static level, or the top zone) to the bottom of the deepest zone.
 
-    This is the hook for the crossflow-memory volume: today the casing volumes only.
-    """
+def casing_purge_volume(project: Project) -> float:
+    """:data:`PURGE_CASING_VOLUMES` times the volume of water standing in the well [m^3]:
+    pi r_w^2 times the column from the static level (or the shallowest zone static level, or
+    the top zone) to the bottom of the deepest zone (volume of a cylinder)."""
     w = project.well
     levels = [z.static_level for z in project.zones if z.static_level is not None]
     top = w.static_level if w.static_level is not None else (
@@ -638,11 +638,71 @@ def purge_volume(project: Project) -> float:
     return PURGE_CASING_VOLUMES * np.pi * w.well_radius**2 * column
 
 
+@dataclass(frozen=True)
+class Purge:
+    """Water to pump before a step's sample: the review's rule (casing volumes plus the
+    water the thief zones stored while the well stood idle, :func:`blendq.review.field.
+    check_purge`).
+
+    Attributes
+    ----------
+    casing : float
+        :data:`PURGE_CASING_VOLUMES` casing volumes [m^3].
+    stored : StoredWater
+        Water stored by the thief zones during the idle time before the test (the plan's
+        zone model, prior or fitted).
+    idle_given : bool
+        The idle time is the project's ``[test] idle_time_before`` (else
+        :data:`DEFAULT_IDLE_HOURS`).
+    """
+
+    casing: float
+    stored: StoredWater
+    idle_given: bool
+
+    @property
+    def total(self) -> float:
+        """Casing volumes plus the stored volume [m^3]."""
+        return float(self.casing + self.stored.total)
+
+    def sentence(self, units: str = "US") -> str:
+        """One sentence: the purge volume and what it is made of."""
+        idle = self.stored.idle_time * 24.0
+        source = ("[test] idle_time_before" if self.idle_given else
+                  "no [test] idle_time_before: an overnight rest, common practice")
+        return (f"Purge before each step's sample: {format_quantity(self.total, 'volume', units)}"
+                f" = {PURGE_CASING_VOLUMES:g} casing volumes "
+                f"({format_quantity(self.casing, 'volume', units)}) + "
+                f"{format_quantity(self.stored.total, 'volume', units)} stored by the thief "
+                f"zones ({', '.join(self.stored.thieves) or 'none'}) during {idle:.3g} h idle "
+                f"before the test ({source}; crossflow held steady, an upper bound).")
+
+
+def planned_purge(basis: Basis) -> Purge:
+    """The purge before each step's sample: casing volumes plus the volume the thief zones of
+    the basis's zone model store during the idle time before the test
+    (:func:`blendq.well.memory.stored_water`). The stored volume is counted at every step: a
+    thief zone returns its water at the first step whose rate turns it to inflow, so this is
+    cautious."""
+    if ("purge",) not in basis._rows:  # the search asks for it at every candidate step
+        idle = basis.project.settings.idle_time_before_test
+        given = idle is not None
+        idle = float(idle) if given else DEFAULT_IDLE_HOURS / 24.0
+        stored = stored_water(basis.model(basis.theta), idle, basis.project.zone_names)
+        basis._rows[("purge",)] = Purge(casing_purge_volume(basis.project), stored, given)
+    return basis._rows[("purge",)]
+
+
+def purge_volume(basis: Basis) -> float:
+    """Water to pump before a step's sample [m^3]: :func:`planned_purge` in total."""
+    return planned_purge(basis).total
+
+
 def step_hours(basis: Basis, rate: float) -> float:
-    """Planned duration of a step [h]: the longer of the time to pump the purge volume at its
-    rate and the minimum step time (the level settles and the readings stabilise while the
-    purge water is pumped)."""
-    purge = purge_volume(basis.project) / max(rate, 1e-12) * 24.0
+    """Planned duration of a step [h]: the longer of the time to pump the purge volume
+    (:func:`purge_volume`) at its rate and the minimum step time (the level settles and the
+    readings stabilise while the purge water is pumped)."""
+    purge = purge_volume(basis) / max(rate, 1e-12) * 24.0
     return float(max(basis.min_step_hours, purge))
 
 

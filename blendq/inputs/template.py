@@ -70,6 +70,10 @@ samples = "samples.csv"
 flowlogs = "flowlogs.csv"
 levels = "levels.csv"
 field = "field.csv"
+# Optional, for the years ahead: routine monitoring results and the pump's rate log
+# (`blendq docs input-files`, sections history and pumplog).
+# history = "history.csv"
+# pumplog = "pumplog.csv"
 
 # How long the well stood idle before the first step, and before a compliance sample in
 # operation (crossflow memory: water a thief zone takes in at rest comes back first).
@@ -121,6 +125,24 @@ compliance = "single sample"          # or "single sample with confirmation", "a
 # [[scenarios]]
 # name = "Blend 100 gpm from the spring"
 # blend = { rate = "100 gpm", nitrate = "1 mg/L as N", arsenic = "0.5 ug/L" }
+
+# Plan the step test with `blendq plan` (optional; `blendq docs input-files`, section [plan]):
+# unit costs, and each zone's prior ranges (read as +-2 sd).
+# [plan]
+# budget = 12000
+# min_step_duration = "2 h"
+#
+# [[plan.zones]]
+# zone = "Upper sand"
+# transmissivity = ["800 ft2/d", "2000 ft2/d"]
+# nitrate = ["2 mg/L as N", "8 mg/L as N"]
+# arsenic = ["1 ug/L", "6 ug/L"]
+#
+# [[plan.zones]]
+# zone = "Lower gravel"
+# transmissivity = ["1000 ft2/d", "3000 ft2/d"]
+# nitrate = ["0.5 mg/L as N", "3 mg/L as N"]
+# arsenic = ["3 ug/L", "12 ug/L"]
 """
 
 TABLES = {

@@ -12,7 +12,7 @@ import pandas as pd
 
 from blendq import CAUTIONS, __version__
 from blendq.chemistry.analytes import get_analyte
-from blendq.decide.analysis import Analysis, decision_sentence
+from blendq.decide.analysis import Analysis, data_notes, decision_sentence, thin_data_note
 from blendq.decide.sweep import compliance_statistics, exceedance, statistic_quantiles
 from blendq.report.document import (
     BulletList,
@@ -624,7 +624,9 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
     rec_rate = a.window.recommended if a.window.recommended is not None else (w.demand or a.prediction.rates[-1])
     sections = [
         Section("Decision", (Callout(decision, "decision"),
-                             *(Callout(n, "note") for n in a.notes)), "decision"),
+                             *(Callout(n, "note") for n in a.notes),
+                             *([Callout("Thin data: " + thin_data_note(p), "caution")]
+                               if thin_data_note(p) else [])), "decision"),
         Section("Cautions", tuple(Callout(c, "caution") for c in CAUTIONS), "cautions"),
         Section("Inputs and their review", (
             inputs, Table(zones_geo, "Zones (depths below the datum)."),
@@ -718,9 +720,11 @@ def build_document(a: Analysis, units: str = "US", created: str = "") -> Documen
 
 def summary_json(a: Analysis, units: str = "US") -> dict:
     """Machine-readable summary (base units, with the display strings beside them)."""
+    from blendq.report.history_section import history_json
     from blendq.well.memory import memory_lines
 
     w = a.window
+    history = history_json(a) if a.history else None
     return {
         "blendq_version": __version__,
         "project": a.project.name,
@@ -741,16 +745,19 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
         "zones": a.zones.to_dict(orient="records"),
         "not_fitted": a.not_fitted,
         "qa": a.qa.summary_lines(),
+        "notes": data_notes(a.project),
         **({"crossflow_memory": memory_lines(
             a.memory, float(a.qa.options["returned_water_flag"]), units)}
            if a.memory is not None else {}),
+        **({"monitoring_history": history} if history is not None else {}),
         "draws": a.draws.n_draws,
         "seed": a.draws.seed,
         "cautions": list(CAUTIONS),
         "units_note": "concentrations in mg/L on each analyte's canonical basis (nitrate as N); "
                       "rates in m3/d; depths in m below the datum; headroom as a share of the "
                       "recommended rate kept from every end of the window; demand_met null "
-                      "when no demand is given",
+                      "when no demand is given; monitoring_history trends in mg/L per year "
+                      "with their interval at its interval, years as calendar years",
     }
 
 

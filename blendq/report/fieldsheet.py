@@ -4,9 +4,9 @@ One row per action in the order the crew does them: the static level (and an amb
 when planned), then every step with its rate, start and duration, the water to purge before
 its sample, the discharge sample, the depth samples and the pumped flow log taken during it.
 
-The purge volume is today :func:`blendq.decide.plan.purge_volume` (casing volumes, common
-practice); when the crossflow-memory volume is available it replaces that function, and this
-sheet prints whatever it returns.
+The purge volume is :func:`blendq.decide.plan.planned_purge`: casing volumes plus the water the
+thief zones store during the idle time before the test (crossflow memory), the rule the review
+checks a finished test against.
 """
 
 from __future__ import annotations
@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from blendq import CAUTIONS
-from blendq.decide.plan import Design, PlanReport, purge_volume, window_ends
+from blendq.decide.plan import Design, PlanReport, planned_purge, window_ends
 from blendq.errors import ModelError
 from blendq.report.document import BulletList, Callout, Document, KeyValues, Section, Table
 from blendq.units import BASE_UNITS, DISPLAY_UNITS, format_quantity, from_base
@@ -32,7 +32,11 @@ def _unit(kind: str, units: str) -> str:
 def actions(report: PlanReport, design: Design, units: str = "US") -> list[dict]:
     """The actions of a design in field order, in base units (rate m^3/d, volume m^3, depth
     m, times h)."""
-    purge = purge_volume(report.project)
+    plan_purge = planned_purge(report.basis)
+    purge = plan_purge.total
+    made_of = (f"{format_quantity(plan_purge.casing, 'volume', units)} casing volumes + "
+               f"{format_quantity(plan_purge.stored.total, 'volume', units)} stored by thief "
+               f"zones in {plan_purge.stored.idle_time * 24:.3g} h idle")
     rows = []
     t = 0.0
 
@@ -55,7 +59,8 @@ def actions(report: PlanReport, design: Design, units: str = "US") -> list[dict]
                  "level at the end of the step")
         add("discharge sample", name, q, purge_v=purge, purge_h=purge_h,
             what=f"sample the discharge after at least {format_quantity(purge, 'volume', units)}"
-                 " pumped at this rate, near the end of the step with the level steady")
+                 f" ({made_of}) pumped at this rate, near the end of the step with the level "
+                 "steady")
         for j, d in design.depth_samples:
             if j == k:
                 add("depth sample", name, q, depth=d,
@@ -101,6 +106,7 @@ def plan_lines(report: PlanReport, units: str = "US") -> list[str]:
     """The plan as text lines (what the command prints)."""
     out = []
     ends = report.plan.ends if report.plan else None
+    purge_line = planned_purge(report.basis).sentence(units)
     if report.plan is not None:
         p = report.plan
         ev = p.evaluation
@@ -112,12 +118,14 @@ def plan_lines(report: PlanReport, units: str = "US") -> list[str]:
         out += _unresolved_lines(ev.unresolved)
         out.append("Value of each item of the planned test (its spreads without and with it):")
         out += [f"  {v.sentence(units)} (cost {v.cost:,.0f})" for v in p.values]
+        out.append(purge_line)
     else:
         out.append("The finished test leaves:")
         out += _end_lines(window_ends(report.basis), report.current.end_sd, units)
         out += _unresolved_lines(report.current.unresolved)
         out.append("The single extra measurement with the most value first:")
         out += [f"  {v.sentence(units)} (cost {v.cost:,.0f})" for v in report.next_items[:8]]
+        out.append(purge_line)
     return out
 
 
@@ -163,8 +171,8 @@ def field_sheet_document(report: PlanReport, design: Design, units: str = "US",
                        ("Flow logs", str(len(design.log_rates))),
                        ("Depth samples", str(len(design.depth_samples))),
                        ("Planned cost", f"{report.costs.of(design):,.0f}")), "The planned test")
-    note = ("Purge volumes are casing volumes (common practice) until the crossflow-memory "
-            "volume is computed; pump at least that much at the step's rate before sampling.")
+    note = (planned_purge(report.basis).sentence(units) + " Pump at least that much at the "
+            "step's rate before sampling.")
     cautions = Callout(" ".join(CAUTIONS[:2] + CAUTIONS[3:4]))
     sections = (
         Section("Field sheet", (cautions, facts, Table(shown, "Actions in field order",

@@ -133,3 +133,65 @@ def history_section(a: Analysis, units: str = "US", fc: Forecast | None = None) 
                 "results outside their band are the first sign that it does not.", "caution"),
     ]
     return Section("Monitoring history and the years ahead", tuple(blocks), "history")
+
+
+def history_json(a: Analysis, fc: Forecast | None = None) -> dict | None:
+    """The monitoring-history results for summary.json, in base units (mg/L on each analyte's
+    canonical basis, m^3/d, calendar years), or None without a usable history.
+
+    Per analyte: the time model chosen, the trend per year of each zone (or of the blend)
+    with its sd and its two-sided interval at ``settings.interval`` (normal: the model is
+    linear in its coefficients), where the trend is attributed ("zone", "blend", or null for
+    a model without a trend), the temporal CV from the history, and the Mann-Kendall test with
+    Sen's slope on the blended results. Then the latest year the recommended rate stays
+    compliant (its nearest rate of the grid) and the rate that stays compliant longest.
+    """
+    from scipy.stats import norm
+
+    fc = fc if fc is not None else forecast(a)
+    if fc is None:
+        return None
+    s = a.project.settings
+    z = float(norm.ppf(0.5 + s.interval / 2))
+    tests = fc.trend_tests.set_index("analyte")
+    analytes = {}
+    for analyte, tf in a.history.items():
+        where = tf.resolution("trend")
+        trend, sd = tf.trend()
+        names = a.project.zone_names if where == "zone" else ["blend"] if where else []
+        t = tests.loc[analyte]
+        analytes[analyte] = {
+            "time_model": tf.model,
+            "results_used": int(tf.n),
+            "trend_attribution": where,
+            "trend_mg_per_l_per_year": {k: float(b) for k, b in zip(names, trend, strict=True)},
+            "trend_sd_mg_per_l_per_year": {k: float(e) for k, e in zip(names, sd, strict=True)},
+            "trend_interval_mg_per_l_per_year": {
+                k: [float(b - z * e), float(b + z * e)]
+                for k, b, e in zip(names, trend, sd, strict=True)},
+            "temporal_cv": float(tf.temporal_cv),
+            "mann_kendall_p": float(t["p"]),
+            "mann_kendall_trend": str(t["trend"]),
+            "sen_slope_mg_per_l_per_year": float(t["sen_slope_per_year"]),
+        }
+
+    def year(v):
+        return int(v) if np.isfinite(v) else None
+
+    rec = a.window.recommended
+    at_rec = None
+    if rec is not None and len(fc.rates):
+        at_rec = year(fc.last_year[int(np.argmin(np.abs(fc.rates - rec)))])
+    best = fc.best_rate
+    best_year = (year(fc.last_year[int(np.argmin(np.abs(fc.rates - best)))])
+                 if best is not None else None)
+    return {
+        "interval": float(s.interval),
+        "horizon_years": [int(fc.years[0]), int(fc.years[-1])],
+        "analytes": analytes,
+        "latest_compliant_year_at_recommended_rate": at_rec,
+        "longest_compliant_rate_m3_per_day": best,
+        "longest_compliant_through_year": best_year,
+        "results_outside_band": int(fc.check["outside"].sum()),
+        "results_checked": len(fc.check),
+    }

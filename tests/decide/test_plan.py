@@ -322,9 +322,41 @@ def test_basis_from_priors_of_the_example():
     assert r.plan.evaluation.cost <= inputs.budget
 
 
-def test_purge_volume_is_three_casing_volumes():
+def test_casing_purge_volume_is_three_casing_volumes():
     """V = 3 pi r^2 L (cylinder volume) for the water column from the static level down."""
     p = sw.project()
     p.well = dataclasses.replace(p.well, static_level=12.0)
-    np.testing.assert_allclose(plan.purge_volume(p), 3 * np.pi * 0.15**2 * (100.0 - 12.0),
+    np.testing.assert_allclose(plan.casing_purge_volume(p), 3 * np.pi * 0.15**2 * (100.0 - 12.0),
                                rtol=1e-12)
+
+
+def test_purge_adds_the_water_thief_zones_store_while_idle():
+    """Casing volumes plus the thief zones' stored volume, as the review's purge check.
+
+    At rest the zone flows sum to zero, so the well head is the conductance-weighted mean
+    head h_w = sum G h0 / sum G and each zone flows q0 = G (h0 - h_w) into the well (Darcy
+    flow through a linear conductance; the four-zone well of tests/synthetic_wells.py): a thief
+    zone (q0 < 0) stores -q0 t_idle.
+    """
+    b = basis()
+    hw = np.sum(sw.G * sw.H0) / np.sum(sw.G)
+    q0 = sw.G * (sw.H0 - hw)
+    casing = plan.casing_purge_volume(b.project)
+    # no [test] idle_time_before: the named default (an overnight rest)
+    assert b.project.settings.idle_time_before_test is None
+    stored = np.sum(np.clip(-q0, 0, None)) * plan.DEFAULT_IDLE_HOURS / 24.0
+    assert stored > 0
+    np.testing.assert_allclose(plan.purge_volume(b), casing + stored, rtol=1e-9)
+    p = plan.planned_purge(b)
+    assert not p.idle_given and p.stored.thieves == ["Z2", "Z4"]  # h0 below h_w = -11.7 m
+    # the project's idle time
+    b6 = dataclasses.replace(b, project=dataclasses.replace(
+        b.project, settings=dataclasses.replace(b.project.settings, idle_time_before_test=0.25)))
+    np.testing.assert_allclose(plan.purge_volume(b6),
+                               casing + np.sum(np.clip(-q0, 0, None)) * 0.25, rtol=1e-9)
+    assert plan.planned_purge(b6).idle_given
+    assert "6 h idle" in plan.planned_purge(b6).sentence("SI")
+    # a step lasts at least as long as pumping the purge at its rate
+    q = 300.0
+    assert plan.step_hours(b6, q) == pytest.approx(
+        max(b6.min_step_hours, plan.purge_volume(b6) / q * 24.0), rel=1e-12)

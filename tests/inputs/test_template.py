@@ -76,3 +76,23 @@ def test_template_points_to_no_file_that_pip_does_not_install():
     assert "docs/" not in PROJECT_TOML and ".md" not in PROJECT_TOML
     assert "`blendq docs input-files`" in PROJECT_TOML
     assert "`blendq docs scenarios`" in PROJECT_TOML
+
+
+def test_template_points_to_the_optional_history_pumplog_and_plan(tmp_path):
+    assert '# history = "history.csv"' in PROJECT_TOML
+    assert '# pumplog = "pumplog.csv"' in PROJECT_TOML
+    assert "# [plan]" in PROJECT_TOML and "blendq docs input-files" in PROJECT_TOML
+    # the commented [plan] example is valid as written: uncommented, the project plans
+    from blendq.inputs.plan_file import load_for_planning
+
+    write_template(tmp_path)
+    start = PROJECT_TOML.index("# [plan]")
+    block = "\n".join(line[2:] if line.startswith("# ") else line.lstrip("#")
+                      for line in PROJECT_TOML[start:].splitlines())
+    (tmp_path / "project.toml").write_text(PROJECT_TOML[:start] + block + "\n",
+                                           encoding="utf-8")
+    project, inputs, finished = load_for_planning(tmp_path)
+    assert finished  # the template has a steps table: the plan names the next measurement
+    assert inputs.budget == 12000
+    assert set(inputs.chemistry) == {"Upper sand", "Lower gravel"}
+    assert inputs.analytes == ["nitrate", "arsenic"]

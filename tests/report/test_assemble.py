@@ -11,7 +11,10 @@ import shutil
 from html.parser import HTMLParser
 from pathlib import Path
 
+import numpy as np
+import pandas as pd
 import pytest
+from scipy import stats
 from typer.testing import CliRunner
 
 import blendq
@@ -148,6 +151,44 @@ def test_summary_json(demo_out):
     # scatter: 0.4 ug/L on about 7 ug/L), replacing the 5 % setting
     assert 0.03 < basis["arsenic"]["temporal_cv"] < 0.08
     assert basis["arsenic"]["temporal_cv_source"] == "monitoring history"
+
+
+def test_summary_json_carries_the_monitoring_history(demo_out):
+    data = json.loads((demo_out / "summary.json").read_text(encoding="utf-8"))
+    h = data["monitoring_history"]
+    assert set(h["analytes"]) == {"nitrate", "arsenic"}
+    # 1.6448536 = 95th percentile of the standard normal (NIST/SEMATECH e-Handbook of
+    # Statistical Methods, 1.3.6.7.1): the two-sided 90 % interval of the trend
+    assert h["interval"] == pytest.approx(0.9)
+    for analyte, m in h["analytes"].items():
+        assert m["time_model"] in ("constant", "trend", "seasonal", "trend+seasonal")
+        assert m["trend_attribution"] in ("zone", "blend")
+        for k, b in m["trend_mg_per_l_per_year"].items():
+            sd = m["trend_sd_mg_per_l_per_year"][k]
+            np.testing.assert_allclose(m["trend_interval_mg_per_l_per_year"][k],
+                                       [b - 1.6448536 * sd, b + 1.6448536 * sd], rtol=1e-6,
+                                       atol=1e-6 * sd)
+        assert 0.0 <= m["mann_kendall_p"] <= 1.0
+        # the temporal CV is the one the window used in place of the setting
+        assert m["temporal_cv"] == pytest.approx(
+            data["compliance_basis"][analyte]["temporal_cv"], rel=1e-12)
+    # Sen's slope (Sen 1968) of the invented nitrate history checked with scipy's
+    # Theil-Sen estimator on the history file (days / 365.25 per year)
+    hist = pd.read_csv(DEMO / "history.csv")
+    no3 = hist[hist["analyte"] == "nitrate"]
+    when = pd.to_datetime(no3["sampled_at"])
+    t = ((when - when.min()) / pd.Timedelta(days=1)).to_numpy(float) / 365.25
+    expected = stats.theilslopes(no3["value"].to_numpy(float), t).slope
+    assert h["analytes"]["nitrate"]["sen_slope_mg_per_l_per_year"] == pytest.approx(
+        expected, rel=1e-9)
+    # the invented nitrate history rises: the trend is fitted and the test sees it
+    assert h["analytes"]["nitrate"]["mann_kendall_trend"] == "increasing"
+    assert h["analytes"]["nitrate"]["trend_mg_per_l_per_year"]["blend"] > 0
+    first, last = h["horizon_years"]
+    at_rec = h["latest_compliant_year_at_recommended_rate"]
+    assert at_rec is None or first <= at_rec <= last
+    assert h["longest_compliant_rate_m3_per_day"] > 0
+    assert h["longest_compliant_through_year"] >= (at_rec or first)
 
 
 def test_summary_json_says_when_the_demand_is_not_met(tmp_path):
@@ -486,3 +527,34 @@ def test_crossflow_memory_in_report_and_summary(demo_out):
     lines = data["crossflow_memory"]
     assert lines[0].startswith("Idle time before the test: 2 h")
     assert lines[-1].startswith("After 6 h idle")
+
+
+def test_thin_data_warning_in_the_report_and_summary(tmp_path):
+    """The template has two sampled steps, fewer than settings.min_window_steps = 3."""
+    from blendq.decide.analysis import analyse
+    from blendq.inputs.loader import load_project
+    from blendq.inputs.template import write_template
+    from blendq.report.assemble import build_document
+    from blendq.report.document import Callout
+
+    write_template(tmp_path / "proj")
+    out = tmp_path / "out"
+    r = run("report", tmp_path / "proj", "--out", out, "--draws", "60", "--seed", SEED)
+    assert r.exit_code == 0, r.output
+    html = (out / "report.html").read_text(encoding="utf-8")
+    assert "Thin data: the window rests on 2 steps with lab results" in html
+    assert "settings.min_window_steps = 3" in html
+    data = json.loads((out / "summary.json").read_text(encoding="utf-8"))
+    assert any(n.startswith("warning: thin data: the window rests on 2 steps")
+               for n in data["notes"])
+    # the PDF is drawn from the same document: the warning is a caution of the decision
+    doc = build_document(analyse(load_project(tmp_path / "proj"), draws=60, seed=1))
+    decision = next(s for s in doc.sections if s.key == "decision")
+    assert any(isinstance(b, Callout) and b.level == "caution" and b.text.startswith("Thin data")
+               for b in decision.blocks)
+
+
+def test_no_thin_data_warning_on_the_demo(demo_out):
+    data = json.loads((demo_out / "summary.json").read_text(encoding="utf-8"))
+    assert not any("thin data" in n for n in data["notes"])
+    assert "Thin data" not in (demo_out / "report.html").read_text(encoding="utf-8")

@@ -6,6 +6,7 @@ import io
 from pathlib import Path
 
 import pandas as pd
+import pytest
 
 from blendq.decide import plan
 from blendq.inputs.plan_file import load_for_planning
@@ -13,6 +14,7 @@ from blendq.report.fieldsheet import (
     field_sheet,
     field_sheet_document,
     field_sheet_files,
+    plan_lines,
     sheet_design,
 )
 
@@ -65,3 +67,20 @@ def test_candidates_table_lists_every_design_evaluated():
     assert (table["low_end_sd"] >= 0).all() and (table["high_end_sd"] >= 0).all()
     files = field_sheet_files(REPORT, "US", "test")
     assert files["candidates.csv"].startswith("steps,rates [gpm],")
+
+
+def test_purge_on_the_sheet_is_casing_volumes_plus_the_stored_water():
+    purge = plan.planned_purge(REPORT.basis)
+    assert purge.stored.total > 0 and not purge.idle_given  # the example has no idle time
+    table = field_sheet(REPORT, sheet_design(REPORT), "SI")
+    samples = table[table["action"] == "discharge sample"]
+    # m3 shown in SI: the column is the casing volumes plus the stored volume
+    assert samples["purge_volume"].to_numpy() == pytest.approx(
+        [purge.casing + purge.stored.total] * len(samples), rel=1e-9)
+    assert all("stored by thief zones in 12 h idle" in w for w in samples["what"])
+    lines = plan_lines(REPORT, "SI")
+    assert any(line.startswith("Purge before each step's sample") and "common practice" in line
+               for line in lines)
+    doc = field_sheet_document(REPORT, sheet_design(REPORT), "SI")
+    assert "casing volumes" in doc.sections[0].blocks[2].note
+    assert "hook" not in Path(plan.__file__).read_text()
