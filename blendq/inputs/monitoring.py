@@ -187,13 +187,7 @@ def _value(t: Table, row: int, get, factor: float) -> tuple[float, bool, float, 
                                               '(or write the value as "<0.5")')
     if dl <= 0:
         raise t.error(row, "detection_limit", f'"{t.raw(row, "detection_limit")}" is not positive')
-    unc_raw = t.raw(row, "uncertainty")
-    if unc_raw.endswith("%"):
-        unc = t.number_text(row, "uncertainty", unc_raw[:-1]) / 100.0 * number
-    else:
-        unc = t.number_in(row, "uncertainty")
-    if unc < 0:
-        raise t.error(row, "uncertainty", f'"{unc_raw}" is negative')
+    unc = t.share_or_number(row, "uncertainty", number)
     if nondetect:
         return math.nan, True, dl * factor, math.nan
     return number * factor, False, dl * factor, unc * factor

@@ -243,6 +243,18 @@ class Table:
         self._parsed[key] = number
         return number
 
+    def share_or_number(self, row: int, column: str, of: float) -> float:
+        """A cell written as a number or as a percentage of ``of`` ("5%"), never negative
+        (a lab uncertainty given either way); NaN when empty."""
+        text = self.raw(row, column)
+        if text.endswith("%"):
+            value = self.number_text(row, column, text[:-1]) / 100.0 * of
+        else:
+            value = self.number_in(row, column)
+        if value < 0:
+            raise self.error(row, column, f'"{text}" is negative')
+        return value
+
     def keep(self, rows: set[int]) -> None:
         """Keep only the data rows numbered in ``rows`` (rows of other wells are dropped)."""
         self.rows = [(row, cells) for row, cells in self.rows if row in rows]
