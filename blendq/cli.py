@@ -108,20 +108,12 @@ def _units(units: str | None, project=None) -> str:
                                  f" or {UNIT_SYSTEMS[-1]}", param_hint="--units") from None
 
 
-#: words of advice that change the well (sealing, casing off, redeveloping, moving the pump)
-_WELL_WORK = ("seal", "case off", "redevelop", "lower the pump intake", "intake at",
-              "line or case")
-
-
 def cautions_for(*texts: str) -> list[str]:
-    """The cautions a command prints: always the first two (planning aid; the regulator's
-    sampling rules); the licensed-review and local-codes caution too when any of ``texts``
-    advises work on the well (sealing or casing off a zone, redevelopment, a pump change)."""
-    out = list(CAUTIONS[:2])
-    joined = " ".join(texts).lower()
-    if any(w in joined for w in _WELL_WORK):
-        out.append(CAUTIONS[3])
-    return out
+    """The cautions a command prints: always the planning-aid, sampling-rules and
+    licensed-review / local-codes cautions; ``texts`` (what the command says) add nothing today
+    but are kept so a command can pass what it advises (e.g. well work) for future cautions."""
+    del texts
+    return [CAUTIONS[0], CAUTIONS[1], CAUTIONS[3]]
 
 
 def _caution_line(*texts: str) -> str:

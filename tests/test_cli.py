@@ -581,9 +581,13 @@ def test_every_command_prints_the_cautions(tmp_path):
         r = run(*args)
         assert r.exit_code in (0, 1), r.output
         assert "Caution: blendq is a planning aid" in r.stdout, args
+        # a licensed professional reviews decisions and local codes govern: on every command,
+        # not only where well work is advised
+        assert "licensed hydrogeologist" in r.stdout and "local codes" in r.stdout, args
     for args in (["check", DEMO, "--json"], ["drawdown", DEMO, "--json"]):
         data = json.loads(run(*args).stdout)
         assert data["cautions"][0] == blendq.CAUTIONS[0], args
+        assert any("licensed" in c for c in data["cautions"]), args
 
 
 def test_compare_and_report_take_options_and_the_well_work_caution(tmp_path):
