@@ -220,8 +220,15 @@ def pump_settings(a: Analysis, spec: PumpSpec) -> PumpSettings:
         table["rate"] = [delivered(curve, systems[n][1], spec, recommended, max_rate)
                          for n in seasons]
     else:
-        notes.append("No single drive frequency keeps the rate inside the window at every "
-                      "static level of the season: set the drive per season.")
+        lost = [r.season for r in table.itertuples() if not np.isfinite(r.low)]
+        if len(lost) < len(table):
+            notes.append("No single drive frequency keeps the rate inside the window at every "
+                         "static level of the season: set the drive per season.")
+        if lost:
+            notes.append("At the static level of " + ", ".join(lost) + " no drive frequency "
+                         f"from {spec.min_frequency:g} to {spec.max_frequency:g} Hz keeps the "
+                         "rate inside the window: this pump cannot run the well compliantly "
+                         "then (another pump, a deeper intake, or a rest period).")
     scan_span = span or next(((r.low, r.high) for r in table.itertuples()
                               if np.isfinite(r.low)), None)
     energy = pd.DataFrame([energy_at(curve, mid_system, spec, f, max_rate)

@@ -85,14 +85,27 @@ def test_energy_cheapest_is_no_dearer_than_recommended(setup):
 
 def test_wide_seasons_need_per_season_settings(setup):
     a, spec = setup
-    wide = replace(spec, static_levels={"spring": 10 * FT, "autumn": 150 * FT})
+    wide = replace(spec, static_levels={"spring": 10 * FT, "autumn": 110 * FT})
     out = pump_settings(a, wide)
     assert out.frequency_range is None and out.recommended is None
     assert any("per season" in n for n in out.notes)
+    assert not any("cannot run the well" in n for n in out.notes)
     row = out.seasons.set_index("season")
     assert row.loc["autumn", "low"] > row.loc["spring", "high"]
     for name in ("spring", "autumn"):
         assert row.loc[name, "low"] <= row.loc[name, "recommended"] <= row.loc[name, "high"]
+
+
+def test_a_season_with_no_compliant_setting_is_named(setup):
+    # autumn's static level 150 ft: no frequency of the drive's range keeps the delivered rate
+    # in the window (the level band of the demo well and the invented pump's curve)
+    a, spec = setup
+    out = pump_settings(a, replace(spec, static_levels={"spring": 10 * FT, "autumn": 150 * FT}))
+    assert out.frequency_range is None
+    row = out.seasons.set_index("season")
+    assert np.isnan(row.loc["autumn", "low"]) and np.isfinite(row.loc["spring", "low"])
+    (note,) = [n for n in out.notes if "cannot run the well" in n]
+    assert "At the static level of autumn" in note
 
 
 def test_no_window_is_a_model_error(setup):
