@@ -374,8 +374,9 @@ def history_time_fits(project, fit, draws=None) -> dict[str, TimeFit]:
             if res_kind == "blend":
                 notes.append(f"the {word} of {analyte} is fitted as a {word} of the blend: the "
                              "history's rates move the zone shares too little to tell which "
-                             f"zone it belongs to (condition number "
-                             f"{res['conditions'][term]:.3g} > {s.history_condition_limit:g})")
+                             "zone it belongs to ("
+                             + _condition_text(res["conditions"][term],
+                                               s.history_condition_limit) + ")")
         used = usable.assign(tau=tau)
         # the fitted season's variance at the history's rates and dates: mean square of the
         # seasonal part (a sinusoid of amplitude A has variance A^2 / 2)
@@ -403,3 +404,16 @@ def step_test_date(project) -> pd.Timestamp:
     if project.history is not None and len(project.history):
         return pd.Timestamp(project.history["sampled_at"].max())
     raise ModelError("neither the steps nor a history give a date for the step test")
+
+
+#: condition numbers above this are a singular block: printed as such, not as rounding noise
+SINGULAR_CONDITION = 1e12
+
+
+def _condition_text(value: float, limit: float) -> str:
+    """Why a term is the blend's: its block's condition number against the limit, or "its
+    per-zone block is singular" when the number is above :data:`SINGULAR_CONDITION` (the digits
+    of such a number are rounding noise)."""
+    if not np.isfinite(value) or value > SINGULAR_CONDITION:
+        return "its per-zone block is singular"
+    return f"condition number {value:.3g} > {limit:g}"

@@ -136,3 +136,13 @@ def test_condition_number_of_collinear_columns_is_infinite():
 def test_too_few_results_is_a_model_error():
     with pytest.raises(ModelError, match="at least"):
         fit_time_model(np.zeros(3), np.ones((3, 1)), np.ones(3), np.ones(3), [1.0], [1.0])
+
+
+def test_singular_condition_numbers_are_not_printed_as_digits():
+    # a block singular to working precision has a condition number of rounding noise: the
+    # note says "singular", not 1.14e+16 one run and 2.07e+16 the next
+    from blendq.fit.history import _condition_text
+
+    assert _condition_text(1.14e16, 30) == "its per-zone block is singular"
+    assert _condition_text(float("inf"), 30) == "its per-zone block is singular"
+    assert _condition_text(45.2, 30) == "condition number 45.2 > 30"
