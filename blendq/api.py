@@ -1240,5 +1240,5 @@ def pump_settings(project: Result | Project | str | os.PathLike[str], draws: int
 
 
 def _no_pump(project: Project) -> InputError:
-    return InputError("has no [pump] table; add one to set the pump (docs/input-files.md)",
+    return InputError("has no [pump] table; add one to set the pump (blendq docs input-files)",
                       file=project.files.get("project", "project.toml"), field="pump")

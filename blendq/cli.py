@@ -624,7 +624,7 @@ def pump_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = None
         proj = load_project(project)
         if read_pump(project) is None:  # a missing or bad [pump] fails before the fit
             raise InputError("has no [pump] table; add one to set the pump "
-                             "(docs/input-files.md)", file="project.toml", field="pump")
+                             "(blendq docs input-files)", file="project.toml", field="pump")
         u = _units(units, proj)
         plan = pump_settings(_analyse(proj, draws, seed, u), units=u)
         lines = plan.lines()

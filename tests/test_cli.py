@@ -530,7 +530,7 @@ def test_docs_pages_are_installed_and_match_the_source_docs():
     from blendq.cli import DOCS_FOLDER, doc_topics
 
     r = run("docs")
-    assert r.exit_code == 0 and "input-files, scenarios" in r.stdout
+    assert r.exit_code == 0 and "input-files, methods, scenarios" in r.stdout
     assert "Caution:" in r.stdout
     source = Path(blendq.__file__).parent.parent / "docs"
     for topic, page in doc_topics().items():
@@ -543,7 +543,7 @@ def test_docs_pages_are_installed_and_match_the_source_docs():
     pyproject = (source.parent / "pyproject.toml").read_text(encoding="utf-8")
     assert 'blendq = ["data/**/*"]' in pyproject and DOCS_FOLDER[0] == "data"
     bad = run("docs", "nope")
-    assert bad.exit_code == 2 and "input-files, scenarios" in bad.output
+    assert bad.exit_code == 2 and "input-files, methods, scenarios" in bad.output
 
 
 def test_help_is_plain_text_in_workflow_order():

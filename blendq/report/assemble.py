@@ -562,7 +562,7 @@ def memory_section(a: Analysis, units: str) -> Section:
                   "thief zones through the open well; when the pump starts, they return that "
                   "water first. Volumes below are the fitted zone model's ambient crossflow "
                   "times the idle time; the return is modelled as the washout of a well-mixed "
-                  "volume (docs/methods.md). A step sample predicted to hold more than "
+                  "volume (blendq docs methods). A step sample predicted to hold more than "
                   f"{flag:.0%} of returned water is flagged and its uncertainty widened by "
                   f"its predicted error in the fit; above {exclude:.0%} it is left out. "
                   "The advice is a planning figure: compliance samples follow the regulator's "

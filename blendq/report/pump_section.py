@@ -119,7 +119,7 @@ def pump_section(ps: PumpSettings, units: str = "US") -> Section:
                   "the affinity laws, meets the system curve: the lift from the zone model's "
                   "pumping level (median and band of the posterior draws), column friction "
                   "(Darcy-Weisbach with Colebrook-White, or Hazen-Williams) and the discharge "
-                  "head (docs/methods.md). Settings are planning figures: check the delivered "
+                  "head (blendq docs methods). Settings are planning figures: check the delivered "
                   "rate on the meter after each change; a licensed professional reviews them."),
         *(Paragraph(line) for line in pump_lines(ps, units)),
         Table(season_table(ps, units), "Drive settings by season (rate at the median "

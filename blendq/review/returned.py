@@ -16,7 +16,7 @@ import pandas as pd
 from blendq.review.rules import Outcome, fmt
 
 SRC_MEMORY = ("crossflow memory: ambient crossflow x idle time, well-mixed washout "
-              "(docs/methods.md); flag threshold qa.returned_water_flag, common practice")
+              "(blendq docs methods); flag threshold qa.returned_water_flag, common practice")
 
 
 def check_returned_water(samples: pd.DataFrame, memory: pd.DataFrame | None,
