@@ -276,6 +276,11 @@ def check_finite(value: float) -> float:
 SI_THOUSANDS_SEPARATOR = "\u202f"
 
 
+def format_percent(fraction: float) -> str:
+    """A fraction as a percentage to one decimal, a whole number without the ".0" ("6.4%", "10%")."""
+    return f"{fraction:.1%}".replace(".0%", "%")
+
+
 def format_quantity(value: float, kind: str, system: str = "US", digits: int = 3) -> str:
     """Format a base-unit magnitude in the display unit of ``system`` (:data:`UNIT_SYSTEMS`)."""
     unit = DISPLAY_UNITS[system].get(kind, BASE_UNITS[kind])

@@ -18,6 +18,7 @@ from blendq.decide.levelcheck import LevelCheck, check_levels
 from blendq.errors import ModelError
 from blendq.fit import diagnostics, estimation, history, observations, uncertainty, unresolved
 from blendq.inputs.project import Project
+from blendq.units import format_percent
 from blendq.well import memory
 from blendq.well.model import (
     FLOWLOG_SOURCE,
@@ -187,7 +188,7 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
         fit.concentrations[fit.analytes], rate)
     for k, f in time_fits.items():
         notes.append(f"Temporal variability of {k} estimated from the monitoring history "
-                     f"({f.n} results; CV {f.temporal_cv:.0%} about a {f.model} time model): it "
+                     f"({f.n} results; CV {format_percent(f.temporal_cv)} about a {f.model} time model): it "
                      "replaces the temporal_cv setting.")
     return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
                     residuals, hyd, pred, window, limits, table, skipped,

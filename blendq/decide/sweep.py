@@ -30,6 +30,7 @@ import pandas as pd
 from blendq.chemistry.limits import Limit, RatioRule, mean_threshold
 from blendq.fit.estimation import FitResult
 from blendq.fit.uncertainty import Draws, Prediction, predict
+from blendq.units import format_percent
 from blendq.well.model import (
     elapsed_test_time,
     horizon_factor_of,
@@ -224,8 +225,8 @@ class Statistic:
         secondary), temporal CV 10 % (default setting, common practice), lab error 5 % (...)"``."""
         b = self.limit.compliance
         return (f"{self.analyte}: {b.describe()} ({b.citation}; {b.status}), temporal CV "
-                f"{self.temporal_cv:.0%} ({self.temporal_cv_source}), lab error "
-                f"{self.lab_cv:.0%} ({self.lab_cv_source})")
+                f"{format_percent(self.temporal_cv)} ({self.temporal_cv_source}), lab error "
+                f"{format_percent(self.lab_cv)} ({self.lab_cv_source})")
 
     def as_dict(self) -> dict:
         b = self.limit.compliance

@@ -26,7 +26,13 @@ from blendq.report.document import (
 )
 from blendq.report.pump_section import pump_section_for
 from blendq.report.scenario_section import scenario_section
-from blendq.units import DISPLAY_UNITS, display_unit_label, format_quantity, from_base
+from blendq.units import (
+    DISPLAY_UNITS,
+    display_unit_label,
+    format_percent,
+    format_quantity,
+    from_base,
+)
 
 REFERENCES = [
     "Thiem, G. (1906) Hydrologische Methoden. Gebhardt, Leipzig.",
@@ -144,8 +150,8 @@ def compliance_table(a: Analysis) -> pd.DataFrame:
         rows.append({"Analyte": get_analyte(analyte).label(), "Limit": st.limit.label(),
                      "Judged on": b.describe(), "Rule": b.rule(),
                      "Source of the rule": f"{b.citation} ({b.status})",
-                     "Temporal CV": f"{st.temporal_cv:.0%} ({st.temporal_cv_source})",
-                     "Lab error": f"{st.lab_cv:.0%} ({st.lab_cv_source})"})
+                     "Temporal CV": f"{format_percent(st.temporal_cv)} ({st.temporal_cv_source})",
+                     "Lab error": f"{format_percent(st.lab_cv)} ({st.lab_cv_source})"})
     return pd.DataFrame(rows, columns=["Analyte", "Limit", "Judged on", "Rule",
                                        "Source of the rule", "Temporal CV", "Lab error"])
 
