@@ -146,7 +146,11 @@ def interference_matrix(
             raise InputError(f"{labels[k]}: coordinates ({xs[k]}, {ys[k]}) m are not finite",
                              field="x, y")
     transmissivity = _positive(transmissivity, "transmissivity", "m^2/d")
-    rw = np.broadcast_to(np.asarray(well_radius, float), (n,)) if n else np.zeros(0)
+    try:
+        rw = np.broadcast_to(np.asarray(well_radius, float), (n,))
+    except ValueError:
+        raise InputError(f"well radii of shape {np.shape(well_radius)} for {n} wells",
+                         field="well_radius") from None
     for k in range(n):
         if not (np.isfinite(rw[k]) and rw[k] >= 0.0):
             raise InputError(f"{labels[k]}: well radius {rw[k]} m is not a finite value >= 0",

@@ -225,6 +225,7 @@ def test_theis_drawdown_grows_with_time_and_falls_with_distance(r, t, factor):
     ({"x": [0.0, float("inf")]}, "x, y", "not finite"),
     ({"names": ["north"]}, "names", "1 well names for 2 wells"),
     ({"well_radius": -1.0}, "well_radius", "not a finite value >= 0"),
+    ({"well_radius": [0.1, 0.1, 0.1]}, "well_radius", "well radii of shape (3,) for 2 wells"),
 ])
 def test_bad_input_is_named(kwargs, field, words):
     args = {"x": [0.0, 100.0], "y": [0.0, 0.0], "transmissivity": T, "storativity": S,
