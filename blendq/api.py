@@ -1233,10 +1233,11 @@ def pump_settings(project: Result | Project | str | os.PathLike[str], draws: int
         if proj.folder is None or read_pump(proj.folder / proj.files["project"]) is None:
             raise _no_pump(proj)
     result = project if isinstance(project, Result) else analyse(proj, draws, seed, units=units)
-    ps = settings_for(result.analysis)
+    units = _unit_system(units or result.units)
+    ps = settings_for(result.analysis, units)
     if ps is None:
         raise _no_pump(result.analysis.project)
-    return PumpPlan(ps, _unit_system(units or result.units))
+    return PumpPlan(ps, units)
 
 
 def _no_pump(project: Project) -> InputError:

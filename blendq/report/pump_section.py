@@ -93,13 +93,14 @@ def pump_lines(ps: PumpSettings, units: str = "US") -> list[str]:
     return lines + list(ps.notes)
 
 
-def settings_for(a: Analysis) -> PumpSettings | None:
-    """The pump settings of an analysis whose project has ``[pump]`` (None otherwise)."""
+def settings_for(a: Analysis, units: str | None = None) -> PumpSettings | None:
+    """The pump settings of an analysis whose project has ``[pump]`` (None otherwise); an
+    error's message in ``units`` (default: the project's display units)."""
     p = a.project
     if p.folder is None or "project" not in p.files:
         return None
     spec = read_pump(p.folder / p.files["project"])
-    return None if spec is None else pump_settings(a, spec)
+    return None if spec is None else pump_settings(a, spec, units)
 
 
 def _energy_figure(ps: PumpSettings, units: str):
@@ -138,7 +139,7 @@ def pump_section(ps: PumpSettings, units: str = "US") -> Section:
 def pump_section_for(a: Analysis, units: str = "US") -> Section | None:
     """The pump section of a report, or None when the project has no ``[pump]``."""
     try:
-        ps = settings_for(a)
+        ps = settings_for(a, units)
     except ModelError as err:
         return Section("Pump settings and energy", (Paragraph(f"No drive setting: {err}."),),
                        "pump")
