@@ -19,7 +19,7 @@ from blendq.report.document import Paragraph, Section, Table
 from blendq.units import DISPLAY_UNITS, display_unit_label, format_quantity, from_base
 
 
-def _energy_unit(units: str) -> tuple[str, float]:
+def energy_unit(units: str) -> tuple[str, float]:
     """Energy-per-volume label and factor from kWh/m^3."""
     return ("kWh/1,000 gal", M3_PER_KGAL) if units == "US" else ("kWh/m3", 1.0)
 
@@ -51,7 +51,7 @@ def energy_table(ps: PumpSettings, units: str = "US", rows: int = 5) -> pd.DataF
         return pd.DataFrame()
     pick = np.unique(np.linspace(0, len(e) - 1, rows).round().astype(int))
     e = e.iloc[pick]
-    label, factor = _energy_unit(units)
+    label, factor = energy_unit(units)
     return pd.DataFrame({
         "frequency [Hz]": e["frequency"].round(1).to_numpy(),
         f"rate [{_rate_unit(units)}]": from_base(
@@ -63,7 +63,7 @@ def energy_table(ps: PumpSettings, units: str = "US", rows: int = 5) -> pd.DataF
 
 def pump_lines(ps: PumpSettings, units: str = "US") -> list[str]:
     """The settings in a few sentences."""
-    label, factor = _energy_unit(units)
+    label, factor = energy_unit(units)
     lo, hi = (format_quantity(v, "rate", units) for v in ps.window)
     lines = [f"Operating window kept: {lo} to {hi}; target "
              f"{format_quantity(ps.target, 'rate', units)}."]
