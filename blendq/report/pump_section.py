@@ -115,21 +115,24 @@ def _energy_figure(ps: PumpSettings, units: str):
 
 def pump_section(ps: PumpSettings, units: str = "US") -> Section:
     """The report section for the pump settings (key ``"pump"``)."""
+    seasons = season_table(ps, units)
     blocks = [
         Paragraph("The pump delivers the rate where its curve, scaled to the drive frequency by "
                   "the affinity laws, meets the system curve: the lift from the zone model's "
                   "pumping level (median and band of the posterior draws), column friction "
-                  "(Darcy-Weisbach with Colebrook-White, or Hazen-Williams) and the discharge "
-                  "head (blendq docs methods). Settings are planning figures: check the delivered "
+                  "(Darcy-Weisbach with Colebrook-White, or Hazen-Williams), the fittings' minor "
+                  "losses and the discharge head (blendq docs methods). Settings are planning figures: check the delivered "
                   "rate on the meter after each change; a licensed professional reviews them."),
         *(Paragraph(line) for line in pump_lines(ps, units)),
-        Table(season_table(ps, units), "Drive settings by season (rate at the median "
-                                       "pumping level)."),
+        Table(seasons, "Drive settings by season (rate at the median pumping level).",
+              formats={c: ".1f" for c in seasons.columns if c.endswith("[Hz]")}),
     ]
     energy = energy_table(ps, units)
     if not energy.empty and np.isfinite(ps.recommended_energy):
         blocks.append(Table(energy, "Wire-to-water power and energy across the compliant "
                                     "frequencies (middle static level, median pumping level).",
+                            formats={"frequency [Hz]": ".1f", "power [kW]": ".1f",
+                                     energy.columns[-1]: ".3f"},
                             note="Motor and drive efficiencies are named settings (common "
                                  "practice values)."))
         blocks.append(_energy_figure(ps, units))
