@@ -658,8 +658,8 @@ def compare_cmd(
     as_json: JsonOpt = False,
 ) -> None:
     """Compare options (seal a zone, redevelop, move the intake, lower the heads, blend, a new
-    pump) with the base case: the project's [[scenarios]] plus any given here, all with the same Monte
-    Carlo draws. The same options given to `blendq report` enter the report."""
+    pump) with the base case: the project's [[scenarios]] plus any given here, all with the
+    same Monte Carlo draws. The same options given to `blendq report` enter the report."""
 
     def body():
         from blendq.api import load_project, to_json

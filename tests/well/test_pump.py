@@ -173,3 +173,13 @@ def test_bad_curve_is_refused():
         pump.PumpCurve(np.array([0.0, 0.0]), np.array([10.0, 5.0]))
     with pytest.raises(ModelError, match="rise"):
         pump.PumpCurve(np.array([0.0, 1.0]), np.array([10.0, 12.0]))
+
+
+@settings(max_examples=50, deadline=None)
+@given(q=st.floats(1.0, 1e5), k=st.floats(0.0, 50.0), d=st.floats(0.05, 0.5))
+def test_minor_loss_is_k_velocity_head(q, k, d):
+    # h = K v^2 / (2 g): zero without fittings, linear in K, quadratic in the rate
+    h = float(pump.minor_loss(q, d, k))
+    v = q / 86400.0 / (np.pi * d**2 / 4)
+    assert h == pytest.approx(k * v**2 / (2 * pump.GRAVITY), rel=1e-12, abs=0.0)
+    assert float(pump.minor_loss(2 * q, d, k)) == pytest.approx(4 * h, rel=1e-12, abs=0.0)
