@@ -312,9 +312,55 @@ def _raw_lower_heads(item: Any, units: str) -> dict:
     return {"name": f"Static heads {text} lower", "lower_heads": text}
 
 
+#: keys of a new pump given as text whose values are plain numbers
+_PUMP_NUMBERS = ("motor_efficiency", "drive_efficiency", "hazen_williams_c", "minor_loss_k")
+
+
+def _raw_new_pump(item: Any, units: str, file: str, key: str) -> dict:
+    """``"pump-b.csv; intake=150 ft; rated_speed=3550 rpm"`` or ``{"curve": ..., "intake":
+    ...}`` as a ``[[scenarios]]`` entry; a curve path found from the current folder is made
+    absolute (else it is read from the project's folder)."""
+    if isinstance(item, (str, os.PathLike)):
+        parts = [p.strip() for p in str(item).split(";") if p.strip()]
+        if not parts or "=" in parts[0]:
+            raise InputError(f'"{item}" does not start with the pump curve file (expected e.g. '
+                             '"pump-b.csv; intake=150 ft; rated_speed=3550 rpm")', file=file,
+                             field=key)
+        table: dict = {"curve": parts[0]}
+        for part in parts[1:]:
+            name, eq, value = part.partition("=")
+            if not eq:
+                raise InputError(f'"{part}" is not KEY=VALUE', file=file, field=key)
+            name, value = name.strip(), value.strip()
+            if name in _PUMP_NUMBERS:
+                try:
+                    value = float(value)
+                except ValueError:
+                    raise InputError(f'{name} "{value}" is not a plain number', file=file,
+                                     field=key) from None
+            table[name] = value
+    elif isinstance(item, dict):
+        table = {k: (_quantity_text(v) if _is_quantity(v) else v) for k, v in item.items()}
+    else:
+        raise InputError(f"expected a curve file or a table with a curve, got {item!r}",
+                         file=file, field=key)
+    if not isinstance(table.get("curve"), (str, os.PathLike)):
+        raise InputError("a new pump needs its curve file", file=file, field=key)
+    curve = Path(table["curve"])
+    table["curve"] = str(curve.resolve()) if curve.is_file() else str(curve)
+    entry: dict = {"name": f"New pump {curve.name}"}
+    intake = table.pop("intake", None)
+    if intake is not None:
+        text = _length_text(intake, units)
+        entry["name"] += f", intake at {text}"
+        entry["intake"] = text
+    entry["pump"] = table
+    return entry
+
+
 def option_entries(project: Project, seal: Any = None, redevelop: Any = None,
                    intake: Any = None, blend: Any = None, lower_heads: Any = None, *,
-                   units: str | None = None, file: str = "compare()",
+                   new_pump: Any = None, units: str | None = None, file: str = "compare()",
                    option_prefix: str = "") -> list[tuple[str, dict]]:
     """One-change options as raw ``[[scenarios]]`` entries, each with the argument it came
     from (``("--seal", {"name": "Seal Upper sand", "seal": ["Upper sand"]})``).
@@ -334,11 +380,15 @@ def option_entries(project: Project, seal: Any = None, redevelop: Any = None,
     raws += [(key, _raw_lower_heads(item, units)) for item in _as_list(lower_heads)]
     key = option_prefix + "blend"
     raws += [(key, _raw_blend(item, file, key)) for item in _as_list(blend)]
+    key = option_prefix + "new-pump" if option_prefix else "new_pump"
+    pumps = [new_pump] if isinstance(new_pump, os.PathLike) else _as_list(new_pump)
+    raws += [(key, _raw_new_pump(item, units, file, key)) for item in pumps]
     return raws
 
 
 def build_scenarios(project: Project, seal: Any = None, redevelop: Any = None,
                     intake: Any = None, blend: Any = None, *, lower_heads: Any = None,
+                    new_pump: Any = None,
                     scenarios: Sequence[dict | _scenarios.Scenario] | None = None,
                     include_project: bool = True, units: str | None = None,
                     file: str = "compare()", option_prefix: str = "",
@@ -367,6 +417,12 @@ def build_scenarios(project: Project, seal: Any = None, redevelop: Any = None,
     lower_heads : str, float, pint.Quantity or list of these, optional
         Every static head lowered by this much (a drought): ``"10 ft"``, a Quantity, or a
         number in the display length unit.
+    new_pump : str, Path, dict or list of these, optional
+        A new pump: its curve file, then any ``[pump]`` key and an ``intake`` separated by
+        semicolons, ``"pump-b.csv; intake=150 ft; rated_speed=3550 rpm"``, or a table
+        ``{"curve": "pump-b.csv", "intake": "150 ft"}``. The curve is read from the current
+        folder (else the project's); the keys not given are the project's ``[pump]`` ones
+        (docs/scenarios.md).
     scenarios : list of dict or Scenario, optional
         Further options as raw ``[[scenarios]]`` entries (or already resolved).
     include_project : bool
@@ -381,7 +437,7 @@ def build_scenarios(project: Project, seal: Any = None, redevelop: Any = None,
     -------
     list of Scenario
         In order: the project's, ``seal``, ``redevelop``, ``intake``, ``lower_heads``,
-        ``blend``, ``scenarios``.
+        ``blend``, ``new_pump``, ``scenarios``.
 
     Raises
     ------
@@ -393,8 +449,9 @@ def build_scenarios(project: Project, seal: Any = None, redevelop: Any = None,
     units = _unit_system(units or project.settings.display_units)
     out = _scenarios.project_scenarios(project) if include_project else []
     names = {s.name for s in out}
-    raws = option_entries(project, seal, redevelop, intake, blend, lower_heads, units=units,
-                          file=file, option_prefix=option_prefix)
+    raws = option_entries(project, seal, redevelop, intake, blend, lower_heads,
+                          new_pump=new_pump, units=units, file=file,
+                          option_prefix=option_prefix)
     predicted = _pipeline.fit_analytes(project)[0]
     # a one-change option is named by its argument alone; a [[scenarios]] entry keeps the key
     # inside it (scenarios[2].blend.rate) in messages
@@ -680,14 +737,14 @@ class Result:
 
     # -- options, report, charts -----------------------------------------------------------
     def compare(self, seal: Any = None, redevelop: Any = None, intake: Any = None,
-                blend: Any = None, *, lower_heads: Any = None,
+                blend: Any = None, *, lower_heads: Any = None, new_pump: Any = None,
                 scenarios: Sequence[dict] | None = None,
                 include_project: bool = True) -> ComparisonResult:
         """Compare options with the base case, all with the same posterior draws.
 
         Parameters
         ----------
-        seal, redevelop, intake, blend, lower_heads, scenarios, include_project
+        seal, redevelop, intake, blend, lower_heads, new_pump, scenarios, include_project
             See :func:`build_scenarios` (one option per item; the project's own
             ``[[scenarios]]`` first unless ``include_project`` is False).
 
@@ -696,8 +753,8 @@ class Result:
         ComparisonResult
         """
         built = build_scenarios(self.project, seal, redevelop, intake, blend,
-                                lower_heads=lower_heads, scenarios=scenarios, include_project=include_project,
-                                units=self.units)
+                                lower_heads=lower_heads, new_pump=new_pump, scenarios=scenarios,
+                                include_project=include_project, units=self.units)
         return ComparisonResult(_scenarios.compare(self.analysis, built), self.analysis,
                                 self.units)
 
@@ -976,6 +1033,25 @@ class ComparisonResult:
             cu, an = _concentration_unit(a), get_analyte(a)
             for stat in ("median", "lower", "upper"):
                 out[f"{a} {stat} [{cu}]"] = an.in_display_unit(t[f"{a}_{stat}"])
+        if "pump_curve" in t:  # an option with a new pump: every pump's setting and energy
+            from blendq.report.pump_section import energy_unit
+
+            label, factor = energy_unit(self.units)
+            out["pump curve"] = t["pump_curve"].fillna("")
+            for col, name in (("pump_frequency_low", "drive low"),
+                              ("pump_frequency_high", "drive high"),
+                              ("pump_setting", "drive setting")):
+                out[f"{name} [Hz]"] = t[col].to_numpy(float)
+            for col, name in (("pump_rate_low", "pump rate at lowest frequency"),
+                              ("pump_rate_high", "pump rate at highest frequency"),
+                              ("pump_setting_rate_low", "rate at setting low"),
+                              ("pump_setting_rate_high", "rate at setting high")):
+                out[f"{name} [{ru}]"] = from_base(t[col].to_numpy(float), "rate", du["rate"])
+            out[f"energy at setting [{label}]"] = t["pump_kwh_per_m3"].to_numpy(float) * factor
+            out[f"cheapest energy [{label}]"] = \
+                t["pump_cheapest_kwh_per_m3"].to_numpy(float) * factor
+            out["pump note"] = [_scenario_section.pump_error_text(res, self.units)
+                                for res in self.comparison.results]
         return out
 
     def text_table(self) -> pd.DataFrame:
@@ -987,6 +1063,13 @@ class ComparisonResult:
     def widest(self) -> str:
         """A sentence naming the option with the widest operating window."""
         return _scenario_section.widest_sentence(self.comparison, self.units)
+
+    def pump_lines(self) -> list[str]:
+        """Each new pump against the current one (drive setting, rates, energy per volume);
+        empty when no option puts in a new pump."""
+        if not _scenario_section.has_pump(self.comparison):
+            return []
+        return _scenario_section.pump_sentences(self.comparison, self.units)
 
     def plot(self) -> Figure:
         """Median delivered quality against rate for each option, and their windows
@@ -1233,10 +1316,11 @@ def pump_settings(project: Result | Project | str | os.PathLike[str], draws: int
         if proj.folder is None or read_pump(proj.folder / proj.files["project"]) is None:
             raise _no_pump(proj)
     result = project if isinstance(project, Result) else analyse(proj, draws, seed, units=units)
-    ps = settings_for(result.analysis)
+    units = _unit_system(units or result.units)
+    ps = settings_for(result.analysis, units)
     if ps is None:
         raise _no_pump(result.analysis.project)
-    return PumpPlan(ps, _unit_system(units or result.units))
+    return PumpPlan(ps, units)
 
 
 def _no_pump(project: Project) -> InputError:

@@ -63,6 +63,11 @@ BlendOpt = Annotated[list[str] | None, typer.Option(
     "--blend", metavar="RATE;A=C",
     help='Option: a second source, its rate then each concentration separated by semicolons, '
          'e.g. "200 gpm; nitrate=2 mg/L as N; arsenic=1 ug/L" (repeatable).')]
+NewPumpOpt = Annotated[list[str] | None, typer.Option(
+    "--new-pump", metavar="CURVE;KEY=VALUE",
+    help='Option: a new pump, its curve file then any [pump] key or a new intake separated by '
+         'semicolons, e.g. "pump-b.csv; intake=150 ft; rated_speed=3550 rpm" (repeatable; '
+         'the keys not given are the project\'s [pump] ones).')]
 
 
 def _fail(message: str, code: int = 2) -> None:
@@ -579,18 +584,18 @@ def history_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = N
     _guard(body)
 
 
-def _with_options(proj, seal, redevelop, intake, lower_heads, blend, units):
+def _with_options(proj, seal, redevelop, intake, lower_heads, blend, units, new_pump=None):
     """The project with the command line's options added to its [[scenarios]] (checked now,
     before the long run, with messages naming the option)."""
     from dataclasses import replace
 
     from blendq.api import build_scenarios, option_entries
 
-    build_scenarios(proj, seal, redevelop, intake, blend, lower_heads=lower_heads, units=units,
-                    file="command line", option_prefix="--")
+    build_scenarios(proj, seal, redevelop, intake, blend, lower_heads=lower_heads,
+                    new_pump=new_pump, units=units, file="command line", option_prefix="--")
     extra = [raw for _, raw in option_entries(proj, seal, redevelop, intake, blend, lower_heads,
-                                              units=units, file="command line",
-                                              option_prefix="--")]
+                                              new_pump=new_pump, units=units,
+                                              file="command line", option_prefix="--")]
     return replace(proj, scenarios=[*proj.scenarios, *extra]) if extra else proj
 
 
@@ -648,20 +653,20 @@ def pump_cmd(project: ProjectArg, units: UnitsOpt = None, draws: DrawsOpt = None
 def compare_cmd(
     project: ProjectArg,
     seal: SealOpt = None, redevelop: RedevelopOpt = None, intake: IntakeOpt = None,
-    lower_heads: LowerHeadsOpt = None, blend: BlendOpt = None,
+    lower_heads: LowerHeadsOpt = None, blend: BlendOpt = None, new_pump: NewPumpOpt = None,
     units: UnitsOpt = None, draws: DrawsOpt = None, seed: SeedOpt = None,
     as_json: JsonOpt = False,
 ) -> None:
-    """Compare options (seal a zone, redevelop, move the intake, lower the heads, blend) with
-    the base case: the project's [[scenarios]] plus any given here, all with the same Monte
-    Carlo draws. The same options given to `blendq report` enter the report."""
+    """Compare options (seal a zone, redevelop, move the intake, lower the heads, blend, a new
+    pump) with the base case: the project's [[scenarios]] plus any given here, all with the
+    same Monte Carlo draws. The same options given to `blendq report` enter the report."""
 
     def body():
         from blendq.api import load_project, to_json
 
         proj = load_project(project)
         u = _units(units, proj)
-        proj = _with_options(proj, seal, redevelop, intake, lower_heads, blend, u)
+        proj = _with_options(proj, seal, redevelop, intake, lower_heads, blend, u, new_pump)
         result = _analyse(proj, draws, seed, u)
         comp = result.compare()
         names = [str(s.get("name", "")) for s in proj.scenarios]
@@ -686,7 +691,12 @@ def compare_cmd(
                 typer.echo(f"  what would tell: {r['What would tell']}")
             else:
                 typer.echo(f"  window limited by: {r['Window limited by']}")
+            if r.get("Drive setting", "-") != "-":
+                typer.echo(f"  pump: drive {r['Drive setting']}; delivers {r['Pump delivers']}; "
+                           f"energy at setting {r['Energy at setting']}")
         typer.echo(comp.widest)
+        for line in comp.pump_lines():
+            typer.echo(line)
         _echo_cautions(*names)
 
     _guard(body)
@@ -697,7 +707,8 @@ def report_cmd(project: ProjectArg,
                out: Annotated[Path, typer.Option("--out", "-o", metavar="FOLDER", help="Output folder (replaced as a whole).")] = Path("blendq-out"),
                units: UnitsOpt = None, draws: DrawsOpt = None, seed: SeedOpt = None,
                seal: SealOpt = None, redevelop: RedevelopOpt = None, intake: IntakeOpt = None,
-               lower_heads: LowerHeadsOpt = None, blend: BlendOpt = None) -> None:
+               lower_heads: LowerHeadsOpt = None, blend: BlendOpt = None,
+               new_pump: NewPumpOpt = None) -> None:
     """Run the whole analysis and write the report (HTML, PDF), tables (CSV) and a JSON
     summary. Options given here (as to `blendq compare`) join the project's [[scenarios]]."""
 
@@ -706,7 +717,7 @@ def report_cmd(project: ProjectArg,
 
         proj = load_project(project)
         u = _units(units, proj)
-        proj = _with_options(proj, seal, redevelop, intake, lower_heads, blend, u)
+        proj = _with_options(proj, seal, redevelop, intake, lower_heads, blend, u, new_pump)
         _write_report(proj, out, u, draws, seed)
 
     _guard(body)

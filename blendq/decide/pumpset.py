@@ -19,6 +19,7 @@ from scipy.optimize import brentq
 
 from blendq.decide.analysis import Analysis
 from blendq.decide.levelcheck import static_level_of
+from blendq.decide.sweep import Window
 from blendq.errors import ModelError
 from blendq.inputs.pump_file import PumpSpec
 from blendq.well import pump as pumpmod
@@ -61,6 +62,11 @@ class PumpSettings:
     notes : list of str
     test_static_level : float
         The test's static level [m depth] the seasonal levels are measured against.
+    rate_span : tuple of float
+        Lowest and highest rate [m^3/d] the pump delivers across the drive's frequency range,
+        every seasonal static level and both ends of the level band (0 where it cannot lift
+        the water at the lowest frequency; inf where it runs off its curve or beyond the rates
+        modelled at the highest).
     """
 
     window: tuple[float, float]
@@ -74,25 +80,33 @@ class PumpSettings:
     cheapest: float = float("nan")
     notes: list[str] = field(default_factory=list)
     test_static_level: float = float("nan")
+    rate_span: tuple[float, float] = (float("nan"), float("nan"))
 
 
 def level_band(a: Analysis) -> tuple[np.ndarray, np.ndarray]:
     """Sweep rates [m^3/d] and the pumping level [m depth] at each: rows shallow side, median,
     deep side (quantiles alpha, 0.5, 1 - alpha of the draws)."""
-    alpha = a.project.settings.exceedance_probability
-    pl = a.prediction.pumping_level
-    band = np.quantile(pl, [alpha, 0.5, 1 - alpha], axis=0)
     deep = getattr(a.step_drawdown, "level_deep", None) if a.step_drawdown else None
-    if deep is not None and np.shape(deep) == band[2].shape:
-        band[2] = np.fmax(band[2], np.asarray(deep, float))
-    return np.asarray(a.prediction.rates, float), band
+    return band_of(a.prediction.rates, a.prediction.pumping_level,
+                   a.project.settings.exceedance_probability, deep)
+
+
+def band_of(rates, pumping_level, alpha: float, level_deep=None) -> tuple[np.ndarray, np.ndarray]:
+    """Rates [m^3/d] and the (3, n_rates) pumping-level band [m depth] of draws
+    ``pumping_level`` (n_draws, n_rates): quantiles alpha, 0.5 and 1 - alpha, the deep side no
+    shallower than ``level_deep`` (the step test's) where given."""
+    band = np.quantile(pumping_level, [alpha, 0.5, 1 - alpha], axis=0)
+    if level_deep is not None and np.shape(level_deep) == band[2].shape:
+        band[2] = np.fmax(band[2], np.asarray(level_deep, float))
+    return np.asarray(rates, float), band
 
 
 def _system(spec: PumpSpec, rates, levels, shift: float) -> pumpmod.SystemCurve:
     return pumpmod.SystemCurve(
         level=lambda q: np.interp(q, rates, levels) + shift, length=spec.column_length,
         diameter=spec.column_diameter, roughness=spec.roughness,
-        hazen_williams_c=spec.hazen_williams_c, discharge_head=spec.discharge_head)
+        hazen_williams_c=spec.hazen_williams_c, discharge_head=spec.discharge_head,
+        minor_k=spec.minor_loss_k)
 
 
 def curve_of(spec: PumpSpec) -> pumpmod.PumpCurve:
@@ -106,8 +120,8 @@ def delivered(curve: pumpmod.PumpCurve, system: pumpmod.SystemCurve, spec: PumpS
     try:
         return pumpmod.operating_point(curve, system, frequency / spec.rated_frequency,
                                        max_rate=max_rate)
-    except ModelError as err:
-        return 0.0 if "cannot lift" in str(err) else float("inf")
+    except pumpmod.PumpError as err:
+        return 0.0 if err.cannot_lift else float("inf")
 
 
 def _frequency_for(rate_of, target: float, f_lo: float, f_hi: float) -> float:
@@ -156,7 +170,7 @@ def energy_at(curve, system, spec, frequency, max_rate) -> dict:
             "kwh_per_m3": kwh, "kwh_per_kgal": kwh * M3_PER_KGAL}
 
 
-def pump_settings(a: Analysis, spec: PumpSpec) -> PumpSettings:
+def pump_settings(a: Analysis, spec: PumpSpec, units: str | None = None) -> PumpSettings:
     """Drive settings that keep the delivered rate in the operating window all year.
 
     Parameters
@@ -165,6 +179,8 @@ def pump_settings(a: Analysis, spec: PumpSpec) -> PumpSettings:
         The project's analysis (its window, pumping-level draws and static level).
     spec : PumpSpec
         The installed pump (:func:`blendq.inputs.pump_file.read_pump`).
+    units : str, optional
+        Display unit system of the messages (default: the project's ``display_units``).
 
     Returns
     -------
@@ -173,17 +189,46 @@ def pump_settings(a: Analysis, spec: PumpSpec) -> PumpSettings:
     Raises
     ------
     ModelError
-        When there is no operating window to keep the rate in, or the pump cannot lift the
-        water at its highest frequency at some seasonal static level.
+        When there is no operating window to keep the rate in; a
+        :class:`~blendq.well.pump.PumpError` when the pump cannot lift the water at its
+        highest frequency at some seasonal static level.
     """
-    w = a.window
+    rates, band = level_band(a)
+    return settings_for_window(a.window, rates, band, static_level_of(a.project), spec,
+                               units or a.project.settings.display_units)
+
+
+def settings_for_window(w: Window, rates, band, test_static: float | None, spec: PumpSpec,
+                        units: str = "SI") -> PumpSettings:
+    """Drive settings that keep the delivered rate in window ``w`` all year.
+
+    Parameters
+    ----------
+    w : Window
+        The operating window (its intervals and recommended rate [m^3/d]).
+    rates, band : ndarray
+        Rates [m^3/d] and the (3, n_rates) pumping-level band [m depth] (:func:`band_of`).
+    test_static : float or None
+        The test's static level [m depth] the seasonal levels are measured against (None: the
+        band's median level at the first rate).
+    spec : PumpSpec
+    units : str
+        Display unit system of the messages.
+
+    Returns
+    -------
+    PumpSettings
+
+    Raises
+    ------
+    ModelError
+        As :func:`pump_settings`.
+    """
     if w.empty:
         raise ModelError(f"there is no operating window to set the pump for: {w.reason_empty}")
     target = w.recommended if w.recommended is not None else w.intervals[0][0]
     low, high = next(((lo, hi) for lo, hi, *_ in w.intervals if lo <= target <= hi),
                      w.intervals[0][:2])
-    rates, band = level_band(a)
-    test_static = static_level_of(a.project)
     if test_static is None:
         test_static = float(band[1][0])
     curve, max_rate = curve_of(spec), float(rates[-1])
@@ -196,10 +241,10 @@ def pump_settings(a: Analysis, spec: PumpSpec) -> PumpSettings:
         for system in group:
             if delivered(curve, system, spec, spec.max_frequency, max_rate) == 0.0:
                 try:
-                    pumpmod.operating_point(curve, system, top, max_rate=max_rate)
-                except ModelError as err:
-                    raise ModelError(f"at the {name} static level and {spec.max_frequency:g} "
-                                     f"Hz, {err}") from None
+                    pumpmod.operating_point(curve, system, top, max_rate=max_rate, units=units)
+                except pumpmod.PumpError as err:
+                    raise err.prefixed(f"at the {name} static level and "
+                                       f"{spec.max_frequency:g} Hz, ") from None
     every = [sys for group in systems.values() for sys in group]
     span = _range(curve, every, spec, low, high, max_rate)
     middle = float(np.mean(list(seasons.values())))
@@ -234,8 +279,11 @@ def pump_settings(a: Analysis, spec: PumpSpec) -> PumpSettings:
     energy = pd.DataFrame([energy_at(curve, mid_system, spec, f, max_rate)
                            for f in np.linspace(*scan_span, ENERGY_POINTS)]) \
         if scan_span else pd.DataFrame()
+    every_rate = [delivered(curve, sys, spec, f, max_rate) for sys in every
+                   for f in (spec.min_frequency, spec.max_frequency)]
     out = PumpSettings((float(low), float(high)), float(target), span, recommended, table,
-                       energy, notes=notes, test_static_level=float(test_static))
+                       energy, notes=notes, test_static_level=float(test_static),
+                       rate_span=(float(min(every_rate)), float(max(every_rate))))
     if spec.curve_efficiency is None:
         notes.append("The pump curve gives no efficiency: power and energy are not computed.")
     elif not energy.empty:

@@ -1,8 +1,9 @@
 """What-if scenarios: the calibrated well with changes, compared with the base case.
 
 A scenario changes the fitted well model (seal zones, redevelop a zone, move the pump intake,
-lower the static heads) and/or the water delivered (blend with a second source), and may set its
-own margin and exceedance probability. Every scenario is evaluated with the same posterior
+lower the static heads) and/or the water delivered (blend with a second source), may put in a
+new pump (another curve, with its drive settings and energy against the system curve), and may
+set its own margin and exceedance probability. Every scenario is evaluated with the same posterior
 draws and the same rate grid as the base case (common random numbers), so differences between
 scenarios are differences of the changes, not of sampling noise.
 
@@ -14,6 +15,7 @@ Scenario entries (``[[scenarios]]`` in project.toml; see ``docs/scenarios.md``):
     intake = "140 ft"                                # new pump intake depth
     lower_heads = "10 ft"                            # every static head lowered (drought)
     blend = { rate = "200 gpm", nitrate = "2 mg/L as N", arsenic = "1 ug/L" }
+    pump = { curve = "pump-b.csv", rated_speed = "3550 rpm" }  # over the [pump] table
     margin = 0.8
     exceedance_probability = 0.05
 
@@ -26,21 +28,25 @@ from __future__ import annotations
 import re
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte, to_canonical
+from blendq.decide import pumpset
+from blendq.decide.levelcheck import static_level_of
 from blendq.decide.sweep import Window, operating_window, sweep
 from blendq.errors import InputError, ModelError
 from blendq.fit.uncertainty import Prediction
 from blendq.inputs.project import Project
+from blendq.inputs.pump_file import PumpSpec, option_pump, read_pump
 from blendq.units import UNIT_SYSTEMS, parse_quantity
 from blendq.well.model import WellModel
 
 #: keys a scenario entry may have
 SCENARIO_KEYS = ("name", "description", "seal", "redevelop", "intake", "lower_heads", "blend",
-                 "margin", "exceedance_probability")
+                 "pump", "margin", "exceedance_probability")
 BASE_NAME = "Base case"
 
 _CONC = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)(?:\s+as\s+(\S+))?\s*$",
@@ -85,6 +91,9 @@ class Scenario:
         Override the project's settings when given.
     changes : list of str
         The changes in words (for tables).
+    pump : PumpSpec or None
+        A new pump (its curve, drive, column and seasonal static levels); the base case of a
+        comparison with a new pump carries the project's current ``[pump]`` here.
     """
 
     name: str
@@ -96,6 +105,7 @@ class Scenario:
     margin: float | None = None
     exceedance_probability: float | None = None
     changes: list[str] = field(default_factory=list)
+    pump: PumpSpec | None = None
 
     @property
     def changes_well(self) -> bool:
@@ -369,10 +379,48 @@ def parse_scenario(raw: dict, index: int, project: Project, file: str = "project
         alpha = _number(raw["exceedance_probability"], file, f"{pre}.exceedance_probability",
                         0.0, 0.5, True, "a probability above 0 and at most 0.5")
         changes.append(f"exceedance probability {alpha:g}")
+    new_pump = _parse_pump(raw["pump"], project, intake, file, f"{pre}.pump") \
+        if "pump" in raw else None
+    if new_pump is not None:
+        changes.append(new_pump[1])
     if not changes:
         changes.append("no change")
     return Scenario(name.strip(), factor, tuple(redevelop), intake, drop, blend, margin, alpha,
-                    changes)
+                    changes, new_pump[0] if new_pump else None)
+
+
+def _project_file(project: Project) -> Path | None:
+    if project.folder is None or "project" not in project.files:
+        return None
+    return Path(project.folder) / project.files["project"]
+
+
+def _parse_pump(raw, project: Project, intake: float | None, file: str,
+                key: str) -> tuple[PumpSpec, str]:
+    """A new pump's spec and its change in words. Its keys replace those of the project's
+    ``[pump]``; a new intake without a ``column_length`` of its own lengthens (or shortens) the
+    column by the intake's move (the pump hangs at its intake)."""
+    where = _project_file(project)
+    if where is None:
+        raise InputError("a new pump needs the project file (its folder holds the curve)",
+                         file=file, field=key)
+    spec = option_pump(raw, where, key)
+    if intake is not None and isinstance(raw, dict) and "column_length" not in raw:
+        length = spec.column_length + intake - project.well.operating_intake
+        if length <= 0:
+            raise InputError(f"the intake's move leaves a column of {length:.3g} m; give the "
+                             "new pump's column_length", file=file, field=f"{key}.column_length")
+        spec = replace(spec, column_length=float(length))
+    words = f"new pump ({Path(spec.curve_file).name}"
+    if spec.rated_speed is not None:
+        words += f", {spec.rated_speed:g} rpm"
+    return spec, words + f", {spec.min_frequency:g} to {spec.max_frequency:g} Hz)"
+
+
+def current_pump(project: Project) -> PumpSpec | None:
+    """The project's ``[pump]`` (None without one, or without a project file)."""
+    where = _project_file(project)
+    return None if where is None else read_pump(where)
 
 
 def project_scenarios(project: Project) -> list[Scenario]:
@@ -538,6 +586,12 @@ class ScenarioResult:
         Unresolved zones that matter most where compliance is undecided.
     would_tell : dict units -> list of str
         Measurements that would decide a "cannot tell" option, in each display unit system.
+    pump : PumpSettings or None
+        Drive settings, delivered rates and energy of the scenario's pump in its window (None
+        when the scenario has no pump, or its pump cannot serve the window).
+    pump_error : ModelError or None
+        Why the scenario's pump cannot serve its window (no window, or it cannot lift the
+        water); a :class:`~blendq.well.pump.PumpError` writes itself in any display units.
     """
 
     scenario: Scenario
@@ -550,6 +604,8 @@ class ScenarioResult:
     undecided: dict = field(default_factory=dict)
     tell_zones: list = field(default_factory=list)
     would_tell: dict = field(default_factory=dict)
+    pump: pumpset.PumpSettings | None = None
+    pump_error: ModelError | None = None
 
     @property
     def cannot_tell(self) -> bool:
@@ -651,7 +707,34 @@ def evaluate(analysis, scenario: Scenario) -> ScenarioResult:
     undecided, tell = undecided_rates(analysis, scenario, window, margin)
     res = ScenarioResult(scenario, pred, window, y, beyond, margin, alpha, undecided, tell)
     res.would_tell = {u: would_tell(analysis, res, u) for u in UNIT_SYSTEMS}
+    if scenario.pump is not None:
+        res.pump, res.pump_error = pump_in_window(project, res, level_deep)
     return res
+
+
+def pump_in_window(project: Project, res: ScenarioResult, level_deep=None) -> tuple:
+    """The drive settings of a scenario's pump in its window, or why there are none.
+
+    The pump meets the system curve whose lift is the scenario's own pumping level (median and
+    band of its draws, the deep side no shallower than the step test's where the option keeps
+    the well as tested) across the seasonal static levels of its ``[pump]`` table
+    (:func:`blendq.decide.pumpset.settings_for_window`).
+
+    Returns
+    -------
+    tuple of (PumpSettings or None, ModelError or None)
+    """
+    if res.cannot_tell:
+        return None, ModelError("the data cannot tell this option's window, so no drive "
+                                "setting is given")
+    rates, band = pumpset.band_of(res.prediction.rates, res.prediction.pumping_level,
+                                  res.alpha, level_deep)
+    try:
+        return pumpset.settings_for_window(res.window, rates, band, static_level_of(project),
+                                           res.scenario.pump,
+                                           project.settings.display_units), None
+    except ModelError as err:
+        return None, err
 
 
 def undecided_rates(analysis, scenario: Scenario, window: Window, margin: float,
@@ -755,6 +838,8 @@ def _row(analysis, res: ScenarioResult) -> dict:
     row["undecided_low"] = float(pred.rates[anyund].min()) if und else np.nan
     row["undecided_high"] = float(pred.rates[anyund].max()) if und else np.nan
     row["would_tell"] = "; ".join(res.would_tell.get(s.display_units, []))
+    if res.scenario.pump is not None:
+        row.update(_pump_row(res))
     q = [(1 - s.interval) / 2, 0.5, 1 - (1 - s.interval) / 2]
     k = None if win.recommended is None else int(np.argmin(np.abs(pred.rates - win.recommended)))
     for j, a in enumerate(pred.analytes):
@@ -762,6 +847,36 @@ def _row(analysis, res: ScenarioResult) -> dict:
                 else np.quantile(pred.concentration[:, k, j], q))
         row[f"{a}_median"], row[f"{a}_lower"], row[f"{a}_upper"] = (float(v) for v in
                                                                     (vals[1], vals[0], vals[2]))
+    return row
+
+
+def _pump_row(res: ScenarioResult) -> dict:
+    """The pump columns of a comparison row (base units; NaN where not known)."""
+    nan = float("nan")
+    ps = res.pump
+    row = {"pump_curve": Path(res.scenario.pump.curve_file).name,
+           "pump_frequency_low": nan, "pump_frequency_high": nan, "pump_setting": nan,
+           "pump_rate_low": nan, "pump_rate_high": nan, "pump_setting_rate_low": nan,
+           "pump_setting_rate_high": nan, "pump_kwh_per_m3": nan,
+           "pump_cheapest_kwh_per_m3": nan, "pump_cheapest_setting": nan,
+           "pump_per_season": False, "pump_note": "" if res.pump_error is None
+           else str(res.pump_error)}
+    if ps is None:
+        return row
+    if ps.frequency_range is not None:
+        row["pump_frequency_low"], row["pump_frequency_high"] = ps.frequency_range
+        row["pump_setting"] = ps.recommended
+    else:
+        row["pump_per_season"] = True
+        row["pump_note"] = " ".join(ps.notes)
+    row["pump_rate_low"], row["pump_rate_high"] = ps.rate_span
+    at_setting = ps.seasons["rate"].to_numpy(float)
+    if np.isfinite(at_setting).any():
+        row["pump_setting_rate_low"] = float(np.nanmin(at_setting))
+        row["pump_setting_rate_high"] = float(np.nanmax(at_setting))
+    row["pump_kwh_per_m3"] = ps.recommended_energy
+    row["pump_cheapest_kwh_per_m3"] = ps.cheapest_energy
+    row["pump_cheapest_setting"] = ps.cheapest
     return row
 
 
@@ -788,12 +903,29 @@ def compare(analysis, scenarios: list[Scenario] | None = None,
         pin), undecided (those analytes), undecided_low and undecided_high [m^3/d] (the rates
         concerned), would_tell (measurements that would decide, in the project's display
         units), and per analyte ``<a>_median``, ``<a>_lower``, ``<a>_upper``
-        [mg/L] at the recommended rate.
+        [mg/L] at the recommended rate. When an option puts in a new pump, the rows with a
+        pump (the new pumps, and the base case with the project's current ``[pump]``) add
+        pump_curve (file name), pump_frequency_low and pump_frequency_high [Hz] (the drive
+        frequencies that keep the rate in the window all year), pump_setting [Hz] (the
+        recommended one; NaN when the drive must be set per season, pump_per_season True),
+        pump_rate_low and pump_rate_high [m^3/d] (the rates the pump delivers across the
+        drive's range and the seasonal static levels; 0 where it cannot lift the water at the
+        lowest frequency), pump_setting_rate_low and pump_setting_rate_high [m^3/d] (the rates
+        at the setting across the seasons, median pumping level), pump_kwh_per_m3 (wire-to-water energy
+        per volume at the recommended setting), pump_cheapest_kwh_per_m3 and
+        pump_cheapest_setting [Hz] (the cheapest compliant setting) and pump_note (why there
+        is no setting, in the project's display units).
     """
     project = analysis.project
     scenarios = project_scenarios(project) if scenarios is None else list(scenarios)
     if include_base:
-        scenarios = [base_scenario(project), *scenarios]
+        base = base_scenario(project)
+        current = current_pump(project) if any(sc.pump is not None for sc in scenarios) \
+            else None
+        if current is not None:
+            base = replace(base, pump=current, changes=[
+                "as tested", f"current pump ({Path(current.curve_file).name})"])
+        scenarios = [base, *scenarios]
     results = [evaluate(analysis, sc) for sc in scenarios]
     table = pd.DataFrame([_row(analysis, r) for r in results])
     return Comparison(table, results)

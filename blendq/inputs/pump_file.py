@@ -3,9 +3,11 @@
 ``[pump]`` describes the installed pump and its drive: the head-capacity curve (a table with
 ``rate``, ``head`` and, where the maker gives it, ``efficiency`` in percent; units in the header
 as in every blendq table), the rated and the drive's frequencies, the pump column, the discharge
-pressure or head at the wellhead, and the seasonal range of static levels. A project without
-``[pump]`` behaves as before (:func:`read_pump` returns None). Errors name the file and the
-dotted key (``pump.column_diameter``) or the curve's row and column.
+pressure or head at the wellhead, the fittings' minor-loss coefficients, and the seasonal
+range of static levels. A project without ``[pump]`` behaves as before (:func:`read_pump`
+returns None). Errors name the file and the dotted key (``pump.column_diameter``) or the
+curve's row and column. A "new pump" option (``pump = {...}`` in a ``[[scenarios]]`` entry) is
+read by :func:`option_pump`: its keys replace those of ``[pump]``.
 """
 
 from __future__ import annotations
@@ -54,6 +56,9 @@ class PumpSpec:
     static_levels : dict
         Season name -> static level [m depth below the datum].
     motor_efficiency, drive_efficiency : float
+    minor_loss_k : float
+        Sum of the resistance coefficients K [-] of the column and discharge fittings (valves,
+        elbows, check valve, pitless adapter, meter), referred to the column diameter.
     """
 
     curve_rate: np.ndarray
@@ -72,6 +77,7 @@ class PumpSpec:
     rated_speed: float | None = None
     motor_efficiency: float = MOTOR_EFFICIENCY
     drive_efficiency: float = DRIVE_EFFICIENCY
+    minor_loss_k: float = 0.0
 
 
 def _unit_value(s: _Section, key: str, unit: str, example: str, default=None):
@@ -140,15 +146,60 @@ def read_pump(path: str | Path) -> PumpSpec | None:
         Naming the file and the dotted key, or the curve file's row and column.
     """
     project_file = resolve_project_file(path)
-    label = project_file.name
     doc = _read_toml(project_file)
     if "pump" not in doc:
         return None
-    s = _Section(doc["pump"], "pump", label)
+    return pump_from_table(doc["pump"], project_file.parent, project_file.name, "pump")
+
+
+#: keys of which a table gives one or the other: an option giving one drops the other
+_EITHER = (("roughness", "hazen_williams_c"), ("discharge_pressure", "discharge_head"))
+
+
+def option_pump(table, project_file: str | Path, where: str) -> PumpSpec:
+    """A new pump of an option: its keys (at least ``curve``) over the project's ``[pump]``.
+
+    Parameters
+    ----------
+    table : dict
+        The option's ``pump`` table, e.g. ``{curve = "pump-b.csv", rated_speed = "3550 rpm"}``;
+        a relative curve path is read from the project's folder.
+    project_file : str or Path
+        The project file (or its folder), whose ``[pump]`` gives the keys the option leaves
+        out (column, discharge head, seasonal static levels). Without ``[pump]`` the option's
+        table must give every required key.
+    where : str
+        Dotted key of the table for messages, e.g. ``scenarios[4].pump``.
+
+    Raises
+    ------
+    InputError
+        Naming ``where`` and the key, or the curve file's row and column.
+    """
+    project_file = resolve_project_file(project_file)
+    label = project_file.name
+    if not isinstance(table, dict):
+        raise InputError(f'expected a table such as {{ curve = "pump-b.csv" }}, got {table!r}',
+                         file=label, field=where)
+    if "curve" not in table:
+        raise InputError("a new pump needs its curve (a table of rate, head and efficiency)",
+                         file=label, field=f"{where}.curve")
+    base = dict(_read_toml(project_file).get("pump", {}))
+    for pair in _EITHER:
+        if any(k in table for k in pair):
+            for k in pair:
+                base.pop(k, None)
+    return pump_from_table({**base, **table}, project_file.parent, label, where)
+
+
+def pump_from_table(table, folder: Path, label: str, where: str = "pump") -> PumpSpec:
+    """A :class:`PumpSpec` from a ``[pump]``-like table; a relative curve path is read from
+    ``folder``; errors name ``label`` and ``where.key``."""
+    s = _Section(table, where, label)
     curve_text = s.text("curve")
-    curve_path = project_file.parent / curve_text
+    curve_path = Path(folder) / curve_text
     if not curve_text or not curve_path.is_file():
-        raise s.error("curve", f'file "{curve_text}" does not exist in {project_file.parent}')
+        raise s.error("curve", f'file "{curve_text}" does not exist in {folder}')
     if curve_path.suffix.lower() not in (".csv", ".txt", ".xlsx"):
         raise s.error("curve", f'"{curve_text}" is not a .csv or .xlsx file')
     rate, head, eff = _curve(curve_path, Path(curve_text).name, s)
@@ -175,10 +226,11 @@ def read_pump(path: str | Path) -> PumpSpec | None:
     if not isinstance(levels_raw, dict) or not levels_raw:
         raise s.error("static_levels", 'expected a table of season = level, e.g. '
                                        '{spring = "95 ft", autumn = "120 ft"}')
-    seasons = _Section(levels_raw, "pump.static_levels", label)
+    seasons = _Section(levels_raw, f"{where}.static_levels", label)
     levels = {name: seasons.quantity(name, "length", sign="any") for name in levels_raw}
     motor = s.number("motor_efficiency", MOTOR_EFFICIENCY, low=0, high=1, open_low=True)
     drive = s.number("drive_efficiency", DRIVE_EFFICIENCY, low=0, high=1, open_low=True)
+    minor = s.number("minor_loss_k", 0.0, low=0, high=1000)
     s.done()
     return PumpSpec(rate, head, eff, curve_text, rated, low, high, length, diameter, rough, c,
-                    float(discharge), levels, speed, motor, drive)
+                    float(discharge), levels, speed, motor, drive, float(minor))

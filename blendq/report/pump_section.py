@@ -19,7 +19,7 @@ from blendq.report.document import Paragraph, Section, Table
 from blendq.units import DISPLAY_UNITS, display_unit_label, format_quantity, from_base
 
 
-def _energy_unit(units: str) -> tuple[str, float]:
+def energy_unit(units: str) -> tuple[str, float]:
     """Energy-per-volume label and factor from kWh/m^3."""
     return ("kWh/1,000 gal", M3_PER_KGAL) if units == "US" else ("kWh/m3", 1.0)
 
@@ -51,7 +51,7 @@ def energy_table(ps: PumpSettings, units: str = "US", rows: int = 5) -> pd.DataF
         return pd.DataFrame()
     pick = np.unique(np.linspace(0, len(e) - 1, rows).round().astype(int))
     e = e.iloc[pick]
-    label, factor = _energy_unit(units)
+    label, factor = energy_unit(units)
     return pd.DataFrame({
         "frequency [Hz]": e["frequency"].round(1).to_numpy(),
         f"rate [{_rate_unit(units)}]": from_base(
@@ -63,7 +63,7 @@ def energy_table(ps: PumpSettings, units: str = "US", rows: int = 5) -> pd.DataF
 
 def pump_lines(ps: PumpSettings, units: str = "US") -> list[str]:
     """The settings in a few sentences."""
-    label, factor = _energy_unit(units)
+    label, factor = energy_unit(units)
     lo, hi = (format_quantity(v, "rate", units) for v in ps.window)
     lines = [f"Operating window kept: {lo} to {hi}; target "
              f"{format_quantity(ps.target, 'rate', units)}."]
@@ -93,13 +93,14 @@ def pump_lines(ps: PumpSettings, units: str = "US") -> list[str]:
     return lines + list(ps.notes)
 
 
-def settings_for(a: Analysis) -> PumpSettings | None:
-    """The pump settings of an analysis whose project has ``[pump]`` (None otherwise)."""
+def settings_for(a: Analysis, units: str | None = None) -> PumpSettings | None:
+    """The pump settings of an analysis whose project has ``[pump]`` (None otherwise); an
+    error's message in ``units`` (default: the project's display units)."""
     p = a.project
     if p.folder is None or "project" not in p.files:
         return None
     spec = read_pump(p.folder / p.files["project"])
-    return None if spec is None else pump_settings(a, spec)
+    return None if spec is None else pump_settings(a, spec, units)
 
 
 def _energy_figure(ps: PumpSettings, units: str):
@@ -114,21 +115,24 @@ def _energy_figure(ps: PumpSettings, units: str):
 
 def pump_section(ps: PumpSettings, units: str = "US") -> Section:
     """The report section for the pump settings (key ``"pump"``)."""
+    seasons = season_table(ps, units)
     blocks = [
         Paragraph("The pump delivers the rate where its curve, scaled to the drive frequency by "
                   "the affinity laws, meets the system curve: the lift from the zone model's "
                   "pumping level (median and band of the posterior draws), column friction "
-                  "(Darcy-Weisbach with Colebrook-White, or Hazen-Williams) and the discharge "
-                  "head (blendq docs methods). Settings are planning figures: check the delivered "
+                  "(Darcy-Weisbach with Colebrook-White, or Hazen-Williams), the fittings' minor "
+                  "losses and the discharge head (blendq docs methods). Settings are planning figures: check the delivered "
                   "rate on the meter after each change; a licensed professional reviews them."),
         *(Paragraph(line) for line in pump_lines(ps, units)),
-        Table(season_table(ps, units), "Drive settings by season (rate at the median "
-                                       "pumping level)."),
+        Table(seasons, "Drive settings by season (rate at the median pumping level).",
+              formats={c: ".1f" for c in seasons.columns if c.endswith("[Hz]")}),
     ]
     energy = energy_table(ps, units)
     if not energy.empty and np.isfinite(ps.recommended_energy):
         blocks.append(Table(energy, "Wire-to-water power and energy across the compliant "
                                     "frequencies (middle static level, median pumping level).",
+                            formats={"frequency [Hz]": ".1f", "power [kW]": ".1f",
+                                     energy.columns[-1]: ".3f"},
                             note="Motor and drive efficiencies are named settings (common "
                                  "practice values)."))
         blocks.append(_energy_figure(ps, units))
@@ -138,7 +142,7 @@ def pump_section(ps: PumpSettings, units: str = "US") -> Section:
 def pump_section_for(a: Analysis, units: str = "US") -> Section | None:
     """The pump section of a report, or None when the project has no ``[pump]``."""
     try:
-        ps = settings_for(a)
+        ps = settings_for(a, units)
     except ModelError as err:
         return Section("Pump settings and energy", (Paragraph(f"No drive setting: {err}."),),
                        "pump")

@@ -1,8 +1,10 @@
-"""The report section comparing what-if scenarios (seal, redevelop, intake, heads, blend).
+"""The report section comparing what-if scenarios (seal, redevelop, intake, heads, blend, a
+new pump).
 
 :func:`scenario_section` turns a :class:`~blendq.decide.scenarios.Comparison` into a
 :class:`~blendq.report.document.Section` with key ``"scenarios"``: a sentence naming the option with the
-widest operating window, the comparison table in display units, and the chart.
+widest operating window, the comparison table in display units, a new pump's drive settings and
+energy against the current pump's, and the chart.
 """
 
 from __future__ import annotations
@@ -11,8 +13,9 @@ import numpy as np
 import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
-from blendq.decide.scenarios import BASE_NAME, Comparison
+from blendq.decide.scenarios import BASE_NAME, Comparison, ScenarioResult
 from blendq.report.document import Figure, Paragraph, Section, Table
+from blendq.report.pump_section import energy_unit
 from blendq.units import format_quantity
 
 
@@ -28,6 +31,94 @@ def _conc_text(analyte: str, values) -> tuple[str, str]:
     if not np.isfinite(med):
         return "-", "-"
     return f"{med:.3g} {unit}", f"{lo:.3g} to {hi:.3g} {unit}"
+
+
+def has_pump(comparison: Comparison) -> bool:
+    return any(res.scenario.pump is not None for res in comparison.results)
+
+
+def pump_error_text(res: ScenarioResult, units: str = "US") -> str:
+    """Why an option's pump has no setting, in ``units`` (empty when it has one)."""
+    err = res.pump_error
+    if err is None:
+        return ""
+    return err.in_units(units) if hasattr(err, "in_units") else str(err)
+
+
+def pump_cells(res: ScenarioResult, row, units: str = "US") -> dict[str, str]:
+    """Drive setting, rates delivered and energy of an option's pump, as text cells ("-" for an
+    option without a pump of its own)."""
+    if res.scenario.pump is None:
+        return {"Drive setting": "-", "Pump delivers": "-", "Energy at setting": "-"}
+    spec = res.scenario.pump
+    if res.pump is None:
+        return {"Drive setting": "no setting: " + pump_error_text(res, units),
+                "Pump delivers": "-", "Energy at setting": "-"}
+    if row["pump_per_season"]:
+        setting = "per season: " + ", ".join(
+            f"{r.season} {r.recommended:.1f} Hz" if np.isfinite(r.recommended)
+            else f"{r.season} none" for r in res.pump.seasons.itertuples())
+    else:
+        setting = (f"{row['pump_setting']:.1f} Hz ({row['pump_frequency_low']:.1f} to "
+                   f"{row['pump_frequency_high']:.1f} Hz all year)")
+    low, high = row["pump_rate_low"], row["pump_rate_high"]
+    span = (f"nothing at {spec.min_frequency:g} Hz (it cannot lift the water)" if low == 0
+            else f"from {_rate_text(low, units)} at {spec.min_frequency:g} Hz")
+    span += " to " + (f"beyond {_rate_text(res.prediction.rates[-1], units)}"
+                      if not np.isfinite(high) else _rate_text(high, units))
+    span += f" at {spec.max_frequency:g} Hz"
+    if np.isfinite(row.get("pump_setting_rate_low", np.nan)):
+        span += (f"; {_rate_text(row['pump_setting_rate_low'], units)} to "
+                 f"{_rate_text(row['pump_setting_rate_high'], units)} at the setting across "
+                 "the seasons")
+    label, factor = energy_unit(units)
+    kwh = row["pump_kwh_per_m3"]
+    energy = "-" if not np.isfinite(kwh) else f"{kwh * factor:.3f} {label}"
+    return {"Drive setting": setting, "Pump delivers": span, "Energy at setting": energy}
+
+
+def pump_sentences(comparison: Comparison, units: str = "US") -> list[str]:
+    """Each new pump against the current one: its setting, and its energy per volume at the
+    setting against the current pump's and against its own cheapest compliant setting."""
+    label, factor = energy_unit(units)
+    rows = list(zip(comparison.results, (r for _, r in comparison.table.iterrows()),
+                    strict=True))
+    base = next(((res, r) for res, r in rows if r["scenario"] == BASE_NAME
+                 and res.scenario.pump is not None), None)
+    out = []
+    if base is None:
+        out.append("The project has no [pump] table: the new pumps are not compared with a "
+                   "current one.")
+    elif base[0].pump is None:
+        out.append(f"The current pump ({base[1]['pump_curve']}) has no setting for the window: "
+                   f"{pump_error_text(base[0], units)}.")
+    for res, r in rows:
+        if res.scenario.pump is None or r["scenario"] == BASE_NAME:
+            continue
+        name = f'"{r["scenario"]}" ({r["pump_curve"]})'
+        if res.pump is None:
+            out.append(f"{name}: no drive setting: {pump_error_text(res, units)}.")
+            continue
+        cells = pump_cells(res, r, units)
+        text = f"{name}: drive {cells['Drive setting']}; it delivers {cells['Pump delivers']}."
+        kwh = r["pump_kwh_per_m3"]
+        if np.isfinite(kwh):
+            text += f" At its setting it uses {kwh * factor:.3f} {label}"
+            if base is not None and base[0].pump is not None \
+                    and np.isfinite(base[1]["pump_kwh_per_m3"]):
+                ref = base[1]["pump_kwh_per_m3"]
+                change = kwh / ref - 1.0
+                text += (f" against {ref * factor:.3f} for the current pump at its own setting "
+                         f"({abs(change):.1%} {'less' if change < 0 else 'more'} per volume)")
+            cheap = r["pump_cheapest_kwh_per_m3"]
+            if np.isfinite(cheap):
+                text += (f"; its cheapest compliant setting ({r['pump_cheapest_setting']:.1f} Hz) "
+                         f"uses {cheap * factor:.3f} {label}")
+            text += "."
+        elif res.scenario.pump.curve_efficiency is None:
+            text += " Its curve gives no efficiency: its energy is not computed."
+        out.append(text)
+    return out
 
 
 def comparison_display_table(comparison: Comparison, units: str = "US",
@@ -70,6 +161,8 @@ def comparison_display_table(comparison: Comparison, units: str = "US",
             row["Window limited by"] += "; water cascades from " + ", ".join(
                 f"{z} from {_rate_text(q, units)}" for z, q, _ in w.cascading)
         row["What would tell"] = "; ".join(res.would_tell.get(units, [])) if not told else ""
+        if has_pump(comparison):
+            row.update(pump_cells(res, r, units))
         rows.append(row)
     return pd.DataFrame(rows)
 
@@ -100,6 +193,10 @@ def compact_display_table(comparison: Comparison, units: str = "US",
             out[f"{label} at recommended rate ({interval:.0%} band)"] = [
                 "-" if m == "-" else f"{m} ({b})" for m, b in zip(full[col], band, strict=True)]
     out["Window limited by"] = full["Window limited by"]
+    if "Drive setting" in full:
+        out["Pump: drive setting; energy at setting"] = [
+            "-" if d == "-" else d if e == "-" else f"{d}; {e}"
+            for d, e in zip(full["Drive setting"], full["Energy at setting"], strict=True)]
     return out
 
 
@@ -172,6 +269,14 @@ def scenario_section(analysis, comparison: Comparison, units: str = "US") -> Sec
               "Options compared at the recommended rate of each (median and band of the "
               "delivered concentration)."),
     ]
+    if has_pump(comparison):
+        blocks.append(Paragraph(
+            "A new pump meets the system curve (lift from the option's pumping level across the "
+            "seasonal static levels of [pump], column friction, fittings and discharge head) in "
+            "the option's window; the base case shows the current pump in the same way (blendq "
+            "docs methods, section 8c). Energy is wire-to-water per volume delivered, at the "
+            "recommended setting, middle static level and median pumping level."))
+        blocks += [Paragraph(text) for text in pump_sentences(comparison, units)]
     untold = [(res, r) for res, (_, r) in zip(comparison.results, comparison.table.iterrows(),
                                               strict=True) if res.cannot_tell]
     if untold:

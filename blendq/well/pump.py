@@ -8,8 +8,9 @@ discharge head is the head at the wellhead above the datum.
 
 * affinity laws (Q ~ N, H ~ N^2, P ~ N^3), closed form;
 * column friction by Darcy-Weisbach with the Colebrook-White friction factor, or by
-  Hazen-Williams where a C is given;
-* system head H_sys(Q) = pumping level depth(Q) + column friction(Q) + discharge head;
+  Hazen-Williams where a C is given; minor losses of the fittings h_m = K v^2 / (2 g);
+* system head H_sys(Q) = pumping level depth(Q) + column friction(Q) + minor losses(Q) +
+  discharge head;
 * operating point: H_pump(Q, r) = H_sys(Q), a bracketed root (Brent) on the monotone (PCHIP)
   interpolation of the maker's curve.
 """
@@ -24,6 +25,7 @@ from scipy.interpolate import PchipInterpolator
 from scipy.optimize import brentq
 
 from blendq.errors import ModelError
+from blendq.units import format_quantity
 
 #: standard acceleration of gravity [m/s^2] (CGPM 1901 definition)
 GRAVITY = 9.80665
@@ -35,6 +37,49 @@ WATER_DENSITY = 999.1
 WATER_VISCOSITY = 1.14e-6
 #: seconds in a day, to turn m^3/d into m^3/s
 SECONDS_PER_DAY = 86400.0
+
+
+class PumpError(ModelError):
+    """A pump that cannot deliver a rate (it cannot lift the water, or it runs off its curve).
+
+    The message is written in a display unit system (:data:`blendq.units.UNIT_SYSTEMS`) and can
+    be written again in another with :meth:`in_units`, so that a report or a command shows the
+    rates and heads in the project's units (gpm, m3/d or L/s; ft or m).
+
+    Parameters
+    ----------
+    write : callable(units) -> str
+        Writes the message in a unit system.
+    units : str
+        The unit system of ``str(error)``.
+    cannot_lift : bool
+        True when the pump's head falls short of the system's (False: it has head to spare at
+        the end of its curve or of the rates modelled).
+    """
+
+    def __init__(self, write: Callable[[str], str], units: str = "SI",
+                 cannot_lift: bool = True) -> None:
+        self.write = write
+        self.units = units
+        self.cannot_lift = cannot_lift
+        super().__init__(write(units))
+
+    def in_units(self, units: str) -> str:
+        """The message in ``units``."""
+        return self.write(units)
+
+    def prefixed(self, prefix: str, units: str | None = None) -> PumpError:
+        """The same error with ``prefix`` before its message (in ``units``, default its own)."""
+        write = self.write
+        return PumpError(lambda u: prefix + write(u), units or self.units, self.cannot_lift)
+
+
+def _q(rate: float, units: str) -> str:
+    return format_quantity(float(rate), "rate", units)
+
+
+def _h(head: float, units: str) -> str:
+    return format_quantity(float(head), "length", units)
 
 
 def affinity(rate, head, power, speed_ratio):
@@ -94,6 +139,33 @@ def colebrook(reynolds: float, relative_roughness: float) -> float:
 
     x = brentq(residual, 1.0, 100.0, xtol=1e-13, rtol=1e-13)
     return 1.0 / x**2
+
+
+def minor_loss(rate, diameter: float, k_total: float) -> np.ndarray:
+    """Head lost in the fittings of the column and discharge piping at ``rate``.
+
+    Parameters
+    ----------
+    rate : float or ndarray [m^3/d]
+    diameter : float
+        Inside diameter [m] the loss coefficients refer to.
+    k_total : float
+        Sum of the fittings' resistance coefficients K [-] (valves, elbows, check valve,
+        pitless adapter, meter), each referred to the velocity in ``diameter``.
+
+    Returns
+    -------
+    ndarray
+        h_m = K v^2 / (2 g) [m], same shape as ``rate``.
+
+    References
+    ----------
+    Crane Co. (2009), Flow of Fluids Through Valves, Fittings and Pipe, Technical Paper 410,
+    the resistance coefficient K: h_L = K v^2 / (2 g).
+    """
+    q = np.abs(np.asarray(rate, float)) / SECONDS_PER_DAY  # m^3/s
+    v = q / (np.pi * diameter**2 / 4.0)
+    return float(k_total) * v**2 / (2.0 * GRAVITY)
 
 
 def friction_loss(rate, length: float, diameter: float, roughness: float | None = None,
@@ -190,7 +262,8 @@ class PumpCurve:
 
 @dataclass(frozen=True)
 class SystemCurve:
-    """Head the pump must give at each rate: lift + column friction + discharge head.
+    """Head the pump must give at each rate: lift + column friction + minor losses + discharge
+    head.
 
     Attributes
     ----------
@@ -203,6 +276,8 @@ class SystemCurve:
     hazen_williams_c : float or None
     discharge_head : float
         Head at the wellhead above the datum [m].
+    minor_k : float
+        Sum of the fittings' resistance coefficients K [-] at the column diameter.
     """
 
     level: Callable[[np.ndarray], np.ndarray]
@@ -211,10 +286,12 @@ class SystemCurve:
     roughness: float | None = None
     hazen_williams_c: float | None = None
     discharge_head: float = 0.0
+    minor_k: float = 0.0
 
     def friction(self, rate):
+        """Column friction plus the fittings' minor losses [m] at ``rate`` [m^3/d]."""
         return friction_loss(rate, self.length, self.diameter, self.roughness,
-                             self.hazen_williams_c)
+                             self.hazen_williams_c) + minor_loss(rate, self.diameter, self.minor_k)
 
     def head(self, rate):
         """System head [m] at ``rate`` [m^3/d]."""
@@ -222,7 +299,7 @@ class SystemCurve:
 
 
 def operating_point(pump: PumpCurve, system: SystemCurve, speed_ratio: float,
-                    max_rate: float | None = None) -> float:
+                    max_rate: float | None = None, units: str = "SI") -> float:
     """The rate [m^3/d] where the pump at ``speed_ratio`` meets the system curve.
 
     Parameters
@@ -233,6 +310,8 @@ def operating_point(pump: PumpCurve, system: SystemCurve, speed_ratio: float,
         N / N_rated [-], > 0.
     max_rate : float, optional
         Largest rate the level function serves [m^3/d]; the search stops there.
+    units : str
+        Display unit system of an error's message ("US", "SI" or "SI-L/s").
 
     Returns
     -------
@@ -241,7 +320,7 @@ def operating_point(pump: PumpCurve, system: SystemCurve, speed_ratio: float,
 
     Raises
     ------
-    ModelError
+    PumpError
         When the pump cannot lift the water at that speed (its head at the lowest rate of the
         curve is below the system head), or when it meets the system beyond the end of its
         curve or of ``max_rate``.
@@ -265,27 +344,38 @@ def operating_point(pump: PumpCurve, system: SystemCurve, speed_ratio: float,
 
     at_lo, at_hi = excess(lo), excess(hi)
     if not at_lo > 0:
-        raise ModelError(
-            f"the pump cannot lift the water at {r:.0%} of rated speed: at {lo:.0f} m3/d it "
-            f"gives {float(pump.head_at(lo, r)):.1f} m of head but the system needs "
-            f"{float(system.head(lo)):.1f} m (lift, friction and discharge head)")
+        have, need = float(pump.head_at(lo, r)), float(system.head(lo))
+        shutoff = float(pump.rate[0]) == 0.0
+
+        def write(u: str) -> str:
+            where = "at shutoff (no flow)" if shutoff else f"at {_q(lo, u)}, the lowest rate of " \
+                "its curve,"
+            return (f"the pump cannot lift the water at {r:.0%} of rated speed: {where} it "
+                    f"gives {_h(have, u)} of head but the system needs {_h(need, u)} (lift, "
+                    "friction and discharge head)")
+
+        raise PumpError(write, units)
     if at_hi > 0:
         where = "the end of its curve" if max_rate is None or hi < max_rate \
             else "the rates modelled"
-        raise ModelError(
-            f"at {r:.0%} of rated speed the pump still has {at_hi:.1f} m of head to spare at "
-            f"{hi:.0f} m3/d, {where}: the operating point lies off the curve")
+        raise PumpError(
+            lambda u: f"at {r:.0%} of rated speed the pump still has {_h(at_hi, u)} of head to "
+                      f"spare at {_q(hi, u)}, {where}: the operating point lies off the curve",
+            units, cannot_lift=False)
     return float(brentq(excess, lo, hi, xtol=1e-9, rtol=1e-12))
 
 
 def speed_for_rate(pump: PumpCurve, system: SystemCurve, rate: float,
-                   max_ratio: float = 1.0) -> float:
+                   max_ratio: float = 1.0, units: str = "SI") -> float:
     """The speed ratio [-] at which the pump delivers ``rate`` [m^3/d] into the system.
+
+    ``units`` is the display unit system of an error's message.
 
     Raises
     ------
-    ModelError
-        When even ``max_ratio`` x the rated speed cannot lift the water at that rate.
+    PumpError
+        When even ``max_ratio`` x the rated speed cannot lift the water at that rate, or the
+        rate lies beyond the end of the curve at every speed that could deliver it.
     """
     need = float(system.head(rate))
 
@@ -296,15 +386,17 @@ def speed_for_rate(pump: PumpCurve, system: SystemCurve, rate: float,
     top = excess(max_ratio)
     if not top > 0:
         have = float(pump.head_at(rate, max_ratio))
-        gives = "is off its curve" if np.isnan(have) else f"gives {have:.1f} m"
-        raise ModelError(
-            f"the pump cannot lift the water at {rate:.0f} m3/d: the system needs {need:.1f} m "
-            f"of head and the pump at {max_ratio:.0%} of rated speed {gives}")
+        raise PumpError(
+            lambda u: f"the pump cannot lift the water at {_q(rate, u)}: the system needs "
+                      f"{_h(need, u)} of head and the pump at {max_ratio:.0%} of rated speed "
+                      + ("is off its curve" if np.isnan(have) else f"gives {_h(have, u)}"),
+            units)
     low = rate / pump.max_rate * (1 + 1e-12)  # below this the rate is off the scaled curve
     if excess(low) >= 0:
-        raise ModelError(
-            f"{rate:.0f} m3/d lies beyond the end of the pump curve at every speed that could "
-            "deliver it (the pump has head to spare there): a smaller pump or a throttle is needed")
+        raise PumpError(
+            lambda u: f"{_q(rate, u)} lies beyond the end of the pump curve at every speed "
+                      "that could deliver it (the pump has head to spare there): a smaller "
+                      "pump or a throttle is needed", units, cannot_lift=False)
     return float(brentq(excess, low, max_ratio, xtol=1e-12, rtol=1e-12))
 
 

@@ -120,5 +120,14 @@ def test_pump_that_cannot_lift_is_a_model_error(setup):
     a, spec = setup
     # 400 ft of static level + 115 ft of discharge head is above the pump's 298 ft at 60 Hz
     deep = replace(spec, static_levels={"drought": 400 * FT})
-    with pytest.raises(ModelError, match="drought static level and 60 Hz, the pump cannot lift"):
+    with pytest.raises(ModelError, match="drought static level and 60 Hz, the pump cannot lift") \
+            as err:
         pump_settings(a, deep)
+    # the message speaks the project's display units (US: gpm and ft), never internal m3/d
+    text = str(err.value)
+    assert " gpm," in text and " ft of head" in text and "m³/d" not in text and "m3/d" not in text
+    si = err.value.in_units("SI-L/s")
+    assert " L/s," in si and " m of head" in si and "gpm" not in si
+    with pytest.raises(ModelError) as err:
+        pump_settings(a, deep, units="SI")
+    assert "m³/d," in str(err.value)

@@ -487,3 +487,161 @@ def test_advice_names_a_source_only_where_the_data_resolve_it(analysis, resolved
     assert richest_source(resolved.zones, "nitrate") == "Z1"
     low = _synthetic_analysis(depth=True, margin=0.3)
     assert any("the Z1 (the richest source of nitrate)" in o for o in window_options(low))
+
+
+# ------------------------------------------------------------------- a new pump
+PUMP_DATA = Path(__file__).parents[1] / "data" / "pump"
+FT = 0.3048
+
+
+@pytest.fixture(scope="module")
+def pumped(tmp_path_factory):
+    """The demo with the test pump ([pump], curve.csv) and a second curve (curve-b.csv)."""
+    from inputs.test_pump_file import pump_project
+
+    folder = pump_project(tmp_path_factory.mktemp("newpump"))
+    (folder / "curve-b.csv").write_text((PUMP_DATA / "curve-b.csv").read_text())
+    # a small pump: 150 ft of shutoff head against a lift of about 100 ft plus 115 ft of
+    # discharge head (50 psi)
+    (folder / "weak.csv").write_text("rate [gpm],head [ft],efficiency\n50,150,30\n"
+                                     "300,120,60\n600,40,50\n")
+    return folder, analyse(load_project(folder), draws=200, seed=7)
+
+
+def _pump_option(a, raw, k=1):
+    return sc.parse_scenario({"name": f"pump {k}", **raw}, k, a.project)
+
+
+def test_new_pump_keys_replace_the_pump_table(pumped):
+    _, a = pumped
+    opt = _pump_option(a, {"pump": {"curve": "curve-b.csv", "rated_speed": "3550 rpm",
+                                    "motor_efficiency": 0.95}})
+    spec = opt.pump
+    gpm = parse_quantity("1 gpm", "rate")
+    np.testing.assert_allclose(spec.curve_rate[[0, -1]], [100 * gpm, 1000 * gpm], rtol=1e-12)
+    assert spec.rated_speed == 3550 and spec.motor_efficiency == 0.95
+    # the rest is the project's [pump]: 120 ft column of 6 in, 50 psi, three seasons
+    assert spec.column_length == pytest.approx(120 * FT, rel=1e-12)
+    assert spec.column_diameter == pytest.approx(0.1524, rel=1e-12)
+    assert list(spec.static_levels) == ["spring", "summer", "autumn"]
+    assert not opt.changes_well and "new pump (curve-b.csv, 3550 rpm" in opt.changes[0]
+    # a new intake 35 ft deeper than the operating intake (115 ft) hangs the pump 35 ft deeper
+    moved = _pump_option(a, {"pump": {"curve": "curve-b.csv"}, "intake": "150 ft"}).pump
+    assert moved.column_length == pytest.approx(155 * FT, rel=1e-12)
+    given = _pump_option(a, {"pump": {"curve": "curve-b.csv", "column_length": "140 ft"},
+                             "intake": "150 ft"}).pump
+    assert given.column_length == pytest.approx(140 * FT, rel=1e-12)
+    # a Hazen-Williams C of the option replaces the [pump] roughness (one or the other)
+    hw = _pump_option(a, {"pump": {"curve": "curve-b.csv", "hazen_williams_c": 130}}).pump
+    assert hw.roughness is None and hw.hazen_williams_c == 130
+
+
+@pytest.mark.parametrize("pump, field", [
+    ({"rated_speed": "3550 rpm"}, "scenarios[1].pump.curve"),
+    ({"curve": "missing.csv"}, "scenarios[1].pump.curve"),
+    ({"curve": "curve-b.csv", "flow": 3}, "scenarios[1].pump.flow"),
+    ({"curve": "curve-b.csv", "minor_loss_k": -2}, "scenarios[1].pump.minor_loss_k"),
+    ("curve-b.csv", "scenarios[1].pump"),
+])
+def test_new_pump_errors_name_the_key(pumped, pump, field):
+    _, a = pumped
+    with pytest.raises(InputError) as err:
+        _pump_option(a, {"pump": pump})
+    assert err.value.field == field
+
+
+def test_new_pump_without_pump_table_needs_every_key(analysis):
+    # the demo has no [pump]: a new pump there must give its column and seasons itself
+    curve = str(PUMP_DATA / "curve-b.csv")  # an absolute path is read where it is
+    with pytest.raises(InputError) as err:
+        sc.parse_scenario({"name": "p", "pump": {"curve": curve}}, 1, analysis.project)
+    assert err.value.field == "scenarios[1].pump.column_length"
+    full = {"curve": curve, "column_length": "120 ft", "column_diameter": "6 in",
+            "hazen_williams_c": 120, "static_levels": {"all year": "62 ft"}}
+    spec = sc.parse_scenario({"name": "p", "pump": full}, 1, analysis.project).pump
+    assert spec.discharge_head == 0.0
+    assert spec.static_levels["all year"] == pytest.approx(62 * FT, rel=1e-12)
+
+
+def test_new_pump_compared_with_the_current_pump(pumped):
+    from blendq.decide.pumpset import _system, curve_of, delivered, pump_settings
+    from blendq.inputs.pump_file import read_pump
+    from blendq.well import pump as pumpmod
+
+    folder, a = pumped
+    opt = _pump_option(a, {"pump": {"curve": "curve-b.csv"}})
+    comp = sc.compare(a, [opt])
+    base, new = comp.results
+    t = comp.table.set_index("scenario")
+    # the base case carries the current pump, and its figures are those of `blendq pump`
+    current = read_pump(folder)
+    assert base.scenario.pump.curve_file == current.curve_file == "curve.csv"
+    np.testing.assert_array_equal(base.scenario.pump.curve_head, current.curve_head)
+    ref = pump_settings(a, current)
+    assert base.pump.frequency_range == ref.frequency_range
+    assert base.pump.recommended == ref.recommended
+    assert t.loc[sc.BASE_NAME, "pump_kwh_per_m3"] == ref.recommended_energy
+    assert t.loc[sc.BASE_NAME, "pump_curve"] == "curve.csv"
+    # a pump alone changes neither the well nor the water: the same window
+    assert new.window.intervals == base.window.intervals
+    # its all-year range keeps the delivered rate in the window at every season and band end
+    lo, hi = new.pump.frequency_range
+    rates = new.prediction.rates
+    band = np.quantile(new.prediction.pumping_level, [new.alpha, 0.5, 1 - new.alpha], axis=0)
+    deep = getattr(a.step_drawdown, "level_deep", None)
+    if deep is not None:  # the step test's deep side, where the window uses it
+        band[2] = np.fmax(band[2], deep)
+    s0 = 61.7 * FT  # the demo's static level (well.static_level)
+    spec = opt.pump
+    curve = curve_of(spec)
+    w0, w1 = new.pump.window
+    for s in spec.static_levels.values():
+        for lv in band:
+            system = _system(spec, rates, lv, s - s0)
+            for f in (lo, hi):
+                q = delivered(curve, system, spec, f, rates[-1])
+                assert w0 * (1 - 1e-5) <= q <= w1 * (1 + 1e-5)
+    # energy per volume at the setting, in closed form: at the operating point the pump's head
+    # is the system head, and E = rho g H / (eta_pump eta_motor eta_drive) / 3.6e6 [kWh/m3]
+    # (Karassik et al. 2008, Pump Handbook: wire-to-water efficiency)
+    middle = float(np.mean(list(spec.static_levels.values())))
+    system = _system(spec, rates, band[1], middle - s0)
+    f = t.loc["pump 1", "pump_setting"]
+    q = delivered(curve, system, spec, f, rates[-1])
+    head = float(system.head(q))
+    eta = float(curve.efficiency_at(q, f / 60.0)) * spec.motor_efficiency * spec.drive_efficiency
+    e = pumpmod.WATER_DENSITY * pumpmod.GRAVITY * head / eta / 3.6e6
+    assert t.loc["pump 1", "pump_kwh_per_m3"] == pytest.approx(e, rel=1e-6)
+    # at the setting the delivered rate is the window's recommended rate (mid season)
+    assert q == pytest.approx(new.window.recommended, rel=1e-4)
+    assert t.loc["pump 1", "pump_setting_rate_low"] <= q <= t.loc["pump 1",
+                                                                  "pump_setting_rate_high"]
+    # the curve-b pump is the more efficient at the window's rates (82 % against 78 % at
+    # 600 gpm on the makers' tables)
+    assert t.loc["pump 1", "pump_kwh_per_m3"] < t.loc[sc.BASE_NAME, "pump_kwh_per_m3"]
+
+
+def test_new_pump_at_a_new_intake_uses_the_intake_window(pumped):
+    _, a = pumped
+    both = _pump_option(a, {"pump": {"curve": "curve-b.csv"}, "intake": "150 ft"})
+    intake = _pump_option(a, {"intake": "150 ft"}, 2)
+    comp = sc.compare(a, [both, intake])
+    _, with_pump, alone = comp.results
+    assert with_pump.window.intervals == alone.window.intervals
+    assert alone.pump is None and with_pump.pump is not None
+    assert with_pump.pump.window[1] <= alone.window.intervals[-1][1]
+
+
+def test_new_pump_that_cannot_lift_says_so_in_display_units(pumped):
+    from blendq.well.pump import PumpError
+
+    _, a = pumped
+    comp = sc.compare(a, [_pump_option(a, {"pump": {"curve": "weak.csv"}})])
+    res = comp.results[1]
+    assert res.pump is None and isinstance(res.pump_error, PumpError)
+    note = comp.table["pump_note"].iloc[1]
+    assert "cannot lift the water" in note and " ft of head" in note
+    assert "at 50 gpm, the lowest rate of its curve" in note
+    assert "m³/d" not in note and "m3/d" not in note
+    assert "L/s" in res.pump_error.in_units("SI-L/s")
+    assert comp.results[0].pump is not None  # the current pump still has its setting

@@ -41,6 +41,8 @@ def test_reads_pump_in_base_units(tmp_path):
     # 50 psi = 344,737.9 Pa; / (999.1 * 9.80665) = 35.185 m
     assert spec.discharge_head == pytest.approx(344737.9 / (999.1 * 9.80665), rel=1e-6)
     assert spec.static_levels["autumn"] == pytest.approx(68 * 0.3048, rel=1e-12)
+    assert spec.minor_loss_k == 0.0
+    assert read_pump(pump_project(tmp_path / "k", "minor_loss_k = 4.2\n")).minor_loss_k == 4.2
     # the rest of the project still loads
     assert load_project(folder).well.name == "TH-2"
 
@@ -50,6 +52,8 @@ def test_reads_pump_in_base_units(tmp_path):
     ('discharge_head = "10 ft"\n', "pump.discharge_pressure"),
     ('motor_efficiency = 1.5\n', "pump.motor_efficiency"),
     ('flow = 3\n', "pump.flow"),
+    ('minor_loss_k = -1\n', "pump.minor_loss_k"),
+    ('minor_loss_k = "3"\n', "pump.minor_loss_k"),
 ])
 def test_errors_name_the_field(tmp_path, extra, field):
     folder = pump_project(tmp_path, extra)

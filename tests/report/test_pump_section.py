@@ -82,3 +82,34 @@ def test_section_has_the_energy_chart(result):
     section = pump_section_for(result.analysis, "SI")
     figures = [b for b in section.blocks if isinstance(b, Figure)]
     assert len(figures) == 1 and figures[0].png.startswith(b"\x89PNG")
+
+
+def test_section_states_recommended_energy_against_the_cheapest(result):
+    from blendq.report.document import Paragraph
+
+    ps = pump_settings(result).settings
+    text = " ".join(b.text for b in pump_section_for(result.analysis, "US").blocks
+                    if isinstance(b, Paragraph))
+    kgal = 3.785411784  # m3 per 1,000 US gal
+    extra = ps.recommended_energy / ps.cheapest_energy - 1.0
+    assert (f"Energy at the recommended setting: {ps.recommended_energy * kgal:.3f} "
+            f"kWh/1,000 gal; the cheapest compliant setting ({ps.cheapest:.1f} Hz) uses "
+            f"{ps.cheapest_energy * kgal:.3f} kWh/1,000 gal: the recommended setting uses "
+            f"{extra:.1%} more per volume.") in text
+    assert ps.energy["frequency"].min() <= ps.cheapest <= ps.energy["frequency"].max()
+
+
+def test_section_cannot_lift_in_display_units(tmp_path):
+    from blendq.report.document import Paragraph
+
+    folder = pump_project(tmp_path)
+    toml = folder / "project.toml"
+    toml.write_text(toml.read_text().replace('autumn = "68 ft"', 'autumn = "400 ft"'))
+    a = analyse(folder, draws=50, seed=7).analysis
+    for units, rate, length in (("US", " gpm", " ft of head"), ("SI-L/s", " L/s", " m of head")):
+        (block,) = pump_section_for(a, units).blocks
+        assert isinstance(block, Paragraph) and "No drive setting: at the autumn static level" \
+            in block.text
+        assert "cannot lift the water" in block.text and length in block.text
+        assert "m³/d" not in block.text and "m3/d" not in block.text
+        assert rate in block.text or "shutoff" in block.text

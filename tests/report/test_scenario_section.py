@@ -147,3 +147,75 @@ def test_cannot_tell_option_in_section_and_cli(setup):
     assert "  what would tell: " in res.output
     told = next(ln for ln in res.output.splitlines() if "The data cannot tell whether" in ln)
     assert '"Seal Gravel (clogged)"' in told.split("The data cannot tell whether")[1]
+
+
+# ------------------------------------------------------------------- a new pump
+PUMP_DATA = Path(__file__).parents[1] / "data" / "pump"
+
+
+@pytest.fixture(scope="module")
+def pumped(tmp_path_factory):
+    from inputs.test_pump_file import pump_project
+
+    from blendq.api import analyse as api_analyse
+
+    folder = pump_project(tmp_path_factory.mktemp("sectionpump"))
+    (folder / "curve-b.csv").write_text((PUMP_DATA / "curve-b.csv").read_text())
+    return folder, api_analyse(folder, draws=100, seed=7)
+
+
+def test_new_pump_in_section_and_api(pumped):
+    folder, result = pumped
+    comp = result.compare(new_pump=[folder / "curve-b.csv", "curve-b.csv; intake=150 ft"],
+                          include_project=False)
+    names = list(comp.table["option"])
+    assert names == [sc.BASE_NAME, "New pump curve-b.csv", "New pump curve-b.csv, intake at 150 ft"]
+    t = comp.table
+    assert {"drive setting [Hz]", "energy at setting [kWh/1,000 gal]",
+            "pump rate at highest frequency [gpm]"} <= set(t.columns)
+    # kWh per 1,000 US gal = kWh/m3 x 3.785411784
+    raw = comp.comparison.table["pump_kwh_per_m3"].to_numpy(float)
+    np.testing.assert_allclose(t["energy at setting [kWh/1,000 gal]"], raw * 3.785411784,
+                               rtol=1e-12)
+    lines = comp.pump_lines()
+    assert len(lines) == 2 and "for the current pump at its own setting" in lines[0]
+    assert "less per volume" in lines[0] and "cheapest compliant setting" in lines[0]
+    section = scenario_section(result.analysis, comp.comparison, "SI")
+    text = " ".join(b.text for b in section.blocks if isinstance(b, Paragraph))
+    assert "A new pump meets the system curve" in text and "kWh/m3" in text
+    (table,) = [b for b in section.blocks if isinstance(b, Table)]
+    col = table.data["Pump: drive setting; energy at setting"]
+    assert col.iloc[0].endswith("kWh/m3") and "Hz all year" in col.iloc[1]
+    si = comparison_display_table(comp.comparison, "SI-L/s")
+    assert "L/s at 60 Hz" in si["Pump delivers"].iloc[1]
+    assert (si["Drive setting"].iloc[1:] != "-").all()
+
+
+def test_cli_compare_new_pump(pumped, monkeypatch):
+    folder, _ = pumped
+    monkeypatch.chdir(folder)
+    res = runner.invoke(app, ["compare", str(folder), "--draws", "60", "--seed", "7",
+                              "--new-pump", "curve-b.csv; rated_speed=3550 rpm"])
+    assert res.exit_code == 0, res.output
+    assert "New pump curve-b.csv (new pump (curve-b.csv, 3550 rpm, 35 to 60 Hz))" in res.output
+    assert "  pump: drive " in res.output and "kWh/1,000 gal" in res.output
+    assert "for the current pump at its own setting" in res.output
+    res = runner.invoke(app, ["compare", str(folder), "--draws", "60", "--json",
+                              "--new-pump", "curve-b.csv"])
+    rows = json.loads(res.output)["comparison"]
+    assert rows[0]["pump_curve"] == "curve.csv" and rows[-1]["pump_curve"] == "curve-b.csv"
+    assert rows[-1]["pump_setting"] > 0
+
+
+@pytest.mark.parametrize("value, says", [
+    ("intake=150 ft", "does not start with the pump curve"),
+    ("nowhere.csv", "does not exist"),
+    ("curve-b.csv; motor_efficiency=high", "not a plain number"),
+    ("curve-b.csv; speed", "is not KEY=VALUE"),
+])
+def test_cli_compare_bad_new_pump(pumped, monkeypatch, value, says):
+    folder, _ = pumped
+    monkeypatch.chdir(folder)
+    res = runner.invoke(app, ["compare", str(folder), "--draws", "20", "--new-pump", value])
+    assert res.exit_code == 2
+    assert "option --new-pump:" in res.output and says in res.output

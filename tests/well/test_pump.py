@@ -35,6 +35,30 @@ def test_darcy_weisbach_friction_matches_fluids():
         assert float(got) == pytest.approx(h_ref, rel=1e-9)
 
 
+def test_minor_losses_match_fluids():
+    # reference: fluids 1.3 (Caleb Bell): the resistance coefficients of a gate valve
+    # (fluids.fittings.K_gate_valve_Crane), a swing check valve
+    # (fluids.fittings.K_swing_check_valve_Crane) and three 90-degree bends
+    # (fluids.fittings.bend_rounded), and the head of their sum (fluids.core.head_from_K):
+    # h = K v^2 / (2 g) (Crane TP-410)
+    d = 0.1524
+    k = (fluids.fittings.K_gate_valve_Crane(D1=d, D2=d, angle=0.0)
+         + fluids.fittings.K_swing_check_valve_Crane(D=d)
+         + 3 * fluids.fittings.bend_rounded(Di=d, angle=90.0, rc=1.5 * d, Re=4e5))
+    assert 1.0 < k < 5.0
+    for q_day in (500.0, 3270.0, 6000.0):
+        v = q_day / 86400.0 / (np.pi * d**2 / 4)
+        ref = fluids.core.head_from_K(K=k, V=v, g=pump.GRAVITY)
+        assert float(pump.minor_loss(q_day, d, k)) == pytest.approx(ref, rel=1e-12)
+    # the system curve adds them to the column friction
+    plain = _system(length=50.0)
+    fitted = pump.SystemCurve(plain.level, 50.0, plain.diameter, None, 120.0, 10.0, minor_k=k)
+    extra = float(fitted.head(3270.0) - plain.head(3270.0))
+    v = 3270.0 / 86400.0 / (np.pi * 0.15**2 / 4)
+    assert extra == pytest.approx(fluids.core.head_from_K(K=k, V=v), rel=1e-12)
+    assert pump.operating_point(LINE, fitted, 1.0) < pump.operating_point(LINE, plain, 1.0)
+
+
 def test_hazen_williams_si_form_agrees_with_us_form():
     # reference: the US customary Hazen-Williams form h_f[ft] = 10.44 L[ft] Q[gpm]^1.85 /
     # (C^1.85 d[in]^4.8655) (Williams and Hazen 1920; e.g. Mays 2010, Water Resources
@@ -86,12 +110,44 @@ def test_friction_lowers_the_operating_point():
 
 
 def test_cannot_lift_is_a_clear_error():
-    # a pump with 100 m of shutoff head against a 120 m lift
+    # a pump with 100 m of shutoff head against a 120 m lift + 10 m discharge head
     deep = _system(level_at_zero=120.0)
-    with pytest.raises(ModelError, match="cannot lift the water"):
+    with pytest.raises(pump.PumpError, match="cannot lift the water") as err:
         pump.operating_point(LINE, deep, 1.0)
-    with pytest.raises(ModelError, match="cannot lift the water at 1500 m3/d"):
+    assert "at shutoff (no flow) it gives 100 m of head but the system needs 130 m" \
+        in str(err.value)
+    # 100 m = 328 ft, 130 m = 427 ft (0.3048 m per ft)
+    assert "gives 328 ft of head but the system needs 427 ft" in err.value.in_units("US")
+    # at 1500 m3/d the system needs 40 + 15 = 55 m; the pump at rated speed gives 100 - 75 = 25 m
+    with pytest.raises(ModelError) as err:
         pump.speed_for_rate(LINE, _system(), 1500.0)
+    e = err.value
+    assert isinstance(e, pump.PumpError) and e.cannot_lift
+    assert "cannot lift the water at 1" in str(e) and "500 m³/d" in str(e)
+    assert "needs 55 m of head" in str(e) and "gives 25 m" in str(e)
+    # in the project's display units: 1500 m3/d = 275.2 gpm = 17.36 L/s; 55 m = 180.4 ft
+    assert e.in_units("US").startswith("the pump cannot lift the water at 275 gpm: the system "
+                                       "needs 180 ft of head")
+    assert "at 17.4 L/s" in e.in_units("SI-L/s")
+    assert "m3/d" not in e.in_units("US") and "m³/d" not in e.in_units("US")
+
+
+def test_pump_messages_in_display_units():
+    # every message of the pump core names its rates in the unit system asked for
+    shallow = pump.SystemCurve(level=lambda q: np.zeros_like(np.asarray(q, float)), length=0.0,
+                               diameter=0.15, hazen_williams_c=120.0, discharge_head=-10.0)
+    for call in (lambda u: pump.operating_point(LINE, _system(level_at_zero=120.0), 1.0, units=u),
+                 lambda u: pump.operating_point(LINE, shallow, 1.0, units=u),
+                 lambda u: pump.speed_for_rate(LINE, _system(), 1500.0, units=u),
+                 lambda u: pump.speed_for_rate(LINE, shallow, 1500.0, units=u)):
+        for units, rate_unit in (("US", "gpm"), ("SI", "m³/d"), ("SI-L/s", "L/s")):
+            with pytest.raises(pump.PumpError) as err:
+                call(units)
+            text = str(err.value)
+            others = {"gpm", "m³/d", "L/s"} - {rate_unit}
+            assert not any(o in text for o in others), text
+            assert rate_unit in text or "shutoff" in text, text
+            assert " m of" not in text or units != "US", text
 
 
 def test_off_the_end_of_the_curve_is_an_error():
@@ -117,3 +173,13 @@ def test_bad_curve_is_refused():
         pump.PumpCurve(np.array([0.0, 0.0]), np.array([10.0, 5.0]))
     with pytest.raises(ModelError, match="rise"):
         pump.PumpCurve(np.array([0.0, 1.0]), np.array([10.0, 12.0]))
+
+
+@settings(max_examples=50, deadline=None)
+@given(q=st.floats(1.0, 1e5), k=st.floats(0.0, 50.0), d=st.floats(0.05, 0.5))
+def test_minor_loss_is_k_velocity_head(q, k, d):
+    # h = K v^2 / (2 g): zero without fittings, linear in K, quadratic in the rate
+    h = float(pump.minor_loss(q, d, k))
+    v = q / 86400.0 / (np.pi * d**2 / 4)
+    assert h == pytest.approx(k * v**2 / (2 * pump.GRAVITY), rel=1e-12, abs=0.0)
+    assert float(pump.minor_loss(2 * q, d, k)) == pytest.approx(4 * h, rel=1e-12, abs=0.0)
