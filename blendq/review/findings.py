@@ -26,6 +26,7 @@ import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
 from blendq.errors import InputError
+from blendq.inputs.tables import no_collection
 from blendq.review import consistency
 from blendq.review import decisions as _decisions
 from blendq.review.field import check_field_stability, check_purge, check_timing, step_schedule
@@ -478,6 +479,11 @@ def review(project, memory: pd.DataFrame | None = None) -> QAResult:
     InputError
         For a bad QA option.
     """
+    with no_collection():  # a long lab table makes many small objects and no cycles
+        return _review(project, memory)
+
+
+def _review(project, memory: pd.DataFrame | None) -> QAResult:
     try:
         opts = qa_options(project.settings.qa)
     except InputError as err:  # the options come from the project file's [settings.qa]
