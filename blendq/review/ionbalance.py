@@ -80,8 +80,8 @@ def ion_balance_table(samples: pd.DataFrame) -> pd.DataFrame:
     cations, anions = np.zeros(len(ids)), np.zeros(len(ids))
     np.add.at(cations, codes[counted & (charge > 0)], meq[counted & (charge > 0)])
     np.add.at(anions, codes[counted & (charge < 0)], meq[counted & (charge < 0)])
-    source = pd.Series(samples["source_row"].to_numpy(float)).groupby(codes, sort=True).min() \
-        if len(codes) else pd.Series(dtype=float)
+    source = pd.Series(samples["source_row"].to_numpy(float)).groupby(codes, sort=True).min(
+        ).tolist() if len(codes) else []
     firsts = dict.fromkeys(range(len(ids)))
     for k, code in enumerate(codes):  # the step of each sample's first row
         if firsts[code] is None:
@@ -94,7 +94,7 @@ def ion_balance_table(samples: pd.DataFrame) -> pd.DataFrame:
         cat, an = float(cations[code]), float(anions[code])
         missing = [" or ".join(need) for need in _REQUIRED_MAJORS if not present[code] & set(need)]
         total = cat + an
-        low = row_number(source.iloc[code])
+        low = row_number(source[code])
         rows.append({"sample_id": sid, "step": plain_value(steps[firsts[code]]),
                      "cations": cat, "anions": an, "difference": cat - an,
                      "percent_difference": 100.0 * (cat - an) / total if total > 0 else np.nan,
