@@ -12,6 +12,7 @@ import hashlib
 import tempfile
 from pathlib import Path
 
+import pytest
 from fuzz_projects import fault_classes, write_project
 from hypothesis import HealthCheck, given, settings
 from typer.testing import CliRunner
@@ -29,6 +30,7 @@ def _digest(folder: Path) -> dict[str, str]:
             for p in sorted(folder.rglob("*")) if p.is_file()}
 
 
+@pytest.mark.slow
 @settings(max_examples=40, deadline=None,
           suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
 @given(case=fault_classes)
