@@ -1,12 +1,15 @@
-"""How ``blendq check`` scales with the rows of a lab table that all belong to ONE well (every
-row read and reviewed), and the time to refuse a header unit of 100,000 characters.
+"""How ``blendq check`` scales with the rows of a lab table: a lab's full export of several
+wells (30 rows of this well; the others counted, not read) and a table whose rows all belong to
+ONE well (every row read and reviewed); and the time to refuse a header unit of 100,000
+characters.
 
-For rows = 1e3, 1e4, 1e5 it prints the wall time of ``blendq check`` in a fresh process
+It prints the load average and the start-up time (the small test project), then for each kind
+of table and rows = 1e3, 1e4, 1e5 the wall time of ``blendq check`` in a fresh process
 (start-up included), the CPU time of that process (the machine is shared: the CPU time is the
 figure that does not depend on the other work running), and a baseline measured in the same
 run: Python's csv module reading the same lab file (the least any reader must do); then the
 fitted exponent b of time = a N^b (1 = linear). Target: 100,000 rows checked in under 10 s.
-Runs in about a minute on 2 cores.
+Runs in about a minute and a half on 2 cores.
 
     python benchmarks/bench_scale.py
 """
@@ -14,6 +17,7 @@ Runs in about a minute on 2 cores.
 from __future__ import annotations
 
 import csv
+import os
 import resource
 import shutil
 import subprocess
@@ -50,23 +54,38 @@ def baseline(folder: Path) -> float:
     return time.perf_counter() - t0
 
 
+def rows_table(tmp: Path, title: str, own) -> tuple[list[float], list[float]]:
+    """Print the check of lab tables of 1e3, 1e4 and 1e5 rows, ``own(n)`` of them this well's;
+    return the wall and CPU times [s]."""
+    print(title)
+    print(f"{'rows':>8} {'wall [s]':>9} {'cpu [s]':>8} {'csv [s]':>8} {'cpu/csv':>8} exit")
+    sizes, walls, cpus = [], [], []
+    for n in (1_000, 10_000, 100_000):
+        folder = project(tmp / f"own{own(n)}of{n}", lab_rows(n, own(n)))
+        wall, cpu, code = check(folder)
+        base = baseline(folder)
+        sizes.append(n)
+        walls.append(wall)
+        cpus.append(cpu)
+        print(f"{n:>8,} {wall:>9.2f} {cpu:>8.2f} {base:>8.3f} {cpu / base:>8.0f} {code}")
+    print(f"  fitted exponent: wall {exponent(sizes, walls):.2f}, cpu {exponent(sizes, cpus):.2f}"
+          f" (from 1e4 to 1e5: cpu {np.log(cpus[2] / cpus[1]) / np.log(10):.2f})")
+    print(f"  100,000 rows: {walls[-1]:.1f} s wall, {cpus[-1]:.1f} s CPU (target < 10 s)")
+    return walls, cpus
+
+
 def main() -> None:
+    print(f"load average at the start (1, 5, 15 min): "
+          f"{', '.join(f'{x:.1f}' for x in os.getloadavg())} on {os.cpu_count()} CPUs")
     with tempfile.TemporaryDirectory() as tmp:
         tmp = Path(tmp)
-        print("lab table of one well: every row read and reviewed (`blendq check`, fresh process)")
-        print(f"{'rows':>8} {'wall [s]':>9} {'cpu [s]':>8} {'csv [s]':>8} {'cpu/csv':>8} exit")
-        sizes, walls, cpus = [], [], []
-        for n in (1_000, 10_000, 100_000):
-            folder = project(tmp / f"own{n}", lab_rows(n, n))
-            wall, cpu, code = check(folder)
-            base = baseline(folder)
-            sizes.append(n)
-            walls.append(wall)
-            cpus.append(cpu)
-            print(f"{n:>8,} {wall:>9.2f} {cpu:>8.2f} {base:>8.3f} {cpu / base:>8.0f} {code}")
-        print(f"  fitted exponent: wall {exponent(sizes, walls):.2f}, cpu {exponent(sizes, cpus):.2f}"
-              f" (from 1e4 to 1e5: cpu {np.log(cpus[2] / cpus[1]) / np.log(10):.2f})")
-        print(f"  100,000 rows: {walls[-1]:.1f} s wall, {cpus[-1]:.1f} s CPU (target < 10 s)")
+        wall, cpu, code = check(US)
+        print(f"start-up: `blendq check` of the small test project: {wall:.2f} s wall, "
+              f"{cpu:.2f} s CPU (exit {code})")
+        rows_table(tmp, "a lab's full export: N rows, 30 of this well (`well` column; the other "
+                        "wells' rows counted, not read)", lambda n: 30)
+        rows_table(tmp, "lab table of one well: every row read and reviewed (`blendq check`, "
+                        "fresh process)", lambda n: n)
         folder = tmp / "header"
         shutil.copytree(US, folder)
         (folder / "levels.csv").write_text("time,level [" + "m" * 100_000 + "]\n"

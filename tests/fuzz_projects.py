@@ -299,6 +299,127 @@ def long_cells(draw):
                    else ("rejected", "lab/samples.csv", "preservation"))
 
 
+def _edit(files: dict[str, bytes], rel: str, old: str, new: str, count: int = 1) -> None:
+    text = files[rel].decode("utf-8")
+    assert old in text, (rel, old)
+    files[rel] = text.replace(old, new, count).encode("utf-8")
+
+
+# the lab table's value column by unit: mg/L rows and ug/L rows; a header unit equal to one of
+# them (g/m^3 is mg/L, µg/L is ug/L) disagrees with the rows of the other; None: a unit of
+# another dimension, or one blendq does not read
+_SAME_AS = {"mg/L": "mg/L", "g/m^3": "mg/L", "ug/L": "ug/L", "µg/L": "ug/L", "ng/L": "ng/L",
+            "mg/kg": None, "gpm": None, "g/m3": None}
+
+
+@st.composite
+def header_unit_against_unit_column(draw):
+    """A unit in the header of the lab table's value column ("value [g/m3]") while the rows
+    keep their unit column: refused naming the first row whose unit disagrees (a row that
+    names the same unit in other words agrees); a header unit that is no concentration is
+    refused at the header. With every row's unit cell emptied, the header gives the unit."""
+    files = dict(BASE)
+    unit = draw(st.sampled_from(sorted(_SAME_AS)))
+    _edit(files, "lab/samples.csv", "analyte,value,unit", f"analyte,value [{unit}],unit")
+    if draw(st.booleans()) and _SAME_AS[unit] is not None:  # the unit column emptied
+        rows, _ = _rows(files["lab/samples.csv"])
+        files["lab/samples.csv"] = _csv([rows[0]] + [r[:4] + [""] + r[5:] for r in rows[1:]])
+        return files, ("read" if unit == "mg/L" else "any", None, None)
+    # a unit blendq does not read is refused at the header; any other at the first row whose
+    # unit cell disagrees (a concentration per mass, or a rate, disagrees with every row)
+    return files, ("rejected", "lab/samples.csv", "value" if unit == "g/m3" else "unit")
+
+
+def _typo(draw, word: str) -> str:
+    """``word`` with one letter dropped, doubled or swapped with its neighbour."""
+    i = draw(st.integers(0, len(word) - 2))
+    kind = draw(st.sampled_from(["drop", "double", "swap"]))
+    if kind == "drop":
+        return word[:i] + word[i + 1:]
+    if kind == "double":
+        return word[:i] + word[i] + word[i:]
+    return word[:i] + word[i + 1] + word[i] + word[i + 2:]
+
+
+@st.composite
+def review_rule_names(draw):
+    """A severity override ``[settings.qa] severity`` naming a review rule: a known name is
+    read, a misspelt one refused naming the project file's settings.qa field."""
+    from blendq.review.findings import RULES
+
+    files = dict(BASE)
+    rule = draw(st.sampled_from(sorted(RULES)))
+    name = _typo(draw, rule) if draw(st.booleans()) else rule
+    severity = draw(st.sampled_from(["info", "warning", "error"]))
+    _edit(files, "project.toml", "field_readings = 5\n",
+          f'field_readings = 5\nseverity = {{ {json.dumps(name)} = "{severity}" }}\n')
+    if name in RULES:
+        return files, ("read", None, None)
+    return files, ("rejected", "project.toml", f"settings.qa.severity.{name}")
+
+
+@st.composite
+def nitrate_bases(draw):
+    """The nitrate basis stated twice, in a limit (value "8 mg/L as ..." and basis "as ...")
+    or in a lab row (unit "mg/L as ..." and basis "..."): read when both name the same basis,
+    refused naming the field when they differ."""
+    files = dict(BASE)
+    a, b = draw(st.sampled_from(["N", "NO3"])), draw(st.sampled_from(["N", "NO3"]))
+    if draw(st.booleans()):
+        _edit(files, "project.toml", 'value = "8 mg/L"\nbasis = "as N"',
+              f'value = "{8 if a == "N" else 35.4} mg/L as {a}"\nbasis = "as {b}"')
+        return files, (("read", None, None) if a == b else
+                       ("rejected", "project.toml", "limits[1].basis"))
+    _edit(files, "lab/samples.csv", "QW3-S2,S2,nitrate,34.5,mg/L,as NO3,",
+          f"QW3-S2,S2,nitrate,{34.5 if a == 'NO3' else 7.79},mg/L as {a},as {b},")
+    return files, (("read", None, None) if a == b else
+                   ("rejected", "lab/samples.csv", "basis"))
+
+
+@st.composite
+def sample_depths(draw):
+    """A depth sample at any depth (the deepest zone's bottom is 410 ft): read down to twice
+    that depth (a sample below the zones is a review warning), refused beyond it as a typing
+    error, and above the datum."""
+    files = dict(BASE)
+    depth = draw(st.one_of(st.floats(-50.0, 1500.0), st.floats(1e3, 1e7),
+                           st.sampled_from([0.0, 410.0, 819.9, 820.1, 3350.0])))
+    _edit(files, "lab/samples.csv", "10:00,,335,", f"10:00,,{depth!r},")
+    if depth < 0 or depth > 820.0 * (1 + 1e-9):
+        return files, ("rejected", "lab/samples.csv", "depth")
+    if depth > 820.0 * (1 - 1e-9):
+        return files, ("either", "lab/samples.csv", "depth")
+    return files, ("read", None, None)
+
+
+_ODD = ["$x$", "$", "$$", "a $b$ c", "🌊", "Zone 🌊 2", "🐟" * 30, "Über-Zone", "ﬁne",
+        "x" * 199, "x" * 200, "x" * 201, "y" * 5000, "tab\there", "quote \" in", "back\\slash",
+        "{braces}", "%d %s", "\u202eright-to-left", "名前"]
+
+
+@st.composite
+def odd_names(draw):
+    """Names and texts of the project file with dollar signs (mathematics to a chart
+    library), emoji, other scripts, control characters and great lengths: a zone name, the
+    well's name or location. Read as given (a name is text), or refused at a stated length
+    limit naming the field; never an internal error."""
+    files = dict(BASE)
+    name = draw(st.one_of(st.sampled_from(_ODD), st.text(
+        st.characters(blacklist_categories=("Cs",)), min_size=1, max_size=40)))
+    field = draw(st.sampled_from(["zones[2].name", "well.name", "well.location"]))
+    old = {"zones[2].name": 'name = "Middle"', "well.name": 'name = "Quillmarsh 3"',
+           "well.location": 'location = "Quillmarsh well field (invented)"'}[field]
+    # a TOML basic string: JSON escapes the C0 controls; DEL must be escaped too
+    quoted = json.dumps(name, ensure_ascii=False).replace("\x7f", "\\u007f")
+    _edit(files, "project.toml", old, old.split(" = ")[0] + " = " + quoted)
+    return files, ("any", "project.toml", field)
+
+
 #: every class strategy
 input_classes = st.one_of(decimal_comma_rows(), repeated_level_times(), flow_log_rates(),
                           shuffled_steps(), oversized_toml(), long_cells())
+
+#: the classes of odd input a practitioner's files hold, each with its expected outcome
+fault_classes = st.one_of(decimal_comma_rows(), repeated_level_times(), shuffled_steps(),
+                          oversized_toml(), long_cells(), header_unit_against_unit_column(),
+                          review_rule_names(), nitrate_bases(), sample_depths(), odd_names())

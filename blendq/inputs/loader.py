@@ -15,6 +15,7 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte, implied_basis, normalise_basis, to_canonical
@@ -25,6 +26,7 @@ from blendq.inputs.tables import (
     MAX_UNIT,
     Table,
     located,
+    no_collection,
     one_line,
     read_table,
     split_unit_basis,
@@ -99,13 +101,15 @@ def _this_well(t: Table, well: str) -> int:
     if "well" not in t.columns:
         return 0
     name = well.strip().casefold()
-    keep = {row for row, _ in t.rows if t.raw(row, "well").casefold() == name}
+    cells = t.column("well")
+    keep = {row for (row, _), cell in zip(t.rows, cells, strict=True) if cell.casefold() == name}
     if not keep:
-        found = sorted({t.raw(row, "well") for row, _ in t.rows})
+        found = sorted(set(cells))
         shown = ", ".join(f'"{w}"' for w in found[:5]) + (", ..." if len(found) > 5 else "")
         raise t.error(None, "well", f'no row names the well "{well}" (found: {shown})')
     dropped = len(t.rows) - len(keep)
-    t.keep(keep)
+    if dropped:
+        t.keep(keep)
     return dropped
 
 
@@ -113,6 +117,9 @@ def _samples(t: Table, steps: dict[str, float], deepest: float) -> pd.DataFrame:
     if "unit" not in t.columns and t.unit("value") is None:
         raise t.error(0, "unit", "column is missing; add a unit column or a unit in the value "
                                  'header such as "value [mg/L]"')
+    fast = _samples_by_column(t, steps, deepest)
+    if fast is not None:
+        return fast
     out, seen, analytes, factors, units = [], {}, {}, {}, {}
     header_unit = t.unit("value")
     for row, get in t.records():
@@ -154,6 +161,112 @@ def _samples(t: Table, steps: dict[str, float], deepest: float) -> pd.DataFrame:
             raise t.error(r[-1], "duplicate_of", f'"{r[10]}" is not the sample_id of another '
                                                  "sample in this file")
     return _frame("samples", out)
+
+
+def _samples_by_column(t: Table, steps: dict[str, float], deepest: float
+                       ) -> pd.DataFrame | None:
+    """The samples table read column by column: each distinct text of a column is parsed and
+    checked once, and the checks that join cells of a row run on arrays. Returns None when any
+    row breaks a rule; :func:`_samples` then reads the rows one by one, in file order, and
+    refuses the first bad one with its row, field and value (so the message does not depend
+    on which way the table was read). The result equals that of the row-by-row reading."""
+    n, rows = len(t.rows), [row for row, _ in t.rows]
+
+    def parsed(column: str, read=t.value) -> list | None:
+        """Parsed value of ``column`` in each row (None when empty), or None if a cell is bad;
+        each distinct text is read once (an error's row does not matter here)."""
+        texts = t.column(column) or [""] * n
+        try:
+            values = {text: read(rows[0], column, text) for text in dict.fromkeys(texts)}
+        except InputError:
+            return None
+        return list(map(values.__getitem__, texts))
+
+    def numbers(column: str) -> np.ndarray | None:
+        """:meth:`Table.number_in` of each row of ``column``, or None if a cell is bad."""
+        values = parsed(column, t.number_in)
+        return None if values is None else np.array(values, dtype=float)
+
+    sample_id, step, name = parsed("sample_id"), parsed("step"), parsed("analyte")
+    if sample_id is None or step is None or name is None or not set(step) <= steps.keys():
+        return None
+    analytes = {}
+    for text in set(name):
+        try:
+            analytes[text] = get_analyte(text)
+        except InputError:
+            return None
+    keys = [analytes[text].key for text in name]
+    if len(set(zip(sample_id, keys, strict=True))) < n:
+        return None
+    header_unit, factors, units = t.unit("value"), {}, {}
+    unit_col, basis_col = t.column("unit") or [""] * n, t.column("basis") or [""] * n
+    combinations = list(zip(name, unit_col, basis_col, strict=True))
+    for k, combination in enumerate(combinations):
+        if combination not in units:
+            try:
+                units[combination] = _sample_unit(
+                    t, rows[k], lambda column, row=rows[k]: t.value(row, column),
+                    analytes[combination[0]], header_unit, factors)
+            except InputError:
+                return None
+    flagged = parsed("nondetect")
+    number, dl = numbers("value"), numbers("detection_limit")
+    sampled, analyzed, depth = parsed("sampled_at"), parsed("analyzed_at"), parsed("depth")
+    if any(v is None for v in (flagged, number, dl, sampled, analyzed, depth)):
+        return None
+    raw = t.column("value") or [""] * n
+    marked = np.array([v.startswith("<") or v.lower() in _NONDETECT_WORDS for v in raw])
+    said_false = np.array([f is False for f in flagged])
+    nondetect = np.array([bool(f) for f in flagged]) | marked
+    if np.any(said_false & marked) or np.any(~nondetect & np.isnan(number)) \
+            or np.any(number < 0):
+        return None
+    missing_dl = np.isnan(dl)
+    if np.any(nondetect & ~missing_dl & ~np.isnan(number)
+              & ~np.array([math.isclose(a, b, rel_tol=1e-9) for a, b in zip(number, dl,
+                                                                              strict=True)])):
+        return None
+    dl = np.where(nondetect & missing_dl, number, dl)
+    if np.any(nondetect & np.isnan(dl)) or np.any(dl <= 0):
+        return None
+    unc_text = t.column("uncertainty") or [""] * n
+    share = [k for k, v in enumerate(unc_text) if v.endswith("%")]
+    unc = numbers("uncertainty") if not share else np.full(n, math.nan)
+    if unc is None:
+        return None
+    try:
+        for k in range(n) if share else ():
+            unc[k] = t.share_or_number(rows[k], "uncertainty", float(number[k]))
+    except InputError:
+        return None
+    if np.any(unc < 0):
+        return None
+    factor = np.array([units[c][2] for c in combinations])
+    with np.errstate(over="ignore", invalid="ignore"):
+        value = np.where(nondetect, math.nan, number * factor)
+        uncertainty = np.where(nondetect, math.nan, unc * factor)
+        dl_base = dl * factor
+    if np.any(np.isinf(value) | np.isinf(uncertainty) | np.isinf(dl_base)):
+        return None
+    if any(a is not None and s is not None and a < s
+           for a, s in zip(analyzed, sampled, strict=True)):
+        return None
+    if any(d is not None and (d < 0 or d > DEPTH_TYPO_FACTOR * deepest) for d in depth):
+        return None
+    qualifier, duplicate_of, preservation = (parsed(c) for c in
+                                             ("qualifier", "duplicate_of", "preservation"))
+    ids = set(sample_id)
+    if any(d and (d not in ids or d == own) for d, own in zip(duplicate_of, sample_id,
+                                                              strict=True)):
+        return None
+    unit = [units[c] for c in combinations]
+    return _frame_of_columns("samples", [
+        sample_id, step, keys, value.tolist(), nondetect.tolist(), dl_base.tolist(),
+        uncertainty.tolist(), [q or "" for q in qualifier], sampled, analyzed,
+        [d or "" for d in duplicate_of], [math.nan if d is None else d for d in depth],
+        [p or "" for p in preservation], number.tolist(), [u[0] for u in unit],
+        [u[1] for u in unit], rows])
 
 
 def _sample_unit(t: Table, row: int, get, analyte, header_unit: str | None,
@@ -347,9 +460,14 @@ def _known_step(t: Table, row: int, step: str, steps: dict[str, float]) -> None:
 
 
 def _frame(name: str, rows: list[list]) -> pd.DataFrame:
-    frame = pd.DataFrame(rows, columns=TABLE_COLUMNS[name])
-    rows_by_column = dict(zip(TABLE_COLUMNS[name], zip(*rows, strict=True), strict=True)) \
-        if rows else dict.fromkeys(TABLE_COLUMNS[name], ())
+    return _frame_of_columns(name, [list(c) for c in zip(*rows, strict=True)] if rows
+                             else [[] for _ in TABLE_COLUMNS[name]])
+
+
+def _frame_of_columns(name: str, cells: list[list]) -> pd.DataFrame:
+    """Table ``name`` from the values of each of its columns (:data:`TABLE_COLUMNS` order)."""
+    frame = pd.DataFrame(dict(zip(TABLE_COLUMNS[name], cells, strict=True)))
+    rows_by_column = dict(zip(TABLE_COLUMNS[name], cells, strict=True))
     for col in frame.columns:
         if col in ("start", "end", "time", "sampled_at", "analyzed_at"):
             frame[col] = pd.to_datetime(frame[col]).astype("datetime64[ns]")
@@ -358,7 +476,7 @@ def _frame(name: str, rows: list[list]) -> pd.DataFrame:
         elif col == "source_row":
             frame[col] = frame[col].astype(int)
         elif all(k is type(None) or issubclass(k, float)
-                 for k in {type(v) for v in rows_by_column[col]}):
+                 for k in set(map(type, rows_by_column[col]))):
             frame[col] = frame[col].astype(float)
     return frame
 
@@ -387,7 +505,8 @@ def load_project(path: str | Path) -> Project:
     The format is described in ``docs/input-files.md``. Reading never writes to any file.
     """
     try:
-        return _load(path)
+        with no_collection():  # a long table makes many small objects and no cycles
+            return _load(path)
     except InputError as err:  # a cell or key may hold a line break: keep the message one line
         raise InputError(one_line(err.message), file=one_line(err.file or "") or None,
                          row=err.row, field=one_line(err.field or "") or None) from None

@@ -17,8 +17,11 @@ A larger input is refused with one located line before any slow parsing starts.
 
 from __future__ import annotations
 
+import contextlib
 import csv
+import gc
 import io
+import itertools
 import math
 import re
 from collections.abc import Callable, Iterator
@@ -114,6 +117,21 @@ _GROUPED = re.compile(r"^[-+]?\d{1,3}(?:[.,]\d{3})+(?:[.,]\d+)?$")
 _CONTROL = re.compile("[\x00-\x08\x0a-\x1f\x7f-\x9f\u2028\u2029]")
 _NOT_FINITE = {"nan", "inf", "+inf", "-inf", "infinity", "-infinity", "+infinity"}
 _NO_NUMBER = {"", "nd", "n.d.", "<dl", "<rl", "<mdl", "bdl"}
+
+
+@contextlib.contextmanager
+def no_collection() -> Iterator[None]:
+    """Hold off Python's cyclic garbage collector while a long table is read or reviewed: the
+    rows make millions of small objects and no reference cycles, and a collection pass every
+    few thousand of them would take about half the time. Restored on leaving, whatever
+    happens (nested use keeps it off until the outermost one leaves)."""
+    was_on = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        if was_on:
+            gc.enable()
 
 
 def one_line(message: str) -> str:
@@ -220,11 +238,20 @@ class Table:
 
     def raw(self, row: int, column: str) -> str:
         """Stripped text of a cell ("" when the column or the cell is absent)."""
-        index = self._index.get(column)
-        if index is None:
-            return ""
-        cells = self._stripped[row]
-        return cells[index] if index < len(cells) else ""
+        cells = self.column(column)
+        return cells[self._position[row]] if cells else ""
+
+    def column(self, column: str) -> list[str]:
+        """Stripped text of ``column`` in every row, in row order ("" where a row is short);
+        [] when the table has no such column. Built once per column, for the rows kept."""
+        if column not in self._columns:
+            index = self._index.get(column)
+            if self._transposed is None:
+                self._transposed = transpose([cells for _, cells in self.rows])
+            self._columns[column] = [] if index is None else [""] * len(self.rows) \
+                if index >= len(self._transposed) else \
+                list(map(str.strip, self._transposed[index]))
+        return self._columns[column]
 
     def number_text(self, row: int, column: str, text: str) -> float:
         try:
@@ -232,9 +259,10 @@ class Table:
         except InputError as err:
             raise located(err, self.label, row, column) from None
 
-    def number_in(self, row: int, column: str) -> float:
-        """Number of a "raw" cell, NaN when empty or "ND"; a leading "<" is dropped."""
-        cell = self.raw(row, column)
+    def number_in(self, row: int, column: str, cell: str | None = None) -> float:
+        """Number of a "raw" cell, NaN when empty or "ND"; a leading "<" is dropped. ``cell``:
+        the cell's stripped text when the caller has it (errors still name ``row``)."""
+        cell = self.raw(row, column) if cell is None else cell
         key = ("<number>", column, cell)
         if key in self._parsed:  # each text of a column is read once
             return self._parsed[key]
@@ -258,14 +286,22 @@ class Table:
     def keep(self, rows: set[int]) -> None:
         """Keep only the data rows numbered in ``rows`` (rows of other wells are dropped)."""
         self.rows = [(row, cells) for row, cells in self.rows if row in rows]
+        self._position = {row: n for n, (row, _) in enumerate(self.rows)}
+        self._columns = {}
+        self._transposed = None
 
     def records(self) -> Iterator[tuple[int, Callable[[str], object]]]:
         """Yield (row, get) where ``get(column)`` is the parsed cell or None when empty."""
         for row, _ in self.rows:
             yield row, (lambda column, row=row: self._value(row, column))
 
-    def _value(self, row: int, column: str):
-        text = self.raw(row, column)
+    def value(self, row: int, column: str, text: str | None = None):
+        """The parsed cell of ``column`` in ``row`` (None when empty), as :meth:`records`
+        gives it. ``text``: the cell's stripped text when the caller has it."""
+        return self._value(row, column, text)
+
+    def _value(self, row: int, column: str, text: str | None = None):
+        text = self.raw(row, column) if text is None else text
         key = (column, text)
         if key in self._parsed:  # a long table repeats its cells: each text is parsed once
             return self._parsed[key]
@@ -309,7 +345,9 @@ class Table:
         return number
 
     def __post_init__(self) -> None:
-        self._stripped = {row: [c.strip() for c in cells] for row, cells in self.rows}
+        self._position = {row: n for n, (row, _) in enumerate(self.rows)}
+        self._columns: dict[str, list[str]] = {}
+        self._transposed: list[tuple[str, ...]] | None = None  # cells by column, not stripped
         self._index = {column: index for column, (index, _) in self.columns.items()}
         self._parsed: dict[tuple, object] = {}
         self._affine = {}
@@ -347,7 +385,10 @@ def _check_file_size(path: Path, label: str) -> None:
 def _csv_rows(path: Path, label: str) -> tuple[list[tuple[int, list[str]]], str]:
     """(line number, cells) of every non-blank line, and the delimiter."""
     text = _decode(path, label)
-    first = next((line for line in text.splitlines() if line.strip()), "")
+    head = text[:65536].splitlines()[:-1]  # the last line of the slice may be cut short
+    first = next((line for line in head if line.strip()), None)
+    if first is None:  # no complete non-blank line near the top: look through the whole text
+        first = next((line for line in text.splitlines() if line.strip()), "")
     delimiter = max((",", ";", "\t"), key=first.count)
     # strict: an unterminated quote is an error, not a cell that runs to the end of the file
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
@@ -540,13 +581,15 @@ def read_table(path: Path, label: str, name: str, sheet: str | None = None) -> T
             raise InputError(f'required column is missing (expected a header such as '
                              f'"{example}"; found: {found}){hint()}', file=label, row=top,
                              field=column)
-    rows = []
     names = {index: column for column, (index, _) in columns.items()}
     columns_seen = _ColumnsSeen([cells for _, cells in lines[1:]],
                                 sorted(i for i, c in names.items() if spec[c][0] not in _NOT_NUMERIC))
     widths = [len(cells) for _, cells in lines[1:]]
     usual = max(set(widths), key=widths.count) if widths else len(header)
-    for line, cells in lines[1:]:
+    by_column = transpose([cells for _, cells in lines[1:]])
+    for line, cells in _suspect_rows(lines[1:], by_column, widths, usual, len(header),
+                                     columns_seen.numeric, {line for line, _ in formulas},
+                                     delimiter):
         row = line if xlsx else line - header_line
         if max(map(len, cells)) > MAX_CELL:
             index = next(i for i, c in enumerate(cells) if len(c) > MAX_CELL)
@@ -566,11 +609,41 @@ def read_table(path: Path, label: str, name: str, sheet: str | None = None) -> T
                                  "was saved by a program that does not calculate); open and "
                                  "save it in a spreadsheet program, or save the sheet as CSV",
                                  file=label, row=row, field=names[index])
-        rows.append((row, cells))
+    rows = [(line if xlsx else line - header_line, cells) for line, cells in lines[1:]]
     if not rows:
         raise InputError("has no data rows (only a header); add rows or remove the table from "
                          "[tables]", file=label)
-    return Table(label, columns, rows, spec, decimal_comma=delimiter == ";")
+    table = Table(label, columns, rows, spec, decimal_comma=delimiter == ";")
+    table._transposed = by_column
+    return table
+
+
+def transpose(rows: list[list[str]]) -> list[tuple[str, ...]]:
+    """The cells of ``rows`` column by column ("" where a row is short)."""
+    return list(itertools.zip_longest(*rows, fillvalue=""))
+
+
+def _suspect_rows(lines: list[tuple[int, list[str]]], by_column: list[tuple[str, ...]],
+                  widths: list[int], usual: int, width: int, numeric: list[int],
+                  formula_lines: set, delimiter: str) -> list[tuple[int, list[str]]]:
+    """The rows, in file order, that the row checks of :func:`read_table` must look at: a cell
+    over :data:`MAX_CELL` characters, a width other than the usual one, a formula cell, or (comma
+    files) a whole number followed by a cell of digits in a numeric column. Worked out column by
+    column, so that a long table's ordinary rows cost no per-row check."""
+    suspect = {k for k, n in enumerate(widths) if n != usual or n > width}
+    suspect.update(k for k, (line, _) in enumerate(lines) if line in formula_lines)
+    for cells in by_column:
+        if max(map(len, cells)) > MAX_CELL:
+            suspect.update(k for k, cell in enumerate(cells) if len(cell) > MAX_CELL)
+    if delimiter == ",":
+        everyone = range(len(lines))
+        for i in numeric:  # str.isdigit accepts every \d digit (and a few more): a wide net
+            if i + 1 < len(by_column):
+                this, after = by_column[i], by_column[i + 1]
+                digits = map(str.isdigit, map(str.strip, after))
+                suspect.update(k for k in itertools.compress(everyone, digits)
+                               if this[k].strip().lstrip("+-").isdigit())
+    return [lines[k] for k in sorted(suspect)]
 
 
 _WHOLE = re.compile(r"^[-+]?\d+$")

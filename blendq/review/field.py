@@ -218,8 +218,9 @@ def check_field_stability(samples, field, schedule, opts) -> tuple[Outcome, dict
                 window = window[~(window["time"] > s["sampled_at"])]
             window = window.sort_values("time", kind="stable", na_position="first").tail(need)
             windows[key] = (window, assess_stability(window, opts) if len(window) >= need
-                            else None)
-        window, assessed = windows[key]
+                            else None,
+                            row_number(window["source_row"].iloc[-1]) if len(window) else None)
+        window, assessed, last = windows[key]
         if len(window) < need:
             stable[sid] = False
             out.add("warning", "field_readings_few",
@@ -229,7 +230,6 @@ def check_field_stability(samples, field, schedule, opts) -> tuple[Outcome, dict
             continue
         unstable, short = assessed
         stable[sid] = not unstable and not short
-        last = row_number(window["source_row"].iloc[-1])
         row["source_row"] = last if last is not None else row["source_row"]
         if unstable:
             out.add("warning", "field_stability",

@@ -15,6 +15,7 @@ Options are read from ``project.settings.qa``; see :data:`QA_DEFAULTS` and :func
 
 from __future__ import annotations
 
+import difflib
 import json
 from collections.abc import Iterable
 from dataclasses import dataclass, field
@@ -26,6 +27,7 @@ import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
 from blendq.errors import InputError
+from blendq.inputs.tables import no_collection
 from blendq.review import consistency
 from blendq.review import decisions as _decisions
 from blendq.review.field import check_field_stability, check_purge, check_timing, step_schedule
@@ -165,9 +167,12 @@ def qa_options(qa: dict | None) -> dict:
                                  f"{', '.join(SEVERITIES)})", field=where)
             for rule in value:
                 if rule not in RULES:
-                    close = [r for r in RULES if r.startswith(rule[:4])] or list(RULES)
-                    raise InputError(f'"{rule}" is not a rule of the review (did you mean '
-                                     f'{", ".join(close[:5])}?)', field=f"{where}.{rule}")
+                    close = difflib.get_close_matches(str(rule), RULES, n=3, cutoff=0.6) \
+                        or [r for r in RULES if r.startswith(str(rule)[:4])]
+                    hint = (f"did you mean {' or '.join(close)}?" if close else
+                            f"the rules: {', '.join(RULES)}")
+                    raise InputError(f'"{rule}" is not a rule of the review ({hint})',
+                                     field=f"{where}.{rule}")
             opts[key] = dict(value)
         elif key == "field_readings":
             if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 2:
@@ -478,6 +483,11 @@ def review(project, memory: pd.DataFrame | None = None) -> QAResult:
     InputError
         For a bad QA option.
     """
+    with no_collection():  # a long lab table makes many small objects and no cycles
+        return _review(project, memory)
+
+
+def _review(project, memory: pd.DataFrame | None) -> QAResult:
     try:
         opts = qa_options(project.settings.qa)
     except InputError as err:  # the options come from the project file's [settings.qa]

@@ -58,35 +58,47 @@ def ion_balance_table(samples: pd.DataFrame) -> pd.DataFrame:
     Standard Methods for the Examination of Water and Wastewater, 1030E.
     """
     majors = set(MAJOR_CATIONS) | set(MAJOR_ANIONS)
-    groups: dict = {}  # sample_id -> its results, in order of first appearance
-    for _, r in rows_of(samples[["sample_id", "analyte", "nondetect", "value", "step",
-                                 "source_row"]]):
-        groups.setdefault(r["sample_id"], []).append(r)
+    # column by column: each sample is a group code (in order of first appearance), and the
+    # milliequivalents are summed in row order by np.add.at (the same additions, in the same
+    # order, as a loop over the rows)
+    codes, ids = pd.factorize(samples["sample_id"], sort=False, use_na_sentinel=False)
+    names = samples["analyte"].tolist()
+    present: list[set[str]] = [set() for _ in ids]
+    for code, name in zip(codes, names, strict=True):
+        present[code].add(name)
+    analytes = {name: get_analyte(name) for name in set(names)}
+    charge = np.array([analytes[name].charge for name in names], dtype=float)
+    weight = {name: a.equivalent_weight() for name, a in analytes.items() if a.charge != 0}
+    alkalinity = np.array([analytes[name].key == "alkalinity" for name in names], dtype=bool)
+    skip_alk = np.array([bool(p & {"bicarbonate", "carbonate"}) for p in present], dtype=bool)
+    value = samples["value"].to_numpy(float)
+    mg = np.where(samples["nondetect"].to_numpy(bool) | ~np.isfinite(value), 0.0, value)
+    counted = (charge != 0) & ~(skip_alk[codes] & alkalinity) if len(codes) else charge != 0
+    meq = np.zeros(len(names))
+    meq[counted] = mg[counted] / np.array([weight[n] for n, c in zip(names, counted, strict=True)
+                                           if c], dtype=float)
+    cations, anions = np.zeros(len(ids)), np.zeros(len(ids))
+    np.add.at(cations, codes[counted & (charge > 0)], meq[counted & (charge > 0)])
+    np.add.at(anions, codes[counted & (charge < 0)], meq[counted & (charge < 0)])
+    source = pd.Series(samples["source_row"].to_numpy(float)).groupby(codes, sort=True).min(
+        ).tolist() if len(codes) else []
+    firsts = dict.fromkeys(range(len(ids)))
+    for k, code in enumerate(codes):  # the step of each sample's first row
+        if firsts[code] is None:
+            firsts[code] = k
+    steps = samples["step"].tolist()
     rows = []
-    for sid, group in groups.items():
-        present = {r["analyte"] for r in group}
-        if not present & majors:
+    for code, sid in enumerate(ids):
+        if not present[code] & majors:
             continue
-        skip_alk = bool(present & {"bicarbonate", "carbonate"})
-        cat = an = 0.0
-        for r in group:
-            analyte = get_analyte(r["analyte"])
-            if analyte.charge == 0 or (skip_alk and analyte.key == "alkalinity"):
-                continue
-            mg = 0.0 if r["nondetect"] or not np.isfinite(r["value"]) else r["value"]
-            meq = mg / analyte.equivalent_weight()
-            if analyte.charge > 0:
-                cat += meq
-            else:
-                an += meq
-        missing = [" or ".join(need) for need in _REQUIRED_MAJORS if not present & set(need)]
+        cat, an = float(cations[code]), float(anions[code])
+        missing = [" or ".join(need) for need in _REQUIRED_MAJORS if not present[code] & set(need)]
         total = cat + an
-        first_rows = [row_number(r["source_row"]) for r in group]
-        rows.append({"sample_id": sid, "step": plain_value(group[0]["step"]),
+        low = row_number(source[code])
+        rows.append({"sample_id": sid, "step": plain_value(steps[firsts[code]]),
                      "cations": cat, "anions": an, "difference": cat - an,
                      "percent_difference": 100.0 * (cat - an) / total if total > 0 else np.nan,
-                     "missing": ", ".join(missing),
-                     "source_row": min((x for x in first_rows if x is not None), default=None)})
+                     "missing": ", ".join(missing), "source_row": low})
     cols = ["sample_id", "step", "cations", "anions", "difference", "percent_difference",
             "missing", "source_row"]
     return pd.DataFrame(rows, columns=cols).set_index("sample_id")
