@@ -203,8 +203,8 @@ def _step_table_lines(table, units: str) -> list[str]:
 
 def data_notes(proj) -> list[str]:
     """Lines ``check`` and ``window`` print about how the project's data and limits shape the
-    window (:func:`blendq.decide.analysis.data_notes`)."""
-    from blendq.decide.analysis import data_notes as notes
+    window (:func:`blendq.review.data_notes.data_notes`)."""
+    from blendq.review.data_notes import data_notes as notes
 
     return notes(proj)
 

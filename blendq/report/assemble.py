@@ -12,7 +12,7 @@ import pandas as pd
 
 from blendq import CAUTIONS, __version__
 from blendq.chemistry.analytes import get_analyte
-from blendq.decide.analysis import Analysis, data_notes, decision_sentence, thin_data_note
+from blendq.decide.analysis import Analysis, decision_sentence
 from blendq.decide.sweep import compliance_statistics, exceedance, statistic_quantiles
 from blendq.report.document import (
     BulletList,
@@ -26,6 +26,7 @@ from blendq.report.document import (
 )
 from blendq.report.pump_section import pump_section_for
 from blendq.report.scenario_section import scenario_section
+from blendq.review.data_notes import data_notes, thin_data_note
 from blendq.units import (
     DISPLAY_UNITS,
     display_unit_label,
