@@ -19,7 +19,8 @@ from __future__ import annotations
 import hashlib
 import os
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, replace
 from pathlib import Path
 
@@ -183,30 +184,56 @@ def _run_processes(tasks: list[WellTask], n: int, done) -> None:
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
-    pool = ProcessPoolExecutor(n, mp_context=multiprocessing.get_context("spawn"))
+    with _pipe_errors_not_fatal():
+        pool = ProcessPoolExecutor(n, mp_context=multiprocessing.get_context("spawn"))
+        try:
+            futures = {pool.submit(analyse_well, t): k for k, t in enumerate(tasks)}
+            for f in as_completed(futures):
+                done(futures[f], f.result())
+        except BaseException:  # an error, Ctrl-C or the command line's SIGTERM: no worker
+            _terminate(pool)   # stays
+            raise
+        pool.shutdown(wait=True)
+
+
+@contextmanager
+def _pipe_errors_not_fatal() -> Iterator[None]:
+    """Ignore SIGPIPE while the pool lives (main thread only): the command line restores its
+    default action (so that ``blendq ... | head`` ends quietly), and then the pool's queue
+    feeding a worker just terminated would end the whole command; ignored, the write fails
+    with an error the pool handles."""
+    import signal
+    import threading
+
+    if not hasattr(signal, "SIGPIPE") or threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    before = signal.signal(signal.SIGPIPE, signal.SIG_IGN)
     try:
-        futures = {pool.submit(analyse_well, t): k for k, t in enumerate(tasks)}
-        for f in as_completed(futures):
-            done(futures[f], f.result())
-    except BaseException:  # an error, Ctrl-C or the command line's SIGTERM: no worker stays
-        _terminate(pool)
-        raise
-    pool.shutdown(wait=True)
+        yield
+    finally:
+        signal.signal(signal.SIGPIPE, before)
 
 
 def _terminate(pool) -> None:
-    """Cancel what has not started and end the running workers at once."""
-    pool.shutdown(wait=False, cancel_futures=True)
+    """Cancel what has not started and end the running workers at once (the pool's own
+    shutdown would wait for each running well to finish)."""
     stop = getattr(pool, "terminate_workers", None)  # Python 3.14+
     if stop is not None:
         stop()
         return
+    # Python < 3.14: the pool's processes and manager thread, taken before the shutdown
+    # forgets them
     processes = list((getattr(pool, "_processes", None) or {}).values())
+    manager = getattr(pool, "_executor_manager_thread", None)
+    pool.shutdown(wait=False, cancel_futures=True)
     for p in processes:
         if p.is_alive():
             p.terminate()
     for p in processes:
-        p.join(timeout=5)
+        p.join(timeout=10)
+    if manager is not None:
+        manager.join(timeout=10)
 
 
 def dask_client(scheduler):
@@ -230,9 +257,9 @@ def dask_client(scheduler):
 
 
 def _run_dask(tasks: list[WellTask], scheduler, done) -> None:
+    client, own = dask_client(scheduler)
     from distributed import as_completed
 
-    client, own = dask_client(scheduler)
     futures = []
     try:
         # pure=False: each call runs (the wells' seeds already make the results repeatable)
