@@ -72,8 +72,9 @@ class WellOutcome:
         The whole analysis when asked for (``keep_analysis``) and the well did not fail.
     error : str or None
         The one-line error of a failed well.
-    seconds : float
-        Time the well's task took [s] (not part of the results' equality).
+    seconds, cpu_seconds : float
+        Wall-clock and processor time the well's task took [s] (a loaded machine shows as
+        wall-clock time well above the processor time).
     """
 
     name: str
@@ -82,6 +83,7 @@ class WellOutcome:
     analysis: object | None = None
     error: str | None = None
     seconds: float = 0.0
+    cpu_seconds: float = 0.0
 
     @property
     def failed(self) -> bool:
@@ -95,7 +97,7 @@ def analyse_well(task: WellTask) -> WellOutcome:
     from blendq.inputs.loader import load_project
     from blendq.inputs.tables import one_line
 
-    start = time.perf_counter()
+    start, cpu = time.perf_counter(), time.process_time()
     try:
         project = load_project(task.project)
         if task.rate_min is not None or task.rate_max is not None:
@@ -109,12 +111,15 @@ def analyse_well(task: WellTask) -> WellOutcome:
         seed = project.settings.seed if task.seed is None else task.seed
         a = analyse(project, draws=task.draws, seed=seed)
         summary = summarise(a, task.name, task.entry_point, seed)
-    except BlendqError as exc:
-        return WellOutcome(task.name, task.entry_point, error=one_line(str(exc)),
-                           seconds=time.perf_counter() - start)
+    except (BlendqError, OSError, UnicodeDecodeError) as exc:  # a bad input of this well
+        text = str(exc) if isinstance(exc, BlendqError) else f"{type(exc).__name__}: {exc}"
+        return WellOutcome(task.name, task.entry_point, error=one_line(text),
+                           seconds=time.perf_counter() - start,
+                           cpu_seconds=time.process_time() - cpu)
     return WellOutcome(task.name, task.entry_point, summary,
                        a if task.keep_analysis else None,
-                       seconds=time.perf_counter() - start)
+                       seconds=time.perf_counter() - start,
+                       cpu_seconds=time.process_time() - cpu)
 
 
 def tasks_for(wellfield, seed: int | None = None, draws: int | None = None,

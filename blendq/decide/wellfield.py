@@ -1,7 +1,7 @@
 """Per-well summaries of a wellfield and the wellfield table.
 
 :func:`summarise` keeps of one well's :class:`~blendq.decide.analysis.Analysis` what the
-wellfield table, its chart and the blending plan need (a few megabytes against about eleven
+wellfield table, its chart and the blending plan need (about 2 MB against about eleven
 for the whole analysis of a demo-sized well, most of it the per-draw zone shares and flows):
 the window, the rate grid with the rates every hydraulic criterion allows, the predictive draws
 of the discharge concentration, the limits, and the table's texts. The texts come from the
