@@ -56,7 +56,7 @@ def test_result(result):
     assert result.summaries["nine"].intervals == w.intervals
     assert result.lines()[-1].startswith("Caution: blendq is a planning aid")
     fig = result.plot.overview()
-    assert "API test" in fig._suptitle.get_text()
+    assert "API test" in fig.axes[0].get_title(loc="left")
 
 
 def test_write(result, tmp_path):

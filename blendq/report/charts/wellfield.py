@@ -44,6 +44,9 @@ ENTRY_STYLES = [(BLUE, ""), (ORANGE, "////"), (GREEN, "...."), (PURPLE, "xxx"), 
 RAIL_COLOUR = "#b8b8b8"
 #: characters of a failed well's error shown in its row
 ERROR_CHARS = 90
+#: legend entries per line, and the height of a legend line in chart rows
+LEGEND_COLUMNS = 4
+LEGEND_ROW = 0.75
 
 
 def caution_footer(width: int = 150) -> str:
@@ -78,7 +81,8 @@ def wellfield_chart(outcomes, units: str = "US", title: str | None = None) -> Fi
     entries = list(dict.fromkeys(o.entry_point for o in outcomes))
     order = sorted(range(len(outcomes)), key=lambda k: (entries.index(outcomes[k].entry_point), k))
     n = len(outcomes)
-    fig, axes = _figure(1, 1, (8.0, 1.9 + 0.42 * n))
+    legend_lines = -(-(len(entries) + 2) // LEGEND_COLUMNS)
+    fig, axes = _figure(1, 1, (8.0, 1.9 + 0.42 * n + 0.3 * legend_lines))
     ax = axes[0, 0]
     top = max((float(o.summary.rates.max()) for o in outcomes if o.summary is not None),
               default=1.0)
@@ -123,25 +127,25 @@ def wellfield_chart(outcomes, units: str = "US", title: str | None = None) -> Fi
                         va="bottom", fontsize=7.5, color=VERMILLION, style="italic",
                         zorder=5, bbox=dict(boxstyle="square,pad=0.1", fc="white", ec="none",
                                             alpha=0.85))
-    ax.set_ylim(-0.7, n - 0.3)
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    handles = [Patch(facecolor=c, edgecolor=BLACK, hatch=h or None, label=f"window, {name}")
+               for name, (c, h) in zip(entries, [ENTRY_STYLES[i % len(ENTRY_STYLES)]
+                                                 for i in range(len(entries))], strict=True)]
+    handles += [Line2D([], [], color=RAIL_COLOUR, linewidth=3.0, label="hydraulic range"),
+                Line2D([], [], color=BLACK, linewidth=2.6, label="recommended rate")]
+    # room above the top well for the legend (a row of the chart is 0.42 in high)
+    ax.set_ylim(-0.7, n - 0.2 + LEGEND_ROW * legend_lines)
+    ax.legend(handles=handles, loc="upper center", ncols=min(len(handles), LEGEND_COLUMNS), fontsize=7.5, frameon=False,
+              borderaxespad=0.2)
     ax.set_yticks([y for y, _ in labels])
     ax.set_yticklabels([lab for _, lab in labels], fontsize=7.5)
     ax.grid(False, axis="y")
     ax.set_xlim(0.0, x_top)
     ax.set_xlabel(f"well pumping rate [{x_label}]")
-    fig.suptitle(title or "Wellfield: each well's operating window", fontsize=10.5)
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch
-
-    handles = [Patch(facecolor=c, edgecolor=BLACK, hatch=h or None,
-                     label=f"window, {name}")
-               for name, (c, h) in zip(entries, [ENTRY_STYLES[i % len(ENTRY_STYLES)]
-                                                 for i in range(len(entries))], strict=True)]
-    handles += [Line2D([], [], color=RAIL_COLOUR, linewidth=3.0,
-                       label="rates the hydraulic and pump limits allow"),
-                Line2D([], [], color=BLACK, linewidth=2.6, label="recommended rate")]
-    fig.legend(handles=handles, loc="outside upper center", ncols=2, fontsize=7.5,
-               frameon=False)
-    # the caution under the legend: constrained layout keeps room for a figure's x label
+    ax.set_title(title or "Wellfield: each well's operating window", loc="left",
+                 fontsize=10.5)
+    # the cautions at the foot (constrained layout keeps room for a figure's x label)
     fig.supxlabel(caution_footer(), fontsize=6.3, color="#444444")
     return plain_text(fig)
