@@ -57,6 +57,9 @@ class WellTask:
     rate_min: float | None = None
     rate_max: float | None = None
     keep_analysis: bool = True
+    #: where the well stands in the wellfield file ("wellfield.toml", "wells[2]"), for messages
+    file: str = ""
+    key: str = ""
 
 
 @dataclass
@@ -105,8 +108,9 @@ def analyse_well(task: WellTask) -> WellOutcome:
             lo = well.rate_min if task.rate_min is None else task.rate_min
             hi = well.rate_max if task.rate_max is None else task.rate_max
             if hi <= lo:
-                raise InputError(f"the rate range {lo:g} to {hi:g} m3/d of the wellfield file "
-                                 "and the project is empty", field=f"{task.name} rate_max")
+                raise InputError(f"the rate range {lo:g} to {hi:g} m3/d (the wellfield's and "
+                                 "the project's rate_min and rate_max) is empty",
+                                 file=task.file or None, field=f"{task.key}.rate_max")
             project = replace(project, well=replace(well, rate_min=lo, rate_max=hi))
         seed = project.settings.seed if task.seed is None else task.seed
         a = analyse(project, draws=task.draws, seed=seed)
@@ -131,7 +135,8 @@ def tasks_for(wellfield, seed: int | None = None, draws: int | None = None,
     base = wellfield.seed if seed is None else seed
     return [WellTask(w.name, w.entry_point, w.project,
                      None if base is None else well_seed(base, w.name), draws,
-                     w.rate_min, w.rate_max, keep_analysis) for w in wellfield.wells]
+                     w.rate_min, w.rate_max, keep_analysis, wellfield.path.name, w.key)
+            for w in wellfield.wells]
 
 
 def run_batch(tasks: list[WellTask], workers: int | None = None, scheduler=None,

@@ -7,6 +7,7 @@ import hashlib
 import multiprocessing
 import shutil
 import sys
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -146,3 +147,15 @@ def test_bad_workers_and_a_missing_dask_are_one_line(field, monkeypatch):
     monkeypatch.setitem(sys.modules, "distributed", None)
     with pytest.raises(InputError, match=r"pip install 'blendq\[wellfield\]'"):
         run_batch(tasks, scheduler="tcp://127.0.0.1:1")
+
+
+def test_the_wellfield_rate_range_replaces_the_projects(field):
+    # 1 US gallon = 3.785411784 L exactly (NIST Handbook 44, Appendix C)
+    gpm = 3.785411784e-3 * 1440.0
+    nine = tasks_for(field, draws=DRAWS, keep_analysis=False)[2]
+    (out,) = run_batch([replace(nine, rate_max=200 * gpm)], workers=1)
+    s = out.summary
+    assert s.window_high <= 200 * gpm * (1 + 1e-12)
+    assert not s.hydraulic_ok[s.rates > 200 * gpm * (1 + 1e-12)].any()
+    (bad,) = run_batch([replace(nine, rate_min=2000 * gpm)], workers=1)
+    assert bad.error.startswith("wellfield.toml field wells[3].rate_max: the rate range")
