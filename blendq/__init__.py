@@ -35,6 +35,8 @@ _API_NAMES = (
     "pump_settings",
     "PumpPlan",
     "StepTestPlan",
+    "WellfieldResult",
+    "analyse_wellfield",
     "to_json",
 )
 

@@ -70,7 +70,10 @@ __all__ = [
     "PumpPlan",
     "Result",
     "StepTestPlan",
+    "WellfieldPlots",
+    "WellfieldResult",
     "analyse",
+    "analyse_wellfield",
     "build_scenarios",
     "check_report_folder",
     "demo_path",
@@ -1326,3 +1329,154 @@ def pump_settings(project: Result | Project | str | os.PathLike[str], draws: int
 def _no_pump(project: Project) -> InputError:
     return InputError("has no [pump] table; add one to set the pump (blendq docs input-files)",
                       file=project.files.get("project", "project.toml"), field="pump")
+
+
+# ------------------------------------------------------------------------------ wellfield
+class WellfieldPlots:
+    """The wellfield's charts as matplotlib Figures."""
+
+    def __init__(self, result: WellfieldResult) -> None:
+        self._result = result
+
+    def overview(self) -> Figure:
+        """Each well's operating window on a common rate axis, the recommended rate marked,
+        failed wells shown as such (cautions at the foot)."""
+        from blendq.report.charts.wellfield import wellfield_chart
+
+        return wellfield_chart(self._result.outcomes, self._result.units,
+                               f"{self._result.wellfield.name}: each well's operating window")
+
+    def __repr__(self) -> str:
+        return f"charts of {self._result.wellfield.name}: overview()"
+
+
+class WellfieldResult:
+    """The batch analysis of a wellfield, made by :func:`analyse_wellfield`.
+
+    Attributes
+    ----------
+    wellfield : blendq.inputs.wellfield_file.Wellfield
+        The wellfield file, checked, in base units.
+    outcomes : list of blendq.decide.batch.WellOutcome
+        One per well in the file's order: its summary (window, rate grid, predictive draws of
+        the discharge concentration, limits; base units) or its one-line error.
+    units : {"US", "SI", "SI-L/s"}
+    """
+
+    def __init__(self, wellfield, outcomes, units: str = "US") -> None:
+        self.wellfield = wellfield
+        self.outcomes = list(outcomes)
+        self.units = _unit_system(units)
+
+    @cached_property
+    def table(self) -> pd.DataFrame:
+        """One row per well: window, recommended rate, limiting factor, trend, data gaps (and
+        the error of a failed well), rates in the display unit."""
+        from blendq.decide.wellfield import wellfield_table
+
+        return wellfield_table(self.outcomes, self.units)
+
+    @cached_property
+    def wells(self) -> dict[str, Result]:
+        """Well name -> :class:`Result` of each well analysed (none for a failed well, nor
+        when the analyses were not kept)."""
+        return {o.name: Result(o.analysis, self.units) for o in self.outcomes
+                if o.analysis is not None}
+
+    @property
+    def summaries(self) -> dict:
+        """Well name -> :class:`blendq.decide.wellfield.WellSummary` of each well analysed."""
+        return {o.name: o.summary for o in self.outcomes if o.summary is not None}
+
+    @property
+    def errors(self) -> dict[str, str]:
+        """Well name -> one-line error of each well whose analysis failed."""
+        return {o.name: o.error for o in self.outcomes if o.error is not None}
+
+    @cached_property
+    def plot(self) -> WellfieldPlots:
+        """The wellfield's charts (``result.plot.overview()``)."""
+        return WellfieldPlots(self)
+
+    @property
+    def cautions(self) -> list[str]:
+        """The cautions every wellfield output carries."""
+        return [CAUTIONS[0], CAUTIONS[1], CAUTIONS[3]]
+
+    def lines(self) -> list[str]:
+        """The wellfield table as text, one block per well, and the cautions."""
+        from blendq.decide.wellfield import table_lines
+
+        head = (f"{self.wellfield.name}: {len(self.outcomes)} wells, "
+                f"{len(self.outcomes) - len(self.errors)} analysed, {len(self.errors)} failed")
+        return [head, *table_lines(self.table), "Caution: " + " ".join(self.cautions)]
+
+    def files(self) -> dict[str, bytes | str]:
+        """The output files of ``blendq wellfield``: wellfield.csv (the table), wellfield.png
+        and wellfield.svg (the overview chart), wellfield.txt (the table as text with the
+        cautions)."""
+        from blendq.report.charts.render import render_chart
+
+        png, svg = render_chart(self.plot.overview())
+        return {"wellfield.csv": _outputs.to_csv_safe(self.table),
+                "wellfield.png": png, "wellfield.svg": svg,
+                "wellfield.txt": "\n".join(self.lines()) + "\n"}
+
+    def protected(self) -> list[Path]:
+        """The run's input files and folders (an output folder may hold none of them)."""
+        return [self.wellfield.path, *(w.project for w in self.wellfield.wells)]
+
+    def write(self, folder: str | os.PathLike[str]) -> Path:
+        """Write :meth:`files` to ``folder`` (replaced as a whole, as the report folder is)."""
+        protect = self.protected()
+        _outputs.check_output_folder(folder, protect)
+        return _outputs.write_outputs(folder, self.files(), protect)
+
+    def __repr__(self) -> str:
+        return "\n".join(self.lines())
+
+
+def analyse_wellfield(path: str | os.PathLike[str], workers: int | None = None,
+                      scheduler: Any = None, seed: int | None = None, *,
+                      draws: int | None = None, units: str | None = None,
+                      keep_analyses: bool = True,
+                      progress: Callable[[int, int, str], None] | None = None
+                      ) -> WellfieldResult:
+    """Analyse every well of a wellfield file (``wellfield.toml``, docs/input-files.md).
+
+    Parameters
+    ----------
+    path : path-like
+        The wellfield file or its folder.
+    workers : int, optional
+        Local worker processes (default: one per core); 1 runs the wells in this process.
+    scheduler : str or distributed.Client, optional
+        Run the wells on this Dask cluster instead (needs ``pip install 'blendq[wellfield]'``).
+    seed : int, optional
+        Wellfield seed (default: the file's); each well's seed derives from it and the well's
+        name, so the results do not depend on the executor or the number of workers.
+    draws : int, optional
+        Posterior draws of each well (default: each project's setting).
+    units : {"US", "SI", "SI-L/s"}, optional
+        Display units (default: the wellfield file's ``display_units``).
+    keep_analyses : bool
+        Keep each well's whole analysis (``result.wells``; about 11 MB per demo-sized well).
+        False keeps only the summaries the table, the chart and the plan need.
+    progress : callable(done, total, well name), optional
+
+    Returns
+    -------
+    WellfieldResult
+
+    Raises
+    ------
+    InputError
+        For a bad wellfield file (a bad well project is that well's error instead).
+    """
+    from blendq.decide.batch import run_batch, tasks_for
+    from blendq.inputs.wellfield_file import read_wellfield
+
+    wf = read_wellfield(path)
+    tasks = tasks_for(wf, seed=seed, draws=draws, keep_analysis=keep_analyses)
+    outcomes = run_batch(tasks, workers=workers, scheduler=scheduler, progress=progress)
+    return WellfieldResult(wf, outcomes, units or wf.display_units)

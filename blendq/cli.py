@@ -15,7 +15,7 @@ from blendq import CAUTIONS, __version__
 
 #: the commands in the order of the work: a new project, its checks, the analysis, the report
 WORKFLOW = ("new", "plan", "check", "inflow", "drawdown", "fit", "window", "history", "pump",
-            "compare", "report", "demo")
+            "compare", "report", "wellfield", "demo")
 
 
 class _WorkflowGroup(TyperGroup):
@@ -719,6 +719,67 @@ def report_cmd(project: ProjectArg,
         u = _units(units, proj)
         proj = _with_options(proj, seal, redevelop, intake, lower_heads, blend, u, new_pump)
         _write_report(proj, out, u, draws, seed)
+
+    _guard(body)
+
+
+def _batch_progress():
+    """A rich progress bar on stderr for the wells of a wellfield; returns (callback, context)."""
+    from rich.console import Console
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+    prog = Progress(TextColumn("wells analysed"), BarColumn(),
+                    TextColumn("{task.completed}/{task.total} {task.description}"),
+                    TimeElapsedColumn(), console=Console(stderr=True), transient=True,
+                    disable=not sys.stderr.isatty())
+    task = prog.add_task("", total=1)
+
+    def callback(done: int, total: int, name: str) -> None:
+        prog.update(task, completed=done, total=total, description=f"(last: {name})")
+
+    return callback, prog
+
+
+@app.command("wellfield")
+def wellfield_cmd(
+    file: Annotated[Path, typer.Argument(metavar="FILE", help="Wellfield file (wellfield.toml) or its folder.")],
+    workers: Annotated[int | None, typer.Option("--workers", "-w", metavar="N", help="Local worker processes (default: one per core; 1 runs in this process).")] = None,
+    scheduler: Annotated[str | None, typer.Option("--scheduler", metavar="ADDRESS", help='Run the wells on this Dask scheduler, e.g. "tcp://10.0.0.5:8786" (needs blendq[wellfield]).')] = None,
+    out: Annotated[Path | None, typer.Option("--out", "-o", metavar="FOLDER", help="Write the table (CSV), the chart (PNG, SVG) and the text to this folder (replaced as a whole).")] = None,
+    units: UnitsOpt = None, draws: DrawsOpt = None, seed: SeedOpt = None,
+) -> None:
+    """Analyse every well of a wellfield (one project per well) and print the wellfield table:
+    each well's window, recommended rate, limiting factor, trend and data gaps. A well that
+    fails reports its error; the others go on."""
+
+    def body():
+        from blendq.api import analyse_wellfield
+        from blendq.errors import InputError
+        from blendq.inputs.wellfield_file import read_wellfield
+        from blendq.report.outputs import check_output_folder
+
+        if workers is not None and workers < 1:
+            raise typer.BadParameter(f"{workers} is not 1 or more", param_hint="--workers")
+        u = _units(units) if units else None
+        wf = read_wellfield(file)  # a bad file or output folder fails before the long run
+        if out is not None:
+            try:
+                check_output_folder(out, [wf.path, *(w.project for w in wf.wells)])
+            except InputError as err:
+                raise InputError(err.message if not err.file else err.message.replace(
+                    "this input file", f"the input file {err.file}"), field="--out") from None
+        callback, prog = _batch_progress()
+        with prog:
+            result = analyse_wellfield(file, workers=workers, scheduler=scheduler, seed=seed,
+                                       draws=draws, units=u, keep_analyses=False,
+                                       progress=callback)
+        for line in result.lines()[:-1]:
+            typer.echo(line)
+        if out is not None:
+            folder = result.write(out)
+            typer.echo(f"Wellfield table and chart written to {folder / 'wellfield.csv'} and "
+                       f"{folder / 'wellfield.png'}")
+        _echo_cautions()
 
     _guard(body)
 

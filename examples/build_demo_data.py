@@ -120,7 +120,7 @@ def main() -> None:
     # flow logs: ambient and during step 3 (upward flow, gpm)
     log_depths_ft = [117, 170, 225, 275, 340]
     logs = []
-    for name, q_gpm, step in (("ambient", 0, ""), ("pumped", 500, "S3")):
+    for name, q_gpm, step in (("ambient", 0, ""), ("pumped", RATES_GPM[2], "S3")):
         s = hydraulics.solve_wellbore_head(np.array([q_gpm * GPM]), g, h0)
         up = mixing.wellbore_flow(s.zone_flow[0], geo, np.array(log_depths_ft) * FT)
         for d, f in zip(log_depths_ft, up):

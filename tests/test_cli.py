@@ -559,7 +559,7 @@ def test_help_is_plain_text_in_workflow_order():
     top = run("--help").stdout
     listed = [ln.split()[0] for ln in top.split("Commands:")[1].splitlines() if ln.strip()]
     assert listed == ["new", "plan", "check", "inflow", "drawdown", "fit", "window", "history",
-                      "pump", "compare", "report", "demo", "docs"]
+                      "pump", "compare", "report", "wellfield", "demo", "docs"]
 
 
 def test_compare_option_errors_name_the_option():
