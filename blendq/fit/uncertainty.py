@@ -268,7 +268,8 @@ def exact_derivatives(problem: Problem, theta, analytes):
         parts.append(np.broadcast_to(block, (bsz, len(cols), p)))
     # a parameter x_k of zone k alone moves the zone flows by dq_i = (delta_ik - s_i / S) l_k
     # and the wellbore head by l_k / S (s the slopes, S their sum, l the local responses)
-    s_rel = sens.slope / sens.slope.sum(-1)[..., None]
+    with np.errstate(invalid="ignore", divide="ignore"):  # NaN where no zone yields water
+        s_rel = sens.slope / sens.slope.sum(-1)[..., None]
     zones_of = [slice(None), slice(None), problem.loss_zones]
     if len(logs):
         pos = inv[at[-3]:at[-2]]
@@ -286,8 +287,9 @@ def exact_derivatives(problem: Problem, theta, analytes):
         pos = inv[at[-2]:]
         dlev = np.zeros((bsz, len(pos), p))
         total = sens.slope.sum(-1)[:, pos, None]
-        for cols, local in kinds:
-            dlev[..., cols] = -local[:, pos] / total  # -dh_w
+        with np.errstate(invalid="ignore", divide="ignore"):
+            for cols, local in kinds:
+                dlev[..., cols] = -local[:, pos] / total  # -dh_w
         if problem.fit_c:
             dlev[..., 2 * n] += problem.level_rate**2
         parts.append(dlev / problem.level_sd)

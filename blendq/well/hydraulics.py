@@ -690,11 +690,13 @@ class FlowSensitivity:
         s = self.slope
         total = s.sum(-1)
         eye = np.eye(s.shape[-1])
-        return (eye - (s / total[..., None])[..., :, None]) * local[..., None, :]
+        with np.errstate(invalid="ignore", divide="ignore"):  # NaN where no zone yields water
+            return (eye - (s / total[..., None])[..., :, None]) * local[..., None, :]
 
     def head_derivative(self, local: np.ndarray) -> np.ndarray:
         """dh_w/dx_k, shape (..., n_rates, n_zones k)."""
-        return local / self.slope.sum(-1)[..., None]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return local / self.slope.sum(-1)[..., None]
 
 
 def flow_sensitivity(state: WellState, conductance, static_head, nonlinear_loss=None,
