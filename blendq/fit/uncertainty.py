@@ -28,11 +28,13 @@ from blendq.fit import constrained_lsq as qp
 from blendq.fit.estimation import (
     FitResult,
     Problem,
+    _log_groups,
     hydraulic_residuals_batch,
     row_weights,
     scaled_pinv,
     solve_concentrations,
 )
+from blendq.well import mixing
 from blendq.well.hydraulics import solve_by_zone
 from blendq.well.mixing import intake_weights, intake_weights_by_zone
 
@@ -203,6 +205,118 @@ def draw_misfit(fit: FitResult, draws: Draws) -> dict[str, np.ndarray]:
 _hydraulic_residuals_batch = hydraulic_residuals_batch
 
 
+def exact_derivatives(problem: Problem, theta, analytes):
+    """Hydraulic residuals and discharge weights of a batch of theta with their derivatives by
+    theta, or None where the model has what they do not cover (a transient zone, whose levels
+    are superposed in time, or a sample taken at a depth in the well).
+
+    Parameters
+    ----------
+    problem : Problem
+    theta : ndarray (B, p)
+    analytes : list of str
+
+    Returns
+    -------
+    r_h : ndarray (B, rows)
+        :func:`hydraulic_residuals_batch` (priors, flow logs, pumping levels; stated errors).
+    j_h : ndarray (B, rows, p)
+        Its derivative by theta.
+    weights : dict {analyte: (a (B, m, n), da (B, m, n, p))}
+        :func:`row_weights` of each analyte's results and its derivative by theta.
+
+    Notes
+    -----
+    Exact first derivatives (what forward differences of the same functions approximate):
+    the zone flows by implicit differentiation of the well's equations
+    (:func:`blendq.well.hydraulics.flow_sensitivity`), the discharge weights through the
+    pass-through products of the wellbore mixing
+    (:func:`blendq.well.mixing.intake_weights_jacobian`), the flow-log readings through the
+    wellbore mass balance (linear in the zone flows) and the pumping levels as
+    d(C Q^2 - h_w). Work per draw: a few (n x n) products per rate, where differencing needs
+    a full model evaluation per parameter.
+    """
+    if problem.schedule is not None or any(
+            np.isfinite(problem.data[a].depth).any() for a in analytes):
+        return None
+    theta = np.asarray(theta, float)
+    bsz, p = theta.shape
+    n = problem.n_zones
+    model = problem.model(theta)
+    logs = problem.log_rows
+    groups = _log_groups(logs) if len(logs) else []
+    rate_sets = [problem.data[a].rate for a in analytes]
+    rate_sets += [np.array([g[0] for g in groups], float), problem.level_rate]
+    uniq, inv = np.unique(np.concatenate(rate_sets), return_inverse=True)
+    state = model.state(uniq)
+    sens = model.sensitivity(state)
+    at = np.cumsum([0] + [len(r) for r in rate_sets])
+    k0 = 2 * n + int(problem.fit_c)
+    expo = np.broadcast_to(np.asarray(model.loss_exponent, float), (n,))[problem.loss_zones]
+    per = 1.0 / problem.loss_reference ** expo  # dC_i / dtheta of the fitted losses
+    kinds = [(slice(0, n), sens.log_conductance), (slice(n, 2 * n), sens.static_head)]
+    if len(problem.loss_zones):
+        kinds.append((slice(k0, p), sens.nonlinear_loss[..., problem.loss_zones] * per))
+    r_h = hydraulic_residuals_batch(problem, theta, model)
+    parts = []
+    pr = problem.prior
+    fg = np.flatnonzero(np.isfinite(pr.log_conductance_sd))
+    fh = np.flatnonzero(np.isfinite(pr.static_head_sd))
+    for cols, sd in ((fg, pr.log_conductance_sd[fg]), (n + fh, pr.static_head_sd[fh])):
+        block = np.zeros((len(cols), p))
+        block[np.arange(len(cols)), cols] = 1.0 / sd
+        parts.append(np.broadcast_to(block, (bsz, len(cols), p)))
+    # a parameter x_k of zone k alone moves the zone flows by dq_i = (delta_ik - s_i / S) l_k
+    # and the wellbore head by l_k / S (s the slopes, S their sum, l the local responses)
+    with np.errstate(invalid="ignore", divide="ignore"):  # NaN where no zone yields water
+        s_rel = sens.slope / sens.slope.sum(-1)[..., None]
+    zones_of = [slice(None), slice(None), problem.loss_zones]
+    if len(logs):
+        pos = inv[at[-3]:at[-2]]
+        dpred = np.zeros((bsz, len(logs), p))
+        eye = np.eye(n)
+        for k, (_, rows, depths) in enumerate(groups):
+            # the upward flow is linear in the zone flows: per unit flow of zone k (its flow
+            # in, the balance taken up by every zone in proportion to s), times l_k
+            unit = eye[None] - s_rel[:, pos[k], None, :]  # (B, k, i)
+            m = mixing.wellbore_flow(unit, model.geometry, depths)  # (B, k, depths)
+            for (cols, local), zk in zip(kinds, zones_of, strict=False):
+                dpred[:, rows, cols] = np.swapaxes(m[:, zk] * local[:, pos[k], :, None], 1, 2)
+        parts.append(dpred / problem.log_sd[:, None])
+    if len(problem.level_rate):
+        pos = inv[at[-2]:]
+        dlev = np.zeros((bsz, len(pos), p))
+        total = sens.slope.sum(-1)[:, pos, None]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            for cols, local in kinds:
+                dlev[..., cols] = -local[:, pos] / total  # -dh_w
+        if problem.fit_c:
+            dlev[..., 2 * n] += problem.level_rate**2
+        parts.append(dlev / problem.level_sd)
+    j_h = np.concatenate(parts, axis=1) if parts else np.zeros((bsz, 0, p))
+    # the weights at the rates of the results, and da/dx_k = (J_a[:, k] - J_a s / S) l_k
+    q_pos, q_inv = np.unique(inv[:at[len(analytes)]], return_inverse=True)
+    w, jw = mixing.intake_weights_jacobian(state.zone_flow[:, q_pos], model.geometry)
+    w = np.nan_to_num(w, nan=0.0)
+    jw = np.nan_to_num(jw, nan=0.0)
+    jm = jw - np.matmul(jw, s_rel[:, q_pos, :, None])
+    da_all = np.zeros(w.shape + (p,))  # (B, rates, n, p)
+    for (cols, local), zk in zip(kinds, zones_of, strict=False):
+        da_all[..., cols] = jm[..., zk] * local[:, q_pos, None, :]
+    weights = {}
+    seen: dict[bytes, tuple] = {}
+    for j, analyte in enumerate(analytes):
+        pos = q_inv[at[j]:at[j + 1]]
+        key = pos.tobytes()
+        if key not in seen:  # analytes sampled together share the arrays
+            if np.array_equal(pos, np.arange(len(q_pos))):  # one result a rate, in order
+                seen[key] = (w, da_all)
+            else:
+                seen[key] = (w[:, pos], da_all[:, pos])
+        weights[analyte] = seen[key]
+    return r_h, j_h, weights
+
+
 class _PerturbedData:
     """The data of a chunk of draws, each datum perturbed by its (widened) error and each
     prior mean by its prior sd: the randomised maximum-likelihood objective of every draw."""
@@ -302,28 +416,39 @@ class _PerturbedData:
             if np.any(active[analyte].astype(float) @ onehot > 1):
                 return None
             bounds[analyte] = (g, h, onehot)
-        pert = np.repeat(theta[None], p + 1, axis=0)
-        pert[np.arange(1, p + 1), :, np.arange(p)] += steps[:, None]
-        flat = pert.reshape((p + 1) * bsz, p)
-        model = problem.model(flat)
-        rh = (_hydraulic_residuals_batch(problem, flat, model) / self.hyd_scale).reshape(
-            p + 1, bsz, -1)
-        res = [rh[0] - self.eps[idx, :self.n_hyd]]
-        jac = [(rh[1:] - rh[0][None]) / steps[:, None, None]]
         n = problem.n_zones
+        exact = exact_derivatives(problem, theta, self.analytes)
+        if exact is None:
+            pert = np.repeat(theta[None], p + 1, axis=0)
+            pert[np.arange(1, p + 1), :, np.arange(p)] += steps[:, None]
+            flat = pert.reshape((p + 1) * bsz, p)
+            model = problem.model(flat)
+            rh = (_hydraulic_residuals_batch(problem, flat, model) / self.hyd_scale).reshape(
+                p + 1, bsz, -1)
+            res = [rh[0] - self.eps[idx, :self.n_hyd]]
+            jac = [(rh[1:] - rh[0][None]) / steps[:, None, None]]
+            weights = {}
+            for analyte in self.analytes:
+                d = problem.data[analyte]
+                aa = row_weights(model, d.rate, d.depth).reshape(p + 1, bsz, len(d.value), n)
+                weights[analyte] = (aa[0], np.moveaxis(
+                    (aa[1:] - aa[0][None]) / steps[:, None, None, None], 0, -1))
+            jac = [np.moveaxis(jac[0], 0, -1)]
+        else:
+            r_h, j_h, weights = exact
+            res = [r_h / self.hyd_scale - self.eps[idx, :self.n_hyd]]
+            jac = [j_h / self.hyd_scale[:, None]]
         for analyte in self.analytes:
             d = problem.data[analyte]
             g, h, onehot = bounds[analyte]
-            aa = row_weights(model, d.rate, d.depth).reshape(p + 1, bsz, len(d.value), n)
-            a = aa[0]
-            da = (aa[1:] - a[None]) / steps[:, None, None, None]  # (p, B, m, n)
+            a, da = weights[analyte]  # (B, m, n), (B, m, n, p)
             y = self.y[analyte][idx]
             sig = self.sigma[analyte]
             act = active[analyte]
             c, _ = qp.solve_on_active_set(a, y, sig, g, h, act)
             w2 = 1.0 / sig**2
             wa = a * w2[None, :, None]
-            hess = np.einsum("bmi,bmj->bij", wa, a)
+            hess = np.matmul(np.swapaxes(wa, 1, 2), a)
             # the ridge of the active-set solve (1e-10 of the largest curvature)
             ridge = 1e-10 * np.maximum(np.einsum("bii->bi", hess).max(1), 1e-300)
             fixed = (act.astype(float) @ onehot) > 0
@@ -331,13 +456,14 @@ class _PerturbedData:
             red = np.where(free[:, :, None] & free[:, None, :], hess, 0.0)
             red[:, np.arange(n), np.arange(n)] += np.where(fixed, 1.0, ridge[:, None])
             raw = np.einsum("bmn,bn->bm", a, c) - y
-            dac = np.einsum("kbmn,bn->kbm", da, c)  # dA c
-            rhs = -(np.einsum("kbmn,bm->kbn", da, raw * w2) + np.einsum("bmn,kbm->kbn", wa, dac))
-            rhs = np.where(free[None], rhs, 0.0)
-            dc = np.linalg.solve(red, np.moveaxis(rhs, 0, -1))  # (B, n, p)
+            dac = np.matmul(c[:, None, None, :], da)[:, :, 0]  # dA c (B, m, p)
+            rhs = -(np.matmul((raw * w2)[:, None, :], da.reshape(bsz, len(y[0]), -1)).reshape(
+                bsz, n, p) + np.matmul(np.swapaxes(wa, 1, 2), dac))
+            rhs = np.where(free[:, :, None], rhs, 0.0)
+            dc = np.linalg.solve(red, rhs)  # (B, n, p)
             res.append(raw / sig)
-            jac.append((dac + np.einsum("bmn,bnk->kbm", a, dc)) / sig)
-        return np.concatenate(res, axis=1), np.moveaxis(np.concatenate(jac, axis=2), 0, -1)
+            jac.append((dac + np.matmul(a, dc)) / sig[:, None])
+        return np.concatenate(res, axis=1), np.concatenate(jac, axis=1)
 
 
 def _take(state, rows):
@@ -407,7 +533,7 @@ def levenberg_marquardt_batch(fun, theta, lower, steps, max_iter: int = MAX_DRAW
             if jac_fun is not None and new_j.size else None
         if exact is not None:
             r0, jac = exact
-            jtj_all[new_j] = np.einsum("bmi,bmj->bij", jac, jac)
+            jtj_all[new_j] = np.matmul(np.swapaxes(jac, 1, 2), jac)
             grad_all[new_j] = np.einsum("bmi,bm->bi", jac, r0)
             fresh[new_j] = True
         elif new_j.size:
@@ -423,7 +549,7 @@ def levenberg_marquardt_batch(fun, theta, lower, steps, max_iter: int = MAX_DRAW
                            False)
             rk = rk.reshape(p + 1, nj, -1)
             jac = np.moveaxis((rk[1:] - rk[0][None]) / steps[:, None, None], 0, -1)
-            jtj_all[new_j] = np.einsum("bmi,bmj->bij", jac, jac)
+            jtj_all[new_j] = np.matmul(np.swapaxes(jac, 1, 2), jac)
             grad_all[new_j] = np.einsum("bmi,bm->bi", jac, rk[0])
             fresh[new_j] = True
         jtj = jtj_all[todo]

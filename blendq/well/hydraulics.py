@@ -654,3 +654,109 @@ def pumping_level_head(wellbore_head, rate, well_loss=0.0, well_loss_exponent=2.
 def dewatered_zones(pumping_level_depth, zone_top):
     """Boolean mask (..., n_zones): True where the pumping level [m depth] is below a zone top [m]."""
     return np.asarray(pumping_level_depth, float)[..., None] > np.asarray(zone_top, float)
+
+
+@dataclass(frozen=True)
+class FlowSensitivity:
+    """First derivatives of a :class:`WellState` by each zone's own parameters, rate held.
+
+    A change dx_k of a parameter of zone k alone moves the zone flows and the wellbore head by
+
+        dq_i = (delta_ik - s_i / S) l_k dx_k,   dh_w = l_k dx_k / S,   S = sum_i s_i,
+
+    with l_k the zone's local response (what its flow would do with h_w held) and s_i = -dq_i/dh_w
+    (the flow of each zone eases as h_w rises, and the balance sum_i q_i = Q moves h_w).
+
+    Attributes
+    ----------
+    log_conductance : ndarray (..., n_rates, n_zones)
+        l_k for x_k = ln G_k [m^3/d].
+    static_head : ndarray (..., n_rates, n_zones)
+        l_k for x_k = h0_k [m^2/d].
+    nonlinear_loss : ndarray (..., n_rates, n_zones)
+        l_k for x_k = C_k [m^3/d per d^P/m^(3P-1)].
+    slope : ndarray (..., n_rates, n_zones)
+        s_i = -dq_i/dh_w [m^2/d].
+    """
+
+    log_conductance: np.ndarray
+    static_head: np.ndarray
+    nonlinear_loss: np.ndarray
+    slope: np.ndarray
+
+    def flow_derivative(self, local: np.ndarray) -> np.ndarray:
+        """dq_i/dx_k from the local responses l_k of one kind of parameter,
+        shape (..., n_rates, n_zones i, n_zones k)."""
+        s = self.slope
+        total = s.sum(-1)
+        eye = np.eye(s.shape[-1])
+        with np.errstate(invalid="ignore", divide="ignore"):  # NaN where no zone yields water
+            return (eye - (s / total[..., None])[..., :, None]) * local[..., None, :]
+
+    def head_derivative(self, local: np.ndarray) -> np.ndarray:
+        """dh_w/dx_k, shape (..., n_rates, n_zones k)."""
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return local / self.slope.sum(-1)[..., None]
+
+
+def flow_sensitivity(state: WellState, conductance, static_head, nonlinear_loss=None,
+                     exponent=2.0, *, linear_loss=None, zone_top=None,
+                     zone_bottom=None) -> FlowSensitivity:
+    """Derivatives of the zone flows and the wellbore head of :func:`solve_wellbore_head` by
+    each zone's conductance, static head and nonlinear loss, at the rates of ``state``.
+
+    Parameters
+    ----------
+    state : WellState
+        The solution (:func:`solve_wellbore_head` with the same parameters).
+    conductance, static_head, nonlinear_loss, exponent, linear_loss, zone_top, zone_bottom
+        As in :func:`solve_wellbore_head`.
+
+    Returns
+    -------
+    FlowSensitivity
+
+    Notes
+    -----
+    Implicit differentiation of each zone node's equation (Konikow and others 2009, with the
+    discharge potential psi of the dewatered part),
+
+        G_i [psi_i(h0_i) - psi_i(h_w + L_i(q_i))] - q_i = 0,   sum_i q_i = Q,
+
+    with L_i(q) = B_i q + C_i q |q|^(P_i-1): writing w_0 = psi_i'(h0_i), w_f = psi_i'(h_f,i) and
+    k_i = 1 / (1 + G_i w_f L_i'(q_i)),
+
+        dq_i = k_i (q_i d ln G_i + G_i w_0 dh0_i - G_i w_f q_i |q_i|^(P_i-1) dC_i) - s_i dh_w
+
+    with s_i = G_i w_f k_i, and the balance gives dh_w = sum_i (dq_i + s_i dh_w) / S. At a kink
+    of psi (the head at a zone's top or bottom) the derivative of the side the head is on.
+
+    References
+    ----------
+    Konikow, L.F., Hornberger, G.Z., Halford, K.J., Hanson, R.T. (2009) Revised multi-node well
+    (MNW2) package for MODFLOW ground-water flow model. USGS Techniques and Methods 6-A30.
+    """
+    g = np.asarray(conductance, float)[..., None, :]
+    h0 = np.asarray(static_head, float)[..., None, :]
+    q = state.zone_flow
+    zero = np.zeros_like(g)
+    d = zero if nonlinear_loss is None else np.asarray(nonlinear_loss, float)[..., None, :]
+    bl = zero if linear_loss is None else np.asarray(linear_loss, float)[..., None, :]
+    dewater = zone_top is not None and zone_bottom is not None
+    et = -np.asarray(zone_top, float) if dewater else None
+    eb = -np.asarray(zone_bottom, float) if dewater else None
+    loss, dloss = entrance_loss(q, bl, d, exponent)
+    _, wet_f = saturated_potential(state.wellbore_head[..., None] + loss, et, eb)
+    _, wet_0 = saturated_potential(h0, et, eb)
+    k = 1.0 / (1.0 + g * wet_f * dloss)
+    gwk = g * wet_f * k
+    p = np.asarray(exponent, float)
+    a = np.abs(q)
+    with np.errstate(divide="ignore"):
+        ap = a if np.all(p == 2.0) else np.where(a > 0, a ** (p - 1.0), np.where(p == 1.0, 1.0, 0.0))
+    shape = np.broadcast_shapes(q.shape, g.shape)
+    return FlowSensitivity(
+        log_conductance=np.broadcast_to(k * q, shape),
+        static_head=np.broadcast_to(g * wet_0 * k, shape),
+        nonlinear_loss=np.broadcast_to(-gwk * q * ap, shape),
+        slope=np.broadcast_to(gwk, shape))

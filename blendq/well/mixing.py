@@ -390,3 +390,102 @@ def wellbore_composition(flows, geometry: WellGeometry, depth, zone_values=None)
         out[..., j, :] = np.where(down[..., None] > 0, comp_down[s - 1],
                                   np.where(down[..., None] < 0, comp_up[s], np.nan))
     return out
+
+
+def intake_weights_jacobian(flows, geometry) -> tuple[np.ndarray, np.ndarray]:
+    """Discharge weights a_i and their derivatives da_i/dq_j by the zone flows.
+
+    Parameters
+    ----------
+    flows : array_like, shape (..., n_zones)
+        Zone inflows q_j [m^3/d] (negative for a thief zone).
+    geometry : WellGeometry
+
+    Returns
+    -------
+    weights : ndarray (..., n_zones)
+        :func:`intake_weights` (NaN where nothing is pumped).
+    jacobian : ndarray (..., n_zones, n_zones)
+        da_i/dq_j [d/m^3] (NaN where nothing is pumped). At a kink (a zone flow or a segment
+        flow exactly zero) the derivative of the side the flows are on (the branch the
+        weights themselves take).
+
+    Notes
+    -----
+    Forward differentiation of the pass-through products of :func:`intake_weights` (the same
+    sweep, carrying the n derivatives of every quantity with it): the segment flows are
+    partial sums of the zone flows and of minus the pumping rate Q = sum_j q_j, so their
+    derivatives are constant vectors of 0, 1 and -1.
+
+    References
+    ----------
+    Konikow, Hornberger, Halford and Hanson (2009) USGS TM 6-A30 (intraborehole flow between
+    the nodes of a multi-node well).
+    """
+    flows = np.asarray(flows, float)
+    n = flows.shape[-1]
+    nodes = geometry.nodes
+    k_in = nodes.index(INTAKE)
+    rate = flows.sum(-1)
+    eye = np.eye(n)
+    inflow = np.maximum(flows, 0.0)
+    d_inflow = (flows > 0)[..., :, None] * eye  # (..., n, n): d inflow_i / dq_j
+    # downward flow in the segment below node k and its (constant) derivative
+    seg, d_seg = [], []
+    running = np.zeros_like(rate)
+    d_running = np.zeros(n)
+    for code in nodes[:-1]:
+        if code == INTAKE:
+            running = running - rate
+            d_running = d_running - 1.0
+        else:
+            running = running + flows[..., code]
+            d_running = d_running + eye[code]
+        seg.append(running)
+        d_seg.append(d_running)
+    out = np.zeros(flows.shape)
+    d_out = np.zeros(flows.shape + (n,))
+
+    def down(k):  # max(seg_down[k], 0) and its derivative
+        pos = seg[k] > 0
+        return np.where(pos, seg[k], 0.0), pos[..., None] * d_seg[k]
+
+    def up(k):  # max(-seg_down[k], 0) and its derivative
+        neg = seg[k] < 0
+        return np.where(neg, -seg[k], 0.0), neg[..., None] * -d_seg[k]
+
+    with np.errstate(invalid="ignore", divide="ignore"):
+        for side in (range(k_in - 1, -1, -1), range(k_in + 1, len(nodes))):
+            passed = np.ones_like(rate)
+            d_passed = np.zeros(rate.shape + (n,))
+            for k in side:
+                i = nodes[k]
+                if k < k_in:  # above the intake: water moves down
+                    arrive, d_arrive = down(k - 1) if k > 0 else (0.0, 0.0)
+                    leave, d_leave = down(k)
+                else:  # below: water moves up
+                    arrive, d_arrive = up(k) if k < len(nodes) - 1 else (0.0, 0.0)
+                    leave, d_leave = up(k - 1)
+                total = arrive + inflow[..., i]
+                d_total = d_arrive + d_inflow[..., i, :]
+                ok = total > 0
+                t = np.where(ok, total, 1.0)
+                ratio = np.where(ok, leave / t, 0.0)
+                d_ratio = np.where(ok[..., None],
+                                   (d_leave - ratio[..., None] * d_total) / t[..., None], 0.0)
+                d_passed = d_passed * ratio[..., None] + passed[..., None] * d_ratio
+                passed = passed * ratio
+                out[..., i] = inflow[..., i] * passed
+                d_out[..., i, :] = d_inflow[..., i, :] * passed[..., None] \
+                    + inflow[..., i, None] * d_passed
+        a_down, d_a_down = down(k_in - 1) if k_in > 0 else (0.0, 0.0)
+        a_up, d_a_up = up(k_in) if k_in < len(nodes) - 1 else (0.0, 0.0)
+        arriving = a_down + a_up
+        d_arriving = d_a_down + d_a_up
+        scale = np.abs(flows).sum(-1)
+        pumped = (rate > 1e-9 * scale) & (arriving > 0)
+        w = out / arriving[..., None]
+        jac = (d_out - w[..., None] * np.asarray(d_arriving)[..., None, :]) \
+            / arriving[..., None, None]
+        return (np.where(pumped[..., None], w, np.nan),
+                np.where(pumped[..., None, None], jac, np.nan))

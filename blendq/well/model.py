@@ -79,6 +79,14 @@ class WellModel:
             rate, self.conductance, self.static_head, d, self.loss_exponent, linear_loss=b,
             zone_top=self.geometry.zone_top, zone_bottom=self.geometry.zone_bottom)
 
+    def sensitivity(self, state: hydraulics.WellState) -> hydraulics.FlowSensitivity:
+        """Derivatives of ``state`` (:meth:`state` of this model) by each zone's ln G_i, h0_i
+        and C_i, rate held (:func:`hydraulics.flow_sensitivity`)."""
+        return hydraulics.flow_sensitivity(
+            state, self.conductance, self.static_head, self.nonlinear_loss, self.loss_exponent,
+            linear_loss=self.linear_loss, zone_top=self.geometry.zone_top,
+            zone_bottom=self.geometry.zone_bottom)
+
     def weights(self, rate) -> np.ndarray:
         """Discharge weights a_i(Q), shape (..., n_rates, n_zones)."""
         return mixing.discharge_weights(self.state(rate).zone_flow, self.geometry)

@@ -25,6 +25,9 @@ Sources:
   the node-by-node mixing of a full composition vector (blendq.well.mixing.discharge_composition).
 - Linear zone law q_i = G_i (h0_i - h_w) with sum q_i = Q (Thiem 1906, one conductance per zone): scaling every G_i
   by f gives at rate Q the zone flows of rate Q / f, times f, hence the same shares.
+- Definition of the derivative: exact first derivatives equal central differences (error
+  O(h^2)); a least-squares minimum does not depend on how its Jacobian was obtained, so refits
+  with the exact and the differenced Jacobian stop at the same minimum within the tolerance.
 """
 
 from __future__ import annotations
@@ -434,3 +437,95 @@ def test_draw_jacobian_matches_differences_of_the_residuals(joint):
         rk, _, _ = data.residuals(t, idx, state, False)
         diff[..., k] = (rk - r0) / steps[k]
     np.testing.assert_allclose(jac, diff, rtol=1e-3, atol=1e-4 * np.abs(diff).max())
+
+
+def _log_well(n=5, depth_samples=None, entrance_loss=None):
+    """A well with flow logs and no non-detects: the draws take the exact Jacobian."""
+    k = np.arange(n)
+    top = 30.0 + 5.0 * k
+    conc = {"nitrate": 2.0 + 10.0 * np.sin(0.3 * k) ** 2,
+            "arsenic": 0.002 + 0.02 * np.cos(0.4 * k) ** 2}
+    return synthetic_project(60.0 + 40.0 * np.sin(0.7 * k) ** 2, -10.0 - 3.0 * np.cos(0.5 * k),
+                             top, top + 4.0, conc, np.linspace(300.0, 3000.0, 6), 25.0,
+                             relative_error=0.05, well_loss=2e-7, flowlog_rates=[0.0, 1500.0],
+                             flowlog_depths=[27.0, *(top[1:] - 0.5), top[-1] + 6.0],
+                             level_noise=0.05, seed=5, depth_samples=depth_samples,
+                             entrance_loss=entrance_loss)
+
+
+def test_exact_derivatives_equal_central_differences():
+    # definition of the derivative: the exact derivatives of the hydraulic residuals and of the
+    # discharge weights by theta (log conductances, heads, well loss, fitted entrance losses)
+    # equal central differences of the same functions (error O(h^2))
+    from blendq.fit.estimation import (
+        build_problem,
+        hydraulic_residuals_batch,
+        initial_theta,
+        row_weights,
+    )
+    problem = build_problem(_log_well(), loss_zones=[1, 3])
+    rng = np.random.default_rng(2)
+    base = initial_theta(problem)
+    theta = base[None] + 0.1 * rng.standard_normal((3, len(base))) * np.r_[
+        np.ones(2 * problem.n_zones), 0.0, 0.0, 0.0]
+    theta[:, 2 * problem.n_zones] = 2e-7
+    theta[:, -2:] = [0.5, 1.0]  # loss at the reference flow [m]
+    analytes = list(problem.data)
+    r_h, j_h, weights = uncertainty.exact_derivatives(problem, theta, analytes)
+    model = problem.model(theta)
+    np.testing.assert_array_equal(r_h, hydraulic_residuals_batch(problem, theta, model))
+    for a in analytes:
+        d = problem.data[a]
+        np.testing.assert_array_equal(weights[a][0], row_weights(model, d.rate, d.depth))
+    for k in range(theta.shape[1]):
+        h = 1e-6 * max(1.0, abs(theta[0, k])) if k != 2 * problem.n_zones else 1e-12
+        tp, tm = theta.copy(), theta.copy()
+        tp[:, k] += h
+        tm[:, k] -= h
+        mp, mm = problem.model(tp), problem.model(tm)
+        diff = (hydraulic_residuals_batch(problem, tp, mp)
+                - hydraulic_residuals_batch(problem, tm, mm)) / (2 * h)
+        np.testing.assert_allclose(j_h[..., k], diff, rtol=1e-5, atol=1e-6 * np.abs(j_h).max())
+        for a in analytes:
+            d = problem.data[a]
+            diff = (row_weights(mp, d.rate, d.depth) - row_weights(mm, d.rate, d.depth)) / (2 * h)
+            np.testing.assert_allclose(weights[a][1][..., k], diff, rtol=1e-5, atol=1e-9)
+
+
+def test_exact_derivatives_leave_depth_samples_and_transient_levels_to_differences():
+    from blendq.fit.estimation import build_problem, initial_theta
+    problem = build_problem(_log_well(depth_samples=[("S1", 33.0)]))
+    theta = initial_theta(problem)[None]
+    assert uncertainty.exact_derivatives(problem, theta, list(problem.data)) is None
+    plain = build_problem(_log_well())
+    assert uncertainty.exact_derivatives(plain, theta, list(plain.data)) is not None
+    timed = dataclasses.replace(plain, schedule=object())  # a transient zone's step schedule
+    assert uncertainty.exact_derivatives(timed, theta, list(plain.data)) is None
+
+
+def test_draws_with_exact_derivatives_equal_draws_with_differences(monkeypatch):
+    # the same randomised maximum-likelihood problems solved with the exact Jacobian and with
+    # forward differences: every draw reaches the same minimum within the stopping tolerance
+    # of the refit (DRAW_CHI2_TOL on the sum of squares)
+    result = fit(_log_well(6))
+    exact = uncertainty.monte_carlo(result, 200, seed=3)
+    monkeypatch.setattr(uncertainty, "exact_derivatives", lambda *a: None)
+    differenced = uncertainty.monte_carlo(result, 200, seed=3)
+    monkeypatch.undo()
+    problem = result.problem
+    layout = uncertainty.draw_layout(problem)
+    eps = np.random.default_rng(3).standard_normal((200, max(sl.stop for sl in layout.values())))
+    scale = {g.group: g.scale for g in exact.groups}
+    data = uncertainty._PerturbedData(problem, eps, scale, list(result.analytes), result.model)
+    idx = np.arange(200)
+    cost = [(data.residuals(d.theta, idx, None, True)[0] ** 2).sum(1)
+            for d in (exact, differenced)]
+    np.testing.assert_allclose(cost[0], cost[1], rtol=1e-5)
+    sd = differenced.zone_values.std(0)
+    # each zone value within a hundredth of its posterior sd of the other path's
+    assert np.all(np.abs(exact.zone_values - differenced.zone_values) <= 1e-2 * sd[None] + 1e-12)
+    np.testing.assert_allclose(exact.zone_values.std(0), sd, rtol=1e-3)
+    assert exact.notes == differenced.notes
+    again = uncertainty.monte_carlo(result, 200, seed=3)
+    assert again.theta.tobytes() == exact.theta.tobytes()
+    assert again.zone_values.tobytes() == exact.zone_values.tobytes()

@@ -11,6 +11,8 @@ Sources:
   A_n = ln(R/r_w) / (2 pi T_n) and B_n = (K/K_skin - 1) ln(r_skin/r_w) / (2 pi K b).
 - timml (PyPI, Bakker): multi-aquifer analytic-element model, an independent numerical
   reference for zone flows of a well screened in several layers (tests/reference/timml_well.py).
+- Definition of the derivative: implicit derivatives of the zone flows and the wellbore head
+  equal central differences of the solved state (error O(h^2)).
 """
 
 from __future__ import annotations
@@ -24,6 +26,7 @@ from blendq.errors import ModelError
 from blendq.well.hydraulics import (
     cooper_jacob_conductance,
     dewatered_zones,
+    flow_sensitivity,
     hawkins_skin,
     pumping_level_head,
     solve_wellbore_head,
@@ -425,3 +428,45 @@ def test_newton_on_all_points_agrees_with_the_bracketed_solve(seed):
     np.testing.assert_allclose(fast.zone_flow[ok], slow.zone_flow[ok], rtol=1e-7, atol=1e-5)
     np.testing.assert_allclose(fast.zone_flow[ok].sum(-1), np.broadcast_to(rates, ok.shape)[ok],
                                rtol=1e-9, atol=1e-7)
+
+
+@pytest.mark.parametrize("case", ["confined", "dewatered", "losses"])
+def test_flow_sensitivity_equals_central_differences(case):
+    rng = np.random.default_rng(21)
+    n = 5
+    top = 20.0 + 10.0 * np.arange(n)
+    kw = {} if case == "confined" else {"zone_top": top, "zone_bottom": top + 5.0}
+    g = rng.uniform(20.0, 100.0, (4, n))
+    # dewatered: the static heads of two zones inside their open intervals
+    h0 = rng.uniform(-15.0, -5.0, (4, n))
+    if case == "dewatered":
+        h0[:, 1:3] = -top[1:3] - 2.0
+    d = None
+    if case == "losses":
+        d = rng.uniform(1e-6, 1e-5, (4, n))
+        kw["linear_loss"] = np.full((4, n), 1e-4)
+    rates = np.array([500.0, 2000.0, 4000.0])
+
+    def solve(g, h0, d):
+        return solve_wellbore_head(rates, g, h0, d, 2.0, **kw)
+
+    sens = flow_sensitivity(solve(g, h0, d), g, h0, d, 2.0, **kw)
+    kinds = [("log_conductance", 1e-6), ("static_head", 1e-6)]
+    if d is not None:
+        kinds.append(("nonlinear_loss", 1e-11))
+    for name, h in kinds:
+        dq = sens.flow_derivative(getattr(sens, name))
+        dh = sens.head_derivative(getattr(sens, name))
+        for k in range(n):
+            e = np.eye(n)[k]
+            plus = {"log_conductance": (g * np.exp(h * e), h0, d),
+                    "static_head": (g, h0 + h * e, d),
+                    "nonlinear_loss": (g, h0, None if d is None else d + h * e)}[name]
+            minus = {"log_conductance": (g * np.exp(-h * e), h0, d),
+                     "static_head": (g, h0 - h * e, d),
+                     "nonlinear_loss": (g, h0, None if d is None else d - h * e)}[name]
+            sp, sm = solve(*plus), solve(*minus)
+            fq = (sp.zone_flow - sm.zone_flow) / (2 * h)
+            fh = (sp.wellbore_head - sm.wellbore_head) / (2 * h)
+            np.testing.assert_allclose(dq[..., k], fq, rtol=1e-5, atol=1e-6 * np.abs(fq).max())
+            np.testing.assert_allclose(dh[..., k], fh, rtol=1e-5, atol=1e-6 * np.abs(fh).max())

@@ -11,6 +11,8 @@ Sources:
   the discharge is a
   flow-weighted mix, so its weights are >= 0 and sum to one, and a blend lies between the
   smallest and the largest zone value.
+- Definition of the derivative: the exact derivatives of the discharge weights by the zone
+  flows equal central differences (error O(h^2)) away from a kink.
 """
 
 from __future__ import annotations
@@ -26,6 +28,8 @@ from blendq.well.mixing import (
     WellGeometry,
     discharge_composition,
     discharge_weights,
+    intake_weights,
+    intake_weights_jacobian,
     wellbore_composition,
     wellbore_flow,
 )
@@ -426,3 +430,36 @@ def test_flow_in_a_screen_matches_timml_split_into_layers(conductivity):
         # the spread is not the plain linear rise here
         linear = 2000.0 * (bots[-1] - stations) / (bots[-1] - tops[0])
         assert np.abs(linear - logged).max() > 50.0
+
+
+@settings(max_examples=150, deadline=None)
+@given(wells(allow_zero_rate=False))
+def test_weight_derivatives_equal_central_differences(well):
+    geom, flows, rate, _ = well
+    w, jac = intake_weights_jacobian(flows, geom)
+    # the same weights as the pass-through sweep, to the last bit
+    np.testing.assert_array_equal(w, intake_weights(flows, geom))
+    nodes = np.concatenate([[0.0], np.cumsum([-rate if c == INTAKE else flows[c]
+                                              for c in geom.nodes])])
+    # a step that crosses a kink (a zone or segment flow at zero) has no derivative to match:
+    # the step is a small part of the smallest zone or segment flow
+    small = np.min(np.abs(np.concatenate([flows, nodes[1:-1]])))
+    assume(small > 1e-6 * _scale(flows, rate))
+    h = 1e-5 * small
+    eye = np.eye(len(flows))
+    diff = np.stack([(intake_weights(flows + h * e, geom) - intake_weights(flows - h * e, geom))
+                     / (2 * h) for e in eye], -1)
+    # rounding of the differences: about 1e-16 / h
+    np.testing.assert_allclose(jac, diff, rtol=1e-5, atol=1e-5 * np.abs(diff).max() + 1e-9 / small)
+
+
+def test_weight_derivatives_batched_equal_one_at_a_time():
+    rng = np.random.default_rng(8)
+    geom = _geometry(45.0)
+    flows = rng.normal(300.0, 400.0, (4, 5, 3))
+    w, jac = intake_weights_jacobian(flows, geom)
+    for b in range(4):
+        for r in range(5):
+            wb, jb = intake_weights_jacobian(flows[b, r], geom)
+            np.testing.assert_allclose(w[b, r], wb, rtol=1e-12, atol=0, equal_nan=True)
+            np.testing.assert_allclose(jac[b, r], jb, rtol=1e-12, atol=0, equal_nan=True)
