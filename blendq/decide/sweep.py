@@ -383,13 +383,16 @@ def statistic_quantiles(concentration, probs, log_sd: float, iterations: int = 1
         hi[todo] = np.where(below, hi[todo], x[todo])
         with np.errstate(divide="ignore", invalid="ignore"):
             newton = x[todo] - f / pdf
-        bisect = ~((newton > lo[todo]) & (newton < hi[todo])) \
+        tol = 1e-14 * (1.0 + np.abs(x[todo]))
+        # a Newton step below the tolerance ends the iteration even where rounding puts it on
+        # the bracket's end
+        small = np.abs(newton - x[todo]) <= tol
+        bisect = ~(small | ((newton > lo[todo]) & (newton < hi[todo]))) \
             | (np.abs(2.0 * f) > np.abs(step_old[todo] * pdf))
         step_old[todo] = step[todo]
         x_new = np.where(bisect, 0.5 * (lo[todo] + hi[todo]), newton)
         step[todo] = np.abs(x_new - x[todo])
         x[todo] = x_new
-        tol = 1e-14 * (1.0 + np.abs(x_new))
         done = (step[todo] <= tol) | (hi[todo] - lo[todo] <= tol)
         todo = todo[~done]
         if not len(todo):
