@@ -155,19 +155,21 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
     amb = hydraulics.solve_wellbore_head(np.zeros(1), g, h0, d if has_d else None, exponent,
                                          linear_loss=bl if has_d else None)
     hw0 = amb.wellbore_head[..., 0]
-    q0 = amb.zone_flow[..., 0, :]
-    shape = q0.shape  # (..., n_zones)
+    q0_batch = amb.zone_flow[..., 0, :]
+    batch, n = q0_batch.shape[:-1], q0_batch.shape[-1]
+    # zone-major layout (n_zones, batch members): sums over the zones add contiguous rows
+    q0 = _zone_major(q0_batch)
     t_ref = schedule.reference_time
-    loss0 = hydraulics.entrance_loss(q0, bl, d, exponent)[0] if has_d else 0.0
-    s_i = np.broadcast_to(np.asarray(slope, float), shape[-1:])
-    w_ref = np.broadcast_to(1.0 / g, shape)
+    s_i = np.broadcast_to(np.asarray(slope, float), (n,))[:, None]
+    w_ref = _zone_major(np.broadcast_to(1.0 / g, q0_batch.shape))
     floor = MIN_RESPONSE_FRACTION * w_ref
     # the floor binds only where the log term lies below this, for some zone of some member
-    transient = s_i > 0
     with np.errstate(divide="ignore", invalid="ignore"):
-        binds_below = float(np.max(np.where(transient, (floor - w_ref) / s_i, -np.inf),
+        binds_below = float(np.max(np.where(s_i > 0, (floor - w_ref) / s_i, -np.inf),
                                    initial=-np.inf))
-    base = hw0[..., None] + loss0
+    base_q0 = hw0.reshape(1, -1) + w_ref * q0
+    if has_d:
+        base_q0 += _zone_major(hydraulics.entrance_loss(q0_batch, bl, d, exponent)[0])
     out_h, out_q = {}, {}
     for s, (start, end, rate) in enumerate(schedule.sequences):
         grid = np.concatenate([[0.0], (start[:, None] + (end - start)[:, None]
@@ -179,35 +181,47 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
         # ln((t_m - t_j) / t_ref) for j < m: row m, column j
         with np.errstate(divide="ignore", invalid="ignore"):
             log_tau = np.log((grid[:, None] - grid[None, :]) / t_ref)
+        # the unit response of the newest increment at each grid point m = 1 .. n_grid-1
+        newest = log_tau[np.arange(1, n_grid), np.arange(n_grid - 1)]
+        w_new_all = np.maximum(w_ref + s_i * newest[:, None, None], floor)
+        ge_all = 1.0 / w_new_all
+        sum_ge = ge_all.sum(1)
+        dw_all = w_new_all - w_ref
         # increments q_j - q_(j-1), j = 1 .. m-1, one flat row each
-        increments = np.empty((n_grid,) + shape)
+        increments = np.empty((n_grid,) + q0.shape)
         flat = increments.reshape(n_grid, -1)
         last = q0
         for m in range(1, n_grid):
-            w_new = np.maximum(w_ref + s_i * log_tau[m, m - 1], floor)
-            heads = base + last * w_new
+            # h_w0 + L_0 + W_new q_(m-1) - the memory of the increments so far:
+            # (1 / G) (q_(m-1) - q0) + s sum_j dq_j ln(tau_mj / t_ref) + the floor's correction
+            heads = base_q0 + last * dw_all[m - 1]
             if m > 1:
                 logs = log_tau[m, :m - 1]
                 # not BLAS: the same sums whatever its thread count
-                logsum = np.einsum("k,kb->b", logs, flat[:m - 1]).reshape(shape)
-                mem = w_ref * (last - q0) + s_i * logsum
+                heads -= s_i * np.einsum("k,kb->b", logs, flat[:m - 1]).reshape(q0.shape)
                 for j in np.flatnonzero(logs < binds_below * (1 - 1e-9)):
                     u = w_ref + s_i * logs[j]
-                    mem = mem + np.maximum(floor - u, 0.0) * increments[j]
-                heads = heads - mem
+                    heads -= np.maximum(floor - u, 0.0) * increments[j]
             if has_d:
-                st = hydraulics.solve_wellbore_head(np.array([grid_rate[m]]), 1.0 / w_new,
-                                                    heads, d, exponent, linear_loss=bl)
-                q, hw = st.zone_flow[..., 0, :], st.wellbore_head[..., 0]
+                st = hydraulics.solve_wellbore_head(
+                    np.array([grid_rate[m]]), ge_all[m - 1].T.reshape(q0_batch.shape),
+                    heads.T.reshape(q0_batch.shape), d, exponent, linear_loss=bl)
+                q, hw = _zone_major(st.zone_flow[..., 0, :]), st.wellbore_head[..., 0]
             else:  # linear zones: the closed form of section 2, h_w = (sum G h - Q) / sum G
-                ge = 1.0 / w_new
-                hw = ((ge * heads).sum(-1) - grid_rate[m]) / ge.sum(-1)
-                q = ge * (heads - hw[..., None])
-            increments[m - 1] = q - last
+                ge = ge_all[m - 1]
+                hw = ((ge * heads).sum(0) - grid_rate[m]) / sum_ge[m - 1]
+                q = ge * (heads - hw)
+            np.subtract(q, last, out=increments[m - 1])
             last = q
             if m in read:
-                out_h[(s, read[m])] = hw
-                out_q[(s, read[m])] = q
+                out_h[(s, read[m])] = np.reshape(hw, batch)
+                out_q[(s, read[m])] = q.T.reshape(batch + (n,))
     keys = list(schedule.level_step)
     return (np.stack([out_h[key] for key in keys], -1),
             np.stack([out_q[key] for key in keys], -2))
+
+
+def _zone_major(x) -> np.ndarray:
+    """(..., n_zones) -> contiguous (n_zones, batch members)."""
+    x = np.asarray(x, float)
+    return np.ascontiguousarray(x.reshape(-1, x.shape[-1]).T)
