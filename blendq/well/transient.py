@@ -181,20 +181,16 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
         # ln((t_m - t_j) / t_ref) for j < m: row m, column j
         with np.errstate(divide="ignore", invalid="ignore"):
             log_tau = np.log((grid[:, None] - grid[None, :]) / t_ref)
-        # the unit response of the newest increment at each grid point m = 1 .. n_grid-1
-        newest = log_tau[np.arange(1, n_grid), np.arange(n_grid - 1)]
-        w_new_all = np.maximum(w_ref + s_i * newest[:, None, None], floor)
-        ge_all = 1.0 / w_new_all
-        sum_ge = ge_all.sum(1)
-        dw_all = w_new_all - w_ref
         # increments q_j - q_(j-1), j = 1 .. m-1, one flat row each
         increments = np.empty((n_grid,) + q0.shape)
         flat = increments.reshape(n_grid, -1)
         last = q0
         for m in range(1, n_grid):
-            # h_w0 + L_0 + W_new q_(m-1) - the memory of the increments so far:
-            # (1 / G) (q_(m-1) - q0) + s sum_j dq_j ln(tau_mj / t_ref) + the floor's correction
-            heads = base_q0 + last * dw_all[m - 1]
+            # the newest increment's unit response; h_w0 + L_0 + W_new q_(m-1) minus the memory
+            # of the increments so far, (1 / G) (q_(m-1) - q0) + s sum_j dq_j ln(tau_mj / t_ref)
+            # + the floor's correction
+            w_new = np.maximum(w_ref + s_i * log_tau[m, m - 1], floor)
+            heads = base_q0 + last * (w_new - w_ref)
             if m > 1:
                 logs = log_tau[m, :m - 1]
                 # not BLAS: the same sums whatever its thread count
@@ -204,12 +200,12 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
                     heads -= np.maximum(floor - u, 0.0) * increments[j]
             if has_d:
                 st = hydraulics.solve_wellbore_head(
-                    np.array([grid_rate[m]]), ge_all[m - 1].T.reshape(q0_batch.shape),
+                    np.array([grid_rate[m]]), (1.0 / w_new).T.reshape(q0_batch.shape),
                     heads.T.reshape(q0_batch.shape), d, exponent, linear_loss=bl)
                 q, hw = _zone_major(st.zone_flow[..., 0, :]), st.wellbore_head[..., 0]
             else:  # linear zones: the closed form of section 2, h_w = (sum G h - Q) / sum G
-                ge = ge_all[m - 1]
-                hw = ((ge * heads).sum(0) - grid_rate[m]) / sum_ge[m - 1]
+                ge = 1.0 / w_new
+                hw = ((ge * heads).sum(0) - grid_rate[m]) / ge.sum(0)
                 q = ge * (heads - hw)
             np.subtract(q, last, out=increments[m - 1])
             last = q
