@@ -305,11 +305,14 @@ def exceedance(concentration, threshold: float, log_sd: float = 0.0,
         return (c > mean_threshold(threshold, log_sd, sample_probability)).mean(0)
 
 
-def statistic_quantiles(concentration, probs, log_sd: float, iterations: int = 48) -> np.ndarray:
+def statistic_quantiles(concentration, probs, log_sd: float, iterations: int = 100) -> np.ndarray:
     """Quantiles of the predictive distribution of the judged statistic at each rate.
 
     The distribution is the mixture over draws of S = m_d F (F lognormal with mean 1 and
-    ``log_sd``); its CDF is the average of the lognormal CDFs, inverted by bisection on ln S.
+    ``log_sd``); its CDF is the average of the lognormal CDFs, F(x) = mean_d Phi((x - mu_d) /
+    s) in x = ln S, inverted by Newton's method kept inside a bracket of the root (a bisection
+    step wherever Newton's would leave the bracket or shrink it too slowly; Press et al. 2007,
+    section 9.4, ``rtsafe``) until the step or the bracket is below 1e-14 (1 + |x|).
 
     Parameters
     ----------
@@ -318,13 +321,19 @@ def statistic_quantiles(concentration, probs, log_sd: float, iterations: int = 4
     probs : sequence of float
     log_sd : float
     iterations : int
-        Bisection steps (48 halve the bracket to about 1e-13 of its width).
+        Most steps per quantile (a bisection step at least every second step halves the
+        bracket, so 100 reach the rounding of x from any bracket).
 
     Returns
     -------
     ndarray (n_probs, n_rates) [mg/L]; NaN at a rate whose draws are all NaN.
+
+    References
+    ----------
+    Press, W.H., Teukolsky, S.A., Vetterling, W.T. and Flannery, B.P. (2007) Numerical
+    Recipes, 3rd ed. Cambridge University Press, section 9.4.
     """
-    from scipy.special import ndtr
+    from scipy.special import ndtr, ndtri
 
     c = np.asarray(concentration, float)
     probs = np.asarray(probs, float)
@@ -336,26 +345,61 @@ def statistic_quantiles(concentration, probs, log_sd: float, iterations: int = 4
     valid = np.isfinite(c)
     n = valid.sum(0)
     pos = valid & (c > 0)
+    n_zero = (valid & ~pos).sum(0)
     with np.errstate(divide="ignore", invalid="ignore"):
-        lm = np.where(pos, np.log(np.where(pos, c, 1.0)) - 0.5 * s * s, np.nan)
-    zero_frac = np.where(n > 0, (valid & ~pos).sum(0) / np.maximum(n, 1), np.nan)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
-        lo = np.nanmin(lm, axis=0) - 9 * s
-        hi = np.nanmax(lm, axis=0) + 9 * s
-    lo = np.where(np.isfinite(lo), lo, 0.0)[None, :].repeat(len(probs), 0)
-    hi = np.where(np.isfinite(hi), hi, 0.0)[None, :].repeat(len(probs), 0)
+        # mu_d = ln m_d - s^2 / 2; +inf for a draw of zero or NaN (its CDF term is 0 or left out)
+        mu = np.where(pos, np.log(np.where(pos, c, 1.0)) - 0.5 * s * s, np.inf)
+    zero_frac = np.where(n > 0, n_zero / np.maximum(n, 1), np.nan)
+    n_pos = pos.sum(0)
+    mu_sorted = np.sort(mu, axis=0).T.copy()  # (n_rates, n_draws), the finite values first
+    n_r = c.shape[1]
+    out = np.full((len(probs), n_r), np.nan)
+    with np.errstate(invalid="ignore"):
+        out[(zero_frac[None, :] >= probs[:, None]) & (n[None, :] > 0)] = 0.0
+    # the quantiles to solve: rates with a positive draw whose zeros stay below the probability
+    k_prob, k_rate = np.nonzero((n_pos[None, :] > 0) & ~(zero_frac[None, :] >= probs[:, None]))
+    if not len(k_rate):
+        return out
+    p = probs[k_prob]
+    rows = mu_sorted[k_rate]
+    npos = n_pos[k_rate]
+    lo = rows[:, 0] - 9 * s
+    hi = rows[np.arange(len(k_rate)), npos - 1] + 9 * s
+    # start: the quantile of mu among the positive draws, moved by the lognormal's own
+    pp = np.clip((p - zero_frac[k_rate]) / (1.0 - zero_frac[k_rate]), 0.0, 1.0)
+    start = rows[np.arange(len(k_rate)), np.minimum((pp * npos).astype(int), npos - 1)]
+    x = np.clip(start + s * ndtri(np.clip(pp, 1e-6, 1 - 1e-6)), lo, hi)
+    zeros = n_zero[k_rate]
+    count = n[k_rate]
+    step_old = hi - lo
+    step = step_old.copy()
+    todo = np.arange(len(k_rate))
     for _ in range(iterations):
-        mid = 0.5 * (lo + hi)
-        z = (mid[:, None, :] - lm[None, :, :]) / s
-        cdf = (np.where(pos[None], ndtr(z), 0.0).sum(1) + (valid & ~pos).sum(0)) \
-            / np.maximum(n, 1)
-        below = cdf < probs[:, None]
-        lo = np.where(below, mid, lo)
-        hi = np.where(below, hi, mid)
-    out = np.exp(0.5 * (lo + hi))
-    out = np.where(zero_frac[None, :] >= probs[:, None], 0.0, out)
-    return np.where(n[None, :] > 0, out, np.nan)
+        z = (x[todo, None] - rows[todo]) / s
+        cdf = (ndtr(z).sum(1) + zeros[todo]) / count[todo]
+        pdf = np.exp(-0.5 * z * z).sum(1) / (count[todo] * s * np.sqrt(2 * np.pi))
+        f = cdf - p[todo]
+        below = f < 0
+        lo[todo] = np.where(below, x[todo], lo[todo])
+        hi[todo] = np.where(below, hi[todo], x[todo])
+        with np.errstate(divide="ignore", invalid="ignore"):
+            newton = x[todo] - f / pdf
+        tol = 1e-14 * (1.0 + np.abs(x[todo]))
+        # a Newton step below the tolerance ends the iteration even where rounding puts it on
+        # the bracket's end
+        small = np.abs(newton - x[todo]) <= tol
+        bisect = ~(small | ((newton > lo[todo]) & (newton < hi[todo]))) \
+            | (np.abs(2.0 * f) > np.abs(step_old[todo] * pdf))
+        step_old[todo] = step[todo]
+        x_new = np.where(bisect, 0.5 * (lo[todo] + hi[todo]), newton)
+        step[todo] = np.abs(x_new - x[todo])
+        x[todo] = x_new
+        done = (step[todo] <= tol) | (hi[todo] - lo[todo] <= tol)
+        todo = todo[~done]
+        if not len(todo):
+            break
+    out[k_prob, k_rate] = np.exp(x)
+    return out
 
 
 def _sample_probability(statistics: dict[str, Statistic] | None) -> float:

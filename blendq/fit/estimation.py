@@ -54,22 +54,39 @@ def row_weights(model: WellModel, rate, depth) -> np.ndarray:
     ``depth`` NaN means the discharge. Returns shape (..., m, n_zones) for a model whose
     parameters have batch shape (...).
     """
-    rate = np.asarray(rate, float)
-    depth = np.asarray(depth, float)
+    return row_weights_sets(model, [(rate, depth)])[0]
+
+
+def row_weights_sets(model: WellModel, sets) -> list[np.ndarray]:
+    """:func:`row_weights` of several (rate, depth) sets at one model, e.g. one per analyte.
+
+    The model's state and discharge weights are worked out once per distinct set of sampled
+    rates (analytes sampled at the same steps share them), so each array is the one a separate
+    :func:`row_weights` call gives, element for element.
+    """
     n = np.asarray(model.conductance).shape[-1]
     batch = np.broadcast_shapes(np.shape(model.conductance)[:-1], np.shape(model.static_head)[:-1])
-    out = np.zeros(batch + (len(rate), n))
-    if len(rate) == 0:
-        return out
-    uniq, inv = np.unique(rate, return_inverse=True)
-    st = model.state(uniq)
-    flows = st.zone_flow  # (..., n_uniq, n)
-    disch = mixing.discharge_weights(flows, model.geometry)
-    out[...] = disch[..., inv, :]
-    for k in np.flatnonzero(np.isfinite(depth)):
-        comp = mixing.wellbore_composition(flows[..., inv[k], :], model.geometry, [depth[k]])
-        out[..., k, :] = comp[..., 0, :]
-    return np.nan_to_num(out, nan=0.0)
+    at_rates: dict[bytes, tuple[np.ndarray, np.ndarray]] = {}
+    result = []
+    for rate, depth in sets:
+        rate = np.asarray(rate, float)
+        depth = np.asarray(depth, float)
+        out = np.zeros(batch + (len(rate), n))
+        if len(rate) == 0:
+            result.append(out)
+            continue
+        uniq, inv = np.unique(rate, return_inverse=True)
+        key = uniq.tobytes()
+        if key not in at_rates:
+            flows = model.state(uniq).zone_flow  # (..., n_uniq, n)
+            at_rates[key] = flows, mixing.discharge_weights(flows, model.geometry)
+        flows, disch = at_rates[key]
+        out[...] = disch[..., inv, :]
+        for k in np.flatnonzero(np.isfinite(depth)):
+            comp = mixing.wellbore_composition(flows[..., inv[k], :], model.geometry, [depth[k]])
+            out[..., k, :] = comp[..., 0, :]
+        result.append(np.nan_to_num(out, nan=0.0))
+    return result
 
 
 @dataclass(frozen=True)
@@ -205,16 +222,28 @@ def build_problem(project: Project, options: FitOptions | None = None,
                    q_ref if np.isfinite(q_ref) and q_ref > 0 else 1.0)
 
 
-def solve_concentrations(problem: Problem, model: WellModel, analyte: str, values=None):
-    """Zone values [mg/L] of one analyte for fixed hydraulics; also the weight matrices."""
+def solve_concentrations(problem: Problem, model: WellModel, analyte: str, values=None,
+                         weights=None):
+    """Zone values [mg/L] of one analyte for fixed hydraulics; also the weight matrices
+    (``weights``: the analyte's (a, ac) from :func:`analyte_weights`, else worked out here)."""
     d = problem.data[analyte]
-    a = row_weights(model, d.rate, d.depth)
-    ac = row_weights(model, d.cens_rate, d.cens_depth)
+    a, ac = weights if weights is not None else analyte_weights(problem, model, [analyte])[0]
     lb, ub = problem.bounds(analyte)
     y = d.value if values is None else values
     c = qp.solve_censored_lsq(a, y, d.sigma, lb, ub, ac if len(ac) else None,
                               d.cens_limit if len(ac) else None)
     return c, a, ac
+
+
+def analyte_weights(problem: Problem, model: WellModel, analytes) -> list:
+    """(a, ac) of each analyte: the weights of its detected results and of its non-detects
+    (:func:`row_weights_sets`, the model's state once per distinct set of sampled rates)."""
+    sets = []
+    for analyte in analytes:
+        d = problem.data[analyte]
+        sets += [(d.rate, d.depth), (d.cens_rate, d.cens_depth)]
+    w = row_weights_sets(model, sets)
+    return [(w[2 * k], w[2 * k + 1]) for k in range(len(analytes))]
 
 
 def _log_groups(logs: pd.DataFrame) -> list[tuple[float, np.ndarray, np.ndarray]]:
@@ -282,8 +311,9 @@ def residuals(problem: Problem, theta) -> np.ndarray:
     theta = np.asarray(theta, float)
     model = problem.model(theta)
     res = _hydraulic_residuals(problem, theta, model)
-    for analyte, d in problem.data.items():
-        c, a, ac = solve_concentrations(problem, model, analyte)
+    weights = analyte_weights(problem, model, list(problem.data))
+    for (analyte, d), w in zip(problem.data.items(), weights, strict=True):
+        c, a, ac = solve_concentrations(problem, model, analyte, weights=w)
         res.append((a @ c - d.value) / d.sigma)
         if len(ac):
             res.append(np.maximum(ac @ c - d.cens_limit, 0.0) / np.maximum(d.cens_limit, 1e-12))
@@ -329,10 +359,10 @@ def residuals_batch(problem: Problem, theta) -> np.ndarray:
     theta = np.asarray(theta, float)
     model = problem.model(theta)
     parts = [hydraulic_residuals_batch(problem, theta, model)]
-    for analyte, d in problem.data.items():
-        a = row_weights(model, d.rate, d.depth)
+    weights = analyte_weights(problem, model, list(problem.data))
+    for (analyte, d), (a, ac) in zip(problem.data.items(), weights, strict=True):
         cens = len(d.cens_limit) > 0
-        ac = row_weights(model, d.cens_rate, d.cens_depth) if cens else None
+        ac = ac if cens else None
         lb, ub = problem.bounds(analyte)
         g, h = qp.constraint_rows(lb, ub, ac, d.cens_limit if cens else None)
         c0 = qp.solve_censored_lsq(a[0], d.value, d.sigma, lb, ub, ac[0] if cens else None,

@@ -126,6 +126,12 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
                 exponent=2.0, linear_loss=0.0):
     """Wellbore head at the end of each step [m] and the zone flows there [m^3/d].
 
+    The memory of the earlier increments at grid point t_m is evaluated as
+    sum_j dq_j W_i(t_m - t_(j-1)) = (1 / G_i) (q_(m-1) - q0) + s_i sum_j dq_j ln((t_m -
+    t_(j-1)) / t_ref) + the floor's correction where :data:`MIN_RESPONSE_FRACTION` binds:
+    the same sum as term-by-term :func:`unit_response`, with the log term one matrix-vector
+    product over the increments of the whole batch.
+
     Parameters
     ----------
     conductance, static_head, nonlinear_loss : ndarray (..., n_zones)
@@ -149,9 +155,21 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
     amb = hydraulics.solve_wellbore_head(np.zeros(1), g, h0, d if has_d else None, exponent,
                                          linear_loss=bl if has_d else None)
     hw0 = amb.wellbore_head[..., 0]
-    q0 = amb.zone_flow[..., 0, :]
+    q0_batch = amb.zone_flow[..., 0, :]
+    batch, n = q0_batch.shape[:-1], q0_batch.shape[-1]
+    # zone-major layout (n_zones, batch members): sums over the zones add contiguous rows
+    q0 = _zone_major(q0_batch)
     t_ref = schedule.reference_time
-    loss0 = hydraulics.entrance_loss(q0, bl, d, exponent)[0] if has_d else 0.0
+    s_i = np.broadcast_to(np.asarray(slope, float), (n,))[:, None]
+    w_ref = _zone_major(np.broadcast_to(1.0 / g, q0_batch.shape))
+    floor = MIN_RESPONSE_FRACTION * w_ref
+    # the floor binds only where the log term lies below this, for some zone of some member
+    with np.errstate(divide="ignore", invalid="ignore"):
+        binds_below = float(np.max(np.where(s_i > 0, (floor - w_ref) / s_i, -np.inf),
+                                   initial=-np.inf))
+    base_q0 = hw0.reshape(1, -1) + w_ref * q0
+    if has_d:
+        base_q0 += _zone_major(hydraulics.entrance_loss(q0_batch, bl, d, exponent)[0])
     out_h, out_q = {}, {}
     for s, (start, end, rate) in enumerate(schedule.sequences):
         grid = np.concatenate([[0.0], (start[:, None] + (end - start)[:, None]
@@ -159,29 +177,47 @@ def step_levels(conductance, static_head, nonlinear_loss, slope, schedule: Sched
         grid_rate = np.concatenate([[0.0], np.repeat(rate, len(SUBSTEP_FRACTIONS))])
         read = {k * len(SUBSTEP_FRACTIONS) + len(SUBSTEP_FRACTIONS): k
                 for k in range(len(start))}
-        increments = []  # q_j - q_(j-1), j = 1 .. m-1
+        n_grid = len(grid)
+        # ln((t_m - t_j) / t_ref) for j < m: row m, column j
+        with np.errstate(divide="ignore", invalid="ignore"):
+            log_tau = np.log((grid[:, None] - grid[None, :]) / t_ref)
+        # increments q_j - q_(j-1), j = 1 .. m-1, one flat row each
+        increments = np.empty((n_grid,) + q0.shape)
+        flat = increments.reshape(n_grid, -1)
         last = q0
-        for m in range(1, len(grid)):
-            tau = grid[m] - grid[:m]  # time since each earlier change
-            w_new = unit_response(g, slope, tau[-1], t_ref)
-            heads = hw0[..., None] + last * w_new + loss0
-            if increments:
-                shape = (len(increments),) + (1,) * (np.ndim(g))
-                w_old = unit_response(g, slope, tau[:-1].reshape(shape), t_ref)
-                heads = heads - (np.stack(increments) * w_old).sum(0)
+        for m in range(1, n_grid):
+            # the newest increment's unit response; h_w0 + L_0 + W_new q_(m-1) minus the memory
+            # of the increments so far, (1 / G) (q_(m-1) - q0) + s sum_j dq_j ln(tau_mj / t_ref)
+            # + the floor's correction
+            w_new = np.maximum(w_ref + s_i * log_tau[m, m - 1], floor)
+            heads = base_q0 + last * (w_new - w_ref)
+            if m > 1:
+                logs = log_tau[m, :m - 1]
+                # not BLAS: the same sums whatever its thread count
+                heads -= s_i * np.einsum("k,kb->b", logs, flat[:m - 1]).reshape(q0.shape)
+                for j in np.flatnonzero(logs < binds_below * (1 - 1e-9)):
+                    u = w_ref + s_i * logs[j]
+                    heads -= np.maximum(floor - u, 0.0) * increments[j]
             if has_d:
-                st = hydraulics.solve_wellbore_head(np.array([grid_rate[m]]), 1.0 / w_new,
-                                                    heads, d, exponent, linear_loss=bl)
-                q, hw = st.zone_flow[..., 0, :], st.wellbore_head[..., 0]
+                st = hydraulics.solve_wellbore_head(
+                    np.array([grid_rate[m]]), (1.0 / w_new).T.reshape(q0_batch.shape),
+                    heads.T.reshape(q0_batch.shape), d, exponent, linear_loss=bl)
+                q, hw = _zone_major(st.zone_flow[..., 0, :]), st.wellbore_head[..., 0]
             else:  # linear zones: the closed form of section 2, h_w = (sum G h - Q) / sum G
                 ge = 1.0 / w_new
-                hw = ((ge * heads).sum(-1) - grid_rate[m]) / ge.sum(-1)
-                q = ge * (heads - hw[..., None])
-            increments.append(q - last)
+                hw = ((ge * heads).sum(0) - grid_rate[m]) / ge.sum(0)
+                q = ge * (heads - hw)
+            np.subtract(q, last, out=increments[m - 1])
             last = q
             if m in read:
-                out_h[(s, read[m])] = hw
-                out_q[(s, read[m])] = q
+                out_h[(s, read[m])] = np.reshape(hw, batch)
+                out_q[(s, read[m])] = q.T.reshape(batch + (n,))
     keys = list(schedule.level_step)
     return (np.stack([out_h[key] for key in keys], -1),
             np.stack([out_q[key] for key in keys], -2))
+
+
+def _zone_major(x) -> np.ndarray:
+    """(..., n_zones) -> contiguous (n_zones, batch members)."""
+    x = np.asarray(x, float)
+    return np.ascontiguousarray(x.reshape(-1, x.shape[-1]).T)

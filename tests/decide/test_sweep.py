@@ -16,6 +16,7 @@ Sources:
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import replace
 
 import numpy as np
@@ -426,6 +427,54 @@ def test_statistic_quantiles_invert_the_mixture():
     # zero spread: the quantiles of the draws
     np.testing.assert_allclose(sweep.statistic_quantiles(c[:, 1:], [0.1, 0.9], 0.0),
                                np.quantile(c[:, 1:], [0.1, 0.9], axis=0), rtol=1e-12)
+
+
+def _bisection_quantiles(c, probs, s, iterations=60):
+    """The mixture quantiles by plain bisection on ln S over the whole bracket (the reference
+    the Newton iteration of statistic_quantiles must reproduce)."""
+    from scipy.special import ndtr
+
+    probs = np.asarray(probs, float)
+    valid = np.isfinite(c)
+    n = valid.sum(0)
+    pos = valid & (c > 0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lm = np.where(pos, np.log(np.where(pos, c, 1.0)) - 0.5 * s * s, np.nan)
+    zero_frac = np.where(n > 0, (valid & ~pos).sum(0) / np.maximum(n, 1), np.nan)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        lo = np.nanmin(lm, axis=0) - 9 * s
+        hi = np.nanmax(lm, axis=0) + 9 * s
+    lo = np.where(np.isfinite(lo), lo, 0.0)[None, :].repeat(len(probs), 0)
+    hi = np.where(np.isfinite(hi), hi, 0.0)[None, :].repeat(len(probs), 0)
+    for _ in range(iterations):
+        mid = 0.5 * (lo + hi)
+        z = (mid[:, None, :] - lm[None, :, :]) / s
+        cdf = (np.where(pos[None], ndtr(z), 0.0).sum(1) + (valid & ~pos).sum(0)) \
+            / np.maximum(n, 1)
+        below = cdf < probs[:, None]
+        lo = np.where(below, mid, lo)
+        hi = np.where(below, hi, mid)
+    out = np.exp(0.5 * (lo + hi))
+    out = np.where(zero_frac[None, :] >= probs[:, None], 0.0, out)
+    return np.where(n[None, :] > 0, out, np.nan)
+
+
+@pytest.mark.parametrize("s", [0.01, 0.15, 0.6, 1.5])
+def test_statistic_quantiles_equal_a_plain_bisection(s):
+    rng = np.random.default_rng(11)
+    c = np.exp(rng.normal(1.5, 0.4, (400, 7)))
+    c[:, 1] = np.nan  # nothing pumped
+    c[:30, 2] = 0.0  # some draws of zero concentration
+    c[:, 3] = 0.0  # every draw zero
+    c[:200, 4] = np.nan  # half the draws missing
+    c[:, 5] = np.where(np.arange(400) < 100, 0.2, 40.0) * rng.uniform(0.9, 1.1, 400)  # two modes
+    c[:380, 6] = 0.0  # zeros beyond the lowest probability
+    probs = [0.025, 0.05, 0.3, 0.5, 0.95, 0.975]
+    got = sweep.statistic_quantiles(c, probs, s)
+    ref = _bisection_quantiles(c, probs, s)
+    np.testing.assert_array_equal(np.isnan(got), np.isnan(ref))
+    np.testing.assert_allclose(got, ref, rtol=1e-10, atol=0.0)
 
 
 def test_predict_summary_counts_draws_above_each_threshold(fitted):

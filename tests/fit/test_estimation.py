@@ -184,6 +184,26 @@ def test_row_weights_shapes_and_depth_rows():
     assert not np.allclose(ab[1, 0], a[0])
 
 
+def test_row_weights_of_several_sets_equal_one_call_per_set():
+    # analytes sampled at the same steps share the model's state: the arrays must be the ones
+    # a separate row_weights call gives, element for element
+    p = sw.project()
+    result = fit(p, FitOptions(fit_hydraulics=False))
+    model = result.model.with_changes(conductance=np.stack([sw.G, 2 * sw.G, 0.5 * sw.G]),
+                                      static_head=np.stack([sw.H0, sw.H0 - 1.0, sw.H0]))
+    steps = np.array([500.0, 1000.0, 2000.0])
+    sets = [(steps, np.full(3, np.nan)),
+            (np.array([2000.0, 500.0, 1000.0, 2000.0]), np.array([np.nan, np.nan, 65.0, 15.0])),
+            (np.zeros(0), np.zeros(0)),
+            (np.array([1000.0]), np.array([np.nan])),
+            (steps, np.full(3, np.nan))]
+    got = estimation.row_weights_sets(model, sets)
+    assert len(got) == len(sets)
+    for (rate, depth), a in zip(sets, got, strict=True):
+        np.testing.assert_array_equal(a, row_weights(model, rate, depth))
+    assert got[2].shape == (3, 0, 4)
+
+
 def test_residuals_zero_at_truth_and_layout():
     p = sw.project()
     problem = build_problem(p)

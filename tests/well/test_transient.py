@@ -20,7 +20,14 @@ import pandas as pd
 import pytest
 
 from blendq.errors import InputError
-from blendq.well.transient import Schedule, step_levels, step_schedule
+from blendq.well import hydraulics
+from blendq.well.transient import (
+    SUBSTEP_FRACTIONS,
+    Schedule,
+    step_levels,
+    step_schedule,
+    unit_response,
+)
 
 RW = 0.15
 K = np.array([20.0, 5.0])
@@ -100,6 +107,94 @@ def test_batched_parameters():
     assert hw.shape == (2, 3) and q.shape == (2, 3, 2)
     one, _ = step_levels(g[1], np.zeros(2), np.zeros(2), 1 / (4 * np.pi * T), _schedule())
     np.testing.assert_allclose(hw[1], one, rtol=1e-12)
+
+
+def _reference_step_levels(conductance, static_head, nonlinear_loss, slope, schedule,
+                           exponent=2.0, linear_loss=0.0):
+    """The superposition written term by term: every earlier increment times its own
+    unit_response at every grid point (the form the batched memory sum must reproduce)."""
+    g = np.asarray(conductance, float)
+    h0 = np.asarray(static_head, float)
+    d = np.broadcast_to(np.asarray(nonlinear_loss, float), np.broadcast_shapes(g.shape, h0.shape))
+    bl = np.broadcast_to(np.asarray(linear_loss, float), d.shape)
+    has_d = bool(np.any(d > 0) or np.any(bl > 0))
+    amb = hydraulics.solve_wellbore_head(np.zeros(1), g, h0, d if has_d else None, exponent,
+                                         linear_loss=bl if has_d else None)
+    hw0 = amb.wellbore_head[..., 0]
+    q0 = amb.zone_flow[..., 0, :]
+    loss0 = hydraulics.entrance_loss(q0, bl, d, exponent)[0] if has_d else 0.0
+    out_h, out_q = {}, {}
+    nsub = len(SUBSTEP_FRACTIONS)
+    for s, (start, end, rate) in enumerate(schedule.sequences):
+        grid = np.concatenate([[0.0], (start[:, None] + (end - start)[:, None]
+                                       * SUBSTEP_FRACTIONS[None, :]).ravel()])
+        grid_rate = np.concatenate([[0.0], np.repeat(rate, nsub)])
+        increments, last = [], q0
+        for m in range(1, len(grid)):
+            w_new = unit_response(g, slope, grid[m] - grid[m - 1], schedule.reference_time)
+            heads = hw0[..., None] + last * w_new + loss0
+            for j, inc in enumerate(increments):
+                heads = heads - inc * unit_response(g, slope, grid[m] - grid[j],
+                                                    schedule.reference_time)
+            if has_d:
+                st = hydraulics.solve_wellbore_head(np.array([grid_rate[m]]), 1.0 / w_new,
+                                                    heads, d, exponent, linear_loss=bl)
+                q, hw = st.zone_flow[..., 0, :], st.wellbore_head[..., 0]
+            else:
+                ge = 1.0 / w_new
+                hw = ((ge * heads).sum(-1) - grid_rate[m]) / ge.sum(-1)
+                q = ge * (heads - hw[..., None])
+            increments.append(q - last)
+            last = q
+            if m % nsub == 0:
+                out_h[(s, m // nsub - 1)] = hw
+                out_q[(s, m // nsub - 1)] = q
+    keys = list(schedule.level_step)
+    return (np.stack([out_h[k] for k in keys], -1), np.stack([out_q[k] for k in keys], -2))
+
+
+def _two_sequences():
+    """A stepped sequence with a recovery, then a new sequence after a full recovery."""
+    first = (STARTS, ENDS, RATES)
+    second = (np.array([0.0, 0.1]), np.array([0.1, 0.3]), np.array([400.0, 800.0]))
+    return Schedule([first, second], [(0, 0), (0, 1), (0, 3), (1, 0), (1, 1)], T_REF)
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_batched_memory_sum_equals_the_term_by_term_superposition(seed):
+    # conductances over two decades so that the floor of the unit response binds early after a
+    # change for some batch members and not for others; one zone steady (slope 0)
+    rng = np.random.default_rng(seed)
+    g = np.exp(rng.uniform(np.log(30.0), np.log(3000.0), (40, 3)))
+    h0 = rng.uniform(-12.0, -4.0, (40, 3))
+    slope = np.array([1 / (4 * np.pi * 150.0), 0.0, 1 / (4 * np.pi * 40.0)])
+    sched = _two_sequences()
+    hw, q = step_levels(g, h0, np.zeros(3), slope, sched)
+    ref_h, ref_q = _reference_step_levels(g, h0, np.zeros(3), slope, sched)
+    np.testing.assert_allclose(hw, ref_h, rtol=1e-10)
+    np.testing.assert_allclose(q, ref_q, rtol=1e-10, atol=1e-9)
+    # the floor did bind somewhere (the test covers its correction term)
+    tau_min = SUBSTEP_FRACTIONS[1] - SUBSTEP_FRACTIONS[0]
+    raw = 1 / g + slope * np.log(0.1 * tau_min / T_REF)
+    assert np.any(raw < 0.05 / g)
+
+
+def test_batched_memory_sum_with_entrance_losses_equals_the_term_by_term_form():
+    rng = np.random.default_rng(7)
+    g = np.exp(rng.uniform(np.log(50.0), np.log(2000.0), (12, 2)))
+    h0 = rng.uniform(-10.0, -5.0, (12, 2))
+    d = np.array([2e-6, 5e-7])
+    slope = 1 / (4 * np.pi * T)
+    sched = _two_sequences()
+    hw, q = step_levels(g, h0, d, slope, sched, np.array([2.0, 2.5]), np.array([1e-4, 0.0]))
+    ref_h, ref_q = _reference_step_levels(g, h0, d, slope, sched, np.array([2.0, 2.5]),
+                                          np.array([1e-4, 0.0]))
+    np.testing.assert_allclose(hw, ref_h, rtol=1e-10)
+    np.testing.assert_allclose(q, ref_q, rtol=1e-10, atol=1e-9)
+    # unbatched parameters give the batch member's result
+    one_h, _ = step_levels(g[3], h0[3], d, slope, sched, np.array([2.0, 2.5]),
+                           np.array([1e-4, 0.0]))
+    np.testing.assert_allclose(one_h, hw[3], rtol=1e-12)
 
 
 def _project(durations, recovered=None, starts=None):
