@@ -31,6 +31,7 @@ from blendq.fit.estimation import (
     _log_groups,
     hydraulic_residuals_batch,
     row_weights,
+    row_weights_sets,
     scaled_pinv,
     solve_concentrations,
 )
@@ -359,10 +360,16 @@ class _PerturbedData:
         parts = [r_h]
         zv = np.empty((bsz, problem.n_zones, len(self.analytes)))
         new_active = {}
+        # one model state per distinct set of sampled rates, shared by the analytes
+        sets = []
+        for analyte in self.analytes:
+            d = problem.data[analyte]
+            sets += [(d.rate, d.depth), (d.cens_rate, d.cens_depth)]
+        all_weights = row_weights_sets(model, sets)
         for j, analyte in enumerate(self.analytes):
             d = problem.data[analyte]
-            a = row_weights(model, d.rate, d.depth)
-            ac = row_weights(model, d.cens_rate, d.cens_depth) if len(d.cens_limit) else None
+            a = all_weights[2 * j]
+            ac = all_weights[2 * j + 1] if len(d.cens_limit) else None
             lb, ub = problem.bounds(analyte)
             g, h = qp.constraint_rows(lb, ub, ac, d.cens_limit if ac is not None else None)
             y = self.y[analyte][idx]
@@ -428,9 +435,11 @@ class _PerturbedData:
             res = [rh[0] - self.eps[idx, :self.n_hyd]]
             jac = [(rh[1:] - rh[0][None]) / steps[:, None, None]]
             weights = {}
-            for analyte in self.analytes:
+            all_weights = row_weights_sets(
+                model, [(problem.data[k].rate, problem.data[k].depth) for k in self.analytes])
+            for analyte, aa in zip(self.analytes, all_weights, strict=True):
                 d = problem.data[analyte]
-                aa = row_weights(model, d.rate, d.depth).reshape(p + 1, bsz, len(d.value), n)
+                aa = aa.reshape(p + 1, bsz, len(d.value), n)
                 weights[analyte] = (aa[0], np.moveaxis(
                     (aa[1:] - aa[0][None]) / steps[:, None, None, None], 0, -1))
             jac = [np.moveaxis(jac[0], 0, -1)]
