@@ -1,4 +1,4 @@
-"""Decide: the rate sweep, the operating window, the level check, the scenarios, the analysis.
+"""Decide: rate sweep, operating window, level check, scenarios, analysis, wellfield blend plan.
 
 May import: the packages above it (units, errors, chemistry, inputs, review, well, fit).
 """

@@ -535,6 +535,8 @@ def _build(p: _Problem, mode: str = "plan", focus: tuple[int, int] | None = None
         prog.row(v, 1.0, hi=allowed)
         fixed_load = sum(p.others[k].rate * p.other_c[k] for k in ok if other[k] is None)
         fixed_load = np.zeros(len(p.analytes)) + fixed_load
+        fixed_rate = sum(p.others[k].rate for k in ok if other[k] is None)
+        var_ok = [k for k in ok if other[k] is not None]
         for a in active:
             free = mode == "quality" and (e, a) == tuple(focus)
             if free:
@@ -542,36 +544,45 @@ def _build(p: _Problem, mode: str = "plan", focus: tuple[int, int] | None = None
                 extra["free"] = u
             loads = [_interp(p.wells[i].grid, p.wells[i].load[p.used][..., a], pts[i])
                      for i in mine]                                      # (n_used, n_pts)
-            cmax = np.zeros(n_used)
-            lmax = np.zeros(n_used) + fixed_load[a]
-            for i, ld in zip(mine, loads, strict=True):
-                cmax = np.maximum(cmax, (ld / np.maximum(pts[i], 1e-300)).max(axis=1))
-                lmax += ld.max(axis=1)
-            for k in ok:
-                cmax = np.maximum(cmax, p.other_c[k, a])
-                if other[k] is not None:
-                    lmax += p.others[k].max_rate * p.other_c[k, a]
+            # bounds on the load of each draw for the big-M and for draws decided in advance
+            conc = [ld / np.maximum(pts[i], 1e-300) for i, ld in zip(mine, loads, strict=True)]
+            positive = [pts[i] > 0 for i in mine]
+            c_hi = np.column_stack([c.max(axis=1) for c in conc]
+                                   + [np.full(n_used, p.other_c[k, a]) for k in var_ok])
+            c_lo = np.column_stack([np.where(pos, c, np.inf).min(axis=1, initial=np.inf)
+                                    if pos.any() else np.zeros(n_used)
+                                    for c, pos in zip(conc, positive, strict=True)]
+                                   + [np.full(n_used, p.other_c[k, a]) for k in var_ok])
+            caps = np.r_[[pts[i][-1] for i in mine], [p.others[k].max_rate for k in var_ok]]
             target = 0.0 if free else p.targets[a]
             if mode == "demand":
-                big = np.minimum(lmax, ep.demand * np.maximum(cmax - target, 0))
+                lmax = fixed_load[a] + sum(ld.max(axis=1) for ld in loads) + sum(
+                    p.others[k].max_rate * p.other_c[k, a] for k in var_ok)
+                big = np.minimum(lmax, ep.demand * np.maximum(c_hi.max(axis=1) - target, 0))
+                low = np.full(n_used, -np.inf)
             else:
-                big = np.minimum(lmax, ep.demand * cmax) - target * ep.demand
+                rest = ep.demand - fixed_rate
+                big = fixed_load[a] + _fill(c_hi, caps, rest, True) - target * ep.demand
+                low = fixed_load[a] + _fill(c_lo, caps, rest, False) - target * ep.demand
             for s in range(n_used):
-                cols = [lam[i] for i in mine] + [np.array([other[k] for k in ok
-                                                           if other[k] is not None], int)]
-                vals = [ld[s] for ld in loads] + [np.array([p.other_c[k, a] for k in ok
-                                                            if other[k] is not None])]
+                m = float(big[s])
+                if m <= 1e-9 * max(1.0, target * ep.demand) and not free:
+                    continue                                    # met whatever the rates
+                if low[s] > 1e-7 * max(1.0, target * ep.demand) and not free:
+                    prog.lb[v[s]] = 1                           # exceeded whatever the rates
+                    continue
+                cols = [lam[i] for i in mine] + [np.array([other[k] for k in var_ok], int)]
+                vals = [ld[s] for ld in loads] + [p.other_c[var_ok, a]]
                 cols, vals = np.concatenate(cols).astype(int), np.concatenate(vals)
-                m = max(float(big[s]), 0.0) * (1 + 1e-9) + 1e-9
                 if free:
                     cols, vals = np.r_[cols, u], np.r_[vals, -ep.demand]
-                    m = max(float(lmax[s]), 0.0) * (1 + 1e-9) + 1e-9
                 elif mode == "demand":
                     cols, vals = np.r_[cols, delivered[e]], np.r_[vals, -target]
                 rhs = -fixed_load[a] + (0.0 if (free or mode == "demand")
                                         else target * ep.demand)
-                if m > 0 and allowed > 0:
-                    cols, vals = np.r_[cols, v[s]], np.r_[vals, -m]
+                if allowed > 0:
+                    cols, vals = np.r_[cols, v[s]], np.r_[vals, -(max(m, 0.0) * (1 + 1e-9)
+                                                                   + 1e-9)]
                 prog.row(cols, vals, hi=rhs)
     # pumping levels: own drawdown plus interference from the others, when on
     slack = None
@@ -617,6 +628,20 @@ def _build(p: _Problem, mode: str = "plan", focus: tuple[int, int] | None = None
             prog.row(np.r_[lam[i], excess[i]], np.r_[pts[i], -1.0], hi=w.max_rate)
             prog.row(np.r_[lam[i], on[i], excess[i]], np.r_[-pts[i], w.min_rate, -1.0], hi=0)
     return _Layout(prog, pts, lam, on, other, extra)
+
+
+def _fill(conc: np.ndarray, caps: np.ndarray, volume: float, richest: bool) -> np.ndarray:
+    """Largest (``richest``) or smallest load [mg/L m^3/d] of ``volume`` [m^3/d] drawn from
+    sources of capacity ``caps`` [m^3/d] at concentrations ``conc`` (n_draws, n_sources)
+    [mg/L], filling the richest (or leanest) first: a bound on the load of each draw."""
+    if conc.shape[1] == 0:
+        return np.zeros(conc.shape[0])
+    order = np.argsort(-conc if richest else conc, axis=1, kind="stable")
+    c = np.take_along_axis(conc, order, axis=1)
+    cap = caps[order]
+    before = np.cumsum(cap, axis=1) - cap
+    take = np.clip(max(volume, 0.0) - before, 0.0, cap)
+    return np.sum(np.where(take > 0, take * c, 0.0), axis=1)
 
 
 def _run(p: _Problem, lay: _Layout, time_limit: float):
@@ -814,7 +839,7 @@ def _diagnose(p: _Problem, time_limit: float) -> tuple[list[Relaxation], float]:
                     f"source lower in {name}, or a well modification (seal a zone or move an "
                     "intake; see each well's scenarios)"
                     + (f" on {', '.join(who)}" if who else "") + ".")
-            out.append(Relaxation("quality", ep.name, name, not alone, u, tgt, text))
+            out.append(Relaxation("quality", ep.name, name, not alone, u, float(tgt), text))
     # hydraulic limits: rate limits, then level limits
     if any(w.lo > w.grid[0] or w.hi < w.grid[-1] for w in p.wells):
         lay = _build(p, "rates")
