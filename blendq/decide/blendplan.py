@@ -537,11 +537,9 @@ def _build(p: _Problem, mode: str = "plan", focus: tuple[int, int] | None = None
         fixed_load = np.zeros(len(p.analytes)) + fixed_load
         fixed_rate = sum(p.others[k].rate for k in ok if other[k] is None)
         var_ok = [k for k in ok if other[k] is not None]
+        rows = []    # per analyte: a, free, loads, big-M, rhs, rows needed, draws it may exceed
         for a in active:
             free = mode == "quality" and (e, a) == tuple(focus)
-            if free:
-                u = prog.var(0, np.inf, cost=1.0)
-                extra["free"] = u
             loads = [_interp(p.wells[i].grid, p.wells[i].load[p.used][..., a], pts[i])
                      for i in mine]                                      # (n_used, n_pts)
             # bounds on the load of each draw for the big-M and for draws decided in advance
@@ -555,34 +553,57 @@ def _build(p: _Problem, mode: str = "plan", focus: tuple[int, int] | None = None
                                    + [np.full(n_used, p.other_c[k, a]) for k in var_ok])
             caps = np.r_[[pts[i][-1] for i in mine], [p.others[k].max_rate for k in var_ok]]
             target = 0.0 if free else p.targets[a]
+            scale = max(1.0, target * ep.demand)
             if mode == "demand":
                 lmax = fixed_load[a] + sum(ld.max(axis=1) for ld in loads) + sum(
                     p.others[k].max_rate * p.other_c[k, a] for k in var_ok)
                 big = np.minimum(lmax, ep.demand * np.maximum(c_hi.max(axis=1) - target, 0))
-                low = np.full(n_used, -np.inf)
+                need = np.ones(n_used, bool)
+                could = need
             else:
                 rest = ep.demand - fixed_rate
                 big = fixed_load[a] + _fill(c_hi, caps, rest, True) - target * ep.demand
                 low = fixed_load[a] + _fill(c_lo, caps, rest, False) - target * ep.demand
+                need = free | (big > 1e-9 * scale)          # else met whatever the rates
+                could = need.copy()
+                if not free:
+                    forced = need & (low > 1e-7 * scale)    # exceeded whatever the rates
+                    for s in np.flatnonzero(forced):
+                        prog.lb[v[s]] = 1
+                    need &= ~forced
+            rhs = -fixed_load[a] + (0.0 if (free or mode == "demand") else target * ep.demand)
+            rows.append((a, free, loads, big, rhs, need, could))
+        # a draw dominated (load no lower at every rate of every well, for every analyte it
+        # could exceed) by more draws than may be violated must be met (Luedtke and Ahmed 2008)
+        must = np.zeros(n_used, bool)
+        if allowed > 0:
+            dominated_by = np.zeros((n_used, n_used), bool)
             for s in range(n_used):
-                m = float(big[s])
-                if m <= 1e-9 * max(1.0, target * ep.demand) and not free:
-                    continue                                    # met whatever the rates
-                if low[s] > 1e-7 * max(1.0, target * ep.demand) and not free:
-                    prog.lb[v[s]] = 1                           # exceeded whatever the rates
-                    continue
+                ge = np.ones(n_used, bool)
+                for (_, _, loads, _, _, _, could) in rows:
+                    if could[s]:
+                        for ld in loads:
+                            ge &= np.all(ld >= ld[s], axis=1)
+                ge[s] = False
+                dominated_by[s] = ge
+            must = dominated_by.sum(axis=1) > allowed
+            for s in np.flatnonzero(must):
+                prog.ub[v[s]] = 0
+        for (a, free, loads, big, rhs, need, _) in rows:
+            if free:
+                u = prog.var(0, np.inf, cost=1.0)
+                extra["free"] = u
+            for s in np.flatnonzero(need):
                 cols = [lam[i] for i in mine] + [np.array([other[k] for k in var_ok], int)]
                 vals = [ld[s] for ld in loads] + [p.other_c[var_ok, a]]
                 cols, vals = np.concatenate(cols).astype(int), np.concatenate(vals)
                 if free:
                     cols, vals = np.r_[cols, u], np.r_[vals, -ep.demand]
                 elif mode == "demand":
-                    cols, vals = np.r_[cols, delivered[e]], np.r_[vals, -target]
-                rhs = -fixed_load[a] + (0.0 if (free or mode == "demand")
-                                        else target * ep.demand)
-                if allowed > 0:
-                    cols, vals = np.r_[cols, v[s]], np.r_[vals, -(max(m, 0.0) * (1 + 1e-9)
-                                                                   + 1e-9)]
+                    cols, vals = np.r_[cols, delivered[e]], np.r_[vals, -p.targets[a]]
+                if allowed > 0 and not must[s]:
+                    m = max(float(big[s]), 0.0) * (1 + 1e-9) + 1e-9
+                    cols, vals = np.r_[cols, v[s]], np.r_[vals, -m]
                 prog.row(cols, vals, hi=rhs)
     # pumping levels: own drawdown plus interference from the others, when on
     slack = None

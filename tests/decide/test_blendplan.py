@@ -28,17 +28,19 @@ def _flat(name, c, energy=None, lo=0.0, hi=1000.0, ep="EP", levels=11, draws=1, 
 
 # ---- (a) two wells, closed form -------------------------------------------------------------
 
-@pytest.mark.parametrize("c1, c2, limit, margin, demand", [
-    (15.0, 4.0, 10.0, 0.9, 1000.0),
-    (0.025, 0.004, 0.010, 0.8, 640.0),
+@pytest.mark.parametrize("c1, c2, limit, margin, demand, draws, prob", [
+    (15.0, 4.0, 10.0, 0.9, 1000.0, 3, 0.95),
+    (0.025, 0.004, 0.010, 0.8, 640.0, 1, 0.5),
+    (15.0, 4.0, 10.0, 0.9, 1000.0, 40, 0.9),  # 4 of 40 identical draws may be violated
 ])
 def test_two_wells_give_the_closed_form_largest_rate_of_the_rich_well(c1, c2, limit, margin,
-                                                                       demand):
+                                                                       demand, draws, prob):
     # Conservative two-stream mixing, (Q1 c1 + Q2 c2) / (Q1 + Q2) <= m L with Q1 + Q2 = D,
     # solved for Q1: Q1 = D (m L - c2) / (c1 - c2) (mass balance; the cheaper well 1 is run up
     # to it). Identical draws make the chance constraint deterministic.
-    wells = [_flat("A", c1, 0.30, hi=demand, draws=3), _flat("B", c2, 0.50, hi=demand, draws=3)]
-    plan = blending_plan(wells, [EntryPoint("EP", demand)], {"x": limit}, margin, 0.95, ["x"])
+    wells = [_flat("A", c1, 0.30, hi=demand, draws=draws),
+             _flat("B", c2, 0.50, hi=demand, draws=draws)]
+    plan = blending_plan(wells, [EntryPoint("EP", demand)], {"x": limit}, margin, prob, ["x"])
     q1 = demand * (margin * limit - c2) / (c1 - c2)
     assert plan.feasible and plan.objective == "energy"
     np.testing.assert_allclose(plan.rates["A"], q1, rtol=1e-6)
