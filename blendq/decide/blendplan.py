@@ -179,6 +179,8 @@ class BlendPlan:
     notes : list of str
     solve_seconds : float
         Wall-clock time of the programs solved [s].
+    unmet : list of str
+        Entry points without a plan (their wells are shown off; the others keep their plan).
     """
 
     feasible: bool
@@ -198,6 +200,7 @@ class BlendPlan:
     diagnosis: list[Relaxation] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     solve_seconds: float = 0.0
+    unmet: list[str] = field(default_factory=list)
     _sources: pd.DataFrame | None = field(default=None, repr=False)
 
     def table(self) -> pd.DataFrame:
@@ -364,6 +367,9 @@ def _check(wells, entry_points, limits, margin, probability, analytes, other_sou
         if not 0 <= w.min_rate <= w.max_rate:
             raise InputError(f"{where}: rate limits {w.min_rate}..{w.max_rate}; expected "
                              "0 <= min_rate <= max_rate [m^3/d]", field="min_rate")
+        if (w.level_limit is None) != (w.drawdown is None):
+            notes.append(f"{w.name}: a level limit needs both the pumping levels and the "
+                         "deepest allowed level; its level is not checked.")
         if not w.available:
             continue
         lo, hi = max(w.min_rate, r[0]), min(w.max_rate, r[-1])
@@ -986,7 +992,7 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
                      "compliance is reported over all of them.")
     q = np.zeros(len(p.names))
     qo = np.array([o.rate for o in p.others], float)
-    spent, values, statuses, failed, diagnosis = 0.0, [], [], [], []
+    spent, values, statuses, failed, diagnosis, unmet = 0.0, [], [], [], [], []
     for group in _groups(p):
         sub = _restrict(p, group)
         lay = _build(sub, "plan")
@@ -995,6 +1001,7 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
         names = ", ".join(sub_ep.name for sub_ep in sub.eps)
         if res.x is None:
             failed.append(names)
+            unmet += [x.name for x in sub.eps]
             statuses.append(res.status)
             if diagnose and res.status == 2:
                 found, dt = _diagnose(sub, time_limit)
@@ -1022,7 +1029,7 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
                          compliance_in_plan=comp_in,
                          binding=[_label(r) for r in diagnosis if r.opens],
                          diagnosis=diagnosis, notes=notes, solve_seconds=spent,
-                         _sources=sources, **base)
+                         unmet=unmet, _sources=sources, **base)
     status = ("optimal plan" if all(s == 0 for s in statuses) else
               "best plan found within the time limit (not proven optimal)")
     low = [e for e, c in comp.items() if c < p.probability]
@@ -1116,11 +1123,14 @@ def n_minus_one(wells, entry_points, limits: dict[str, float], margin: float,
 
 
 def outage_table(results: list[OutageResult]) -> pd.DataFrame:
-    """One row per outage and entry point: ``well_out``, ``entry_point``, ``feasible``,
+    """One row per outage and entry point: ``well_out``, ``entry_point``, ``met`` (demand and
+    every limit met at this entry point), ``plan_found`` (for the whole wellfield),
     ``shortfall_m3_d``, ``noncompliant`` (analytes, comma-separated)."""
     rows = []
     for r in results:
+        failed = set(r.plan.unmet)
         for ep, s in r.shortfall.items():
-            rows.append({"well_out": r.well, "entry_point": ep, "feasible": r.feasible,
-                         "shortfall_m3_d": s, "noncompliant": ", ".join(r.noncompliant[ep])})
+            rows.append({"well_out": r.well, "entry_point": ep, "met": ep not in failed,
+                         "plan_found": r.feasible, "shortfall_m3_d": s,
+                         "noncompliant": ", ".join(r.noncompliant[ep])})
     return pd.DataFrame(rows)

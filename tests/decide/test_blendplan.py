@@ -211,6 +211,8 @@ def test_n_minus_one_finds_the_outage_that_breaks_compliance():
     np.testing.assert_allclose(quality[0].value, 10.8, rtol=1e-6)
     table = outage_table(list(out.values()))
     assert table.loc[table.well_out == "B", "noncompliant"].item() == "nitrate"
+    assert list(table["met"]) == [True, False, True]
+    assert out["B"].plan.unmet == ["EP"]
 
 
 # ---- (e) infeasibility diagnosis ---------------------------------------------------------------
