@@ -639,9 +639,10 @@ def _build(p: _Problem, mode: str = "plan", focus: tuple[int, int] | None = None
     if mode == "plan":
         if p.objective == "energy":
             for i, w in enumerate(p.wells):
-                e_pts = _interp(w.grid, w.energy, pts[i], axis=0)
+                # Q e(Q) [kWh/d] interpolated on the well's grid, as the loads are
+                use = _interp(w.grid, w.grid * w.energy, pts[i], axis=0)
                 for k, col in enumerate(lam[i]):
-                    prog.cost[col] = float(pts[i][k] * e_pts[k])
+                    prog.cost[col] = float(use[k])
         else:
             t = prog.var(0, np.inf, cost=1.0)
             extra["even"] = t
@@ -932,7 +933,8 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
         [m per m^3/d] (in the order of ``wells``); the diagonal is not used (each well's own
         level is its ``drawdown``).
     objective : {"auto", "energy", "even"}
-        ``energy``: least total energy sum Q_i e_i(Q_i) [kWh/d]; ``even``: least largest
+        ``energy``: least total energy sum Q_i e_i(Q_i) [kWh/d], Q e(Q) interpolated on the
+        well's grid; ``even``: least largest
         Q_i / max_rate_i [-]; ``auto``: energy when every available well has an energy curve.
     max_draws : int or None
         Draws kept in the program (a seeded random subset when there are more); the plan is

@@ -149,6 +149,10 @@ def test_three_wells_match_a_brute_force_grid():
                 for w, qi in zip(wells, q, strict=True) if qi > 0) / demand
     assert np.sum(blend <= margin * limit * (1 + 1e-7)) >= 3
     assert plan.compliance_in_plan["EP"] >= prob
+    # and its objective is the energy of its rates, Q e(Q) interpolated on each well's grid
+    energy = sum(np.interp(qi, w.rates, w.rates * w.energy)
+                 for w, qi in zip(wells, q, strict=True) if qi > 0)
+    np.testing.assert_allclose(plan.objective_value, energy, rtol=1e-9)
 
 
 # ---- (c) invariants ---------------------------------------------------------------------------
