@@ -1,5 +1,5 @@
 """Decide: the rate sweep, the operating window, the level check, the scenarios, the analysis,
-the wellfield batch and table.
+the wellfield batch, table and blending plan.
 
 May import: the packages above it (units, errors, chemistry, inputs, review, well, fit).
 """
