@@ -107,8 +107,8 @@ def demo() -> None:
 def example_monte_carlo() -> None:
     from blendq.fit import constrained_lsq as qp
     from blendq.fit.estimation import fit, row_weights
-    from blendq.inputs.loader import load_project
     from blendq.fit.uncertainty import monte_carlo
+    from blendq.inputs.loader import load_project
 
     project = load_project(ROOT / "examples" / "quillmarsh_us")
     limited = {lim.analyte for lim in project.limits}

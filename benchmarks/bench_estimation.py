@@ -21,9 +21,8 @@ import time
 
 import numpy as np
 
-from blendq.fit import diagnostics
 from blendq.fit import constrained_lsq as qp
-from blendq.fit import uncertainty
+from blendq.fit import diagnostics, uncertainty
 from blendq.fit.estimation import fit, row_weights
 from blendq.well.synthetic import synthetic_project
 

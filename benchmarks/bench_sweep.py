@@ -27,10 +27,9 @@ import time
 import numpy as np
 from scipy import optimize
 
-from blendq.well import hydraulics
-from blendq.well import mixing
 from blendq.fit import uncertainty
 from blendq.fit.estimation import fit
+from blendq.well import hydraulics, mixing
 from blendq.well.synthetic import synthetic_project
 
 # an invented four-zone well; the pump intake sits between Z2 and Z3, so water from above
