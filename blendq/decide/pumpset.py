@@ -281,6 +281,13 @@ def settings_for_window(w: Window, rates, band, test_static: float | None, spec:
         if scan_span else pd.DataFrame()
     every_rate = [delivered(curve, sys, spec, f, max_rate) for sys in every
                    for f in (spec.min_frequency, spec.max_frequency)]
+    reach = float(np.nanmax([delivered(curve, sys, spec, spec.max_frequency, max_rate)
+                             for sys in every]))
+    if reach < high:
+        notes.append(f"At {spec.max_frequency:g} Hz this pump delivers at most "
+                     f"{pumpmod.rate_text(reach, units)}: the window's upper part, up to "
+                     f"{pumpmod.rate_text(high, units)}, is beyond its reach at every static "
+                     "level of the season.")
     out = PumpSettings((float(low), float(high)), float(target), span, recommended, table,
                        energy, notes=notes, test_static_level=float(test_static),
                        rate_span=(float(min(every_rate)), float(max(every_rate))))

@@ -74,7 +74,8 @@ class PumpError(ModelError):
         return PumpError(lambda u: prefix + write(u), units or self.units, self.cannot_lift)
 
 
-def _q(rate: float, units: str) -> str:
+def rate_text(rate: float, units: str) -> str:
+    """A rate [m^3/d] in the display units ``units`` ("US", "SI", "SI-L/s")."""
     return format_quantity(float(rate), "rate", units)
 
 
@@ -348,7 +349,7 @@ def operating_point(pump: PumpCurve, system: SystemCurve, speed_ratio: float,
         shutoff = float(pump.rate[0]) == 0.0
 
         def write(u: str) -> str:
-            where = "at shutoff (no flow)" if shutoff else f"at {_q(lo, u)}, the lowest rate of " \
+            where = "at shutoff (no flow)" if shutoff else f"at {rate_text(lo, u)}, the lowest rate of " \
                 "its curve,"
             return (f"the pump cannot lift the water at {r:.0%} of rated speed: {where} it "
                     f"gives {_h(have, u)} of head but the system needs {_h(need, u)} (lift, "
@@ -360,7 +361,7 @@ def operating_point(pump: PumpCurve, system: SystemCurve, speed_ratio: float,
             else "the rates modelled"
         raise PumpError(
             lambda u: f"at {r:.0%} of rated speed the pump still has {_h(at_hi, u)} of head to "
-                      f"spare at {_q(hi, u)}, {where}: the operating point lies off the curve",
+                      f"spare at {rate_text(hi, u)}, {where}: the operating point lies off the curve",
             units, cannot_lift=False)
     return float(brentq(excess, lo, hi, xtol=1e-9, rtol=1e-12))
 
@@ -387,14 +388,14 @@ def speed_for_rate(pump: PumpCurve, system: SystemCurve, rate: float,
     if not top > 0:
         have = float(pump.head_at(rate, max_ratio))
         raise PumpError(
-            lambda u: f"the pump cannot lift the water at {_q(rate, u)}: the system needs "
+            lambda u: f"the pump cannot lift the water at {rate_text(rate, u)}: the system needs "
                       f"{_h(need, u)} of head and the pump at {max_ratio:.0%} of rated speed "
                       + ("is off its curve" if np.isnan(have) else f"gives {_h(have, u)}"),
             units)
     low = rate / pump.max_rate * (1 + 1e-12)  # below this the rate is off the scaled curve
     if excess(low) >= 0:
         raise PumpError(
-            lambda u: f"{_q(rate, u)} lies beyond the end of the pump curve at every speed "
+            lambda u: f"{rate_text(rate, u)} lies beyond the end of the pump curve at every speed "
                       "that could deliver it (the pump has head to spare there): a smaller "
                       "pump or a throttle is needed", units, cannot_lift=False)
     return float(brentq(excess, low, max_ratio, xtol=1e-12, rtol=1e-12))

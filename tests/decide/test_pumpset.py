@@ -131,3 +131,15 @@ def test_pump_that_cannot_lift_is_a_model_error(setup):
     with pytest.raises(ModelError) as err:
         pump_settings(a, deep, units="SI")
     assert "m³/d," in str(err.value)
+
+
+def test_window_top_beyond_the_pumps_reach_is_said(setup):
+    a, spec = setup
+    assert not any("beyond its reach" in n for n in pump_settings(a, spec).notes)
+    # a drive limited to 55 Hz: the invented pump then delivers less than the window's top
+    out = pump_settings(a, replace(spec, max_frequency=55.0))
+    (note,) = [n for n in out.notes if "beyond its reach" in n]
+    assert out.rate_span[1] < out.window[1]
+    assert note.startswith("At 55 Hz this pump delivers at most ") and " gpm" in note
+    top = float(note.split("at most ")[1].split(" gpm")[0].replace(",", ""))
+    np.testing.assert_allclose(top, out.rate_span[1] / 5.450992969, rtol=5e-3)  # m3/d per gpm
