@@ -293,8 +293,9 @@ def significant(value: float, digits: int = 3, system: str = "US") -> str:
     with separators and no exponent (2,180 rather than 2.18e+03; in SI 2 180 with a narrow
     space, :data:`SI_THOUSANDS_SEPARATOR`), very small or very large numbers in exponent
     form."""
-    if math.isfinite(value) and 1e3 <= abs(value) < 1e9:
-        text = f"{float(f'{value:.{digits}g}'):,.0f}"
+    rounded = float(f"{value:.{digits}g}") if math.isfinite(value) else value
+    if math.isfinite(value) and 1e3 <= abs(rounded) < 1e9:  # 999.6 rounds to 1,000
+        text = f"{rounded:,.0f}"
         return text.replace(",", SI_THOUSANDS_SEPARATOR) if is_metric(system) else text
     return f"{value:.{digits}g}"
 

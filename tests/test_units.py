@@ -295,3 +295,10 @@ def test_unit_system_names(text, name):
 def test_unknown_unit_system_names_the_choices(text):
     with pytest.raises(InputError, match='"US", "SI", "SI-L/s"'):
         unit_system(text)
+
+
+@pytest.mark.parametrize(("value", "text"), [(999.6, "1,000"), (999.4, "999"), (-999.7, "-1,000"),
+                                             (999_999_999.0, "1e+09"), (0.00012345, "0.000123")])
+def test_significant_decides_the_form_after_rounding(value, text):
+    # 999.6 rounds to three digits as 1,000: written with a separator, never as 1e+03
+    assert significant(value, 3, "US") == text
