@@ -200,8 +200,9 @@ def test_superposition_and_monotony(wells, method):
 
 
 @settings(max_examples=40, deadline=None)
-@given(st_.floats(1.0, 3000.0), st_.floats(0.01, 300.0), st_.floats(1.0, 5.0))
+@given(st_.floats(1.0, 3000.0), st_.floats(0.01, 300.0), st_.floats(1.001, 5.0))
 def test_theis_drawdown_grows_with_time_and_falls_with_distance(r, t, factor):
+    # factor from 1.001: at 1 + 2e-16 the rounding of r^2 S / (4 T t) decides the order
     a = interference_matrix([0.0, r], [0.0, 0.0], T, storativity=S, time=t)
     later = interference_matrix([0.0, r], [0.0, 0.0], T, storativity=S, time=t * factor)
     farther = interference_matrix([0.0, r * factor], [0.0, 0.0], T, storativity=S, time=t)
