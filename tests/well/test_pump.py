@@ -176,8 +176,9 @@ def test_bad_curve_is_refused():
 
 
 @settings(max_examples=50, deadline=None)
-@given(q=st.floats(1.0, 1e5), k=st.floats(0.0, 50.0), d=st.floats(0.05, 0.5))
+@given(q=st.floats(1.0, 1e5), k=st.just(0.0) | st.floats(1e-6, 50.0), d=st.floats(0.05, 0.5))
 def test_minor_loss_is_k_velocity_head(q, k, d):
+    # K from 1e-6 (fittings have K of 0.01 and more): subnormal heads lose relative precision
     # h = K v^2 / (2 g): zero without fittings, linear in K, quadratic in the rate
     h = float(pump.minor_loss(q, d, k))
     v = q / 86400.0 / (np.pi * d**2 / 4)
