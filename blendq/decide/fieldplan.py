@@ -262,3 +262,93 @@ def field_plan(wellfield, outcomes, seed: int | None = None,
     outages = (bp.n_minus_one(*args, max_draws=max_draws, seed=p.seed, time_limit=time_limit)
                if n_minus_one else [])
     return FieldPlan(p, plan, outages)
+
+
+# --------------------------------------------------------------------------------------------
+# text for the command line and the text output
+
+#: words of each objective in the text
+OBJECTIVE_TEXT = {"energy": "least total pumping energy",
+                  "even": "most even use of the wells (least largest share of a well's range)"}
+
+
+def _conc(analyte: str, value: float) -> str:
+    from blendq.chemistry.analytes import get_analyte
+
+    an = get_analyte(analyte)
+    v = float(an.in_display_unit(np.asarray([value]))[0])
+    return f"{v:.3g} {an.display_unit}" if np.isfinite(v) else "-"
+
+
+def plan_lines(fp: FieldPlan, units: str = "US") -> list[str]:
+    """The plan as text: rates per well in the display unit, the blend at each entry point
+    (median and the chosen-probability quantile against margin x limit, the share of all draws
+    meeting every limit), the objective; without a plan, its status and what would open one."""
+    from blendq.units import DISPLAY_UNITS, display_unit_label, from_base
+
+    unit = DISPLAY_UNITS[units]["rate"]
+    label = display_unit_label(unit)
+
+    def q(v: float) -> str:
+        return f"{float(from_base(v, 'rate', unit)):,.4g} {label}"
+
+    p, inp = fp.plan, fp.inputs
+    out = [f"Blending plan: {p.status} (objective: {OBJECTIVE_TEXT[p.objective]}; "
+           f"{p.draws_used} of {p.draws_total} draws in the program, solved in "
+           f"{p.solve_seconds:.1f} s)"]
+    if p.feasible:
+        eps = {w.name: w.entry_point for w in inp.wells}
+        for name, rate in p.rates.items():
+            out.append(f"  {name} ({eps[name]}): " + (q(rate) if rate > 0 else "off"))
+        for o in inp.others:
+            out.append(f"  {o.name} (other source, {o.entry_point}): {q(p.other_rates[o.name])}")
+    for name, why in inp.left_out.items():
+        out.append(f"  {name}: not in the plan ({why})")
+    pct = f"{100 * p.probability:g} %"
+    for e in inp.entry_points:
+        rows = p.blend[p.blend["entry_point"] == e.name]
+        if not p.feasible and e.name in p.unmet:
+            continue
+        parts = []
+        for r in rows.itertuples(index=False):
+            target = (f" against {p.margin:g} x limit = {_conc(r.analyte, r.target_mg_l)}"
+                      if np.isfinite(r.target_mg_l) else " (no limit)")
+            parts.append(f"{r.analyte} median {_conc(r.analyte, r.median_mg_l)}, {pct} quantile "
+                         f"{_conc(r.analyte, r.quantile_mg_l)}{target}")
+        out.append(f"  at {e.name} (demand {q(e.demand)}): " + "; ".join(parts))
+        out.append(f"    every limit met in {100 * p.compliance[e.name]:.1f} % of all "
+                   f"{p.draws_total} draws (asked: {pct})")
+    if not p.feasible:
+        out.append("  No plan meets every constraint. Each constraint relaxed in turn:")
+        for r in p.diagnosis:
+            out.append(f"    {'opens a plan' if r.opens else 'does not open one'}: {r.text}")
+    out += [f"  note: {n}" for n in [*inp.notes, *p.notes]]
+    return out
+
+
+def outage_lines(fp: FieldPlan, units: str = "US") -> list[str]:
+    """The N-1 outcome as text: per well out of service, the entry points left short (with the
+    shortfall in the display unit) or non-compliant."""
+    from blendq.units import DISPLAY_UNITS, display_unit_label, from_base
+
+    unit = DISPLAY_UNITS[units]["rate"]
+    label = display_unit_label(unit)
+    out = ["N-1 (each planned well out of service in turn):"]
+    if not fp.outages:
+        return out + ["  no well to take out"]
+    for r in fp.outages:
+        bad = []
+        for ep, short in r.shortfall.items():
+            if ep not in r.plan.unmet:
+                continue
+            what = []
+            if short > 0:
+                what.append(f"short {float(from_base(short, 'rate', unit)):,.4g} {label}")
+            if r.noncompliant[ep]:
+                what.append("over margin x limit: " + ", ".join(r.noncompliant[ep]))
+            if not what:
+                what.append("no plan for the entry points the wells' drawdown links")
+            bad.append(f"{ep} not met ({'; '.join(what)})")
+        out.append(f"  {r.well} out: " + ("; ".join(bad) if bad else
+                                          "every entry point met (plan re-optimised)"))
+    return out
