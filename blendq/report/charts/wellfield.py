@@ -74,7 +74,7 @@ def wellfield_chart(outcomes, units: str = "US", title: str | None = None,
     title : str, optional
     planned : dict well -> rate [m^3/d], optional
         The blending plan's rate of each well: a white diamond on the well's row, labelled
-        with the rate ("off" at zero).
+        with the rate ("plan: off" at the row's right end for a well the plan leaves off).
 
     Returns
     -------
@@ -125,14 +125,18 @@ def wellfield_chart(outcomes, units: str = "US", title: str | None = None,
                     solid_capstyle="butt", zorder=4, gid=f"recommended {o.name}")
             ax.annotate(f"{xr:,.0f}", (xr, y + 0.38), ha="center", va="bottom", fontsize=7,
                         zorder=5)
-        if planned is not None and o.name in planned:
+        if planned is not None and o.name in planned and planned[o.name] > 0:
             xp = float(_rate(planned[o.name], units)[0])
             ax.plot([xp], [y], marker="D", markersize=7, markerfacecolor="white",
                     markeredgecolor=VERMILLION, markeredgewidth=1.6, linestyle="none",
                     zorder=6, gid=f"planned {o.name}")
-            ax.annotate(f"plan {xp:,.0f}" if xp > 0 else "plan: off", (xp, y - 0.36),
+            ax.annotate(f"plan {xp:,.0f}", (xp, y - 0.36),
                         ha="left" if xp < 0.85 * x_top else "right", va="top", fontsize=7,
                         color=VERMILLION, zorder=6)
+        elif planned is not None and o.name in planned:
+            ax.annotate("plan: off", (0.99, y), xycoords=("axes fraction", "data"), ha="right",
+                        va="center", fontsize=7.5, color=VERMILLION, zorder=6,
+                        gid=f"planned {o.name}")
         if s.empty:
             ax.annotate("no window: " + textwrap.shorten(s.reason_empty, ERROR_CHARS,
                                                          placeholder="..."),
