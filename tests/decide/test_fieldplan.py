@@ -160,3 +160,31 @@ def test_an_other_source_without_a_planned_analyte_is_an_input_error(field):
     with pytest.raises(bq.api.InputError, match=r"sources\[1\]"):
         fieldplan.plan_inputs(wf, field.outcomes)
 
+
+
+def test_the_energy_curve_of_a_well_with_a_pump(tmp_path):
+    import shutil
+
+    from blendq.decide.batch import WellTask, analyse_well
+
+    data = Path(__file__).resolve().parents[1] / "data" / "pump"
+    shutil.copytree(EXAMPLE / "TH-9", tmp_path / "TH-9")
+    shutil.copy(data / "curve.csv", tmp_path / "TH-9" / "curve.csv")
+    with open(tmp_path / "TH-9" / "project.toml", "a", encoding="utf-8") as f:
+        f.write("\n" + (data / "pump.toml").read_text(encoding="utf-8"))
+    o = analyse_well(WellTask("TH-9", "E", tmp_path / "TH-9", seed=3, draws=DRAWS))
+    assert o.error is None, o.error
+    s = o.summary
+    e = s.energy
+    assert e is not None and e.shape == s.rates.shape
+    ok = np.isfinite(e)
+    assert ok.sum() >= 3
+    # E = rho g H / (eta_pump eta_motor eta_drive) per volume (the wire-to-water energy,
+    # e.g. Karassik et al. 2008): the total head H is at least the lift from the median
+    # pumping level to the 50 psi (35.2 m) at the wellhead, the efficiencies at most 1
+    rho_g = 1000.0 * 9.80665  # [N/m^3]
+    lift = s.pumping_level[ok] + 50 * 6894.757 / rho_g
+    assert np.all(e[ok] >= rho_g * lift / 3.6e6 * (1 - 1e-9))
+    # and no more than that lift plus 10 m of column losses at a 30 % pump efficiency with the
+    # default motor and drive efficiencies (0.92, 0.97)
+    assert np.all(e[ok] <= rho_g * (lift + 10.0) / (3.6e6 * 0.30 * 0.92 * 0.97))
