@@ -1432,6 +1432,13 @@ class WellfieldResult:
         table.attrs["cautions"] = self.cautions
         return table
 
+    def _plan_table(self) -> pd.DataFrame:
+        """The plan's table with its status in a last column (a wellfield without a plan
+        shows every rate 0 and says why)."""
+        table = self.plan().table()
+        table["plan_status"] = self.plan().status
+        return table
+
     def plan_lines(self) -> list[str]:
         """The plan and the N-1 outcome as text (display units)."""
         from blendq.decide.fieldplan import outage_lines, plan_lines
@@ -1457,13 +1464,14 @@ class WellfieldResult:
         """The output files of ``blendq wellfield``: wellfield.csv (the table), wellfield.png
         and wellfield.svg (the overview chart, the planned rates marked), wellfield.txt (the
         table, the plan and N-1 as text with the cautions), plan.csv (the plan's rates and
-        blends, :meth:`blendq.decide.blendplan.BlendPlan.table`) and n_minus_1.csv
+        blends, :meth:`blendq.decide.blendplan.BlendPlan.table`, with ``plan_status``) and
+        n_minus_1.csv
         (:meth:`n_minus_one`)."""
         from blendq.report.charts.render import render_chart
 
         png, svg = render_chart(self.plot.overview())
         return {"wellfield.csv": _outputs.to_csv_safe(self.table),
-                "plan.csv": _outputs.to_csv_safe(self.plan().table()),
+                "plan.csv": _outputs.to_csv_safe(self._plan_table()),
                 "n_minus_1.csv": _outputs.to_csv_safe(self.n_minus_one()),
                 "wellfield.png": png, "wellfield.svg": svg,
                 "wellfield.txt": "\n".join(self.lines()) + "\n"}

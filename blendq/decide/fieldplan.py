@@ -293,9 +293,9 @@ def plan_lines(fp: FieldPlan, units: str = "US") -> list[str]:
         return f"{float(from_base(v, 'rate', unit)):,.4g} {label}"
 
     p, inp = fp.plan, fp.inputs
+    # (no solve time here: the text is byte-identical for the same seed; BlendPlan has it)
     out = [f"Blending plan: {p.status} (objective: {OBJECTIVE_TEXT[p.objective]}; "
-           f"{p.draws_used} of {p.draws_total} draws in the program, solved in "
-           f"{p.solve_seconds:.1f} s)"]
+           f"{p.draws_used} of {p.draws_total} draws in the program)"]
     if p.feasible:
         eps = {w.name: w.entry_point for w in inp.wells}
         for name, rate in p.rates.items():

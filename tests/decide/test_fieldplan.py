@@ -152,6 +152,7 @@ def test_same_seed_same_plan_files(field):
     for name in ("plan.csv", "n_minus_1.csv", "wellfield.txt", "wellfield.csv"):
         assert a[name] == b[name], name
     assert "planning aid" in a["wellfield.txt"]
+    assert a["plan.csv"].splitlines()[1].endswith(",optimal plan")
 
 
 def test_an_other_source_without_a_planned_analyte_is_an_input_error(field):
