@@ -1343,8 +1343,12 @@ class WellfieldPlots:
         failed wells shown as such (cautions at the foot)."""
         from blendq.report.charts.wellfield import wellfield_chart
 
-        return wellfield_chart(self._result.outcomes, self._result.units,
-                               f"{self._result.wellfield.name}: each well's operating window")
+        r = self._result
+        plan = r.plan()
+        planned = plan.rates if plan.feasible else None
+        return wellfield_chart(r.outcomes, r.units,
+                               f"{r.wellfield.name}: each well's operating window",
+                               planned=planned)
 
     def __repr__(self) -> str:
         return f"charts of {self._result.wellfield.name}: overview()"
@@ -1361,12 +1365,19 @@ class WellfieldResult:
         One per well in the file's order: its summary (window, rate grid, predictive draws of
         the discharge concentration, limits; base units) or its one-line error.
     units : {"US", "SI", "SI-L/s"}
+    plan_draws : int
+        Draws of each well kept in the blending plan's program (the plan is checked against
+        all of them).
     """
 
-    def __init__(self, wellfield, outcomes, units: str = "US") -> None:
+    def __init__(self, wellfield, outcomes, units: str = "US",
+                 plan_draws: int | None = None) -> None:
+        from blendq.decide.fieldplan import PLAN_DRAWS
+
         self.wellfield = wellfield
         self.outcomes = list(outcomes)
         self.units = _unit_system(units)
+        self.plan_draws = PLAN_DRAWS if plan_draws is None else int(plan_draws)
 
     @cached_property
     def table(self) -> pd.DataFrame:
@@ -1398,6 +1409,43 @@ class WellfieldResult:
         """The wellfield's charts (``result.plot.overview()``)."""
         return WellfieldPlots(self)
 
+    @cached_property
+    def field_plan(self):
+        """The blending plan and its N-1 outages
+        (:class:`blendq.decide.fieldplan.FieldPlan`, solved on first use)."""
+        from blendq.decide.fieldplan import field_plan
+
+        return field_plan(self.wellfield, self.outcomes, max_draws=self.plan_draws)
+
+    def plan(self):
+        """The blending plan (:class:`blendq.decide.blendplan.BlendPlan`): rates per well
+        [m^3/d] that meet each entry point's demand with every analyte under margin x limit
+        with the wellfield's probability, or, without one, its diagnosis."""
+        return self.field_plan.plan
+
+    def n_minus_one(self) -> pd.DataFrame:
+        """The N-1 table: one row per planned well out of service and entry point
+        (:func:`blendq.decide.blendplan.outage_table`; shortfall in m^3/d)."""
+        from blendq.decide.blendplan import outage_table
+
+        table = outage_table(self.field_plan.outages)
+        table.attrs["cautions"] = self.cautions
+        return table
+
+    def _plan_table(self) -> pd.DataFrame:
+        """The plan's table with its status in a last column (a wellfield without a plan
+        shows every rate 0 and says why)."""
+        table = self.plan().table()
+        table["plan_status"] = self.plan().status
+        return table
+
+    def plan_lines(self) -> list[str]:
+        """The plan and the N-1 outcome as text (display units)."""
+        from blendq.decide.fieldplan import outage_lines, plan_lines
+
+        return [*plan_lines(self.field_plan, self.units),
+                *outage_lines(self.field_plan, self.units)]
+
     @property
     def cautions(self) -> list[str]:
         """The cautions every wellfield output carries."""
@@ -1409,16 +1457,22 @@ class WellfieldResult:
 
         head = (f"{self.wellfield.name}: {len(self.outcomes)} wells, "
                 f"{len(self.outcomes) - len(self.errors)} analysed, {len(self.errors)} failed")
-        return [head, *table_lines(self.table), "Caution: " + " ".join(self.cautions)]
+        return [head, *table_lines(self.table), *self.plan_lines(),
+                "Caution: " + " ".join(self.cautions)]
 
     def files(self) -> dict[str, bytes | str]:
         """The output files of ``blendq wellfield``: wellfield.csv (the table), wellfield.png
-        and wellfield.svg (the overview chart), wellfield.txt (the table as text with the
-        cautions)."""
+        and wellfield.svg (the overview chart, the planned rates marked), wellfield.txt (the
+        table, the plan and N-1 as text with the cautions), plan.csv (the plan's rates and
+        blends, :meth:`blendq.decide.blendplan.BlendPlan.table`, with ``plan_status``) and
+        n_minus_1.csv
+        (:meth:`n_minus_one`)."""
         from blendq.report.charts.render import render_chart
 
         png, svg = render_chart(self.plot.overview())
         return {"wellfield.csv": _outputs.to_csv_safe(self.table),
+                "plan.csv": _outputs.to_csv_safe(self._plan_table()),
+                "n_minus_1.csv": _outputs.to_csv_safe(self.n_minus_one()),
                 "wellfield.png": png, "wellfield.svg": svg,
                 "wellfield.txt": "\n".join(self.lines()) + "\n"}
 
@@ -1440,8 +1494,8 @@ def analyse_wellfield(path: str | os.PathLike[str], workers: int | None = None,
                       scheduler: Any = None, seed: int | None = None, *,
                       draws: int | None = None, units: str | None = None,
                       keep_analyses: bool = True,
-                      progress: Callable[[int, int, str], None] | None = None
-                      ) -> WellfieldResult:
+                      progress: Callable[[int, int, str], None] | None = None,
+                      plan_draws: int | None = None) -> WellfieldResult:
     """Analyse every well of a wellfield file (``wellfield.toml``, docs/input-files.md).
 
     Parameters
@@ -1463,6 +1517,10 @@ def analyse_wellfield(path: str | os.PathLike[str], workers: int | None = None,
         Keep each well's whole analysis (``result.wells``; about 11 MB per demo-sized well).
         False keeps only the summaries the table, the chart and the plan need.
     progress : callable(done, total, well name), optional
+    plan_draws : int, optional
+        Draws of each well kept in the blending plan's program (default
+        :data:`blendq.decide.blendplan.PLAN_DRAWS`); the plan is solved on first use
+        (``result.plan()``, ``result.n_minus_one()``, the output files).
 
     Returns
     -------
@@ -1479,4 +1537,4 @@ def analyse_wellfield(path: str | os.PathLike[str], workers: int | None = None,
     wf = read_wellfield(path)
     tasks = tasks_for(wf, seed=seed, draws=draws, keep_analysis=keep_analyses)
     outcomes = run_batch(tasks, workers=workers, scheduler=scheduler, progress=progress)
-    return WellfieldResult(wf, outcomes, units or wf.display_units)
+    return WellfieldResult(wf, outcomes, units or wf.display_units, plan_draws)

@@ -750,7 +750,9 @@ def wellfield_cmd(
 ) -> None:
     """Analyse every well of a wellfield (one project per well) and print the wellfield table:
     each well's window, recommended rate, limiting factor, trend and data gaps. A well that
-    fails reports its error; the others go on."""
+    fails reports its error; the others go on. Then the blending plan (rates per well meeting
+    each entry point's demand under margin x limit), or what would open one, and the N-1
+    outages."""
 
     def body():
         from blendq.api import analyse_wellfield
@@ -777,8 +779,9 @@ def wellfield_cmd(
             typer.echo(line)
         if out is not None:
             folder = result.write(out)
-            typer.echo(f"Wellfield table and chart written to {folder / 'wellfield.csv'} and "
-                       f"{folder / 'wellfield.png'}")
+            typer.echo(f"Wellfield table, blending plan, N-1 table and chart written to "
+                       f"{folder / 'wellfield.csv'}, {folder / 'plan.csv'}, "
+                       f"{folder / 'n_minus_1.csv'} and {folder / 'wellfield.png'}")
         _echo_cautions()
 
     _guard(body)

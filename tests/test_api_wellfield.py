@@ -62,6 +62,7 @@ def test_result(result):
 def test_write(result, tmp_path):
     folder = result.write(tmp_path / "out")
     assert sorted(p.name for p in folder.iterdir()) == sorted(
-        [MARKER_NAME, "wellfield.csv", "wellfield.png", "wellfield.svg", "wellfield.txt"])
+        [MARKER_NAME, "n_minus_1.csv", "plan.csv", "wellfield.csv", "wellfield.png",
+         "wellfield.svg", "wellfield.txt"])
     with pytest.raises(bq.api.InputError, match="would overwrite or delete"):
         result.write(result.wellfield.path.parent)

@@ -37,7 +37,13 @@ def test_the_demo_wellfield_end_to_end(tmp_path):
         assert f"{well} (entry point" in text
     assert "planning aid, not a compliance determination" in text.splitlines()[-1]
     assert sorted(p.name for p in out.iterdir()) == sorted(
-        [MARKER_NAME, "wellfield.csv", "wellfield.png", "wellfield.svg", "wellfield.txt"])
+        [MARKER_NAME, "n_minus_1.csv", "plan.csv", "wellfield.csv", "wellfield.png",
+         "wellfield.svg", "wellfield.txt"])
+    assert "Blending plan:" in text and "N-1 (each planned well out of service" in text
+    plan = pd.read_csv(out / "plan.csv")
+    assert set(plan["source"]) >= {"TH-2", "TH-5", "TH-7", "TH-9", "Interconnection"}
+    outages = pd.read_csv(out / "n_minus_1.csv")
+    assert list(dict.fromkeys(outages["well_out"])) == ["TH-2", "TH-5", "TH-7", "TH-9"]
     table = pd.read_csv(out / "wellfield.csv")
     assert list(table["well"]) == ["TH-2", "TH-5", "TH-7", "TH-9"]
     assert "window low [gpm]" in table.columns

@@ -194,7 +194,7 @@ def _run_processes(tasks: list[WellTask], n: int, done) -> None:
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
-    with _pipe_errors_not_fatal():
+    with _pipe_errors_not_fatal(), _one_blas_thread():
         pool = ProcessPoolExecutor(n, mp_context=multiprocessing.get_context("spawn"))
         try:
             futures = {pool.submit(analyse_well, t): k for k, t in enumerate(tasks)}
@@ -204,6 +204,25 @@ def _run_processes(tasks: list[WellTask], n: int, done) -> None:
             _terminate(pool)   # stays
             raise
         pool.shutdown(wait=True)
+
+
+#: environment variables of the BLAS/OpenMP thread pools a worker process would start
+BLAS_THREAD_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+@contextmanager
+def _one_blas_thread() -> Iterator[None]:
+    """One BLAS thread in each worker process (the workers already use every core; a BLAS
+    pool per worker would oversubscribe them): the variables the user has not set are set to
+    "1" while the pool starts its workers, which inherit them, and removed again after."""
+    added = [k for k in BLAS_THREAD_VARIABLES if k not in os.environ]
+    for k in added:
+        os.environ[k] = "1"
+    try:
+        yield
+    finally:
+        for k in added:
+            os.environ.pop(k, None)
 
 
 @contextmanager

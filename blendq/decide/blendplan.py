@@ -551,19 +551,21 @@ def _build(p: _Problem, mode: str = "plan", focus: tuple[int, int] | None = None
             # bounds on the load of each draw for the big-M and for draws decided in advance
             conc = [ld / np.maximum(pts[i], 1e-300) for i, ld in zip(mine, loads, strict=True)]
             positive = [pts[i] > 0 for i in mine]
-            c_hi = np.column_stack([c.max(axis=1) for c in conc]
-                                   + [np.full(n_used, p.other_c[k, a]) for k in var_ok])
-            c_lo = np.column_stack([np.where(pos, c, np.inf).min(axis=1, initial=np.inf)
-                                    if pos.any() else np.zeros(n_used)
-                                    for c, pos in zip(conc, positive, strict=True)]
-                                   + [np.full(n_used, p.other_c[k, a]) for k in var_ok])
+            # (an entry point may have no supply left to choose: every well out of service)
+            c_hi = _columns([c.max(axis=1) for c in conc]
+                            + [np.full(n_used, p.other_c[k, a]) for k in var_ok], n_used)
+            c_lo = _columns([np.where(pos, c, np.inf).min(axis=1, initial=np.inf)
+                             if pos.any() else np.zeros(n_used)
+                             for c, pos in zip(conc, positive, strict=True)]
+                            + [np.full(n_used, p.other_c[k, a]) for k in var_ok], n_used)
             caps = np.r_[[pts[i][-1] for i in mine], [p.others[k].max_rate for k in var_ok]]
             target = 0.0 if free else p.targets[a]
             scale = max(1.0, target * ep.demand)
             if mode == "demand":
                 lmax = fixed_load[a] + sum(ld.max(axis=1) for ld in loads) + sum(
                     p.others[k].max_rate * p.other_c[k, a] for k in var_ok)
-                big = np.minimum(lmax, ep.demand * np.maximum(c_hi.max(axis=1) - target, 0))
+                big = np.minimum(lmax, ep.demand * np.maximum(c_hi.max(axis=1, initial=0.0)
+                                                                - target, 0))
                 need = np.ones(n_used, bool)
                 could = need
             else:
@@ -656,6 +658,11 @@ def _build(p: _Problem, mode: str = "plan", focus: tuple[int, int] | None = None
             prog.row(np.r_[lam[i], excess[i]], np.r_[pts[i], -1.0], hi=w.max_rate)
             prog.row(np.r_[lam[i], on[i], excess[i]], np.r_[-pts[i], w.min_rate, -1.0], hi=0)
     return _Layout(prog, pts, lam, on, other, extra)
+
+
+def _columns(cols: list, n: int) -> np.ndarray:
+    """The columns side by side, (n, 0) when there is none."""
+    return np.column_stack(cols) if cols else np.zeros((n, 0))
 
 
 def _fill(conc: np.ndarray, caps: np.ndarray, volume: float, richest: bool) -> np.ndarray:

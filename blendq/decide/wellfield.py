@@ -58,6 +58,17 @@ class WellSummary:
         The table's texts (:func:`limiting_factor`, :func:`trend_text`, :func:`gaps_text`).
     decision : str
         The well's decision sentence (US units).
+    pumping_level : ndarray (n_rates,) or None [m depth]
+        Median over the draws of the predicted pumping level at each rate.
+    level_limit : float or None [m depth]
+        Deepest allowed pumping level: the operating intake depth minus the required
+        submergence, as the well's own level criterion uses.
+    log_sd : dict analyte -> float
+        sd of ln(S / m) of the statistic each limit is judged on [-]
+        (:attr:`blendq.decide.sweep.Statistic.log_sd`: temporal CV and lab error).
+    energy : ndarray (n_rates,) or None [kWh/m^3]
+        Wire-to-water energy per volume at the drive setting that delivers each rate, when the
+        project has a ``[pump]`` table (NaN where the pump cannot deliver the rate).
     """
 
     name: str
@@ -80,6 +91,10 @@ class WellSummary:
     trend: str = ""
     gaps: str = ""
     decision: str = ""
+    pumping_level: np.ndarray | None = None
+    level_limit: float | None = None
+    log_sd: dict[str, float] = field(default_factory=dict)
+    energy: np.ndarray | None = None
 
     @property
     def empty(self) -> bool:
@@ -163,6 +178,7 @@ def _listed_analytes(a: Analysis) -> set[str]:
 def summarise(a: Analysis, name: str, entry_point: str, seed: int) -> WellSummary:
     """The :class:`WellSummary` of one well's analysis."""
     from blendq.decide.analysis import decision_sentence
+    from blendq.decide.sweep import compliance_statistics
 
     w, s = a.window, a.project.settings
     hydraulic = np.ones(len(w.rates), bool)
@@ -179,7 +195,47 @@ def summarise(a: Analysis, name: str, entry_point: str, seed: int) -> WellSummar
         limits={k: float(lim.canonical()) for k, lim in a.limits.items()},
         margin=float(s.margin), exceedance_probability=float(s.exceedance_probability),
         limiting=limiting_factor(a), trend=trend_text(a), gaps=gaps_text(a),
-        decision=decision_sentence(a, "US"))
+        decision=decision_sentence(a, "US"),
+        pumping_level=np.median(np.asarray(pred.pumping_level, float), axis=0),
+        level_limit=float(a.project.well.operating_intake - a.project.well.submergence),
+        log_sd={k: float(st.log_sd)
+                for k, st in compliance_statistics(a.project, a.limits).items()},
+        energy=energy_curve(a))
+
+
+def energy_curve(a: Analysis) -> np.ndarray | None:
+    """Wire-to-water energy per volume [kWh/m^3] at each rate of the grid, at the drive
+    setting that delivers the rate against the median pumping level (the pump's curve scaled
+    by the affinity laws meeting the system curve, :mod:`blendq.decide.pumpset`); NaN where
+    no setting in the drive's range delivers it. None without a ``[pump]`` table.
+
+    References
+    ----------
+    Karassik, I.J., Messina, J.P., Cooper, P. and Heald, C.C. (2008) Pump Handbook, 4th ed.
+    McGraw-Hill (affinity laws, operating point, wire-to-water efficiency).
+    """
+    from blendq.decide import pumpset
+    from blendq.inputs.pump_file import read_pump
+
+    folder, files = a.project.folder, getattr(a.project, "files", {})
+    if folder is None or "project" not in files:
+        return None
+    spec = read_pump(folder / files["project"])
+    if spec is None:
+        return None
+    rates, band = pumpset.level_band(a)
+    curve, top = pumpset.curve_of(spec), float(rates[-1])
+    system = pumpset._system(spec, rates, band[1], 0.0)
+    out = np.full(len(rates), np.nan)
+    for k, q in enumerate(rates):
+        if q <= 0:
+            continue
+        f = pumpset._setting(curve, system, spec, float(q),
+                             (spec.min_frequency, spec.max_frequency), top)
+        e = pumpset.energy_at(curve, system, spec, f, top)
+        if np.isfinite(e["kwh_per_m3"]) and abs(e["rate"] - q) <= 1e-6 * max(q, 1.0):
+            out[k] = e["kwh_per_m3"]
+    return out
 
 
 #: columns of :func:`wellfield_table` ("{rate}" is the display rate unit)

@@ -159,3 +159,19 @@ def test_the_wellfield_rate_range_replaces_the_projects(field):
     assert not s.hydraulic_ok[s.rates > 200 * gpm * (1 + 1e-12)].any()
     (bad,) = run_batch([replace(nine, rate_min=2000 * gpm)], workers=1)
     assert bad.error.startswith("wellfield.toml field wells[3].rate_max: the rate range")
+
+
+def test_worker_processes_get_one_blas_thread_unless_the_user_chose(monkeypatch):
+    import os
+
+    from blendq.decide import batch
+
+    monkeypatch.delenv("OPENBLAS_NUM_THREADS", raising=False)
+    monkeypatch.delenv("MKL_NUM_THREADS", raising=False)
+    monkeypatch.setenv("OMP_NUM_THREADS", "3")
+    with batch._one_blas_thread():
+        assert os.environ["OPENBLAS_NUM_THREADS"] == "1"
+        assert os.environ["MKL_NUM_THREADS"] == "1"
+        assert os.environ["OMP_NUM_THREADS"] == "3"  # the user's own setting stays
+    assert "OPENBLAS_NUM_THREADS" not in os.environ and "MKL_NUM_THREADS" not in os.environ
+    assert os.environ["OMP_NUM_THREADS"] == "3"

@@ -3,7 +3,8 @@
 One row per well, grouped by entry point (each entry point its own colour and hatch, from the
 Okabe-Ito palette of :mod:`blendq.report.charts.quality`): a thin grey rail over the rates the
 well's hydraulic and pump criteria allow, the operating window as a bar on it, the recommended
-rate as a black bar across the row; a well without a window or whose analysis failed says so
+rate as a black bar across the row, the blending plan's rate (when there is a plan) as a
+white diamond; a well without a window or whose analysis failed says so
 in its row. The cautions run along the foot of the figure. matplotlib is imported lazily.
 
 References
@@ -61,7 +62,8 @@ def _runs(mask: np.ndarray) -> list[tuple[int, int]]:
     return [(int(a), int(b) - 1) for a, b in zip(edges[::2], edges[1::2], strict=True)]
 
 
-def wellfield_chart(outcomes, units: str = "US", title: str | None = None) -> Figure:
+def wellfield_chart(outcomes, units: str = "US", title: str | None = None,
+                    planned: dict[str, float] | None = None) -> Figure:
     """Each well's operating window as a horizontal bar on a common rate axis.
 
     Parameters
@@ -70,6 +72,9 @@ def wellfield_chart(outcomes, units: str = "US", title: str | None = None) -> Fi
         In the wellfield file's order (a failed well has no summary).
     units : {"US", "SI", "SI-L/s"}
     title : str, optional
+    planned : dict well -> rate [m^3/d], optional
+        The blending plan's rate of each well: a white diamond on the well's row, labelled
+        with the rate ("plan: off" at the row's right end for a well the plan leaves off).
 
     Returns
     -------
@@ -81,7 +86,7 @@ def wellfield_chart(outcomes, units: str = "US", title: str | None = None) -> Fi
     entries = list(dict.fromkeys(o.entry_point for o in outcomes))
     order = sorted(range(len(outcomes)), key=lambda k: (entries.index(outcomes[k].entry_point), k))
     n = len(outcomes)
-    legend_lines = -(-(len(entries) + 2) // LEGEND_COLUMNS)
+    legend_lines = -(-(len(entries) + 2 + (planned is not None)) // LEGEND_COLUMNS)
     fig, axes = _figure(1, 1, (8.0, 1.9 + 0.42 * n + 0.3 * legend_lines))
     ax = axes[0, 0]
     top = max((float(o.summary.rates.max()) for o in outcomes if o.summary is not None),
@@ -120,6 +125,18 @@ def wellfield_chart(outcomes, units: str = "US", title: str | None = None) -> Fi
                     solid_capstyle="butt", zorder=4, gid=f"recommended {o.name}")
             ax.annotate(f"{xr:,.0f}", (xr, y + 0.38), ha="center", va="bottom", fontsize=7,
                         zorder=5)
+        if planned is not None and o.name in planned and planned[o.name] > 0:
+            xp = float(_rate(planned[o.name], units)[0])
+            ax.plot([xp], [y], marker="D", markersize=7, markerfacecolor="white",
+                    markeredgecolor=VERMILLION, markeredgewidth=1.6, linestyle="none",
+                    zorder=6, gid=f"planned {o.name}")
+            ax.annotate(f"plan {xp:,.0f}", (xp, y - 0.36),
+                        ha="left" if xp < 0.85 * x_top else "right", va="top", fontsize=7,
+                        color=VERMILLION, zorder=6)
+        elif planned is not None and o.name in planned:
+            ax.annotate("plan: off", (0.99, y), xycoords=("axes fraction", "data"), ha="right",
+                        va="center", fontsize=7.5, color=VERMILLION, zorder=6,
+                        gid=f"planned {o.name}")
         if s.empty:
             ax.annotate("no window: " + textwrap.shorten(s.reason_empty, ERROR_CHARS,
                                                          placeholder="..."),
@@ -135,6 +152,10 @@ def wellfield_chart(outcomes, units: str = "US", title: str | None = None) -> Fi
                                                  for i in range(len(entries))], strict=True)]
     handles += [Line2D([], [], color=RAIL_COLOUR, linewidth=3.0, label="hydraulic range"),
                 Line2D([], [], color=BLACK, linewidth=2.6, label="recommended rate")]
+    if planned is not None:
+        handles.append(Line2D([], [], marker="D", markersize=7, markerfacecolor="white",
+                              markeredgecolor=VERMILLION, markeredgewidth=1.6,
+                              linestyle="none", label="blending plan's rate"))
     # room above the top well for the legend (a row of the chart is 0.42 in high)
     ax.set_ylim(-0.7, n - 0.2 + LEGEND_ROW * legend_lines)
     ax.legend(handles=handles, loc="upper center", ncols=min(len(handles), LEGEND_COLUMNS), fontsize=7.5, frameon=False,

@@ -1,0 +1,191 @@
+"""The wellfield's blending plan from the batch: the plan on the demo wells meets each entry
+point's demand exactly with the blend under margin x limit, a well out of service stays out,
+N-1 names the outage that breaks an entry point, the objective follows the pumps, and the same
+seed gives the same files."""
+
+from __future__ import annotations
+
+import copy
+from dataclasses import replace
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import blendq as bq
+from blendq.decide import fieldplan
+from blendq.decide.blendplan import BlendWell, EntryPoint, n_minus_one, outage_table
+
+EXAMPLE = Path(__file__).resolve().parents[2] / "examples" / "wellfield"
+DRAWS = 40
+
+
+@pytest.fixture(scope="module")
+def field(tmp_path_factory):
+    """The demo wells with the North plant's demand lowered to 600 gpm (the shipped 900 gpm
+    has no plan: nitrate binds there)."""
+    root = tmp_path_factory.mktemp("field")
+    text = (EXAMPLE / "wellfield.toml").read_text(encoding="utf-8")
+    text = text.replace('project = "TH-', f'project = "{EXAMPLE.as_posix()}/TH-')
+    text = text.replace('demand = "900 gpm"', 'demand = "600 gpm"')
+    (root / "wellfield.toml").write_text(text, encoding="utf-8")
+    return bq.analyse_wellfield(root, workers=1, draws=DRAWS, keep_analyses=False)
+
+
+def _load(w: BlendWell, q: float) -> np.ndarray:
+    """Load of each draw (n_draws, n_analytes) [mg/L m^3/d] at rate q: rate x concentration
+    interpolated linearly on the well's grid, as the plan's program states it."""
+    load = w.rates[None, :, None] * w.concentration
+    return np.stack([[np.interp(q, w.rates, load[d, :, a]) for a in range(load.shape[2])]
+                     for d in range(load.shape[0])])
+
+
+def test_the_plan_meets_each_demand_and_the_blend_stays_under_margin_x_limit(field):
+    fp = field.field_plan
+    p, inp = fp.plan, fp.inputs
+    assert p.feasible, p.status
+    assert p.objective == "even"  # no demo well has a [pump] table
+    assert p.draws_used == p.draws_total == DRAWS
+    wells = {w.name: w for w in inp.wells}
+    for e in inp.entry_points:
+        mine = [w for w in inp.wells if w.entry_point == e.name]
+        others = [o for o in inp.others if o.entry_point == e.name]
+        total = sum(p.rates[w.name] for w in mine) + sum(p.other_rates[o.name] for o in others)
+        np.testing.assert_allclose(total, e.demand, rtol=1e-7)
+        for w in mine:  # inside each well's hydraulic range, or off
+            q = p.rates[w.name]
+            assert q == 0 or w.min_rate * (1 - 1e-9) <= q <= w.max_rate * (1 + 1e-9)
+        # the blend recomputed here from the plan's inputs (not the plan's own report)
+        load = sum(_load(wells[w.name], p.rates[w.name]) for w in mine if p.rates[w.name] > 0)
+        load = load + sum(p.other_rates[o.name] * np.array(
+            [o.concentration[a] for a in inp.analytes]) for o in others)
+        blend = load / e.demand
+        target = inp.margin * np.array([inp.limits[a] for a in inp.analytes])
+        share = np.mean(np.all(blend <= target * (1 + 1e-7), axis=1))
+        assert share >= inp.probability
+        np.testing.assert_allclose(share, p.compliance[e.name], atol=1e-12)
+        rows = p.blend[p.blend["entry_point"] == e.name]
+        assert np.all(rows["quantile_in_plan_mg_l"] <= rows["target_mg_l"] * (1 + 1e-6))
+
+
+def test_plan_inputs_follow_the_summaries(field):
+    inp = fieldplan.plan_inputs(field.wellfield, field.outcomes)
+    assert [w.name for w in inp.wells] == ["TH-2", "TH-5", "TH-7", "TH-9"]
+    assert inp.limits == {"nitrate": pytest.approx(10.0), "arsenic": pytest.approx(0.010)}
+    for w in inp.wells:
+        s = field.summaries[w.name]
+        keep = np.isin(s.rates, w.rates)
+        assert np.all(s.hydraulic_ok[keep])
+        assert w.min_rate == w.rates[0] and w.max_rate == w.rates[-1]
+        # the 850 gpm cap of TH-7 in the file (850 gpm = 4633.5 m3/d) holds
+        if w.name == "TH-7":
+            assert w.max_rate <= 850 * 5.450961 * (1 + 1e-6)
+        f = fieldplan.variability_factors(inp.seed, w.name, DRAWS,
+                                          [s.log_sd[a] for a in inp.analytes])
+        np.testing.assert_allclose(w.concentration,
+                                   s.concentration[:, keep] * f[:, None, :], rtol=1e-12)
+        assert w.level_limit == pytest.approx(s.level_limit)
+    # interference: Theis at the file's distances, symmetric, zero diagonal
+    a = inp.interference
+    assert a.shape == (4, 4) and np.allclose(a, a.T, rtol=1e-12) and np.all(np.diag(a) == 0)
+
+
+def test_variability_factors_have_mean_one_and_the_asked_log_sd():
+    # a lognormal with log sd s has mean exp(mu + s^2/2) (Aitchison and Brown 1957)
+    f = fieldplan.variability_factors(7, "W", 40000, [0.1, 0.3, 0.0])
+    np.testing.assert_allclose(f.mean(axis=0), [1.0, 1.0, 1.0], atol=0.006)
+    np.testing.assert_allclose(np.log(f).std(axis=0), [0.1, 0.3, 0.0], rtol=0.02, atol=1e-12)
+    np.testing.assert_array_equal(f, fieldplan.variability_factors(7, "W", 40000,
+                                                                   [0.1, 0.3, 0.0]))
+    assert not np.array_equal(f, fieldplan.variability_factors(7, "V", 40000, [0.1, 0.3, 0.0]))
+
+
+def test_a_well_out_of_service_is_left_out(field):
+    wf = copy.copy(field.wellfield)
+    wf.wells = [replace(w, in_service=False) if w.name == "TH-9" else w for w in wf.wells]
+    fp = fieldplan.field_plan(wf, field.outcomes)
+    assert fp.inputs.left_out == {"TH-9": "out of service"}
+    assert "TH-9" not in [w.name for w in fp.inputs.wells]
+    assert "TH-9" not in fp.plan.rates
+    assert [r.well for r in fp.outages] == ["TH-2", "TH-5", "TH-7"]
+    assert any("TH-9: not in the plan (out of service)" in x
+               for x in fieldplan.plan_lines(fp, "US"))
+
+
+def test_n_minus_one_names_the_outage_that_breaks_an_entry_point(field):
+    table = field.n_minus_one()
+    row = table[(table["well_out"] == "TH-2") & (table["entry_point"] == "North plant")]
+    # without TH-2 the North plant has only TH-5, whose nitrate is over margin x limit at
+    # every rate (its own window is empty for nitrate)
+    assert not row["met"].item() and row["shortfall_m3_d"].item() > 0
+    assert "nitrate" in row["noncompliant"].item()
+    assert table[table["well_out"] == "TH-5"]["met"].all()
+    text = "\n".join(fieldplan.outage_lines(field.field_plan, "US"))
+    assert "TH-2 out: North plant not met" in text
+
+
+def test_n_minus_one_of_a_single_well_is_a_shortfall():
+    # one well feeding one entry point: out of service, nothing is left to meet the demand
+    rates = np.array([100.0, 200.0])
+    w = BlendWell("A", "E", rates, np.full((5, 2, 1), 1.0), 100.0, 200.0)
+    out = n_minus_one([w], [EntryPoint("E", 150.0)], {"x": 10.0}, 0.9, 0.9, ["x"])
+    assert len(out) == 1 and not out[0].feasible
+    np.testing.assert_allclose(out[0].shortfall["E"], 150.0, rtol=1e-9)
+    assert not outage_table(out)["met"].any()
+
+
+def test_the_objective_is_energy_when_every_well_has_a_pump_else_even(field):
+    outcomes = copy.deepcopy(field.outcomes)
+    for o in outcomes:  # an invented energy curve: 0.3 kWh/m3 rising with the rate
+        o.summary.energy = 0.3 + 2e-5 * o.summary.rates
+    fp = fieldplan.field_plan(field.wellfield, outcomes, n_minus_one=False)
+    assert fp.plan.feasible and fp.plan.objective == "energy"
+    assert all(w.energy is not None for w in fp.inputs.wells)
+    outcomes[1].summary.energy = None
+    fp = fieldplan.field_plan(field.wellfield, outcomes, n_minus_one=False)
+    assert fp.plan.objective == "even"
+
+
+def test_same_seed_same_plan_files(field):
+    again = bq.api.WellfieldResult(field.wellfield, field.outcomes, field.units)
+    a, b = field.files(), again.files()
+    for name in ("plan.csv", "n_minus_1.csv", "wellfield.txt", "wellfield.csv"):
+        assert a[name] == b[name], name
+    assert "planning aid" in a["wellfield.txt"]
+    assert a["plan.csv"].splitlines()[1].endswith(",optimal plan")
+
+
+def test_an_other_source_without_a_planned_analyte_is_an_input_error(field):
+    wf = copy.copy(field.wellfield)
+    wf.sources = [replace(s, concentrations={"nitrate": 0.3}) for s in wf.sources]
+    with pytest.raises(bq.api.InputError, match=r"sources\[1\]"):
+        fieldplan.plan_inputs(wf, field.outcomes)
+
+
+
+def test_the_energy_curve_of_a_well_with_a_pump(tmp_path):
+    import shutil
+
+    from blendq.decide.batch import WellTask, analyse_well
+
+    data = Path(__file__).resolve().parents[1] / "data" / "pump"
+    shutil.copytree(EXAMPLE / "TH-9", tmp_path / "TH-9")
+    shutil.copy(data / "curve.csv", tmp_path / "TH-9" / "curve.csv")
+    with open(tmp_path / "TH-9" / "project.toml", "a", encoding="utf-8") as f:
+        f.write("\n" + (data / "pump.toml").read_text(encoding="utf-8"))
+    o = analyse_well(WellTask("TH-9", "E", tmp_path / "TH-9", seed=3, draws=DRAWS))
+    assert o.error is None, o.error
+    s = o.summary
+    e = s.energy
+    assert e is not None and e.shape == s.rates.shape
+    ok = np.isfinite(e)
+    assert ok.sum() >= 3
+    # E = rho g H / (eta_pump eta_motor eta_drive) per volume (the wire-to-water energy,
+    # e.g. Karassik et al. 2008): the total head H is at least the lift from the median
+    # pumping level to the 50 psi (35.2 m) at the wellhead, the efficiencies at most 1
+    rho_g = 1000.0 * 9.80665  # [N/m^3]
+    lift = s.pumping_level[ok] + 50 * 6894.757 / rho_g
+    assert np.all(e[ok] >= rho_g * lift / 3.6e6 * (1 - 1e-9))
+    # and no more than that lift plus 10 m of column losses at a 30 % pump efficiency with the
+    # default motor and drive efficiencies (0.92, 0.97)
+    assert np.all(e[ok] <= rho_g * (lift + 10.0) / (3.6e6 * 0.30 * 0.92 * 0.97))
