@@ -1415,7 +1415,8 @@ class WellfieldResult:
         (:class:`blendq.decide.fieldplan.FieldPlan`, solved on first use)."""
         from blendq.decide.fieldplan import field_plan
 
-        return field_plan(self.wellfield, self.outcomes, max_draws=self.plan_draws)
+        return field_plan(self.wellfield, self.outcomes, max_draws=self.plan_draws,
+                          units=self.units)
 
     def plan(self):
         """The blending plan (:class:`blendq.decide.blendplan.BlendPlan`): rates per well

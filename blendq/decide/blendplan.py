@@ -25,7 +25,9 @@ import pandas as pd
 from scipy.optimize import Bounds, LinearConstraint, milp
 from scipy.sparse import coo_array
 
-from blendq.errors import InputError
+from blendq.chemistry.analytes import get_analyte
+from blendq.errors import InputError, ModelError
+from blendq.units import format_quantity
 
 #: draws of the chance constraint kept in the program when a well has more (common practice in
 #: the sample approximation of chance constraints: a few hundred scenarios); the plan is then
@@ -34,7 +36,9 @@ PLAN_DRAWS = 200
 #: relative optimality gap asked of the branch and bound (common practice for a plan that is
 #: compared against a grid search; HiGHS's own default is 1e-4)
 MIP_GAP = 1e-6
-#: wall-clock limit of one program [s] (common practice for an interactive tool)
+#: wall-clock limit of one program [s] (common practice for an interactive tool); a program
+#: that reaches it is an error, never a plan cut off by the clock (the same seed gives the
+#: same plan)
 TIME_LIMIT = 60.0
 #: tolerance on a constraint counted as met or as binding (relative to its right-hand side)
 TOLERANCE = 1e-7
@@ -284,6 +288,7 @@ class _Problem:
     interference: np.ndarray | None   # (n_all, n_all) [m per m^3/d]
     objective: str
     notes: list[str]
+    units: str = "SI"                  # display units of the texts (blendq.units)
 
 
 def _interp(grid: np.ndarray, values: np.ndarray, x, axis: int = 1) -> np.ndarray:
@@ -682,6 +687,9 @@ def _fill(conc: np.ndarray, caps: np.ndarray, volume: float, richest: bool) -> n
 def _run(p: _Problem, lay: _Layout, time_limit: float):
     t0 = time.perf_counter()
     res = lay.prog.solve(time_limit)
+    if res.status == 1:  # a clock that cuts the search would make the plan differ run to run
+        raise ModelError(f"the blending program did not finish within {time_limit:g} s: raise "
+                         "the time limit or use fewer draws in the program (max_draws)")
     return res, time.perf_counter() - t0
 
 
@@ -814,6 +822,22 @@ def _richest(p: _Problem, e: int, a: int) -> list[str]:
     return [n for _, n in sorted(out)]
 
 
+def _rate(v: float, units: str) -> str:
+    """A rate [m^3/d] in the display units of the texts."""
+    return format_quantity(float(v), "rate", units)
+
+
+def _length(v: float, units: str) -> str:
+    """A length [m] in the display units of the texts."""
+    return format_quantity(float(v), "length", units)
+
+
+def _conc(analyte: str, v: float) -> str:
+    """A concentration [mg/L] in the analyte's display unit."""
+    an = get_analyte(analyte)
+    return f"{float(an.in_display_unit(np.asarray([v]))[0]):.4g} {an.display_unit}"
+
+
 def _diagnose(p: _Problem, time_limit: float) -> tuple[list[Relaxation], float]:
     out, spent = [], 0.0
     pr = f"{100 * p.probability:g} %"
@@ -827,9 +851,9 @@ def _diagnose(p: _Problem, time_limit: float) -> tuple[list[Relaxation], float]:
             if got < ep.demand * (1 - 1e-6) - 1e-9:
                 out.append(Relaxation(
                     "demand", ep.name, None, True, got, ep.demand,
-                    f"{ep.name}: at most {got:.6g} m^3/d of the demand {ep.demand:.6g} m^3/d "
-                    f"can be delivered with every limit met (short {ep.demand - got:.4g} "
-                    "m^3/d): another source, treatment, or a well modification (seal a zone "
+                    f"{ep.name}: at most {_rate(got, p.units)} of the demand "
+                    f"{_rate(ep.demand, p.units)} can be delivered with every limit met (short "
+                    f"{_rate(ep.demand - got, p.units)}): another source, treatment, or a well modification (seal a zone "
                     "or move an intake; see each well's scenarios) would make up the rest."))
     else:
         out.append(Relaxation("demand", None, None, False, float("nan"), float("nan"),
@@ -867,7 +891,7 @@ def _diagnose(p: _Problem, time_limit: float) -> tuple[list[Relaxation], float]:
             who = _richest(p, e, a)
             cut = 100 * (1 - tgt / u)
             text = (f"{name} at {ep.name}: the lowest achievable {pr} quantile of the blend at "
-                    f"the demand is {u:.4g} mg/L against margin x limit {tgt:.4g} mg/L"
+                    f"the demand is {_conc(name, u)} against margin x limit {_conc(name, tgt)}"
                     + (" (with this analyte alone constrained; other limits bind too)"
                        if alone else "")
                     + f": treatment removing at least {cut:.0f} % of the {name}, another "
@@ -886,10 +910,10 @@ def _diagnose(p: _Problem, time_limit: float) -> tuple[list[Relaxation], float]:
             for w in p.wells:
                 r = q[w.index]
                 if r > w.max_rate * (1 + 1e-6):
-                    over.append(f"{w.name} at {r:.4g} m^3/d, {r - w.max_rate:.4g} above its "
+                    over.append(f"{w.name} at {_rate(r, p.units)}, {_rate(r - w.max_rate, p.units)} above its "
                                 "highest rate")
                 elif 0 < r < w.min_rate * (1 - 1e-6):
-                    over.append(f"{w.name} at {r:.4g} m^3/d, {w.min_rate - r:.4g} below its "
+                    over.append(f"{w.name} at {_rate(r, p.units)}, {_rate(w.min_rate - r, p.units)} below its "
                                 "lowest rate")
             total = float(sum(res.x[lay.extra["excess"]]))
             out.append(Relaxation("rate limits", None, None, True, total, 0.0,
@@ -903,7 +927,7 @@ def _diagnose(p: _Problem, time_limit: float) -> tuple[list[Relaxation], float]:
             s = float(res.x[lay.extra["slack"]])
             if s > 1e-6:
                 out.append(Relaxation("level limits", None, None, True, s, 0.0,
-                                      f"a plan exists only with pumping levels up to {s:.3g} m "
+                                      f"a plan exists only with pumping levels up to {_length(s, p.units)} "
                                       "below the deepest allowed (lower the pump intake, or "
                                       "spread the pumping to wells farther apart)."))
     return out, spent
@@ -917,7 +941,8 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
                   probability: float, analytes: list[str], other_sources=(),
                   interference: np.ndarray | None = None, objective: str = "auto",
                   max_draws: int | None = PLAN_DRAWS, seed: int = 0,
-                  time_limit: float = TIME_LIMIT, diagnose: bool = True) -> BlendPlan:
+                  time_limit: float = TIME_LIMIT, diagnose: bool = True,
+                  units: str = "SI") -> BlendPlan:
     """Rates for the wells that meet every entry point's demand and, in at least
     ``probability`` of the draws, every analyte's margin x limit at every entry point.
 
@@ -949,7 +974,10 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
     seed : int
         Seed of the subset.
     time_limit : float
-        Wall-clock limit of each program [s].
+        Wall-clock limit of each program [s]; a program that reaches it raises ModelError
+        (a plan cut off by the clock would differ from run to run).
+    units : str
+        Display unit system of the diagnosis texts ("US", "SI", "SI-L/s").
     diagnose : bool
         Relax each constraint family in turn when no plan exists.
 
@@ -991,8 +1019,8 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
     of the 5th International Conference on Operational Research, 447-454 (ordered sets for
     piecewise-linear functions).
     """
-    p = _check(wells, entry_points, limits, margin, probability, analytes, other_sources,
-               interference, objective, max_draws, seed)
+    p = replace(_check(wells, entry_points, limits, margin, probability, analytes,
+                       other_sources, interference, objective, max_draws, seed), units=units)
     base = dict(objective=p.objective, probability=p.probability, margin=p.margin,
                 draws_used=int(p.used.size), draws_total=int(p.n_draws))
     notes = list(p.notes)
@@ -1028,8 +1056,7 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
     rates = {n: float(r) for n, r in zip(p.names, q, strict=True)}
     other_rates = {o.name: float(r) for o, r in zip(p.others, qo, strict=True)}
     if failed:
-        status = ("no plan found within the time limit" if 1 in statuses else
-                  "no plan meets every constraint") + " at " + "; ".join(failed)
+        status = "no plan meets every constraint at " + "; ".join(failed)
         if len(failed) < len(statuses):
             notes.append("the rates shown for the other entry points are their own plan; the "
                          "wells of " + "; ".join(failed) + " are shown off.")
@@ -1039,8 +1066,7 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
                          binding=[_label(r) for r in diagnosis if r.opens],
                          diagnosis=diagnosis, notes=notes, solve_seconds=spent,
                          unmet=unmet, _sources=sources, **base)
-    status = ("optimal plan" if all(s == 0 for s in statuses) else
-              "best plan found within the time limit (not proven optimal)")
+    status = "optimal plan"
     low = [e for e, c in comp.items() if c < p.probability]
     if low:
         notes.append("over all draws the compliance at " + ", ".join(
@@ -1095,7 +1121,7 @@ def n_minus_one(wells, entry_points, limits: dict[str, float], margin: float,
                 probability: float, analytes: list[str], other_sources=(),
                 interference: np.ndarray | None = None, objective: str = "auto",
                 max_draws: int | None = PLAN_DRAWS, seed: int = 0,
-                time_limit: float = TIME_LIMIT) -> list[OutageResult]:
+                time_limit: float = TIME_LIMIT, units: str = "SI") -> list[OutageResult]:
     """The blending plan with each available well out of service in turn.
 
     Parameters are those of :func:`blending_plan`.
@@ -1119,7 +1145,7 @@ def n_minus_one(wells, entry_points, limits: dict[str, float], margin: float,
         trial = [replace(x, available=False) if k == i else x for k, x in enumerate(wells)]
         plan = blending_plan(trial, entry_points, limits, margin, probability, analytes,
                              other_sources, interference, objective, max_draws, seed,
-                             time_limit)
+                             time_limit, units=units)
         short = {e.name: 0.0 for e in entry_points}
         bad: dict[str, list[str]] = {e.name: [] for e in entry_points}
         for r in plan.diagnosis:

@@ -228,7 +228,7 @@ class FieldPlan:
 
 def field_plan(wellfield, outcomes, seed: int | None = None,
                max_draws: int | None = PLAN_DRAWS, time_limit: float = bp.TIME_LIMIT,
-               n_minus_one: bool = True) -> FieldPlan:
+               n_minus_one: bool = True, units: str = "SI") -> FieldPlan:
     """The blending plan of a wellfield (:func:`blendplan.blending_plan`, objective "auto":
     least energy when every planned well has an energy curve, else the most even use) and,
     when asked, the plan with each planned well out of service in turn
@@ -243,8 +243,10 @@ def field_plan(wellfield, outcomes, seed: int | None = None,
     max_draws : int or None
         Draws kept in each program.
     time_limit : float
-        Wall-clock limit of each program [s].
+        Wall-clock limit of each program [s] (reaching it is a ModelError).
     n_minus_one : bool
+    units : str
+        Display unit system of the diagnosis texts.
 
     Returns
     -------
@@ -258,9 +260,9 @@ def field_plan(wellfield, outcomes, seed: int | None = None,
     p = plan_inputs(wellfield, outcomes, seed)
     args = (p.wells, p.entry_points, p.limits, p.margin, p.probability, p.analytes, p.others,
             p.interference)
-    plan = bp.blending_plan(*args, max_draws=max_draws, seed=p.seed, time_limit=time_limit)
-    outages = (bp.n_minus_one(*args, max_draws=max_draws, seed=p.seed, time_limit=time_limit)
-               if n_minus_one else [])
+    kw = dict(max_draws=max_draws, seed=p.seed, time_limit=time_limit, units=units)
+    plan = bp.blending_plan(*args, **kw)
+    outages = bp.n_minus_one(*args, **kw) if n_minus_one else []
     return FieldPlan(p, plan, outages)
 
 

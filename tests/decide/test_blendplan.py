@@ -14,7 +14,7 @@ from blendq.decide.blendplan import (
     n_minus_one,
     outage_table,
 )
-from blendq.errors import InputError
+from blendq.errors import InputError, ModelError
 
 
 def _flat(name, c, energy=None, lo=0.0, hi=1000.0, ep="EP", levels=11, draws=1, **kw):
@@ -279,3 +279,31 @@ def test_bad_input_raises_input_error():
     with pytest.raises(InputError, match="energy"):
         blending_plan([w], [EntryPoint("EP", 10.0)], {"x": 1.0}, 0.9, 0.9, ["x"],
                       objective="energy")
+
+
+def test_diagnosis_speaks_the_display_units():
+    # the arsenic case above: 0.0136 mg/L is 13.6 ug/L against 9 ug/L; B's 800 m^3/d cap
+    wells = [_flat("A", [3.0, 0.020], 0.3, hi=1000.0), _flat("B", [1.0, 0.012], 0.3, hi=800.0)]
+    args = ([EntryPoint("EP", 1000.0)], {"nitrate": 10.0, "arsenic": 0.010}, 0.9, 0.9,
+            ["nitrate", "arsenic"])
+    us = blending_plan(wells, *args, units="US")
+    (quality,) = [r.text for r in us.diagnosis if r.family == "quality"]
+    assert "13.6 ug/L against margin x limit 9 ug/L" in quality.replace("µ", "u")
+    (demand,) = [r.text for r in us.diagnosis if r.family == "demand"]
+    # 1000 m^3/d = 183 gpm (1 gpm = 5.450992969 m^3/d)
+    assert "of the demand 183 gpm" in demand and "m^3/d" not in demand
+    si = blending_plan(wells, *args, units="SI-L/s")
+    (demand,) = [r.text for r in si.diagnosis if r.family == "demand"]
+    assert "of the demand 11.6 L/s" in demand  # 1000 / 86.4
+
+
+def test_a_program_cut_off_by_the_clock_is_an_error():
+    # a plan cut off by the wall clock would differ from run to run: never returned
+    rng = np.random.default_rng(3)
+    r = np.linspace(100, 900, 40)
+    wells = [BlendWell(f"W{k}", "EP", r, c * rng.lognormal(0, 0.3, (200, 40, 1)), 100, 900,
+                       energy=np.linspace(0.3, 0.5, 40) * (1 + k / 10))
+             for k, c in enumerate((14.0, 3.0, 9.0, 11.0, 6.0))]
+    with pytest.raises(ModelError, match="did not finish within 1e-06 s"):
+        blending_plan(wells, [EntryPoint("EP", 2500.0)], {"x": 10.0}, 0.9, 0.9, ["x"],
+                      time_limit=1e-6)
