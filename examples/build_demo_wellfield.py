@@ -70,7 +70,7 @@ seed = 20261202
 
 [[entry_points]]
 name = "North plant"
-demand = "900 gpm"
+demand = "650 gpm"
 
 [[entry_points]]
 name = "South plant"
