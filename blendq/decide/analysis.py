@@ -128,14 +128,16 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
         bias = memory.sample_bias(fit.model, mem_fit, fit.concentrations[fit.analytes])
         per_result = observations.returned_water_use(
             per_result, mem_fit, bias, flag, float(review.options["returned_water_exclude"]))
-        fit = estimation.fit(fit_project, sample_use=per_result)
+        # from the first fit's parameters: the widened results move the optimum little
+        fit = estimation.fit(fit_project, sample_use=per_result, start=fit.theta)
     s = project.settings
     d = uncertainty.monte_carlo(fit, s.draws if draws is None else draws,
                                 s.seed if seed is None else seed, progress=progress)
     # zone values the data cannot pin spread over what the data allow (every draw still
     # reproduces the samples); the table's intervals then come from those draws
-    d = unresolved.redraw_unresolved(fit, d, diagnostics.zone_table(fit, d, s.interval))
-    zones = diagnostics.zone_table(fit, d, s.interval)
+    basis = diagnostics.zone_basis(fit)
+    d = unresolved.redraw_unresolved(fit, d, diagnostics.zone_table(fit, d, s.interval, basis))
+    zones = diagnostics.zone_table(fit, d, s.interval, basis)
     time_fits = history.history_time_fits(project, fit, d)
     if time_fits:  # the history's scatter replaces the temporal_cv setting
         s = replace(s, temporal_cv={**s.temporal_cv, **{k: f.temporal_cv

@@ -179,6 +179,23 @@ def solve_censored_lsq_batch(a, y, sigma, lb, ub, a_censored=None, dl=None, rtol
     return np.clip(best, lb, ub)
 
 
+def solve_each(mat, rhs, rcond: float = 1e-12) -> np.ndarray:
+    """Solve the stacked systems mat x = rhs, (B, k, k) and (B, k, r); a singular system is
+    solved by least squares (pseudo-inverse, ``rcond``) on its own, so each problem's solution
+    does not depend on the problems solved with it."""
+    try:
+        return np.linalg.solve(mat, rhs)
+    except np.linalg.LinAlgError:
+        out = np.empty(np.broadcast_shapes(mat.shape[:-1], rhs.shape[:-2] + (1,))[:-1]
+                       + rhs.shape[-2:])
+        for b in range(mat.shape[0]):
+            try:
+                out[b] = np.linalg.solve(mat[b], rhs[b])
+            except np.linalg.LinAlgError:
+                out[b] = np.linalg.pinv(mat[b], rcond=rcond) @ rhs[b]
+        return out
+
+
 def constraint_rows(lb, ub, a_censored=None, dl=None):
     """The constraints of :func:`solve_censored_lsq_batch` as rows G c <= h.
 
@@ -249,7 +266,6 @@ def solve_on_active_set(a, y, sigma, g, h, active, rtol=1e-9, with_changes: bool
     """
     a = np.asarray(a, float)
     bsz, m, n = a.shape
-    shared = np.asarray(g, float)
     g = np.broadcast_to(g, (bsz,) + g.shape[1:])
     k = g.shape[1]
     w = 1.0 / np.broadcast_to(np.asarray(sigma, float), (bsz, m))
@@ -261,25 +277,31 @@ def solve_on_active_set(a, y, sigma, g, h, active, rtol=1e-9, with_changes: bool
     hess = hess / s[:, None, None]
     grad = grad / s[:, None]
     act = np.asarray(active, float)
-    fast = _solve_bounds_only(hess, grad, shared, h, act)
-    if fast is not None:
-        c, lam = fast
-        return _optimality(c, lam, g, h, act, grad, rtol, with_changes)
-    kkt = np.zeros((bsz, n + k, n + k))
-    kkt[:, :n, :n] = hess
-    kkt[:, :n, n:] = np.swapaxes(g, 1, 2) * act[:, None, :]
-    kkt[:, n:, :n] = g * act[:, :, None]
-    kkt[:, n:, n:] = np.eye(k)[None] * (1.0 - act)[:, :, None]
-    rhs = np.concatenate([grad, act * h[None, :]], axis=1)
-    # a tiny ridge on the curvature (1e-10 of its largest value) keeps the system regular where
-    # the data do not see a zone; such a zone then takes the least-norm value, as with a
-    # pseudo-inverse, and the fitted blends are unchanged
-    kkt[:, :n, :n] += 1e-10 * np.eye(n)
-    try:
-        sol = np.linalg.solve(kkt, rhs[..., None])[..., 0]
-    except np.linalg.LinAlgError:  # dependent active constraints: least squares
-        sol = np.einsum("bij,bj->bi", np.linalg.pinv(kkt, rcond=1e-12), rhs)
-    return _optimality(sol[:, :n], sol[:, n:], g, h, act, grad, rtol, with_changes)
+    c = np.empty((bsz, n))
+    lam = np.empty((bsz, k))
+    # problems whose active constraints are bounds, at most one a zone: the reduced system;
+    # the others (and every problem with censored rows) the KKT system. Chosen problem by
+    # problem, so a solution does not depend on the problems solved with it
+    fast = _bounds_only_problems(g, act)
+    if fast.any():
+        c[fast], lam[fast] = _solve_bounds_only(hess[fast], grad[fast], g[fast], h, act[fast])
+    rest = np.flatnonzero(~fast)
+    if len(rest):
+        gr, ar = g[rest], act[rest]
+        kkt = np.zeros((len(rest), n + k, n + k))
+        kkt[:, :n, :n] = hess[rest]
+        kkt[:, :n, n:] = np.swapaxes(gr, 1, 2) * ar[:, None, :]
+        kkt[:, n:, :n] = gr * ar[:, :, None]
+        kkt[:, n:, n:] = np.eye(k)[None] * (1.0 - ar)[:, :, None]
+        rhs = np.concatenate([grad[rest], ar * h[None, :]], axis=1)
+        # a tiny ridge on the curvature (1e-10 of its largest value) keeps the system regular
+        # where the data do not see a zone; such a zone then takes the least-norm value, as
+        # with a pseudo-inverse, and the fitted blends are unchanged
+        kkt[:, :n, :n] += 1e-10 * np.eye(n)
+        # dependent active constraints: least squares for that problem
+        sol = solve_each(kkt, rhs[..., None])[..., 0]
+        c[rest], lam[rest] = sol[:, :n], sol[:, n:]
+    return _optimality(c, lam, g, h, act, grad, rtol, with_changes)
 
 
 def _optimality(c, lam, g, h, act, grad, rtol, with_changes):
@@ -296,36 +318,35 @@ def _optimality(c, lam, g, h, act, grad, rtol, with_changes):
     return c, optimal
 
 
+def _bounds_only_problems(g, act) -> np.ndarray:
+    """Which problems :func:`_solve_bounds_only` solves: every constraint row of the problem
+    a bound (one entry, +1 or -1) and no zone with two active bounds; shape (B,) of bool.
+    A property of each problem alone (a censored row that holds one zone only counts as its
+    bound), so the choice does not depend on the problems solved with it."""
+    nz = g != 0
+    unit = np.all((nz.sum(2) == 1) & (np.abs(g).sum(2) == 1.0), axis=1)
+    twice = np.any(np.einsum("bk,bkn->bn", act, nz.astype(float)) > 1, axis=1)
+    return np.broadcast_to(unit, act.shape[:1]) & ~twice
+
+
 def _solve_bounds_only(hess, grad, g, h, act):
-    """The system of :func:`solve_on_active_set` when every constraint is a bound shared by
-    the batch (no censored rows) and no zone has two active bounds: the zones on an active
-    bound are fixed at it and the free zones solve an n x n system instead of the (n + K)
-    square KKT system (the same solution; the multiplier of an active bound is the gradient
-    left in its zone's row). None when the constraints are not of that form."""
-    if g.shape[0] != 1:
-        return None
-    rows = g[0]
-    nz = rows != 0
-    if rows.shape[0] and not (np.all(nz.sum(1) == 1) and np.all(np.abs(rows[nz]) == 1.0)):
-        return None
+    """The system of :func:`solve_on_active_set` for the problems of
+    :func:`_bounds_only_problems`: the zones on an active bound are fixed at it and the free
+    zones solve an n x n system instead of the (n + K) square KKT system (the same solution;
+    the multiplier of an active bound is the gradient left in its zone's row)."""
     bsz, n = grad.shape
-    onehot = nz.astype(float)  # (K, n): the zone of each bound
-    sgn = rows.sum(1)  # +1 upper, -1 lower: sgn c_i <= h at equality c_i = sgn h
-    if np.any(act @ onehot > 1):
-        return None
-    fixed = (act @ onehot) > 0
-    value = (act * (sgn * h)[None, :]) @ onehot
+    onehot = np.abs(g)  # (B, K, n): the zone of each bound
+    sgn = g.sum(2)  # +1 upper, -1 lower: sgn c_i <= h at equality c_i = sgn h
+    fixed = np.einsum("bk,bkn->bn", act, onehot) > 0
+    value = np.einsum("bk,bkn->bn", act * sgn * h[None, :], onehot)
     free = ~fixed
     mat = hess + 1e-10 * np.eye(n)[None]
     rhs = np.where(free, grad - np.einsum("bij,bj->bi", mat, value), value)
     red = np.where(free[:, :, None] & free[:, None, :], mat, 0.0)
     red[:, np.arange(n), np.arange(n)] += fixed
-    try:
-        c = np.linalg.solve(red, rhs[..., None])[..., 0]
-    except np.linalg.LinAlgError:
-        c = np.einsum("bij,bj->bi", np.linalg.pinv(red, rcond=1e-12), rhs)
+    c = solve_each(red, rhs[..., None])[..., 0]
     left = grad - np.einsum("bij,bj->bi", mat, c)  # G^T lam on the fixed zones
-    lam = act * sgn[None, :] * (left @ onehot.T)
+    lam = act * sgn * np.einsum("bn,bkn->bk", left, onehot)
     return c, lam
 
 

@@ -99,23 +99,14 @@ def data_allowed_range(a, y, sigma, lb, ub, a_cens=None, dl=None, z: float = 2.0
     return lo, hi
 
 
-def zone_table(fit: FitResult, draws: Draws, interval: float = 0.90) -> pd.DataFrame:
-    """One row per zone and analyte: estimate, sd, interval, verdict and data-allowed range.
-
-    A zone is *weakly resolved* when its interval is wider than half its own value (or than a
-    tenth of the analyte's largest zone value, for zones near zero; :func:`weakly_resolved`),
-    *resolved* otherwise.
-    The data-allowed range is computed at the fitted hydraulics; the interval also carries the
-    hydraulic uncertainty, so the two need not nest.
-
-    Columns: zone, analyte, estimate, sd, lower, upper, verdict, range_low, range_high
-    (concentrations in mg/L on the analyte's canonical basis). ``estimate``, ``sd``, ``lower``
-    and ``upper`` are NaN for a zone the data do not resolve.
-    """
+def zone_basis(fit: FitResult) -> list[dict]:
+    """What :func:`zone_table` takes from the fit alone (not from the draws), per analyte: the
+    zone values, their linearised sd, the data-allowed range, which zones the data cannot see,
+    and the analyte's scale. Worked out once when the table is made for several sets of draws
+    of one fit."""
     problem = fit.problem
     sd_lin = linearised_zone_sd(fit)
-    q = [(1 - interval) / 2, 1 - (1 - interval) / 2]
-    rows = []
+    out = []
     for j, analyte in enumerate(fit.analytes):
         d = problem.data[analyte]
         c, a, ac = solve_concentrations(problem, fit.model, analyte)
@@ -128,24 +119,50 @@ def zone_table(fit: FitResult, draws: Draws, interval: float = 0.90) -> pd.DataF
         z = max(2.0, float(chi.max()) * 1.05 if chi.size else 2.0)
         lo, hi = data_allowed_range(a, d.value, d.sigma, lb, ub, ac if len(ac) else None,
                                     d.cens_limit if len(ac) else None, z=z)
-        scale = max(float(np.nanmax(np.abs(c))), 1e-12)
+        unseen = [(null.shape[0] > 0 and np.abs(null[:, i]).max() > 0.1)
+                  or (a[:, i].max() if a.size else 0.0) <= 1e-9 or not np.isfinite(hi[i])
+                  for i in range(len(c))]
+        out.append(dict(c=c, sd=sd_lin[:, j], lo=lo, hi=hi, unseen=unseen,
+                        scale=max(float(np.nanmax(np.abs(c))), 1e-12)))
+    return out
+
+
+def zone_table(fit: FitResult, draws: Draws, interval: float = 0.90,
+               basis: list[dict] | None = None) -> pd.DataFrame:
+    """One row per zone and analyte: estimate, sd, interval, verdict and data-allowed range.
+
+    A zone is *weakly resolved* when its interval is wider than half its own value (or than a
+    tenth of the analyte's largest zone value, for zones near zero; :func:`weakly_resolved`),
+    *resolved* otherwise.
+    The data-allowed range is computed at the fitted hydraulics; the interval also carries the
+    hydraulic uncertainty, so the two need not nest.
+
+    Columns: zone, analyte, estimate, sd, lower, upper, verdict, range_low, range_high
+    (concentrations in mg/L on the analyte's canonical basis). ``estimate``, ``sd``, ``lower``
+    and ``upper`` are NaN for a zone the data do not resolve. ``basis``: :func:`zone_basis` of
+    the same fit, when the caller has it already.
+    """
+    basis = zone_basis(fit) if basis is None else basis
+    q = [(1 - interval) / 2, 1 - (1 - interval) / 2]
+    rows = []
+    for j, analyte in enumerate(fit.analytes):
+        b = basis[j]
+        c = b["c"]
         lower, upper = np.quantile(draws.zone_values[:, :, j], q, axis=0)
         for i, zone in enumerate(fit.zone_names):
-            in_null = null.shape[0] > 0 and np.abs(null[:, i]).max() > 0.1
-            unseen = (a[:, i].max() if a.size else 0.0) <= 1e-9
-            if in_null or unseen or not np.isfinite(hi[i]):
+            if b["unseen"][i]:
                 verdict = "not resolved"
-            elif weakly_resolved(upper[i] - lower[i], c[i], scale):
+            elif weakly_resolved(upper[i] - lower[i], c[i], b["scale"]):
                 verdict = "weakly resolved"
             else:
                 verdict = "resolved"
             shown = verdict != "not resolved"
             rows.append(dict(zone=zone, analyte=analyte,
                              estimate=c[i] if shown else np.nan,
-                             sd=sd_lin[i, j] if shown else np.nan,
+                             sd=b["sd"][i] if shown else np.nan,
                              lower=lower[i] if shown else np.nan,
                              upper=upper[i] if shown else np.nan,
-                             verdict=verdict, range_low=lo[i], range_high=hi[i]))
+                             verdict=verdict, range_low=b["lo"][i], range_high=b["hi"][i]))
     return pd.DataFrame(rows)
 
 

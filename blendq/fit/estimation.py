@@ -533,7 +533,7 @@ LOSS_RESOLVED_FRACTION = 0.5
 
 
 def fit(project: Project, options: FitOptions | None = None,
-        sample_use: pd.DataFrame | None = None) -> FitResult:
+        sample_use: pd.DataFrame | None = None, start: np.ndarray | None = None) -> FitResult:
     """Fit zone concentrations (and, by default, zone hydraulics) to a project's data.
 
     With ``fit_entrance_losses`` (option or ``settings.fit_entrance_losses``) each open zone's
@@ -552,6 +552,10 @@ def fit(project: Project, options: FitOptions | None = None,
     options : FitOptions, optional
     sample_use : DataFrame, optional
         Per-sample use from the lab review (see :func:`blendq.fit.observations.quality_data`).
+    start : ndarray, optional
+        Theta of an earlier fit of the same project (e.g. before some results were widened):
+        tried as the first starting point when its length matches, then the usual ones
+        (:func:`starting_points`) if it does not give an acceptable fit.
 
     Returns
     -------
@@ -566,7 +570,7 @@ def fit(project: Project, options: FitOptions | None = None,
     want = project.settings.fit_entrance_losses if options.fit_entrance_losses is None \
         else options.fit_entrance_losses
     if not (want and options.fit_hydraulics):
-        return _fit(project, options, sample_use)
+        return _fit(project, options, sample_use, start=start)
     trial = _fit(project, options, sample_use, np.arange(len(project.zones)))
     problem = trial.problem
     k0 = 2 * problem.n_zones + int(problem.fit_c)
@@ -616,13 +620,14 @@ def _conditional_sd(jac: np.ndarray, k: int) -> float:
 
 
 def _fit(project: Project, options: FitOptions | None = None,
-         sample_use: pd.DataFrame | None = None, loss_zones=None) -> FitResult:
+         sample_use: pd.DataFrame | None = None, loss_zones=None,
+         start: np.ndarray | None = None) -> FitResult:
     """One fit of :func:`fit` with the entrance losses of ``loss_zones`` as parameters."""
     problem = build_problem(project, options, sample_use, loss_zones)
     if not problem.data:
         raise ModelError("no lab results at a known step: nothing to fit")
     if problem.options.fit_hydraulics:
-        theta, jac, message, cost = _fit_hydraulics(problem)
+        theta, jac, message, cost = _fit_hydraulics(problem, start)
     else:
         theta = initial_theta(problem)
         jac = _jacobian(problem, theta)
@@ -638,8 +643,9 @@ def _fit(project: Project, options: FitOptions | None = None,
                      str(message), float(cost))
 
 
-def _fit_hydraulics(problem: Problem):
-    """Least-squares fit of theta from each starting point in turn (:func:`starting_points`).
+def _fit_hydraulics(problem: Problem, start: np.ndarray | None = None):
+    """Least-squares fit of theta from each starting point in turn (:func:`starting_points`,
+    after ``start`` when given).
 
     The next start is tried only when the fit so far failed or misses the data by more than the
     95 % quantile of its chi-square (a local minimum is then suspected); the best converged fit
@@ -666,7 +672,11 @@ def _fit_hydraulics(problem: Problem):
         return jacobian_batch(problem, t, difference_steps(t))
 
     best, failures = None, []
-    for k, theta0 in enumerate(starting_points(problem)):
+    starts = starting_points(problem)
+    if start is not None and np.shape(start) == np.shape(starts[0]) \
+            and np.all(np.isfinite(start)):
+        starts = [np.asarray(start, float), *starts]
+    for k, theta0 in enumerate(starts):
         try:
             sol = optimize.least_squares(fun, np.clip(theta0, lo, hi), jac=jac,
                                          bounds=(lo, hi), method="trf", x_scale="jac", xtol=1e-12, ftol=1e-12,

@@ -30,6 +30,7 @@ from blendq.fit.estimation import (
     Problem,
     _log_groups,
     hydraulic_residuals_batch,
+    level_depths,
     row_weights,
     row_weights_sets,
     scaled_pinv,
@@ -61,6 +62,10 @@ MAX_DRAW_ITERATIONS = 100
 
 #: a draw has converged when an accepted step lowers its chi-square by less than this
 DRAW_CHI2_TOL = 1e-6
+
+#: memory the draws refitted together may take for their Jacobians [bytes]; the draws do not
+#: depend on how they are grouped, only the time and the peak memory do (a numerical setting)
+DRAW_CHUNK_BYTES = 256e6
 
 
 @dataclass(frozen=True)
@@ -206,16 +211,20 @@ def draw_misfit(fit: FitResult, draws: Draws) -> dict[str, np.ndarray]:
 _hydraulic_residuals_batch = hydraulic_residuals_batch
 
 
-def exact_derivatives(problem: Problem, theta, analytes):
+def exact_derivatives(problem: Problem, theta, analytes, steps=None):
     """Hydraulic residuals and discharge weights of a batch of theta with their derivatives by
-    theta, or None where the model has what they do not cover (a transient zone, whose levels
-    are superposed in time, or a sample taken at a depth in the well).
+    theta, or None where the model has what they do not cover (a sample taken at a depth in
+    the well, or a transient zone without ``steps``).
 
     Parameters
     ----------
     problem : Problem
     theta : ndarray (B, p)
     analytes : list of str
+    steps : ndarray (p,), optional
+        Forward-difference steps for the pumping levels of a transient zone model (the step
+        levels superposed in time, :func:`blendq.well.transient.step_levels`): those rows
+        alone are differenced; without steps such a problem gives None.
 
     Returns
     -------
@@ -223,8 +232,9 @@ def exact_derivatives(problem: Problem, theta, analytes):
         :func:`hydraulic_residuals_batch` (priors, flow logs, pumping levels; stated errors).
     j_h : ndarray (B, rows, p)
         Its derivative by theta.
-    weights : dict {analyte: (a (B, m, n), da (B, m, n, p))}
-        :func:`row_weights` of each analyte's results and its derivative by theta.
+    weights : dict {analyte: (a (B, m, n), da (B, m, n, p), ac (B, mc, n), dac (B, mc, n, p))}
+        :func:`row_weights` of each analyte's results and its derivative by theta, then the
+        same of its non-detects.
 
     Notes
     -----
@@ -237,8 +247,9 @@ def exact_derivatives(problem: Problem, theta, analytes):
     d(C Q^2 - h_w). Work per draw: a few (n x n) products per rate, where differencing needs
     a full model evaluation per parameter.
     """
-    if problem.schedule is not None or any(
-            np.isfinite(problem.data[a].depth).any() for a in analytes):
+    at_depth = any(np.isfinite(problem.data[a].depth).any()
+                   or np.isfinite(problem.data[a].cens_depth).any() for a in analytes)
+    if steps is None and (problem.schedule is not None or at_depth):
         return None
     theta = np.asarray(theta, float)
     bsz, p = theta.shape
@@ -247,6 +258,7 @@ def exact_derivatives(problem: Problem, theta, analytes):
     logs = problem.log_rows
     groups = _log_groups(logs) if len(logs) else []
     rate_sets = [problem.data[a].rate for a in analytes]
+    rate_sets += [problem.data[a].cens_rate for a in analytes]
     rate_sets += [np.array([g[0] for g in groups], float), problem.level_rate]
     uniq, inv = np.unique(np.concatenate(rate_sets), return_inverse=True)
     state = model.state(uniq)
@@ -284,7 +296,21 @@ def exact_derivatives(problem: Problem, theta, analytes):
             for (cols, local), zk in zip(kinds, zones_of, strict=False):
                 dpred[:, rows, cols] = np.swapaxes(m[:, zk] * local[:, pos[k], :, None], 1, 2)
         parts.append(dpred / problem.log_sd[:, None])
-    if len(problem.level_rate):
+    if steps is not None:  # what is differenced: every theta of the batch moved in turn
+        steps = np.asarray(steps, float)
+        pert = np.repeat(theta[None], p + 1, axis=0)
+        pert[np.arange(1, p + 1), :, np.arange(p)] += steps[:, None]
+        flat_model = problem.model(pert.reshape((p + 1) * bsz, p))
+
+        def differenced(x):
+            x = x.reshape((p + 1, bsz) + x.shape[1:])
+            return x[0], np.moveaxis((x[1:] - x[0][None])
+                                     / steps.reshape((p,) + (1,) * (x.ndim - 1)), 0, -1)
+
+    if len(problem.level_rate) and problem.schedule is not None:
+        # the levels superposed in time: forward differences of those rows alone
+        parts.append(differenced(level_depths(problem, flat_model))[1] / problem.level_sd)
+    elif len(problem.level_rate):
         pos = inv[at[-2]:]
         dlev = np.zeros((bsz, len(pos), p))
         total = sens.slope.sum(-1)[:, pos, None]
@@ -296,7 +322,7 @@ def exact_derivatives(problem: Problem, theta, analytes):
         parts.append(dlev / problem.level_sd)
     j_h = np.concatenate(parts, axis=1) if parts else np.zeros((bsz, 0, p))
     # the weights at the rates of the results, and da/dx_k = (J_a[:, k] - J_a s / S) l_k
-    q_pos, q_inv = np.unique(inv[:at[len(analytes)]], return_inverse=True)
+    q_pos, q_inv = np.unique(inv[:at[2 * len(analytes)]], return_inverse=True)
     w, jw = mixing.intake_weights_jacobian(state.zone_flow[:, q_pos], model.geometry)
     w = np.nan_to_num(w, nan=0.0)
     jw = np.nan_to_num(jw, nan=0.0)
@@ -304,9 +330,9 @@ def exact_derivatives(problem: Problem, theta, analytes):
     da_all = np.zeros(w.shape + (p,))  # (B, rates, n, p)
     for (cols, local), zk in zip(kinds, zones_of, strict=False):
         da_all[..., cols] = jm[..., zk] * local[:, q_pos, None, :]
-    weights = {}
     seen: dict[bytes, tuple] = {}
-    for j, analyte in enumerate(analytes):
+
+    def rows_at(j):
         pos = q_inv[at[j]:at[j + 1]]
         key = pos.tobytes()
         if key not in seen:  # analytes sampled together share the arrays
@@ -314,7 +340,22 @@ def exact_derivatives(problem: Problem, theta, analytes):
                 seen[key] = (w, da_all)
             else:
                 seen[key] = (w[:, pos], da_all[:, pos])
-        weights[analyte] = seen[key]
+        return seen[key]
+
+    na = len(analytes)
+    weights = {analyte: rows_at(j) + rows_at(na + j) for j, analyte in enumerate(analytes)}
+    if at_depth:  # a sample taken at a depth in the well: forward differences of its rows
+        for analyte in analytes:
+            d = problem.data[analyte]
+            arrays = list(weights[analyte])
+            for k, (rate, depth) in enumerate(((d.rate, d.depth), (d.cens_rate, d.cens_depth))):
+                rows = np.flatnonzero(np.isfinite(depth))
+                if len(rows):
+                    a0, da = arrays[2 * k].copy(), arrays[2 * k + 1].copy()
+                    a0[:, rows], da[:, rows] = differenced(
+                        row_weights(flat_model, rate[rows], depth[rows]))
+                    arrays[2 * k:2 * k + 2] = a0, da
+            weights[analyte] = tuple(arrays)
     return r_h, j_h, weights
 
 
@@ -402,29 +443,29 @@ class _PerturbedData:
 
     def jacobian(self, theta, idx, active, steps):
         """Residuals (B, rows) and their Jacobian (B, rows, p) at ``theta`` (B, p) with the
-        active sets held fixed, or None where a non-detect or a zone with two active bounds
-        needs the general solve (the caller then differences :meth:`residuals`).
+        active sets held fixed.
 
-        The weights and the hydraulic residuals are differenced forward with ``steps``; the
-        zone values are differentiated exactly on their active set (variable projection,
-        Golub and Pereyra 1973): with the zones on a bound fixed, the free zones solve
-        H c = A^T W^2 y, so dc = H_free^-1 (-dA^T W^2 (A c - y) - A^T W^2 dA c) and
-        dr = W (dA c + A dc). One factorisation per draw instead of one solve per parameter.
+        The weights and the hydraulic residuals are differentiated exactly where
+        :func:`exact_derivatives` covers the model, else differenced forward with ``steps``;
+        the zone values are differentiated exactly on their active set (variable projection,
+        Golub and Pereyra 1973). With the zones on a bound fixed and no non-detect active, the
+        free zones solve H c = A^T W^2 y, so dc = H_free^-1 (-dA^T W^2 (A c - y) - A^T W^2 dA c)
+        and dr = W (dA c + A dc): one factorisation per draw instead of one solve per
+        parameter. A non-detect on its limit (a_nd c = limit, a row that moves with theta)
+        adds its row to the equality-constrained (KKT) system
+        [H G_S^T; G_S 0] [c; mu] = [A^T W^2 y; h_S], whose derivative is
+        [H G_S^T; G_S 0] [dc; dmu] = [-dA^T W^2 (A c - y) - A^T W^2 dA c - dG_S^T mu; -dG_S c]
+        (Nocedal and Wright 2006, section 16.1).
         """
         problem = self.problem
         bsz, p = theta.shape
         bounds = {}
         for analyte in self.analytes:
-            if len(problem.data[analyte].cens_limit):
-                return None
             lb, ub = problem.bounds(analyte)
             g, h = qp.constraint_rows(lb, ub)
-            onehot = (g[0] != 0).astype(float)
-            if np.any(active[analyte].astype(float) @ onehot > 1):
-                return None
-            bounds[analyte] = (g, h, onehot)
+            bounds[analyte] = (g, h, (g[0] != 0).astype(float))
         n = problem.n_zones
-        exact = exact_derivatives(problem, theta, self.analytes)
+        exact = exact_derivatives(problem, theta, self.analytes, steps)
         if exact is None:
             pert = np.repeat(theta[None], p + 1, axis=0)
             pert[np.arange(1, p + 1), :, np.arange(p)] += steps[:, None]
@@ -433,16 +474,20 @@ class _PerturbedData:
             rh = (_hydraulic_residuals_batch(problem, flat, model) / self.hyd_scale).reshape(
                 p + 1, bsz, -1)
             res = [rh[0] - self.eps[idx, :self.n_hyd]]
-            jac = [(rh[1:] - rh[0][None]) / steps[:, None, None]]
-            weights = {}
-            all_weights = row_weights_sets(
-                model, [(problem.data[k].rate, problem.data[k].depth) for k in self.analytes])
-            for analyte, aa in zip(self.analytes, all_weights, strict=True):
-                d = problem.data[analyte]
-                aa = aa.reshape(p + 1, bsz, len(d.value), n)
-                weights[analyte] = (aa[0], np.moveaxis(
-                    (aa[1:] - aa[0][None]) / steps[:, None, None, None], 0, -1))
-            jac = [np.moveaxis(jac[0], 0, -1)]
+            jac = [np.moveaxis((rh[1:] - rh[0][None]) / steps[:, None, None], 0, -1)]
+            sets = []
+            for k in self.analytes:
+                d = problem.data[k]
+                sets += [(d.rate, d.depth), (d.cens_rate, d.cens_depth)]
+            all_weights = row_weights_sets(model, sets)
+
+            def split(aa):
+                aa = aa.reshape((p + 1, bsz) + aa.shape[1:])
+                return aa[0], np.moveaxis((aa[1:] - aa[0][None])
+                                          / steps[:, None, None, None], 0, -1)
+
+            weights = {k: split(all_weights[2 * j]) + split(all_weights[2 * j + 1])
+                       for j, k in enumerate(self.analytes)}
         else:
             r_h, j_h, weights = exact
             res = [r_h / self.hyd_scale - self.eps[idx, :self.n_hyd]]
@@ -450,29 +495,67 @@ class _PerturbedData:
         for analyte in self.analytes:
             d = problem.data[analyte]
             g, h, onehot = bounds[analyte]
-            a, da = weights[analyte]  # (B, m, n), (B, m, n, p)
+            a, da, ac, dac = weights[analyte]  # (B, m, n), (B, m, n, p), non-detects alike
             y = self.y[analyte][idx]
             sig = self.sigma[analyte]
             act = active[analyte]
+            censored = len(d.cens_limit) > 0
+            if censored:
+                g, h = qp.constraint_rows(*problem.bounds(analyte), ac, d.cens_limit)
             c, _ = qp.solve_on_active_set(a, y, sig, g, h, act)
             w2 = 1.0 / sig**2
             wa = a * w2[None, :, None]
             hess = np.matmul(np.swapaxes(wa, 1, 2), a)
+            raw = np.einsum("bmn,bn->bm", a, c) - y
+            dac_c = np.matmul(c[:, None, None, :], da)[:, :, 0]  # dA c (B, m, p)
+            rhs = -(np.matmul((raw * w2)[:, None, :], da.reshape(bsz, len(y[0]), n * p)).reshape(
+                bsz, n, p) + np.matmul(np.swapaxes(wa, 1, 2), dac_c))
             # the ridge of the active-set solve (1e-10 of the largest curvature)
             ridge = 1e-10 * np.maximum(np.einsum("bii->bi", hess).max(1), 1e-300)
-            fixed = (act.astype(float) @ onehot) > 0
+            on_bound = act[:, :onehot.shape[0]].astype(float) @ onehot
+            fixed = on_bound > 0
             free = ~fixed
             red = np.where(free[:, :, None] & free[:, None, :], hess, 0.0)
             red[:, np.arange(n), np.arange(n)] += np.where(fixed, 1.0, ridge[:, None])
-            raw = np.einsum("bmn,bn->bm", a, c) - y
-            dac = np.matmul(c[:, None, None, :], da)[:, :, 0]  # dA c (B, m, p)
-            rhs = -(np.matmul((raw * w2)[:, None, :], da.reshape(bsz, len(y[0]), -1)).reshape(
-                bsz, n, p) + np.matmul(np.swapaxes(wa, 1, 2), dac))
-            rhs = np.where(free[:, :, None], rhs, 0.0)
-            dc = np.linalg.solve(red, rhs)  # (B, n, p)
+            dc = qp.solve_each(red, np.where(free[:, :, None], rhs, 0.0))  # (B, n, p)
+            # a draw with a non-detect on its limit, or a zone on both its bounds: the KKT
+            # system (draw by draw, so a draw's Jacobian does not depend on the draws refitted
+            # with it)
+            general = (on_bound > 1).any(1)
+            if censored:
+                general |= act[:, onehot.shape[0]:].any(1)
+            k = np.flatnonzero(general)
+            if len(k):
+                gk = np.broadcast_to(g, (bsz,) + g.shape[1:])[k]
+                dc[k] = _active_set_derivative(hess[k], wa[k], y[k], gk, h, act[k], c[k],
+                                               rhs[k], dac[k])
             res.append(raw / sig)
-            jac.append((dac + np.matmul(a, dc)) / sig[:, None])
+            jac.append((dac_c + np.matmul(a, dc)) / sig[:, None])
         return np.concatenate(res, axis=1), np.concatenate(jac, axis=1)
+
+
+def _active_set_derivative(hess, wa, y, g, h, act, c, rhs, dac):
+    """dc (B, n, p) of :meth:`_PerturbedData.jacobian` when non-detects are active: the
+    derivative of the KKT system of :func:`blendq.fit.constrained_lsq.solve_on_active_set`
+    (same equilibration and ridge), the inactive constraints held out by unit rows; a
+    singular system (dependent active constraints) by least squares."""
+    bsz, n = c.shape
+    k = g.shape[1]
+    nb = k - dac.shape[1]  # the bound rows come first; their rows do not move with theta
+    s = np.maximum(np.einsum("bii->bi", hess).max(1), 1e-300)
+    actf = np.asarray(act, float)
+    kkt = np.zeros((bsz, n + k, n + k))
+    kkt[:, :n, :n] = hess / s[:, None, None] + 1e-10 * np.eye(n)
+    kkt[:, :n, n:] = np.swapaxes(g, 1, 2) * actf[:, None, :]
+    kkt[:, n:, :n] = g * actf[:, :, None]
+    kkt[:, n:, n:] = np.eye(k)[None] * (1.0 - actf)[:, :, None]
+    grad = np.einsum("bmi,bm->bi", wa, y) / s[:, None]
+    sol = qp.solve_each(kkt, np.concatenate([grad, actf * h[None, :]], 1)[..., None])
+    mu = sol[:, n + nb:, 0] * actf[:, nb:]  # scaled multipliers of the non-detect rows
+    top = rhs / s[:, None, None] - np.einsum("bj,bjnp->bnp", mu, dac)
+    bottom = np.zeros((bsz, k, rhs.shape[-1]))
+    bottom[:, nb:] = -np.einsum("bjnp,bn->bjp", dac, c) * actf[:, nb:, None]
+    return qp.solve_each(kkt, np.concatenate([top, bottom], 1))[:, :n]
 
 
 def _take(state, rows):
@@ -659,7 +742,7 @@ class Draws:
 
 def monte_carlo(fit: FitResult, n_draws: int = 1000, seed: int = 0,
                 progress: Callable[[int, int], None] | None = None,
-                chunk: int = 500, widen: bool = True) -> Draws:
+                chunk: int | None = None, widen: bool = True) -> Draws:
     """Seeded posterior draws by randomised maximum likelihood.
 
     Every datum (lab result, flow-log reading, pumping level) is perturbed by its stated error
@@ -676,8 +759,9 @@ def monte_carlo(fit: FitResult, n_draws: int = 1000, seed: int = 0,
     seed : int
     progress : callable(done, total), optional
         Called after each chunk of draws (the CLI shows a progress bar).
-    chunk : int
-        Draws refitted together (the draws themselves do not depend on it).
+    chunk : int, optional
+        Draws refitted together (the draws themselves do not depend on it); default: as many
+        as :data:`DRAW_CHUNK_BYTES` allows for their Jacobians, at least 100.
     widen : bool
         Widen the errors of groups the best fit misses (model discrepancy).
 
@@ -699,6 +783,9 @@ def monte_carlo(fit: FitResult, n_draws: int = 1000, seed: int = 0,
     theta = np.empty((n_draws, len(fit.theta)))
     out = np.empty((n_draws, problem.n_zones, len(fit.analytes)))
     converged = np.empty(n_draws, bool)
+    if chunk is None:  # the Jacobian's (p + 1) model evaluations of every row and zone weight
+        per_draw = 8.0 * (len(fit.theta) + 1) * (m + 1) * (problem.n_zones + 1)
+        chunk = int(min(n_draws, max(100, DRAW_CHUNK_BYTES // per_draw)))
     for lo in range(0, n_draws, chunk):
         hi = min(lo + chunk, n_draws)
         theta[lo:hi], out[lo:hi], converged[lo:hi] = _refit_draws(fit, data, np.arange(lo, hi))

@@ -73,8 +73,8 @@ def test_same_seed_same_draws(joint):
     assert not np.allclose(other.zone_values, draws.zone_values[:50])
     # the chunk size changes how draws are grouped, not the draws
     chunked = uncertainty.monte_carlo(result, 300, seed=4, chunk=7)
-    np.testing.assert_allclose(chunked.zone_values, draws.zone_values[:300], rtol=1e-12,
-                               atol=1e-15)
+    np.testing.assert_array_equal(chunked.zone_values, draws.zone_values[:300])
+    np.testing.assert_array_equal(chunked.theta, draws.theta[:300])
     assert draws.n_draws == 2000 and draws.seed == 4 and draws.analytes == result.analytes
     assert draws.zone_values.shape == (2000, 4, 2)
 
@@ -493,7 +493,7 @@ def test_exact_derivatives_equal_central_differences():
 
 
 def test_exact_derivatives_leave_depth_samples_and_transient_levels_to_differences():
-    from blendq.fit.estimation import build_problem, initial_theta
+    from blendq.fit.estimation import build_problem, initial_theta, row_weights
     problem = build_problem(_log_well(depth_samples=[("S1", 33.0)]))
     theta = initial_theta(problem)[None]
     assert uncertainty.exact_derivatives(problem, theta, list(problem.data)) is None
@@ -501,6 +501,25 @@ def test_exact_derivatives_leave_depth_samples_and_transient_levels_to_differenc
     assert uncertainty.exact_derivatives(plain, theta, list(plain.data)) is not None
     timed = dataclasses.replace(plain, schedule=object())  # a transient zone's step schedule
     assert uncertainty.exact_derivatives(timed, theta, list(plain.data)) is None
+    # with steps, the depth sample's rows are the forward differences of its weights and
+    # every other row stays exact
+    steps = 1e-6 * np.maximum(1.0, np.abs(theta[0]))
+    out = uncertainty.exact_derivatives(problem, theta, list(problem.data), steps)
+    exact = uncertainty.exact_derivatives(plain, theta, list(plain.data))
+    np.testing.assert_array_equal(out[1], exact[1])
+    d = problem.data["nitrate"]
+    rows = np.flatnonzero(np.isfinite(d.depth))
+    assert len(rows) == 1
+    a0 = row_weights(problem.model(theta), d.rate[rows], d.depth[rows])
+    for k in range(theta.shape[1]):
+        t = theta.copy()
+        t[0, k] += steps[k]
+        ak = row_weights(problem.model(t), d.rate[rows], d.depth[rows])
+        np.testing.assert_allclose(out[2]["nitrate"][1][:, rows, :, k], (ak - a0) / steps[k],
+                                   rtol=1e-9, atol=1e-12)
+    others = np.setdiff1d(np.arange(len(d.rate)), rows)
+    np.testing.assert_array_equal(out[2]["nitrate"][1][:, others],
+                                  exact[2]["nitrate"][1][:, others])
 
 
 def test_draws_with_exact_derivatives_equal_draws_with_differences(monkeypatch):
@@ -529,3 +548,95 @@ def test_draws_with_exact_derivatives_equal_draws_with_differences(monkeypatch):
     again = uncertainty.monte_carlo(result, 200, seed=3)
     assert again.theta.tobytes() == exact.theta.tobytes()
     assert again.zone_values.tobytes() == exact.zone_values.tobytes()
+
+
+def _nondetect_well():
+    """A well whose arsenic is below its detection limit in the upper zones and above it in
+    the deepest: the low steps give non-detects, and most draws have one on its limit."""
+    k = np.arange(4)
+    top = 30.0 + 6.0 * k
+    conc = {"nitrate": np.array([14.0, 9.0, 3.0, 1.0]),
+            "arsenic": np.array([0.0015, 0.002, 0.004, 0.01])}
+    return synthetic_project(np.array([80.0, 60.0, 50.0, 40.0]),
+                             np.array([-10.0, -10.5, -11.0, -12.0]),
+                             top, top + 5.0, conc, np.linspace(150.0, 2400.0, 10), 28.0,
+                             relative_error=0.05, well_loss=2e-7, flowlog_rates=[0.0, 1500.0],
+                             flowlog_depths=[27.0, *(top[1:] - 0.5), top[-1] + 6.0],
+                             level_noise=0.05, seed=11, nondetect_limits={"arsenic": 0.003})
+
+
+def test_zone_value_derivative_with_a_nondetect_on_its_limit_matches_differences():
+    # the derivative of the equality-constrained (KKT) solution when the weights of the
+    # results and of a non-detect row move along a direction (Nocedal and Wright 2006,
+    # section 16.1) equals central differences of the constrained solve on the same active set
+    from blendq.fit import constrained_lsq as qp
+    rng = np.random.default_rng(8)
+    bsz, m, n = 6, 9, 4
+    a = rng.uniform(0.05, 1.0, (bsz, m, n))
+    ac = rng.uniform(0.05, 1.0, (bsz, 2, n))
+    da = rng.standard_normal((bsz, m, n, 1))
+    dac = rng.standard_normal((bsz, 2, n, 1))
+    truth = rng.uniform(1.0, 5.0, (bsz, n))
+    y = np.einsum("bmn,bn->bm", a, truth) + 0.3 * rng.standard_normal((bsz, m))
+    sig = np.full(m, 0.5)
+    limit = np.array([0.6, 1e3]) * np.einsum("bkn,bn->bk", ac, truth).min(0)  # one binding
+    lb, ub = np.zeros(n), np.full(n, np.inf)
+
+    def solve(t, act):
+        g, h = qp.constraint_rows(lb, ub, ac + t * dac[..., 0], limit)
+        return qp.solve_on_active_set(a + t * da[..., 0], y, sig, g, h, act)
+
+    g, h = qp.constraint_rows(lb, ub, ac, limit)
+    c, ok, act = qp.solve_by_active_sets(a, y, sig, g, h, np.zeros((bsz, g.shape[1]), bool))
+    assert ok.all() and act[:, n].all() and not act[:, n + 1].any()
+    w2 = 1.0 / sig**2
+    wa = a * w2[None, :, None]
+    hess = np.matmul(np.swapaxes(wa, 1, 2), a)
+    raw = np.einsum("bmn,bn->bm", a, c) - y
+    dac_c = np.matmul(c[:, None, None, :], da)[:, :, 0]
+    rhs = -(np.matmul((raw * w2)[:, None, :], da.reshape(bsz, m, n)).reshape(bsz, n, 1)
+            + np.matmul(np.swapaxes(wa, 1, 2), dac_c))
+    dc = uncertainty._active_set_derivative(hess, wa, y, g, h, act, c, rhs, dac)[..., 0]
+    step = 1e-6
+    central = (solve(step, act)[0] - solve(-step, act)[0]) / (2 * step)
+    assert np.abs(central).max() > 0.1
+    np.testing.assert_allclose(dc, central, rtol=1e-5, atol=1e-7)
+
+
+def test_draws_with_nondetects_do_not_depend_on_the_chunk():
+    # each draw's refit is its own problem: the same bytes whatever draws it is refitted with
+    result = fit(_nondetect_well())
+    one = uncertainty.monte_carlo(result, 120, seed=2)
+    small = uncertainty.monte_carlo(result, 120, seed=2, chunk=13)
+    assert one.theta.tobytes() == small.theta.tobytes()
+    assert one.zone_values.tobytes() == small.zone_values.tobytes()
+
+
+def test_transient_well_jacobian_differences_only_its_step_levels(monkeypatch):
+    # the demo well (transient zones, a depth sample, non-detects): the draws' Jacobian with
+    # the step levels and the depth sample differenced alone equals the one with every row
+    # differenced, to the truncation error of the forward differences
+    from blendq.api import demo_path
+    from blendq.inputs.loader import load_project
+    result = fit(load_project(demo_path()))
+    problem = result.problem
+    assert problem.schedule is not None
+    rng = np.random.default_rng(5)
+    layout = uncertainty.draw_layout(problem)
+    nb = 30
+    eps = rng.standard_normal((nb, max(sl.stop for sl in layout.values())))
+    data = uncertainty._PerturbedData(problem, eps, {}, list(result.analytes), result.model)
+    sd = np.sqrt(np.diag(result.theta_cov))
+    idx = np.arange(nb)
+    theta = np.maximum(result.theta[None] + 0.5 * sd * rng.standard_normal((nb, len(sd))),
+                       problem.lower_bounds())
+    _, _, state = data.residuals(theta, idx, None, True)
+    steps = 1e-4 * np.where(sd > 0, sd, 1e-6)
+    r_part, j_part = data.jacobian(theta, idx, state, steps)
+    monkeypatch.setattr(uncertainty, "exact_derivatives", lambda *a: None)
+    r_all, j_all = data.jacobian(theta, idx, state, steps)
+    np.testing.assert_allclose(r_part, r_all, rtol=1e-12, atol=1e-12)
+    for group, rows in layout.items():
+        scale = np.abs(j_all[:, rows]).max(initial=0.0)
+        np.testing.assert_allclose(j_part[:, rows], j_all[:, rows], rtol=1e-3,
+                                   atol=1e-4 * scale, err_msg=group)
