@@ -14,9 +14,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from blendq.well import hydraulics
-from blendq.well import mixing
 from blendq.units import from_base, to_base
+from blendq.well import hydraulics, mixing
 
 OUT = Path(__file__).resolve().parents[1] / "blendq" / "data" / "demo"
 FT = to_base(1, "ft", "length")
@@ -123,7 +122,7 @@ def main() -> None:
     for name, q_gpm, step in (("ambient", 0, ""), ("pumped", RATES_GPM[2], "S3")):
         s = hydraulics.solve_wellbore_head(np.array([q_gpm * GPM]), g, h0)
         up = mixing.wellbore_flow(s.zone_flow[0], geo, np.array(log_depths_ft) * FT)
-        for d, f in zip(log_depths_ft, up):
+        for d, f in zip(log_depths_ft, up, strict=True):
             f_gpm = from_base(f, "rate", "gpm")
             noise = rng.normal(0, 0.03 * abs(f_gpm) + 0.3) if d != 340 else 0.0
             logs.append([name, step, q_gpm if step == "" else "", d, round(f_gpm + noise, 1)])

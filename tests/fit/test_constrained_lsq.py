@@ -258,3 +258,35 @@ def test_active_set_passes_agree_with_scipy_bounded_least_squares(seed, n):
                          tol=1e-12).x
         np.testing.assert_allclose(c[b], ref, rtol=1e-6, atol=1e-7)
     assert optimal.mean() >= 0.8  # the few left are solved by enumeration in the draws
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(seed=st.integers(0, 2**31 - 1), n=st.integers(2, 5), size=st.integers(2, 9),
+       censored=st.integers(0, 2))
+def test_each_problem_solved_as_if_alone(seed, n, size, censored):
+    # determinism of the posterior draws: a problem's solution and its optimality verdict are
+    # the same bytes whether it is solved alone or with others (whatever active sets, double
+    # bounds or censored rows holding one zone the others have)
+    rng = np.random.default_rng(seed)
+    m = n + 3
+    a = rng.uniform(0.0, 1.0, (size, m, n))
+    a[:, :, 0] *= rng.integers(0, 2, (size, 1))  # some problems cannot see zone 1
+    y = rng.uniform(0.0, 5.0, (size, m))
+    sig = rng.uniform(0.1, 1.0, m)
+    lb, ub = np.zeros(n), np.where(rng.random(n) < 0.5, 4.0, np.inf)
+    ac = rng.uniform(0.0, 1.0, (size, censored, n))
+    if censored:
+        ac[::2, 0] = np.eye(n)[rng.integers(0, n)]  # a censored row that holds one zone only
+    g, h = qp.constraint_rows(lb, ub, ac if censored else None,
+                              rng.uniform(0.5, 3.0, censored) if censored else None)
+    act = rng.random((size, g.shape[1])) < 0.3
+    c, ok = qp.solve_on_active_set(a, y, sig, g, h, act)
+    cs, oks, acts = qp.solve_by_active_sets(a, y, sig, g, h, act)
+    for b in range(size):
+        gb = g[b:b + 1] if g.shape[0] > 1 else g
+        c1, ok1 = qp.solve_on_active_set(a[b:b + 1], y[b:b + 1], sig, gb, h, act[b:b + 1])
+        assert c1.tobytes() == c[b:b + 1].tobytes() and ok1[0] == ok[b]
+        c2, ok2, act2 = qp.solve_by_active_sets(a[b:b + 1], y[b:b + 1], sig, gb, h,
+                                                act[b:b + 1])
+        assert c2.tobytes() == cs[b:b + 1].tobytes() and ok2[0] == oks[b]
+        assert np.array_equal(act2[0], acts[b])
