@@ -5,6 +5,7 @@ Data flow one way: each stage takes the objects of the stages before it and retu
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 
@@ -47,7 +48,6 @@ class Analysis:
     prediction: uncertainty.Prediction
     window: sweep.Window
     limits: dict[str, Limit]
-    sweep_table: pd.DataFrame
     not_fitted: dict[str, str] = field(default_factory=dict)
     step_drawdown: LevelCheck | None = None
     notes: list[str] = field(default_factory=list)
@@ -56,6 +56,15 @@ class Analysis:
     memory: object | None = None
     #: analyte -> time model fitted to the monitoring history (blendq.fit.history)
     history: dict = field(default_factory=dict)
+
+    @functools.cached_property
+    def sweep_table(self) -> pd.DataFrame:
+        """The sweep as a table, one row per rate (:func:`blendq.decide.sweep.sweep_table`),
+        made on first use (a batch of wells that keeps only their summaries never needs it)."""
+        p = self.project
+        return sweep.sweep_table(self.prediction, self.limits, p.settings.margin,
+                                 p.settings.interval, p.zone_names,
+                                 sweep.compliance_statistics(p, self.limits), p.zone_top)
 
     @property
     def decisions(self) -> pd.DataFrame:
@@ -149,8 +158,6 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
     levels = check_levels(fit, d, pred, s.exceedance_probability, s.horizon)
     window = sweep.window_for(fit, pred, level_deep=levels.level_deep)
     limits = sweep.governing_limits(project.limits, pred.analytes)
-    table = sweep.sweep_table(pred, limits, s.margin, s.interval, project.zone_names,
-                              sweep.compliance_statistics(project, limits), project.zone_top)
     notes = list(d.notes)
     hyd = diagnostics.hydraulics_table(fit)
     if (hyd["conductance_from"] == "prior").any():
@@ -193,7 +200,7 @@ def analyse(project: Project, draws: int | None = None, seed: int | None = None,
                      f"({f.n} results; CV {format_percent(f.temporal_cv)} about a {f.model} time model): it "
                      "replaces the temporal_cv setting.")
     return Analysis(project, review, use, sample_mode, fit, d, zones, diagnostics.analyte_diagnostics(fit),
-                    residuals, hyd, pred, window, limits, table, skipped,
+                    residuals, hyd, pred, window, limits, skipped,
                     levels, notes, per_result, mem_summary, time_fits)
 
 
