@@ -320,9 +320,11 @@ def residuals(problem: Problem, theta) -> np.ndarray:
     return np.concatenate(res) if res else np.zeros(0)
 
 
-def hydraulic_residuals_batch(problem: Problem, theta, model: WellModel) -> np.ndarray:
+def hydraulic_residuals_batch(problem: Problem, theta, model: WellModel,
+                              levels: np.ndarray | None = None) -> np.ndarray:
     """Prior, flow-log and level residuals (stated errors) of a batch of theta (B, n_theta)
-    with its batched ``model``: shape (B, rows), rows as in :func:`residuals`."""
+    with its batched ``model``: shape (B, rows), rows as in :func:`residuals`. ``levels``:
+    :func:`level_depths` of the batch when the caller has them already."""
     p = problem.prior
     n = problem.n_zones
     theta = np.asarray(theta, float)
@@ -342,7 +344,9 @@ def hydraulic_residuals_batch(problem: Problem, theta, model: WellModel) -> np.n
         parts.append((pred - logs["upward_flow"].to_numpy(float)) / problem.log_sd)
     if len(problem.level_rate):
         # the same level model as the fit (superposed in time where a zone is transient)
-        parts.append((level_depths(problem, model) - problem.level_depth) / problem.level_sd)
+        if levels is None:
+            levels = level_depths(problem, model)
+        parts.append((levels - problem.level_depth) / problem.level_sd)
     return np.concatenate(parts, axis=1) if parts else np.zeros((bsz, 0))
 
 

@@ -270,7 +270,21 @@ def exact_derivatives(problem: Problem, theta, analytes, steps=None):
     kinds = [(slice(0, n), sens.log_conductance), (slice(n, 2 * n), sens.static_head)]
     if len(problem.loss_zones):
         kinds.append((slice(k0, p), sens.nonlinear_loss[..., problem.loss_zones] * per))
-    r_h = hydraulic_residuals_batch(problem, theta, model)
+    level_diff = levels = None
+    if steps is not None:  # what is differenced: every theta of the batch moved in turn
+        steps = np.asarray(steps, float)
+        pert = np.repeat(theta[None], p + 1, axis=0)
+        pert[np.arange(1, p + 1), :, np.arange(p)] += steps[:, None]
+        flat_model = problem.model(pert.reshape((p + 1) * bsz, p))
+
+        def differenced(x):
+            x = x.reshape((p + 1, bsz) + x.shape[1:])
+            return x[0], np.moveaxis((x[1:] - x[0][None])
+                                     / steps.reshape((p,) + (1,) * (x.ndim - 1)), 0, -1)
+
+        if len(problem.level_rate) and problem.schedule is not None:
+            levels, level_diff = differenced(level_depths(problem, flat_model))
+    r_h = hydraulic_residuals_batch(problem, theta, model, levels)
     parts = []
     pr = problem.prior
     fg = np.flatnonzero(np.isfinite(pr.log_conductance_sd))
@@ -296,20 +310,9 @@ def exact_derivatives(problem: Problem, theta, analytes, steps=None):
             for (cols, local), zk in zip(kinds, zones_of, strict=False):
                 dpred[:, rows, cols] = np.swapaxes(m[:, zk] * local[:, pos[k], :, None], 1, 2)
         parts.append(dpred / problem.log_sd[:, None])
-    if steps is not None:  # what is differenced: every theta of the batch moved in turn
-        steps = np.asarray(steps, float)
-        pert = np.repeat(theta[None], p + 1, axis=0)
-        pert[np.arange(1, p + 1), :, np.arange(p)] += steps[:, None]
-        flat_model = problem.model(pert.reshape((p + 1) * bsz, p))
-
-        def differenced(x):
-            x = x.reshape((p + 1, bsz) + x.shape[1:])
-            return x[0], np.moveaxis((x[1:] - x[0][None])
-                                     / steps.reshape((p,) + (1,) * (x.ndim - 1)), 0, -1)
-
     if len(problem.level_rate) and problem.schedule is not None:
         # the levels superposed in time: forward differences of those rows alone
-        parts.append(differenced(level_depths(problem, flat_model))[1] / problem.level_sd)
+        parts.append(level_diff / problem.level_sd)
     elif len(problem.level_rate):
         pos = inv[at[-2]:]
         dlev = np.zeros((bsz, len(pos), p))
@@ -345,15 +348,18 @@ def exact_derivatives(problem: Problem, theta, analytes, steps=None):
     na = len(analytes)
     weights = {analyte: rows_at(j) + rows_at(na + j) for j, analyte in enumerate(analytes)}
     if at_depth:  # a sample taken at a depth in the well: forward differences of its rows
+        done: dict[bytes, tuple] = {}  # analytes of one sample share the differences
         for analyte in analytes:
             d = problem.data[analyte]
             arrays = list(weights[analyte])
             for k, (rate, depth) in enumerate(((d.rate, d.depth), (d.cens_rate, d.cens_depth))):
                 rows = np.flatnonzero(np.isfinite(depth))
                 if len(rows):
+                    key = rate[rows].tobytes() + depth[rows].tobytes()
+                    if key not in done:
+                        done[key] = differenced(row_weights(flat_model, rate[rows], depth[rows]))
                     a0, da = arrays[2 * k].copy(), arrays[2 * k + 1].copy()
-                    a0[:, rows], da[:, rows] = differenced(
-                        row_weights(flat_model, rate[rows], depth[rows]))
+                    a0[:, rows], da[:, rows] = done[key]
                     arrays[2 * k:2 * k + 2] = a0, da
             weights[analyte] = tuple(arrays)
     return r_h, j_h, weights
