@@ -40,11 +40,11 @@ def test_the_demo_wellfield_end_to_end(tmp_path):
         [MARKER_NAME, "n_minus_1.csv", "plan.csv", "wellfield.csv", "wellfield.png",
          "wellfield.svg", "wellfield.txt"])
     assert "Blending plan:" in text and "N-1 (each planned well out of service" in text
-    plan = pd.read_csv(out / "plan.csv")
+    plan = pd.read_csv(out / "plan.csv", comment="#")
     assert set(plan["source"]) >= {"TH-2", "TH-5", "TH-7", "TH-9", "Interconnection"}
-    outages = pd.read_csv(out / "n_minus_1.csv")
+    outages = pd.read_csv(out / "n_minus_1.csv", comment="#")
     assert list(dict.fromkeys(outages["well_out"])) == ["TH-2", "TH-5", "TH-7", "TH-9"]
-    table = pd.read_csv(out / "wellfield.csv")
+    table = pd.read_csv(out / "wellfield.csv", comment="#")
     assert list(table["well"]) == ["TH-2", "TH-5", "TH-7", "TH-9"]
     assert "window low [gpm]" in table.columns
     assert "planning aid" in (out / "wellfield.txt").read_text(encoding="utf-8")

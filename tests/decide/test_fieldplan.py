@@ -6,15 +6,18 @@ seed gives the same files."""
 from __future__ import annotations
 
 import copy
+import io
 from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pytest
 
 import blendq as bq
 from blendq.decide import fieldplan
 from blendq.decide.blendplan import BlendWell, EntryPoint, n_minus_one, outage_table
+from blendq.report.outputs import to_csv_safe
 
 EXAMPLE = Path(__file__).resolve().parents[2] / "examples" / "wellfield"
 DRAWS = 40
@@ -152,7 +155,26 @@ def test_same_seed_same_plan_files(field):
     for name in ("plan.csv", "n_minus_1.csv", "wellfield.txt", "wellfield.csv"):
         assert a[name] == b[name], name
     assert "planning aid" in a["wellfield.txt"]
-    assert a["plan.csv"].splitlines()[1].endswith(",optimal plan")
+    rows = [ln for ln in a["plan.csv"].splitlines() if not ln.startswith("# ")]
+    assert rows[1].endswith(",optimal plan")
+
+
+def test_every_wellfield_csv_starts_with_the_cautions_and_reads_back(field):
+    files = field.files()
+    tables = {"wellfield.csv": field.table, "plan.csv": field._plan_table(),
+              "n_minus_1.csv": field.n_minus_one()}
+    for name, table in tables.items():
+        lines = files[name].split("\r\n")
+        assert lines[0].startswith("# ") and lines[0].endswith(
+            "; wellfield Tamsett Hollow well field (invented)"), name
+        assert lines[1] == f"# written by blendq {bq.__version__}"
+        assert lines[2:5] == [f"# {c}" for c in field.cautions]
+        assert "planning aid, not a compliance determination" in lines[2]
+        assert not lines[5].startswith("#"), name
+        back = pd.read_csv(io.StringIO(files[name]), comment="#")
+        # the same table as the file without its comment block (and as the table itself)
+        pd.testing.assert_frame_equal(back, pd.read_csv(io.StringIO(to_csv_safe(table))))
+        assert list(back.columns) == [str(c) for c in table.columns] and len(back) == len(table)
 
 
 def test_an_other_source_without_a_planned_analyte_is_an_input_error(field):
