@@ -1425,11 +1425,13 @@ class WellfieldResult:
         return self.field_plan.plan
 
     def n_minus_one(self) -> pd.DataFrame:
-        """The N-1 table: one row per planned well out of service and entry point
-        (:func:`blendq.decide.blendplan.outage_table`; shortfall in m^3/d)."""
-        from blendq.decide.blendplan import outage_table
+        """The N-1 table: one row per planned well out of service and entry point, with
+        whether the entry point fails by itself or only through the link of the wells'
+        drawdown, and why (:func:`blendq.decide.fieldplan.outage_table`; shortfall in m^3/d,
+        level excess in m)."""
+        from blendq.decide.fieldplan import outage_table
 
-        table = outage_table(self.field_plan.outages)
+        table = outage_table(self.field_plan)
         table.attrs["cautions"] = self.cautions
         return table
 
@@ -1485,8 +1487,10 @@ class WellfieldResult:
                                 "source, blend per entry point (rates in m3/d, concentrations "
                                 "in mg/L)"),
                 "n_minus_1.csv": csv(self.n_minus_one(), "N-1: the plan with each planned well "
-                                     "out of service in turn, per entry point (shortfall in "
-                                     "m3/d)"),
+                                     "out of service in turn, per entry point: whether it "
+                                     "fails by itself or only through the link of the wells' "
+                                     "drawdown, and why (shortfall in m3/d, level excess in "
+                                     "m)"),
                 "wellfield.png": png, "wellfield.svg": svg,
                 "wellfield.txt": "\n".join(self.lines()) + "\n"}
 
