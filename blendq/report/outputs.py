@@ -363,7 +363,8 @@ def _csv_field(text: str) -> str:
     return text
 
 
-def to_csv_safe(df: pd.DataFrame, index: bool = False, comments: Iterable[str] = ()) -> str:
+def to_csv_safe(df: pd.DataFrame, index: bool = False, comments: Iterable[str] = (),
+                float_format: str | None = None) -> str:
     """CSV text of a table, with formula-like text cells made inert.
 
     Parameters
@@ -374,6 +375,8 @@ def to_csv_safe(df: pd.DataFrame, index: bool = False, comments: Iterable[str] =
     comments : iterable of str
         Lines written first, each after ``# `` (line ends inside a line become spaces); see
         :func:`csv_comments`.
+    float_format : str, optional
+        Format of floats (as pandas' ``to_csv``); default the shortest round-trip form.
 
     Returns
     -------
@@ -399,7 +402,7 @@ def to_csv_safe(df: pd.DataFrame, index: bool = False, comments: Iterable[str] =
         ]
     # CRLF line ends (RFC 4180); they also make the writer quote a cell holding a bare CR,
     # which with LF line ends would be written unquoted and split the row on reading
-    text = guarded.to_csv(index=index, lineterminator="\r\n")
+    text = guarded.to_csv(index=index, lineterminator="\r\n", float_format=float_format)
     # pandas formats the cells; the fields are written again with "#" among the characters
     # that make a field quoted (the csv module has no per-character quoting rule)
     lines = []
