@@ -1425,11 +1425,13 @@ class WellfieldResult:
         return self.field_plan.plan
 
     def n_minus_one(self) -> pd.DataFrame:
-        """The N-1 table: one row per planned well out of service and entry point
-        (:func:`blendq.decide.blendplan.outage_table`; shortfall in m^3/d)."""
-        from blendq.decide.blendplan import outage_table
+        """The N-1 table: one row per planned well out of service and entry point, with
+        whether the entry point fails by itself or only through the link of the wells'
+        drawdown, and why (:func:`blendq.decide.fieldplan.outage_table`; shortfall in m^3/d,
+        level excess in m)."""
+        from blendq.decide.fieldplan import outage_table
 
-        table = outage_table(self.field_plan.outages)
+        table = outage_table(self.field_plan)
         table.attrs["cautions"] = self.cautions
         return table
 
@@ -1466,14 +1468,29 @@ class WellfieldResult:
         and wellfield.svg (the overview chart, the planned rates marked), wellfield.txt (the
         table, the plan and N-1 as text with the cautions), plan.csv (the plan's rates and
         blends, :meth:`blendq.decide.blendplan.BlendPlan.table`, with ``plan_status``) and
-        n_minus_1.csv
-        (:meth:`n_minus_one`)."""
+        n_minus_1.csv (:meth:`n_minus_one`). Each CSV begins with ``# `` comment lines (what
+        it holds, the blendq version, the cautions): read it with
+        ``pandas.read_csv(path, comment="#")``."""
         from blendq.report.charts.render import render_chart
 
         png, svg = render_chart(self.plot.overview())
-        return {"wellfield.csv": _outputs.to_csv_safe(self.table),
-                "plan.csv": _outputs.to_csv_safe(self._plan_table()),
-                "n_minus_1.csv": _outputs.to_csv_safe(self.n_minus_one()),
+        name = self.wellfield.name
+
+        def csv(table: pd.DataFrame, what: str) -> str:
+            return _outputs.to_csv_safe(table, comments=_outputs.csv_comments(
+                f"{what}; wellfield {name}"))
+
+        return {"wellfield.csv": csv(self.table, f"Wellfield table: window, recommended rate, "
+                                     f"limiting factor, trend and data gaps per well "
+                                     f"(rates in {self.units} display units)"),
+                "plan.csv": csv(self._plan_table(), "Blending plan: rates per well and other "
+                                "source, blend per entry point (rates in m3/d, concentrations "
+                                "in mg/L)"),
+                "n_minus_1.csv": csv(self.n_minus_one(), "N-1: the plan with each planned well "
+                                     "out of service in turn, per entry point: whether it "
+                                     "fails by itself or only through the link of the wells' "
+                                     "drawdown, and why (shortfall in m3/d, level excess in "
+                                     "m)"),
                 "wellfield.png": png, "wellfield.svg": svg,
                 "wellfield.txt": "\n".join(self.lines()) + "\n"}
 

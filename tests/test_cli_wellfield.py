@@ -40,11 +40,21 @@ def test_the_demo_wellfield_end_to_end(tmp_path):
         [MARKER_NAME, "n_minus_1.csv", "plan.csv", "wellfield.csv", "wellfield.png",
          "wellfield.svg", "wellfield.txt"])
     assert "Blending plan:" in text and "N-1 (each planned well out of service" in text
-    plan = pd.read_csv(out / "plan.csv")
+    plan = pd.read_csv(out / "plan.csv", comment="#")
     assert set(plan["source"]) >= {"TH-2", "TH-5", "TH-7", "TH-9", "Interconnection"}
-    outages = pd.read_csv(out / "n_minus_1.csv")
+    outages = pd.read_csv(out / "n_minus_1.csv", comment="#")
     assert list(dict.fromkeys(outages["well_out"])) == ["TH-2", "TH-5", "TH-7", "TH-9"]
-    table = pd.read_csv(out / "wellfield.csv")
+    # the N-1 text and table agree on which entry point fails by itself and which only
+    # through the link of the wells' drawdown (the demo's interference links the two plants)
+    fails = outages.set_index(["well_out", "entry_point"])["fails"]
+    assert fails["TH-2", "North plant"] == "itself"
+    assert "    North plant fails on its own wells: short 650 gpm of its 650 gpm demand; nitrate " \
+           "over margin x limit" in text
+    assert fails["TH-2", "South plant"] == "through the link"
+    assert ("    South plant: meets demand and limits on its own wells, but no joint plan exists "
+            "because its wells' drawdown is linked to North plant's") in text
+    assert fails["TH-5"].tolist() == ["no", "no"] and "TH-5 out: every entry point met" in text
+    table = pd.read_csv(out / "wellfield.csv", comment="#")
     assert list(table["well"]) == ["TH-2", "TH-5", "TH-7", "TH-9"]
     assert "window low [gpm]" in table.columns
     assert "planning aid" in (out / "wellfield.txt").read_text(encoding="utf-8")

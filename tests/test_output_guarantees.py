@@ -3,7 +3,8 @@ partial report and an older report intact; the same seed gives byte-identical fi
 user text is escaped in the HTML report; CSV cells a spreadsheet would run as a formula are
 made inert.
 
-One project with hostile names (markup, ampersands, quotes, a formula as a sample id) is run
+One project with hostile names (markup, ampersands, quotes, a formula as a sample id, a sample id
+beginning with the CSV comment mark ``#``) is run
 through ``check``, ``fit`` and ``report`` once (``--draws 100``); the tests read its outputs.
 """
 
@@ -11,12 +12,14 @@ from __future__ import annotations
 
 import hashlib
 import html
+import io
 import shutil
 from pathlib import Path
 
 import pytest
 from typer.testing import CliRunner
 
+import blendq
 import blendq.decide.analysis
 import blendq.report.html
 import blendq.report.outputs
@@ -29,6 +32,7 @@ ZONE = "Upper <script>alert(1)</script>"
 MIDDLE = 'Middle & "deep"'
 MARKUP_ID = "<img src=x onerror=\"alert('S2')\">&amp;"
 FORMULA_ID = '=HYPERLINK("http://example.invalid","open")'
+HASH_ID = "#S3, bottle #2"  # the comment mark of the CSV outputs, at the start and inside
 
 runner = CliRunner(env={"COLUMNS": "200", "NO_COLOR": "1"})
 
@@ -53,6 +57,8 @@ def _hostile_project(folder: Path) -> Path:
     quote = '"' + MARKUP_ID.replace('"', '""') + '"'
     formula = '"' + FORMULA_ID.replace('"', '""') + '"'
     samples = samples.replace("\nQW3-S2,", f"\n{quote},").replace("\nQW3-S1,", f"\n{formula},")
+    samples = samples.replace("\nQW3-S3,", f'\n"{HASH_ID}",').replace(",QW3-S3,",
+                                                                     f',"{HASH_ID}",')
     (folder / "lab" / "samples.csv").write_text(samples, encoding="utf-8")
     return folder
 
@@ -124,6 +130,25 @@ def test_formula_cells_are_inert_in_csv(run):
         for line in text.splitlines():
             for cell_start in (",=", '"=', ",+", ",@"):
                 assert not line.startswith(cell_start[1:]) and cell_start not in line, (name, line)
+
+
+def test_cells_holding_the_comment_mark_read_back_whole(run):
+    # every table begins with "# " comment lines; a cell holding "#" is quoted, so pandas
+    # with comment="#" reads it whole and the row keeps all its cells
+    import pandas as pd
+
+    hits = 0
+    for path in sorted((run["out"] / "tables").glob("*.csv")):
+        text = path.read_bytes().decode("utf-8")
+        assert text.startswith("# ") and f"# {blendq.CAUTIONS[0]}\r\n" in text, path.name
+        table = pd.read_csv(path, comment="#", dtype=str, keep_default_na=False)
+        if f'"{HASH_ID}"' in text:
+            hits += 1
+            assert HASH_ID in set(table.to_numpy().ravel()), path.name
+        body = [ln for ln in text.split("\r\n") if ln and not ln.startswith("# ")]
+        plain = pd.read_csv(io.StringIO("\r\n".join(body)), dtype=str, keep_default_na=False)
+        pd.testing.assert_frame_equal(table, plain)
+    assert hits, "the sample id holding '#' appears in some table"
 
 
 # ----------------------------------------------------------------------------- failed runs

@@ -22,9 +22,10 @@ Each in-service well whose analysis did not fail becomes a :class:`BlendWell`:
 from __future__ import annotations
 
 import hashlib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
+import pandas as pd
 
 from blendq.decide import blendplan as bp
 from blendq.errors import InputError
@@ -219,11 +220,16 @@ class FieldPlan:
     plan : blendplan.BlendPlan
     outages : list of blendplan.OutageResult
         One per planned well (a well out of service or failed has no outage of its own).
+    outcomes : list of list of EntryOutcome
+        Per outage (in the order of ``outages``), what happens at each entry point: met, fails
+        by itself (and why), or without a plan only through the link of the wells' drawdown
+        (:func:`entry_outcomes`).
     """
 
     inputs: PlanInputs
     plan: bp.BlendPlan
     outages: list
+    outcomes: list = field(default_factory=list)
 
 
 def field_plan(wellfield, outcomes, seed: int | None = None,
@@ -263,7 +269,216 @@ def field_plan(wellfield, outcomes, seed: int | None = None,
     kw = dict(max_draws=max_draws, seed=p.seed, time_limit=time_limit, units=units)
     plan = bp.blending_plan(*args, **kw)
     outages = bp.n_minus_one(*args, **kw) if n_minus_one else []
-    return FieldPlan(p, plan, outages)
+    outcomes = [entry_outcomes(p, r, **kw) for r in outages]
+    return FieldPlan(p, plan, outages, outcomes)
+
+
+# --------------------------------------------------------------------------------------------
+# N-1: which entry point fails, and why
+
+
+@dataclass
+class EntryOutcome:
+    """What one outage does at one entry point.
+
+    Attributes
+    ----------
+    entry_point : str
+    fails : str
+        ``"no"`` (demand and every limit met by the re-optimised plan), ``"itself"`` (no plan
+        for this entry point even with only its own wells and sources, the other entry points'
+        wells off) or ``"through the link"`` (its own wells and sources meet its demand and
+        limits, but it shares one program with linked entry points, through the wells'
+        drawdown at one another, and that program has no plan).
+    linked : list of str
+        The other entry points in the same program (the wells' drawdown links them).
+    failing : list of str
+        For ``"through the link"``: the linked entry points that fail by themselves (empty
+        when each meets its demand alone and only the joint program fails).
+    demand : float
+        [m^3/d]
+    shortfall : float
+        Demand it cannot receive with every limit met [m^3/d], from its own program alone;
+        0 when met or failing only through the link.
+    over : list of tuple (str, float, float, bool)
+        Analytes over margin x limit in its own program alone: (analyte, lowest achievable
+        blend quantile [mg/L], margin x limit [mg/L], True when found with only this analyte
+        constrained, other limits binding too).
+    level_excess : float
+        Depth below the deepest allowed pumping level a plan would need [m] (its own program,
+        or, for linked entry points that each meet their demand alone, their joint one); NaN
+        when the level limits do not bind.
+    rate_excess : float
+        Total rate outside the wells' rate limits a plan would need [m^3/d]; NaN when the rate
+        limits do not bind.
+    """
+
+    entry_point: str
+    fails: str
+    linked: list[str]
+    failing: list[str]
+    demand: float
+    shortfall: float = 0.0
+    over: list = field(default_factory=list)
+    level_excess: float = float("nan")
+    rate_excess: float = float("nan")
+
+    def cause(self) -> str:
+        """What fails, without figures: ``short``, ``<analyte> over margin x limit``,
+        ``level limits``, ``rate limits`` (``; ``-separated), or "" when met."""
+        parts = ["short"] if self.shortfall > 0 else []
+        parts += [f"{a} over margin x limit" for a, *_ in self.over]
+        if np.isfinite(self.level_excess):
+            parts.append("level limits")
+        if np.isfinite(self.rate_excess):
+            parts.append("rate limits")
+        return "; ".join(parts)
+
+
+def _links(inputs: PlanInputs, out: str | None) -> list[list[str]]:
+    """Entry points one program holds together: linked when a well of one has drawdown at a
+    well of the other (interference), the well ``out`` (out of service) not counted."""
+    names = [e.name for e in inputs.entry_points]
+    parent = {n: n for n in names}
+
+    def root(n: str) -> str:
+        while parent[n] != n:
+            n = parent[n]
+        return n
+
+    if inputs.interference is not None:
+        wells = inputs.wells
+        for i, wi in enumerate(wells):
+            for j, wj in enumerate(wells):
+                if (out not in (wi.name, wj.name) and wi.entry_point != wj.entry_point
+                        and inputs.interference[i, j] != 0):
+                    parent[root(wi.entry_point)] = root(wj.entry_point)
+    groups: dict[str, list[str]] = {}
+    for n in names:
+        groups.setdefault(root(n), []).append(n)
+    return list(groups.values())
+
+
+def _sub_plan(inputs: PlanInputs, out: str, eps: list[str], **kw) -> bp.BlendPlan:
+    """The plan of the entry points ``eps`` alone, with the well ``out`` out of service: their
+    own wells and sources only, the drawdown among those wells kept."""
+    idx = [k for k, w in enumerate(inputs.wells) if w.entry_point in eps]
+    wells = [replace(inputs.wells[k], available=inputs.wells[k].name != out) for k in idx]
+    inter = (None if inputs.interference is None
+             else inputs.interference[np.ix_(idx, idx)])
+    return bp.blending_plan(wells, [e for e in inputs.entry_points if e.name in eps],
+                            inputs.limits, inputs.margin, inputs.probability, inputs.analytes,
+                            [o for o in inputs.others if o.entry_point in eps], inter, **kw)
+
+
+def _fill_cause(o: EntryOutcome, plan: bp.BlendPlan, own: bool = True) -> None:
+    """The figures of ``plan``'s diagnosis for ``o``. With ``own`` (a plan of this entry point
+    alone): its shortfall, its analytes over margin x limit, and the level and rate limits.
+    Else (a plan of linked entry points that each meet their demand alone) only the level and
+    rate limits, the constraints the wells' drawdown couples: how the program spreads a joint
+    shortfall among the entry points is one of many equal choices, not a finding."""
+    for r in plan.diagnosis:
+        if own and r.family == "demand" and r.entry_point == o.entry_point:
+            o.shortfall = max(float(r.target - r.value), 0.0)
+        elif own and r.family == "quality" and r.entry_point == o.entry_point:
+            o.over.append((r.analyte, float(r.value), float(r.target), not r.opens))
+        elif r.family == "level limits":
+            o.level_excess = float(r.value)
+        elif r.family == "rate limits":
+            o.rate_excess = float(r.value)
+
+
+def entry_outcomes(inputs: PlanInputs, result, max_draws: int | None = PLAN_DRAWS,
+                   seed: int = 0, time_limit: float = bp.TIME_LIMIT,
+                   units: str = "SI") -> list[EntryOutcome]:
+    """What an outage does at each entry point: met, fails by itself (why), or only through
+    the link of the wells' drawdown.
+
+    An entry point the re-optimised plan leaves without a plan is planned again alone (its
+    own wells, minus the one out, and its own sources; the drawdown among its own wells kept,
+    the other entry points' wells off). Without a plan then, it fails by itself, and the
+    diagnosis of that plan says why (short by how much, which analyte over margin x limit,
+    which hydraulic limit binds). With one, it fails only because it shares the program with
+    linked entry points: those that fail by themselves are named; when none does, the linked
+    entry points are planned together alone and that diagnosis says what binds.
+
+    Parameters
+    ----------
+    inputs : PlanInputs
+    result : blendplan.OutageResult
+    max_draws, seed, time_limit, units
+        As :func:`field_plan` (the programs solved here use the same).
+
+    Returns
+    -------
+    list of EntryOutcome
+        In the order of the wellfield file's entry points.
+    """
+    kw = dict(max_draws=max_draws, seed=seed, time_limit=time_limit, units=units)
+    unmet = set(result.plan.unmet)
+    groups = {n: g for g in _links(inputs, result.well) for n in g}
+    demand = {e.name: float(e.demand) for e in inputs.entry_points}
+    out: dict[str, EntryOutcome] = {}
+    for e in inputs.entry_points:
+        linked = [n for n in groups[e.name] if n != e.name]
+        out[e.name] = EntryOutcome(e.name, "no" if e.name not in unmet else "itself",
+                                   linked, [], demand[e.name])
+    for name in (n for n in out if n in unmet):
+        o = out[name]
+        if len(unmet) == 1:  # its own program, alone: the outage's diagnosis is its own
+            _fill_cause(o, result.plan)
+            continue
+        alone = _sub_plan(inputs, result.well, [name], **kw)
+        if alone.feasible:
+            o.fails = "through the link"
+        else:
+            _fill_cause(o, alone)
+    for name in (n for n in out if out[n].fails == "through the link"):
+        o = out[name]
+        o.failing = [n for n in o.linked if out[n].fails == "itself"]
+    # a linked group whose entry points each meet their demand alone: what binds jointly
+    for g in {tuple(groups[n]) for n in out if out[n].fails == "through the link"
+              and not out[n].failing}:
+        joint = _sub_plan(inputs, result.well, list(g), **kw)
+        for n in g:
+            _fill_cause(out[n], joint, own=False)
+    return list(out.values())
+
+
+def _outcomes(fp: FieldPlan) -> list[list[EntryOutcome]]:
+    """``fp.outcomes``, worked out here for a FieldPlan made without them (same seed and
+    draws as its plan)."""
+    if len(fp.outcomes) == len(fp.outages):
+        return fp.outcomes
+    p = fp.plan
+    max_draws = p.draws_used if p.draws_used < p.draws_total else None
+    return [entry_outcomes(fp.inputs, r, max_draws=max_draws, seed=fp.inputs.seed)
+            for r in fp.outages]
+
+
+def outage_table(fp: FieldPlan) -> pd.DataFrame:
+    """The N-1 table: :func:`blendplan.outage_table` with what fails at each entry point.
+
+    Columns: ``well_out``, ``entry_point``, ``met``, ``plan_found`` (as
+    :func:`blendplan.outage_table`), ``fails`` (``no``, ``itself``, ``through the link``),
+    ``linked_to`` (for ``through the link``: the linked entry points that fail by themselves,
+    else every linked one; ``; ``-separated), ``cause`` (:meth:`EntryOutcome.cause`), ``shortfall_m3_d`` and
+    ``noncompliant`` (of this entry point's own diagnosis, :func:`entry_outcomes`: 0 and
+    empty for an entry point failing only through the link of an entry point that fails
+    itself), ``level_excess_m`` [m] and ``rate_excess_m3_d`` [m^3/d] (NaN when they do not
+    bind).
+    """
+    rows = []
+    for r, entries in zip(fp.outages, _outcomes(fp), strict=True):
+        for o in entries:
+            rows.append({"well_out": r.well, "entry_point": o.entry_point,
+                         "met": o.fails == "no", "plan_found": r.feasible, "fails": o.fails,
+                         "linked_to": "; ".join((o.failing or o.linked)
+                                                if o.fails == "through the link" else []),
+                         "cause": o.cause(), "shortfall_m3_d": o.shortfall,
+                         "noncompliant": ", ".join(a for a, *_ in o.over),
+                         "level_excess_m": o.level_excess, "rate_excess_m3_d": o.rate_excess})
+    return pd.DataFrame(rows)
 
 
 # --------------------------------------------------------------------------------------------
@@ -328,29 +543,72 @@ def plan_lines(fp: FieldPlan, units: str = "US") -> list[str]:
     return out
 
 
-def outage_lines(fp: FieldPlan, units: str = "US") -> list[str]:
-    """The N-1 outcome as text: per well out of service, the entry points left short (with the
-    shortfall in the display unit) or non-compliant."""
-    from blendq.units import DISPLAY_UNITS, display_unit_label, from_base
+def _names(names: list[str]) -> str:
+    """``A``, ``A and B``, ``A, B and C``."""
+    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
 
-    unit = DISPLAY_UNITS[units]["rate"]
-    label = display_unit_label(unit)
+
+def _possessive(names: list[str]) -> str:
+    return _names(names) + "'" + ("" if _names(names).endswith("s") else "s")
+
+
+def entry_outcome_text(o: EntryOutcome, units: str = "US", probability: float = 0.95) -> str:
+    """One entry point's N-1 outcome in words, figures in the display units.
+
+    Parameters
+    ----------
+    o : EntryOutcome
+    units : str
+        Display unit system ("US", "SI", "SI-L/s").
+    probability : float
+        The plan's probability [-] (the quantile the analytes are judged at).
+    """
+    from blendq.units import format_quantity
+
+    def rate(v: float) -> str:
+        return format_quantity(v, "rate", units)
+
+    if o.fails == "no":
+        return f"{o.entry_point}: met"
+    why = []
+    if o.shortfall > 0:
+        why.append(f"short {rate(o.shortfall)} of its {rate(o.demand)} demand")
+    pct = f"{100 * probability:g} %"
+    for analyte, lowest, target, alone in o.over:
+        why.append(f"{analyte} over margin x limit (lowest achievable {pct} quantile "
+                   f"{_conc(analyte, lowest)} against {_conc(analyte, target)}"
+                   + ("; other limits bind too" if alone else "") + ")")
+    if np.isfinite(o.level_excess):
+        why.append(f"pumping levels would reach {format_quantity(o.level_excess, 'length', units)}"
+                   " below the deepest allowed (level limits bind)")
+    if np.isfinite(o.rate_excess):
+        why.append(f"rates {rate(o.rate_excess)} outside the wells' rate limits needed (rate "
+                   "limits bind)")
+    if o.fails == "itself":
+        return (f"{o.entry_point} fails on its own wells: " + "; ".join(why) if why else
+                f"{o.entry_point} fails on its own wells: no plan meets its constraints")
+    if o.failing:
+        return (f"{o.entry_point}: meets demand and limits on its own wells, but no joint plan "
+                f"exists because its wells' drawdown is linked to {_possessive(o.failing)}")
+    return (f"{o.entry_point}: meets demand and limits on its own wells, and so does "
+            f"{_names(o.linked)}; together no plan exists because the wells' drawdown links "
+            "them" + (": " + "; ".join(why) if why else ""))
+
+
+def outage_lines(fp: FieldPlan, units: str = "US") -> list[str]:
+    """The N-1 outcome as text: per well out of service, each entry point left without a plan,
+    whether it fails on its own wells (short by how much, which analyte over margin x limit,
+    which hydraulic limit binds; figures in the display units) or only because the wells'
+    drawdown links it to one that fails."""
     out = ["N-1 (each planned well out of service in turn):"]
     if not fp.outages:
         return out + ["  no well to take out"]
-    for r in fp.outages:
-        bad = []
-        for ep, short in r.shortfall.items():
-            if ep not in r.plan.unmet:
-                continue
-            what = []
-            if short > 0:
-                what.append(f"short {float(from_base(short, 'rate', unit)):,.4g} {label}")
-            if r.noncompliant[ep]:
-                what.append("over margin x limit: " + ", ".join(r.noncompliant[ep]))
-            if not what:
-                what.append("no plan for the entry points the wells' drawdown links")
-            bad.append(f"{ep} not met ({'; '.join(what)})")
-        out.append(f"  {r.well} out: " + ("; ".join(bad) if bad else
-                                          "every entry point met (plan re-optimised)"))
+    for r, entries in zip(fp.outages, _outcomes(fp), strict=True):
+        bad = [entry_outcome_text(o, units, fp.inputs.probability)
+               for o in entries if o.fails != "no"]
+        if not bad:
+            out.append(f"  {r.well} out: every entry point met (plan re-optimised)")
+            continue
+        out.append(f"  {r.well} out:")
+        out += [f"    {line}" for line in bad]
     return out

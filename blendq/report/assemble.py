@@ -770,9 +770,9 @@ def summary_json(a: Analysis, units: str = "US") -> dict:
 
 def output_files(a: Analysis, units: str = "US", created: str = "") -> dict[str, bytes | str]:
     """All files of a report folder: report.html, report.pdf, CSV tables, summary.json, charts."""
-    from blendq.report.csv_tables import csv_tables
+    from blendq.report.csv_tables import CSV_TITLES, csv_tables
     from blendq.report.html import render_html
-    from blendq.report.outputs import to_csv_safe, to_json_stable
+    from blendq.report.outputs import csv_comments, to_csv_safe, to_json_stable
     from blendq.report.pdf import render_pdf_bytes
 
     doc = build_document(a, units, created)
@@ -781,7 +781,9 @@ def output_files(a: Analysis, units: str = "US", created: str = "") -> dict[str,
         "report.pdf": render_pdf_bytes(doc, report_paper(a)),
         "summary.json": to_json_stable(summary_json(a, units)),
     }
-    files.update({name: to_csv_safe(t) for name, t in csv_tables(a, units).items()})
+    files.update({name: to_csv_safe(t, comments=csv_comments(
+        f"{CSV_TITLES[name]} ({units} display units); blendq report of {a.project.name}"))
+        for name, t in csv_tables(a, units).items()})
     for k, block in enumerate(b for sec in doc.sections for b in sec.blocks if isinstance(b, Figure)):
         if block.png is not None:
             files[f"charts/chart_{k + 1}.png"] = block.png

@@ -16,6 +16,9 @@ Rules
   :data:`CSV_PROBABILITY_DECIMALS` decimals), so ``0.0070999999999999995`` is written
   ``0.0071``. The text, the command line and the charts round the same values to three
   significant digits (:func:`blendq.units.significant`); the CSV keeps one digit more.
+* Each file begins with a few comment lines starting with ``# `` (what the table is, the blendq
+  version, the cautions; :func:`blendq.report.outputs.csv_comments`): read the tables with
+  ``pandas.read_csv(path, comment="#")``.
 * CSV numbers have no thousands separator in either unit system and a point as the decimal
   mark (RFC 4180 files for programs and spreadsheets; a separator would split or mislead).
 """
@@ -156,6 +159,18 @@ def hydraulics_csv_table(hydraulics: pd.DataFrame, units: str) -> pd.DataFrame:
 def findings_csv_table(findings: pd.DataFrame) -> pd.DataFrame:
     """The review findings (text; numbers only as row references)."""
     return findings.copy()
+
+
+#: What each table of the report folder holds (the first comment line of its file).
+CSV_TITLES = {
+    "tables/zones.csv": "Zone water quality: estimate, sd, interval and data-allowed range "
+                        "per zone and analyte",
+    "tables/sweep.csv": "Rate sweep: discharge quality bands, exceedance probabilities, "
+                        "pumping levels and zone shares per rate",
+    "tables/residuals.csv": "Lab results against the fitted blend",
+    "tables/hydraulics.csv": "Zone conductances and static levels",
+    "tables/qa_findings.csv": "Data review findings",
+}
 
 
 def csv_tables(a, units: str) -> dict[str, pd.DataFrame]:

@@ -11,6 +11,8 @@ checks a finished test against.
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pandas as pd
 
@@ -18,6 +20,7 @@ from blendq import CAUTIONS
 from blendq.decide.plan import Design, PlanReport, planned_purge, window_ends
 from blendq.errors import ModelError
 from blendq.report.document import BulletList, Callout, Document, KeyValues, Section, Table
+from blendq.report.outputs import csv_comments, to_csv_safe
 from blendq.units import BASE_UNITS, DISPLAY_UNITS, format_quantity, from_base
 
 #: columns of the field sheet (CSV in display units named in the header)
@@ -92,13 +95,19 @@ def field_sheet(report: PlanReport, design: Design, units: str = "US") -> pd.Dat
 
 
 def write_csv(table: pd.DataFrame, path):
-    """Write a field sheet as CSV (a path or a text buffer) with the units in the header."""
+    """Write a field sheet as CSV (a path or a text buffer) with the units in the header,
+    after ``# `` comment lines (what it is, the blendq version, the cautions;
+    :func:`blendq.report.outputs.csv_comments`), formula-like text made inert."""
     u = table.attrs.get("units", {})
     names = {"rate": f"rate [{u.get('rate', '')}]", "purge_volume":
              f"purge_volume [{u.get('volume', '')}]", "depth": f"depth [{u.get('depth', '')}]",
              "start_hour": "start [h]", "duration_h": "duration [h]", "purge_hours": "purge [h]"}
-    table.rename(columns=names).to_csv(path, index=False, float_format="%.4g",
-                                       lineterminator="\n")
+    text = to_csv_safe(table.rename(columns=names), float_format="%.4g", comments=csv_comments(
+        "Field sheet of the planned step test: each action in order"))
+    if hasattr(path, "write"):
+        path.write(text)
+    else:
+        Path(path).write_text(text, encoding="utf-8", newline="")
     return path
 
 
@@ -240,10 +249,11 @@ def field_sheet_files(report: PlanReport, units: str = "US", created: str = "") 
     if report.plan is not None:
         table = candidates_table(report, units)
         u = table.attrs["units"]
-        files["candidates.csv"] = table.rename(columns={
+        files["candidates.csv"] = to_csv_safe(table.rename(columns={
             "rates": f"rates [{u['rate']}]", "flow_logs": f"flow_logs [{u['rate']}]",
             "depth_samples": f"depth_samples [step@{u['depth']}]",
             "low_end_sd": f"low_end_sd [{u['rate']}]",
-            "high_end_sd": f"high_end_sd [{u['rate']}]"}).to_csv(
-                index=False, float_format="%.4g", lineterminator="\n")
+            "high_end_sd": f"high_end_sd [{u['rate']}]"}), float_format="%.4g",
+            comments=csv_comments("Candidate step-test designs with their cost, expected "
+                                  "spreads of the window's ends and unresolved zones"))
     return files

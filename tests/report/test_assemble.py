@@ -68,6 +68,12 @@ def _pdf_pages(data: bytes) -> int:
     return len(re.findall(rb"/Type\s*/Page(?!s)", data))
 
 
+def _table_text(path: Path) -> io.StringIO:
+    """A CSV file of the report folder without its leading ``# `` comment lines."""
+    lines = path.read_text(encoding="utf-8").splitlines(keepends=True)
+    return io.StringIO("".join(ln for ln in lines if not ln.startswith("# ")), newline="")
+
+
 @pytest.fixture(scope="module")
 def demo_out(tmp_path_factory) -> Path:
     out = tmp_path_factory.mktemp("demo") / "blendq-demo"
@@ -87,8 +93,28 @@ def test_demo_writes_every_file(demo_out):
     assert len(pngs) >= 4
     for png in pngs:
         assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
-    rows = list(csv.DictReader(io.StringIO((demo_out / "tables" / "zones.csv").read_text())))
+    rows = list(csv.DictReader(_table_text(demo_out / "tables" / "zones.csv")))
     assert {r["zone"] for r in rows} == {"Upper sand", "Silty sand", "Gravel (clogged)", "Deep sand"}
+
+
+def test_every_table_starts_with_the_cautions_and_reads_back(demo_out):
+    from blendq.report.csv_tables import CSV_TITLES
+
+    names = sorted(p.relative_to(demo_out).as_posix() for p in demo_out.rglob("*.csv"))
+    assert names == sorted(CSV_TITLES)
+    for name in names:
+        raw = (demo_out / name).read_bytes().decode("utf-8")
+        lines = raw.split("\r\n")
+        assert lines[0] == f"# {CSV_TITLES[name]} (US display units); blendq report of " \
+                           "TH-2 step-rate test, May 2026", name
+        assert lines[1] == f"# written by blendq {blendq.__version__}"
+        assert lines[2:5] == [f"# {CAUTIONS[0]}", f"# {CAUTIONS[1]}", f"# {CAUTIONS[3]}"]
+        assert not lines[5].startswith("#") and raw.endswith("\r\n")
+        # comment="#" gives the table of the file without its comment block, cell for cell
+        table = pd.read_csv(demo_out / name, comment="#", dtype=str, keep_default_na=False)
+        plain = pd.read_csv(_table_text(demo_out / name), dtype=str, keep_default_na=False)
+        pd.testing.assert_frame_equal(table, plain)
+        assert len(table) == raw.count("\r\n") - 6, name  # one row per line (no cut cell)
 
 
 def test_html_sections_and_no_external_resource(demo_out):
@@ -259,7 +285,7 @@ def test_csv_tables_have_units_in_every_numeric_column_and_rounded_values(demo_o
     # display units (the demo is a US project), the unit in each numeric column name, and at
     # most 4 significant digits (no 0.0070999999999999995)
     for path in sorted((demo_out / "tables").glob("*.csv")):
-        rows = list(csv.DictReader(io.StringIO(path.read_text(encoding="utf-8"))))
+        rows = list(csv.DictReader(_table_text(path)))
         assert rows, path.name
         for col in rows[0]:
             cells = [r[col] for r in rows if r[col] != ""]
@@ -272,7 +298,7 @@ def test_csv_tables_have_units_in_every_numeric_column_and_rounded_values(demo_o
             assert col.endswith("]"), f"{path.name}: column {col!r} has no unit"
             worst = max(cells, key=_significant_digits)
             assert _significant_digits(worst) <= 4, f"{path.name} {col}: {worst}"
-    sweep = (demo_out / "tables" / "sweep.csv").read_text(encoding="utf-8").splitlines()[0]
+    sweep = _table_text(demo_out / "tables" / "sweep.csv").readline()
     assert sweep.startswith("rate [gpm],") and "Arsenic median [ug/L]" in sweep
     assert "pumping level median [ft depth]" in sweep
 
@@ -392,7 +418,7 @@ def test_si_project_settings_prepared_reviewed_date_and_a4(tmp_path):
     assert "2026-06-03" in page and "not yet reviewed" not in page
     pdf = (out / "report.pdf").read_bytes()
     assert _media_box(pdf) == pytest.approx((595.276, 841.89), abs=1e-3)  # ISO 216 A4
-    sweep = (out / "tables" / "sweep.csv").read_text(encoding="utf-8").splitlines()[0]
+    sweep = _table_text(out / "tables" / "sweep.csv").readline()
     assert sweep.startswith("rate [m³/d],")
     # paper set explicitly
     toml.write_text(text.replace('report_date = 2026-06-03', 'report_date = 2026-06-03\n'
@@ -411,8 +437,7 @@ def test_litres_per_second_report(tmp_path):
     out = tmp_path / "out"
     r = run("report", project, "--out", out, "--draws", "60", "--seed", SEED)
     assert r.exit_code == 0, r.output
-    sweep = list(csv.DictReader(io.StringIO(
-        (out / "tables" / "sweep.csv").read_text(encoding="utf-8"))))
+    sweep = list(csv.DictReader(_table_text(out / "tables" / "sweep.csv")))
     assert "rate [L/s]" in sweep[0] and "pumping level median [m depth]" in sweep[0]
     summary = json.loads((out / "summary.json").read_text(encoding="utf-8"))
     # the window's ends in L/s are the base-unit ends / 86.4 (1 L/s = 86.4 m^3/d, exact)

@@ -8,6 +8,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
+from blendq import CAUTIONS, __version__
 from blendq.decide import plan
 from blendq.inputs.plan_file import load_for_planning
 from blendq.report.fieldsheet import (
@@ -51,8 +52,17 @@ def test_files_are_written_the_same_twice_and_carry_the_cautions(monkeypatch):
     b = field_sheet_files(_report(), "SI", "test")
     assert a == b
     assert a["fieldsheet.pdf"].startswith(b"%PDF")
-    table = pd.read_csv(io.StringIO(a["fieldsheet.csv"]))
+    table = pd.read_csv(io.StringIO(a["fieldsheet.csv"]), comment="#")
     assert "rate [m**3/d]" in table.columns and "purge_volume [m**3]" in table.columns
+    # both CSV files begin with the comment block: what they hold, the version, the cautions
+    for name in ("fieldsheet.csv", "candidates.csv"):
+        lines = a[name].split("\r\n")
+        assert lines[0].startswith("# ") and lines[1] == f"# written by blendq {__version__}"
+        assert lines[2:5] == [f"# {CAUTIONS[0]}", f"# {CAUTIONS[1]}", f"# {CAUTIONS[3]}"]
+        assert not lines[5].startswith("#"), name
+    # the table reads back whole: the "what" sentences hold commas inside quotes
+    assert len(table) == a["fieldsheet.csv"].count("\r\n") - 6
+    assert table["what"].str.len().min() > 10
     assert "planning aid, not a compliance determination" in a["plan.txt"]
     doc = field_sheet_document(REPORT, sheet_design(REPORT), "SI")
     assert "compliance determination" in doc.sections[0].blocks[0].text
@@ -66,7 +76,7 @@ def test_candidates_table_lists_every_design_evaluated():
     assert table["cost"].is_monotonic_increasing
     assert (table["low_end_sd"] >= 0).all() and (table["high_end_sd"] >= 0).all()
     files = field_sheet_files(REPORT, "US", "test")
-    assert files["candidates.csv"].startswith("steps,rates [gpm],")
+    assert files["candidates.csv"].split("\r\n")[5].startswith("steps,rates [gpm],")
 
 
 def test_purge_on_the_sheet_is_casing_volumes_plus_the_stored_water():

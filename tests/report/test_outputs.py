@@ -18,6 +18,7 @@ import pytest
 from hypothesis import given
 from hypothesis import strategies as st
 
+import blendq as bq
 import blendq.report.outputs as outputs
 from blendq.errors import InputError
 from blendq.report.outputs import MARKER_NAME, to_csv_safe, to_json_stable, write_outputs
@@ -255,6 +256,54 @@ def test_formula_guard_property(text: str) -> None:
     else:
         assert not guarded.startswith(("=", "+", "-", "@", "\t", "\r"))
         assert guarded in (text, "'" + text)
+
+
+def test_comment_block_leads_and_is_skipped_by_pandas() -> None:
+    frame = pd.DataFrame({"well": ["A", "B"], "rate [gpm]": [120.5, 80.0]})
+    text = to_csv_safe(frame, comments=outputs.csv_comments("Test table,\nper well"))
+    lines = text.split("\r\n")
+    assert lines[0] == "# Test table, per well"  # a line end inside a comment becomes a space
+    assert lines[1] == f"# written by blendq {bq.__version__}"
+    assert lines[2:5] == [f"# {c}" for c in (bq.CAUTIONS[0], bq.CAUTIONS[1], bq.CAUTIONS[3])]
+    assert lines[5] == "well,rate [gpm]" and text.endswith("\r\n") and "\n" not in text.replace(
+        "\r\n", "")
+    pd.testing.assert_frame_equal(pd.read_csv(io.StringIO(text), comment="#"), frame)
+    # without comments the text is what it was: pandas' CSV of the guarded table
+    assert to_csv_safe(frame) == frame.to_csv(index=False, lineterminator="\r\n")
+
+
+def test_cells_holding_a_hash_are_quoted() -> None:
+    frame = pd.DataFrame({"#id": ["#3", "well #2", "ok", "=#x"], "n": [1, 2, 3, 4]})
+    text = to_csv_safe(frame, comments=["c"])
+    assert text == ('# c\r\n"#id",n\r\n"#3",1\r\n"well #2",2\r\nok,3\r\n"\'=#x",4\r\n')
+    back = pd.read_csv(io.StringIO(text), comment="#")
+    assert list(back.columns) == ["#id", "n"]
+    assert back["#id"].tolist() == ["#3", "well #2", "ok", "'=#x"]
+    assert back["n"].tolist() == [1, 2, 3, 4]
+
+
+_CELL = st.text(alphabet=st.sampled_from(list("ab #,\"\r\n=+-@\t1. ")), max_size=8)
+
+
+@given(st.lists(st.tuples(_CELL, _CELL), min_size=1, max_size=5), st.lists(_CELL, max_size=3))
+def test_text_cells_round_trip_with_comment_hash(rows, comments) -> None:
+    # pandas' C reader with comment="#" gives back every (guarded) cell and label
+    frame = pd.DataFrame(rows, columns=["x #1", "y"])
+    text = to_csv_safe(frame, comments=comments)
+    assert text.count("\r\n# ") + text.startswith("# ") == len(comments)
+    back = pd.read_csv(io.StringIO(text), comment="#", dtype=str, keep_default_na=False)
+    assert list(back.columns) == ["x #1", "y"]
+    for col in frame.columns:
+        assert back[col].tolist() == [outputs._guard_cell(v) for v in frame[col]]
+
+
+@given(st.lists(st.text(alphabet=st.sampled_from(list("ab ,\"\r\n=-1.")), max_size=6),
+                min_size=1, max_size=4))
+def test_without_hash_the_fields_are_pandas_own(cells) -> None:
+    # the rewrite of the fields changes nothing but the quoting of "#"
+    frame = pd.DataFrame({"t": cells, "v": np.arange(len(cells)) / 3})
+    guarded = frame.assign(t=frame["t"].map(outputs._guard_cell))
+    assert to_csv_safe(frame) == guarded.to_csv(index=False, lineterminator="\r\n")
 
 
 # --- to_json_stable ---------------------------------------------------------------------------
