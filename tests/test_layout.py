@@ -14,7 +14,7 @@ import blendq
 
 PACKAGE = Path(blendq.__file__).parent
 LAYERS = [
-    {"blendq.units", "blendq.errors"},
+    {"blendq.units", "blendq.errors", "blendq.csvtext"},
     {"blendq.chemistry"},
     {"blendq.inputs"},
     {"blendq.review"},

@@ -323,9 +323,15 @@ class QAResult:
         return json.dumps(payload, indent=2)
 
     def to_csv(self, path: str | Path) -> Path:
-        """Write the findings table to ``path`` (CSV) and return the path."""
+        """Write the findings table to ``path`` (CSV: the comment block with the cautions,
+        formula-like cells made inert; :func:`blendq.csvtext.to_csv_safe`) and return the
+        path."""
+        from blendq.csvtext import csv_comments, to_csv_safe
+
         path = Path(path)
-        self.findings.to_csv(path, index=False)
+        text = to_csv_safe(self.findings, comments=csv_comments(
+            "Lab and field review: one row per finding"))
+        path.write_bytes(text.encode("utf-8"))
         return path
 
     def sample_weights(self, mode: str = "keep", per_analyte: bool = False) -> pd.DataFrame:

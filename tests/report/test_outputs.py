@@ -20,6 +20,7 @@ from hypothesis import strategies as st
 
 import blendq as bq
 import blendq.report.outputs as outputs
+from blendq import csvtext
 from blendq.errors import InputError
 from blendq.report.outputs import MARKER_NAME, to_csv_safe, to_json_stable, write_outputs
 
@@ -250,8 +251,8 @@ def test_csv_is_stable_and_round_trips_numbers() -> None:
 @given(st.text(max_size=12))
 def test_formula_guard_property(text: str) -> None:
     # no guarded cell may begin with a formula character; plain numbers stay unchanged
-    guarded = outputs._guard_cell(text)
-    if outputs._PLAIN_NUMBER.fullmatch(text):
+    guarded = csvtext._guard_cell(text)
+    if csvtext._PLAIN_NUMBER.fullmatch(text):
         assert guarded == text
     else:
         assert not guarded.startswith(("=", "+", "-", "@", "\t", "\r"))
@@ -294,7 +295,7 @@ def test_text_cells_round_trip_with_comment_hash(rows, comments) -> None:
     back = pd.read_csv(io.StringIO(text), comment="#", dtype=str, keep_default_na=False)
     assert list(back.columns) == ["x #1", "y"]
     for col in frame.columns:
-        assert back[col].tolist() == [outputs._guard_cell(v) for v in frame[col]]
+        assert back[col].tolist() == [csvtext._guard_cell(v) for v in frame[col]]
 
 
 @given(st.lists(st.text(alphabet=st.sampled_from(list("ab ,\"\r\n=-1.")), max_size=6),
@@ -302,7 +303,7 @@ def test_text_cells_round_trip_with_comment_hash(rows, comments) -> None:
 def test_without_hash_the_fields_are_pandas_own(cells) -> None:
     # the rewrite of the fields changes nothing but the quoting of "#"
     frame = pd.DataFrame({"t": cells, "v": np.arange(len(cells)) / 3})
-    guarded = frame.assign(t=frame["t"].map(outputs._guard_cell))
+    guarded = frame.assign(t=frame["t"].map(csvtext._guard_cell))
     assert to_csv_safe(frame) == guarded.to_csv(index=False, lineterminator="\r\n")
 
 

@@ -675,7 +675,9 @@ def test_summary_json_and_csv(tmp_path: Path):
     assert {f["rule"] for f in payload["findings"]} == {"estimated_value", "nondetect"}
     assert {"rule": "field_stability", "reason": "no field readings"} in payload["skipped"]
     path = result.to_csv(tmp_path / "qa.csv")
-    back = pd.read_csv(path)
+    text = path.read_text(encoding="utf-8")
+    assert text.startswith("# Lab and field review") and "planning aid" in text
+    back = pd.read_csv(path, comment="#")
     assert list(back.columns) == list(result.findings.columns)
     assert len(back) == 2
 
