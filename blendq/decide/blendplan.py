@@ -687,15 +687,19 @@ def _fill(conc: np.ndarray, caps: np.ndarray, volume: float, richest: bool) -> n
     return np.sum(np.where(take > 0, take * c, 0.0), axis=1)
 
 
-def _run(p: _Problem, lay: _Layout, time_limit: float, optimise: bool = True):
-    """Solve the program: first with a zero objective, which proves that no point meets the
-    constraints far sooner than the search for the optimum does (the branch and bound then
-    prunes on feasibility alone); the objective only when a point exists. ``optimise`` False
-    stops at the feasibility answer. The result is the same as of the program with its
-    objective (the constraints are the same); only the time differs."""
+def _run(p: _Problem, lay: _Layout, time_limit: float, optimise: bool = True,
+         check: bool = True):
+    """Solve the program. With ``check``, first with a zero objective, which proves that no
+    point meets the constraints several times sooner than the search for the optimum does
+    (benchmarks/bench_blendplan.py), then with the objective only when a point exists; the
+    result is that of the program with its objective (the constraints are the same), only the
+    time differs. ``optimise`` False stops at the feasibility answer; ``check`` False (for a
+    program that nearly always has a point) goes straight to the optimum."""
     t0 = time.perf_counter()
-    res = lay.prog.solve(time_limit, feasibility=True)
-    if optimise and res.status == 0 and any(lay.prog.cost):
+    res = None
+    if check or not optimise:
+        res = lay.prog.solve(time_limit, feasibility=True)
+    if res is None or (optimise and res.status == 0 and any(lay.prog.cost)):
         res = lay.prog.solve(time_limit)
     if res.status == 1:  # a clock that cuts the search would make the plan differ run to run
         raise ModelError(f"the blending program did not finish within {time_limit:g} s: raise "
@@ -853,7 +857,7 @@ def _diagnose(p: _Problem, time_limit: float) -> tuple[list[Relaxation], float]:
     pr = f"{100 * p.probability:g} %"
     # demand
     lay = _build(p, "demand")
-    res, dt = _run(p, lay, time_limit)
+    res, dt = _run(p, lay, time_limit, check=False)   # delivering nothing is nearly always met
     spent += dt
     if res.x is not None:
         for e, ep in enumerate(p.eps):
@@ -960,7 +964,7 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
                   interference: np.ndarray | None = None, objective: str = "auto",
                   max_draws: int | None = PLAN_DRAWS, seed: int = 0,
                   time_limit: float = TIME_LIMIT, diagnose: bool = True,
-                  units: str = "SI") -> BlendPlan:
+                  units: str = "SI", feasibility_first: bool = False) -> BlendPlan:
     """Rates for the wells that meet every entry point's demand and, in at least
     ``probability`` of the draws, every analyte's margin x limit at every entry point.
 
@@ -998,6 +1002,11 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
         Display unit system of the diagnosis texts ("US", "SI", "SI-L/s").
     diagnose : bool
         Relax each constraint family in turn when no plan exists.
+    feasibility_first : bool
+        Solve each program first with a zero objective, then with the objective when a plan
+        exists: the same plan, several times sooner when there is none, up to about twice the
+        time when there is one (benchmarks/bench_blendplan.py). :func:`n_minus_one` sets it
+        (an outage often leaves no plan); the programs of the diagnosis always do so.
 
     Returns
     -------
@@ -1051,7 +1060,7 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
     for group in _groups(p):
         sub = _restrict(p, group)
         lay = _build(sub, "plan")
-        res, dt = _run(sub, lay, time_limit)
+        res, dt = _run(sub, lay, time_limit, check=feasibility_first)
         spent += dt
         names = ", ".join(sub_ep.name for sub_ep in sub.eps)
         if res.x is None:
@@ -1163,7 +1172,7 @@ def n_minus_one(wells, entry_points, limits: dict[str, float], margin: float,
         trial = [replace(x, available=False) if k == i else x for k, x in enumerate(wells)]
         plan = blending_plan(trial, entry_points, limits, margin, probability, analytes,
                              other_sources, interference, objective, max_draws, seed,
-                             time_limit, units=units)
+                             time_limit, units=units, feasibility_first=True)
         short = {e.name: 0.0 for e in entry_points}
         bad: dict[str, list[str]] = {e.name: [] for e in entry_points}
         for r in plan.diagnosis:
