@@ -487,9 +487,10 @@ class _Layout:
 
 
 def _build(p: _Problem, mode: str = "plan", focus: tuple[int, int] | None = None,
-           dropped: frozenset = frozenset()) -> _Layout:
+           dropped: frozenset = frozenset(), floor: float = 0.0) -> _Layout:
     """Lay out the program. ``mode``: plan, demand, quality (``focus`` = (entry point,
-    analyte) with a free threshold), rates, levels; ``dropped`` quality constraints (e, a)."""
+    analyte) with a free threshold, not below ``floor`` [mg/L]), rates, levels; ``dropped``
+    quality constraints (e, a)."""
     prog = _Program()
     full = mode == "rates"
     pts, lam, on = [], [], []
@@ -607,7 +608,7 @@ def _build(p: _Problem, mode: str = "plan", focus: tuple[int, int] | None = None
                 prog.ub[v[s]] = 0
         for (a, free, loads, big, rhs, need, _) in rows:
             if free:
-                u = prog.var(0, np.inf, cost=1.0)
+                u = prog.var(floor, np.inf, cost=1.0)
                 extra["free"] = u
             for s in np.flatnonzero(need):
                 cols = [lam[i] for i in mine] + [np.array([other[k] for k in var_ok], int)]
@@ -853,6 +854,8 @@ def _conc(analyte: str, v: float) -> str:
 
 
 def _diagnose(p: _Problem, time_limit: float) -> tuple[list[Relaxation], float]:
+    """Relax each constraint family of ``p`` in turn; only for a problem whose plan program
+    has been proved to have no point (the quality programs rely on it)."""
     out, spent = [], 0.0
     pr = f"{100 * p.probability:g} %"
     # demand
@@ -888,7 +891,10 @@ def _diagnose(p: _Problem, time_limit: float) -> tuple[list[Relaxation], float]:
     for e, ep in enumerate(p.eps):
         for a in p.limited:
             name, tgt = p.analytes[a], p.targets[a]
-            lay = _build(p, "quality", focus=(e, a), dropped=frozenset({(e, a)}))
+            # the plan has no point, so every point of these programs has its threshold above
+            # margin x limit (at or below it, the plan would have one): that floor removes no
+            # point, and the branch and bound starts from it rather than from a weak bound
+            lay = _build(p, "quality", focus=(e, a), dropped=frozenset({(e, a)}), floor=tgt)
             res, dt = _run(p, lay, time_limit)
             spent += dt
             alone = False
@@ -901,7 +907,7 @@ def _diagnose(p: _Problem, time_limit: float) -> tuple[list[Relaxation], float]:
                 spent += dt
                 if res.x is not None:
                     continue
-                lay = _build(p, "quality", focus=(e, a), dropped=all_q)
+                lay = _build(p, "quality", focus=(e, a), dropped=all_q, floor=tgt)
                 res, dt = _run(p, lay, time_limit)
                 spent += dt
                 alone = True
