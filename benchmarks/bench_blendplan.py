@@ -2,10 +2,11 @@
 
 Five wells (three feed EP1, two EP2), 40 rate levels each, nitrate and arsenic, rate-dependent
 concentrations from two zones with lognormal draws. Each case runs, in the same run, as the
-package solves it (the diagnosis's programs first with a zero objective, the objective only when
-a point exists, and the lowest quantiles from margin x limit up; with ``feasibility_first`` the
-plan's own programs too) and as a baseline with every program solved with its objective straight
-away and no floor on the quantiles (the same flow otherwise). The printed ratios (baseline CPU
+package solves it (the diagnosis's yes-or-no questions with a zero objective, its rate and level
+relaxations first with a zero objective and with the objective only when a point exists, the
+lowest quantiles from margin x limit up; with ``feasibility_first`` the plan's own programs also
+first with a zero objective) and as a baseline with every program solved with its objective
+straight away and no floor on the quantiles (the same flow otherwise). The printed ratios (baseline CPU
 over package CPU) do not depend on the machine's speed; each line says whether the status,
 rates and diagnosis texts agree with the baseline's. A reference line times the plan with 50
 draws. Run from the repository root: ``python benchmarks/bench_blendplan.py`` (about 2 min).

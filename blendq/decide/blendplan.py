@@ -895,7 +895,7 @@ def _diagnose(p: _Problem, time_limit: float) -> tuple[list[Relaxation], float]:
             # margin x limit (at or below it, the plan would have one): that floor removes no
             # point, and the branch and bound starts from it rather than from a weak bound
             lay = _build(p, "quality", focus=(e, a), dropped=frozenset({(e, a)}), floor=tgt)
-            res, dt = _run(p, lay, time_limit)
+            res, dt = _run(p, lay, time_limit, check=False)
             spent += dt
             alone = False
             if res.x is None:
@@ -908,7 +908,7 @@ def _diagnose(p: _Problem, time_limit: float) -> tuple[list[Relaxation], float]:
                 if res.x is not None:
                     continue
                 lay = _build(p, "quality", focus=(e, a), dropped=all_q, floor=tgt)
-                res, dt = _run(p, lay, time_limit)
+                res, dt = _run(p, lay, time_limit, check=False)   # a point: as all quality
                 spent += dt
                 alone = True
             if res.x is None:
@@ -1009,10 +1009,10 @@ def blending_plan(wells, entry_points, limits: dict[str, float], margin: float,
     diagnose : bool
         Relax each constraint family in turn when no plan exists.
     feasibility_first : bool
-        Solve each program first with a zero objective, then with the objective when a plan
-        exists: the same plan, several times sooner when there is none, up to about twice the
-        time when there is one (benchmarks/bench_blendplan.py). :func:`n_minus_one` sets it
-        (an outage often leaves no plan); the programs of the diagnosis always do so.
+        Solve each plan program first with a zero objective, then with the objective when a
+        plan exists: the same plan, about three times sooner when there is none, up to about
+        twice the time when there is one (benchmarks/bench_blendplan.py). :func:`n_minus_one`
+        sets it (an outage often leaves no plan).
 
     Returns
     -------
