@@ -1537,8 +1537,9 @@ def analyse_wellfield(path: str | os.PathLike[str], workers: int | None = None,
     progress : callable(done, total, well name), optional
     plan_draws : int, optional
         Draws of each well kept in the blending plan's program (default
-        :data:`blendq.decide.blendplan.PLAN_DRAWS`); the plan is solved on first use
-        (``result.plan()``, ``result.n_minus_one()``, the output files).
+        :data:`blendq.decide.blendplan.PLAN_DRAWS`; a whole number, 1 or more; more than the
+        wells' draws keeps them all); the plan is solved on first use (``result.plan()``,
+        ``result.n_minus_one()``, the output files). ``blendq wellfield --plan-draws N``.
 
     Returns
     -------
@@ -1547,10 +1548,16 @@ def analyse_wellfield(path: str | os.PathLike[str], workers: int | None = None,
     Raises
     ------
     InputError
-        For a bad wellfield file (a bad well project is that well's error instead).
+        For a bad wellfield file (a bad well project is that well's error instead), or a bad
+        ``plan_draws``.
     """
     from blendq.decide.batch import run_batch, tasks_for
     from blendq.inputs.wellfield_file import read_wellfield
+
+    if plan_draws is not None and (isinstance(plan_draws, bool) or not isinstance(
+            plan_draws, (int, np.integer)) or plan_draws < 1):
+        raise InputError(f"{plan_draws!r} is not a number of draws (a whole number, 1 or more)",
+                         field="plan_draws")
 
     wf = read_wellfield(path)
     tasks = tasks_for(wf, seed=seed, draws=draws, keep_analysis=keep_analyses)

@@ -747,6 +747,7 @@ def wellfield_cmd(
     scheduler: Annotated[str | None, typer.Option("--scheduler", metavar="ADDRESS", help='Run the wells on this Dask scheduler, e.g. "tcp://10.0.0.5:8786" (needs blendq[wellfield]).')] = None,
     out: Annotated[Path | None, typer.Option("--out", "-o", metavar="FOLDER", help="Write the table (CSV), the chart (PNG, SVG) and the text to this folder (replaced as a whole).")] = None,
     units: UnitsOpt = None, draws: DrawsOpt = None, seed: SeedOpt = None,
+    plan_draws: Annotated[int | None, typer.Option("--plan-draws", metavar="N", help="Draws of each well kept in the blending plan's program (default 200; at most the wells' draws); the plan is checked against all of them. Fewer solve sooner.")] = None,
 ) -> None:
     """Analyse every well of a wellfield (one project per well) and print the wellfield table:
     each well's window, recommended rate, limiting factor, trend and data gaps. A well that
@@ -762,6 +763,11 @@ def wellfield_cmd(
 
         if workers is not None and workers < 1:
             raise typer.BadParameter(f"{workers} is not 1 or more", param_hint="--workers")
+        if plan_draws is not None and plan_draws < 1:
+            raise typer.BadParameter(f"{plan_draws} is not 1 or more", param_hint="--plan-draws")
+        if plan_draws is not None and draws is not None and plan_draws > draws:
+            raise typer.BadParameter(f"{plan_draws} is more than the wells' draws ({draws}, "
+                                     "--draws)", param_hint="--plan-draws")
         u = _units(units) if units else None
         wf = read_wellfield(file)  # a bad file or output folder fails before the long run
         if out is not None:
@@ -774,7 +780,11 @@ def wellfield_cmd(
         with prog:
             result = analyse_wellfield(file, workers=workers, scheduler=scheduler, seed=seed,
                                        draws=draws, units=u, keep_analyses=False,
-                                       progress=callback)
+                                       progress=callback, plan_draws=plan_draws)
+        have = [s.concentration.shape[0] for s in result.summaries.values()]
+        if plan_draws is not None and have and plan_draws > min(have):
+            raise typer.BadParameter(f"{plan_draws} is more than the wells' draws ({min(have)}, "
+                                     "their projects' setting)", param_hint="--plan-draws")
         for line in result.lines()[:-1]:
             typer.echo(line)
         if out is not None:

@@ -9,6 +9,7 @@ from pathlib import Path
 import pytest
 
 import blendq as bq
+from blendq.errors import InputError
 from blendq.report.outputs import MARKER_NAME
 
 EXAMPLE = Path(__file__).resolve().parents[1] / "examples" / "wellfield"
@@ -66,3 +67,10 @@ def test_write(result, tmp_path):
          "wellfield.svg", "wellfield.txt"])
     with pytest.raises(bq.api.InputError, match="would overwrite or delete"):
         result.write(result.wellfield.path.parent)
+
+
+@pytest.mark.parametrize("bad", [0, -1, 2.5, True, "20"])
+def test_a_bad_plan_draws_is_an_input_error_before_the_run(bad):
+    with pytest.raises(InputError, match="plan_draws") as err:
+        bq.analyse_wellfield(EXAMPLE, workers=1, plan_draws=bad)
+    assert "not a number of draws" in str(err.value)

@@ -29,9 +29,10 @@ def run(*args):
 def test_the_demo_wellfield_end_to_end(tmp_path):
     out = tmp_path / "out"
     r = run("wellfield", EXAMPLE / "wellfield.toml", "--draws", "30", "--workers", "2",
-            "--out", out)
+            "--out", out, "--plan-draws", "20")
     assert r.exit_code == 0, r.output
     text = r.stdout
+    assert "20 of 30 draws in the program" in text
     assert "4 wells, 4 analysed, 0 failed" in text
     for well in ("TH-2", "TH-5", "TH-7", "TH-9"):
         assert f"{well} (entry point" in text
@@ -79,6 +80,37 @@ def test_a_bad_wellfield_file_is_one_line(tmp_path):
                                 "name, probability, seed)")
     r = run("wellfield", EXAMPLE, "--workers", "0")
     assert r.exit_code == 2 and "--workers" in r.output
+
+
+def test_a_bad_plan_draws_is_one_line_before_the_run():
+    for args, words in [(("--plan-draws", "0"), "0 is not 1 or more"),
+                        (("--plan-draws", "-3"), "-3 is not 1 or more"),
+                        (("--draws", "30", "--plan-draws", "31"),
+                         "31 is more than the wells' draws (30, --draws)")]:
+        r = run("wellfield", EXAMPLE, "--workers", "1", *args)
+        assert r.exit_code == 2, r.output
+        assert r.output.strip() == f"blendq: error: Invalid value for --plan-draws: {words}"
+    r = run("wellfield", EXAMPLE, "--workers", "1", "--plan-draws", "2.5")  # the parser's own
+    assert r.exit_code == 2 and "--plan-draws" in r.output
+
+
+def test_plan_draws_above_the_projects_draws_is_refused(tmp_path):
+    # one well whose project asks for 12 draws; no --draws, so the project's setting counts
+    import shutil
+
+    shutil.copytree(EXAMPLE / "TH-2", tmp_path / "TH-2")
+    project = tmp_path / "TH-2" / "project.toml"
+    text = project.read_text(encoding="utf-8")
+    assert "draws = 1000" in text
+    project.write_text(text.replace("draws = 1000", "draws = 12"), encoding="utf-8")
+    (tmp_path / "wellfield.toml").write_text(
+        '[wellfield]\nname = "one well"\n\n[[entry_points]]\nname = "A"\n'
+        'demand = "300 gpm"\n\n[[wells]]\nname = "TH-2"\nproject = "TH-2"\n'
+        'entry_point = "A"\n', encoding="utf-8")
+    r = run("wellfield", tmp_path, "--workers", "1", "--plan-draws", "13")
+    assert r.exit_code == 2, r.output
+    assert r.output.strip() == ("blendq: error: Invalid value for --plan-draws: 13 is more "
+                                "than the wells' draws (12, their projects' setting)")
 
 
 #: ``blendq wellfield`` that sends itself SIGTERM once the workers are running

@@ -307,3 +307,57 @@ def test_a_program_cut_off_by_the_clock_is_an_error():
     with pytest.raises(ModelError, match="did not finish within 1e-06 s"):
         blending_plan(wells, [EntryPoint("EP", 2500.0)], {"x": 10.0}, 0.9, 0.9, ["x"],
                       time_limit=1e-6)
+
+
+# ---- (f) the quicker ways to the same answer ----------------------------------------------------
+
+@st.composite
+def _two_analyte_problems(draw):
+    """Two or three wells with two analytes and a few draws, limits from loose to impossible,
+    so that some have a plan and some need the diagnosis."""
+    seed = draw(st.integers(0, 2**16))
+    rng = np.random.default_rng(seed)
+    n, draws = draw(st.integers(2, 3)), draw(st.integers(3, 8))
+    wells = []
+    for k in range(n):
+        r = np.linspace(100.0, 800.0, 5)
+        conc = rng.uniform(0.5, 20.0, (1, 5, 2)) * rng.lognormal(0, 0.2, (draws, 1, 2))
+        wells.append(BlendWell(f"W{k}", "EP", r, conc, 100.0, 800.0,
+                               energy=rng.uniform(0.2, 0.8, 5)))
+    demand = float(rng.uniform(200, 0.9 * 800 * n))
+    limits = {"a": float(rng.uniform(2, 25)), "b": float(rng.uniform(2, 25))}
+    return wells, demand, limits, draw(st.sampled_from([0.6, 0.8, 1.0]))
+
+
+@settings(max_examples=20, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(_two_analyte_problems())
+def test_feasibility_first_and_the_quantile_floor_change_no_answer(problem):
+    # Reference: every program solved with its objective straight away and no floor on the
+    # lowest quantiles (the formulation without the shortcuts); the package's default and
+    # feasibility_first must give the same status, rates and diagnosis.
+    import blendq.decide.blendplan as bp
+
+    wells, demand, limits, prob = problem
+    args = (wells, [EntryPoint("EP", demand)], limits, 0.9, prob, ["a", "b"])
+    default = blending_plan(*args)
+    first = blending_plan(*args, feasibility_first=True)
+    build = bp._build
+
+    def objective_first(p, lay, time_limit, optimise=True, check=True):
+        return lay.prog.solve(time_limit), 0.0
+
+    run = bp._run
+    bp._run = objective_first
+    bp._build = lambda *a, **k: build(*a, **{**k, "floor": 0.0})
+    try:
+        ref = blending_plan(*args)
+    finally:
+        bp._run, bp._build = run, build
+    for plan in (default, first):
+        assert plan.feasible == ref.feasible and plan.status == ref.status
+        for name, q in ref.rates.items():
+            np.testing.assert_allclose(plan.rates[name], q, rtol=1e-6, atol=1e-6)
+        assert [(r.family, r.analyte, r.opens) for r in plan.diagnosis] == [
+            (r.family, r.analyte, r.opens) for r in ref.diagnosis]
+        np.testing.assert_allclose([r.value for r in plan.diagnosis],
+                                   [r.value for r in ref.diagnosis], rtol=1e-6, atol=1e-9)
