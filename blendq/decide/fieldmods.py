@@ -391,13 +391,14 @@ def search(wellfield, outcomes, inputs: PlanInputs, plan: bp.BlendPlan,
     feeding.sort(key=lambda t: t[:2])
     resolves = 0
     for _, _, o, binding in feeding:
-        try:
-            analysis = _analysis_of(wellfield, o) if resolves < max_resolves else None
+        try:  # past the cap, a kept analysis still lists the well's candidates (not tried)
+            analysis = _analysis_of(wellfield, o) if resolves < max_resolves else o.analysis
         except BlendqError as err:
             out.left_out.append(f"{o.name}: its analysis could not be repeated ({err})")
             continue
         if analysis is None:
-            out.left_out.append(f"{o.name}: not looked at (at most {max_resolves} re-solves)")
+            out.left_out.append(f"{o.name}: not looked at (at most {max_resolves} plans "
+                                "re-solved)")
             continue
         for cand in candidates_of(wellfield, o, analysis, binding, out.left_out):
             if resolves >= max_resolves:
@@ -488,7 +489,8 @@ def modification_lines(mods: Modifications, units: str = "US") -> list[str]:
         out.append(f"    opens a plan: {what}. The plan: " + "; ".join(parts) + ".")
     skipped = [c for c in mods.candidates if c.status == NOT_TRIED]
     if skipped:
-        out.append(f"    not tried (at most {mods.max_resolves} plans re-solved): "
+        n = mods.max_resolves
+        out.append(f"    not tried (at most {n} plan{'s' if n != 1 else ''} re-solved): "
                    + "; ".join(f"{c.well}: {c.words}" for c in skipped))
     if mods.left_out:
         out.append("    not tried as a modification: " + "; ".join(mods.left_out))
