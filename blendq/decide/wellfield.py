@@ -240,11 +240,16 @@ def energy_curve(a: Analysis, pumping_level: np.ndarray | None = None,
         if length <= 0:
             raise ModelError(f"the intake's move leaves a pump column of {length:.3g} m")
         spec = replace(spec, column_length=float(length))
-    curve, top = pumpset.curve_of(spec), float(rates[-1])
-    system = pumpset._system(spec, rates, band[1], 0.0)
     out = np.full(len(rates), np.nan)
+    # a modified well may have no level at the high rates (it cannot give them): the system
+    # curve is the part of the grid with a level
+    known = np.isfinite(band[1])
+    if not known.any():
+        return out
+    curve, top = pumpset.curve_of(spec), float(rates[known][-1])
+    system = pumpset._system(spec, rates[known], band[1][known], 0.0)
     for k, q in enumerate(rates):
-        if q <= 0:
+        if q <= 0 or not known[k] or q > top:
             continue
         f = pumpset._setting(curve, system, spec, float(q),
                              (spec.min_frequency, spec.max_frequency), top)

@@ -218,3 +218,30 @@ def test_a_plan_that_exists_needs_no_search(field):
     found = fieldmods.search(r.wellfield, r.outcomes, fp.inputs, feasible)
     assert found.candidates == [] and fieldmods.modification_lines(found) == []
     assert fieldmods.modification_table(found).empty
+
+
+def test_the_energy_of_a_modified_well_follows_its_own_levels(tmp_path):
+    from blendq.decide.batch import WellTask, analyse_well
+
+    data = Path(__file__).resolve().parents[1] / "data" / "pump"
+    shutil.copytree(EXAMPLE / "TH-9", tmp_path / "TH-9")
+    shutil.copy(data / "curve.csv", tmp_path / "TH-9" / "curve.csv")
+    with open(tmp_path / "TH-9" / "project.toml", "a", encoding="utf-8") as f:
+        f.write("\n" + (data / "pump.toml").read_text(encoding="utf-8"))
+    o = analyse_well(WellTask("TH-9", "E", tmp_path / "TH-9", seed=3, draws=100))
+    assert o.error is None, o.error
+    a = o.analysis
+    seal = sc.parse_scenario({"name": "s", "seal": ["Gravel"]}, 1, a.project)
+    s = fieldmods.modified_summary(o.summary, a, sc.evaluate(a, seal))
+    ok = np.isfinite(s.energy) & np.isfinite(o.summary.energy)
+    assert ok.sum() >= 3
+    # wire-to-water energy E = rho g H / efficiencies (Karassik et al. 2008, Pump Handbook):
+    # H at least the lift from the modified median level to the 50 psi (35.2 m) at the wellhead
+    rho_g = 1000.0 * 9.80665  # [N/m^3]
+    bound = rho_g * (s.pumping_level[ok] + 50 * 6894.757 / rho_g) / 3.6e6
+    assert np.all(s.energy[ok] >= bound * (1 - 1e-9))
+    # the modified energy follows the modified levels: where the seal draws the level down by
+    # more than half a metre, the same rate takes more energy to lift
+    deeper = s.pumping_level[ok] > o.summary.pumping_level[ok] + 0.5
+    assert deeper.sum() >= 3
+    assert np.all(s.energy[ok][deeper] > o.summary.energy[ok][deeper])
