@@ -1435,6 +1435,32 @@ class WellfieldResult:
         table.attrs["cautions"] = self.cautions
         return table
 
+    @cached_property
+    def field_modifications(self):
+        """Without a plan at some entry points, the well modifications that would open one
+        (:class:`blendq.decide.fieldmods.Modifications`, searched on first use; empty when the
+        plan exists). A well whose analysis was not kept is analysed again with its seed."""
+        from blendq.decide.fieldmods import search
+        from blendq.decide.fieldplan import field_plan
+
+        # the plan already solved with its N-1 when there is one; else the plan alone
+        fp = self.__dict__.get("field_plan") or field_plan(
+            self.wellfield, self.outcomes, max_draws=self.plan_draws, n_minus_one=False,
+            units=self.units)
+        return search(self.wellfield, self.outcomes, fp.inputs, fp.plan,
+                      max_draws=self.plan_draws, units=self.units)
+
+    def modifications(self) -> pd.DataFrame:
+        """Without a plan, the well modifications tried (:func:`blendq.decide.fieldmods.
+        modification_table`): one row per modification with ``well``, ``modification``,
+        ``origin``, ``status``, ``opens_plan``, the re-solved plan's rate of every source of
+        the unmet entry points in the display unit, ``compliance <entry point>`` (share of
+        all draws meeting every limit) and ``note``. Empty when the plan exists. Each is a
+        planning idea for a licensed professional to check."""
+        from blendq.decide.fieldmods import modification_table
+
+        return modification_table(self.field_modifications, self.units)
+
     def _plan_table(self) -> pd.DataFrame:
         """The plan's table with its status in a last column (a wellfield without a plan
         shows every rate 0 and says why)."""
@@ -1443,10 +1469,13 @@ class WellfieldResult:
         return table
 
     def plan_lines(self) -> list[str]:
-        """The plan and the N-1 outcome as text (display units)."""
+        """The plan (without one, the well modifications that would open it) and the N-1
+        outcome as text (display units)."""
+        from blendq.decide.fieldmods import modification_lines
         from blendq.decide.fieldplan import outage_lines, plan_lines
 
         return [*plan_lines(self.field_plan, self.units),
+                *modification_lines(self.field_modifications, self.units),
                 *outage_lines(self.field_plan, self.units)]
 
     @property

@@ -752,8 +752,8 @@ def wellfield_cmd(
     """Analyse every well of a wellfield (one project per well) and print the wellfield table:
     each well's window, recommended rate, limiting factor, trend and data gaps. A well that
     fails reports its error; the others go on. Then the blending plan (rates per well meeting
-    each entry point's demand under margin x limit), or what would open one, and the N-1
-    outages."""
+    each entry point's demand under margin x limit), or what would open one (with the well
+    modifications from the wells' scenarios that would), and the N-1 outages."""
 
     def body():
         from blendq.api import analyse_wellfield

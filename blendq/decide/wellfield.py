@@ -11,13 +11,14 @@ thin-data note, unresolved zones), never a second derivation.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 import pandas as pd
 
 from blendq.chemistry.analytes import get_analyte
 from blendq.decide.analysis import Analysis, thin_data_note
+from blendq.errors import ModelError
 from blendq.units import DISPLAY_UNITS, display_unit_label, from_base
 
 #: text of a window end that no criterion closes (the end of the rate grid)
@@ -203,11 +204,17 @@ def summarise(a: Analysis, name: str, entry_point: str, seed: int) -> WellSummar
         energy=energy_curve(a))
 
 
-def energy_curve(a: Analysis) -> np.ndarray | None:
+def energy_curve(a: Analysis, pumping_level: np.ndarray | None = None,
+                 intake: float | None = None) -> np.ndarray | None:
     """Wire-to-water energy per volume [kWh/m^3] at each rate of the grid, at the drive
     setting that delivers the rate against the median pumping level (the pump's curve scaled
     by the affinity laws meeting the system curve, :mod:`blendq.decide.pumpset`); NaN where
     no setting in the drive's range delivers it. None without a ``[pump]`` table.
+
+    ``pumping_level`` (n_draws, n_rates) [m depth] and ``intake`` [m depth] give the levels
+    and the pump intake of a modified well (a scenario's prediction): the band then comes from
+    those draws alone, and a moved intake lengthens or shortens the pump column by the move
+    (the pump hangs at its intake, as a scenario's new pump does).
 
     References
     ----------
@@ -223,12 +230,26 @@ def energy_curve(a: Analysis) -> np.ndarray | None:
     spec = read_pump(folder / files["project"])
     if spec is None:
         return None
-    rates, band = pumpset.level_band(a)
-    curve, top = pumpset.curve_of(spec), float(rates[-1])
-    system = pumpset._system(spec, rates, band[1], 0.0)
+    if pumping_level is None:
+        rates, band = pumpset.level_band(a)
+    else:
+        rates, band = pumpset.band_of(a.prediction.rates, pumping_level,
+                                      a.project.settings.exceedance_probability)
+    if intake is not None:
+        length = spec.column_length + intake - a.project.well.operating_intake
+        if length <= 0:
+            raise ModelError(f"the intake's move leaves a pump column of {length:.3g} m")
+        spec = replace(spec, column_length=float(length))
     out = np.full(len(rates), np.nan)
+    # a modified well may have no level at the high rates (it cannot give them): the system
+    # curve is the part of the grid with a level
+    known = np.isfinite(band[1])
+    if not known.any():
+        return out
+    curve, top = pumpset.curve_of(spec), float(rates[known][-1])
+    system = pumpset._system(spec, rates[known], band[1][known], 0.0)
     for k, q in enumerate(rates):
-        if q <= 0:
+        if q <= 0 or not known[k] or q > top:
             continue
         f = pumpset._setting(curve, system, spec, float(q),
                              (spec.min_frequency, spec.max_frequency), top)
