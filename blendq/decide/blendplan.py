@@ -18,6 +18,8 @@ from __future__ import annotations
 
 import math
 import time
+from collections.abc import Iterator
+from contextlib import contextmanager
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -471,9 +473,48 @@ class _Program:
                           shape=(len(self.rlo), n)).tocsr()
             cons = LinearConstraint(a, self.rlo, self.rhi)
         cost = np.zeros(n) if feasibility else np.array(self.cost, float)
-        return milp(cost, integrality=np.array(self.integer),
-                    bounds=Bounds(self.lb, self.ub), constraints=cons,
-                    options={"time_limit": time_limit, "mip_rel_gap": MIP_GAP, "disp": False})
+        with _solver_console_silenced():
+            return milp(cost, integrality=np.array(self.integer),
+                        bounds=Bounds(self.lb, self.ub), constraints=cons,
+                        options={"time_limit": time_limit, "mip_rel_gap": MIP_GAP,
+                                 "disp": False})
+
+
+@contextmanager
+def _solver_console_silenced() -> Iterator[None]:
+    """Send the process's standard output (file descriptor 1) to the null device while HiGHS
+    solves: it writes a debugging line of its own now and then
+    ("HighsMipSolverData::transformNewIntegerFeasibleSolution ..."), whatever its display
+    option. The C library's buffers are flushed before the descriptor is restored, so nothing
+    of the solver's comes out later; where the descriptor cannot be duplicated nothing is
+    changed."""
+    import ctypes
+    import os
+    import sys
+
+    def c_flush() -> None:
+        try:
+            ctypes.CDLL(None).fflush(None)
+        except (OSError, AttributeError, TypeError):  # no C library handle (Windows)
+            pass
+
+    try:
+        sys.stdout.flush()
+        saved = os.dup(1)
+    except (OSError, ValueError, AttributeError):
+        yield
+        return
+    try:
+        null = os.open(os.devnull, os.O_WRONLY)
+        try:
+            os.dup2(null, 1)
+        finally:
+            os.close(null)
+        yield
+    finally:
+        c_flush()
+        os.dup2(saved, 1)
+        os.close(saved)
 
 
 @dataclass

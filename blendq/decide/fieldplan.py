@@ -603,7 +603,13 @@ def outage_lines(fp: FieldPlan, units: str = "US") -> list[str]:
     out = ["N-1 (each planned well out of service in turn):"]
     if not fp.outages:
         return out + ["  no well to take out"]
-    for r, entries in zip(fp.outages, _outcomes(fp), strict=True):
+    outcomes = _outcomes(fp)
+    if fp.inputs.interference is not None and any(
+            o.fails != "no" for entries in outcomes for o in entries):
+        out.append("  (an entry point left without a plan is planned again on its own wells, "
+                   "the other entry points' wells off: what it can do before their drawdown, "
+                   "so a shortfall stated is the least it would be)")
+    for r, entries in zip(fp.outages, outcomes, strict=True):
         bad = [entry_outcome_text(o, units, fp.inputs.probability)
                for o in entries if o.fails != "no"]
         if not bad:

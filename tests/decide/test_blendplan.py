@@ -361,3 +361,22 @@ def test_feasibility_first_and_the_quantile_floor_change_no_answer(problem):
             (r.family, r.analyte, r.opens) for r in ref.diagnosis]
         np.testing.assert_allclose([r.value for r in plan.diagnosis],
                                    [r.value for r in ref.diagnosis], rtol=1e-6, atol=1e-9)
+
+
+def test_solver_console_output_is_silenced():
+    # HiGHS writes a debugging line of its own to the process's standard output now and then;
+    # the solve sends file descriptor 1 to the null device and flushes the C buffers before
+    # restoring it, so a line written from C inside never reaches the user, and Python's own
+    # output before and after does
+    import subprocess
+    import sys
+    code = ("import ctypes, sys\n"
+            "from blendq.decide.blendplan import _solver_console_silenced\n"
+            "print('before', flush=True)\n"
+            "with _solver_console_silenced():\n"
+            "    ctypes.CDLL(None).printf(b'solver noise\\n')\n"
+            "print('after')\n")
+    run = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         timeout=60)
+    assert run.returncode == 0, run.stderr
+    assert run.stdout == "before\nafter\n"
