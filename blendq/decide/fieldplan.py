@@ -501,13 +501,10 @@ def plan_lines(fp: FieldPlan, units: str = "US") -> list[str]:
     """The plan as text: rates per well in the display unit, the blend at each entry point
     (median and the chosen-probability quantile against margin x limit, the share of all draws
     meeting every limit), the objective; without a plan, its status and what would open one."""
-    from blendq.units import DISPLAY_UNITS, display_unit_label, from_base
-
-    unit = DISPLAY_UNITS[units]["rate"]
-    label = display_unit_label(unit)
+    from blendq.units import format_quantity
 
     def q(v: float) -> str:
-        return f"{float(from_base(v, 'rate', unit)):,.4g} {label}"
+        return format_quantity(v, "rate", units, digits=4)
 
     p, inp = fp.plan, fp.inputs
     # (no solve time here: the text is byte-identical for the same seed; BlendPlan has it)
