@@ -221,14 +221,11 @@ def test_a_plan_that_exists_needs_no_search(field):
 
 
 def test_the_energy_of_a_modified_well_follows_its_own_levels(tmp_path):
+    from pumped_wells import well_with_test_pump
+
     from blendq.decide.batch import WellTask, analyse_well
 
-    data = Path(__file__).resolve().parents[1] / "data" / "pump"
-    shutil.copytree(EXAMPLE / "TH-9", tmp_path / "TH-9")
-    shutil.copy(data / "curve.csv", tmp_path / "TH-9" / "curve.csv")
-    with open(tmp_path / "TH-9" / "project.toml", "a", encoding="utf-8") as f:
-        f.write("\n" + (data / "pump.toml").read_text(encoding="utf-8"))
-    o = analyse_well(WellTask("TH-9", "E", tmp_path / "TH-9", seed=3, draws=100))
+    o = analyse_well(WellTask("TH-9", "E", well_with_test_pump(tmp_path), seed=3, draws=100))
     assert o.error is None, o.error
     a = o.analysis
     seal = sc.parse_scenario({"name": "s", "seal": ["Gravel"]}, 1, a.project)

@@ -227,16 +227,11 @@ def test_an_other_source_without_a_planned_analyte_is_an_input_error(field):
 
 
 def test_the_energy_curve_of_a_well_with_a_pump(tmp_path):
-    import shutil
+    from pumped_wells import well_with_test_pump
 
     from blendq.decide.batch import WellTask, analyse_well
 
-    data = Path(__file__).resolve().parents[1] / "data" / "pump"
-    shutil.copytree(EXAMPLE / "TH-9", tmp_path / "TH-9")
-    shutil.copy(data / "curve.csv", tmp_path / "TH-9" / "curve.csv")
-    with open(tmp_path / "TH-9" / "project.toml", "a", encoding="utf-8") as f:
-        f.write("\n" + (data / "pump.toml").read_text(encoding="utf-8"))
-    o = analyse_well(WellTask("TH-9", "E", tmp_path / "TH-9", seed=3, draws=DRAWS))
+    o = analyse_well(WellTask("TH-9", "E", well_with_test_pump(tmp_path), seed=3, draws=DRAWS))
     assert o.error is None, o.error
     s = o.summary
     e = s.energy
